@@ -1,0 +1,28 @@
+// Package data loads, checks and organises the recordings stria fits: a
+// trials x neurons response matrix, one stimulus value per trial, and
+// optional condition and block ids.
+//
+// Conventions, stated once:
+//
+//   - Response matrices are [Matrix] values: dense, row-major float32 with
+//     Rows = trials and Cols = neurons. Element (t, n) is Data[t*Cols+n].
+//     Accumulations (sums, means, variances) are done in float64.
+//   - Trials, neurons, conditions (stimulus bins) and blocks are numbered
+//     from 0. Every message that names a trial says "(0-based)" so that a
+//     user coming from a 1-based tool is not misled.
+//   - A slice written by a function is its first argument and is called dst;
+//     a nil dst is allocated.
+//   - Shapes of flat slices are given as "B x N", row-major: condition b,
+//     neuron n is element b*N+n.
+//   - Wrong shapes or indices passed by a programmer panic with a message
+//     starting "data: ". Anything that comes from outside (files, config
+//     values, stimulus values) gives a returned error naming the file, field,
+//     line, trial or neuron. User data never causes a panic.
+//   - Randomness comes from a seed (uint64) turned into a PCG source of
+//     math/rand/v2; no global random source is used, so results are the same
+//     for the same seed on every machine.
+//
+// File formats: .npy (NEP 1, "A Simple File Format for NumPy Arrays",
+// versions 1.0, 2.0 and 3.0), .npz (a zip archive of .npy files) and
+// delimited text with a header row (.csv with commas, .tsv with tabs).
+package data

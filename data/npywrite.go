@@ -1,0 +1,149 @@
+package data
+
+import (
+	"bufio"
+	"encoding/binary"
+	"fmt"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"unsafe"
+)
+
+// WriteNPY writes data as a little-endian float32 array in C order with
+// the given shape (any number of dimensions, including none for a scalar).
+// The header is version 1.0 unless it would be longer than 65535 bytes
+// (then 2.0), padded so the data starts at a multiple of 64 bytes (NEP 1).
+//
+// Writing is atomic: the array goes to a temporary file in the same folder,
+// which is synced and then renamed over path, so a reader never sees half a
+// file. WriteNPY panics if a dimension is negative or the product of shape
+// is not len(data).
+func WriteNPY(path string, shape []int, data []float32) error {
+	checkShape("WriteNPY", shape, len(data))
+	var raw []byte
+	if len(data) > 0 && hostLittle {
+		raw = unsafe.Slice((*byte)(unsafe.Pointer(&data[0])), 4*len(data))
+	}
+	return writeNPY(path, "<f4", shape, raw, len(data), func(b []byte, i int) {
+		binary.LittleEndian.PutUint32(b, math.Float32bits(data[i]))
+	}, 4)
+}
+
+// WriteNPY64 is like WriteNPY for float64 data ("<f8").
+func WriteNPY64(path string, shape []int, data []float64) error {
+	checkShape("WriteNPY64", shape, len(data))
+	var raw []byte
+	if len(data) > 0 && hostLittle {
+		raw = unsafe.Slice((*byte)(unsafe.Pointer(&data[0])), 8*len(data))
+	}
+	return writeNPY(path, "<f8", shape, raw, len(data), func(b []byte, i int) {
+		binary.LittleEndian.PutUint64(b, math.Float64bits(data[i]))
+	}, 8)
+}
+
+func checkShape(fn string, shape []int, n int) {
+	p := 1
+	for _, d := range shape {
+		if d < 0 {
+			panic(fmt.Sprintf("data: %s negative dimension in shape %v", fn, shape))
+		}
+		p *= d
+	}
+	if p != n {
+		panic(fmt.Sprintf("data: %s shape %v holds %d elements, data has %d", fn, shape, p, n))
+	}
+}
+
+// npyHeaderBytes returns the magic, version, length and padded header dict.
+func npyHeaderBytes(descr string, shape []int) []byte {
+	var sb strings.Builder
+	sb.WriteString("{'descr': '")
+	sb.WriteString(descr)
+	sb.WriteString("', 'fortran_order': False, 'shape': (")
+	for i, d := range shape {
+		if i > 0 {
+			sb.WriteString(", ")
+		}
+		fmt.Fprintf(&sb, "%d", d)
+	}
+	if len(shape) == 1 {
+		sb.WriteString(",")
+	}
+	sb.WriteString("), }")
+	dict := sb.String()
+	pre := 10
+	major := byte(1)
+	if len(dict)+1+63 > math.MaxUint16 {
+		pre, major = 12, 2
+	}
+	total := pre + len(dict) + 1
+	total += (64 - total%64) % 64
+	hlen := total - pre
+	b := make([]byte, 0, total)
+	b = append(b, npyMagic...)
+	b = append(b, major, 0)
+	if major == 1 {
+		b = binary.LittleEndian.AppendUint16(b, uint16(hlen))
+	} else {
+		b = binary.LittleEndian.AppendUint32(b, uint32(hlen))
+	}
+	b = append(b, dict...)
+	for len(b) < total-1 {
+		b = append(b, ' ')
+	}
+	return append(b, '\n')
+}
+
+// writeNPY writes header and data atomically. raw, if non-nil, is the data
+// already in little-endian byte order; otherwise put encodes element i.
+func writeNPY(path, descr string, shape []int, raw []byte, n int, put func(b []byte, i int), size int) (err error) {
+	dir, base := filepath.Split(path)
+	if dir == "" {
+		dir = "."
+	}
+	f, err := os.CreateTemp(dir, "."+base+".tmp-*")
+	if err != nil {
+		return fmt.Errorf("data: writing %s: %w", path, err)
+	}
+	tmp := f.Name()
+	defer func() {
+		if err != nil {
+			f.Close()
+			os.Remove(tmp)
+		}
+	}()
+	w := bufio.NewWriterSize(f, 1<<16)
+	if _, err = w.Write(npyHeaderBytes(descr, shape)); err != nil {
+		return fmt.Errorf("data: writing %s: %w", path, err)
+	}
+	if raw != nil {
+		_, err = w.Write(raw)
+	} else {
+		var b [8]byte
+		for i := 0; i < n && err == nil; i++ {
+			put(b[:size], i)
+			_, err = w.Write(b[:size])
+		}
+	}
+	if err == nil {
+		err = w.Flush()
+	}
+	if err == nil {
+		err = f.Sync()
+	}
+	if err == nil {
+		err = f.Chmod(0o644)
+	}
+	if err != nil {
+		return fmt.Errorf("data: writing %s: %w", path, err)
+	}
+	if err = f.Close(); err != nil {
+		return fmt.Errorf("data: writing %s: %w", path, err)
+	}
+	if err = os.Rename(tmp, path); err != nil {
+		return fmt.Errorf("data: writing %s: %w", path, err)
+	}
+	return nil
+}
