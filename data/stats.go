@@ -1,0 +1,210 @@
+package data
+
+import (
+	"fmt"
+	"math"
+	"runtime"
+	"sync"
+)
+
+// CondStats holds per-condition sufficient statistics of a set of trials
+// (METHODS.md §8): for condition b and neuron n,
+//
+//	Count[b]      = N_b, the number of trials of condition b
+//	Sum[b*N+n]    = S_bn = sum over those trials of y_tn
+//	SumSq[b*N+n]  = sum over those trials of y_tn^2
+//
+// B is the number of conditions and N the number of neurons; Sum and SumSq
+// are B x N, accumulated in float64 in ascending trial order.
+type CondStats struct {
+	B, N  int
+	Count []int
+	Sum   []float64
+	SumSq []float64
+}
+
+// NewCondStats accumulates the statistics of the listed trials (rows of y)
+// with cond[t] in [0, nbins) the condition of trial t. Large inputs are
+// split over neuron column ranges and run in parallel; every element is
+// still summed in trial order, so the result does not depend on the number
+// of goroutines. It panics if a trial index or a condition id of a listed
+// trial is out of range, or len(cond) != y.Rows.
+func NewCondStats(y *Matrix, cond []int, trials []int, nbins int) *CondStats {
+	if len(cond) != y.Rows {
+		panic(fmt.Sprintf("data: NewCondStats %d condition ids for %d trials", len(cond), y.Rows))
+	}
+	if nbins < 0 {
+		panic("data: NewCondStats negative number of conditions")
+	}
+	N := y.Cols
+	s := &CondStats{B: nbins, N: N, Count: make([]int, nbins), Sum: make([]float64, nbins*N), SumSq: make([]float64, nbins*N)}
+	for _, t := range trials {
+		if t < 0 || t >= y.Rows {
+			panic(fmt.Sprintf("data: NewCondStats trial %d out of range [0, %d)", t, y.Rows))
+		}
+		b := cond[t]
+		if b < 0 || b >= nbins {
+			panic(fmt.Sprintf("data: NewCondStats trial %d has condition %d outside [0, %d)", t, b, nbins))
+		}
+		s.Count[b]++
+	}
+	workers := runtime.GOMAXPROCS(0)
+	if work := len(trials) * N; work < 1<<20 || N < 2*workers {
+		workers = 1
+	}
+	chunk := (N + workers - 1) / workers
+	var wg sync.WaitGroup
+	for lo := 0; lo < N; lo += chunk {
+		hi := min(lo+chunk, N)
+		wg.Add(1)
+		go func(lo, hi int) {
+			defer wg.Done()
+			s.accumulate(y, cond, trials, lo, hi)
+		}(lo, hi)
+	}
+	wg.Wait()
+	return s
+}
+
+// accumulate adds the trials' values of neurons [lo, hi).
+func (s *CondStats) accumulate(y *Matrix, cond, trials []int, lo, hi int) {
+	N := s.N
+	for _, t := range trials {
+		b := cond[t]
+		row := y.Data[t*N+lo : t*N+hi]
+		sum := s.Sum[b*N+lo : b*N+hi]
+		sq := s.SumSq[b*N+lo : b*N+hi]
+		for n, v := range row {
+			x := float64(v)
+			sum[n] += x
+			sq[n] += x * x
+		}
+	}
+}
+
+func (s *CondStats) dst(dst []float64, fn string) []float64 {
+	if dst == nil {
+		return make([]float64, s.B*s.N)
+	}
+	if len(dst) != s.B*s.N {
+		panic(fmt.Sprintf("data: CondStats.%s dst length %d, want B*N = %d", fn, len(dst), s.B*s.N))
+	}
+	return dst
+}
+
+// Mean writes the condition means ybar_bn = S_bn / N_b into dst (B x N;
+// allocated if nil) and returns it. Empty conditions give NaN. It panics if
+// dst is not nil and not of length B*N.
+func (s *CondStats) Mean(dst []float64) []float64 {
+	dst = s.dst(dst, "Mean")
+	for b := 0; b < s.B; b++ {
+		d := dst[b*s.N : (b+1)*s.N]
+		if s.Count[b] == 0 {
+			for n := range d {
+				d[n] = math.NaN()
+			}
+			continue
+		}
+		inv := 1 / float64(s.Count[b])
+		for n, v := range s.Sum[b*s.N : (b+1)*s.N] {
+			d[n] = v * inv
+		}
+	}
+	return dst
+}
+
+// Var writes the within-condition variances with ddof 1 (METHODS.md §0),
+//
+//	s2_bn = (SumSq_bn - S_bn^2 / N_b) / (N_b - 1),
+//
+// into dst (B x N; allocated if nil) and returns it. Conditions with fewer
+// than two trials give NaN. Tiny negative results from rounding are set to
+// 0. The one-pass formula loses precision when a neuron's mean is much
+// larger than its spread (relative error about 1e-16 mean^2/s2); for
+// responses as float32 this is far below the input's own precision unless
+// mean/spread exceeds about 1e4. It panics like Mean.
+func (s *CondStats) Var(dst []float64) []float64 {
+	dst = s.dst(dst, "Var")
+	for b := 0; b < s.B; b++ {
+		d := dst[b*s.N : (b+1)*s.N]
+		nb := s.Count[b]
+		if nb < 2 {
+			for n := range d {
+				d[n] = math.NaN()
+			}
+			continue
+		}
+		sum := s.Sum[b*s.N : (b+1)*s.N]
+		sq := s.SumSq[b*s.N : (b+1)*s.N]
+		inv := 1 / float64(nb)
+		for n := range d {
+			v := (sq[n] - sum[n]*sum[n]*inv) / float64(nb-1)
+			if v < 0 {
+				v = 0
+			}
+			d[n] = v
+		}
+	}
+	return dst
+}
+
+// Normalizer z-scores each neuron: y' = (y - Mean[n]) / Scale[n]. It is fitted
+// on training trials only, so that nothing about the test trials leaks into
+// the model through the normalisation.
+type Normalizer struct {
+	Mean  []float64 // per neuron, over the fitted trials
+	Scale []float64 // per neuron standard deviation (ddof 0); 1 for a constant neuron
+}
+
+// FitNormalizer computes each neuron's mean and standard deviation (ddof 0,
+// two passes in float64) over the listed trials. A neuron that is constant
+// over them gets Scale 1, so Apply only removes its mean; Check reports
+// such neurons. It panics if trials is empty or holds an index out of range.
+func FitNormalizer(y *Matrix, trials []int) *Normalizer {
+	if len(trials) == 0 {
+		panic("data: FitNormalizer with no trials")
+	}
+	N := y.Cols
+	z := &Normalizer{Mean: make([]float64, N), Scale: make([]float64, N)}
+	for _, t := range trials {
+		for n, v := range y.Row(t) {
+			z.Mean[n] += float64(v)
+		}
+	}
+	inv := 1 / float64(len(trials))
+	for n := range z.Mean {
+		z.Mean[n] *= inv
+	}
+	for _, t := range trials {
+		for n, v := range y.Row(t) {
+			d := float64(v) - z.Mean[n]
+			z.Scale[n] += d * d
+		}
+	}
+	for n, ss := range z.Scale {
+		sd := math.Sqrt(ss * inv)
+		if !(sd > 0) || math.IsInf(sd, 0) {
+			sd = 1
+		}
+		z.Scale[n] = sd
+	}
+	return z
+}
+
+// Apply z-scores y in place. It panics if y.Cols differs from the number of
+// neurons the Normalizer was fitted on.
+func (z *Normalizer) Apply(y *Matrix) {
+	if y.Cols != len(z.Mean) {
+		panic(fmt.Sprintf("data: Normalizer fitted on %d neurons, matrix has %d", len(z.Mean), y.Cols))
+	}
+	inv := make([]float64, len(z.Scale))
+	for n, s := range z.Scale {
+		inv[n] = 1 / s
+	}
+	for t := 0; t < y.Rows; t++ {
+		row := y.Row(t)
+		for n, v := range row {
+			row[n] = float32((float64(v) - z.Mean[n]) * inv[n])
+		}
+	}
+}
