@@ -1,18 +1,78 @@
 package main
 
 import (
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+
 	"github.com/urfave/cli/v2"
-	_ "gonum.org/v1/gonum/mat"
-	_ "gopkg.in/yaml.v3"
+	"golang.org/x/term"
+
+	"stria/train"
 )
 
 // version is set at build time with -ldflags "-X main.version=...".
 var version = "0.1.0-dev"
 
 func newApp() *cli.App {
+	train.Version = version
 	return &cli.App{
 		Name:    "stria",
 		Usage:   "fit and compare encoding models of a population's responses to a 1D stimulus",
 		Version: version,
+		Description: "stria trains a convolutional encoder whose few filters are shared by every neuron, fits per-neuron\n" +
+			"tuning curves, scores all of them on held-out trials against the noise ceiling, and exports\n" +
+			"filters, tuning curves and per-neuron tables. Start with: stria demo",
+		Commands: []*cli.Command{
+			demoCommand(),
+			inspectCommand(),
+			fitCommand(),
+			predictCommand(),
+		},
 	}
+}
+
+// dataFlags override the config's data paths and output folder.
+func dataFlags() []cli.Flag {
+	return []cli.Flag{
+		&cli.StringFlag{Name: "config", Aliases: []string{"c"}, Usage: "YAML config `FILE`", Required: true},
+		&cli.StringFlag{Name: "responses", Usage: "response matrix `FILE` (trials x neurons); overrides data.responses"},
+		&cli.StringFlag{Name: "stimulus", Usage: "stimulus values `FILE`; overrides data.stimulus"},
+		&cli.StringFlag{Name: "out", Usage: "output `FOLDER`; overrides output"},
+	}
+}
+
+// loadConfig reads the config and applies the command-line overrides.
+// Paths given on the command line are relative to the working folder.
+func loadConfig(c *cli.Context) (*train.Config, error) {
+	cfg, err := train.LoadConfig(c.String("config"))
+	if err != nil {
+		return nil, err
+	}
+	abs := func(p string) string {
+		if a, err := filepath.Abs(p); err == nil {
+			return a
+		}
+		return p
+	}
+	if v := c.String("responses"); v != "" {
+		cfg.Data.Responses = abs(v)
+	}
+	if v := c.String("stimulus"); v != "" {
+		cfg.Data.Stimulus = abs(v)
+	}
+	if v := c.String("out"); v != "" {
+		cfg.Output = abs(v)
+	}
+	if err := cfg.Validate(); err != nil {
+		return nil, fmt.Errorf("%s: %w", c.String("config"), err)
+	}
+	return cfg, nil
+}
+
+// isTerminal reports whether w is a terminal (progress bars only there).
+func isTerminal(w io.Writer) bool {
+	f, ok := w.(*os.File)
+	return ok && term.IsTerminal(int(f.Fd()))
 }

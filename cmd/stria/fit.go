@@ -1,0 +1,143 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"os/signal"
+	"path/filepath"
+	"syscall"
+	"time"
+
+	"github.com/schollz/progressbar/v3"
+	"github.com/urfave/cli/v2"
+
+	"stria/train"
+)
+
+func fitCommand() *cli.Command {
+	return &cli.Command{
+		Name:      "fit",
+		Usage:     "train the shared-filter encoder from a YAML config and write a run folder",
+		ArgsUsage: " ",
+		Flags: append(dataFlags(),
+			&cli.BoolFlag{Name: "resume", Usage: "continue from the checkpoint in the run folder"},
+			&cli.BoolFlag{Name: "quiet", Aliases: []string{"q"}, Usage: "no progress display"},
+		),
+		Action: func(c *cli.Context) error {
+			cfg, err := loadConfig(c)
+			if err != nil {
+				return err
+			}
+			ctx, stop := signal.NotifyContext(c.Context, os.Interrupt, syscall.SIGTERM)
+			defer stop()
+			_, err = runFit(ctx, cfg, fitOptions{resume: c.Bool("resume"), quiet: c.Bool("quiet"), stdout: c.App.Writer, stderr: c.App.ErrWriter})
+			return err
+		},
+	}
+}
+
+type fitOptions struct {
+	resume bool
+	quiet  bool
+	stdout io.Writer
+	stderr io.Writer
+}
+
+// runFit loads, trains, scores and writes the run folder.
+func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*train.Summary, error) {
+	if o.stderr == nil {
+		o.stderr = os.Stderr
+	}
+	start := time.Now()
+	dir := cfg.Output
+	cfgYAML, err := cfg.Marshal()
+	if err != nil {
+		return nil, err
+	}
+	var resume *train.Checkpoint
+	if o.resume {
+		resume, err = train.LoadCheckpoint(dir)
+		if err != nil {
+			return nil, fmt.Errorf("--resume: %w", err)
+		}
+		if !bytes.Equal(resume.Config, cfgYAML) {
+			return nil, fmt.Errorf("--resume: the checkpoint in %s was written with another config; refusing to mix them", dir)
+		}
+	}
+	p, err := train.Prepare(cfg)
+	if err != nil {
+		return nil, err
+	}
+	for _, w := range p.Report.Warnings {
+		fmt.Fprintln(o.stderr, "warning:", w)
+	}
+	hooks := train.Hooks{
+		Checkpoint: func(c *train.Checkpoint) error {
+			c.Config = cfgYAML
+			return train.SaveCheckpoint(dir, c)
+		},
+	}
+	var bar *progressbar.ProgressBar
+	if !o.quiet && isTerminal(o.stderr) {
+		bar = progressbar.NewOptions(cfg.Train.MaxEpochs,
+			progressbar.OptionSetWriter(o.stderr),
+			progressbar.OptionSetDescription("epoch"),
+			progressbar.OptionShowCount(),
+			progressbar.OptionSetPredictTime(true),
+			progressbar.OptionSetElapsedTime(true),
+			progressbar.OptionThrottle(100*time.Millisecond),
+			progressbar.OptionSetWidth(24),
+			progressbar.OptionClearOnFinish(),
+		)
+		hooks.OnEpoch = func(e train.EpochLog) {
+			bar.Describe(fmt.Sprintf("loss %.4g  val %.4g  val R2 %.3f", e.TrainLoss, e.ValLoss, e.ValR2))
+			bar.Set(e.Epoch)
+		}
+	}
+	fitted, err := train.Fit(ctx, p, hooks, resume)
+	if bar != nil {
+		bar.Finish()
+	}
+	if errors.Is(err, train.ErrInterrupted) {
+		return nil, fmt.Errorf("%w; checkpoint saved in %s: continue with --resume", err, filepath.Join(dir, train.FileCheckpoint))
+	}
+	if err != nil {
+		return nil, err
+	}
+	pred := train.PredictTrials(fitted.Net, p, p.Test)
+	scores := train.Score(p, pred)
+	sum, err := train.WriteRun(dir, p, fitted, scores, time.Since(start))
+	if err != nil {
+		return nil, err
+	}
+	os.Remove(filepath.Join(dir, train.FileCheckpoint))
+	if o.stdout != nil {
+		printSummary(o.stdout, dir, sum)
+	}
+	return sum, nil
+}
+
+func printSummary(w io.Writer, dir string, s *train.Summary) {
+	fmt.Fprintf(w, "run folder: %s\n", dir)
+	fmt.Fprintf(w, "trained %d epochs (best %d, stopped by %s) in %.1f s\n", s.Epochs, s.BestEpoch, s.Stop, s.WallSeconds)
+	fmt.Fprintf(w, "held-out trials: %d; neurons scored: %d of %d", s.TestTrials, s.Scored, s.Neurons)
+	if s.Excluded > 0 {
+		fmt.Fprintf(w, " (%d excluded, reasons in %s)", s.Excluded, train.FileMetrics)
+	}
+	fmt.Fprintln(w)
+	if s.NoSignal > 0 {
+		fmt.Fprintf(w, "neurons with signal power <= 0 on the test trials (NaN noise-ceiling ratios): %d\n", s.NoSignal)
+	}
+	fmt.Fprintln(w, "median over neurons [interquartile range]:")
+	for _, k := range []string{"test_r2", "test_r", "explainable_fraction", "fev", "cc_norm"} {
+		sp := s.Spread[k]
+		fmt.Fprintf(w, "  %-21s %7.3f  [%.3f, %.3f]\n", k, sp.Median, sp.Q1, sp.Q3)
+	}
+	for _, c := range s.Cautions {
+		fmt.Fprintln(w, "note:", c)
+	}
+}

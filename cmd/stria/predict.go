@@ -1,0 +1,45 @@
+package main
+
+import (
+	"fmt"
+
+	"github.com/urfave/cli/v2"
+
+	"stria/data"
+	"stria/train"
+)
+
+func predictCommand() *cli.Command {
+	return &cli.Command{
+		Name:      "predict",
+		Usage:     "predict every neuron's response to new stimulus values from a run folder",
+		ArgsUsage: "RUN_FOLDER",
+		Flags: []cli.Flag{
+			&cli.StringFlag{Name: "stimulus", Required: true, Usage: "stimulus values `FILE` (.npy, .npz, .csv or .tsv), in axis units"},
+			&cli.StringFlag{Name: "column", Usage: "column (CSV/TSV) or array (.npz) `NAME` holding the values"},
+			&cli.StringFlag{Name: "out", Required: true, Usage: "predictions `FILE` (.npy, values x neurons, float32)"},
+		},
+		Action: func(c *cli.Context) error {
+			if c.NArg() != 1 {
+				return fmt.Errorf("predict: give one run folder (got %d arguments)", c.NArg())
+			}
+			m, err := train.LoadModel(c.Args().First())
+			if err != nil {
+				return err
+			}
+			stim, err := data.ReadVector(c.String("stimulus"), c.String("column"))
+			if err != nil {
+				return err
+			}
+			pred, err := m.Predict(stim)
+			if err != nil {
+				return fmt.Errorf("%s: %w", c.String("stimulus"), err)
+			}
+			if err := data.WriteNPY(c.String("out"), []int{pred.Rows, pred.Cols}, pred.Data); err != nil {
+				return err
+			}
+			fmt.Fprintf(c.App.Writer, "wrote %s: %d stimulus values x %d neurons\n", c.String("out"), pred.Rows, pred.Cols)
+			return nil
+		},
+	}
+}

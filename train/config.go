@@ -1,0 +1,441 @@
+package train
+
+import (
+	"bytes"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"regexp"
+	"strings"
+
+	"gopkg.in/yaml.v3"
+
+	"stria/data"
+	"stria/nn"
+)
+
+// Config is the YAML configuration of a fit (and, with Compare, of a
+// comparison). Every field has a default, filled in by Defaults; the README
+// lists them. Paths are relative to the folder of the config file.
+type Config struct {
+	Seed  uint64      `yaml:"seed"`
+	Data  DataConfig  `yaml:"data"`
+	Axis  AxisConfig  `yaml:"axis"`
+	Split SplitConfig `yaml:"split"`
+	Model ModelConfig `yaml:"model"`
+	Train TrainConfig `yaml:"train"`
+	// Output is the run folder written by stria fit.
+	Output string `yaml:"output"`
+
+	// dir is the folder of the config file; relative paths resolve there.
+	dir string
+}
+
+// DataConfig says where the recording lives.
+type DataConfig struct {
+	Responses       string   `yaml:"responses"`
+	ResponsesArray  string   `yaml:"responses_array"`
+	NeuronColumns   []string `yaml:"neuron_columns"`
+	Stimulus        string   `yaml:"stimulus"`
+	StimulusColumn  string   `yaml:"stimulus_column"`
+	Condition       string   `yaml:"condition"`
+	ConditionColumn string   `yaml:"condition_column"`
+	Block           string   `yaml:"block"`
+	BlockColumn     string   `yaml:"block_column"`
+}
+
+// AxisConfig declares the stimulus axis and how values become model input.
+type AxisConfig struct {
+	Name     string  `yaml:"name"`
+	Unit     string  `yaml:"unit"`
+	Min      float64 `yaml:"min"`
+	Max      float64 `yaml:"max"`
+	Periodic bool    `yaml:"periodic"`
+	BinWidth float64 `yaml:"bin_width"`
+	Bins     int     `yaml:"bins"`
+	// Encoding is "onehot" (each trial's bin) or "soft" (linear
+	// interpolation between the two nearest bin centres).
+	Encoding string `yaml:"encoding"`
+}
+
+// SplitConfig controls the held-out test set, the validation part and
+// normalisation.
+type SplitConfig struct {
+	TestFraction       float64 `yaml:"test_fraction"`
+	ValidationFraction float64 `yaml:"validation_fraction"`
+	Folds              int     `yaml:"folds"`
+	// KeepBlocks keeps the trials of one block on one side of every split.
+	KeepBlocks bool `yaml:"keep_blocks"`
+	// ZScore standardises each neuron with the training trials' mean and
+	// standard deviation.
+	ZScore bool `yaml:"zscore"`
+}
+
+// LayerConfig is one conv layer.
+type LayerConfig struct {
+	Channels int    `yaml:"channels"`
+	Kernel   int    `yaml:"kernel"`
+	Stride   int    `yaml:"stride"`
+	Border   string `yaml:"border"`
+}
+
+// ModelConfig is the shared-filter encoder.
+type ModelConfig struct {
+	Layers    []LayerConfig `yaml:"layers"`
+	Output    string        `yaml:"output"`
+	Loss      string        `yaml:"loss"`
+	ReadoutL2 float64       `yaml:"readout_l2"`
+}
+
+// TrainConfig is the optimiser and the stopping rule.
+type TrainConfig struct {
+	Optimizer    string  `yaml:"optimizer"`
+	LearningRate float64 `yaml:"learning_rate"`
+	Beta1        float64 `yaml:"beta1"`
+	Beta2        float64 `yaml:"beta2"`
+	Epsilon      float64 `yaml:"epsilon"`
+	WeightDecay  float64 `yaml:"weight_decay"`
+	// BatchSize 0 trains full-batch (on per-condition sums when the input
+	// is one-hot); a positive value trains on mini-batches of trials.
+	BatchSize       int `yaml:"batch_size"`
+	MaxEpochs       int `yaml:"max_epochs"`
+	Patience        int `yaml:"patience"`
+	CheckpointEvery int `yaml:"checkpoint_every"`
+	// Threads bounds the goroutines used by the heavy kernels; 0 is all cores.
+	Threads int `yaml:"threads"`
+}
+
+// Defaults returns a Config with every default filled in and no data.
+func Defaults() Config {
+	return Config{
+		Seed: 1,
+		Axis: AxisConfig{Name: "stimulus", Encoding: "onehot"},
+		Split: SplitConfig{
+			TestFraction:       0.2,
+			ValidationFraction: 0.1,
+			Folds:              5,
+			KeepBlocks:         true,
+		},
+		Model: ModelConfig{
+			Layers:    []LayerConfig{{Channels: 8, Kernel: 9, Stride: 1}},
+			Output:    "identity",
+			Loss:      "mse",
+			ReadoutL2: 1e-4,
+		},
+		Train: TrainConfig{
+			Optimizer:       "adam",
+			LearningRate:    1e-2,
+			Beta1:           0.9,
+			Beta2:           0.999,
+			Epsilon:         1e-8,
+			MaxEpochs:       3000,
+			Patience:        100,
+			CheckpointEvery: 100,
+		},
+		Output: "runs/fit",
+	}
+}
+
+var yamlLine = regexp.MustCompile(`line (\d+): field (\S+) not found in type ([\w.]+)`)
+
+// LoadConfig reads a YAML config strictly: an unknown or misspelt key is an
+// error naming the key and its line. Missing keys keep their defaults.
+func LoadConfig(path string) (*Config, error) {
+	b, err := os.ReadFile(path)
+	if err != nil {
+		return nil, err
+	}
+	cfg, err := ParseConfig(b, path)
+	if err != nil {
+		return nil, err
+	}
+	abs, err := filepath.Abs(filepath.Dir(path))
+	if err != nil {
+		return nil, err
+	}
+	cfg.dir = abs
+	cfg.resolvePaths()
+	return cfg, nil
+}
+
+// resolvePaths makes every path of the config absolute, relative to the
+// config file's folder, so that the resolved config written into a run
+// folder works from anywhere.
+func (c *Config) resolvePaths() {
+	d := &c.Data
+	for _, p := range []*string{&d.Responses, &d.Stimulus, &d.Condition, &d.Block, &c.Output} {
+		*p = c.Resolve(*p)
+	}
+}
+
+// ParseConfig decodes YAML bytes over the defaults; name is used in errors.
+func ParseConfig(b []byte, name string) (*Config, error) {
+	cfg := Defaults()
+	// A layers list in the file replaces the default one rather than
+	// merging into it element by element.
+	cfg.Model.Layers = nil
+	dec := yaml.NewDecoder(bytes.NewReader(b))
+	dec.KnownFields(true)
+	// An empty file decodes to io.EOF: all defaults.
+	if err := dec.Decode(&cfg); err != nil && !errors.Is(err, io.EOF) {
+		return nil, fmt.Errorf("%s: %s", name, cleanYAMLError(err))
+	}
+	if cfg.Model.Layers == nil {
+		cfg.Model.Layers = Defaults().Model.Layers
+	}
+	for i := range cfg.Model.Layers {
+		if cfg.Model.Layers[i].Stride == 0 {
+			cfg.Model.Layers[i].Stride = 1
+		}
+	}
+	return &cfg, nil
+}
+
+func cleanYAMLError(err error) string {
+	msg := err.Error()
+	msg = strings.TrimPrefix(msg, "yaml: unmarshal errors:\n")
+	var out []string
+	for _, line := range strings.Split(msg, "\n") {
+		line = strings.TrimSpace(line)
+		if m := yamlLine.FindStringSubmatch(line); m != nil {
+			sec := sectionOf(m[3])
+			key := m[2]
+			if sec != "" {
+				key = sec + "." + key
+			}
+			out = append(out, fmt.Sprintf("line %s: unknown key %q", m[1], key))
+			continue
+		}
+		out = append(out, strings.TrimPrefix(line, "yaml: "))
+	}
+	return strings.Join(out, "; ")
+}
+
+func sectionOf(typ string) string {
+	switch strings.TrimPrefix(typ, "train.") {
+	case "DataConfig":
+		return "data"
+	case "AxisConfig":
+		return "axis"
+	case "SplitConfig":
+		return "split"
+	case "ModelConfig":
+		return "model"
+	case "LayerConfig":
+		return "model.layers[]"
+	case "TrainConfig":
+		return "train"
+	}
+	return ""
+}
+
+// Resolve returns p relative to the config file's folder (unchanged if
+// absolute or empty).
+func (c *Config) Resolve(p string) string {
+	if p == "" || filepath.IsAbs(p) || c.dir == "" {
+		return p
+	}
+	return filepath.Join(c.dir, p)
+}
+
+// Source is the config's data section as a data.Source.
+func (c *Config) Source() data.Source {
+	d := c.Data
+	return data.Source{
+		Responses:       d.Responses,
+		ResponsesArray:  d.ResponsesArray,
+		NeuronColumns:   d.NeuronColumns,
+		Stimulus:        d.Stimulus,
+		StimulusColumn:  d.StimulusColumn,
+		Condition:       d.Condition,
+		ConditionColumn: d.ConditionColumn,
+		Block:           d.Block,
+		BlockColumn:     d.BlockColumn,
+	}
+}
+
+// DataAxis is the declared axis as a data.Axis.
+func (c *Config) DataAxis() data.Axis {
+	a := c.Axis
+	return data.Axis{Name: a.Name, Unit: a.Unit, Min: a.Min, Max: a.Max, Periodic: a.Periodic, BinWidth: a.BinWidth, Bins: a.Bins}
+}
+
+// border is a layer's border mode; the default is circular on a periodic
+// axis and zero padding otherwise (METHODS.md §0 [practice]).
+func (c *Config) border(l LayerConfig) (nn.Border, error) {
+	switch l.Border {
+	case "":
+		if c.Axis.Periodic {
+			return nn.Circular, nil
+		}
+		return nn.Zero, nil
+	case "zero":
+		return nn.Zero, nil
+	case "circular":
+		return nn.Circular, nil
+	case "valid":
+		return nn.Valid, nil
+	}
+	return 0, fmt.Errorf("model.layers[].border %q: want zero, circular or valid", l.Border)
+}
+
+// Validate refuses bad settings before any work starts. Each error names
+// the field.
+func (c *Config) Validate() error {
+	var errs []string
+	bad := func(format string, a ...any) { errs = append(errs, fmt.Sprintf(format, a...)) }
+	if c.Data.Responses == "" {
+		bad("data.responses: no response file given (set it in the config or with --responses)")
+	}
+	ax := c.DataAxis()
+	nbins := 0
+	if err := ax.Validate(); err != nil {
+		bad("%v", err)
+	} else {
+		nbins = ax.NumBins()
+	}
+	switch c.Axis.Encoding {
+	case "onehot", "soft":
+	default:
+		bad("axis.encoding %q: want onehot or soft", c.Axis.Encoding)
+	}
+	s := c.Split
+	if !(s.TestFraction > 0 && s.TestFraction < 1) {
+		bad("split.test_fraction %v: want a value in (0, 1)", s.TestFraction)
+	}
+	if !(s.ValidationFraction > 0 && s.ValidationFraction < 1) {
+		bad("split.validation_fraction %v: want a value in (0, 1)", s.ValidationFraction)
+	}
+	if s.Folds < 2 {
+		bad("split.folds %d: want at least 2", s.Folds)
+	}
+	m := c.Model
+	if len(m.Layers) == 0 {
+		bad("model.layers: at least one conv layer is needed")
+	}
+	length := nbins
+	for i, l := range m.Layers {
+		if l.Channels < 1 {
+			bad("model.layers[%d].channels %d: want at least 1", i, l.Channels)
+		}
+		if l.Kernel < 1 {
+			bad("model.layers[%d].kernel %d: want at least 1", i, l.Kernel)
+		}
+		if l.Stride < 1 {
+			bad("model.layers[%d].stride %d: want at least 1", i, l.Stride)
+		}
+		b, err := c.border(l)
+		if err != nil {
+			bad("model.layers[%d]: %v", i, err)
+			continue
+		}
+		if length > 0 && l.Kernel >= 1 && l.Stride >= 1 {
+			if l.Kernel > length {
+				bad("model.layers[%d].kernel %d is longer than its input (%d positions)", i, l.Kernel, length)
+				length = 0
+				continue
+			}
+			if b == nn.Valid {
+				length = (length-l.Kernel)/l.Stride + 1
+			} else {
+				length = (length-1)/l.Stride + 1
+			}
+		}
+	}
+	switch m.Output {
+	case "identity", "softplus", "exp":
+	default:
+		bad("model.output %q: want identity, softplus or exp", m.Output)
+	}
+	switch m.Loss {
+	case "mse":
+	case "poisson":
+		if m.Output == "identity" {
+			bad("model.loss poisson needs a positive output: set model.output to softplus or exp")
+		}
+		if s.ZScore {
+			bad("model.loss poisson needs non-negative counts: split.zscore must be false")
+		}
+	default:
+		bad("model.loss %q: want mse or poisson", m.Loss)
+	}
+	if !(m.ReadoutL2 >= 0) || math.IsInf(m.ReadoutL2, 0) {
+		bad("model.readout_l2 %v: want a finite value >= 0", m.ReadoutL2)
+	}
+	t := c.Train
+	switch t.Optimizer {
+	case "adam", "adamw":
+	default:
+		bad("train.optimizer %q: want adam or adamw", t.Optimizer)
+	}
+	if !(t.LearningRate > 0) || math.IsInf(t.LearningRate, 0) {
+		bad("train.learning_rate %v: want a finite value > 0", t.LearningRate)
+	}
+	if !(t.Beta1 >= 0 && t.Beta1 < 1) {
+		bad("train.beta1 %v: want a value in [0, 1)", t.Beta1)
+	}
+	if !(t.Beta2 >= 0 && t.Beta2 < 1) {
+		bad("train.beta2 %v: want a value in [0, 1)", t.Beta2)
+	}
+	if !(t.Epsilon > 0) {
+		bad("train.epsilon %v: want a value > 0", t.Epsilon)
+	}
+	if !(t.WeightDecay >= 0) {
+		bad("train.weight_decay %v: want a value >= 0", t.WeightDecay)
+	}
+	if t.BatchSize < 0 {
+		bad("train.batch_size %d: want 0 (full batch) or a positive size", t.BatchSize)
+	}
+	if t.MaxEpochs < 1 {
+		bad("train.max_epochs %d: want at least 1", t.MaxEpochs)
+	}
+	if t.Patience < 1 {
+		bad("train.patience %d: want at least 1", t.Patience)
+	}
+	if t.CheckpointEvery < 1 {
+		bad("train.checkpoint_every %d: want at least 1", t.CheckpointEvery)
+	}
+	if t.Threads < 0 {
+		bad("train.threads %d: want 0 (all cores) or more", t.Threads)
+	}
+	if c.Output == "" {
+		bad("output: no run folder given (set it in the config or with --out)")
+	}
+	if len(errs) > 0 {
+		return fmt.Errorf("invalid config:\n  %s", strings.Join(errs, "\n  "))
+	}
+	return nil
+}
+
+// Shape is the nn.Shape the config describes for nbins positions and n
+// neurons. The config must be valid.
+func (c *Config) Shape(nbins, neurons int) nn.Shape {
+	s := nn.Shape{In: 1, Length: nbins, Neurons: neurons}
+	for _, l := range c.Model.Layers {
+		b, _ := c.border(l)
+		s.Convs = append(s.Convs, nn.ConvSpec{Out: l.Channels, K: l.Kernel, Stride: l.Stride, Border: b})
+	}
+	switch c.Model.Output {
+	case "softplus":
+		s.Output = nn.Softplus
+	case "exp":
+		s.Output = nn.Exp
+	default:
+		s.Output = nn.Identity
+	}
+	return s
+}
+
+// Marshal returns the resolved config as YAML.
+func (c *Config) Marshal() ([]byte, error) {
+	var buf bytes.Buffer
+	enc := yaml.NewEncoder(&buf)
+	enc.SetIndent(2)
+	if err := enc.Encode(c); err != nil {
+		return nil, err
+	}
+	return buf.Bytes(), enc.Close()
+}

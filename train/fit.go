@@ -1,0 +1,484 @@
+package train
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"slices"
+	"time"
+
+	"stria/data"
+	"stria/nn"
+)
+
+// EpochLog is one line of the training log.
+type EpochLog struct {
+	Epoch     int
+	TrainLoss float64 // data loss on the training trials (trial-level units), penalty excluded
+	ValLoss   float64 // the same loss on the validation trials
+	ValR2     float64 // median over neurons of the trial-level R^2 on the validation trials
+	Seconds   float64 // wall time since the start of training
+}
+
+// Hooks lets the caller watch and checkpoint a fit. Any field may be nil.
+type Hooks struct {
+	// OnEpoch is called after every epoch.
+	OnEpoch func(EpochLog)
+	// Checkpoint is called every train.checkpoint_every epochs and when
+	// the context is cancelled.
+	Checkpoint func(*Checkpoint) error
+}
+
+// Checkpoint is the whole training state, enough to continue a fit with
+// identical results.
+type Checkpoint struct {
+	Epoch     int // epochs completed
+	Params    []float64
+	M, V      []float64
+	T         int
+	Best      []float64
+	BestVal   float64
+	BestEpoch int
+	Since     int // epochs since the best
+	RNG       []byte
+	Log       []EpochLog
+	// Config is the resolved config the fit was started with; the caller
+	// sets it and checks it on resume.
+	Config []byte
+}
+
+// ErrInterrupted is returned (wrapped) when the context is cancelled; a
+// checkpoint has been handed to Hooks.Checkpoint first.
+var ErrInterrupted = errors.New("training interrupted")
+
+// Fitted is a trained encoder.
+type Fitted struct {
+	Net       *nn.Net
+	Log       []EpochLog
+	BestEpoch int
+	// Stop says why training ended: "patience" or "max_epochs".
+	Stop string
+}
+
+// rowSet is a set of training rows: model inputs, targets and row weights.
+// On one-hot input a row is a condition (target the condition mean, weight
+// N_b); otherwise a row is a trial.
+type rowSet struct {
+	x      []float64 // rows x B
+	target []float64 // rows x N
+	weight []float64 // rows, or nil for all 1
+	rows   int
+	// within is sum over trials of (y - ybar_b)^2 summed over neurons: added
+	// to the weighted condition-level MSE it gives the trial-level sum
+	// (METHODS.md §8).
+	within float64
+	// trials is the number of trials the rows stand for.
+	trials int
+	// ssTot is, per neuron, sum over trials of (y - mean y)^2.
+	ssTot []float64
+	// sumSq is, per neuron and condition, the sum of squares (one-hot only),
+	// for the trial-level residual sum of squares.
+	sumSq []float64
+}
+
+// condRows builds the condition-level rows of a trial set.
+func condRows(p *Prepared, trials []int) *rowSet {
+	b, n := p.NBins, p.Neurons()
+	st := data.NewCondStats(p.Rec.Y, p.Cond, trials, b)
+	rs := &rowSet{trials: len(trials)}
+	var keep []int
+	for c := 0; c < b; c++ {
+		if st.Count[c] > 0 {
+			keep = append(keep, c)
+		}
+	}
+	rs.rows = len(keep)
+	rs.x = make([]float64, rs.rows*b)
+	rs.target = make([]float64, rs.rows*n)
+	rs.weight = make([]float64, rs.rows)
+	rs.sumSq = make([]float64, rs.rows*n)
+	rs.ssTot = make([]float64, n)
+	grand := make([]float64, n)
+	for r, c := range keep {
+		rs.x[r*b+c] = 1
+		cnt := float64(st.Count[c])
+		rs.weight[r] = cnt
+		sum := st.Sum[c*n : (c+1)*n]
+		sq := st.SumSq[c*n : (c+1)*n]
+		tg := rs.target[r*n : (r+1)*n]
+		copy(rs.sumSq[r*n:(r+1)*n], sq)
+		for j := range tg {
+			tg[j] = sum[j] / cnt
+			rs.within += sq[j] - sum[j]*tg[j]
+			rs.ssTot[j] += sq[j]
+			grand[j] += sum[j]
+		}
+	}
+	for j := range grand {
+		rs.ssTot[j] -= grand[j] * grand[j] / float64(len(trials))
+	}
+	return rs
+}
+
+// trialRows fills rs with the given trials (rs must have room).
+func trialRows(rs *rowSet, p *Prepared, trials []int) {
+	b, n := p.NBins, p.Neurons()
+	rs.rows = len(trials)
+	for i, t := range trials {
+		p.encode(rs.x[i*b:(i+1)*b], t)
+		src := p.Rec.Y.Row(t)
+		dst := rs.target[i*n : (i+1)*n]
+		for j, v := range src {
+			dst[j] = float64(v)
+		}
+	}
+}
+
+// ssTot returns per-neuron total sums of squares over trials.
+func ssTotOf(p *Prepared, trials []int) []float64 {
+	st := data.NewCondStats(p.Rec.Y, p.Cond, trials, p.NBins)
+	n := p.Neurons()
+	tot := make([]float64, n)
+	grand := make([]float64, n)
+	for c := 0; c < p.NBins; c++ {
+		for j := 0; j < n; j++ {
+			tot[j] += st.SumSq[c*n+j]
+			grand[j] += st.Sum[c*n+j]
+		}
+	}
+	for j := range tot {
+		tot[j] -= grand[j] * grand[j] / float64(len(trials))
+	}
+	return tot
+}
+
+// trainer holds the state of one fit.
+type trainer struct {
+	p      *Prepared
+	cfg    *Config
+	net    *nn.Net
+	opt    *nn.Adam
+	work   *nn.Work
+	rng    *rand.Rand
+	pcg    *rand.PCG
+	poiss  bool
+	chunk  int
+	l2     float64 // readout penalty per neuron weight: lambda/N
+	dpred  []float64
+	batch  *rowSet // scratch rows for trial-level work
+	trainC *rowSet // condition rows of the training trials (one-hot)
+	valC   *rowSet // condition rows of the validation trials (one-hot)
+	valTot []float64
+	ssRes  []float64
+	r2     []float64
+}
+
+// chunkRows bounds the rows of one forward pass on trial-level data.
+const chunkRows = 256
+
+func newTrainer(p *Prepared, net *nn.Net) *trainer {
+	cfg := p.Cfg
+	tr := &trainer{p: p, cfg: cfg, net: net, poiss: cfg.Model.Loss == "poisson"}
+	tr.l2 = cfg.Model.ReadoutL2 / float64(p.Neurons())
+	tr.opt = nn.NewAdam(len(net.Params))
+	tc := cfg.Train
+	tr.opt.LR, tr.opt.Beta1, tr.opt.Beta2, tr.opt.Eps = tc.LearningRate, tc.Beta1, tc.Beta2, tc.Epsilon
+	tr.opt.WeightDecay = tc.WeightDecay
+	tr.opt.Decoupled = tc.Optimizer == "adamw"
+	tr.pcg = rand.NewPCG(cfg.Seed, 0x5eed)
+	tr.rng = rand.New(tr.pcg)
+	tr.chunk = chunkRows
+	if tc.BatchSize > tr.chunk {
+		tr.chunk = tc.BatchSize
+	}
+	rows := max(tr.chunk, p.NBins)
+	tr.work = net.NewWork(rows)
+	n := p.Neurons()
+	tr.dpred = make([]float64, rows*n)
+	if p.Soft() || tc.BatchSize > 0 {
+		tr.batch = &rowSet{x: make([]float64, tr.chunk*p.NBins), target: make([]float64, tr.chunk*n)}
+	}
+	if !p.Soft() {
+		tr.trainC = condRows(p, p.Train)
+		tr.valC = condRows(p, p.Val)
+		tr.valTot = tr.valC.ssTot
+	} else {
+		tr.valTot = ssTotOf(p, p.Val)
+	}
+	tr.ssRes = make([]float64, n)
+	tr.r2 = make([]float64, n)
+	return tr
+}
+
+// lossGrad computes the data loss of rs and, if grad, adds its gradient
+// scaled by scale into the net's gradients. It returns the unnormalised
+// trial-level loss sum (sum over trials and neurons) so that chunks add up.
+// If ssRes is not nil it accumulates the per-neuron residual sum of squares.
+func (tr *trainer) lossGrad(rs *rowSet, grad bool, scale float64, ssRes []float64) float64 {
+	n := tr.p.Neurons()
+	pred := tr.net.Forward(tr.work, rs.x, rs.rows)
+	var l float64
+	dp := tr.dpred[:rs.rows*n]
+	w := rs.weight
+	if tr.poiss {
+		l = nn.Poisson(dp, pred[:rs.rows*n], rs.target[:rs.rows*n], w, rs.rows, n)
+	} else {
+		l = nn.MSE(dp, pred[:rs.rows*n], rs.target[:rs.rows*n], w, rs.rows, n)
+	}
+	wsum := float64(rs.rows)
+	if w != nil {
+		wsum = 0
+		for _, v := range w {
+			wsum += v
+		}
+	}
+	total := l * wsum * float64(n)
+	if !tr.poiss && w != nil {
+		total += rs.within
+	}
+	if ssRes != nil {
+		tr.addSSRes(ssRes, rs, pred)
+	}
+	if grad {
+		if scale != 1 {
+			for i := range dp {
+				dp[i] *= scale
+			}
+		}
+		tr.net.Backward(tr.work, dp, rs.rows)
+	}
+	return total
+}
+
+// addSSRes adds the trial-level residual sum of squares of each neuron.
+func (tr *trainer) addSSRes(ss []float64, rs *rowSet, pred []float64) {
+	n := tr.p.Neurons()
+	for r := 0; r < rs.rows; r++ {
+		f := pred[r*n : (r+1)*n]
+		y := rs.target[r*n : (r+1)*n]
+		if rs.weight != nil {
+			// Condition row: sum_t (y_t - f)^2 = SumSq - 2 f Sum + N f^2.
+			cnt := rs.weight[r]
+			sq := rs.sumSq[r*n : (r+1)*n]
+			for j := range f {
+				ss[j] += sq[j] - 2*f[j]*y[j]*cnt + cnt*f[j]*f[j]
+			}
+			continue
+		}
+		for j := range f {
+			d := y[j] - f[j]
+			ss[j] += d * d
+		}
+	}
+}
+
+// penalty adds the readout L2 gradient and returns the penalty.
+func (tr *trainer) penalty(grad bool) float64 {
+	if tr.l2 == 0 {
+		return 0
+	}
+	w := tr.net.ReadW()
+	var s float64
+	for _, v := range w {
+		s += v * v
+	}
+	if grad {
+		g := tr.net.ReadWGrad()
+		for i, v := range w {
+			g[i] += tr.l2 * v
+		}
+	}
+	return 0.5 * tr.l2 * s
+}
+
+// sweep runs the data loss (and gradient, scaled to the mean over all the
+// trials) over a set of trials in chunks; it returns the mean trial-level
+// loss per trial and neuron.
+func (tr *trainer) sweep(trials []int, grad bool, ssRes []float64) float64 {
+	n := float64(tr.p.Neurons())
+	T := float64(len(trials))
+	var total float64
+	for lo := 0; lo < len(trials); lo += tr.chunk {
+		hi := min(lo+tr.chunk, len(trials))
+		trialRows(tr.batch, tr.p, trials[lo:hi])
+		total += tr.lossGrad(tr.batch, grad, float64(hi-lo)/T, ssRes)
+	}
+	return total / (T * n)
+}
+
+// evalVal returns the validation loss and the median validation R^2.
+func (tr *trainer) evalVal() (float64, float64) {
+	clear(tr.ssRes)
+	var loss float64
+	if tr.valC != nil {
+		loss = tr.lossGrad(tr.valC, false, 1, tr.ssRes) / (float64(tr.valC.trials) * float64(tr.p.Neurons()))
+	} else {
+		loss = tr.sweep(tr.p.Val, false, tr.ssRes)
+	}
+	k := 0
+	for j, ss := range tr.ssRes {
+		if tr.valTot[j] > 0 {
+			tr.r2[k] = 1 - ss/tr.valTot[j]
+			k++
+		}
+	}
+	return loss, median(tr.r2[:k])
+}
+
+// epoch runs one epoch of training and returns the training loss.
+func (tr *trainer) epoch() float64 {
+	p, tc := tr.p, tr.cfg.Train
+	n := float64(p.Neurons())
+	if tc.BatchSize == 0 {
+		tr.net.ZeroGrad()
+		var loss float64
+		if tr.trainC != nil {
+			loss = tr.lossGrad(tr.trainC, true, 1, nil) / (float64(tr.trainC.trials) * n)
+		} else {
+			loss = tr.sweep(p.Train, true, nil)
+		}
+		tr.penalty(true)
+		tr.opt.Step(tr.net.Params, tr.net.Grads)
+		return loss
+	}
+	order := slices.Clone(p.Train)
+	tr.rng.Shuffle(len(order), func(i, j int) { order[i], order[j] = order[j], order[i] })
+	var total float64
+	for lo := 0; lo < len(order); lo += tc.BatchSize {
+		hi := min(lo+tc.BatchSize, len(order))
+		tr.net.ZeroGrad()
+		trialRows(tr.batch, p, order[lo:hi])
+		total += tr.lossGrad(tr.batch, true, 1, nil)
+		tr.penalty(true)
+		tr.opt.Step(tr.net.Params, tr.net.Grads)
+	}
+	return total / (float64(len(order)) * n)
+}
+
+// Fit trains the encoder the config describes on the prepared recording.
+// With resume not nil, training continues from that checkpoint. The context
+// stops training between epochs; then a checkpoint is handed to hooks and
+// ErrInterrupted is returned.
+func Fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
+	cfg := p.Cfg
+	net := nn.NewNet(cfg.Shape(p.NBins, p.Neurons()))
+	net.Init(rand.New(rand.NewPCG(cfg.Seed, 0x1417)))
+	initReadout(p, net)
+	tr := newTrainer(p, net)
+
+	st := Checkpoint{BestVal: math.Inf(1)}
+	if resume != nil {
+		if len(resume.Params) != len(net.Params) {
+			return nil, fmt.Errorf("checkpoint has %d parameters, the config's model has %d: was the config changed?", len(resume.Params), len(net.Params))
+		}
+		st = *resume
+		copy(net.Params, st.Params)
+		tr.opt.M, tr.opt.V, tr.opt.T = slices.Clone(st.M), slices.Clone(st.V), st.T
+		if err := tr.pcg.UnmarshalBinary(st.RNG); err != nil {
+			return nil, fmt.Errorf("checkpoint: random state: %w", err)
+		}
+	}
+	start := time.Now()
+	offset := 0.0
+	if n := len(st.Log); n > 0 {
+		offset = st.Log[n-1].Seconds
+	}
+	snapshot := func() *Checkpoint {
+		c := st
+		c.Params = slices.Clone(net.Params)
+		c.M, c.V, c.T = slices.Clone(tr.opt.M), slices.Clone(tr.opt.V), tr.opt.T
+		c.Best = slices.Clone(st.Best)
+		c.Log = slices.Clone(st.Log)
+		c.RNG, _ = tr.pcg.MarshalBinary()
+		return &c
+	}
+	var first float64
+	if len(st.Log) > 0 {
+		first = st.Log[0].TrainLoss
+	}
+	stop := "max_epochs"
+	for st.Epoch < cfg.Train.MaxEpochs {
+		if err := ctx.Err(); err != nil {
+			if hooks.Checkpoint != nil {
+				if cerr := hooks.Checkpoint(snapshot()); cerr != nil {
+					return nil, cerr
+				}
+			}
+			return nil, fmt.Errorf("%w after epoch %d", ErrInterrupted, st.Epoch)
+		}
+		loss := tr.epoch()
+		st.Epoch++
+		if st.Epoch == 1 {
+			first = loss
+		}
+		if math.IsNaN(loss) || math.IsInf(loss, 0) || loss > 1e6*(first+1e-12) {
+			return nil, fmt.Errorf("training diverged at epoch %d (loss %g, first epoch %g): try a smaller train.learning_rate (now %g)",
+				st.Epoch, loss, first, cfg.Train.LearningRate)
+		}
+		vl, vr2 := tr.evalVal()
+		e := EpochLog{Epoch: st.Epoch, TrainLoss: loss, ValLoss: vl, ValR2: vr2, Seconds: offset + time.Since(start).Seconds()}
+		st.Log = append(st.Log, e)
+		if vl < st.BestVal {
+			st.BestVal, st.BestEpoch, st.Since = vl, st.Epoch, 0
+			st.Best = append(st.Best[:0], net.Params...)
+		} else {
+			st.Since++
+		}
+		if hooks.OnEpoch != nil {
+			hooks.OnEpoch(e)
+		}
+		if st.Since >= cfg.Train.Patience {
+			stop = "patience"
+			break
+		}
+		if hooks.Checkpoint != nil && st.Epoch%cfg.Train.CheckpointEvery == 0 {
+			if err := hooks.Checkpoint(snapshot()); err != nil {
+				return nil, err
+			}
+		}
+	}
+	if st.Best != nil {
+		copy(net.Params, st.Best)
+	}
+	return &Fitted{Net: net, Log: st.Log, BestEpoch: st.BestEpoch, Stop: stop}, nil
+}
+
+// initReadout sets the readout bias to each neuron's mean training
+// response (through the inverse of the output nonlinearity), so that
+// training starts from the grand-mean model rather than from zero.
+func initReadout(p *Prepared, net *nn.Net) {
+	n := p.Neurons()
+	mean := make([]float64, n)
+	for _, t := range p.Train {
+		for j, v := range p.Rec.Y.Row(t) {
+			mean[j] += float64(v)
+		}
+	}
+	b := net.ReadB()
+	for j := range mean {
+		m := mean[j] / float64(len(p.Train))
+		switch net.Output {
+		case nn.Exp:
+			m = math.Log(math.Max(m, 1e-3))
+		case nn.Softplus:
+			m = math.Max(m, 1e-3)
+			m = m + math.Log(-math.Expm1(-m)) // inverse softplus
+		}
+		b[j] = m
+	}
+}
+
+// median returns the median of x (x is reordered); NaN if empty.
+func median(x []float64) float64 {
+	if len(x) == 0 {
+		return math.NaN()
+	}
+	slices.Sort(x)
+	k := len(x) / 2
+	if len(x)%2 == 1 {
+		return x[k]
+	}
+	return 0.5 * (x[k-1] + x[k])
+}

@@ -1,0 +1,121 @@
+package train
+
+import (
+	"fmt"
+
+	"stria/data"
+)
+
+// Prepared is a recording loaded, binned, checked and split, ready to fit.
+type Prepared struct {
+	Cfg   *Config
+	Rec   *data.Recording
+	Axis  data.Axis
+	NBins int
+	// Cond is the bin of each trial.
+	Cond []int
+	// Train, Val and Test are trial indices. Val is carved from the
+	// training trials for early stopping; Test is held out until the end.
+	Train, Val, Test []int
+	// Report holds the validation warnings, the constant neurons and the
+	// conditions with too few trials.
+	Report *data.Report
+	// Norm is the per-neuron z-scoring fitted on Train and Val (nil when
+	// split.zscore is false). Rec.Y has been standardised in place.
+	Norm *data.Normalizer
+}
+
+// Prepare loads the recording the config names and splits it. The config
+// must be valid.
+func Prepare(cfg *Config) (*Prepared, error) {
+	rec, err := data.Load(cfg.Source())
+	if err != nil {
+		return nil, err
+	}
+	return PrepareRecording(cfg, rec)
+}
+
+// PrepareRecording bins, checks and splits a recording already in memory.
+func PrepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
+	ax := cfg.DataAxis()
+	if err := ax.Validate(); err != nil {
+		return nil, err
+	}
+	p := &Prepared{Cfg: cfg, Rec: rec, Axis: ax, NBins: ax.NumBins()}
+	cond, err := ax.BinTrials(rec.Stim)
+	if err != nil {
+		return nil, fmt.Errorf("stimulus %s: %w", rec.Source.Stimulus, err)
+	}
+	p.Cond = cond
+	rep, err := data.Check(rec, cond, p.NBins)
+	if err != nil {
+		return nil, err
+	}
+	p.Report = rep
+	var blocks []int
+	if cfg.Split.KeepBlocks {
+		blocks = rec.Block
+	}
+	sp, err := data.HoldOut(cond, blocks, p.NBins, cfg.Split.TestFraction, cfg.Seed)
+	if err != nil {
+		return nil, fmt.Errorf("test split: %w", err)
+	}
+	p.Test = sp.Test
+	p.Train, p.Val, err = carve(cond, blocks, sp.Train, p.NBins, cfg.Split.ValidationFraction, cfg.Seed+1)
+	if err != nil {
+		return nil, fmt.Errorf("validation split: %w", err)
+	}
+	if cfg.Split.ZScore {
+		p.Norm = data.FitNormalizer(rec.Y, sp.Train)
+		p.Norm.Apply(rec.Y)
+	}
+	return p, nil
+}
+
+// carve splits the trials in sub into a training and a validation part,
+// stratified by condition (and keeping blocks together when blocks is not
+// nil).
+func carve(cond, blocks, sub []int, nbins int, frac float64, seed uint64) (train, val []int, err error) {
+	sc := make([]int, len(sub))
+	var sb []int
+	if blocks != nil {
+		sb = make([]int, len(sub))
+	}
+	for i, t := range sub {
+		sc[i] = cond[t]
+		if sb != nil {
+			sb[i] = blocks[t]
+		}
+	}
+	sp, err := data.HoldOut(sc, sb, nbins, frac, seed)
+	if err != nil {
+		return nil, nil, err
+	}
+	train = make([]int, len(sp.Train))
+	for i, j := range sp.Train {
+		train[i] = sub[j]
+	}
+	val = make([]int, len(sp.Test))
+	for i, j := range sp.Test {
+		val[i] = sub[j]
+	}
+	return train, val, nil
+}
+
+// Neurons is the number of neurons in the recording.
+func (p *Prepared) Neurons() int { return p.Rec.Y.Cols }
+
+// Soft reports whether trials are encoded by linear interpolation between
+// bin centres rather than one-hot.
+func (p *Prepared) Soft() bool { return p.Cfg.Axis.Encoding == "soft" }
+
+// encode writes the model input for trial t (NBins values) into dst.
+func (p *Prepared) encode(dst []float64, t int) {
+	if p.Soft() {
+		// The stimulus was binned without error, so it is in range.
+		_ = p.Axis.Soft(dst, p.Rec.Stim[t])
+		return
+	}
+	clear(dst)
+	dst[p.Cond[t]] = 1
+}

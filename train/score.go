@@ -1,0 +1,61 @@
+package train
+
+import (
+	"slices"
+
+	"stria/eval"
+	"stria/nn"
+)
+
+// Cautions are printed and saved wherever held-out and noise-ceiling
+// numbers are shown.
+var Cautions = []string{
+	"Noise-ceiling estimates (explainable fraction, CC_max, and so FEV and CC_norm) are biased when a condition has few trials: with 2-3 trials per condition they scatter widely and can exceed 1 or be undefined (signal power <= 0 gives NaN).",
+	"Held-out scores depend on the split: another seed or fold gives other numbers. Compare models on the same splits, and use stria compare (k-fold) before drawing conclusions.",
+}
+
+// PredictConditions returns the net's prediction for every bin (one-hot
+// input): nbins x N, row b for bin b.
+func PredictConditions(net *nn.Net, nbins int) []float64 {
+	x := make([]float64, nbins*nbins)
+	for b := 0; b < nbins; b++ {
+		x[b*nbins+b] = 1
+	}
+	w := net.NewWork(nbins)
+	return slices.Clone(net.Forward(w, x, nbins))
+}
+
+// PredictTrials returns the predictions for the given trials,
+// len(trials) x N, in the (possibly z-scored) units the net was trained in.
+func PredictTrials(net *nn.Net, p *Prepared, trials []int) []float64 {
+	n := p.Neurons()
+	out := make([]float64, len(trials)*n)
+	if !p.Soft() {
+		pc := PredictConditions(net, p.NBins)
+		for i, t := range trials {
+			c := p.Cond[t]
+			copy(out[i*n:(i+1)*n], pc[c*n:(c+1)*n])
+		}
+		return out
+	}
+	rows := min(chunkRows, len(trials))
+	w := net.NewWork(rows)
+	x := make([]float64, rows*p.NBins)
+	for lo := 0; lo < len(trials); lo += rows {
+		hi := min(lo+rows, len(trials))
+		for i, t := range trials[lo:hi] {
+			p.encode(x[i*p.NBins:(i+1)*p.NBins], t)
+		}
+		pred := net.Forward(w, x, hi-lo)
+		copy(out[lo*n:hi*n], pred[:(hi-lo)*n])
+	}
+	return out
+}
+
+// Score evaluates predictions of the test trials (len(p.Test) x N) with
+// every per-neuron metric.
+func Score(p *Prepared, pred []float64) []eval.Scores {
+	s := make([]eval.Scores, p.Neurons())
+	eval.ScorePopulation(s, p.Rec.Y.Data, p.Neurons(), p.Test, p.Cond, pred, p.NBins)
+	return s
+}
