@@ -160,11 +160,16 @@ func (a Axis) bin(v float64, n int) (int, error) {
 	}
 	var x float64 // position on [Min, Max]
 	if a.Periodic {
-		u := a.wrap(v)
-		if u >= a.Max-a.Min {
-			return n - 1, nil // a tiny negative offset rounded up to the period
+		x = v
+		if v < a.Min || v >= a.Max {
+			// Wrap only values outside [Min, Max), so that values inside
+			// are compared with the edges without any rounding.
+			u := a.wrap(v)
+			if u >= a.Max-a.Min {
+				return n - 1, nil // a tiny negative offset rounded up to the period
+			}
+			x = a.Min + u
 		}
-		x = a.Min + u
 	} else {
 		if v < a.Min || v > a.Max {
 			return 0, fmt.Errorf("stimulus value %g is outside the %s axis range [%g, %g]", v, a.label(), a.Min, a.Max)
@@ -236,11 +241,9 @@ func (a Axis) Soft(dst []float64, v float64) error {
 		return fmt.Errorf("data: %v", err)
 	}
 	r := a.Max - a.Min
-	var u float64
-	if a.Periodic {
+	u := v - a.Min
+	if a.Periodic && (v < a.Min || v >= a.Max) {
 		u = a.wrap(v)
-	} else {
-		u = v - a.Min
 	}
 	p := u/r*float64(n) - 0.5
 	if !a.Periodic {
