@@ -1,0 +1,111 @@
+package tuning
+
+import "math"
+
+// Descriptors summarise one tuning curve.
+//
+// For a non-periodic axis (period 0) only Preferred and Peak are defined (both
+// the centre of the largest response) and the others are NaN.
+//
+// For a period-360 axis (direction, heading), with theta_k the bin angles:
+//
+//	Preferred  = arg(sum_k r_k exp(i theta_k)) in [0, 360), the vector-average direction
+//	OneMinusCV = |sum_k r_k exp(i 2 theta_k)| / sum_k r_k, orientation form (Ringach et al. 2002)
+//	DirVector  = |sum_k r_k exp(i theta_k)| / sum_k r_k, direction form
+//	OSI        = (R_pref - R_orth) / (R_pref + R_orth), R_orth the mean of the bins nearest pref +- 90
+//	DSI        = (R_pref - R_null) / (R_pref + R_null), R_null the bin nearest pref + 180
+//
+// For any other period P (180 for orientation), the angle is phi_k = 2 pi x_k / P:
+//
+//	Preferred  = P/(2 pi) arg(sum_k r_k exp(i phi_k)) in [0, P) (for P = 180 the
+//	             orientation form with the halved angle)
+//	OneMinusCV = |sum_k r_k exp(i phi_k)| / sum_k r_k (for P = 180 the orientation form)
+//	OSI        = (R_pref - R_orth) / (R_pref + R_orth), R_orth the bin nearest pref + P/2
+//	DirVector, DSI = NaN
+//
+// R_pref is the largest response (at Peak). Responses are used as given, not
+// rectified: the vector forms assume non-negative responses and are NaN when
+// sum_k r_k <= 0; the peak indices are NaN when their denominator is 0.
+type Descriptors struct {
+	Preferred  float64 // vector-average preferred stimulus (axis units); argmax for a non-periodic axis
+	Peak       float64 // centre of the bin with the largest response
+	OneMinusCV float64 // 1 - circular variance, orientation form
+	DirVector  float64 // direction vector length (period 360 only)
+	OSI, DSI   float64 // peak forms from the nearest bins
+}
+
+// Describe returns the descriptors of the tuning curve r at the bin centres
+// (axis units, ascending) of an axis with the given period (0: non-periodic).
+// It panics if len(r) != len(centers) or r is empty. NaN entries of r make the
+// affected descriptors NaN.
+func Describe(r, centers []float64, period float64) Descriptors {
+	if len(r) != len(centers) || len(r) == 0 {
+		panic("tuning: Describe: r and centers must have the same, non-zero length")
+	}
+	nan := math.NaN()
+	kmax := 0
+	for k, v := range r {
+		if v > r[kmax] || math.IsNaN(r[kmax]) {
+			kmax = k
+		}
+	}
+	d := Descriptors{Peak: centers[kmax], Preferred: centers[kmax],
+		OneMinusCV: nan, DirVector: nan, OSI: nan, DSI: nan}
+	if !(period > 0) {
+		return d
+	}
+	var sum, c1, s1, c2, s2 float64
+	for k, v := range r {
+		phi := 2 * math.Pi * centers[k] / period
+		sum += v
+		c1 += v * math.Cos(phi)
+		s1 += v * math.Sin(phi)
+		c2 += v * math.Cos(2*phi)
+		s2 += v * math.Sin(2*phi)
+	}
+	d.Preferred = math.Mod(math.Atan2(s1, c1)*period/(2*math.Pi)+period, period)
+	if sum > 0 {
+		if period == 360 {
+			d.OneMinusCV = math.Hypot(c2, s2) / sum
+			d.DirVector = math.Hypot(c1, s1) / sum
+		} else {
+			d.OneMinusCV = math.Hypot(c1, s1) / sum
+		}
+	} else {
+		d.Preferred = nan
+	}
+	rp := r[kmax]
+	idx := func(x float64) float64 { return r[nearestCircular(centers, x, period)] }
+	ratio := func(a, b float64) float64 {
+		if a+b == 0 {
+			return nan
+		}
+		return (a - b) / (a + b)
+	}
+	if period == 360 {
+		orth := (idx(d.Peak+90) + idx(d.Peak-90)) / 2
+		d.OSI = ratio(rp, orth)
+		d.DSI = ratio(rp, idx(d.Peak+180))
+	} else {
+		d.OSI = ratio(rp, idx(d.Peak+period/2))
+	}
+	return d
+}
+
+// nearestCircular returns the index of the centre nearest x, measuring
+// distance around the circle when period > 0. Linear scan: centres need not
+// be evenly spaced.
+func nearestCircular(centers []float64, x, period float64) int {
+	best, bd := 0, math.Inf(1)
+	for k, c := range centers {
+		dd := math.Abs(x - c)
+		if period > 0 {
+			dd = math.Mod(dd, period)
+			dd = math.Min(dd, period-dd)
+		}
+		if dd < bd {
+			best, bd = k, dd
+		}
+	}
+	return best
+}
