@@ -118,12 +118,13 @@ func Defaults() Config {
 			ValidationFraction: 0.1,
 			Folds:              5,
 			KeepBlocks:         true,
+			ZScore:             true,
 		},
 		Model: ModelConfig{
 			Layers:    []LayerConfig{{Channels: 8, Kernel: 9, Stride: 1}},
 			Output:    "identity",
 			Loss:      "mse",
-			ReadoutL2: 1e-4,
+			ReadoutL2: 1,
 		},
 		Train: TrainConfig{
 			Optimizer:       "adam",
@@ -357,7 +358,7 @@ func (c *Config) Validate() error {
 			bad("model.loss poisson needs a positive output: set model.output to softplus or exp")
 		}
 		if s.ZScore {
-			bad("model.loss poisson needs non-negative counts: split.zscore must be false")
+			bad("model.loss poisson needs the raw non-negative counts: set split.zscore: false")
 		}
 	default:
 		bad("model.loss %q: want mse or poisson", m.Loss)

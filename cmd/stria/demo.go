@@ -67,6 +67,7 @@ split:
   test_fraction: 0.2
   validation_fraction: 0.1
   keep_blocks: false
+  zscore: true               # per neuron, from the training trials only
 model:
   layers:
     - channels: 8
@@ -75,7 +76,7 @@ model:
       border: circular
   output: identity
   loss: mse
-  readout_l2: 0.0001
+  readout_l2: 1.0
 train:
   optimizer: adam
   learning_rate: 0.01
