@@ -5,6 +5,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"strings"
 
 	"github.com/urfave/cli/v2"
 	"golang.org/x/term"
@@ -75,4 +76,19 @@ func loadConfig(c *cli.Context) (*train.Config, error) {
 func isTerminal(w io.Writer) bool {
 	f, ok := w.(*os.File)
 	return ok && term.IsTerminal(int(f.Fd()))
+}
+
+// oneFolderArg checks that exactly one positional argument was given, and
+// explains the usual slip of putting options after it (the command line
+// library stops reading options at the first positional argument).
+func oneFolderArg(c *cli.Context) error {
+	for _, a := range c.Args().Slice() {
+		if strings.HasPrefix(a, "-") {
+			return fmt.Errorf("%s: option %s after the folder: put options before it (stria %s [options] FOLDER)", c.Command.Name, a, c.Command.Name)
+		}
+	}
+	if c.NArg() != 1 {
+		return fmt.Errorf("%s: give one folder (got %d arguments)", c.Command.Name, c.NArg())
+	}
+	return nil
 }

@@ -20,8 +20,8 @@ func predictCommand() *cli.Command {
 			&cli.StringFlag{Name: "out", Required: true, Usage: "predictions `FILE` (.npy, values x neurons, float32)"},
 		},
 		Action: func(c *cli.Context) error {
-			if c.NArg() != 1 {
-				return fmt.Errorf("predict: give one run folder (got %d arguments)", c.NArg())
+			if err := oneFolderArg(c); err != nil {
+				return err
 			}
 			m, err := train.LoadModel(c.Args().First())
 			if err != nil {

@@ -1,0 +1,136 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"encoding/csv"
+	"encoding/json"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"stria/data"
+	"stria/train"
+)
+
+// runCLI runs the stria command line with args and returns its output.
+func runCLI(t *testing.T, args ...string) (string, error) {
+	t.Helper()
+	app := newApp()
+	var out, errOut bytes.Buffer
+	app.Writer, app.ErrWriter = &out, &errOut
+	err := app.RunContext(context.Background(), append([]string{"stria"}, args...))
+	return out.String() + errOut.String(), err
+}
+
+// TestDemoEndToEnd runs a small demo and checks the run folder, then
+// predicts from it.
+func TestDemoEndToEnd(t *testing.T) {
+	dir := t.TempDir()
+	out, err := runCLI(t, "demo", "--out", dir, "--neurons", "60", "--trials", "600", "--quiet")
+	if err != nil {
+		t.Fatalf("demo: %v\n%s", err, out)
+	}
+	for _, want := range []string{"stria inspect", "split-half reliability", "stria fit", "test_r2", "cc_norm", "depend on the split"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("demo output lacks %q", want)
+		}
+	}
+	run := filepath.Join(dir, "run")
+	for _, f := range []string{train.FileConfig, train.FileManifest, train.FileFilters, train.FileMetrics, train.FileSummary, train.FileLog, train.FileSplit, "weights/readout_weight.npy"} {
+		if st, err := os.Stat(filepath.Join(run, f)); err != nil || st.Size() == 0 {
+			t.Errorf("run folder: %s missing or empty (%v)", f, err)
+		}
+	}
+	if _, err := os.Stat(filepath.Join(run, train.FileCheckpoint)); err == nil {
+		t.Error("checkpoint left behind after a finished fit")
+	}
+	// metrics.csv: one row per neuron with the documented columns.
+	f, err := os.Open(filepath.Join(run, train.FileMetrics))
+	if err != nil {
+		t.Fatal(err)
+	}
+	rows, err := csv.NewReader(f).ReadAll()
+	f.Close()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rows) != 61 {
+		t.Errorf("metrics.csv has %d rows, want header + 60", len(rows))
+	}
+	head := strings.Join(rows[0], ",")
+	for _, c := range []string{"neuron", "test_r2", "test_r", "explainable_fraction", "fev", "cc_norm"} {
+		if !strings.Contains(head, c) {
+			t.Errorf("metrics.csv header %q lacks %s", head, c)
+		}
+	}
+	var sum train.Summary
+	b, _ := os.ReadFile(filepath.Join(run, train.FileSummary))
+	if err := json.Unmarshal(b, &sum); err != nil {
+		t.Fatal(err)
+	}
+	if sum.WallSeconds <= 0 || sum.Neurons != 60 || len(sum.Cautions) == 0 {
+		t.Errorf("summary.json: %+v", sum)
+	}
+	filters, err := data.ReadNPY(filepath.Join(run, train.FileFilters))
+	if err != nil || filters.Rows != 8 || filters.Cols != 9 {
+		t.Errorf("filters.npy: %v, %+v", err, filters)
+	}
+
+	// The resolved config in the run folder refits to the same numbers.
+	out, err = runCLI(t, "fit", "--config", filepath.Join(run, train.FileConfig), "--out", filepath.Join(dir, "again"), "--quiet")
+	if err != nil {
+		t.Fatalf("refit from the resolved config: %v\n%s", err, out)
+	}
+	m1, _ := os.ReadFile(filepath.Join(run, train.FileMetrics))
+	m2, _ := os.ReadFile(filepath.Join(dir, "again", train.FileMetrics))
+	if !bytes.Equal(m1, m2) {
+		t.Error("refitting the resolved config gave other metrics")
+	}
+
+	// predict: three headings, including the wrap-around value 360.
+	stim := filepath.Join(dir, "new.npy")
+	if err := data.WriteNPY64(stim, []int{3}, []float64{0, 90, 360}); err != nil {
+		t.Fatal(err)
+	}
+	pred := filepath.Join(dir, "pred.npy")
+	if out, err := runCLI(t, "predict", "--stimulus", stim, "--out", pred, run); err != nil {
+		t.Fatalf("predict: %v\n%s", err, out)
+	}
+	m, err := data.ReadNPY(pred)
+	if err != nil || m.Rows != 3 || m.Cols != 60 {
+		t.Fatalf("predictions: %v %+v", err, m)
+	}
+	for j := 0; j < 60; j++ {
+		if m.Data[j] != m.Data[2*60+j] {
+			t.Fatalf("neuron %d: prediction at 0 deg %v differs from 360 deg %v", j, m.Data[j], m.Data[120+j])
+		}
+	}
+	// An out-of-range value is an error naming it (on a periodic axis any value
+	// wraps, so use NaN).
+	if err := data.WriteNPY64(stim, []int{2}, []float64{10, nanValue()}); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := runCLI(t, "predict", "--stimulus", stim, "--out", pred+"2", run); err == nil || !strings.Contains(err.Error(), "1 (0-based)") {
+		t.Errorf("predict with NaN stimulus: %v", err)
+	}
+	if _, err := os.Stat(pred + "2"); err == nil {
+		t.Error("a failed predict left an output file")
+	}
+}
+
+func nanValue() float64 { var z float64; return z / z }
+
+func TestFitRefusesBadConfig(t *testing.T) {
+	dir := t.TempDir()
+	cfg := filepath.Join(dir, "c.yaml")
+	os.WriteFile(cfg, []byte("data:\n  responses: r.npy\naxis:\n  min: 0\n  max: 360\n  bins: 10\nmodel:\n  layers:\n    - channels: 4\n      kernel: 11\n"), 0o644)
+	_, err := runCLI(t, "fit", "--config", cfg, "--quiet")
+	if err == nil || !strings.Contains(err.Error(), "model.layers[0].kernel 11 is longer than its input (10 positions)") {
+		t.Errorf("got %v", err)
+	}
+	if _, err := os.Stat(filepath.Join(dir, "runs")); err == nil {
+		t.Error("a refused config still created an output folder")
+	}
+}
