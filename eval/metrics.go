@@ -13,22 +13,32 @@ func checkLen(a, b int, what string) {
 
 // mean returns (1/n) sum x_i, NaN for an empty slice.
 func mean(x []float64) float64 {
+	x0, m := shiftMean(x)
+	return x0 + m
+}
+
+// shiftMean returns x0 = x[0] and the mean of x_i - x0. Deviations are taken
+// as (x_i - x0) - m, which are exactly zero for constant data (a plain mean
+// of n equal values can miss the value by an ulp and make a constant look
+// variable) and lose less precision for data far from zero.
+func shiftMean(x []float64) (x0, m float64) {
 	if len(x) == 0 {
-		return math.NaN()
+		return math.NaN(), 0
 	}
-	var s float64
+	x0 = x[0]
 	for _, v := range x {
-		s += v
+		m += v - x0
 	}
-	return s / float64(len(x))
+	return x0, m / float64(len(x))
 }
 
 // moments returns the ddof-0 variances of x and y and their ddof-0 covariance,
 // computed with two passes.
 func moments(x, y []float64) (vx, vy, cxy float64) {
-	mx, my := mean(x), mean(y)
+	x0, mx := shiftMean(x)
+	y0, my := shiftMean(y)
 	for i, a := range x {
-		dx, dy := a-mx, y[i]-my
+		dx, dy := (a-x0)-mx, (y[i]-y0)-my
 		vx += dx * dx
 		vy += dy * dy
 		cxy += dx * dy
@@ -39,13 +49,33 @@ func moments(x, y []float64) (vx, vy, cxy float64) {
 
 // variance0 returns the ddof-0 variance of x.
 func variance0(x []float64) float64 {
-	m := mean(x)
+	x0, m := shiftMean(x)
 	var s float64
 	for _, v := range x {
-		d := v - m
+		d := (v - x0) - m
 		s += d * d
 	}
 	return s / float64(len(x))
+}
+
+// residualMoments returns the ddof-0 variance of y and of the residual y - p
+// about its mean, and the mean squared residual.
+func residualMoments(y, p []float64) (vy, ve, mse float64) {
+	y0, my := shiftMean(y)
+	n := float64(len(y))
+	var me float64
+	for i, v := range y {
+		me += v - p[i]
+	}
+	me /= n
+	for i, v := range y {
+		d := (v - y0) - my
+		e := v - p[i]
+		vy += d * d
+		ve += (e - me) * (e - me)
+		mse += e * e
+	}
+	return vy / n, ve / n, mse / n
 }
 
 // R2 returns the coefficient of determination of the predictions yhat for
@@ -59,18 +89,14 @@ func variance0(x []float64) float64 {
 // user guide entry for r2_score. R2 panics if len(y) != len(yhat).
 func R2(y, yhat []float64) float64 {
 	checkLen(len(y), len(yhat), "R2")
-	m := mean(y)
-	var ssRes, ssTot float64
-	for i, v := range y {
-		e := v - yhat[i]
-		d := v - m
-		ssRes += e * e
-		ssTot += d * d
-	}
-	if ssTot == 0 || len(y) == 0 {
+	if len(y) == 0 {
 		return math.NaN()
 	}
-	return 1 - ssRes/ssTot
+	vy, _, mse := residualMoments(y, yhat)
+	if vy == 0 {
+		return math.NaN()
+	}
+	return 1 - mse/vy
 }
 
 // ExplainedVarianceScore returns
@@ -85,15 +111,7 @@ func ExplainedVarianceScore(y, yhat []float64) float64 {
 	if len(y) == 0 {
 		return math.NaN()
 	}
-	my, mp := mean(y), mean(yhat)
-	me := my - mp
-	var vy, ve float64
-	for i, v := range y {
-		d := v - my
-		e := v - yhat[i] - me
-		vy += d * d
-		ve += e * e
-	}
+	vy, ve, _ := residualMoments(y, yhat)
 	if vy == 0 {
 		return math.NaN()
 	}
@@ -261,17 +279,8 @@ func SPE(ybar, yhat []float64, sp float64) float64 {
 	if !(sp > 0) || len(ybar) == 0 {
 		return math.NaN()
 	}
-	my, mp := mean(ybar), mean(yhat)
-	me := my - mp
-	var vy, ve float64
-	for i, v := range ybar {
-		d := v - my
-		e := v - yhat[i] - me
-		vy += d * d
-		ve += e * e
-	}
-	n := float64(len(ybar))
-	return (vy/n - ve/n) / sp
+	vy, ve, _ := residualMoments(ybar, yhat)
+	return (vy - ve) / sp
 }
 
 // SpearmanBrown returns the reliability of a measurement lengthened n-fold

@@ -144,6 +144,7 @@ type shared struct {
 type scorer struct {
 	sumY, sumP, sumA, ssw                  []float64 // nbins x scoreBlock
 	totY, totP, ssTot, ssP, cYP, sse, sseC []float64 // scoreBlock
+	refY, refP                             []float64 // scoreBlock
 	ybar, yhat, vars, hA, hB               []float64 // nbins
 	cnt                                    []int     // nbins
 }
@@ -155,6 +156,7 @@ func newScorer(nbins int) *scorer {
 		sumY: f(m), sumP: f(m), sumA: f(m), ssw: f(m),
 		totY: f(scoreBlock), totP: f(scoreBlock), ssTot: f(scoreBlock), ssP: f(scoreBlock),
 		cYP: f(scoreBlock), sse: f(scoreBlock), sseC: f(scoreBlock),
+		refY: f(scoreBlock), refP: f(scoreBlock),
 		ybar: f(nbins), yhat: f(nbins), vars: f(nbins),
 		hA: f(nbins), hB: f(nbins),
 		cnt: make([]int, nbins),
@@ -174,6 +176,23 @@ func (s *scorer) block(dst []Scores, sh *shared, n0, w int) {
 		zero(a)
 	}
 	n := sh.n
+	// All sums are taken relative to the first held-out trial of each neuron
+	// (refY, refP): a constant prediction then has exactly zero spread, and
+	// precision does not depend on the response offset. Every score below is
+	// invariant to these shifts except the residual y - pred, which adds
+	// refY - refP back.
+	if len(sh.trials) == 0 {
+		for j := range dst {
+			dst[j] = s.finish(sh, j, 0)
+		}
+		return
+	}
+	r0 := sh.trials[0]
+	for j := 0; j < w; j++ {
+		s.refY[j] = float64(sh.y[r0*n+n0+j])
+		s.refP[j] = sh.pred[n0+j]
+	}
+	refY, refP := s.refY[:w], s.refP[:w]
 	// Pass 1: sums per condition, per half and overall.
 	for i, r := range sh.trials {
 		c := sh.ci[i]
@@ -184,16 +203,17 @@ func (s *scorer) block(dst []Scores, sh *shared, n0, w int) {
 		ty := s.totY[:w]
 		tp := s.totP[:w]
 		for j, v := range yr {
-			yv := float64(v)
+			yv := float64(v) - refY[j]
+			p := pr[j] - refP[j]
 			sy[j] += yv
-			sp[j] += pr[j]
+			sp[j] += p
 			ty[j] += yv
-			tp[j] += pr[j]
+			tp[j] += p
 		}
 		if !sh.half[i] {
 			sa := s.sumA[c*nb : c*nb+w]
 			for j, v := range yr {
-				sa[j] += float64(v)
+				sa[j] += float64(v) - refY[j]
 			}
 		}
 	}
@@ -224,8 +244,8 @@ func (s *scorer) block(dst []Scores, sh *shared, n0, w int) {
 		ssw := s.ssw[c*nb : c*nb+w]
 		ssTot, ssP, cYP, sse, sseC := s.ssTot[:w], s.ssP[:w], s.cYP[:w], s.sse[:w], s.sseC[:w]
 		for j, v := range yr {
-			yv := float64(v)
-			p := pr[j]
+			yv := float64(v) - refY[j]
+			p := pr[j] - refP[j]
 			dw := yv - my[j]
 			ssw[j] += dw * dw
 			dy := yv - gy[j]
@@ -233,7 +253,7 @@ func (s *scorer) block(dst []Scores, sh *shared, n0, w int) {
 			ssTot[j] += dy * dy
 			ssP[j] += dp * dp
 			cYP[j] += dy * dp
-			e := yv - p
+			e := yv - p + (refY[j] - refP[j])
 			sse[j] += e * e
 			ec := dy - dp
 			sseC[j] += ec * ec
