@@ -106,6 +106,10 @@ type TrainConfig struct {
 	CheckpointEvery int `yaml:"checkpoint_every"`
 	// Threads bounds the goroutines used by the heavy kernels; 0 is all cores.
 	Threads int `yaml:"threads"`
+	// Solver is "adam" (gradient steps on all weights, the reference) or
+	// "projected" (closed-form ridge readout, filters optimised on the
+	// projected loss; MSE, identity output, one-hot input, full batch).
+	Solver string `yaml:"solver"`
 }
 
 // Defaults returns a Config with every default filled in and no data.
@@ -135,6 +139,7 @@ func Defaults() Config {
 			MaxEpochs:       3000,
 			Patience:        100,
 			CheckpointEvery: 100,
+			Solver:          "adam",
 		},
 		Output: "runs/fit",
 	}
@@ -398,6 +403,15 @@ func (c *Config) Validate() error {
 	}
 	if t.CheckpointEvery < 1 {
 		bad("train.checkpoint_every %d: want at least 1", t.CheckpointEvery)
+	}
+	switch t.Solver {
+	case "adam":
+	case "projected":
+		if m.Loss != "mse" || m.Output != "identity" || c.Axis.Encoding != "onehot" || t.BatchSize != 0 {
+			bad("train.solver projected needs model.loss mse, model.output identity, axis.encoding onehot and train.batch_size 0")
+		}
+	default:
+		bad("train.solver %q: want adam or projected", t.Solver)
 	}
 	if t.Threads < 0 {
 		bad("train.threads %d: want 0 (all cores) or more", t.Threads)

@@ -363,6 +363,9 @@ func (tr *trainer) epoch() float64 {
 // ErrInterrupted is returned.
 func Fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
 	cfg := p.Cfg
+	if cfg.Train.Solver == "projected" {
+		return fitProjected(ctx, p, hooks, resume)
+	}
 	net := nn.NewNet(cfg.Shape(p.NBins, p.Neurons()))
 	net.Init(rand.New(rand.NewPCG(cfg.Seed, 0x1417)))
 	initReadout(p, net)
