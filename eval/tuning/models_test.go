@@ -154,3 +154,44 @@ func TestNearestBin(t *testing.T) {
 		t.Errorf("CondMean.Predict = %v", dst)
 	}
 }
+
+// TestNoPanicOnOddData fits every model to awkward but valid data (few
+// non-empty bins, large offsets, tiny spread, spikes) and requires finite
+// predictions and no panic.
+func TestNoPanicOnOddData(t *testing.T) {
+	rng := rand.New(rand.NewPCG(51, 52))
+	centers := grid(12, 30, 15)
+	models := []Model{
+		NewVonMises(centers, 360, 3, rng), NewVonMisesTwoPeak(centers, 360, 3, rng),
+		NewGaussianBump(centers, 3, rng), NewSmoothLinear(centers, 360, 3), NewSmoothLinear(centers, 0, 3),
+		NewCondMeanAt(centers, 360),
+	}
+	dst := make([]float64, len(centers))
+	for trial := 0; trial < 200; trial++ {
+		counts := make([]int, 12)
+		means := make([]float64, 12)
+		present := 1 + rng.IntN(12)
+		for k := 0; k < present; k++ {
+			counts[rng.IntN(12)] = 1 + rng.IntN(5)
+		}
+		off := []float64{0, 1e6, -3e3}[trial%3]
+		scale := []float64{1, 1e-9, 1e4}[trial%3]
+		for b := range means {
+			means[b] = off + scale*rng.NormFloat64()
+			if trial%7 == 0 && b == 4 {
+				means[b] += 50 * scale // a spike
+			}
+		}
+		for _, m := range models {
+			if err := m.Fit(counts, means); err != nil {
+				t.Fatalf("%s: %v", m.Name(), err)
+			}
+			m.Predict(dst, centers)
+			for _, v := range dst {
+				if math.IsNaN(v) || math.IsInf(v, 0) {
+					t.Fatalf("%s trial %d: prediction %v (params %v)", m.Name(), trial, dst, m.Params())
+				}
+			}
+		}
+	}
+}
