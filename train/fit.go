@@ -83,7 +83,8 @@ type rowSet struct {
 	sumSq []float64
 }
 
-// condRows builds the condition-level rows of a trial set.
+// condRows builds the condition-level rows of a trial set, in the
+// trainer's (possibly z-scored) units.
 func condRows(p *Prepared, trials []int) *rowSet {
 	b, n := p.NBins, p.Neurons()
 	st := data.NewCondStats(p.Rec.Y, p.Cond, trials, b)
@@ -101,6 +102,10 @@ func condRows(p *Prepared, trials []int) *rowSet {
 	rs.sumSq = make([]float64, rs.rows*n)
 	rs.ssTot = make([]float64, n)
 	grand := make([]float64, n)
+	mu, inv := make([]float64, n), make([]float64, n)
+	for j := range mu {
+		mu[j], inv[j] = p.zscore(j)
+	}
 	for r, c := range keep {
 		rs.x[r*b+c] = 1
 		cnt := float64(st.Count[c])
@@ -108,12 +113,15 @@ func condRows(p *Prepared, trials []int) *rowSet {
 		sum := st.Sum[c*n : (c+1)*n]
 		sq := st.SumSq[c*n : (c+1)*n]
 		tg := rs.target[r*n : (r+1)*n]
-		copy(rs.sumSq[r*n:(r+1)*n], sq)
+		zq := rs.sumSq[r*n : (r+1)*n]
 		for j := range tg {
-			tg[j] = sum[j] / cnt
-			rs.within += sq[j] - sum[j]*tg[j]
-			rs.ssTot[j] += sq[j]
-			grand[j] += sum[j]
+			// Sums of z = (y - mu) * inv over the condition's trials.
+			zs := (sum[j] - cnt*mu[j]) * inv[j]
+			zq[j] = (sq[j] - 2*mu[j]*sum[j] + cnt*mu[j]*mu[j]) * inv[j] * inv[j]
+			tg[j] = zs / cnt
+			rs.within += zq[j] - zs*tg[j]
+			rs.ssTot[j] += zq[j]
+			grand[j] += zs
 		}
 	}
 	for j := range grand {
@@ -122,7 +130,8 @@ func condRows(p *Prepared, trials []int) *rowSet {
 	return rs
 }
 
-// trialRows fills rs with the given trials (rs must have room).
+// trialRows fills rs with the given trials (rs must have room), in the
+// trainer's units.
 func trialRows(rs *rowSet, p *Prepared, trials []int) {
 	b, n := p.NBins, p.Neurons()
 	rs.rows = len(trials)
@@ -130,13 +139,20 @@ func trialRows(rs *rowSet, p *Prepared, trials []int) {
 		p.encode(rs.x[i*b:(i+1)*b], t)
 		src := p.Rec.Y.Row(t)
 		dst := rs.target[i*n : (i+1)*n]
+		if p.Norm == nil {
+			for j, v := range src {
+				dst[j] = float64(v)
+			}
+			continue
+		}
 		for j, v := range src {
-			dst[j] = float64(v)
+			dst[j] = (float64(v) - p.Norm.Mean[j]) / p.Norm.Scale[j]
 		}
 	}
 }
 
-// ssTot returns per-neuron total sums of squares over trials.
+// ssTotOf returns per-neuron total sums of squares over trials, in the
+// trainer's units.
 func ssTotOf(p *Prepared, trials []int) []float64 {
 	st := data.NewCondStats(p.Rec.Y, p.Cond, trials, p.NBins)
 	n := p.Neurons()
@@ -149,7 +165,8 @@ func ssTotOf(p *Prepared, trials []int) []float64 {
 		}
 	}
 	for j := range tot {
-		tot[j] -= grand[j] * grand[j] / float64(len(trials))
+		_, inv := p.zscore(j)
+		tot[j] = (tot[j] - grand[j]*grand[j]/float64(len(trials))) * inv * inv
 	}
 	return tot
 }
@@ -461,7 +478,8 @@ func initReadout(p *Prepared, net *nn.Net) {
 	}
 	b := net.ReadB()
 	for j := range mean {
-		m := mean[j] / float64(len(p.Train))
+		mu, inv := p.zscore(j)
+		m := (mean[j]/float64(len(p.Train)) - mu) * inv
 		switch net.Output {
 		case nn.Exp:
 			m = math.Log(math.Max(m, 1e-3))

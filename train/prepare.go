@@ -2,6 +2,7 @@ package train
 
 import (
 	"fmt"
+	"slices"
 
 	"stria/data"
 )
@@ -21,7 +22,9 @@ type Prepared struct {
 	// conditions with too few trials.
 	Report *data.Report
 	// Norm is the per-neuron z-scoring fitted on Train and Val (nil when
-	// split.zscore is false). Rec.Y has been standardised in place.
+	// split.zscore is false). Rec.Y stays in the recording's units: the
+	// trainer standardises what it reads, and predictions are returned in
+	// the recording's units.
 	Norm *data.Normalizer
 }
 
@@ -67,9 +70,29 @@ func PrepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
 	}
 	if cfg.Split.ZScore {
 		p.Norm = data.FitNormalizer(rec.Y, sp.Train)
-		p.Norm.Apply(rec.Y)
 	}
 	return p, nil
+}
+
+// WithSplit returns a copy of p that trains on train (with val for early
+// stopping) and holds out test, with its own z-scoring fitted on train and
+// val. The recording is shared, not copied.
+func (p *Prepared) WithSplit(train, val, test []int) *Prepared {
+	q := *p
+	q.Train, q.Val, q.Test = train, val, test
+	if p.Cfg.Split.ZScore {
+		q.Norm = data.FitNormalizer(p.Rec.Y, append(slices.Clone(train), val...))
+	}
+	return &q
+}
+
+// zscore returns the affine map y' = (y - mu) * inv of neuron j (0 and 1
+// without z-scoring).
+func (p *Prepared) zscore(j int) (mu, inv float64) {
+	if p.Norm == nil {
+		return 0, 1
+	}
+	return p.Norm.Mean[j], 1 / p.Norm.Scale[j]
 }
 
 // carve splits the trials in sub into a training and a validation part,

@@ -146,8 +146,8 @@ type Summary struct {
 	Scored      int                     `json:"neurons_scored"`
 	Excluded    int                     `json:"neurons_excluded"`
 	NoSignal    int                     `json:"neurons_no_signal_power"`
-	Medians     map[string]float64      `json:"medians"`
-	Spread      map[string]eval.Summary `json:"spread"`
+	Medians     map[string]Num          `json:"medians"`
+	Spread      map[string]Spread       `json:"spread"`
 	TestTrials  int                     `json:"test_trials"`
 	BestEpoch   int                     `json:"best_epoch"`
 	Epochs      int                     `json:"epochs"`
@@ -155,6 +155,39 @@ type Summary struct {
 	WallSeconds float64                 `json:"wall_seconds"`
 	Cautions    []string                `json:"cautions"`
 	Warnings    []string                `json:"warnings"`
+}
+
+// Num is a float64 that writes NaN and infinities as JSON null.
+type Num float64
+
+// MarshalJSON implements json.Marshaler.
+func (v Num) MarshalJSON() ([]byte, error) {
+	f := float64(v)
+	if math.IsNaN(f) || math.IsInf(f, 0) {
+		return []byte("null"), nil
+	}
+	return strconv.AppendFloat(nil, f, 'g', -1, 64), nil
+}
+
+// UnmarshalJSON implements json.Unmarshaler (null reads as NaN).
+func (v *Num) UnmarshalJSON(b []byte) error {
+	if string(b) == "null" {
+		*v = Num(math.NaN())
+		return nil
+	}
+	f, err := strconv.ParseFloat(string(b), 64)
+	*v = Num(f)
+	return err
+}
+
+// Spread is the median and quartiles of a per-neuron column over the
+// scored neurons; NaN counts the neurons where the column is undefined.
+type Spread struct {
+	Median Num `json:"median"`
+	Q1     Num `json:"q1"`
+	Q3     Num `json:"q3"`
+	N      int `json:"n"`
+	NaN    int `json:"nan"`
 }
 
 // metricColumns are the per-neuron columns of metrics.csv, in order.
@@ -167,7 +200,7 @@ func metricValues(s eval.Scores) []float64 {
 // Summarize builds the summary of per-neuron scores; excluded neurons are
 // left out of the medians.
 func Summarize(scores []eval.Scores, excluded map[int]string) Summary {
-	s := Summary{Neurons: len(scores), Excluded: len(excluded), Medians: map[string]float64{}, Spread: map[string]eval.Summary{}}
+	s := Summary{Neurons: len(scores), Excluded: len(excluded), Medians: map[string]Num{}, Spread: map[string]Spread{}}
 	cols := make([][]float64, len(metricColumns))
 	for j, sc := range scores {
 		if _, ok := excluded[j]; ok {
@@ -183,8 +216,8 @@ func Summarize(scores []eval.Scores, excluded map[int]string) Summary {
 	}
 	for k, name := range metricColumns {
 		sm := eval.Summarize(cols[k])
-		s.Medians[name] = sm.Median
-		s.Spread[name] = sm
+		s.Medians[name] = Num(sm.Median)
+		s.Spread[name] = Spread{Median: Num(sm.Median), Q1: Num(sm.Q1), Q3: Num(sm.Q3), N: sm.N, NaN: sm.NaN}
 	}
 	s.Cautions = Cautions
 	return s

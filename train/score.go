@@ -26,8 +26,21 @@ func PredictConditions(net *nn.Net, nbins int) []float64 {
 }
 
 // PredictTrials returns the predictions for the given trials,
-// len(trials) x N, in the (possibly z-scored) units the net was trained in.
+// len(trials) x N, in the recording's units (z-scoring undone).
 func PredictTrials(net *nn.Net, p *Prepared, trials []int) []float64 {
+	out := predictTrials(net, p, trials)
+	if p.Norm != nil {
+		n := p.Neurons()
+		for i := range out {
+			j := i % n
+			out[i] = out[i]*p.Norm.Scale[j] + p.Norm.Mean[j]
+		}
+	}
+	return out
+}
+
+// predictTrials is PredictTrials in the units the net was trained in.
+func predictTrials(net *nn.Net, p *Prepared, trials []int) []float64 {
 	n := p.Neurons()
 	out := make([]float64, len(trials)*n)
 	if !p.Soft() {
