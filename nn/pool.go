@@ -3,6 +3,9 @@ package nn
 import (
 	"runtime"
 	"sync"
+
+	"gonum.org/v1/gonum/blas"
+	"gonum.org/v1/gonum/blas/blas64"
 )
 
 // Readout partitioning. The neurons are split into nPart contiguous
@@ -48,16 +51,19 @@ type pool struct {
 	dw, db     []float64
 
 	dhp [][]float64 // per partition [maxRows][F]
-	dzt [][]float64 // per partition [blockN][maxRows]
+	g   [][]float64 // per partition [maxRows][blockN], dLoss/dz of one block
+	gt  [][]float64 // per partition [blockN][maxRows], the same transposed
 }
 
 func newPool(maxRows, F, N int) *pool {
 	p := &pool{nPart: numParts(N), F: F, N: N}
 	p.dhp = make([][]float64, p.nPart)
-	p.dzt = make([][]float64, p.nPart)
+	p.g = make([][]float64, p.nPart)
+	p.gt = make([][]float64, p.nPart)
 	for i := range p.dhp {
 		p.dhp[i] = make([]float64, maxRows*F)
-		p.dzt[i] = make([]float64, blockN*maxRows)
+		p.g[i] = make([]float64, blockN*maxRows)
+		p.gt[i] = make([]float64, blockN*maxRows)
 	}
 	p.workers = min(runtime.GOMAXPROCS(0), p.nPart)
 	if p.workers > 1 {
@@ -106,136 +112,62 @@ func (p *pool) runPart(part int) {
 	}
 }
 
-// forwardPart computes z and y for the neurons [lo, hi) and all rows.
+// forwardPart computes z and y for the neurons [lo, hi) and all rows, one
+// cache block of blockN neurons at a time: z[r][blk] = b[blk] + W[blk] h[r]
+// (gonum blas64.Gemv, no transpose).
 func (p *pool) forwardPart(lo, hi int) {
 	F, N, rows := p.F, p.N, p.rows
-	h, w, b, z := p.h, p.w, p.b, p.z
-	var s [8]float64
-	n := lo
-	for ; n+1 < hi; n += 2 {
-		w0, w1 := w[n*F:(n+1)*F], w[(n+1)*F:(n+2)*F]
-		r := 0
-		for ; r+3 < rows; r += 4 {
-			dot24(&s, w0, w1, h[r*F:(r+1)*F], h[(r+1)*F:(r+2)*F], h[(r+2)*F:(r+3)*F], h[(r+3)*F:(r+4)*F])
-			for j := range 4 {
-				z[(r+j)*N+n] = b[n] + s[j]
-				z[(r+j)*N+n+1] = b[n+1] + s[4+j]
-			}
-		}
-		for ; r < rows; r++ {
-			hr := h[r*F : (r+1)*F]
-			z[r*N+n] = b[n] + dot(w0, hr)
-			z[r*N+n+1] = b[n+1] + dot(w1, hr)
-		}
-	}
-	if n < hi {
-		w0 := w[n*F : (n+1)*F]
+	for blo := lo; blo < hi; blo += blockN {
+		bhi := min(blo+blockN, hi)
+		a := blas64.General{Rows: bhi - blo, Cols: F, Stride: F, Data: p.w[blo*F : bhi*F]}
 		for r := range rows {
-			z[r*N+n] = b[n] + dot(w0, h[r*F:(r+1)*F])
+			zr := p.z[r*N+blo : r*N+bhi]
+			copy(zr, p.b[blo:bhi])
+			blas64.Gemv(blas.NoTrans, 1, a, blas64.Vector{N: F, Inc: 1, Data: p.h[r*F : (r+1)*F]},
+				1, blas64.Vector{N: bhi - blo, Inc: 1, Data: zr})
+			p.act.Forward(p.y[r*N+blo:r*N+bhi], zr)
 		}
-	}
-	for r := range rows {
-		p.act.Forward(p.y[r*N+lo:r*N+hi], z[r*N+lo:r*N+hi])
 	}
 }
 
 // backwardPart adds the readout gradients of the neurons [lo, hi) into dw
-// and db, and writes their part of the input gradient into dhp[part].
+// and db, and writes their part of the input gradient into dhp[part], one
+// cache block of blockN neurons at a time:
+//
+//	g[r][n]  = dy[r][n] * f'(z[r][n])
+//	db[n]   += sum_r g[r][n]
+//	dw[n]   += H^T g[:, n]        (blas64.Gemv, transposed H [R][F])
+//	dhp[r]  += W[blk]^T g[r, blk] (blas64.Gemv, transposed W block)
 func (p *pool) backwardPart(part, lo, hi int) {
 	F, N, rows := p.F, p.N, p.rows
-	h, w := p.h, p.w
 	dhp := p.dhp[part][:rows*F]
 	clear(dhp)
-	var c [8]float64
+	hm := blas64.General{Rows: rows, Cols: F, Stride: F, Data: p.h[:rows*F]}
 	for blo := lo; blo < hi; blo += blockN {
 		bhi := min(blo+blockN, hi)
 		nb := bhi - blo
-		// g[j][r] = dLoss/dz[r][blo+j], transposed so that a neuron's
-		// gradients over rows are contiguous.
-		g := p.dzt[part][:nb*rows]
+		g := p.g[part][:rows*nb]   // [R][nb]
+		gt := p.gt[part][:nb*rows] // [nb][R]
 		for r := range rows {
-			dy := p.dy[r*N+blo : r*N+bhi]
-			switch p.act {
-			case Identity:
-				for j, v := range dy {
-					g[j*rows+r] = v
-				}
-			case Softplus:
-				zr := p.z[r*N+blo : r*N+bhi]
-				for j, v := range dy {
-					g[j*rows+r] = v * sigmoid(zr[j])
-				}
-			case Exp:
-				yr := p.y[r*N+blo : r*N+bhi]
-				for j, v := range dy {
-					g[j*rows+r] = v * yr[j]
-				}
+			p.act.Backward(g[r*nb:(r+1)*nb], p.dy[r*N+blo:r*N+bhi], p.z[r*N+blo:r*N+bhi], p.y[r*N+blo:r*N+bhi])
+			for j, v := range g[r*nb : (r+1)*nb] {
+				gt[j*rows+r] = v
 			}
 		}
 		for j := range nb {
+			n := blo + j
 			var s float64
-			for _, v := range g[j*rows : (j+1)*rows] {
+			for _, v := range gt[j*rows : (j+1)*rows] {
 				s += v
 			}
-			p.db[blo+j] += s
+			p.db[n] += s
+			blas64.Gemv(blas.Trans, 1, hm, blas64.Vector{N: rows, Inc: 1, Data: gt[j*rows : (j+1)*rows]},
+				1, blas64.Vector{N: F, Inc: 1, Data: p.dw[n*F : (n+1)*F]})
 		}
-		// dw[n] += sum_r g[n][r] h[r], rows in groups of four.
-		j := 0
-		for ; j+1 < nb; j += 2 {
-			n := blo + j
-			dw0, dw1 := p.dw[n*F:(n+1)*F], p.dw[(n+1)*F:(n+2)*F]
-			g0, g1 := g[j*rows:(j+1)*rows], g[(j+1)*rows:(j+2)*rows]
-			r := 0
-			for ; r+3 < rows; r += 4 {
-				c = [8]float64{g0[r], g0[r+1], g0[r+2], g0[r+3], g1[r], g1[r+1], g1[r+2], g1[r+3]}
-				axpy24(dw0, dw1, &c, h[r*F:(r+1)*F], h[(r+1)*F:(r+2)*F], h[(r+2)*F:(r+3)*F], h[(r+3)*F:(r+4)*F])
-			}
-			for ; r < rows; r++ {
-				axpy(dw0, g0[r], h[r*F:(r+1)*F])
-				axpy(dw1, g1[r], h[r*F:(r+1)*F])
-			}
-		}
-		if j < nb {
-			n := blo + j
-			dw0 := p.dw[n*F : (n+1)*F]
-			g0 := g[j*rows : (j+1)*rows]
-			r := 0
-			for ; r+3 < rows; r += 4 {
-				axpy4(dw0, g0[r], g0[r+1], g0[r+2], g0[r+3], h[r*F:(r+1)*F], h[(r+1)*F:(r+2)*F], h[(r+2)*F:(r+3)*F], h[(r+3)*F:(r+4)*F])
-			}
-			for ; r < rows; r++ {
-				axpy(dw0, g0[r], h[r*F:(r+1)*F])
-			}
-		}
-		// dhp[r] += sum_n g[n][r] w[n], neurons in groups of four.
-		r := 0
-		for ; r+1 < rows; r += 2 {
-			d0, d1 := dhp[r*F:(r+1)*F], dhp[(r+1)*F:(r+2)*F]
-			j := 0
-			for ; j+3 < nb; j += 4 {
-				n := blo + j
-				c = [8]float64{g[j*rows+r], g[(j+1)*rows+r], g[(j+2)*rows+r], g[(j+3)*rows+r],
-					g[j*rows+r+1], g[(j+1)*rows+r+1], g[(j+2)*rows+r+1], g[(j+3)*rows+r+1]}
-				axpy24(d0, d1, &c, w[n*F:(n+1)*F], w[(n+1)*F:(n+2)*F], w[(n+2)*F:(n+3)*F], w[(n+3)*F:(n+4)*F])
-			}
-			for ; j < nb; j++ {
-				n := blo + j
-				axpy(d0, g[j*rows+r], w[n*F:(n+1)*F])
-				axpy(d1, g[j*rows+r+1], w[n*F:(n+1)*F])
-			}
-		}
-		if r < rows {
-			d0 := dhp[r*F : (r+1)*F]
-			j := 0
-			for ; j+3 < nb; j += 4 {
-				n := blo + j
-				axpy4(d0, g[j*rows+r], g[(j+1)*rows+r], g[(j+2)*rows+r], g[(j+3)*rows+r],
-					w[n*F:(n+1)*F], w[(n+1)*F:(n+2)*F], w[(n+2)*F:(n+3)*F], w[(n+3)*F:(n+4)*F])
-			}
-			for ; j < nb; j++ {
-				n := blo + j
-				axpy(d0, g[j*rows+r], w[n*F:(n+1)*F])
-			}
+		wb := blas64.General{Rows: nb, Cols: F, Stride: F, Data: p.w[blo*F : bhi*F]}
+		for r := range rows {
+			blas64.Gemv(blas.Trans, 1, wb, blas64.Vector{N: nb, Inc: 1, Data: g[r*nb : (r+1)*nb]},
+				1, blas64.Vector{N: F, Inc: 1, Data: dhp[r*F : (r+1)*F]})
 		}
 	}
 }

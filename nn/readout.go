@@ -7,8 +7,8 @@ import "fmt"
 //	z[r][n] = b[n] + sum_{f<F} w[n][f] * h[r][f]
 //
 // Shapes: h [R][F], w [N][F], b [N], z [R][N]. Its methods are the plain
-// reference loops; Net runs the same arithmetic through a blocked, parallel
-// kernel (see Work) that is tested against them.
+// reference loops; Net runs the same arithmetic through a cache-blocked,
+// partitioned kernel on gonum's blas64.Gemv (see Work), tested against them.
 type Readout struct {
 	Features, Neurons int
 }
@@ -87,55 +87,5 @@ func axpy(y []float64, a float64, x []float64) {
 	x = x[:len(y)]
 	for i := range y {
 		y[i] += a * x[i]
-	}
-}
-
-// dot24 returns the eight dot products of the rows a0, a1 with the rows
-// x0..x3 (all of length len(a0)), s[2*j+k] = a_k . x_j... laid out as
-// s[0..3] = a0.x0..a0.x3 and s[4..7] = a1.x0..a1.x3. Each sum runs in index
-// order, so it equals dot bit for bit.
-func dot24(s *[8]float64, a0, a1, x0, x1, x2, x3 []float64) {
-	n := len(a0)
-	a1, x0, x1, x2, x3 = a1[:n], x0[:n], x1[:n], x2[:n], x3[:n]
-	var s0, s1, s2, s3, s4, s5, s6, s7 float64
-	for i, u := range a0 {
-		v := a1[i]
-		h0, h1, h2, h3 := x0[i], x1[i], x2[i], x3[i]
-		s0 += u * h0
-		s1 += u * h1
-		s2 += u * h2
-		s3 += u * h3
-		s4 += v * h0
-		s5 += v * h1
-		s6 += v * h2
-		s7 += v * h3
-	}
-	*s = [8]float64{s0, s1, s2, s3, s4, s5, s6, s7}
-}
-
-// axpy24 computes, for each i,
-//
-//	y0[i] += c[0]*x0[i] + c[1]*x1[i] + c[2]*x2[i] + c[3]*x3[i]
-//	y1[i] += c[4]*x0[i] + c[5]*x1[i] + c[6]*x2[i] + c[7]*x3[i]
-//
-// with the four products added to y in the order written.
-func axpy24(y0, y1 []float64, c *[8]float64, x0, x1, x2, x3 []float64) {
-	n := len(y0)
-	y1, x0, x1, x2, x3 = y1[:n], x0[:n], x1[:n], x2[:n], x3[:n]
-	c0, c1, c2, c3, c4, c5, c6, c7 := c[0], c[1], c[2], c[3], c[4], c[5], c[6], c[7]
-	for i := range y0 {
-		h0, h1, h2, h3 := x0[i], x1[i], x2[i], x3[i]
-		y0[i] += c0*h0 + c1*h1 + c2*h2 + c3*h3
-		y1[i] += c4*h0 + c5*h1 + c6*h2 + c7*h3
-	}
-}
-
-// axpy4 computes y[i] += c0*x0[i] + c1*x1[i] + c2*x2[i] + c3*x3[i]: the
-// one-output tail of axpy24, with the same order of operations.
-func axpy4(y []float64, c0, c1, c2, c3 float64, x0, x1, x2, x3 []float64) {
-	n := len(y)
-	x0, x1, x2, x3 = x0[:n], x1[:n], x2[:n], x3[:n]
-	for i := range y {
-		y[i] += c0*x0[i] + c1*x1[i] + c2*x2[i] + c3*x3[i]
 	}
 }
