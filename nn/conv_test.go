@@ -1,7 +1,9 @@
 package nn
 
 import (
+	"encoding/json"
 	"fmt"
+	"os"
 	"testing"
 )
 
@@ -126,12 +128,34 @@ func TestConvCircularWraps(t *testing.T) {
 	want = []float64{20, 10, 0, 0, 0}
 	checkClose(t, "y zero", y, want, 0, 0)
 	// Even K pads the extra position on the right: K = 2, left pad 0, so
-	// y[i] = w0*x[i] + w1*x[i+1] [torch padding='same' convention, from memory;
-	// the torch fixtures with K = 8 confirm it].
+	// y[i] = w0*x[i] + w1*x[i+1] [torch padding='same' convention, checked by
+	// TestConvEvenKernelMatchesTorchSame].
 	c = Conv1D{In: 1, Out: 1, K: 2, Stride: 1, Length: 5, Border: Zero}
 	c.Forward(y, x, []float64{10, 20}, []float64{0}, 1)
 	want = []float64{10, 0, 0, 0, 0}
 	checkClose(t, "y even", y, want, 0, 0)
+}
+
+// torch 1.13 itself: F.conv1d(x, w, padding='same') equals conv1d after our
+// explicit pad of (K-1)/2 left and the rest right, for K = 2, 3, 8, 9
+// (testdata/nn/gen_nn.py, same_padding_matches in conv.json; exact to 1e-12).
+// This pins the even-K convention (extra position on the RIGHT) to torch.
+func TestConvEvenKernelMatchesTorchSame(t *testing.T) {
+	b, err := os.ReadFile("../testdata/nn/conv.json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var f struct {
+		SamePaddingMatches map[string]bool `json:"same_padding_matches"`
+	}
+	if err := json.Unmarshal(b, &f); err != nil {
+		t.Fatal(err)
+	}
+	for _, k := range []string{"K2", "K3", "K8", "K9"} {
+		if !f.SamePaddingMatches[k] {
+			t.Errorf("%s: torch padding='same' differs from the explicit pad (or is missing)", k)
+		}
+	}
 }
 
 func TestConvPanics(t *testing.T) {

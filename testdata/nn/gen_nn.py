@@ -54,6 +54,18 @@ def conv_case(name, rows, cin, cout, length, k, stride, border):
             "dx": flat(x.grad), "dw": flat(w.grad), "db": flat(b.grad)}
 
 
+def same_padding_check():
+    """torch's own padding='same' (stride 1) against our explicit asymmetric pad, for odd and even K."""
+    out = {}
+    for k in (2, 3, 8, 9):
+        x = torch.randn(2, 3, 17, dtype=DT)
+        w = torch.randn(4, 3, k, dtype=DT)
+        a = F.conv1d(x, w, padding="same")
+        b = F.conv1d(pad(x, k, "zero"), w)
+        out["K%d" % k] = bool(a.shape == b.shape and torch.allclose(a, b, rtol=0, atol=1e-12))
+    return out
+
+
 def conv_cases():
     return [
         conv_case("K3 S1 zero In1", 3, 1, 2, 11, 3, 1, "zero"),
@@ -164,14 +176,14 @@ def adam_cases():
     ]
 
 
-def write(path, cases):
+def write(path, cases, **extra):
     with open(path, "w") as f:
-        json.dump({"versions": versions(), "cases": cases}, f, separators=(",", ":"))
+        json.dump(dict({"versions": versions(), "cases": cases}, **extra), f, separators=(",", ":"))
         f.write("\n")
 
 
 if __name__ == "__main__":
     out = sys.argv[1] if len(sys.argv) > 1 else "testdata/nn"
-    write(out + "/conv.json", conv_cases())
+    write(out + "/conv.json", conv_cases(), same_padding_matches=same_padding_check())
     write(out + "/net.json", net_cases())
     write(out + "/adam.json", adam_cases())
