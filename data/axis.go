@@ -36,6 +36,9 @@ func (a Axis) Validate() error {
 	if !(a.Max > a.Min) {
 		return fmt.Errorf("data: axis.max %g must be greater than axis.min %g", a.Max, a.Min)
 	}
+	if math.IsInf(a.Max-a.Min, 0) {
+		return fmt.Errorf("data: axis range %g..%g is too wide to compute with", a.Min, a.Max)
+	}
 	if a.Bins < 0 {
 		return fmt.Errorf("data: axis.bins %d must be positive", a.Bins)
 	}

@@ -1,0 +1,175 @@
+package data
+
+import (
+	"bytes"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+func addFixtures(f *testing.F, suffixes ...string) {
+	ents, err := os.ReadDir(fixtureDir)
+	if err != nil {
+		f.Fatal(err)
+	}
+	for _, e := range ents {
+		for _, s := range suffixes {
+			if strings.HasSuffix(e.Name(), s) {
+				b, err := os.ReadFile(fixture(e.Name()))
+				if err != nil {
+					f.Fatal(err)
+				}
+				f.Add(b)
+			}
+		}
+	}
+}
+
+// FuzzReadNPY: any byte string gives a matrix or an error, never a panic,
+// and never more elements than the input has bytes (the size check happens
+// before allocation).
+func FuzzReadNPY(f *testing.F) {
+	addFixtures(f, ".npy")
+	f.Fuzz(func(t *testing.T, b []byte) {
+		m, err := readNPYMatrix(bytes.NewReader(b), int64(len(b)), "fuzz.npy")
+		if err == nil {
+			if m.Rows*m.Cols != len(m.Data) || len(m.Data) > len(b) {
+				t.Fatalf("matrix %dx%d with %d values from %d bytes", m.Rows, m.Cols, len(m.Data), len(b))
+			}
+		} else if !strings.Contains(err.Error(), "fuzz.npy") {
+			t.Fatalf("error %q does not name the file", err)
+		}
+		r, c, v, err64 := readNPY64(bytes.NewReader(b), int64(len(b)), "fuzz.npy")
+		if (err == nil) != (err64 == nil) {
+			t.Fatalf("float32 and float64 readers disagree: %v / %v", err, err64)
+		}
+		if err64 == nil {
+			if r != m.Rows || c != m.Cols {
+				t.Fatal("shapes disagree")
+			}
+			for i := range v {
+				if float32(v[i]) != m.Data[i] && !(math.IsNaN(v[i]) && m.Data[i] != m.Data[i]) {
+					t.Fatalf("value %d: %v vs %v", i, v[i], m.Data[i])
+				}
+			}
+		}
+	})
+}
+
+// FuzzReadNPZ: any file content gives arrays or errors naming the file.
+func FuzzReadNPZ(f *testing.F) {
+	addFixtures(f, ".npz")
+	dir := f.TempDir()
+	f.Fuzz(func(t *testing.T, b []byte) {
+		p := filepath.Join(dir, "fuzz.npz")
+		if err := os.WriteFile(p, b, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		for _, name := range []string{"", "resp", "stim"} {
+			m, err := ReadNPZ(p, name)
+			if err == nil && m.Rows*m.Cols != len(m.Data) {
+				t.Fatalf("matrix %dx%d with %d values", m.Rows, m.Cols, len(m.Data))
+			}
+			if err != nil && !strings.Contains(err.Error(), "fuzz.npz") {
+				t.Fatalf("error %q does not name the file", err)
+			}
+		}
+	})
+}
+
+// FuzzReadTable: any text gives a table or an error naming the file; every
+// column read either succeeds with one value per row or names the file.
+func FuzzReadTable(f *testing.F) {
+	addFixtures(f, ".csv", ".tsv")
+	f.Fuzz(func(t *testing.T, b []byte) {
+		for _, comma := range []rune{',', '\t'} {
+			tb, err := parseTable(b, "fuzz.csv", comma)
+			if err != nil {
+				if !strings.Contains(err.Error(), "fuzz.csv") {
+					t.Fatalf("error %q does not name the file", err)
+				}
+				continue
+			}
+			var named []string
+			for _, h := range tb.Header {
+				if h == "" {
+					continue
+				}
+				named = append(named, h)
+				v, err := tb.Column(h)
+				if err == nil && len(v) != tb.Len() {
+					t.Fatalf("column %q has %d values for %d rows", h, len(v), tb.Len())
+				}
+				if err != nil && !strings.Contains(err.Error(), "fuzz.csv") {
+					t.Fatalf("error %q does not name the file", err)
+				}
+				tb.IntColumn(h)
+			}
+			if m, err := tb.Columns(named); err == nil && (m.Rows != tb.Len() || m.Cols != len(named)) {
+				t.Fatal("Columns shape")
+			}
+		}
+	})
+}
+
+// FuzzAxisBin: for any valid axis and finite value, Bin, OneHot and Soft
+// agree: the bin is in range, it is the bin whose edges enclose the value
+// (after wrapping), one-hot has a single 1 there and the soft code is
+// non-negative and sums to 1.
+func FuzzAxisBin(f *testing.F) {
+	f.Add(0.0, 360.0, 6.0, 0, true, 359.9)
+	f.Add(0.0, 360.0, 0.0, 60, true, -0.1)
+	f.Add(0.0, 180.0, 0.0, 12, true, 720.5)
+	f.Add(0.0, 200.0, 0.0, 20, false, 200.0)
+	f.Add(0.0, 200.0, 10.0, 0, false, 200.1)
+	f.Add(-3.3, 7.1, 0.0, 7, true, -1e-20)
+	f.Add(-1e308, 1e308, 0.0, 3, true, 5.0)
+	f.Add(0.0, 1e-300, 0.0, 100000, false, 5e-301)
+	f.Fuzz(func(t *testing.T, lo, hi, width float64, bins int, periodic bool, v float64) {
+		a := Axis{Min: lo, Max: hi, BinWidth: width, Bins: bins, Periodic: periodic}
+		if a.Validate() != nil {
+			if _, err := a.Bin(v); err == nil {
+				t.Fatal("Bin on an invalid axis gave no error")
+			}
+			return
+		}
+		n := a.NumBins()
+		i, err := a.Bin(v)
+		inside := v >= lo && v <= hi
+		if err != nil {
+			if !math.IsNaN(v) && !math.IsInf(v, 0) && (periodic || inside) {
+				t.Fatalf("Bin(%v) on %+v: %v", v, a, err)
+			}
+			return
+		}
+		if i < 0 || i >= n {
+			t.Fatalf("Bin(%v) = %d outside [0, %d)", v, i, n)
+		}
+		if inside && v < hi {
+			e := a.Edges()
+			if !(e[i] <= v && (v < e[i+1] || (e[i+1] <= e[i]))) {
+				t.Fatalf("Bin(%v) = %d but edges are [%v, %v)", v, i, e[i], e[i+1])
+			}
+		}
+		hot := make([]float64, n)
+		soft := make([]float64, n)
+		if err := a.OneHot(hot, v); err != nil || hot[i] != 1 {
+			t.Fatalf("OneHot(%v): %v, hot[%d] = %v", v, err, i, hot[i])
+		}
+		if err := a.Soft(soft, v); err != nil {
+			t.Fatal(err)
+		}
+		sum := 0.0
+		for _, x := range soft {
+			if x < 0 || math.IsNaN(x) {
+				t.Fatalf("Soft(%v) has weight %v", v, x)
+			}
+			sum += x
+		}
+		if math.Abs(sum-1) > 1e-9 {
+			t.Fatalf("Soft(%v) sums to %v", v, sum)
+		}
+	})
+}
