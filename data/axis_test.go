@@ -163,9 +163,9 @@ func TestAxisSoft(t *testing.T) {
 	check(direction, 0, map[int]float64{59: 0.5, 0: 0.5})    // half way between 357 and 363 = 3: wraps
 	check(direction, 358.5, map[int]float64{59: 0.75, 0: 0.25})
 	check(direction, -1.5, map[int]float64{59: 0.75, 0: 0.25}) // -1.5 mod 360 = 358.5
-	track := Axis{Min: 0, Max: 200, Bins: 20}                   // centres 5, 15, ..., 195
-	check(track, 1, map[int]float64{0: 1})                      // below the first centre: clamped
-	check(track, 200, map[int]float64{19: 1})                   // above the last centre: clamped
+	track := Axis{Min: 0, Max: 200, Bins: 20}                  // centres 5, 15, ..., 195
+	check(track, 1, map[int]float64{0: 1})                     // below the first centre: clamped
+	check(track, 200, map[int]float64{19: 1})                  // above the last centre: clamped
 	check(track, 12.5, map[int]float64{0: 0.25, 1: 0.75})
 	if err := track.Soft(dst[:20], 201); err == nil {
 		t.Error("Soft outside the track: no error")
