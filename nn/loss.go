@@ -95,7 +95,8 @@ func MSE(dst, pred, target, weight []float64, rows, cols int) float64 {
 // single trials up to a constant that does not depend on the model
 // (METHODS.md §8).
 //
-// It panics as MSE does.
+// pred must be >= 0 (a Softplus or Exp output); a negative pred below -eps
+// gives NaN, which is returned, not a panic. It panics as MSE does.
 func Poisson(dst, pred, target, weight []float64, rows, cols int) float64 {
 	W := lossArgs("Poisson", dst, pred, target, weight, rows, cols)
 	scale := 1 / (W * float64(cols))

@@ -264,8 +264,10 @@ func (p *pool) release() {
 // Backward back-propagates dpred = dLoss/dpred [rows][Neurons] through the
 // whole network and ADDS the gradients of all parameters into n.Grads. It
 // uses the activations saved in w by the preceding Forward, which must have
-// had the same rows and the same parameters. It panics if there was no such
-// Forward or dpred is too short.
+// had the same rows and the same parameters. dpred must not be the slice
+// Forward returned (the saved predictions are needed here; compute the loss
+// gradient into a buffer of your own). It panics if there was no such
+// Forward, dpred is too short or dpred is the predictions slice.
 func (n *Net) Backward(w *Work, dpred []float64, rows int) {
 	n.checkWork(w, rows)
 	if !w.full || w.rows != rows {
@@ -273,6 +275,9 @@ func (n *Net) Backward(w *Work, dpred []float64, rows int) {
 	}
 	if len(dpred) < rows*n.Neurons {
 		panic(fmt.Sprintf("nn: dpred has %d values, want %d rows x %d neurons", len(dpred), rows, n.Neurons))
+	}
+	if &dpred[0] == &w.y[0] {
+		panic("nn: dpred shares memory with the predictions returned by Forward")
 	}
 	F := n.feat
 	p := w.pool
@@ -326,3 +331,4 @@ func (n *Net) BackwardFeatures(w *Work, dH []float64, rows int) {
 		}
 	}
 }
+

@@ -5,6 +5,7 @@ import (
 	"math"
 	"runtime"
 	"testing"
+	"time"
 )
 
 type netFixture struct {
@@ -331,6 +332,7 @@ func TestNetPanics(t *testing.T) {
 	n.Forward(w, x, 2)
 	wantPanic(t, "backward with other rows", func() { n.Backward(w, make([]float64, 6), 1) })
 	wantPanic(t, "short dpred", func() { n.Backward(w, make([]float64, 5), 2) })
+	wantPanic(t, "dpred aliases pred", func() { p := n.Forward(w, x, 2); n.Backward(w, p, 2) })
 	wantPanic(t, "foreign work", func() { NewNet(good).Forward(w, x, 2) })
 	wantPanic(t, "layer out of range", func() { n.ConvW(2) })
 	wantPanic(t, "NewWork 0", func() { n.NewWork(0) })
@@ -361,4 +363,27 @@ func TestStepAllocs(t *testing.T) {
 			t.Errorf("N %d: %v allocations per step, want 0", neurons, allocs)
 		}
 	}
+}
+
+// Worker goroutines of a dropped Work stop once it is garbage collected.
+func TestWorkWorkersStop(t *testing.T) {
+	old := runtime.GOMAXPROCS(2)
+	defer runtime.GOMAXPROCS(old)
+	n := NewNet(testShape(Identity, 600))
+	base := runtime.NumGoroutine()
+	for range 20 {
+		w := n.NewWork(4)
+		n.Forward(w, make([]float64, 4*n.In*n.Length), 4)
+	}
+	if runtime.NumGoroutine() < base+20 {
+		t.Fatalf("expected worker goroutines, have %d (base %d)", runtime.NumGoroutine(), base)
+	}
+	for range 100 {
+		runtime.GC()
+		if runtime.NumGoroutine() <= base+2 {
+			return
+		}
+		time.Sleep(10 * time.Millisecond)
+	}
+	t.Errorf("%d goroutines left after dropping 20 Works (base %d)", runtime.NumGoroutine(), base)
 }
