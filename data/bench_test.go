@@ -1,0 +1,127 @@
+package data
+
+import (
+	"fmt"
+	"math/rand/v2"
+	"path/filepath"
+	"testing"
+)
+
+// npySizes is the ladder for the .npy benchmarks, up to a 4600 x 24000
+// float32 recording (442 MB).
+var npySizes = []struct{ rows, cols int }{{100, 1000}, {1000, 4000}, {4600, 24000}}
+
+func benchFile(b *testing.B, rows, cols int, f64 bool) string {
+	b.Helper()
+	p := filepath.Join(b.TempDir(), "bench.npy")
+	if f64 {
+		d := make([]float64, rows*cols)
+		for i := range d {
+			d[i] = float64(i % 1000)
+		}
+		if err := WriteNPY64(p, []int{rows, cols}, d); err != nil {
+			b.Fatal(err)
+		}
+		return p
+	}
+	d := make([]float32, rows*cols)
+	for i := range d {
+		d[i] = float32(i % 1000)
+	}
+	if err := WriteNPY(p, []int{rows, cols}, d); err != nil {
+		b.Fatal(err)
+	}
+	return p
+}
+
+// BenchmarkReadNPY reads little-endian C-order float32 files (the direct
+// read path) from the page cache; MB/s via SetBytes.
+func BenchmarkReadNPY(b *testing.B) {
+	for _, s := range npySizes {
+		b.Run(fmt.Sprintf("f32_%dx%d", s.rows, s.cols), func(b *testing.B) {
+			if testing.Short() && s.rows*s.cols > 1e7 {
+				b.Skip("large file skipped in -short mode")
+			}
+			p := benchFile(b, s.rows, s.cols, false)
+			b.SetBytes(int64(4 * s.rows * s.cols))
+			b.ReportAllocs()
+			b.ResetTimer()
+			for i := 0; i < b.N; i++ {
+				if _, err := ReadNPY(p); err != nil {
+					b.Fatal(err)
+				}
+			}
+		})
+	}
+	// The chunked conversion path, for comparison.
+	b.Run("f64_1000x4000", func(b *testing.B) {
+		p := benchFile(b, 1000, 4000, true)
+		b.SetBytes(8 * 1000 * 4000)
+		b.ReportAllocs()
+		b.ResetTimer()
+		for i := 0; i < b.N; i++ {
+			if _, err := ReadNPY(p); err != nil {
+				b.Fatal(err)
+			}
+		}
+	})
+}
+
+func BenchmarkWriteNPY(b *testing.B) {
+	for _, s := range npySizes[:2] {
+		b.Run(fmt.Sprintf("f32_%dx%d", s.rows, s.cols), func(b *testing.B) {
+			d := make([]float32, s.rows*s.cols)
+			p := filepath.Join(b.TempDir(), "w.npy")
+			b.SetBytes(int64(4 * len(d)))
+			b.ReportAllocs()
+			for i := 0; i < b.N; i++ {
+				if err := WriteNPY(p, []int{s.rows, s.cols}, d); err != nil {
+					b.Fatal(err)
+				}
+			}
+		})
+	}
+}
+
+// BenchmarkCondStats accumulates all trials into 60 conditions.
+func BenchmarkCondStats(b *testing.B) {
+	for _, s := range []struct{ rows, cols int }{{1200, 400}, {4600, 2400}, {4600, 24000}} {
+		b.Run(fmt.Sprintf("%dx%d", s.rows, s.cols), func(b *testing.B) {
+			if testing.Short() && s.rows*s.cols > 1e7 {
+				b.Skip("large size skipped in -short mode")
+			}
+			y := NewMatrix(s.rows, s.cols)
+			rng := rand.New(rand.NewPCG(1, 2))
+			cond := make([]int, s.rows)
+			trials := make([]int, s.rows)
+			for t := range cond {
+				cond[t] = rng.IntN(60)
+				trials[t] = t
+			}
+			b.SetBytes(int64(4 * s.rows * s.cols))
+			b.ReportAllocs()
+			b.ResetTimer()
+			for i := 0; i < b.N; i++ {
+				NewCondStats(y, cond, trials, 60)
+			}
+		})
+	}
+}
+
+func BenchmarkHoldOutBlocked(b *testing.B) {
+	for _, T := range []int{1200, 4600} {
+		b.Run(fmt.Sprint(T), func(b *testing.B) {
+			cond := randomConds(T, 60, 2, 1)
+			blocks := make([]int, T)
+			for t := range blocks {
+				blocks[t] = t * 20 / T
+			}
+			b.ReportAllocs()
+			for i := 0; i < b.N; i++ {
+				if _, err := HoldOut(cond, blocks, 60, 0.2, uint64(i)); err != nil {
+					b.Fatal(err)
+				}
+			}
+		})
+	}
+}
