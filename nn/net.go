@@ -331,4 +331,3 @@ func (n *Net) BackwardFeatures(w *Work, dH []float64, rows int) {
 		}
 	}
 }
-
