@@ -2,11 +2,573 @@ package train
 
 import (
 	"context"
-	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"slices"
+	"time"
+
+	"gonum.org/v1/gonum/blas"
+	"gonum.org/v1/gonum/blas/blas64"
+	"gonum.org/v1/gonum/lapack/lapack64"
+
+	"stria/data"
+	"stria/nn"
 )
 
+// The projected solver (train.solver: projected) minimises exactly the
+// objective of the adam path on one-hot input with MSE and identity output,
+//
+//	J = 1/(W N) sum_b N_b sum_n (ybar_bn - f_bn)^2 + lambda/(2N) sum_n ||w_n||^2
+//	    (+ the within-condition constant, METHODS.md §8),
+//	f_bn = h_b . w_n + c_n,
+//
+// but by variable projection (Golub & Pereyra 1973, METHODS.md §8 [mem]):
+// for fixed filters the best readout is a weighted ridge solution in closed
+// form, so only the filters are optimised, on the projected loss.
+//
+// Letters: B bins (all conditions), Bt and Bv the bins present among the
+// training and the validation trials, F features, N neurons, W and Wv the
+// numbers of training and validation trials. p_b = N_b/W, D = diag(N_b).
+// For fixed features H (B x F) of the training rows [derived]:
+//
+//	hbar = sum_b p_b h_b,  A = D^1/2 (H - 1 hbar^T)              Bt x F
+//	mu = lambda W / 2,     K = A A^T + mu I                       Bt x Bt
+//	Yc = Ybar - 1 ybar^T   (ybar_n = sum_b p_b ybar_bn)           Bt x N
+//	S  = D^1/2 Yc Yc^T D^1/2                                      Bt x Bt
+//	w_n = A^T K^-1 D^1/2 yc_n,  c_n = ybar_n - hbar . w_n
+//	J  = (within + mu tr(K^-1 S)) / (W N)
+//	data part = (within + mu^2 tr(M)) / (W N),  M = K^-1 S K^-1
+//	dJ/dH_b = -(2 mu / (W N)) sqrt(N_b) (M A)_b   (envelope theorem)
+//
+// (A^T D^1/2 1 = 0, so K^-1 D^1/2 1 = D^1/2 1 / mu and the readout does not
+// change if Ybar is used uncentred.) S is computed once; every step then
+// costs O(Bt^2 F + Bt^3) and nothing per neuron. The validation loss of the
+// closed-form readout is also a B x B computation: with
+// Rk = (Hv - 1 hbar^T) A^T K^-1 (Bv x Bt) the centred validation prediction
+// is Rk D^1/2 Yc, so
+//
+//	sum_b Nv_b ||yvc_b - Rk_b D^1/2 Yc||^2
+//	  = sum_b Nv_b (||yvc_b||^2 - 2 Rk_b . (D^1/2 Yc yvc_b) + Rk_b S Rk_b^T),
+//
+// yvc_b the validation mean of bin b minus ybar. Only the median validation
+// R^2 needs a pass over the neurons (O(Bv Bt N)); see projector.r2Every.
+
+// projector holds the data of a projected fit reduced to B x B form, and
+// the scratch space of one evaluation. Shapes as in the comment above.
+type projector struct {
+	B, Bt, Bv, F, N int
+	rows, vrows     []int     // bins of the training and the validation rows
+	sq, pw          []float64 // Bt: sqrt(N_b), N_b / W
+	nv              []float64 // Bv: validation trials of each row
+	W, Wv, mu       float64
+	within, withinV float64 // within-condition sums of squares (all neurons)
+
+	yc    []float64 // Bt x N, centred training condition means
+	ymean []float64 // N, training mean of each neuron
+	S     []float64 // Bt x Bt
+	cvt   []float64 // Bv x Bt, row b: D^1/2 Yc yvc_b
+	yyv   []float64 // Bv, ||yvc_b||^2
+
+	// Validation R^2, per neuron (nil when there are no validation rows).
+	dv     []float64 // Bv x N, yvc
+	withN  []float64 // N, within-condition sum of squares on the validation trials
+	valTot []float64 // N, total sum of squares on the validation trials
+	// r2Every: the median validation R^2 is computed on every r2Every-th
+	// epoch (and on the first and last); other epochs log NaN. It is 1
+	// unless the recording is so large that the pass over the neurons
+	// would dominate a step.
+	r2Every int
+
+	work *nn.Work
+	eye  []float64 // B x B one-hot input
+
+	// Scratch.
+	hbar, hv            []float64 // F, Bv x F
+	a, ga, qt           []float64 // Bt x F
+	k, l, x, m          []float64 // Bt x Bt
+	rk, t               []float64 // Bv x Bt
+	dH                  []float64 // B x F
+	g                   []float64 // Bv x N
+	ssRes, r2           []float64 // N
+	nconv               int       // number of conv parameters (a prefix of Params)
+	obj, loss, val, vr2 float64   // results of the last eval
+}
+
+// projectedR2Budget bounds the multiply-adds per epoch spent on the median
+// validation R^2 (Bv Bt N); above it the R^2 is logged every few epochs.
+// 2e7 is about 5 ms on one core of the 2-core test machine.
+const projectedR2Budget = 2e7
+
+func newProjector(p *Prepared, net *nn.Net) (*projector, error) {
+	cfg := p.Cfg
+	if !(cfg.Model.ReadoutL2 > 0) {
+		return nil, fmt.Errorf("train.solver projected needs model.readout_l2 > 0 (it is %v): without a penalty the closed-form readout interpolates the condition means", cfg.Model.ReadoutL2)
+	}
+	B, N, F := p.NBins, p.Neurons(), net.Features()
+	pj := &projector{B: B, N: N, F: F}
+	st := data.NewCondStats(p.Rec.Y, p.Cond, p.Train, B)
+	for b, c := range st.Count {
+		if c > 0 {
+			pj.rows = append(pj.rows, b)
+		}
+	}
+	Bt := len(pj.rows)
+	if Bt == 0 {
+		return nil, fmt.Errorf("train: no training trials")
+	}
+	pj.Bt = Bt
+	pj.W = float64(len(p.Train))
+	pj.mu = cfg.Model.ReadoutL2 * pj.W / 2
+	pj.sq, pj.pw = make([]float64, Bt), make([]float64, Bt)
+	for r, b := range pj.rows {
+		c := float64(st.Count[b])
+		pj.sq[r], pj.pw[r] = math.Sqrt(c), c/pj.W
+	}
+	// Training means, their weighted mean and the within sum of squares,
+	// in the trainer's (possibly z-scored) units z = (y - mu) * inv: a
+	// centred mean scales by inv, a sum of squared deviations by inv^2.
+	mu, inv := make([]float64, N), make([]float64, N)
+	for n := range mu {
+		mu[n], inv[n] = p.zscore(n)
+	}
+	pj.ymean = make([]float64, N)
+	pj.yc = make([]float64, Bt*N)
+	for r, b := range pj.rows {
+		c := float64(st.Count[b])
+		sum, sq := st.Sum[b*N:(b+1)*N], st.SumSq[b*N:(b+1)*N]
+		yc := pj.yc[r*N : (r+1)*N]
+		for n, s := range sum {
+			m := s / c
+			yc[n] = m
+			pj.within += (sq[n] - s*m) * inv[n] * inv[n]
+			pj.ymean[n] += s
+		}
+	}
+	for n := range pj.ymean {
+		pj.ymean[n] /= pj.W
+	}
+	for r := 0; r < Bt; r++ {
+		yc := pj.yc[r*N : (r+1)*N]
+		for n, m := range pj.ymean {
+			yc[n] = (yc[n] - m) * inv[n]
+		}
+	}
+	st = nil
+	pj.S = make([]float64, Bt*Bt)
+	blas64.Gemm(blas.NoTrans, blas.Trans, 1, gen(pj.yc, Bt, N), gen(pj.yc, Bt, N), 0, gen(pj.S, Bt, Bt))
+	for i := 0; i < Bt; i++ {
+		for j := 0; j < Bt; j++ {
+			pj.S[i*Bt+j] *= pj.sq[i] * pj.sq[j]
+		}
+	}
+
+	if len(p.Val) > 0 {
+		sv := data.NewCondStats(p.Rec.Y, p.Cond, p.Val, B)
+		for b, c := range sv.Count {
+			if c > 0 {
+				pj.vrows = append(pj.vrows, b)
+			}
+		}
+		Bv := len(pj.vrows)
+		pj.Bv = Bv
+		pj.Wv = float64(len(p.Val))
+		pj.nv = make([]float64, Bv)
+		pj.dv = make([]float64, Bv*N)
+		pj.withN = make([]float64, N)
+		pj.valTot = make([]float64, N)
+		grand := make([]float64, N)
+		for r, b := range pj.vrows {
+			c := float64(sv.Count[b])
+			pj.nv[r] = c
+			sum, sq := sv.Sum[b*N:(b+1)*N], sv.SumSq[b*N:(b+1)*N]
+			d := pj.dv[r*N : (r+1)*N]
+			for n, s := range sum {
+				m := s / c
+				d[n] = (m - pj.ymean[n]) * inv[n]
+				pj.withN[n] += sq[n] - s*m
+				pj.valTot[n] += sq[n]
+				grand[n] += s
+			}
+		}
+		for n, w := range pj.withN {
+			i2 := inv[n] * inv[n]
+			pj.withN[n] = w * i2
+			pj.withinV += w * i2
+			pj.valTot[n] = (pj.valTot[n] - grand[n]*grand[n]/pj.Wv) * i2
+		}
+		pj.yyv = make([]float64, Bv)
+		for r := range pj.yyv {
+			d := pj.dv[r*N : (r+1)*N]
+			var s float64
+			for _, v := range d {
+				s += v * v
+			}
+			pj.yyv[r] = s
+		}
+		pj.cvt = make([]float64, Bv*Bt)
+		blas64.Gemm(blas.NoTrans, blas.Trans, 1, gen(pj.dv, Bv, N), gen(pj.yc, Bt, N), 0, gen(pj.cvt, Bv, Bt))
+		for r := 0; r < Bv; r++ {
+			for c := 0; c < Bt; c++ {
+				pj.cvt[r*Bt+c] *= pj.sq[c]
+			}
+		}
+		pj.r2Every = max(1, int(math.Ceil(float64(Bv)*float64(Bt)*float64(N)/projectedR2Budget)))
+		pj.g = make([]float64, Bv*N)
+		pj.ssRes = make([]float64, N)
+		pj.r2 = make([]float64, N)
+		pj.hv = make([]float64, Bv*F)
+		pj.rk = make([]float64, Bv*Bt)
+		pj.t = make([]float64, Bv*Bt)
+	}
+
+	for n, m := range pj.ymean {
+		pj.ymean[n] = (m - mu[n]) * inv[n]
+	}
+	pj.work = net.NewWork(B)
+	pj.eye = make([]float64, B*B)
+	for b := 0; b < B; b++ {
+		pj.eye[b*B+b] = 1
+	}
+	pj.hbar = make([]float64, F)
+	pj.a = make([]float64, Bt*F)
+	pj.ga = make([]float64, Bt*F)
+	pj.qt = make([]float64, Bt*F)
+	pj.k = make([]float64, Bt*Bt)
+	pj.l = make([]float64, Bt*Bt)
+	pj.x = make([]float64, Bt*Bt)
+	pj.m = make([]float64, Bt*Bt)
+	pj.dH = make([]float64, B*F)
+	pj.nconv = len(net.Params) - N*F - N
+	return pj, nil
+}
+
+// gen wraps a row-major r x c slice as a blas64.General.
+func gen(v []float64, r, c int) blas64.General {
+	return blas64.General{Rows: r, Cols: c, Stride: c, Data: v[:r*c]}
+}
+
+// features runs the conv stack on every bin and forms hbar and A.
+func (pj *projector) features(net *nn.Net) []float64 {
+	F := pj.F
+	h := net.ForwardFeatures(pj.work, pj.eye, pj.B)
+	clear(pj.hbar)
+	for r, b := range pj.rows {
+		w := pj.pw[r]
+		for f, v := range h[b*F : (b+1)*F] {
+			pj.hbar[f] += w * v
+		}
+	}
+	for r, b := range pj.rows {
+		s := pj.sq[r]
+		a := pj.a[r*F : (r+1)*F]
+		for f, v := range h[b*F : (b+1)*F] {
+			a[f] = s * (v - pj.hbar[f])
+		}
+	}
+	return h
+}
+
+// factor forms K = A A^T + mu I and its Cholesky factor. It returns false
+// if K is not numerically positive definite (only possible with NaN or Inf
+// features).
+func (pj *projector) factor() (blas64.Triangular, bool) {
+	Bt := pj.Bt
+	blas64.Gemm(blas.NoTrans, blas.Trans, 1, gen(pj.a, Bt, pj.F), gen(pj.a, Bt, pj.F), 0, gen(pj.k, Bt, Bt))
+	for i := 0; i < Bt; i++ {
+		pj.k[i*Bt+i] += pj.mu
+	}
+	copy(pj.l, pj.k)
+	return lapack64.Potrf(blas64.Symmetric{Uplo: blas.Lower, N: Bt, Stride: Bt, Data: pj.l})
+}
+
+// solveLeft overwrites b (Bt x cols) with K^-1 b.
+func solveLeft(l blas64.Triangular, b blas64.General) {
+	blas64.Trsm(blas.Left, blas.NoTrans, 1, l, b)
+	blas64.Trsm(blas.Left, blas.Trans, 1, l, b)
+}
+
+// solveRight overwrites b (rows x Bt) with b K^-1.
+func solveRight(l blas64.Triangular, b blas64.General) {
+	blas64.Trsm(blas.Right, blas.Trans, 1, l, b)
+	blas64.Trsm(blas.Right, blas.NoTrans, 1, l, b)
+}
+
+// eval computes, at the net's current filters, the projected objective
+// (pj.obj, penalty included), the training data loss (pj.loss), the
+// validation loss (pj.val) and, if r2, the median validation R^2 (pj.vr2,
+// NaN otherwise), all in the units of EpochLog. With grad it also
+// overwrites the conv gradients in net.Grads with dJ/dtheta (the readout
+// part of net.Grads is not touched). It allocates nothing.
+func (pj *projector) eval(net *nn.Net, grad, r2 bool) error {
+	Bt, F, N := pj.Bt, pj.F, float64(pj.N)
+	h := pj.features(net)
+	l, ok := pj.factor()
+	if !ok {
+		return fmt.Errorf("train: projected solver: the features are not finite")
+	}
+	// X = K^-1 S, M = X K^-1.
+	copy(pj.x, pj.S)
+	solveLeft(l, gen(pj.x, Bt, Bt))
+	copy(pj.m, pj.x)
+	solveRight(l, gen(pj.m, Bt, Bt))
+	var trX, trM float64
+	for i := 0; i < Bt; i++ {
+		trX += pj.x[i*Bt+i]
+		trM += pj.m[i*Bt+i]
+	}
+	scale := 1 / (pj.W * N)
+	pj.obj = (pj.within + pj.mu*trX) * scale
+	pj.loss = (pj.within + pj.mu*pj.mu*trM) * scale
+	if grad {
+		blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(pj.m, Bt, Bt), gen(pj.a, Bt, F), 0, gen(pj.ga, Bt, F))
+		clear(pj.dH)
+		c := -2 * pj.mu * scale
+		for r, b := range pj.rows {
+			s := c * pj.sq[r]
+			d := pj.dH[b*F : (b+1)*F]
+			for f, v := range pj.ga[r*F : (r+1)*F] {
+				d[f] = s * v
+			}
+		}
+		clear(net.Grads[:pj.nconv])
+		net.BackwardFeatures(pj.work, pj.dH, pj.B)
+	}
+	pj.val, pj.vr2 = math.NaN(), math.NaN()
+	if pj.Bv == 0 {
+		return nil
+	}
+	Bv := pj.Bv
+	for r, b := range pj.vrows {
+		hv := pj.hv[r*F : (r+1)*F]
+		for f, v := range h[b*F : (b+1)*F] {
+			hv[f] = v - pj.hbar[f]
+		}
+	}
+	rk := gen(pj.rk, Bv, Bt)
+	blas64.Gemm(blas.NoTrans, blas.Trans, 1, gen(pj.hv, Bv, F), gen(pj.a, Bt, F), 0, rk)
+	solveRight(l, rk)
+	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, rk, gen(pj.S, Bt, Bt), 0, gen(pj.t, Bv, Bt))
+	sum := pj.withinV
+	for r := 0; r < Bv; r++ {
+		rr := pj.rk[r*Bt : (r+1)*Bt]
+		var cross, quad float64
+		for c, v := range rr {
+			cross += v * pj.cvt[r*Bt+c]
+			quad += v * pj.t[r*Bt+c]
+		}
+		sum += pj.nv[r] * (pj.yyv[r] - 2*cross + quad)
+	}
+	pj.val = sum / (pj.Wv * N)
+	if r2 {
+		pj.vr2 = pj.valR2()
+	}
+	return nil
+}
+
+// valR2 returns the median over neurons of the validation R^2 of the
+// closed-form readout, from pj.rk of the last eval: the centred
+// validation prediction is G = Rk D^1/2 Yc (Bv x N) and the residual sum of
+// squares of neuron n is within_n + sum_b Nv_b (yvc_bn - G_bn)^2.
+func (pj *projector) valR2() float64 {
+	Bv, Bt, N := pj.Bv, pj.Bt, pj.N
+	for r := 0; r < Bv; r++ {
+		for c := 0; c < Bt; c++ {
+			pj.t[r*Bt+c] = pj.rk[r*Bt+c] * pj.sq[c]
+		}
+	}
+	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(pj.t, Bv, Bt), gen(pj.yc, Bt, N), 0, gen(pj.g, Bv, N))
+	copy(pj.ssRes, pj.withN)
+	for r := 0; r < Bv; r++ {
+		w := pj.nv[r]
+		g, d := pj.g[r*N:(r+1)*N], pj.dv[r*N:(r+1)*N]
+		ss := pj.ssRes[:len(g)]
+		for n, v := range g {
+			e := d[n] - v
+			ss[n] += w * e * e
+		}
+	}
+	k := 0
+	for n, ss := range pj.ssRes {
+		if pj.valTot[n] > 0 {
+			pj.r2[k] = 1 - ss/pj.valTot[n]
+			k++
+		}
+	}
+	return median(pj.r2[:k])
+}
+
+// readout writes the closed-form readout of the net's current filters into
+// the net: w_n = A^T K^-1 D^1/2 yc_n (all N x F weights in one matrix
+// product, parallel and deterministic in gonum's Gemm), c_n = ybar_n -
+// hbar . w_n.
+func (pj *projector) readout(net *nn.Net) error {
+	Bt, F, N := pj.Bt, pj.F, pj.N
+	pj.features(net)
+	l, ok := pj.factor()
+	if !ok {
+		return fmt.Errorf("train: projected solver: the features are not finite")
+	}
+	copy(pj.qt, pj.a)
+	solveLeft(l, gen(pj.qt, Bt, F))
+	for r := 0; r < Bt; r++ {
+		s := pj.sq[r]
+		q := pj.qt[r*F : (r+1)*F]
+		for f := range q {
+			q[f] *= s
+		}
+	}
+	w := net.ReadW()
+	blas64.Gemm(blas.Trans, blas.NoTrans, 1, gen(pj.yc, Bt, N), gen(pj.qt, Bt, F), 0, gen(w, N, F))
+	v := make([]float64, Bt)
+	blas64.Gemv(blas.NoTrans, 1, gen(pj.qt, Bt, F), blas64.Vector{N: F, Inc: 1, Data: pj.hbar}, 0, blas64.Vector{N: Bt, Inc: 1, Data: v})
+	c := net.ReadB()
+	copy(c, pj.ymean)
+	blas64.Gemv(blas.Trans, -1, gen(pj.yc, Bt, N), blas64.Vector{N: Bt, Inc: 1, Data: v}, 1, blas64.Vector{N: N, Inc: 1, Data: c})
+	return nil
+}
+
+// initConv draws the conv parameters exactly as nn.Net.Init does (uniform
+// on [-1/sqrt(In K), 1/sqrt(In K)), in the order of Params), so that the
+// projected and the adam path start from the same filters, without drawing
+// (and touching) the N x F readout.
+func initConv(net *nn.Net, rng *rand.Rand) {
+	for l := range net.Convs {
+		c := net.Conv(l)
+		bound := 1 / math.Sqrt(float64(c.In*c.K))
+		for _, dst := range [][]float64{net.ConvW(l), net.ConvB(l)} {
+			for i := range dst {
+				dst[i] = bound * (2*rng.Float64() - 1)
+			}
+		}
+	}
+}
+
 // fitProjected trains with the closed-form readout (METHODS.md §8,
-// variable projection).
+// variable projection; see the comment at the top of this file). Only the
+// filters (conv weights and biases) are optimised, with Adam and the
+// config's train settings, on the projected objective; each epoch is one
+// full-batch step. Early stopping uses the validation loss of the
+// closed-form readout, as the adam path uses its own; the best filters are
+// kept and the readout of all neurons is computed once at the end.
+//
+// The logged TrainLoss is the training data loss before the epoch's step,
+// ValLoss and ValR2 the validation loss and median R^2 after it, as on the
+// adam path; ValR2 is NaN on epochs skipped by projector.r2Every (never on
+// the first and the best epoch).
+//
+// A Checkpoint of this solver holds only the conv parameters in Params,
+// Best, M and V (the readout is re-derived from the filters) and no random
+// state.
 func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
-	return nil, errors.New("train.solver projected: not implemented yet")
+	cfg := p.Cfg
+	net := nn.NewNet(cfg.Shape(p.NBins, p.Neurons()))
+	initConv(net, rand.New(rand.NewPCG(cfg.Seed, 0x1417)))
+	pj, err := newProjector(p, net)
+	if err != nil {
+		return nil, err
+	}
+	nc := pj.nconv
+	params, grads := net.Params[:nc], net.Grads[:nc]
+	opt := nn.NewAdam(nc)
+	tc := cfg.Train
+	opt.LR, opt.Beta1, opt.Beta2, opt.Eps = tc.LearningRate, tc.Beta1, tc.Beta2, tc.Epsilon
+	opt.WeightDecay = tc.WeightDecay
+	opt.Decoupled = tc.Optimizer == "adamw"
+
+	st := Checkpoint{BestVal: math.Inf(1)}
+	if resume != nil {
+		if len(resume.Params) != nc || len(resume.M) != nc || len(resume.V) != nc {
+			return nil, fmt.Errorf("checkpoint has %d parameters, the projected solver of this config has %d filter parameters: was the config changed?", len(resume.Params), nc)
+		}
+		st = *resume
+		copy(params, st.Params)
+		opt.M, opt.V, opt.T = slices.Clone(st.M), slices.Clone(st.V), st.T
+	}
+	start := time.Now()
+	offset := 0.0
+	if n := len(st.Log); n > 0 {
+		offset = st.Log[n-1].Seconds
+	}
+	snapshot := func() *Checkpoint {
+		c := st
+		c.Params = slices.Clone(params)
+		c.M, c.V, c.T = slices.Clone(opt.M), slices.Clone(opt.V), opt.T
+		c.Best = slices.Clone(st.Best)
+		c.Log = slices.Clone(st.Log)
+		c.RNG = nil
+		return &c
+	}
+	var first float64
+	if len(st.Log) > 0 {
+		first = st.Log[0].TrainLoss
+	}
+	if err := pj.eval(net, true, false); err != nil {
+		return nil, err
+	}
+	stop := "max_epochs"
+	for st.Epoch < tc.MaxEpochs {
+		if err := ctx.Err(); err != nil {
+			if hooks.Checkpoint != nil {
+				if cerr := hooks.Checkpoint(snapshot()); cerr != nil {
+					return nil, cerr
+				}
+			}
+			return nil, fmt.Errorf("%w after epoch %d", ErrInterrupted, st.Epoch)
+		}
+		loss := pj.loss
+		opt.Step(params, grads)
+		st.Epoch++
+		if st.Epoch == 1 {
+			first = loss
+		}
+		if math.IsNaN(loss) || math.IsInf(loss, 0) || loss > 1e6*(first+1e-12) {
+			return nil, fmt.Errorf("training diverged at epoch %d (loss %g, first epoch %g): try a smaller train.learning_rate (now %g)",
+				st.Epoch, loss, first, tc.LearningRate)
+		}
+		r2 := st.Epoch == 1 || st.Epoch%pj.r2Every == 0
+		if err := pj.eval(net, true, r2); err != nil {
+			return nil, fmt.Errorf("%w at epoch %d: try a smaller train.learning_rate (now %g)", err, st.Epoch, tc.LearningRate)
+		}
+		e := EpochLog{Epoch: st.Epoch, TrainLoss: loss, ValLoss: pj.val, ValR2: pj.vr2, Seconds: offset + time.Since(start).Seconds()}
+		if pj.Bv == 0 {
+			// No validation trials: stop on the training objective.
+			e.ValLoss = pj.obj
+		}
+		st.Log = append(st.Log, e)
+		if e.ValLoss < st.BestVal {
+			st.BestVal, st.BestEpoch, st.Since = e.ValLoss, st.Epoch, 0
+			st.Best = append(st.Best[:0], params...)
+		} else {
+			st.Since++
+		}
+		if hooks.OnEpoch != nil {
+			hooks.OnEpoch(e)
+		}
+		if st.Since >= tc.Patience {
+			stop = "patience"
+			break
+		}
+		if hooks.Checkpoint != nil && st.Epoch%tc.CheckpointEvery == 0 {
+			if err := hooks.Checkpoint(snapshot()); err != nil {
+				return nil, err
+			}
+		}
+	}
+	if st.Best != nil {
+		copy(params, st.Best)
+	}
+	// The best epoch always carries its R^2, even when r2Every skipped it.
+	for i := range st.Log {
+		if e := &st.Log[i]; e.Epoch == st.BestEpoch && math.IsNaN(e.ValR2) && pj.Bv > 0 {
+			if err := pj.eval(net, false, true); err != nil {
+				return nil, err
+			}
+			e.ValR2 = pj.vr2
+		}
+	}
+	if err := pj.readout(net); err != nil {
+		return nil, err
+	}
+	return &Fitted{Net: net, Log: st.Log, BestEpoch: st.BestEpoch, Stop: stop}, nil
 }
