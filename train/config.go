@@ -27,6 +27,8 @@ type Config struct {
 	Split SplitConfig `yaml:"split"`
 	Model ModelConfig `yaml:"model"`
 	Train TrainConfig `yaml:"train"`
+	// Compare lists the models of stria compare.
+	Compare CompareConfig `yaml:"compare"`
 	// Output is the run folder written by stria fit.
 	Output string `yaml:"output"`
 
@@ -141,7 +143,8 @@ func Defaults() Config {
 			CheckpointEvery: 100,
 			Solver:          "adam",
 		},
-		Output: "runs/fit",
+		Compare: CompareConfig{Starts: 3, SmoothLambda: 2, Output: "runs/compare"},
+		Output:  "runs/fit",
 	}
 }
 
@@ -172,7 +175,7 @@ func LoadConfig(path string) (*Config, error) {
 // folder works from anywhere.
 func (c *Config) resolvePaths() {
 	d := &c.Data
-	for _, p := range []*string{&d.Responses, &d.Stimulus, &d.Condition, &d.Block, &c.Output} {
+	for _, p := range []*string{&d.Responses, &d.Stimulus, &d.Condition, &d.Block, &c.Output, &c.Compare.Output} {
 		*p = c.Resolve(*p)
 	}
 }
@@ -234,6 +237,10 @@ func sectionOf(typ string) string {
 		return "model.layers[]"
 	case "TrainConfig":
 		return "train"
+	case "CompareConfig":
+		return "compare"
+	case "EncoderSpec":
+		return "compare.encoders[]"
 	}
 	return ""
 }
@@ -415,6 +422,12 @@ func (c *Config) Validate() error {
 	}
 	if t.Threads < 0 {
 		bad("train.threads %d: want 0 (all cores) or more", t.Threads)
+	}
+	if c.Compare.Starts < 1 {
+		bad("compare.starts %d: want at least 1", c.Compare.Starts)
+	}
+	if !(c.Compare.SmoothLambda >= 0) {
+		bad("compare.smooth_lambda %v: want a value >= 0", c.Compare.SmoothLambda)
 	}
 	if c.Output == "" {
 		bad("output: no run folder given (set it in the config or with --out)")

@@ -110,3 +110,51 @@ func TestLoadConfigResolvesPaths(t *testing.T) {
 		t.Errorf("paths: %q %q %q", cfg.Data.Responses, cfg.Data.Stimulus, cfg.Output)
 	}
 }
+
+func TestSpecsGrid(t *testing.T) {
+	src := `data: {responses: r.npy}
+axis: {min: 0, max: 360, periodic: true, bin_width: 30}
+compare:
+  encoders:
+    - name: enc
+      grid:
+        readout_l2: [0.1, 1]
+        channels: [2, 4]
+    - name: small
+      layers: [{channels: 2, kernel: 3}]
+  baselines: [condmean, vonmises]
+`
+	cfg, err := ParseConfig([]byte(src), "c.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	specs, err := cfg.Specs()
+	if err != nil {
+		t.Fatal(err)
+	}
+	var names []string
+	for _, s := range specs {
+		names = append(names, s.Name)
+	}
+	// Grid keys expand in sorted order (channels before readout_l2).
+	want := []string{"enc[channels=2,readout_l2=0.1]", "enc[channels=2,readout_l2=1]", "enc[channels=4,readout_l2=0.1]",
+		"enc[channels=4,readout_l2=1]", "small", "condmean", "vonmises"}
+	if strings.Join(names, " ") != strings.Join(want, " ") {
+		t.Fatalf("specs %v, want %v", names, want)
+	}
+	if specs[2].Cfg.Model.Layers[0].Channels != 4 || specs[2].Cfg.Model.ReadoutL2 != 0.1 || specs[4].Cfg.Model.Layers[0].Kernel != 3 {
+		t.Errorf("grid values not applied: %+v / %+v", specs[2].Cfg.Model, specs[4].Cfg.Model)
+	}
+	if cfg.Model.Layers[0].Channels != 8 {
+		t.Error("expanding the grid changed the base config")
+	}
+	cfg.Compare.Encoders[0].Grid["kernal"] = []float64{3}
+	if _, err := cfg.Specs(); err == nil || !strings.Contains(err.Error(), `unknown key "kernal"`) {
+		t.Errorf("misspelt grid key: %v", err)
+	}
+	delete(cfg.Compare.Encoders[0].Grid, "kernal")
+	cfg.Compare.Baselines = []string{"gaussian"}
+	if _, err := cfg.Specs(); err == nil {
+		t.Error("gaussian accepted on a periodic axis")
+	}
+}

@@ -223,8 +223,8 @@ func Summarize(scores []eval.Scores, excluded map[int]string) Summary {
 	return s
 }
 
-// excludedNeurons maps constant neurons to the reason they are excluded.
-func excludedNeurons(p *Prepared) map[int]string {
+// ExcludedNeurons maps constant neurons to the reason they are excluded.
+func ExcludedNeurons(p *Prepared) map[int]string {
 	ex := map[int]string{}
 	for _, j := range p.Report.Constant {
 		ex[j] = "constant response over all trials"
@@ -352,7 +352,7 @@ func WriteRun(dir string, p *Prepared, f *Fitted, scores []eval.Scores, wall tim
 	if err := WriteJSON(filepath.Join(dir, FileSplit), SplitInfo{Train: p.Train, Val: p.Val, Test: p.Test, Cond: p.Cond}); err != nil {
 		return nil, err
 	}
-	ex := excludedNeurons(p)
+	ex := ExcludedNeurons(p)
 	if err := writeMetrics(filepath.Join(dir, FileMetrics), p, scores, ex); err != nil {
 		return nil, err
 	}

@@ -30,6 +30,7 @@ func newApp() *cli.App {
 			inspectCommand(),
 			fitCommand(),
 			predictCommand(),
+			compareCommand(),
 		},
 	}
 }

@@ -66,6 +66,7 @@ axis:
 split:
   test_fraction: 0.2
   validation_fraction: 0.1
+  folds: 5
   keep_blocks: false
   zscore: true               # per neuron, from the training trials only
 model:
@@ -82,6 +83,16 @@ train:
   learning_rate: 0.01
   max_epochs: 3000
   patience: 100
+compare:
+  # the encoder above, one with half the channels, and the default baselines
+  encoders:
+    - name: encoder
+    - name: encoder-4ch
+      layers:
+        - channels: 4
+          kernel: 9
+  starts: 3
+  output: compare
 output: run
 `
 
@@ -165,6 +176,10 @@ func runDemo(ctx context.Context, stdout, stderr io.Writer, o demoOptions) error
 	}
 	fmt.Fprintf(stdout, "\n== stria fit --config %s\n", cfgPath)
 	if _, err := runFit(ctx, cfg, fitOptions{quiet: o.quiet, stdout: stdout, stderr: stderr}); err != nil {
+		return err
+	}
+	fmt.Fprintf(stdout, "\n== stria compare --config %s\n", cfgPath)
+	if _, err := runCompare(ctx, cfg, stdout, stderr, o.quiet); err != nil {
 		return err
 	}
 	return nil

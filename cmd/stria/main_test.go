@@ -28,7 +28,7 @@ func runCLI(t *testing.T, args ...string) (string, error) {
 // predicts from it.
 func TestDemoEndToEnd(t *testing.T) {
 	dir := t.TempDir()
-	out, err := runCLI(t, "demo", "--out", dir, "--neurons", "60", "--trials", "600", "--quiet")
+	out, err := runCLI(t, "demo", "--out", dir, "--neurons", "60", "--trials", "1200", "--quiet")
 	if err != nil {
 		t.Fatalf("demo: %v\n%s", err, out)
 	}
@@ -76,6 +76,25 @@ func TestDemoEndToEnd(t *testing.T) {
 	filters, err := data.ReadNPY(filepath.Join(run, train.FileFilters))
 	if err != nil || filters.Rows != 8 || filters.Cols != 9 {
 		t.Errorf("filters.npy: %v, %+v", err, filters)
+	}
+
+	// The comparison folder.
+	cmpDir := filepath.Join(dir, "compare")
+	for _, f := range []string{train.FileScores, train.FileCmpSummary, train.FilePairs, train.FileComparison, train.FileDescriptors, "curves/condmean.npy"} {
+		if st, err := os.Stat(filepath.Join(cmpDir, f)); err != nil || st.Size() == 0 {
+			t.Errorf("comparison folder: %s missing or empty (%v)", f, err)
+		}
+	}
+	sc, _ := os.ReadFile(filepath.Join(cmpDir, train.FileScores))
+	if !strings.HasPrefix(string(sc), "model,fold,neuron,test_r2,test_r,explainable_fraction,fev,") || !strings.Contains(string(sc), "cc_norm") {
+		t.Errorf("scores.csv header: %.100s", sc)
+	}
+	// 5 folds x 60 neurons x (2 encoders + 4 baselines) rows and a header.
+	if got := strings.Count(string(sc), "\n"); got != 1+5*60*6 {
+		t.Errorf("scores.csv has %d lines, want %d", got, 1+5*60*6)
+	}
+	if !strings.Contains(out, "best median cc_norm") || !strings.Contains(out, "Wilcoxon") {
+		t.Error("compare output lacks the winners or the test")
 	}
 
 	// The resolved config in the run folder refits to the same numbers.
