@@ -196,7 +196,12 @@ func TestDivergenceStops(t *testing.T) {
 //     and remove noise that a per-bin average keeps.
 func TestDemoRecovery(t *testing.T) {
 	demoL2 := 1.0
-	p, truth := synthPrepared(t, 200, 1200, func(c *Config) { c.Train.MaxEpochs = 3000; c.Train.Patience = 100; c.Model.ReadoutL2 = demoL2; c.Split.ZScore = false })
+	p, truth := synthPrepared(t, 200, 1200, func(c *Config) {
+		c.Train.MaxEpochs = 3000
+		c.Train.Patience = 100
+		c.Model.ReadoutL2 = demoL2
+		c.Split.ZScore = false
+	})
 	f, err := Fit(context.Background(), p, Hooks{}, nil)
 	if err != nil {
 		t.Fatal(err)

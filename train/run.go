@@ -142,19 +142,19 @@ func borderName(b nn.Border) string {
 
 // Summary is summary.json.
 type Summary struct {
-	Neurons     int                     `json:"neurons"`
-	Scored      int                     `json:"neurons_scored"`
-	Excluded    int                     `json:"neurons_excluded"`
-	NoSignal    int                     `json:"neurons_no_signal_power"`
-	Medians     map[string]Num          `json:"medians"`
-	Spread      map[string]Spread       `json:"spread"`
-	TestTrials  int                     `json:"test_trials"`
-	BestEpoch   int                     `json:"best_epoch"`
-	Epochs      int                     `json:"epochs"`
-	Stop        string                  `json:"stop"`
-	WallSeconds float64                 `json:"wall_seconds"`
-	Cautions    []string                `json:"cautions"`
-	Warnings    []string                `json:"warnings"`
+	Neurons     int               `json:"neurons"`
+	Scored      int               `json:"neurons_scored"`
+	Excluded    int               `json:"neurons_excluded"`
+	NoSignal    int               `json:"neurons_no_signal_power"`
+	Medians     map[string]Num    `json:"medians"`
+	Spread      map[string]Spread `json:"spread"`
+	TestTrials  int               `json:"test_trials"`
+	BestEpoch   int               `json:"best_epoch"`
+	Epochs      int               `json:"epochs"`
+	Stop        string            `json:"stop"`
+	WallSeconds float64           `json:"wall_seconds"`
+	Cautions    []string          `json:"cautions"`
+	Warnings    []string          `json:"warnings"`
 }
 
 // Num is a float64 that writes NaN and infinities as JSON null.
