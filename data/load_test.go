@@ -67,3 +67,19 @@ func TestLoadErrors(t *testing.T) {
 		}
 	}
 }
+
+func TestReadIntVector(t *testing.T) {
+	// rec.npz cond = [0 1 2 3 0 1] (int64, gen_npy.py); rec.csv block = 0,0,1,1.
+	v, err := ReadIntVector(fixture("rec.npz"), "cond")
+	if err != nil || len(v) != 6 || v[3] != 3 || v[5] != 1 {
+		t.Errorf("npz: %v, %v", v, err)
+	}
+	v, err = ReadIntVector(fixture("rec.csv"), "block")
+	if err != nil || len(v) != 4 || v[2] != 1 {
+		t.Errorf("csv: %v, %v", v, err)
+	}
+	_, err = ReadIntVector(fixture("stim_1d.npy"), "")
+	if err == nil || !strings.Contains(err.Error(), "5.999 at trial 1 (0-based) is not a whole number") {
+		t.Errorf("non-integer ids: %v", err)
+	}
+}
