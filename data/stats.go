@@ -48,6 +48,19 @@ func NewCondStats(y *Matrix, cond []int, trials []int, nbins int) *CondStats {
 		}
 		s.Count[b]++
 	}
+	// Visit the trials grouped by condition (a stable counting sort), so that
+	// one condition's rows of Sum and SumSq stay in cache. Each element still
+	// receives its trials in the order they are listed.
+	start := make([]int, nbins+1)
+	for b, k := range s.Count {
+		start[b+1] = start[b] + k
+	}
+	order := make([]int, len(trials))
+	for _, t := range trials {
+		order[start[cond[t]]] = t
+		start[cond[t]]++
+	}
+	trials = order
 	workers := runtime.GOMAXPROCS(0)
 	if work := len(trials) * N; work < 1<<20 || N < 2*workers {
 		workers = 1
