@@ -217,6 +217,7 @@ func Folds(p *Prepared) ([][3][]int, error) {
 	}
 	out := make([][3][]int, len(sp))
 	for f, s := range sp {
+		coverageWarnings(p.Report, s, p.Cond, &p.Axis, fmt.Sprintf("fold %d", f+1))
 		tr, val, err := carve(p.Cond, blocks, s.Train, p.NBins, p.Cfg.Split.ValidationFraction, p.Cfg.Seed+uint64(f)+1)
 		if err != nil {
 			return nil, fmt.Errorf("fold %d: validation split: %w", f+1, err)

@@ -50,7 +50,10 @@ func PrepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
 		return nil, fmt.Errorf("stimulus %s: %w", rec.Source.Stimulus, err)
 	}
 	p.Cond = cond
-	rep, err := data.Check(rec, cond, p.NBins)
+	if err := checkConditionIDs(rec, cond, ax); err != nil {
+		return nil, err
+	}
+	rep, err := data.CheckWith(rec, cond, data.CheckOptions{NBins: p.NBins, Axis: &p.Axis})
 	if err != nil {
 		return nil, err
 	}
@@ -64,6 +67,7 @@ func PrepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
 		return nil, fmt.Errorf("test split: %w", err)
 	}
 	p.Test = sp.Test
+	coverageWarnings(rep, sp, cond, &p.Axis, "the test split")
 	p.Train, p.Val, err = carve(cond, blocks, sp.Train, p.NBins, cfg.Split.ValidationFraction, cfg.Seed+1)
 	if err != nil {
 		return nil, fmt.Errorf("validation split: %w", err)
@@ -141,4 +145,38 @@ func (p *Prepared) encode(dst []float64, t int) {
 	}
 	clear(dst)
 	dst[p.Cond[t]] = 1
+}
+
+// checkConditionIDs checks user condition ids against the stimulus bins:
+// stria conditions are the bins, so all trials with one id must fall in
+// one bin. The error names the id, two trials and their bins.
+func checkConditionIDs(rec *data.Recording, cond []int, ax data.Axis) error {
+	if rec.Cond == nil {
+		return nil
+	}
+	first := map[int]int{} // id -> first trial
+	for t, id := range rec.Cond {
+		f, ok := first[id]
+		if !ok {
+			first[id] = t
+			continue
+		}
+		if cond[f] != cond[t] {
+			return fmt.Errorf("%s: condition id %d holds trials in different stimulus bins: trial %d (0-based) in bin %s, trial %d in bin %s; use bins that match the conditions",
+				rec.Source.Condition, id, f, ax.BinLabel(cond[f]), t, ax.BinLabel(cond[t]))
+		}
+	}
+	return nil
+}
+
+// coverageWarnings warns about conditions that a blocked split left on one
+// side only: they cannot be trained on, or are missing from the scores.
+func coverageWarnings(rep *data.Report, sp data.Split, cond []int, ax *data.Axis, what string) {
+	noTrain, noTest := sp.Coverage(cond, ax.NumBins())
+	for _, c := range noTrain {
+		rep.Warnings = append(rep.Warnings, fmt.Sprintf("%s: %s has no training trials (whole blocks went to the test side)", what, ax.BinLabel(c)))
+	}
+	for _, c := range noTest {
+		rep.Warnings = append(rep.Warnings, fmt.Sprintf("%s: %s has no test trials, so the condition-level scores leave it out", what, ax.BinLabel(c)))
+	}
 }

@@ -48,12 +48,12 @@ func runCompare(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer
 	if err != nil {
 		return nil, err
 	}
-	for _, w := range p.Report.Warnings {
-		fmt.Fprintln(stderr, "warning:", w)
-	}
 	folds, err := train.Folds(p)
 	if err != nil {
 		return nil, err
+	}
+	for _, w := range p.Report.Warnings {
+		fmt.Fprintln(stderr, "warning:", w)
 	}
 	var results []*train.FoldResult
 	names := make([]string, len(specs))

@@ -42,7 +42,7 @@ func inspect(w io.Writer, cfg *train.Config, rec *data.Recording) error {
 	if err != nil {
 		return fmt.Errorf("stimulus %s: %w", rec.Source.Stimulus, err)
 	}
-	rep, err := data.Check(rec, cond, nb)
+	rep, err := data.CheckWith(rec, cond, data.CheckOptions{NBins: nb, Axis: &ax})
 	if err != nil {
 		return err
 	}

@@ -1,0 +1,467 @@
+// Command striabench measures stria on a large synthetic recording: the
+// .npy load rate, the wall time and peak memory of `stria fit` end to end
+// (run as a child process, exactly as a user runs it), how both grow with
+// the numbers of neurons and trials, and the held-out median R^2 of the
+// projected solver against the mini-batch Adam path on the same split.
+//
+// Usage, from the repository root:
+//
+//	go run ./cmd/striabench [flags]
+//
+// The recording is made by data.Synth (the demo's heading-tuned population)
+// and cached in -dir; the default size is 24,000 neurons x 4,600 trials,
+// 60 bins of 6 degrees, one conv layer of 8 channels, kernel 9, circular
+// border. Every figure is printed as it is measured.
+package main
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"flag"
+	"fmt"
+	"math"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"runtime"
+	"runtime/pprof"
+	"slices"
+	"strings"
+	"syscall"
+	"time"
+
+	"stria/data"
+	"stria/train"
+)
+
+type options struct {
+	dir, stria         string
+	neurons, trials    int
+	seed               uint64
+	repeats            int
+	ladder, inproc     bool
+	cpuprofile         string
+	adamNeurons        int
+	adamTrials         int
+	adamBatch          int
+	adamLR             float64
+	adamPatience       int
+	adamMaxEpochs      int
+	adamTimeout        time.Duration
+	skipAdam, skipLoad bool
+	keepRuns           bool
+	projectedMaxEpochs int
+	projectedPatience  int
+	projectedLR        float64
+	projectedReadoutL2 float64
+}
+
+func main() {
+	var o options
+	flag.StringVar(&o.dir, "dir", filepath.Join(os.TempDir(), "striabench"), "folder for the recordings, configs and run folders (recordings are reused when present)")
+	flag.StringVar(&o.stria, "stria", "", "stria binary to time (default: build ./cmd/stria into -dir)")
+	flag.IntVar(&o.neurons, "neurons", 24000, "neurons of the full-size recording")
+	flag.IntVar(&o.trials, "trials", 4600, "trials of the full-size recording")
+	flag.Uint64Var(&o.seed, "seed", 1, "seed of the synthetic recording and of the fits")
+	flag.IntVar(&o.repeats, "repeats", 3, "runs of each timed fit (the median and the fastest are printed)")
+	flag.BoolVar(&o.ladder, "ladder", true, "also time 1/4 and 1/2 of the neurons and of the trials")
+	flag.BoolVar(&o.inproc, "phases", true, "also run the full-size fit in this process and print the time of each phase")
+	flag.StringVar(&o.cpuprofile, "cpuprofile", "", "write a CPU profile of the in-process fit to this file")
+	flag.IntVar(&o.adamNeurons, "adam-neurons", 2000, "neurons for the mini-batch Adam comparison (the first ones of the full recording; all trials, so the split is the same)")
+	flag.IntVar(&o.adamTrials, "adam-trials", 0, "trials for the Adam comparison (0: all)")
+	flag.IntVar(&o.adamBatch, "adam-batch", 256, "train.batch_size of the Adam comparison")
+	flag.Float64Var(&o.adamLR, "adam-lr", 1e-3, "train.learning_rate of the Adam comparison")
+	flag.IntVar(&o.adamPatience, "adam-patience", 20, "train.patience of the Adam comparison")
+	flag.IntVar(&o.adamMaxEpochs, "adam-max-epochs", 400, "train.max_epochs of the Adam comparison")
+	flag.DurationVar(&o.adamTimeout, "adam-timeout", 20*time.Minute, "give up the Adam comparison after this long")
+	flag.BoolVar(&o.skipAdam, "skip-adam", false, "skip the mini-batch Adam comparison")
+	flag.BoolVar(&o.skipLoad, "skip-load", false, "skip the .npy load measurement")
+	flag.BoolVar(&o.keepRuns, "keep", true, "keep the run folders in -dir")
+	flag.IntVar(&o.projectedMaxEpochs, "max-epochs", 3000, "train.max_epochs of the projected fits")
+	flag.IntVar(&o.projectedPatience, "patience", 100, "train.patience of the projected fits")
+	flag.Float64Var(&o.projectedLR, "lr", 1e-2, "train.learning_rate of the projected fits")
+	flag.Float64Var(&o.projectedReadoutL2, "readout-l2", 1, "model.readout_l2 of every fit")
+	flag.Parse()
+	if err := run(o); err != nil {
+		fmt.Fprintln(os.Stderr, "striabench:", err)
+		os.Exit(1)
+	}
+}
+
+func run(o options) error {
+	if err := os.MkdirAll(o.dir, 0o755); err != nil {
+		return err
+	}
+	fmt.Printf("striabench %s, %s/%s, GOMAXPROCS %d, %d CPUs\n", time.Now().Format("2006-01-02 15:04"), runtime.GOOS, runtime.GOARCH, runtime.GOMAXPROCS(0), runtime.NumCPU())
+	if o.stria == "" {
+		o.stria = filepath.Join(o.dir, "stria")
+		cmd := exec.Command("go", "build", "-o", o.stria, "./cmd/stria")
+		cmd.Stdout, cmd.Stderr = os.Stdout, os.Stderr
+		if err := cmd.Run(); err != nil {
+			return fmt.Errorf("building stria (run striabench from the repository root, or give -stria): %w", err)
+		}
+	}
+	full, err := recording(o, o.neurons, o.trials)
+	if err != nil {
+		return err
+	}
+	matMB := float64(o.neurons) * float64(o.trials) * 4 / 1e6
+	fmt.Printf("recording: %d neurons x %d trials, float32 %.0f MB (%s)\n", o.neurons, o.trials, matMB, full.resp)
+
+	if !o.skipLoad {
+		if err := measureLoad(full.resp, o.repeats); err != nil {
+			return err
+		}
+	}
+
+	fmt.Println("\nstria fit, train.solver projected, end to end (child process: load, bin, split, train, score, write the run folder):")
+	res, err := timeFit(o, full, "projected", "full", o.repeats)
+	if err != nil {
+		return err
+	}
+	fmt.Printf("  wall %.2f s (median of %d; target <= 2.5), %d epochs, held-out median R^2 %.5f\n", res.wall, max(1, o.repeats), res.epochs, res.r2)
+	fmt.Printf("  peak resident memory %.0f MB = %.2f x the float32 matrix (target <= 2)\n", res.maxRSS/1e6, res.maxRSS/1e6/matMB)
+
+	if o.inproc {
+		if err := phases(o, full); err != nil {
+			return err
+		}
+	}
+
+	if o.ladder {
+		fmt.Println("\nhow the cost grows (projected, end to end, median of the runs):")
+		fmt.Printf("  %-8s %-8s %8s %8s %10s\n", "neurons", "trials", "wall s", "RSS MB", "median R2")
+		fmt.Printf("  %-8d %-8d %8.2f %8.0f %10.4f\n", o.neurons, o.trials, res.wall, res.maxRSS/1e6, res.r2)
+		for _, f := range []struct {
+			n, t int
+		}{{o.neurons / 4, o.trials}, {o.neurons / 2, o.trials}, {o.neurons, o.trials / 4}, {o.neurons, o.trials / 2}} {
+			rec, err := subset(o, full, f.n, f.t)
+			if err != nil {
+				return err
+			}
+			r, err := timeFit(o, rec, "projected", fmt.Sprintf("n%d_t%d", f.n, f.t), o.repeats)
+			if err != nil {
+				return err
+			}
+			fmt.Printf("  %-8d %-8d %8.2f %8.0f %10.4f\n", f.n, f.t, r.wall, r.maxRSS/1e6, r.r2)
+		}
+	}
+
+	if !o.skipAdam {
+		n, t := o.adamNeurons, o.adamTrials
+		if n <= 0 || n > o.neurons {
+			n = o.neurons
+		}
+		if t <= 0 || t > o.trials {
+			t = o.trials
+		}
+		fmt.Printf("\nheld-out median R^2 on the same split, %d neurons x %d trials (the first ones of the full recording):\n", n, t)
+		rec, err := subset(o, full, n, t)
+		if err != nil {
+			return err
+		}
+		rp, err := timeFit(o, rec, "projected", fmt.Sprintf("cmp_n%d_t%d", n, t), 1)
+		if err != nil {
+			return err
+		}
+		fmt.Printf("  projected:                        %.5f  (%d epochs, %.2f s)\n", rp.r2, rp.epochs, rp.wall)
+		ra, err := timeFit(o, rec, "adam", fmt.Sprintf("cmp_n%d_t%d", n, t), 1)
+		if err != nil {
+			return err
+		}
+		fmt.Printf("  adam, batch %d, lr %g, patience %d: %.5f  (%d epochs, best %d, stopped by %s, %.1f s)\n",
+			o.adamBatch, o.adamLR, o.adamPatience, ra.r2, ra.epochs, ra.best, ra.stop, ra.wall)
+		fmt.Printf("  difference projected - adam:      %+.5f\n", rp.r2-ra.r2)
+	}
+	return nil
+}
+
+// rec is a recording on disk.
+type rec struct {
+	neurons, trials int
+	resp, stim      string
+}
+
+// recording writes (or reuses) the synthetic recording of the given size.
+func recording(o options, n, t int) (rec, error) {
+	base := filepath.Join(o.dir, fmt.Sprintf("synth_n%d_t%d_s%d", n, t, o.seed))
+	r := rec{neurons: n, trials: t, resp: base + "_responses.npy", stim: base + "_heading.npy"}
+	if fileExists(r.resp) && fileExists(r.stim) {
+		return r, nil
+	}
+	start := time.Now()
+	cfg := data.DefaultSynthConfig()
+	cfg.Neurons, cfg.Trials, cfg.Seed = n, t, o.seed
+	cfg.Bins = 60
+	recd, _, _ := data.Synth(cfg)
+	if err := data.WriteNPY64(r.stim, []int{t}, recd.Stim); err != nil {
+		return r, err
+	}
+	if err := data.WriteNPY(r.resp, []int{t, n}, recd.Y.Data); err != nil {
+		return r, err
+	}
+	fmt.Printf("(generated %s in %.1f s)\n", filepath.Base(r.resp), time.Since(start).Seconds())
+	return r, nil
+}
+
+// subset writes the first n neurons of the first t trials of full.
+func subset(o options, full rec, n, t int) (rec, error) {
+	if n == full.neurons && t == full.trials {
+		return full, nil
+	}
+	base := filepath.Join(o.dir, fmt.Sprintf("synth_n%d_t%d_s%d_of_n%d_t%d", n, t, o.seed, full.neurons, full.trials))
+	r := rec{neurons: n, trials: t, resp: base + "_responses.npy", stim: base + "_heading.npy"}
+	if fileExists(r.resp) && fileExists(r.stim) {
+		return r, nil
+	}
+	m, err := data.ReadNPY(full.resp)
+	if err != nil {
+		return r, err
+	}
+	stim, err := data.ReadVector(full.stim, "")
+	if err != nil {
+		return r, err
+	}
+	sub := make([]float32, n*t)
+	for i := 0; i < t; i++ {
+		copy(sub[i*n:(i+1)*n], m.Row(i)[:n])
+	}
+	if err := data.WriteNPY64(r.stim, []int{t}, stim[:t]); err != nil {
+		return r, err
+	}
+	return r, data.WriteNPY(r.resp, []int{t, n}, sub)
+}
+
+func fileExists(p string) bool {
+	_, err := os.Stat(p)
+	return err == nil
+}
+
+// measureLoad times data.ReadNPY of the response file.
+func measureLoad(path string, repeats int) error {
+	st, err := os.Stat(path)
+	if err != nil {
+		return err
+	}
+	// Warm the page cache so that the rate is stria's, not the disk's.
+	if b, err := os.ReadFile(path); err == nil {
+		runtime.KeepAlive(b)
+	}
+	runtime.GC()
+	var rates []float64
+	for i := 0; i < max(1, repeats); i++ {
+		start := time.Now()
+		m, err := data.ReadNPY(path)
+		if err != nil {
+			return err
+		}
+		sec := time.Since(start).Seconds()
+		runtime.KeepAlive(m)
+		rates = append(rates, float64(st.Size())/sec/1e9)
+		m = nil
+		runtime.GC()
+	}
+	slices.Sort(rates)
+	fmt.Printf("load (data.ReadNPY, file in the page cache, fresh matrix each time): median %.2f GB/s, best %.2f GB/s over %d reads of %.0f MB (target >= 1)\n",
+		rates[len(rates)/2], rates[len(rates)-1], len(rates), float64(st.Size())/1e6)
+	return nil
+}
+
+// fitResult is what one child `stria fit` reported.
+type fitResult struct {
+	wall, maxRSS float64 // seconds, bytes (median over the runs)
+	r2           float64
+	epochs, best int
+	stop         string
+}
+
+const configTemplate = `seed: %d
+data:
+  responses: %s
+  stimulus: %s
+axis:
+  name: heading
+  unit: deg
+  min: 0
+  max: 360
+  periodic: true
+  bin_width: 6
+split:
+  keep_blocks: false
+model:
+  layers:
+    - {channels: 8, kernel: 9, stride: 1, border: circular}
+  output: identity
+  loss: mse
+  readout_l2: %g
+train:
+  solver: %s
+  learning_rate: %g
+  batch_size: %d
+  max_epochs: %d
+  patience: %d
+output: %s
+`
+
+// timeFit runs `stria fit` on r repeats times and returns the median wall
+// time and peak RSS and the held-out median R^2 of the last run.
+func timeFit(o options, r rec, solver, tag string, repeats int) (fitResult, error) {
+	var res fitResult
+	name := fmt.Sprintf("%s_%s", solver, tag)
+	out := filepath.Join(o.dir, "run_"+name)
+	cfgPath := filepath.Join(o.dir, "config_"+name+".yaml")
+	lr, batch, maxEp, pat := o.projectedLR, 0, o.projectedMaxEpochs, o.projectedPatience
+	if solver == "adam" {
+		lr, batch, maxEp, pat = o.adamLR, o.adamBatch, o.adamMaxEpochs, o.adamPatience
+	}
+	cfg := fmt.Sprintf(configTemplate, o.seed, r.resp, r.stim, o.projectedReadoutL2, solver, lr, batch, maxEp, pat, out)
+	if err := os.WriteFile(cfgPath, []byte(cfg), 0o644); err != nil {
+		return res, err
+	}
+	var walls, rss []float64
+	for i := 0; i < max(1, repeats); i++ {
+		os.RemoveAll(out)
+		cmd := exec.Command(o.stria, "fit", "--quiet", "--config", cfgPath)
+		var stderr strings.Builder
+		cmd.Stderr = &stderr
+		start := time.Now()
+		if err := cmd.Start(); err != nil {
+			return res, err
+		}
+		done := make(chan error, 1)
+		go func() { done <- cmd.Wait() }()
+		var err error
+		if solver == "adam" && o.adamTimeout > 0 {
+			select {
+			case err = <-done:
+			case <-time.After(o.adamTimeout):
+				cmd.Process.Signal(os.Interrupt)
+				<-done
+				return res, fmt.Errorf("adam comparison stopped after %s (-adam-timeout); try a smaller -adam-neurons", o.adamTimeout)
+			}
+		} else {
+			err = <-done
+		}
+		wall := time.Since(start).Seconds()
+		if err != nil {
+			return res, fmt.Errorf("stria fit %s: %v\n%s", cfgPath, err, stderr.String())
+		}
+		ru, ok := cmd.ProcessState.SysUsage().(*syscall.Rusage)
+		if !ok {
+			return res, errors.New("no rusage from the child process")
+		}
+		walls = append(walls, wall)
+		rss = append(rss, float64(ru.Maxrss)*1024) // Linux reports kilobytes
+		if repeats > 1 {
+			fmt.Printf("  %s run %d: %.2f s wall, peak RSS %.0f MB\n", tag, i+1, wall, float64(ru.Maxrss)*1024/1e6)
+		}
+	}
+	var sum train.Summary
+	b, err := os.ReadFile(filepath.Join(out, train.FileSummary))
+	if err != nil {
+		return res, err
+	}
+	if err := json.Unmarshal(b, &sum); err != nil {
+		return res, err
+	}
+	res.r2 = float64(sum.Medians["test_r2"])
+	res.epochs, res.best, res.stop = sum.Epochs, sum.BestEpoch, sum.Stop
+	slices.Sort(walls)
+	slices.Sort(rss)
+	res.wall, res.maxRSS = walls[len(walls)/2], rss[len(rss)/2]
+	if repeats > 1 {
+		fmt.Printf("  %s: median %.2f s, fastest %.2f s; %d epochs (best %d, %s); held-out median R^2 %.4f\n",
+			tag, res.wall, walls[0], res.epochs, res.best, res.stop, res.r2)
+	}
+	if !o.keepRuns {
+		os.RemoveAll(out)
+	}
+	return res, nil
+}
+
+// phases runs the steps of `stria fit` in this process and times each.
+func phases(o options, r rec) error {
+	out := filepath.Join(o.dir, "run_phases")
+	cfgText := fmt.Sprintf(configTemplate, o.seed, r.resp, r.stim, o.projectedReadoutL2, "projected", o.projectedLR, 0, o.projectedMaxEpochs, o.projectedPatience, out)
+	cfgPath := filepath.Join(o.dir, "config_phases.yaml")
+	if err := os.WriteFile(cfgPath, []byte(cfgText), 0o644); err != nil {
+		return err
+	}
+	cfg, err := train.LoadConfig(cfgPath)
+	if err != nil {
+		return err
+	}
+	if err := cfg.Validate(); err != nil {
+		return err
+	}
+	if o.cpuprofile != "" {
+		f, err := os.Create(o.cpuprofile)
+		if err != nil {
+			return err
+		}
+		defer f.Close()
+		if err := pprof.StartCPUProfile(f); err != nil {
+			return err
+		}
+		defer pprof.StopCPUProfile()
+	}
+	fmt.Println("\nphases of the same fit, in this process:")
+	t0 := time.Now()
+	last := t0
+	lap := func(what string) {
+		now := time.Now()
+		fmt.Printf("  %-34s %6.3f s\n", what, now.Sub(last).Seconds())
+		last = now
+	}
+	rec, err := data.Load(cfg.Source())
+	if err != nil {
+		return err
+	}
+	lap("load (.npy responses and stimulus)")
+	p, err := train.PrepareRecording(cfg, rec)
+	if err != nil {
+		return err
+	}
+	lap("bin, check, split, z-score fit")
+	f, err := train.Fit(context.Background(), p, train.Hooks{}, nil)
+	if err != nil {
+		return err
+	}
+	lap(fmt.Sprintf("fit (%d epochs)", len(f.Log)))
+	pred := train.PredictTrials(f.Net, p, p.Test)
+	lap("predict test trials")
+	scores := train.Score(p, pred)
+	lap("score")
+	if _, err := train.WriteRun(out, p, f, scores, time.Since(t0)); err != nil {
+		return err
+	}
+	lap("write run folder")
+	fmt.Printf("  %-34s %6.3f s\n", "total", time.Since(t0).Seconds())
+	fmt.Printf("  VmHWM of this process: %s\n", vmHWM())
+	var r2 []float64
+	for _, s := range scores {
+		if !math.IsNaN(s.TestR2) {
+			r2 = append(r2, s.TestR2)
+		}
+	}
+	slices.Sort(r2)
+	if k := len(r2); k > 0 {
+		fmt.Printf("  held-out median R^2 %.5f\n", (r2[(k-1)/2]+r2[k/2])/2)
+	}
+	return nil
+}
+
+// vmHWM returns the peak resident set size line of /proc/self/status.
+func vmHWM() string {
+	b, err := os.ReadFile("/proc/self/status")
+	if err != nil {
+		return "unknown"
+	}
+	for _, l := range strings.Split(string(b), "\n") {
+		if strings.HasPrefix(l, "VmHWM:") {
+			return strings.TrimSpace(strings.TrimPrefix(l, "VmHWM:"))
+		}
+	}
+	return "unknown"
+}
