@@ -1,0 +1,41 @@
+package main
+
+import (
+	"fmt"
+
+	"github.com/urfave/cli/v2"
+
+	"stria/train"
+)
+
+func exportCommand() *cli.Command {
+	return &cli.Command{
+		Name:      "export",
+		Usage:     "write figures (SVG, PNG) and the arrays they are drawn from, for a run or comparison folder",
+		ArgsUsage: "FOLDER",
+		Flags: []cli.Flag{
+			&cli.StringFlag{Name: "out", Usage: "output `FOLDER` (default: FOLDER/export)"},
+			&cli.StringFlag{Name: "neurons", Usage: "neurons with a tuning figure: indices \"3,17,42\" (0-based), \"best K\", \"worst K\", \"random K\" by test_r2, combined with commas (default \"" + train.DefaultNeurons + "\")"},
+			&cli.StringFlag{Name: "compare", Usage: "comparison `FOLDER` of the same recording: draw its baselines' curves in the tuning figures"},
+		},
+		Action: func(c *cli.Context) error {
+			if err := oneFolderArg(c); err != nil {
+				return err
+			}
+			ex, err := train.ExportFolder(c.Args().First(), exportOptions(c))
+			if err != nil {
+				return err
+			}
+			for _, n := range ex.Notes {
+				fmt.Fprintln(c.App.Writer, "note:", n)
+			}
+			fmt.Fprintf(c.App.Writer, "exported %d figures of the %s folder to %s\n", len(ex.Figures), ex.Kind, ex.Dir)
+			return nil
+		},
+	}
+}
+
+// exportOptions reads the options shared by export and report.
+func exportOptions(c *cli.Context) train.ExportOptions {
+	return train.ExportOptions{Neurons: c.String("neurons"), Compare: c.String("compare")}
+}
