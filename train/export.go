@@ -1,6 +1,7 @@
 package train
 
 import (
+	"bytes"
 	"encoding/csv"
 	"encoding/json"
 	"fmt"
@@ -13,9 +14,19 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+	"time"
+
+	"gonum.org/v1/plot"
+	"gonum.org/v1/plot/font"
+	"gonum.org/v1/plot/plotter"
+	"gonum.org/v1/plot/vg"
+	"gonum.org/v1/plot/vg/draw"
+	"gonum.org/v1/plot/vg/vgimg"
+	"gonum.org/v1/plot/vg/vgsvg"
 
 	"stria/data"
 	"stria/eval/figure"
+	"stria/eval/report"
 	"stria/eval/tuning"
 )
 
@@ -53,21 +64,13 @@ type ExportFigure struct {
 	Arrays  []string // files (inside the export folder, or the source folder) it is drawn from
 }
 
-// ExportTable is one table written by ExportFolder, for the report.
-type ExportTable struct {
-	Caption string
-	Header  []string
-	Rows    [][]string
-	Numeric []bool
-}
-
 // Exported lists what ExportFolder wrote.
 type Exported struct {
 	Folder  string // the run or comparison folder
 	Kind    string // KindRun or KindComparison
 	Dir     string // the export folder
 	Figures []ExportFigure
-	Tables  []ExportTable
+	Tables  []report.Table // tables written (as CSV and markdown), for the report
 	// Notes say what was skipped and why (e.g. the recording could not be
 	// read, so the tuning figures are missing).
 	Notes []string
@@ -759,7 +762,7 @@ func exportComparison(dir, out string) (*Exported, error) {
 			Caption: fmt.Sprintf("Noise ceiling: distribution over neurons of %s averaged over the %d test folds (the same for every model).", met, cj.Folds)})
 	}
 	// The summary table, wide, as CSV and markdown.
-	tab := ExportTable{Caption: fmt.Sprintf("Median over neurons of the fold-averaged score [interquartile range], %d-fold cross-validation, %d neurons.", cj.Folds, n),
+	tab := report.Table{Caption: fmt.Sprintf("Median over neurons of the fold-averaged score [interquartile range], %d-fold cross-validation, %d neurons.", cj.Folds, n),
 		Header: []string{"model"}, Numeric: []bool{false}}
 	for _, k := range CompareMetrics {
 		tab.Header = append(tab.Header, k)
@@ -809,4 +812,377 @@ func exportComparison(dir, out string) (*Exported, error) {
 	}
 	ex.Tables = append(ex.Tables, tab)
 	return ex, nil
+}
+
+// FileReport is the default file name of the report inside the folder.
+const FileReport = "report.html"
+
+// WriteReport exports the folder (into opt.Out, default FOLDER/export, with
+// ExportFolder) and writes one self-contained HTML report of it to out
+// (default FOLDER/report.html). It returns the report's path.
+func WriteReport(dir, out string, opt ExportOptions) (string, error) {
+	if out == "" {
+		out = filepath.Join(dir, FileReport)
+	}
+	ex, err := ExportFolder(dir, opt)
+	if err != nil {
+		return "", err
+	}
+	var r *report.Report
+	if ex.Kind == KindRun {
+		r, err = runReport(ex)
+	} else {
+		r, err = comparisonReport(ex)
+	}
+	if err != nil {
+		return "", err
+	}
+	if err := report.Write(out, r); err != nil {
+		return "", err
+	}
+	return out, nil
+}
+
+// reportFigures reads the SVG of each figure of ex.
+func reportFigures(ex *Exported, keep func(name string) bool) ([]report.Figure, error) {
+	var figs []report.Figure
+	for _, f := range ex.Figures {
+		if !keep(f.Name) {
+			continue
+		}
+		b, err := os.ReadFile(filepath.Join(ex.Dir, f.Name+".svg"))
+		if err != nil {
+			return nil, err
+		}
+		figs = append(figs, report.Figure{Caption: f.Caption + " Arrays: " + strings.Join(f.Arrays, ", ") + ".", SVG: b})
+	}
+	return figs, nil
+}
+
+func subtitle(dir string) string {
+	abs, err := filepath.Abs(dir)
+	if err != nil {
+		abs = dir
+	}
+	return abs + " — " + time.Now().Format("2006-01-02 15:04")
+}
+
+func readJSONFile(path string, v any) error {
+	b, err := os.ReadFile(path)
+	if err != nil {
+		return err
+	}
+	if err := json.Unmarshal(b, v); err != nil {
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	return nil
+}
+
+// runReport builds the report of an exported run folder.
+func runReport(ex *Exported) (*report.Report, error) {
+	dir := ex.Folder
+	var mf Manifest
+	if err := readJSONFile(filepath.Join(dir, FileManifest), &mf); err != nil {
+		return nil, err
+	}
+	var sum Summary
+	if err := readJSONFile(filepath.Join(dir, FileSummary), &sum); err != nil {
+		return nil, err
+	}
+	cfgYAML, err := os.ReadFile(filepath.Join(dir, FileConfig))
+	if err != nil {
+		return nil, err
+	}
+	cautions := sum.Cautions
+	if len(cautions) == 0 {
+		cautions = Cautions
+	}
+	r := &report.Report{Title: "stria run " + filepath.Base(filepath.Clean(dir)), Subtitle: subtitle(dir), Cautions: cautions}
+
+	// Scores.
+	scores := report.Table{Caption: fmt.Sprintf("Per-neuron scores on the %d held-out test trials: median and quartiles over the %d scored neurons (metrics.csv has every neuron).", sum.TestTrials, sum.Scored),
+		Header: []string{"metric", "median", "q1", "q3", "neurons", "undefined"}, Numeric: []bool{false, true, true, true, true, true}}
+	for _, k := range metricColumns {
+		s, ok := sum.Spread[k]
+		if !ok {
+			continue
+		}
+		scores.Rows = append(scores.Rows, []string{k, f3(s.Median), f3(s.Q1), f3(s.Q3), strconv.Itoa(s.N), strconv.Itoa(s.NaN)})
+	}
+	r.Sections = append(r.Sections, report.Section{ID: "scores", Heading: "Held-out scores",
+		Paragraphs: []string{fmt.Sprintf("Encoder: %s, output %s, loss %s, %d neurons, seed %d, stria %s, created %s.", layerText(mf.Layers), mf.Output, mf.Loss, mf.Neurons, mf.Seed, mf.Stria, mf.Created)},
+		Notes:      cautions, Tables: []report.Table{scores}})
+
+	// Data.
+	parts := report.Table{Caption: "Trials in each part of the split (split.json).", Header: []string{"part", "trials"}, Numeric: []bool{false, true}}
+	for _, p := range []string{"train", "validation", "test"} {
+		parts.Rows = append(parts.Rows, []string{p, strconv.Itoa(mf.Trials[p])})
+	}
+	dataSec := report.Section{ID: "data", Heading: "Data",
+		Paragraphs: []string{
+			fmt.Sprintf("Recording: %s (stimulus: %s).", mf.Sources["responses"], mf.Sources["stimulus"]),
+			fmt.Sprintf("Axis: %s in %s, %g to %g%s, %d bins, %s encoding.", mf.Axis.Name, mf.Axis.Unit, mf.Axis.Min, mf.Axis.Max, periodicText(mf.Axis), mf.Axis.Bins, mf.Axis.Encoding),
+			fmt.Sprintf("Neurons: %d in the recording, %d scored, %d excluded; %d scored neurons have signal power <= 0 on the test trials, so their noise-ceiling ratios (fev, cc_norm) are undefined.", sum.Neurons, sum.Scored, sum.Excluded, sum.NoSignal),
+		},
+		Tables: []report.Table{parts}}
+	for _, w := range sum.Warnings {
+		dataSec.Notes = append(dataSec.Notes, "Warning: "+w)
+	}
+	dataSec.Notes = append(dataSec.Notes, ex.Notes...)
+	r.Sections = append(r.Sections, dataSec)
+
+	// Training.
+	trainSec := report.Section{ID: "training", Heading: "Training",
+		Paragraphs: []string{fmt.Sprintf("%d epochs, best epoch %d (its weights are kept), stopped by %s, %.1f s.", sum.Epochs, sum.BestEpoch, sum.Stop, sum.WallSeconds)}}
+	log, err := readTrainLog(filepath.Join(dir, FileLog))
+	if err != nil {
+		trainSec.Notes = append(trainSec.Notes, err.Error())
+	} else if len(log) > 0 {
+		base := filepath.Join(ex.Dir, "loss")
+		if err := lossFigure(base, log); err != nil {
+			return nil, err
+		}
+		b, err := os.ReadFile(base + ".svg")
+		if err != nil {
+			return nil, err
+		}
+		trainSec.Figures = append(trainSec.Figures, report.Figure{SVG: b,
+			Caption: "Training and validation loss per epoch (train_log.csv; loss in z-scored units when the run z-scores). Validation trials are carved from the training part; the test trials are never used."})
+		tab := report.Table{Caption: "First, best and last epochs (train_log.csv).", Header: []string{"epoch", "", "train_loss", "val_loss", "val_r2"}, Numeric: []bool{true, false, true, true, true}}
+		pick := func(e EpochLog, what string) {
+			tab.Rows = append(tab.Rows, []string{strconv.Itoa(e.Epoch), what, g4(e.TrainLoss), g4(e.ValLoss), f3(Num(e.ValR2))})
+		}
+		pick(log[0], "first")
+		for _, e := range log {
+			if e.Epoch == sum.BestEpoch {
+				pick(e, "best")
+			}
+		}
+		pick(log[len(log)-1], "last")
+		trainSec.Tables = append(trainSec.Tables, tab)
+	}
+	r.Sections = append(r.Sections, trainSec)
+
+	// Figures of export.
+	figs := func(keep func(string) bool) []report.Figure {
+		f, e := reportFigures(ex, keep)
+		if e != nil && err == nil {
+			err = e
+		}
+		return f
+	}
+	r.Sections = append(r.Sections,
+		report.Section{ID: "filters", Heading: "Filters", Figures: figs(func(n string) bool { return n == "filters" }),
+			Paragraphs: []string{"The readout weights (neurons x channels x positions) are in readout_weights.npy."}},
+		report.Section{ID: "tuning", Heading: "Tuning of selected neurons", Figures: figs(func(n string) bool { return strings.HasPrefix(n, "tuning_") }), Notes: ex.Notes},
+		report.Section{ID: "population", Heading: "Scores and preferred stimuli across neurons",
+			Figures: figs(func(n string) bool { return strings.HasPrefix(n, "hist_") || n == "preferred" }), Notes: cautions[:1]},
+		report.Section{ID: "config", Heading: "Resolved config", Paragraphs: []string{"config.yaml of the run: refitting it gives the same numbers."}, Code: string(cfgYAML)},
+	)
+	if err != nil {
+		return nil, err
+	}
+	return r, nil
+}
+
+// comparisonReport builds the report of an exported comparison folder.
+func comparisonReport(ex *Exported) (*report.Report, error) {
+	dir := ex.Folder
+	cj, err := readComparisonJSON(dir)
+	if err != nil {
+		return nil, err
+	}
+	cfgYAML, err := os.ReadFile(filepath.Join(dir, FileConfig))
+	if err != nil {
+		return nil, err
+	}
+	cautions := cj.Cautions
+	if len(cautions) == 0 {
+		cautions = Cautions
+	}
+	r := &report.Report{Title: "stria comparison " + filepath.Base(filepath.Clean(dir)), Subtitle: subtitle(dir), Cautions: cautions}
+	var win []string
+	for _, k := range CompareMetrics {
+		win = append(win, fmt.Sprintf("%s: %s", k, cj.Winner[k]))
+	}
+	r.Sections = append(r.Sections, report.Section{ID: "summary", Heading: "Summary",
+		Paragraphs: []string{
+			fmt.Sprintf("%d models, %d-fold cross-validation, %d neurons. Each neuron's score is averaged over the folds; the table gives the median over neurons and the interquartile range.", len(cj.Models), cj.Folds, cj.Neurons),
+			"Highest median — " + strings.Join(win, "; ") + ".",
+		},
+		Notes: cautions, Tables: ex.Tables})
+
+	pairs := report.Table{Caption: "Pairwise comparisons across neurons (pairs.csv): share of neurons where model A scores higher, Wilcoxon statistic W, p-value, neurons used and zero differences dropped.",
+		Header: []string{"metric", "model A", "model B", "A higher", "W", "p", "n", "dropped", "method"}, Numeric: []bool{false, false, false, true, true, true, true, true, false}}
+	for _, p := range cj.Pairs {
+		pairs.Rows = append(pairs.Rows, []string{p.Metric, p.A, p.B, fmt.Sprintf("%.1f %%", 100*float64(p.ShareA)), g4(float64(p.W)), fmt.Sprintf("%.3g", float64(p.P)), strconv.Itoa(p.N), strconv.Itoa(p.Dropped), p.Method})
+	}
+	method := cj.PValues
+	if method == "" {
+		method = WilcoxonNote
+	}
+	r.Sections = append(r.Sections, report.Section{ID: "pairs", Heading: "Pairwise tests",
+		Paragraphs: []string{"p-values: " + method}, Notes: cautions[1:], Tables: []report.Table{pairs}})
+
+	figs, err := reportFigures(ex, func(n string) bool { return strings.HasPrefix(n, "scatter_") })
+	if err != nil {
+		return nil, err
+	}
+	r.Sections = append(r.Sections, report.Section{ID: "scatter", Heading: "Model against model, per neuron", Figures: figs})
+	figs, err = reportFigures(ex, func(n string) bool { return n == "hist_cc_norm_models" || strings.HasPrefix(n, "noise_ceiling_") })
+	if err != nil {
+		return nil, err
+	}
+	r.Sections = append(r.Sections, report.Section{ID: "distributions", Heading: "Distributions and noise ceiling", Figures: figs, Notes: cautions[:1]})
+
+	dataSec := report.Section{ID: "data", Heading: "Data",
+		Paragraphs: []string{fmt.Sprintf("Recordings: %s.", strings.Join(cj.Recordings, ", ")),
+			fmt.Sprintf("Axis: %s in %s, %g to %g%s, %d bins.", cj.Axis.Name, cj.Axis.Unit, cj.Axis.Min, cj.Axis.Max, periodicText(cj.Axis), cj.Axis.Bins),
+			fmt.Sprintf("Neurons: %d, of which %d excluded from every score.", cj.Neurons, len(cj.Excluded))}}
+	ids := make([]string, 0, len(cj.Excluded))
+	for id := range cj.Excluded {
+		ids = append(ids, id)
+	}
+	slices.Sort(ids)
+	for _, id := range ids {
+		dataSec.Notes = append(dataSec.Notes, fmt.Sprintf("Neuron %s (0-based) excluded: %s.", id, cj.Excluded[id]))
+	}
+	for _, w := range cj.Warnings {
+		dataSec.Notes = append(dataSec.Notes, "Warning: "+w)
+	}
+	r.Sections = append(r.Sections, dataSec,
+		report.Section{ID: "config", Heading: "Resolved config", Code: string(cfgYAML)})
+	return r, nil
+}
+
+func f3(v Num) string {
+	if math.IsNaN(float64(v)) {
+		return "NaN"
+	}
+	return strconv.FormatFloat(float64(v), 'f', 3, 64)
+}
+
+func g4(v float64) string { return strconv.FormatFloat(v, 'g', 4, 64) }
+
+func periodicText(a AxisInfo) string {
+	if a.Periodic {
+		return fmt.Sprintf(", periodic (period %g %s)", a.Max-a.Min, a.Unit)
+	}
+	return ""
+}
+
+func layerText(ls []LayerInfo) string {
+	var parts []string
+	for _, l := range ls {
+		parts = append(parts, fmt.Sprintf("conv %d channels x kernel %d, stride %d, %s border", l.Channels, l.Kernel, l.Stride, l.Border))
+	}
+	return strings.Join(parts, "; ")
+}
+
+// readTrainLog reads train_log.csv.
+func readTrainLog(path string) ([]EpochLog, error) {
+	h, rows, err := readCSV(path)
+	if err != nil {
+		return nil, err
+	}
+	want := []string{"epoch", "train_loss", "val_loss", "val_r2"}
+	k := make([]int, len(want))
+	for i, w := range want {
+		if k[i] = slices.Index(h, w); k[i] < 0 {
+			return nil, fmt.Errorf("%s: no column %q", path, w)
+		}
+	}
+	log := make([]EpochLog, len(rows))
+	for i, r := range rows {
+		var v [4]float64
+		for q := range want {
+			if v[q], err = strconv.ParseFloat(r[k[q]], 64); err != nil {
+				return nil, fmt.Errorf("%s: line %d, column %s: %q is not a number", path, i+2, want[q], r[k[q]])
+			}
+		}
+		log[i] = EpochLog{Epoch: int(v[0]), TrainLoss: v[1], ValLoss: v[2], ValR2: v[3]}
+	}
+	return log, nil
+}
+
+// lossFigure draws the training and validation loss against the epoch,
+// base+".svg" and base+".png", in the figure package's sizes, fonts and
+// colours.
+func lossFigure(base string, log []EpochLog) error {
+	p := plot.New()
+	p.X.Label.Text, p.Y.Label.Text = "epoch", "loss"
+	sans := font.Font{Typeface: "Liberation", Variant: "Sans"}
+	for _, a := range []*plot.Axis{&p.X, &p.Y} {
+		a.Label.TextStyle.Font = font.From(sans, figure.LabelSize)
+		a.Label.TextStyle.Color = figure.Ink
+		a.Tick.Label.Font = font.From(sans, figure.TickSize)
+		a.Tick.Label.Color = figure.Ink
+		a.LineStyle.Width = vg.Points(0.6)
+		a.Tick.LineStyle.Width = vg.Points(0.6)
+		a.Tick.Marker = plot.TickerFunc(roundTicks)
+	}
+	p.Legend.TextStyle.Font = font.From(sans, figure.LegendSize)
+	p.Legend.TextStyle.Color = figure.Ink
+	p.Legend.Top = true
+	for i, name := range []string{"train", "validation"} {
+		var xy plotter.XYs
+		for _, e := range log {
+			v := e.TrainLoss
+			if i == 1 {
+				v = e.ValLoss
+			}
+			if !math.IsNaN(v) && !math.IsInf(v, 0) {
+				xy = append(xy, plotter.XY{X: float64(e.Epoch), Y: v})
+			}
+		}
+		if len(xy) == 0 {
+			continue
+		}
+		l, err := plotter.NewLine(xy)
+		if err != nil {
+			return fmt.Errorf("%s: %w", base, err)
+		}
+		l.LineStyle = figure.SeriesStyle(i)
+		p.Add(l)
+		p.Legend.Add(name, l)
+	}
+	sc := vgsvg.New(figure.Width, figure.Height)
+	p.Draw(draw.New(sc))
+	var sb bytes.Buffer
+	if _, err := sc.WriteTo(&sb); err != nil {
+		return fmt.Errorf("%s.svg: %w", base, err)
+	}
+	ic := vgimg.NewWith(vgimg.UseWH(figure.Width, figure.Height), vgimg.UseDPI(figure.DPI))
+	p.Draw(draw.New(ic))
+	var pb bytes.Buffer
+	if _, err := (vgimg.PngCanvas{Canvas: ic}).WriteTo(&pb); err != nil {
+		return fmt.Errorf("%s.png: %w", base, err)
+	}
+	// Name metric-compatible fallbacks, as the figure package does.
+	svg := bytes.ReplaceAll(sb.Bytes(), []byte("font-family:Liberation Sans;"), []byte("font-family:'Liberation Sans',Arial,Helvetica,sans-serif;"))
+	if err := figure.WriteFileAtomic(base+".svg", svg); err != nil {
+		return err
+	}
+	return figure.WriteFileAtomic(base+".png", pb.Bytes())
+}
+
+// roundTicks labels ticks at multiples of 1, 2 or 5 times a power of ten,
+// with no more decimals than the step needs.
+func roundTicks(lo, hi float64) []plot.Tick {
+	if !(hi > lo) || math.IsInf(hi-lo, 0) {
+		return []plot.Tick{{Value: lo, Label: strconv.FormatFloat(lo, 'g', 4, 64)}}
+	}
+	mag := math.Pow(10, math.Floor(math.Log10((hi-lo)/5)))
+	step := mag
+	for _, m := range []float64{1, 2, 5, 10} {
+		if step = m * mag; (hi-lo)/step <= 7 {
+			break
+		}
+	}
+	dec := max(0, -int(math.Floor(math.Log10(step)+1e-9)))
+	var ticks []plot.Tick
+	for i := math.Ceil(lo/step - 1e-9); i*step <= hi+1e-9*step; i++ {
+		ticks = append(ticks, plot.Tick{Value: i * step, Label: strconv.FormatFloat(i*step+0, 'f', dec, 64)})
+	}
+	return ticks
 }

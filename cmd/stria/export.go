@@ -22,7 +22,9 @@ func exportCommand() *cli.Command {
 			if err := oneFolderArg(c); err != nil {
 				return err
 			}
-			ex, err := train.ExportFolder(c.Args().First(), exportOptions(c))
+			opt := exportOptions(c)
+			opt.Out = c.String("out")
+			ex, err := train.ExportFolder(c.Args().First(), opt)
 			if err != nil {
 				return err
 			}

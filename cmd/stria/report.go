@@ -1,0 +1,33 @@
+package main
+
+import (
+	"fmt"
+
+	"github.com/urfave/cli/v2"
+
+	"stria/train"
+)
+
+func reportCommand() *cli.Command {
+	return &cli.Command{
+		Name:      "report",
+		Usage:     "write one self-contained HTML report of a run or comparison folder (runs export first)",
+		ArgsUsage: "FOLDER",
+		Flags: []cli.Flag{
+			&cli.StringFlag{Name: "out", Usage: "report `FILE` (default: FOLDER/" + train.FileReport + ")"},
+			&cli.StringFlag{Name: "neurons", Usage: "run folders: neurons with a tuning figure, as for stria export (default \"" + train.DefaultNeurons + "\")"},
+			&cli.StringFlag{Name: "compare", Usage: "run folders: comparison `FOLDER` whose baselines are drawn in the tuning figures"},
+		},
+		Action: func(c *cli.Context) error {
+			if err := oneFolderArg(c); err != nil {
+				return err
+			}
+			path, err := train.WriteReport(c.Args().First(), c.String("out"), exportOptions(c))
+			if err != nil {
+				return err
+			}
+			fmt.Fprintln(c.App.Writer, path)
+			return nil
+		},
+	}
+}
