@@ -31,6 +31,8 @@ func newApp() *cli.App {
 			fitCommand(),
 			predictCommand(),
 			compareCommand(),
+			exportCommand(),
+			reportCommand(),
 		},
 	}
 }
