@@ -379,11 +379,16 @@ type PairTest struct {
 
 // Comparison is the outcome of a cross-validated comparison.
 type Comparison struct {
-	Models  []string
-	Folds   int
-	Neurons int
+	// Recording names the recording ("" for a single one, "pooled" for
+	// neurons pooled across recordings).
+	Recording string
+	Models    []string
+	Folds     int
+	Neurons   int
+	// Excluded counts the neurons left out (constant responses).
+	Excluded int
 	// PerNeuron[model][metric] is each neuron's score averaged over the
-	// folds (NaN folds left out).
+	// folds (NaN folds left out; NaN for excluded neurons).
 	PerNeuron map[string]map[string][]float64
 	Summary   map[string]map[string]Spread
 	Pairs     []PairTest
@@ -393,11 +398,9 @@ type Comparison struct {
 
 // Summarise averages each neuron's scores over folds and compares models.
 func Summarise(models []string, folds, neurons int, results []*FoldResult, excluded map[int]string) *Comparison {
-	c := &Comparison{Models: models, Folds: folds, Neurons: neurons,
-		PerNeuron: map[string]map[string][]float64{}, Summary: map[string]map[string]Spread{}, Winner: map[string]string{}}
+	c := &Comparison{Models: models, Folds: folds, Neurons: neurons, Excluded: len(excluded), PerNeuron: map[string]map[string][]float64{}}
 	for _, m := range models {
 		c.PerNeuron[m] = map[string][]float64{}
-		c.Summary[m] = map[string]Spread{}
 		for _, k := range CompareMetrics {
 			sum := make([]float64, neurons)
 			cnt := make([]int, neurons)
@@ -413,33 +416,75 @@ func Summarise(models []string, folds, neurons int, results []*FoldResult, exclu
 				}
 			}
 			avg := make([]float64, neurons)
-			var kept []float64
 			for j := range avg {
 				avg[j] = math.NaN()
-				if cnt[j] > 0 {
+				if _, ex := excluded[j]; !ex && cnt[j] > 0 {
 					avg[j] = sum[j] / float64(cnt[j])
 				}
-				if _, ex := excluded[j]; ex {
-					avg[j] = math.NaN()
-					continue
-				}
-				kept = append(kept, avg[j])
 			}
 			c.PerNeuron[m][k] = avg
-			sm := eval.Summarize(kept)
-			c.Summary[m][k] = Spread{Median: Num(sm.Median), Q1: Num(sm.Q1), Q3: Num(sm.Q3), N: sm.N, NaN: sm.NaN}
+		}
+	}
+	c.compare()
+	return c
+}
+
+// Pool pools the neurons of several comparisons, for the models that all
+// of them share.
+func Pool(cmps []*Comparison) *Comparison {
+	var models []string
+	for _, m := range cmps[0].Models {
+		all := true
+		for _, c := range cmps[1:] {
+			all = all && slices.Contains(c.Models, m)
+		}
+		if all {
+			models = append(models, m)
+		}
+	}
+	p := &Comparison{Recording: "pooled", Models: models, Folds: cmps[0].Folds, PerNeuron: map[string]map[string][]float64{}}
+	for _, c := range cmps {
+		p.Neurons += c.Neurons
+		p.Excluded += c.Excluded
+	}
+	for _, m := range models {
+		p.PerNeuron[m] = map[string][]float64{}
+		for _, k := range CompareMetrics {
+			var v []float64
+			for _, c := range cmps {
+				v = append(v, c.PerNeuron[m][k]...)
+			}
+			p.PerNeuron[m][k] = v
+		}
+	}
+	p.compare()
+	return p
+}
+
+// compare fills the summaries, winners and pairwise tests from PerNeuron;
+// excluded neurons (NaN throughout) are not counted as NaN scores.
+func (c *Comparison) compare() {
+	excluded := c.Excluded
+	c.Summary = map[string]map[string]Spread{}
+	c.Winner = map[string]string{}
+	c.Pairs = nil
+	for _, m := range c.Models {
+		c.Summary[m] = map[string]Spread{}
+		for _, k := range CompareMetrics {
+			sm := eval.Summarize(c.PerNeuron[m][k])
+			c.Summary[m][k] = Spread{Median: Num(sm.Median), Q1: Num(sm.Q1), Q3: Num(sm.Q3), N: sm.N, NaN: sm.NaN - excluded}
 		}
 	}
 	for _, k := range CompareMetrics {
 		best, bestV := "", math.Inf(-1)
-		for _, m := range models {
+		for _, m := range c.Models {
 			if v := float64(c.Summary[m][k].Median); v > bestV {
 				best, bestV = m, v
 			}
 		}
 		c.Winner[k] = best
-		for i, a := range models {
-			for _, b := range models[i+1:] {
+		for i, a := range c.Models {
+			for _, b := range c.Models[i+1:] {
 				x, y := c.PerNeuron[a][k], c.PerNeuron[b][k]
 				var wins, both int
 				for j := range x {
@@ -459,5 +504,4 @@ func Summarise(models []string, folds, neurons int, results []*FoldResult, exclu
 			}
 		}
 	}
-	return c
 }

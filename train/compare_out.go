@@ -11,6 +11,7 @@ import (
 	"strings"
 
 	"stria/data"
+	"stria/eval"
 	"stria/eval/tuning"
 )
 
@@ -242,4 +243,64 @@ func PrintComparison(w io.Writer, c *Comparison) {
 		}
 		fmt.Fprintf(w, "  %-*s vs %-*s  %5.1f %%  p = %.3g (%s, n = %d)\n", width, pt.A, width, pt.B, 100*pt.ShareA, pt.P, pt.Method, pt.N)
 	}
+}
+
+// Files of a comparison across recordings.
+const (
+	FileRecordings  = "recordings.csv"
+	FilePooled      = "pooled.csv"
+	FilePooledPairs = "pooled_pairs.csv"
+)
+
+// writeAcross writes the tables across recordings: every recording's
+// medians (and the median of the recording medians), and the summary and
+// pairwise tests with neurons pooled.
+func writeAcross(dir string, cmps []*Comparison) error {
+	pooled := Pool(cmps)
+	err := WriteAtomic(filepath.Join(dir, FileRecordings), func(w io.Writer) error {
+		fmt.Fprintln(w, "recording,model,metric,median,q1,q3,neurons,nan")
+		for _, c := range cmps {
+			for _, m := range c.Models {
+				for _, k := range CompareMetrics {
+					s := c.Summary[m][k]
+					fmt.Fprintf(w, "%s,%s,%s,%s,%s,%s,%d,%d\n", csvField(c.Recording), csvField(m), k, fmtNum(float64(s.Median)), fmtNum(float64(s.Q1)), fmtNum(float64(s.Q3)), s.N, s.NaN)
+				}
+			}
+		}
+		// The median over recordings of each recording's median.
+		for _, m := range pooled.Models {
+			for _, k := range CompareMetrics {
+				var med []float64
+				for _, c := range cmps {
+					med = append(med, float64(c.Summary[m][k].Median))
+				}
+				s := eval.Summarize(med)
+				fmt.Fprintf(w, "median of recordings,%s,%s,%s,%s,%s,%d,%d\n", csvField(m), k, fmtNum(s.Median), fmtNum(s.Q1), fmtNum(s.Q3), s.N, s.NaN)
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		return err
+	}
+	err = WriteAtomic(filepath.Join(dir, FilePooled), func(w io.Writer) error {
+		fmt.Fprintln(w, "model,metric,median,q1,q3,neurons,nan")
+		for _, m := range pooled.Models {
+			for _, k := range CompareMetrics {
+				s := pooled.Summary[m][k]
+				fmt.Fprintf(w, "%s,%s,%s,%s,%s,%d,%d\n", csvField(m), k, fmtNum(float64(s.Median)), fmtNum(float64(s.Q1)), fmtNum(float64(s.Q3)), s.N, s.NaN)
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		return err
+	}
+	return WriteAtomic(filepath.Join(dir, FilePooledPairs), func(w io.Writer) error {
+		fmt.Fprintln(w, "metric,model_a,model_b,share_a_higher,w,p,n,dropped,method")
+		for _, pt := range pooled.Pairs {
+			fmt.Fprintf(w, "%s,%s,%s,%s,%s,%s,%d,%d,%s\n", pt.Metric, csvField(pt.A), csvField(pt.B), fmtNum(pt.ShareA), fmtNum(pt.W), fmtNum(pt.P), pt.N, pt.Dropped, pt.Method)
+		}
+		return nil
+	})
 }

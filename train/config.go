@@ -27,6 +27,9 @@ type Config struct {
 	Split SplitConfig `yaml:"split"`
 	Model ModelConfig `yaml:"model"`
 	Train TrainConfig `yaml:"train"`
+	// Recordings lists several recordings for stria compare; empty: the
+	// data section is the one recording.
+	Recordings []RecordingConfig `yaml:"recordings"`
 	// Compare lists the models of stria compare.
 	Compare CompareConfig `yaml:"compare"`
 	// Output is the run folder written by stria fit.
@@ -178,6 +181,10 @@ func (c *Config) resolvePaths() {
 	for _, p := range []*string{&d.Responses, &d.Stimulus, &d.Condition, &d.Block, &c.Output, &c.Compare.Output} {
 		*p = c.Resolve(*p)
 	}
+	// A recording's other paths are relative to its responses file.
+	for i := range c.Recordings {
+		c.Recordings[i].Responses = c.Resolve(c.Recordings[i].Responses)
+	}
 }
 
 // ParseConfig decodes YAML bytes over the defaults; name is used in errors.
@@ -241,6 +248,8 @@ func sectionOf(typ string) string {
 		return "compare"
 	case "EncoderSpec":
 		return "compare.encoders[]"
+	case "RecordingConfig":
+		return "recordings[]"
 	}
 	return ""
 }
@@ -300,7 +309,7 @@ func (c *Config) border(l LayerConfig) (nn.Border, error) {
 func (c *Config) Validate() error {
 	var errs []string
 	bad := func(format string, a ...any) { errs = append(errs, fmt.Sprintf(format, a...)) }
-	if c.Data.Responses == "" {
+	if c.Data.Responses == "" && len(c.Recordings) == 0 {
 		bad("data.responses: no response file given (set it in the config or with --responses)")
 	}
 	ax := c.DataAxis()

@@ -10,6 +10,7 @@ import (
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
+	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/lapack/lapack64"
 
 	"stria/data"
@@ -75,7 +76,7 @@ type projector struct {
 	withN  []float64 // N, within-condition sum of squares on the validation trials
 	valTot []float64 // N, total sum of squares on the validation trials
 	// r2Every: the median validation R^2 is computed on every r2Every-th
-	// epoch (and on the first and last); other epochs log NaN. It is 1
+	// epoch (and on the first and the best); other epochs log NaN. It is 1
 	// unless the recording is so large that the pass over the neurons
 	// would dominate a step.
 	r2Every int
@@ -95,10 +96,13 @@ type projector struct {
 	obj, loss, val, vr2 float64   // results of the last eval
 }
 
-// projectedR2Budget bounds the multiply-adds per epoch spent on the median
-// validation R^2 (Bv Bt N); above it the R^2 is logged every few epochs.
-// 2e7 is about 5 ms on one core of the 2-core test machine.
-const projectedR2Budget = 2e7
+// projectedR2Budget bounds the multiply-adds per epoch spent, on average,
+// on the median validation R^2 (Bv Bt N of them each time it is computed):
+// 2e6 is about the work of one step at the full-size shape (B 60, F 480),
+// so the R^2 never costs more than the training itself. At 60 bins it is
+// computed every epoch up to about 550 neurons and every 44th epoch at
+// 24,000 neurons.
+const projectedR2Budget = 2e6
 
 func newProjector(p *Prepared, net *nn.Net) (*projector, error) {
 	cfg := p.Cfg
@@ -273,13 +277,47 @@ func (pj *projector) features(net *nn.Net) []float64 {
 // if K is not numerically positive definite (only possible with NaN or Inf
 // features).
 func (pj *projector) factor() (blas64.Triangular, bool) {
-	Bt := pj.Bt
-	blas64.Gemm(blas.NoTrans, blas.Trans, 1, gen(pj.a, Bt, pj.F), gen(pj.a, Bt, pj.F), 0, gen(pj.k, Bt, Bt))
+	Bt, F := pj.Bt, pj.F
+	mulABt(pj.k, pj.a, pj.a, Bt, Bt, F, true)
 	for i := 0; i < Bt; i++ {
 		pj.k[i*Bt+i] += pj.mu
 	}
 	copy(pj.l, pj.k)
 	return lapack64.Potrf(blas64.Symmetric{Uplo: blas.Lower, N: Bt, Stride: Bt, Data: pj.l})
+}
+
+// mulABt writes dst = a b^T, with a [m][k], b [n][k], dst [m][n]. With
+// sym (a == b, m == n) only the lower triangle is computed and mirrored.
+// Serial: at the sizes of a step (m, n <= B, k = F) a parallel Gemm costs
+// more in goroutines and allocations than it saves.
+func mulABt(dst, a, b []float64, m, n, k int, sym bool) {
+	for i := 0; i < m; i++ {
+		ai := a[i*k : (i+1)*k]
+		jn := n
+		if sym {
+			jn = i + 1
+		}
+		for j := 0; j < jn; j++ {
+			v := floats.Dot(ai, b[j*k:(j+1)*k])
+			dst[i*n+j] = v
+			if sym {
+				dst[j*n+i] = v
+			}
+		}
+	}
+}
+
+// mulAB writes dst = a b, with a [m][k], b [k][n], dst [m][n], serially.
+func mulAB(dst, a, b []float64, m, k, n int) {
+	for i := 0; i < m; i++ {
+		d := dst[i*n : (i+1)*n]
+		clear(d)
+		for c, v := range a[i*k : (i+1)*k] {
+			if v != 0 {
+				floats.AddScaled(d, v, b[c*n:(c+1)*n])
+			}
+		}
+	}
 }
 
 // solveLeft overwrites b (Bt x cols) with K^-1 b.
@@ -321,7 +359,7 @@ func (pj *projector) eval(net *nn.Net, grad, r2 bool) error {
 	pj.obj = (pj.within + pj.mu*trX) * scale
 	pj.loss = (pj.within + pj.mu*pj.mu*trM) * scale
 	if grad {
-		blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(pj.m, Bt, Bt), gen(pj.a, Bt, F), 0, gen(pj.ga, Bt, F))
+		mulAB(pj.ga, pj.m, pj.a, Bt, Bt, F)
 		clear(pj.dH)
 		c := -2 * pj.mu * scale
 		for r, b := range pj.rows {
@@ -346,9 +384,9 @@ func (pj *projector) eval(net *nn.Net, grad, r2 bool) error {
 		}
 	}
 	rk := gen(pj.rk, Bv, Bt)
-	blas64.Gemm(blas.NoTrans, blas.Trans, 1, gen(pj.hv, Bv, F), gen(pj.a, Bt, F), 0, rk)
+	mulABt(pj.rk, pj.hv, pj.a, Bv, Bt, F, false)
 	solveRight(l, rk)
-	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, rk, gen(pj.S, Bt, Bt), 0, gen(pj.t, Bv, Bt))
+	mulAB(pj.t, pj.rk, pj.S, Bv, Bt, Bt)
 	sum := pj.withinV
 	for r := 0; r < Bv; r++ {
 		rr := pj.rk[r*Bt : (r+1)*Bt]

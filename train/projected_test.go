@@ -3,6 +3,7 @@ package train
 import (
 	"context"
 	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"slices"
@@ -237,5 +238,107 @@ func TestProjectedResume(t *testing.T) {
 	}
 	if len(resumed.Log) != len(whole.Log) {
 		t.Errorf("log has %d epochs, want %d", len(resumed.Log), len(whole.Log))
+	}
+}
+
+// benchPrepared is a demo-scenario recording with 60 bins for benchmarks.
+func benchPrepared(b *testing.B, neurons, trials int) *Prepared {
+	b.Helper()
+	p, _ := synthPrepared(b, neurons, trials, func(c *Config) {
+		c.Train.Solver = "projected"
+		c.Train.MaxEpochs = 3000
+		c.Train.Patience = 100
+	})
+	return p
+}
+
+// BenchmarkProjectedEpoch times one evaluation of the projected objective
+// and its filter gradient (the work of one epoch, validation loss
+// included, R^2 excluded), at the full-size model shape: 60 bins, 8
+// channels, K 9, F 480. Its cost must not grow with the neurons.
+func BenchmarkProjectedEpoch(b *testing.B) {
+	for _, n := range []int{500, 2000, 8000} {
+		b.Run(fmt.Sprintf("neurons=%d", n), func(b *testing.B) {
+			p := benchPrepared(b, n, 1200)
+			net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
+			initConv(net, rand.New(rand.NewPCG(1, 2)))
+			pj, err := newProjector(p, net)
+			if err != nil {
+				b.Fatal(err)
+			}
+			b.ReportAllocs()
+			b.ResetTimer()
+			for range b.N {
+				if err := pj.eval(net, true, false); err != nil {
+					b.Fatal(err)
+				}
+			}
+		})
+	}
+}
+
+// BenchmarkProjectedValR2 times the median validation R^2 (the only
+// per-neuron work of an epoch).
+func BenchmarkProjectedValR2(b *testing.B) {
+	for _, n := range []int{500, 2000, 8000} {
+		b.Run(fmt.Sprintf("neurons=%d", n), func(b *testing.B) {
+			p := benchPrepared(b, n, 1200)
+			net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
+			initConv(net, rand.New(rand.NewPCG(1, 2)))
+			pj, err := newProjector(p, net)
+			if err != nil {
+				b.Fatal(err)
+			}
+			if err := pj.eval(net, false, false); err != nil {
+				b.Fatal(err)
+			}
+			b.ReportAllocs()
+			b.ResetTimer()
+			for range b.N {
+				pj.valR2()
+			}
+		})
+	}
+}
+
+// BenchmarkFitProjected times a whole projected fit (condition statistics,
+// training to the patience stop, final readout) over a ladder of neuron
+// counts, 1200 trials.
+func BenchmarkFitProjected(b *testing.B) {
+	for _, n := range []int{500, 2000, 8000} {
+		b.Run(fmt.Sprintf("neurons=%d", n), func(b *testing.B) {
+			p := benchPrepared(b, n, 1200)
+			b.ReportAllocs()
+			b.ResetTimer()
+			var epochs int
+			for range b.N {
+				f, err := Fit(context.Background(), p, Hooks{}, nil)
+				if err != nil {
+					b.Fatal(err)
+				}
+				epochs = len(f.Log)
+			}
+			b.ReportMetric(float64(epochs), "epochs")
+		})
+	}
+}
+
+// TestScoreNet checks that the low-memory ScoreNet gives exactly the
+// scores of the reference path Score(p, PredictTrials(...)), with and
+// without z-scoring, for a neuron count that is not a multiple of the
+// block size.
+func TestScoreNet(t *testing.T) {
+	for _, z := range []bool{true, false} {
+		p, _ := synthPrepared(t, scoreCols+37, 300, func(c *Config) { c.Split.ZScore = z; c.Axis.BinWidth = 12 })
+		net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
+		net.Init(rand.New(rand.NewPCG(5, 6)))
+		want := Score(p, PredictTrials(net, p, p.Test))
+		got := ScoreNet(p, net)
+		for j := range want {
+			a, b := fmt.Sprint(want[j]), fmt.Sprint(got[j])
+			if a != b {
+				t.Fatalf("zscore %v, neuron %d: ScoreNet %s, reference %s", z, j, b, a)
+			}
+		}
 	}
 }

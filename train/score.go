@@ -31,12 +31,20 @@ func PredictTrials(net *nn.Net, p *Prepared, trials []int) []float64 {
 	out := predictTrials(net, p, trials)
 	if p.Norm != nil {
 		n := p.Neurons()
-		for i := range out {
-			j := i % n
-			out[i] = out[i]*p.Norm.Scale[j] + p.Norm.Mean[j]
+		for lo := 0; lo < len(out); lo += n {
+			unscale(out[lo:lo+n], p.Norm.Scale, p.Norm.Mean)
 		}
 	}
 	return out
+}
+
+// unscale undoes the z-scoring of one row of predictions in place:
+// row[j] = row[j]*scale[j] + mean[j].
+func unscale(row, scale, mean []float64) {
+	scale, mean = scale[:len(row)], mean[:len(row)]
+	for j, v := range row {
+		row[j] = v*scale[j] + mean[j]
+	}
 }
 
 // predictTrials is PredictTrials in the units the net was trained in.
@@ -63,6 +71,49 @@ func predictTrials(net *nn.Net, p *Prepared, trials []int) []float64 {
 		copy(out[lo*n:hi*n], pred[:(hi-lo)*n])
 	}
 	return out
+}
+
+// scoreCols is the number of neurons ScoreNet scores at a time.
+const scoreCols = 1024
+
+// ScoreNet returns Score(p, PredictTrials(net, p, p.Test)), the same
+// numbers bit for bit, without the len(p.Test) x N prediction matrix when
+// the input is one-hot: the predictions of the B conditions are computed
+// once, and the neurons are scored scoreCols at a time on a copy of their
+// test responses and predictions (len(p.Test) x scoreCols), which is
+// possible because every score of a neuron depends on that neuron's column
+// only. At 24,000 neurons and 920 test trials this replaces 177 MB of fresh
+// memory by 11 MB.
+func ScoreNet(p *Prepared, net *nn.Net) []eval.Scores {
+	if p.Soft() {
+		return Score(p, PredictTrials(net, p, p.Test))
+	}
+	n, m := p.Neurons(), len(p.Test)
+	pc := PredictConditions(net, p.NBins)
+	if p.Norm != nil {
+		for lo := 0; lo < len(pc); lo += n {
+			unscale(pc[lo:lo+n], p.Norm.Scale, p.Norm.Mean)
+		}
+	}
+	s := make([]eval.Scores, n)
+	idx := make([]int, m)
+	cond := make([]int, m)
+	for i, t := range p.Test {
+		idx[i], cond[i] = i, p.Cond[t]
+	}
+	cols := min(scoreCols, n)
+	y := make([]float32, m*cols)
+	pred := make([]float64, m*cols)
+	for lo := 0; lo < n; lo += cols {
+		w := min(cols, n-lo)
+		for i, t := range p.Test {
+			copy(y[i*w:(i+1)*w], p.Rec.Y.Row(t)[lo:lo+w])
+			c := cond[i]
+			copy(pred[i*w:(i+1)*w], pc[c*n+lo:c*n+lo+w])
+		}
+		eval.ScorePopulation(s[lo:lo+w], y[:m*w], w, idx, cond, pred[:m*w], p.NBins)
+	}
+	return s
 }
 
 // Score evaluates predictions of the test trials (len(p.Test) x N) with

@@ -33,6 +33,7 @@ func newApp() *cli.App {
 			compareCommand(),
 			exportCommand(),
 			reportCommand(),
+			mergeCommand(),
 		},
 	}
 }

@@ -179,7 +179,7 @@ func runDemo(ctx context.Context, stdout, stderr io.Writer, o demoOptions) error
 		return err
 	}
 	fmt.Fprintf(stdout, "\n== stria compare --config %s\n", cfgPath)
-	if _, err := runCompare(ctx, cfg, stdout, stderr, o.quiet); err != nil {
+	if _, err := runCompare(ctx, cfg, stdout, stderr, compareOptions{quiet: o.quiet}); err != nil {
 		return err
 	}
 	return nil
