@@ -51,6 +51,7 @@ type options struct {
 	adamTimeout        time.Duration
 	skipAdam, skipLoad bool
 	keepRuns           bool
+	refScore           bool
 	projectedMaxEpochs int
 	projectedPatience  int
 	projectedLR        float64
@@ -77,6 +78,7 @@ func main() {
 	flag.DurationVar(&o.adamTimeout, "adam-timeout", 20*time.Minute, "give up the Adam comparison after this long")
 	flag.BoolVar(&o.skipAdam, "skip-adam", false, "skip the mini-batch Adam comparison")
 	flag.BoolVar(&o.skipLoad, "skip-load", false, "skip the .npy load measurement")
+	flag.BoolVar(&o.refScore, "ref-score", true, "in the phases, also time the PredictTrials + Score path that stria fit uses")
 	flag.BoolVar(&o.keepRuns, "keep", true, "keep the run folders in -dir")
 	flag.IntVar(&o.projectedMaxEpochs, "max-epochs", 3000, "train.max_epochs of the projected fits")
 	flag.IntVar(&o.projectedPatience, "patience", 100, "train.patience of the projected fits")
@@ -429,10 +431,14 @@ func phases(o options, r rec) error {
 		return err
 	}
 	lap(fmt.Sprintf("fit (%d epochs)", len(f.Log)))
-	pred := train.PredictTrials(f.Net, p, p.Test)
-	lap("predict test trials")
-	scores := train.Score(p, pred)
-	lap("score")
+	scores := train.ScoreNet(p, f.Net)
+	lap("score (train.ScoreNet, neuron blocks)")
+	if o.refScore {
+		pred := train.PredictTrials(f.Net, p, p.Test)
+		lap("predict test trials (as stria fit)")
+		scores = train.Score(p, pred)
+		lap("score (as stria fit)")
+	}
 	if _, err := train.WriteRun(out, p, f, scores, time.Since(t0)); err != nil {
 		return err
 	}
