@@ -24,7 +24,7 @@ func TestSelectNeurons(t *testing.T) {
 		{"worst 2", []int{3, 0}},
 		{"best 2,worst 1,0", []int{2, 4, 3, 0}},
 		{" 1 , 1,best 1", []int{1, 2}}, // an index may name a NaN neuron; repeats dropped
-		{"best 10", []int{2, 4, 0, 3}},  // capped at the ranked neurons
+		{"best 10", []int{2, 4, 0, 3}}, // capped at the ranked neurons
 	} {
 		got, err := SelectNeurons(c.sel, score, 1)
 		if err != nil || !slices.Equal(got, c.want) {
