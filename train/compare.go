@@ -92,7 +92,7 @@ func (c *Config) Specs() ([]ModelSpec, error) {
 		}
 		base := *c
 		base.Model.Layers = slices.Clone(c.Model.Layers)
-		if e.Layers != nil {
+		if len(e.Layers) > 0 {
 			base.Model.Layers = slices.Clone(e.Layers)
 			for k := range base.Model.Layers {
 				if base.Model.Layers[k].Stride == 0 {

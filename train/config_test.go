@@ -158,3 +158,33 @@ compare:
 		t.Error("gaussian accepted on a periodic axis")
 	}
 }
+
+// TestResolvedConfigRoundTrip checks that the resolved config a run or a
+// comparison writes reads back to the same models (stria merge relies on
+// it): a spec without layers must keep the config's layers.
+func TestResolvedConfigRoundTrip(t *testing.T) {
+	src := "data: {responses: /r.npy}\naxis: {min: 0, max: 360, periodic: true, bin_width: 30}\n" +
+		"compare:\n  encoders:\n    - name: a\n    - name: b\n      layers: [{channels: 2, kernel: 3}]\n"
+	cfg, err := ParseConfig([]byte(src), "c.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := cfg.Marshal()
+	if err != nil {
+		t.Fatal(err)
+	}
+	back, err := ParseConfig(b, "resolved.yaml")
+	if err != nil {
+		t.Fatalf("resolved config does not parse: %v\n%s", err, b)
+	}
+	s1, err1 := cfg.Specs()
+	s2, err2 := back.Specs()
+	if err1 != nil || err2 != nil || len(s1) != len(s2) {
+		t.Fatalf("specs: %v / %v", err1, err2)
+	}
+	for i := range s1 {
+		if s1[i].Name != s2[i].Name || (s1[i].Cfg != nil && s1[i].Cfg.Model.Layers[0] != s2[i].Cfg.Model.Layers[0]) {
+			t.Errorf("spec %d: %+v then %+v", i, s1[i], s2[i])
+		}
+	}
+}
