@@ -17,7 +17,6 @@ package main
 import (
 	"context"
 	"encoding/json"
-	"errors"
 	"flag"
 	"fmt"
 	"math"
@@ -58,7 +57,18 @@ type options struct {
 	projectedReadoutL2 float64
 }
 
+// runnerFlag starts striabench as a small runner that runs one child
+// command and prints its wall time and peak RSS. Linux charges a child
+// started by a big process (os/exec shares the parent's memory map until
+// exec) with the parent's peak RSS; a child of the small runner reports
+// its own.
+const runnerFlag = "-run-child"
+
 func main() {
+	if len(os.Args) > 2 && os.Args[1] == runnerFlag {
+		runChild(os.Args[2:])
+		return
+	}
 	var o options
 	flag.StringVar(&o.dir, "dir", filepath.Join(os.TempDir(), "striabench"), "folder for the recordings, configs and run folders (recordings are reused when present)")
 	flag.StringVar(&o.stria, "stria", "", "stria binary to time (default: build ./cmd/stria into -dir)")
@@ -177,6 +187,48 @@ func run(o options) error {
 		fmt.Printf("  difference projected - adam:      %+.5f\n", rp.r2-ra.r2)
 	}
 	return nil
+}
+
+// childResult is what the runner prints.
+type childResult struct {
+	Wall   float64 `json:"wall"`
+	MaxRSS float64 `json:"max_rss"` // bytes
+	Err    string  `json:"err,omitempty"`
+	Stderr string  `json:"stderr,omitempty"`
+}
+
+// runChild runs args, stopping it with an interrupt after the duration in
+// the STRIABENCH_TIMEOUT environment variable, and prints a childResult.
+func runChild(args []string) {
+	var res childResult
+	cmd := exec.Command(args[0], args[1:]...)
+	var stderr strings.Builder
+	cmd.Stderr = &stderr
+	timeout, _ := time.ParseDuration(os.Getenv("STRIABENCH_TIMEOUT"))
+	start := time.Now()
+	err := cmd.Start()
+	if err == nil {
+		done := make(chan error, 1)
+		go func() { done <- cmd.Wait() }()
+		var limit <-chan time.Time
+		if timeout > 0 {
+			limit = time.After(timeout)
+		}
+		select {
+		case err = <-done:
+		case <-limit:
+			cmd.Process.Signal(os.Interrupt)
+			<-done
+			err = fmt.Errorf("stopped after %s", timeout)
+		}
+	}
+	res.Wall = time.Since(start).Seconds()
+	if err != nil {
+		res.Err, res.Stderr = err.Error(), stderr.String()
+	} else if ru, ok := cmd.ProcessState.SysUsage().(*syscall.Rusage); ok {
+		res.MaxRSS = float64(ru.Maxrss) * 1024 // Linux reports kilobytes
+	}
+	json.NewEncoder(os.Stdout).Encode(res)
 }
 
 // rec is a recording on disk.
@@ -324,39 +376,31 @@ func timeFit(o options, r rec, solver, tag string, repeats int) (fitResult, erro
 	var walls, rss []float64
 	for i := 0; i < max(1, repeats); i++ {
 		os.RemoveAll(out)
-		cmd := exec.Command(o.stria, "fit", "--quiet", "--config", cfgPath)
-		var stderr strings.Builder
-		cmd.Stderr = &stderr
-		start := time.Now()
-		if err := cmd.Start(); err != nil {
+		self, err := os.Executable()
+		if err != nil {
 			return res, err
 		}
-		done := make(chan error, 1)
-		go func() { done <- cmd.Wait() }()
-		var err error
+		cmd := exec.Command(self, runnerFlag, o.stria, "fit", "--quiet", "--config", cfgPath)
+		cmd.Env = os.Environ()
 		if solver == "adam" && o.adamTimeout > 0 {
-			select {
-			case err = <-done:
-			case <-time.After(o.adamTimeout):
-				cmd.Process.Signal(os.Interrupt)
-				<-done
-				return res, fmt.Errorf("adam comparison stopped after %s (-adam-timeout); try a smaller -adam-neurons", o.adamTimeout)
-			}
-		} else {
-			err = <-done
+			cmd.Env = append(cmd.Env, "STRIABENCH_TIMEOUT="+o.adamTimeout.String())
 		}
-		wall := time.Since(start).Seconds()
+		b, err := cmd.Output()
 		if err != nil {
-			return res, fmt.Errorf("stria fit %s: %v\n%s", cfgPath, err, stderr.String())
+			return res, fmt.Errorf("runner: %w", err)
 		}
-		ru, ok := cmd.ProcessState.SysUsage().(*syscall.Rusage)
-		if !ok {
-			return res, errors.New("no rusage from the child process")
+		var cr childResult
+		if err := json.Unmarshal(b, &cr); err != nil {
+			return res, fmt.Errorf("runner output %q: %w", b, err)
 		}
-		walls = append(walls, wall)
-		rss = append(rss, float64(ru.Maxrss)*1024) // Linux reports kilobytes
+		if cr.Err != "" {
+			return res, fmt.Errorf("stria fit %s: %s\n%s", cfgPath, cr.Err, cr.Stderr)
+		}
+		walls = append(walls, cr.Wall)
+		rss = append(rss, cr.MaxRSS)
+		wall, maxRSS := cr.Wall, cr.MaxRSS
 		if repeats > 1 {
-			fmt.Printf("  %s run %d: %.2f s wall, peak RSS %.0f MB\n", tag, i+1, wall, float64(ru.Maxrss)*1024/1e6)
+			fmt.Printf("  %s run %d: %.2f s wall, peak RSS %.0f MB\n", tag, i+1, wall, maxRSS/1e6)
 		}
 	}
 	var sum train.Summary
