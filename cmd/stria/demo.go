@@ -182,5 +182,16 @@ func runDemo(ctx context.Context, stdout, stderr io.Writer, o demoOptions) error
 	if _, err := runCompare(ctx, cfg, stdout, stderr, compareOptions{quiet: o.quiet}); err != nil {
 		return err
 	}
+	fmt.Fprintf(stdout, "\n== stria report --compare %s %s\n", cfg.Compare.Output, cfg.Output)
+	runReport, err := train.WriteReport(cfg.Output, "", train.ExportOptions{Compare: cfg.Compare.Output})
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(stdout, "\n== stria report %s\n", cfg.Compare.Output)
+	cmpReport, err := train.WriteReport(cfg.Compare.Output, "", train.ExportOptions{})
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(stdout, "\nreports (open in a browser; they print to PDF):\n  %s\n  %s\n", runReport, cmpReport)
 	return nil
 }
