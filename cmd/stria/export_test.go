@@ -155,6 +155,13 @@ func TestExportAndReport(t *testing.T) {
 		t.Fatalf("demo: %v\n%s", err, out)
 	}
 	run, cmp := filepath.Join(dir, "run"), filepath.Join(dir, "compare")
+	// The demo wrote its reports, exporting with the default neurons; start
+	// from clean folders so that the exports below are checked on their own.
+	for _, d := range []string{run, cmp} {
+		if err := os.RemoveAll(filepath.Join(d, train.DirExport)); err != nil {
+			t.Fatal(err)
+		}
+	}
 
 	// Copy the run folder before anything is exported into it.
 	other := filepath.Join(t.TempDir(), "elsewhere", "run-copy")

@@ -32,12 +32,17 @@ func TestDemoEndToEnd(t *testing.T) {
 	if err != nil {
 		t.Fatalf("demo: %v\n%s", err, out)
 	}
-	for _, want := range []string{"stria inspect", "split-half reliability", "stria fit", "test_r2", "cc_norm", "depend on the split"} {
+	for _, want := range []string{"stria inspect", "split-half reliability", "stria fit", "test_r2", "cc_norm", "depend on the split", "report.html"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("demo output lacks %q", want)
 		}
 	}
 	run := filepath.Join(dir, "run")
+	for _, f := range []string{filepath.Join(run, train.FileReport), filepath.Join(dir, "compare", train.FileReport)} {
+		if st, err := os.Stat(f); err != nil || st.Size() < 10000 {
+			t.Errorf("demo report %s missing or small (%v)", f, err)
+		}
+	}
 	for _, f := range []string{train.FileConfig, train.FileManifest, train.FileFilters, train.FileMetrics, train.FileSummary, train.FileLog, train.FileSplit, "weights/readout_weight.npy"} {
 		if st, err := os.Stat(filepath.Join(run, f)); err != nil || st.Size() == 0 {
 			t.Errorf("run folder: %s missing or empty (%v)", f, err)
