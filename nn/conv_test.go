@@ -165,7 +165,7 @@ func TestConvPanics(t *testing.T) {
 	b := make([]float64, 2)
 	y := make([]float64, 20)
 	wantPanic(t, "stride 0", func() { c := ok; c.Stride = 0; c.Forward(y, x, w, b, 1) })
-	wantPanic(t, "K 0", func() { c := ok; c.K = 0; c.OutLen(); c.Check() })
+	wantPanic(t, "K 0", func() { c := ok; c.K = 0; c.Check() })
 	wantPanic(t, "valid K > L", func() { c := ok; c.Border = Valid; c.K = 11; c.Check() })
 	wantPanic(t, "bad border", func() { c := ok; c.Border = 7; c.Check() })
 	wantPanic(t, "short x", func() { ok.Forward(y, x[:9], w, b, 1) })

@@ -48,7 +48,6 @@ type curveFit struct {
 	// Result in original units.
 	params []float64
 	note   string
-	ok     bool
 	method *optimize.BFGS
 }
 
