@@ -96,27 +96,10 @@ func WriteComparison(dir string, p *Prepared, specs []ModelSpec, results []*Fold
 	if err != nil {
 		return err
 	}
-	err = WriteAtomic(filepath.Join(dir, FileCmpSummary), func(w io.Writer) error {
-		fmt.Fprintln(w, "model,metric,median,q1,q3,neurons,nan")
-		for _, m := range c.Models {
-			for _, k := range CompareMetrics {
-				s := c.Summary[m][k]
-				fmt.Fprintf(w, "%s,%s,%s,%s,%s,%d,%d\n", csvField(m), k, fmtNum(float64(s.Median)), fmtNum(float64(s.Q1)), fmtNum(float64(s.Q3)), s.N, s.NaN)
-			}
-		}
-		return nil
-	})
-	if err != nil {
+	if err := writeSummaryCSV(filepath.Join(dir, FileCmpSummary), c); err != nil {
 		return err
 	}
-	err = WriteAtomic(filepath.Join(dir, FilePairs), func(w io.Writer) error {
-		fmt.Fprintln(w, "metric,model_a,model_b,share_a_higher,w,p,n,dropped,method")
-		for _, pt := range c.Pairs {
-			fmt.Fprintf(w, "%s,%s,%s,%s,%s,%s,%d,%d,%s\n", pt.Metric, csvField(pt.A), csvField(pt.B), fmtNum(pt.ShareA), fmtNum(pt.W), fmtNum(pt.P), pt.N, pt.Dropped, pt.Method)
-		}
-		return nil
-	})
-	if err != nil {
+	if err := writePairsCSV(filepath.Join(dir, FilePairs), c); err != nil {
 		return err
 	}
 	// Fold-averaged curves per model, and tuning descriptors.
@@ -283,22 +266,32 @@ func writeAcross(dir string, cmps []*Comparison) error {
 	if err != nil {
 		return err
 	}
-	err = WriteAtomic(filepath.Join(dir, FilePooled), func(w io.Writer) error {
+	if err := writeSummaryCSV(filepath.Join(dir, FilePooled), pooled); err != nil {
+		return err
+	}
+	return writePairsCSV(filepath.Join(dir, FilePooledPairs), pooled)
+}
+
+// writeSummaryCSV writes the median and quartiles of every model and
+// metric of a comparison.
+func writeSummaryCSV(path string, c *Comparison) error {
+	return WriteAtomic(path, func(w io.Writer) error {
 		fmt.Fprintln(w, "model,metric,median,q1,q3,neurons,nan")
-		for _, m := range pooled.Models {
+		for _, m := range c.Models {
 			for _, k := range CompareMetrics {
-				s := pooled.Summary[m][k]
+				s := c.Summary[m][k]
 				fmt.Fprintf(w, "%s,%s,%s,%s,%s,%d,%d\n", csvField(m), k, fmtNum(float64(s.Median)), fmtNum(float64(s.Q1)), fmtNum(float64(s.Q3)), s.N, s.NaN)
 			}
 		}
 		return nil
 	})
-	if err != nil {
-		return err
-	}
-	return WriteAtomic(filepath.Join(dir, FilePooledPairs), func(w io.Writer) error {
+}
+
+// writePairsCSV writes the pairwise tests of a comparison.
+func writePairsCSV(path string, c *Comparison) error {
+	return WriteAtomic(path, func(w io.Writer) error {
 		fmt.Fprintln(w, "metric,model_a,model_b,share_a_higher,w,p,n,dropped,method")
-		for _, pt := range pooled.Pairs {
+		for _, pt := range c.Pairs {
 			fmt.Fprintf(w, "%s,%s,%s,%s,%s,%s,%d,%d,%s\n", pt.Metric, csvField(pt.A), csvField(pt.B), fmtNum(pt.ShareA), fmtNum(pt.W), fmtNum(pt.P), pt.N, pt.Dropped, pt.Method)
 		}
 		return nil
