@@ -92,6 +92,9 @@ func FolderKind(dir string) (string, error) {
 	if _, err := os.Stat(filepath.Join(dir, FileManifest)); err == nil {
 		return KindRun, nil
 	}
+	if _, err := os.Stat(filepath.Join(dir, FileRecordings)); err == nil {
+		return KindMany, nil
+	}
 	return "", fmt.Errorf("%s: neither a run folder (no %s, written by stria fit) nor a comparison folder (no %s, written by stria compare)", dir, FileManifest, FileComparison)
 }
 
@@ -110,6 +113,9 @@ func ExportFolder(dir string, opt ExportOptions) (*Exported, error) {
 	out := opt.Out
 	if out == "" {
 		out = filepath.Join(dir, DirExport)
+	}
+	if kind == KindMany {
+		return nil, fmt.Errorf("%s: a comparison over several recordings: export each recording's folder inside it (or use stria report on it)", dir)
 	}
 	if kind == KindComparison {
 		if opt.Compare != "" {
@@ -823,6 +829,13 @@ const FileReport = "report.html"
 func WriteReport(dir, out string, opt ExportOptions) (string, error) {
 	if out == "" {
 		out = filepath.Join(dir, FileReport)
+	}
+	if kind, err := FolderKind(dir); err == nil && kind == KindMany {
+		r, err := manyReport(dir)
+		if err != nil {
+			return "", err
+		}
+		return out, report.Write(out, r)
 	}
 	ex, err := ExportFolder(dir, opt)
 	if err != nil {

@@ -72,7 +72,7 @@ compare:
 }
 
 // outputs reads every output file of a comparison folder except the
-// units and the configs (which hold the folder's own path).
+// units, the configs (which hold the folder's own path) and exports.
 func outputs(t *testing.T, dir string) map[string][]byte {
 	t.Helper()
 	m := map[string][]byte{}
@@ -82,12 +82,12 @@ func outputs(t *testing.T, dir string) map[string][]byte {
 		}
 		rel, _ := filepath.Rel(dir, p)
 		if d.IsDir() {
-			if d.Name() == train.UnitsDir {
+			if d.Name() == train.UnitsDir || d.Name() == train.DirExport {
 				return filepath.SkipDir
 			}
 			return nil
 		}
-		if filepath.Base(p) == train.FileConfig {
+		if filepath.Base(p) == train.FileConfig || filepath.Base(p) == train.FileReport {
 			return nil
 		}
 		b, _ := os.ReadFile(p)
@@ -121,6 +121,18 @@ func TestShardsMergeLikeOneRun(t *testing.T) {
 	}
 	if !strings.Contains(out, "all 3 recordings, neurons pooled") {
 		t.Errorf("no pooled table in:\n%s", out)
+	}
+	// The report of a comparison over recordings, before outputs() reads
+	// the folder (the report adds export folders and report.html).
+	rep := filepath.Join(dir, "many-report.html")
+	if out, err := runCLI(t, "report", "--out", rep, filepath.Join(dir, "full")); err != nil {
+		t.Fatalf("report over recordings: %v\n%s", err, out)
+	}
+	html, _ := os.ReadFile(rep)
+	for _, want := range []string{"Across recordings", "Recording m1-resp", "Recording m3-resp", "median of recordings"} {
+		if !bytes.Contains(html, []byte(want)) {
+			t.Errorf("report over recordings lacks %q", want)
+		}
 	}
 	full := outputs(t, filepath.Join(dir, "full"))
 	for _, f := range []string{"m1-resp/scores.csv", "m3-resp/comparison.json", train.FileRecordings, train.FilePooled, train.FilePooledPairs} {
