@@ -9,6 +9,7 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+	"time"
 
 	"stria/data"
 	"stria/train"
@@ -156,5 +157,57 @@ func TestFitRefusesBadConfig(t *testing.T) {
 	}
 	if _, err := os.Stat(filepath.Join(dir, "runs")); err == nil {
 		t.Error("a refused config still created an output folder")
+	}
+}
+
+// TestInterruptAndResume stops a fit with SIGINT (as Ctrl-C does), checks
+// that it left a checkpoint and said how to continue, resumes it, and
+// expects exactly the metrics of an uninterrupted fit.
+func TestInterruptAndResume(t *testing.T) {
+	if testing.Short() {
+		t.Skip("trains for several seconds")
+	}
+	dir := t.TempDir()
+	cfgPath, _, err := writeDemo(demoOptions{dir: dir, neurons: 60, trials: 1200, seed: 3})
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, _ := os.ReadFile(cfgPath)
+	src := strings.Replace(string(b), "max_epochs: 3000\n  patience: 100", "max_epochs: 1500\n  patience: 100000", 1)
+	if src == string(b) {
+		t.Fatal("demo config changed: adjust this test")
+	}
+	os.WriteFile(cfgPath, []byte(src), 0o644)
+
+	cmd := child("fit", "--config", cfgPath, "--out", filepath.Join(dir, "cut"), "--quiet")
+	var stderr bytes.Buffer
+	cmd.Stderr = &stderr
+	if err := cmd.Start(); err != nil {
+		t.Fatal(err)
+	}
+	time.Sleep(1500 * time.Millisecond)
+	cmd.Process.Signal(os.Interrupt)
+	if err := cmd.Wait(); err == nil {
+		t.Fatal("the fit finished before it was interrupted: make it longer")
+	}
+	if !strings.Contains(stderr.String(), "--resume") || !strings.Contains(stderr.String(), "checkpoint") {
+		t.Errorf("interrupted fit said:\n%s", stderr.String())
+	}
+	if _, err := os.Stat(filepath.Join(dir, "cut", train.FileCheckpoint)); err != nil {
+		t.Fatalf("no checkpoint after the interrupt: %v", err)
+	}
+	if _, err := os.Stat(filepath.Join(dir, "cut", train.FileMetrics)); err == nil {
+		t.Error("an interrupted fit wrote metrics.csv")
+	}
+	if out, err := runCLI(t, "fit", "--config", cfgPath, "--out", filepath.Join(dir, "cut"), "--resume", "--quiet"); err != nil {
+		t.Fatalf("resume: %v\n%s", err, out)
+	}
+	if out, err := runCLI(t, "fit", "--config", cfgPath, "--out", filepath.Join(dir, "whole"), "--quiet"); err != nil {
+		t.Fatalf("uninterrupted: %v\n%s", err, out)
+	}
+	m1, _ := os.ReadFile(filepath.Join(dir, "cut", train.FileMetrics))
+	m2, _ := os.ReadFile(filepath.Join(dir, "whole", train.FileMetrics))
+	if len(m1) == 0 || !bytes.Equal(m1, m2) {
+		t.Error("the resumed fit's metrics differ from an uninterrupted fit's")
 	}
 }
