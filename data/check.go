@@ -3,7 +3,10 @@ package data
 import (
 	"fmt"
 	"math"
+	"runtime"
+	"slices"
 	"strings"
+	"sync"
 )
 
 // Report lists the problems Check found that do not stop a fit.
@@ -58,28 +61,20 @@ func CheckWith(rec *Recording, cond []int, opt CheckOptions) (*Report, error) {
 		opt.MinTrials = 2
 	}
 
-	// Non-finite responses.
+	// Non-finite responses and constant neurons, in one parallel pass.
 	const show = 5
-	var bad int
-	var first []string
-	for t := 0; t < y.Rows; t++ {
-		for n, v := range y.Row(t) {
-			f := float64(v)
-			if math.IsNaN(f) || math.IsInf(f, 0) {
-				bad++
-				if len(first) < show {
-					first = append(first, fmt.Sprintf("trial %d, %s: %g", t, rec.NeuronName(n), f))
-				}
-			}
+	sc := scanResponses(y, show)
+	if sc.bad > 0 {
+		first := make([]string, len(sc.first))
+		for i, b := range sc.first {
+			first[i] = fmt.Sprintf("trial %d, %s: %g", b.t, rec.NeuronName(b.n), b.v)
 		}
-	}
-	if bad > 0 {
 		more := ""
-		if bad > show {
-			more = fmt.Sprintf("; and %d more", bad-show)
+		if sc.bad > show {
+			more = fmt.Sprintf("; and %d more", sc.bad-show)
 		}
 		return rep, fmt.Errorf("data: %s: %d non-finite response value(s) (NaN or Inf; trials are 0-based): %s%s",
-			file, bad, strings.Join(first, "; "), more)
+			file, sc.bad, strings.Join(first, "; "), more)
 	}
 
 	// Stimulus.
@@ -143,25 +138,9 @@ func CheckWith(rec *Recording, cond []int, opt CheckOptions) (*Report, error) {
 			len(rep.FewTrials), opt.MinTrials, strings.Join(l, ", ")))
 	}
 
-	// Constant neurons (over all trials), by a two-pass variance.
-	mean := make([]float64, y.Cols)
-	for t := 0; t < y.Rows; t++ {
-		for n, v := range y.Row(t) {
-			mean[n] += float64(v)
-		}
-	}
-	for n := range mean {
-		mean[n] /= float64(y.Rows)
-	}
-	ss := make([]float64, y.Cols)
-	for t := 0; t < y.Rows; t++ {
-		for n, v := range y.Row(t) {
-			d := float64(v) - mean[n]
-			ss[n] += d * d
-		}
-	}
-	for n, v := range ss {
-		if v == 0 {
+	// Constant neurons (over all trials): the same value on every trial.
+	for n := range sc.min {
+		if sc.min[n] == sc.max[n] {
 			rep.Constant = append(rep.Constant, n)
 		}
 	}
@@ -202,4 +181,70 @@ func CheckWith(rec *Recording, cond []int, opt CheckOptions) (*Report, error) {
 		return rep, fmt.Errorf("data: %d of %d stimulus bins have no trials: %s; use wider bins or fewer bins", len(empty), opt.NBins, strings.Join(show, ", "))
 	}
 	return rep, nil
+}
+
+// badValue is a non-finite response.
+type badValue struct {
+	t, n int
+	v    float64
+}
+
+// scan is what one pass over the responses finds.
+type scan struct {
+	bad      int
+	first    []badValue // the first few non-finite values, in trial order
+	min, max []float32  // per neuron
+}
+
+// scanResponses counts the non-finite values of y, keeps the first show of
+// them in trial order, and finds each neuron's smallest and largest value.
+// The rows are split into contiguous ranges, one per core, so each row is
+// read once; the result does not depend on the number of cores.
+func scanResponses(y *Matrix, show int) scan {
+	workers := max(1, min(runtime.GOMAXPROCS(0), y.Rows/64))
+	parts := make([]scan, workers)
+	var wg sync.WaitGroup
+	for w := range parts {
+		lo, hi := w*y.Rows/workers, (w+1)*y.Rows/workers
+		wg.Add(1)
+		go func(p *scan) {
+			defer wg.Done()
+			p.min = slices.Clone(y.Row(lo))
+			p.max = slices.Clone(y.Row(lo))
+			for t := lo; t < hi; t++ {
+				row := y.Row(t)
+				mn, mx := p.min[:len(row)], p.max[:len(row)]
+				for n, v := range row {
+					if v < mn[n] {
+						mn[n] = v
+					}
+					if v > mx[n] {
+						mx[n] = v
+					}
+					// v-v is 0 for a finite value, NaN for NaN and Inf.
+					if v-v != 0 {
+						p.bad++
+						if len(p.first) < show {
+							p.first = append(p.first, badValue{t, n, float64(v)})
+						}
+					}
+				}
+			}
+		}(&parts[w])
+	}
+	wg.Wait()
+	out := parts[0]
+	for _, p := range parts[1:] {
+		out.bad += p.bad
+		for _, b := range p.first {
+			if len(out.first) < show {
+				out.first = append(out.first, b)
+			}
+		}
+		for n := range out.min {
+			out.min[n] = min(out.min[n], p.min[n])
+			out.max[n] = max(out.max[n], p.max[n])
+		}
+	}
+	return out
 }

@@ -1,12 +1,14 @@
 package data
 
 import (
+	"bufio"
 	"encoding/binary"
 	"errors"
 	"fmt"
 	"io"
 	"math"
 	"os"
+	"slices"
 	"strconv"
 	"strings"
 	"unsafe"
@@ -412,7 +414,38 @@ func ReadNPY(path string) (*Matrix, error) {
 	if st.IsDir() {
 		return nil, fmt.Errorf("data: %s is a directory, not a .npy file", path)
 	}
+	if m, err := mapNPY(f, st.Size(), path); m != nil || err != nil {
+		return m, err
+	}
+	if _, err := f.Seek(0, io.SeekStart); err != nil {
+		return nil, fmt.Errorf("data: %w", err)
+	}
 	return readNPYMatrix(f, st.Size(), path)
+}
+
+// mapNPY maps a large .npy file of the fast layout (little-endian float32,
+// C order) instead of reading it. It returns nil and no error when the file
+// is not of that kind or cannot be mapped.
+func mapNPY(f *os.File, total int64, name string) (*Matrix, error) {
+	h, used, err := readNPYHeader(bufio.NewReaderSize(f, 4096), total, name)
+	if err != nil {
+		return nil, err
+	}
+	rows, cols, err := h.matrixShape(name)
+	if err != nil {
+		return nil, err
+	}
+	if err := h.checkSize(total-used, name); err != nil {
+		return nil, err
+	}
+	if !h.fastLayout(rows, cols, 4) {
+		return nil, nil
+	}
+	v := mapFloat32(f, used, int(h.count))
+	if v == nil {
+		return nil, nil
+	}
+	return &Matrix{Rows: rows, Cols: cols, Data: v}, nil
 }
 
 // readNPYMatrix reads a .npy stream of total bytes from r.
@@ -639,4 +672,45 @@ func halfToFloat32(h uint16) float32 {
 		return v
 	}
 	return math.Float32frombits(sign | (exp+127-15)<<23 | frac<<13)
+}
+
+// ReadArray reads an .npy array of any number of dimensions as float64
+// values in C order, with its shape. Arrays of more than two dimensions
+// must be in C order (stria writes them so); the element types are those
+// of ReadNPY.
+func ReadArray(path string) (shape []int, v []float64, err error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, nil, fmt.Errorf("data: %w", err)
+	}
+	defer f.Close()
+	st, err := f.Stat()
+	if err != nil {
+		return nil, nil, fmt.Errorf("data: %w", err)
+	}
+	r := bufio.NewReaderSize(f, 1<<16)
+	h, used, err := readNPYHeader(r, st.Size(), path)
+	if err != nil {
+		return nil, nil, err
+	}
+	if err := h.checkSize(st.Size()-used, path); err != nil {
+		return nil, nil, err
+	}
+	var rows, cols int
+	switch {
+	case len(h.shape) <= 2:
+		if rows, cols, err = h.matrixShape(path); err != nil {
+			return nil, nil, err
+		}
+	case h.fortran:
+		return nil, nil, formatErr(path, "a %d-D array in Fortran order; stria reads arrays of more than two dimensions in C order only", len(h.shape))
+	default:
+		rows = h.shape[0]
+		cols = int(h.count) / max(rows, 1)
+	}
+	v = make([]float64, h.count)
+	if err := h.decode64(r, v, rows, cols, path); err != nil {
+		return nil, nil, err
+	}
+	return slices.Clone(h.shape), v, nil
 }

@@ -7,6 +7,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 )
@@ -307,5 +308,38 @@ func TestHalfToFloat32(t *testing.T) {
 	}
 	if !math.IsInf(float64(halfToFloat32(0x7c00)), 1) || !math.IsNaN(float64(halfToFloat32(0x7e00))) {
 		t.Error("Inf/NaN halves")
+	}
+}
+
+// TestReadArray reads a 3-D array (which ReadNPY refuses) with its shape.
+func TestReadArray(t *testing.T) {
+	shape, v, err := ReadArray(filepath.Join(fixtureDir, "broken_3d.npy"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	// numpy.load("testdata/data/broken_3d.npy") with numpy 1.24.2: shape
+	// (2, 3, 2), float32; values as float32 widened to float64.
+	want := []float32{-0.3651694357395172, 0.32604098320007324, 0.09770094603300095, -2.1403560638427734, -2.405299425125122,
+		0.7946707606315613, 0.5231245756149292, -1.884926199913025, -0.7767447829246521, -0.011190096847712994, -0.9802159667015076, 2.8020355701446533}
+	if !slices.Equal(shape, []int{2, 3, 2}) || len(v) != len(want) {
+		t.Fatalf("shape %v, %d values", shape, len(v))
+	}
+	for i := range want {
+		if v[i] != float64(want[i]) {
+			t.Errorf("value %d: got %v want %v", i, v[i], want[i])
+		}
+	}
+	// A float64 round trip through WriteNPY64 keeps every bit.
+	p := filepath.Join(t.TempDir(), "w.npy")
+	in := []float64{1.5, -2, 3e-300, 4, 5, 6, 7, 8}
+	if err := WriteNPY64(p, []int{2, 2, 2}, in); err != nil {
+		t.Fatal(err)
+	}
+	shape, v, err = ReadArray(p)
+	if err != nil || !slices.Equal(shape, []int{2, 2, 2}) || !slices.Equal(v, in) {
+		t.Errorf("round trip: %v %v %v", shape, v, err)
+	}
+	if _, _, err := ReadArray(filepath.Join(fixtureDir, "broken_truncated.npy")); err == nil {
+		t.Error("truncated file accepted")
 	}
 }

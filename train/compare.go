@@ -304,7 +304,7 @@ func newBaseline(kind string, p *Prepared, rng *rand.Rand) tuning.Model {
 // the number of cores.
 func fitBaseline(p *Prepared, kind string) ([]float64, error) {
 	b, n := p.NBins, p.Neurons()
-	st := data.NewCondStats(p.Rec.Y, p.Cond, p.Train, b)
+	st := p.TrainStats()
 	curves := make([]float64, b*n)
 	centers := p.Axis.Centers()
 	workers := min(runtime.GOMAXPROCS(0), max(1, n/64))

@@ -83,12 +83,15 @@ type rowSet struct {
 	sumSq []float64
 }
 
-// condRows builds the condition-level rows of a trial set, in the
-// trainer's (possibly z-scored) units.
-func condRows(p *Prepared, trials []int) *rowSet {
+// condRows builds the condition-level rows of a trial set from its
+// per-condition statistics, in the trainer's (possibly z-scored) units.
+func condRows(p *Prepared, st *data.CondStats) *rowSet {
 	b, n := p.NBins, p.Neurons()
-	st := data.NewCondStats(p.Rec.Y, p.Cond, trials, b)
-	rs := &rowSet{trials: len(trials)}
+	ntrials := 0
+	for _, k := range st.Count {
+		ntrials += k
+	}
+	rs := &rowSet{trials: ntrials}
 	var keep []int
 	for c := 0; c < b; c++ {
 		if st.Count[c] > 0 {
@@ -125,7 +128,7 @@ func condRows(p *Prepared, trials []int) *rowSet {
 		}
 	}
 	for j := range grand {
-		rs.ssTot[j] -= grand[j] * grand[j] / float64(len(trials))
+		rs.ssTot[j] -= grand[j] * grand[j] / float64(ntrials)
 	}
 	return rs
 }
@@ -153,8 +156,11 @@ func trialRows(rs *rowSet, p *Prepared, trials []int) {
 
 // ssTotOf returns per-neuron total sums of squares over trials, in the
 // trainer's units.
-func ssTotOf(p *Prepared, trials []int) []float64 {
-	st := data.NewCondStats(p.Rec.Y, p.Cond, trials, p.NBins)
+func ssTotOf(p *Prepared, st *data.CondStats) []float64 {
+	trials := 0
+	for _, k := range st.Count {
+		trials += k
+	}
 	n := p.Neurons()
 	tot := make([]float64, n)
 	grand := make([]float64, n)
@@ -166,7 +172,7 @@ func ssTotOf(p *Prepared, trials []int) []float64 {
 	}
 	for j := range tot {
 		_, inv := p.zscore(j)
-		tot[j] = (tot[j] - grand[j]*grand[j]/float64(len(trials))) * inv * inv
+		tot[j] = (tot[j] - grand[j]*grand[j]/float64(trials)) * inv * inv
 	}
 	return tot
 }
@@ -218,11 +224,11 @@ func newTrainer(p *Prepared, net *nn.Net) *trainer {
 		tr.batch = &rowSet{x: make([]float64, tr.chunk*p.NBins), target: make([]float64, tr.chunk*n)}
 	}
 	if !p.Soft() {
-		tr.trainC = condRows(p, p.Train)
-		tr.valC = condRows(p, p.Val)
+		tr.trainC = condRows(p, p.TrainStats())
+		tr.valC = condRows(p, p.ValStats())
 		tr.valTot = tr.valC.ssTot
 	} else {
-		tr.valTot = ssTotOf(p, p.Val)
+		tr.valTot = ssTotOf(p, p.ValStats())
 	}
 	tr.ssRes = make([]float64, n)
 	tr.r2 = make([]float64, n)

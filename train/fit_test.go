@@ -66,7 +66,7 @@ func TestConditionSumIdentity(t *testing.T) {
 			tr := newTrainer(p, net)
 
 			net.ZeroGrad()
-			lc := tr.lossGrad(condRows(p, p.Train), true, 1, nil) / (float64(len(p.Train)) * float64(p.Neurons()))
+			lc := tr.lossGrad(condRows(p, p.TrainStats()), true, 1, nil) / (float64(len(p.Train)) * float64(p.Neurons()))
 			gc := slices.Clone(net.Grads)
 
 			tr.batch = &rowSet{x: make([]float64, tr.chunk*p.NBins), target: make([]float64, tr.chunk*p.Neurons())}
@@ -252,5 +252,32 @@ func TestDemoRecovery(t *testing.T) {
 	}
 	if dFit >= 0.5*dMean {
 		t.Errorf("encoder curves are not closer to the planted tuning than half the distance of the raw condition means (%.4g vs %.4g)", dFit, dMean)
+	}
+}
+
+// TestNormFromStats checks the z-scoring derived from per-condition sums
+// against data.FitNormalizer's two passes over the trials, including a
+// constant neuron (Scale 1) and one with a large offset.
+func TestNormFromStats(t *testing.T) {
+	p, _ := synthPrepared(t, 20, 600, func(c *Config) { c.Axis.BinWidth = 12 })
+	y := p.Rec.Y
+	for i := 0; i < y.Rows; i++ {
+		y.Row(i)[0] = 3.25               // constant
+		y.Row(i)[1] = 1000 + y.Row(i)[1] // offset 1000 on a unit-scale signal
+	}
+	all := append(slices.Clone(p.Train), p.Val...)
+	want := data.FitNormalizer(y, all)
+	p.trainSt, p.valSt = nil, nil
+	got := normFromStats(p.TrainStats(), p.ValStats())
+	for j := range want.Mean {
+		// Tolerance: float64 sums of ~500 float32 values; the offset neuron
+		// loses about log10(1000^2) digits to cancellation, leaving ~1e-9.
+		if math.Abs(got.Mean[j]-want.Mean[j]) > 1e-9*math.Max(1, math.Abs(want.Mean[j])) ||
+			math.Abs(got.Scale[j]-want.Scale[j]) > 1e-8*want.Scale[j] {
+			t.Errorf("neuron %d: mean %v scale %v, two-pass %v %v", j, got.Mean[j], got.Scale[j], want.Mean[j], want.Scale[j])
+		}
+	}
+	if got.Scale[0] != 1 {
+		t.Errorf("constant neuron: scale %v, want 1", got.Scale[0])
 	}
 }

@@ -71,20 +71,40 @@ func LoadModel(dir string) (*Model, error) {
 		if !ok {
 			return nil, fmt.Errorf("%s: no array %q", path, name)
 		}
-		v, err := data.ReadVector(filepath.Join(dir, a.File), "")
+		file := filepath.Join(dir, a.File)
+		_, v, err := data.ReadArray(file)
 		if err != nil {
 			return nil, err
 		}
 		if len(v) != want {
-			return nil, fmt.Errorf("%s: %d values, want %d", filepath.Join(dir, a.File), len(v), want)
+			return nil, fmt.Errorf("%s: %d values, want %d", file, len(v), want)
 		}
 		return v, nil
 	}
-	p, err := read("params", len(m.Net.Params))
-	if err != nil {
-		return nil, err
+	// The parameters, layer by layer, into nn's flat layout.
+	net := m.Net
+	for i := range net.Convs {
+		for _, part := range []struct {
+			name string
+			dst  []float64
+		}{{fmt.Sprintf("conv%d_weight", i), net.ConvW(i)}, {fmt.Sprintf("conv%d_bias", i), net.ConvB(i)}} {
+			v, err := read(part.name, len(part.dst))
+			if err != nil {
+				return nil, err
+			}
+			copy(part.dst, v)
+		}
 	}
-	copy(m.Net.Params, p)
+	for _, part := range []struct {
+		name string
+		dst  []float64
+	}{{"readout_weight", net.ReadW()}, {"readout_bias", net.ReadB()}} {
+		v, err := read(part.name, len(part.dst))
+		if err != nil {
+			return nil, err
+		}
+		copy(part.dst, v)
+	}
 	if mf.ZScore {
 		if m.Mean, err = read("norm_mean", mf.Neurons); err != nil {
 			return nil, err

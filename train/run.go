@@ -338,10 +338,6 @@ func WriteRun(dir string, p *Prepared, f *Fitted, scores []eval.Scores, wall tim
 			return nil, err
 		}
 	}
-	// All parameters in nn's flat layout, for stria predict and export.
-	if err := saveArray(dir, &m, "params", []int{len(net.Params)}, net.Params); err != nil {
-		return nil, err
-	}
 	c0 := net.Convs[0]
 	if err := data.WriteNPY64(filepath.Join(dir, FileFilters), []int{c0.Out * net.In, c0.K}, net.ConvW(0)); err != nil {
 		return nil, err

@@ -15,6 +15,7 @@ import (
 	"github.com/schollz/progressbar/v3"
 	"github.com/urfave/cli/v2"
 
+	"stria/data"
 	"stria/train"
 )
 
@@ -26,6 +27,7 @@ func fitCommand() *cli.Command {
 		Flags: append(dataFlags(),
 			&cli.BoolFlag{Name: "resume", Usage: "continue from the checkpoint in the run folder"},
 			&cli.BoolFlag{Name: "quiet", Aliases: []string{"q"}, Usage: "no progress display"},
+			&cli.BoolFlag{Name: "timings", Usage: "print the wall time of each phase to stderr"},
 		),
 		Action: func(c *cli.Context) error {
 			cfg, err := loadConfig(c)
@@ -34,17 +36,18 @@ func fitCommand() *cli.Command {
 			}
 			ctx, stop := signal.NotifyContext(c.Context, os.Interrupt, syscall.SIGTERM)
 			defer stop()
-			_, err = runFit(ctx, cfg, fitOptions{resume: c.Bool("resume"), quiet: c.Bool("quiet"), stdout: c.App.Writer, stderr: c.App.ErrWriter})
+			_, err = runFit(ctx, cfg, fitOptions{resume: c.Bool("resume"), quiet: c.Bool("quiet"), timings: c.Bool("timings"), stdout: c.App.Writer, stderr: c.App.ErrWriter})
 			return err
 		},
 	}
 }
 
 type fitOptions struct {
-	resume bool
-	quiet  bool
-	stdout io.Writer
-	stderr io.Writer
+	resume  bool
+	quiet   bool
+	timings bool
+	stdout  io.Writer
+	stderr  io.Writer
 }
 
 // runFit loads, trains, scores and writes the run folder.
@@ -68,10 +71,24 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*train.Summar
 			return nil, fmt.Errorf("--resume: the checkpoint in %s was written with another config; refusing to mix them", dir)
 		}
 	}
-	p, err := train.Prepare(cfg)
+	last := start
+	phase := func(name string) {
+		if o.timings {
+			now := time.Now()
+			fmt.Fprintf(o.stderr, "timing: %-34s %7.3f s\n", name, now.Sub(last).Seconds())
+			last = now
+		}
+	}
+	rec, err := data.Load(cfg.Source())
 	if err != nil {
 		return nil, err
 	}
+	phase("load")
+	p, err := train.PrepareRecording(cfg, rec)
+	if err != nil {
+		return nil, err
+	}
+	phase("bin, check, split, normalise")
 	for _, w := range p.Report.Warnings {
 		fmt.Fprintln(o.stderr, "warning:", w)
 	}
@@ -108,12 +125,14 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*train.Summar
 	if err != nil {
 		return nil, err
 	}
-	pred := train.PredictTrials(fitted.Net, p, p.Test)
-	scores := train.Score(p, pred)
+	phase(fmt.Sprintf("fit (%d epochs)", len(fitted.Log)))
+	scores := train.ScoreNet(p, fitted.Net)
+	phase("score the test trials")
 	sum, err := train.WriteRun(dir, p, fitted, scores, time.Since(start))
 	if err != nil {
 		return nil, err
 	}
+	phase("write the run folder")
 	os.Remove(filepath.Join(dir, train.FileCheckpoint))
 	if o.stdout != nil {
 		printSummary(o.stdout, dir, sum)
