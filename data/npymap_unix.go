@@ -10,7 +10,7 @@ import (
 
 // mapThreshold is the data size above which the fast layout is mapped
 // rather than read: below it a read is as quick and keeps no mapping.
-const mapThreshold = 64 << 20
+var mapThreshold int64 = 64 << 20
 
 // mapFloat32 maps the float32 data of an .npy file that starts at offset
 // off and holds n values, copy-on-write: the values come straight from the
