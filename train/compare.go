@@ -260,16 +260,12 @@ func RunUnit(ctx context.Context, p *Prepared, spec ModelSpec, fold int, sets [3
 		}
 		res.Curves = curves
 	}
-	if pred == nil {
-		n := p.Neurons()
-		pred = make([]float64, len(sets[2])*n)
-		for i, t := range sets[2] {
-			c := p.Cond[t]
-			copy(pred[i*n:(i+1)*n], res.Curves[c*n:(c+1)*n])
-		}
-	}
 	res.Scores = make([]eval.Scores, p.Neurons())
-	eval.ScorePopulation(res.Scores, p.Rec.Y.Data, p.Neurons(), sets[2], p.Cond, pred, p.NBins)
+	if pred != nil {
+		eval.ScorePopulation(res.Scores, p.Rec.Y.Data, p.Neurons(), sets[2], p.Cond, pred, p.NBins)
+	} else {
+		eval.ScoreConditions(res.Scores, p.Rec.Y.Data, p.Neurons(), sets[2], p.Cond, res.Curves, p.NBins)
+	}
 	return res, nil
 }
 

@@ -82,6 +82,9 @@ type projector struct {
 
 	work *nn.Work
 	eye  []float64 // B x B one-hot input
+	// oneHot evaluates a one-layer encoder on the one-hot rows directly
+	// (nil for deeper encoders, which go through nn with eye).
+	oneHot *oneHotConv
 
 	// Scratch.
 	hbar, hv            []float64 // F, Bv x F
@@ -233,6 +236,9 @@ func newProjector(p *Prepared, net *nn.Net) (*projector, error) {
 	for b := 0; b < B; b++ {
 		pj.eye[b*B+b] = 1
 	}
+	if usableOneHot(net) {
+		pj.oneHot = newOneHotConv(net)
+	}
 	pj.hbar = make([]float64, F)
 	pj.a = make([]float64, Bt*F)
 	pj.ga = make([]float64, Bt*F)
@@ -254,7 +260,12 @@ func gen(v []float64, r, c int) blas64.General {
 // features runs the conv stack on every bin and forms hbar and A.
 func (pj *projector) features(net *nn.Net) []float64 {
 	F := pj.F
-	h := net.ForwardFeatures(pj.work, pj.eye, pj.B)
+	var h []float64
+	if pj.oneHot != nil {
+		h = pj.oneHot.forward(net)
+	} else {
+		h = net.ForwardFeatures(pj.work, pj.eye, pj.B)
+	}
 	clear(pj.hbar)
 	for r, b := range pj.rows {
 		w := pj.pw[r]
@@ -369,7 +380,11 @@ func (pj *projector) eval(net *nn.Net, grad, r2 bool) error {
 			}
 		}
 		clear(net.Grads[:pj.nconv])
-		net.BackwardFeatures(pj.work, pj.dH, pj.B)
+		if pj.oneHot != nil {
+			pj.oneHot.backward(net, pj.dH)
+		} else {
+			net.BackwardFeatures(pj.work, pj.dH, pj.B)
+		}
 	}
 	pj.val, pj.vr2 = math.NaN(), math.NaN()
 	if pj.Bv == 0 {
