@@ -292,15 +292,26 @@ type SplitInfo struct {
 
 // WriteRun writes the run folder of a finished fit.
 func WriteRun(dir string, p *Prepared, f *Fitted, scores []eval.Scores, wall time.Duration) (*Summary, error) {
-	if err := os.MkdirAll(filepath.Join(dir, DirWeights), 0o755); err != nil {
+	if err := WriteModel(dir, p, f); err != nil {
 		return nil, err
+	}
+	return WriteResults(dir, p, f, scores, wall)
+}
+
+// WriteModel writes the part of the run folder that does not depend on the
+// scores: the resolved config, the manifest, the weights, the filters, the
+// split and the training log. It reads nothing the scoring changes, so it
+// may run while the test trials are scored.
+func WriteModel(dir string, p *Prepared, f *Fitted) error {
+	if err := os.MkdirAll(filepath.Join(dir, DirWeights), 0o755); err != nil {
+		return err
 	}
 	cfgYAML, err := p.Cfg.Marshal()
 	if err != nil {
-		return nil, err
+		return err
 	}
 	if err := WriteAtomic(filepath.Join(dir, FileConfig), func(w io.Writer) error { _, err := w.Write(cfgYAML); return err }); err != nil {
-		return nil, err
+		return err
 	}
 	net := f.Net
 	m := Manifest{
@@ -317,42 +328,45 @@ func WriteRun(dir string, p *Prepared, f *Fitted, scores []eval.Scores, wall tim
 	for i, c := range net.Convs {
 		m.Layers = append(m.Layers, LayerInfo{Channels: c.Out, Kernel: c.K, Stride: c.Stride, Border: borderName(c.Border), OutLen: net.OutLen(i)})
 		if err := saveArray(dir, &m, fmt.Sprintf("conv%d_weight", i), []int{c.Out, in, c.K}, net.ConvW(i)); err != nil {
-			return nil, err
+			return err
 		}
 		if err := saveArray(dir, &m, fmt.Sprintf("conv%d_bias", i), []int{c.Out}, net.ConvB(i)); err != nil {
-			return nil, err
+			return err
 		}
 		in = c.Out
 	}
 	if err := saveArray(dir, &m, "readout_weight", []int{net.Neurons, net.Features()}, net.ReadW()); err != nil {
-		return nil, err
+		return err
 	}
 	if err := saveArray(dir, &m, "readout_bias", []int{net.Neurons}, net.ReadB()); err != nil {
-		return nil, err
+		return err
 	}
 	if p.Norm != nil {
 		if err := saveArray(dir, &m, "norm_mean", []int{net.Neurons}, p.Norm.Mean); err != nil {
-			return nil, err
+			return err
 		}
 		if err := saveArray(dir, &m, "norm_scale", []int{net.Neurons}, p.Norm.Scale); err != nil {
-			return nil, err
+			return err
 		}
 	}
 	c0 := net.Convs[0]
 	if err := data.WriteNPY64(filepath.Join(dir, FileFilters), []int{c0.Out * net.In, c0.K}, net.ConvW(0)); err != nil {
-		return nil, err
+		return err
 	}
 	if err := WriteJSON(filepath.Join(dir, FileManifest), m); err != nil {
-		return nil, err
+		return err
 	}
 	if err := WriteJSON(filepath.Join(dir, FileSplit), SplitInfo{Train: p.Train, Val: p.Val, Test: p.Test, Cond: p.Cond}); err != nil {
-		return nil, err
+		return err
 	}
+	return writeLog(filepath.Join(dir, FileLog), f.Log)
+}
+
+// WriteResults writes metrics.csv and summary.json from the scores of the
+// test trials; wall is the time the fit took up to the scores.
+func WriteResults(dir string, p *Prepared, f *Fitted, scores []eval.Scores, wall time.Duration) (*Summary, error) {
 	ex := ExcludedNeurons(p)
 	if err := writeMetrics(filepath.Join(dir, FileMetrics), p, scores, ex); err != nil {
-		return nil, err
-	}
-	if err := writeLog(filepath.Join(dir, FileLog), f.Log); err != nil {
 		return nil, err
 	}
 	sum := Summarize(scores, ex)

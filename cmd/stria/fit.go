@@ -126,13 +126,19 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*train.Summar
 		return nil, err
 	}
 	phase(fmt.Sprintf("fit (%d epochs)", len(fitted.Log)))
+	// The weights are written while the test trials are scored.
+	written := make(chan error, 1)
+	go func() { written <- train.WriteModel(dir, p, fitted) }()
 	scores := train.ScoreNet(p, fitted.Net)
 	phase("score the test trials")
-	sum, err := train.WriteRun(dir, p, fitted, scores, time.Since(start))
+	if err := <-written; err != nil {
+		return nil, err
+	}
+	sum, err := train.WriteResults(dir, p, fitted, scores, time.Since(start))
 	if err != nil {
 		return nil, err
 	}
-	phase("write the run folder")
+	phase("write the run folder (the rest)")
 	os.Remove(filepath.Join(dir, train.FileCheckpoint))
 	if o.stdout != nil {
 		printSummary(o.stdout, dir, sum)
