@@ -15,16 +15,13 @@
 package main
 
 import (
-	"context"
 	"encoding/json"
 	"flag"
 	"fmt"
-	"math"
 	"os"
 	"os/exec"
 	"path/filepath"
 	"runtime"
-	"runtime/pprof"
 	"slices"
 	"strings"
 	"syscall"
@@ -49,8 +46,8 @@ type options struct {
 	adamMaxEpochs      int
 	adamTimeout        time.Duration
 	skipAdam, skipLoad bool
+	compare            bool
 	keepRuns           bool
-	refScore           bool
 	projectedMaxEpochs int
 	projectedPatience  int
 	projectedLR        float64
@@ -77,8 +74,8 @@ func main() {
 	flag.Uint64Var(&o.seed, "seed", 1, "seed of the synthetic recording and of the fits")
 	flag.IntVar(&o.repeats, "repeats", 3, "runs of each timed fit (the median and the fastest are printed)")
 	flag.BoolVar(&o.ladder, "ladder", true, "also time 1/4 and 1/2 of the neurons and of the trials")
-	flag.BoolVar(&o.inproc, "phases", true, "also run the full-size fit in this process and print the time of each phase")
-	flag.StringVar(&o.cpuprofile, "cpuprofile", "", "write a CPU profile of the in-process fit to this file")
+	flag.BoolVar(&o.inproc, "phases", true, "also print the time of each phase of a full-size fit (stria fit --timings)")
+	flag.StringVar(&o.cpuprofile, "cpuprofile", "", "write a CPU profile of the phases fit to this file (STRIA_CPUPROFILE)")
 	flag.IntVar(&o.adamNeurons, "adam-neurons", 2000, "neurons for the mini-batch Adam comparison (the first ones of the full recording; all trials, so the split is the same)")
 	flag.IntVar(&o.adamTrials, "adam-trials", 0, "trials for the Adam comparison (0: all)")
 	flag.IntVar(&o.adamBatch, "adam-batch", 256, "train.batch_size of the Adam comparison")
@@ -87,8 +84,8 @@ func main() {
 	flag.IntVar(&o.adamMaxEpochs, "adam-max-epochs", 400, "train.max_epochs of the Adam comparison")
 	flag.DurationVar(&o.adamTimeout, "adam-timeout", 20*time.Minute, "give up the Adam comparison after this long")
 	flag.BoolVar(&o.skipAdam, "skip-adam", false, "skip the mini-batch Adam comparison")
+	flag.BoolVar(&o.compare, "compare", true, "also time stria compare (5 folds: the projected encoder and the default baselines) on the full recording")
 	flag.BoolVar(&o.skipLoad, "skip-load", false, "skip the .npy load measurement")
-	flag.BoolVar(&o.refScore, "ref-score", true, "in the phases, also time the PredictTrials + Score path that stria fit uses")
 	flag.BoolVar(&o.keepRuns, "keep", true, "keep the run folders in -dir")
 	flag.IntVar(&o.projectedMaxEpochs, "max-epochs", 3000, "train.max_epochs of the projected fits")
 	flag.IntVar(&o.projectedPatience, "patience", 100, "train.patience of the projected fits")
@@ -157,6 +154,12 @@ func run(o options) error {
 				return err
 			}
 			fmt.Printf("  %-8d %-8d %8.2f %8.0f %10.4f\n", f.n, f.t, r.wall, r.maxRSS/1e6, r.r2)
+		}
+	}
+
+	if o.compare {
+		if err := timeCompare(o, full); err != nil {
+			return err
 		}
 	}
 
@@ -303,22 +306,32 @@ func measureLoad(path string, repeats int) error {
 		runtime.KeepAlive(b)
 	}
 	runtime.GC()
-	var rates []float64
+	// ReadNPY maps a large file of the fast layout, so the call alone
+	// returns at once; the rate that counts includes one pass over every
+	// value, which brings the pages in (as the data checks of a fit do).
+	var rates, calls []float64
 	for i := 0; i < max(1, repeats); i++ {
 		start := time.Now()
 		m, err := data.ReadNPY(path)
 		if err != nil {
 			return err
 		}
+		call := time.Since(start).Seconds()
+		var sum float32
+		for _, v := range m.Data {
+			sum += v
+		}
 		sec := time.Since(start).Seconds()
-		runtime.KeepAlive(m)
+		runtime.KeepAlive(sum)
 		rates = append(rates, float64(st.Size())/sec/1e9)
+		calls = append(calls, call)
 		m = nil
 		runtime.GC()
 	}
 	slices.Sort(rates)
-	fmt.Printf("load (data.ReadNPY, file in the page cache, fresh matrix each time): median %.2f GB/s, best %.2f GB/s over %d reads of %.0f MB (target >= 1)\n",
-		rates[len(rates)/2], rates[len(rates)-1], len(rates), float64(st.Size())/1e6)
+	slices.Sort(calls)
+	fmt.Printf("load (data.ReadNPY and one pass over every value, file in the page cache): median %.2f GB/s, best %.2f GB/s over %d loads of %.0f MB (target >= 1); the ReadNPY call alone: median %.3f s\n",
+		rates[len(rates)/2], rates[len(rates)-1], len(rates), float64(st.Size())/1e6, calls[len(calls)/2])
 	return nil
 }
 
@@ -434,70 +447,20 @@ func phases(o options, r rec) error {
 	if err := os.WriteFile(cfgPath, []byte(cfgText), 0o644); err != nil {
 		return err
 	}
-	cfg, err := train.LoadConfig(cfgPath)
-	if err != nil {
-		return err
-	}
-	if err := cfg.Validate(); err != nil {
-		return err
-	}
+	cmd := exec.Command(o.stria, "fit", "--quiet", "--timings", "--config", cfgPath)
+	cmd.Env = os.Environ()
 	if o.cpuprofile != "" {
-		f, err := os.Create(o.cpuprofile)
-		if err != nil {
-			return err
-		}
-		defer f.Close()
-		if err := pprof.StartCPUProfile(f); err != nil {
-			return err
-		}
-		defer pprof.StopCPUProfile()
+		cmd.Env = append(cmd.Env, "STRIA_CPUPROFILE="+o.cpuprofile)
 	}
-	fmt.Println("\nphases of the same fit, in this process:")
-	t0 := time.Now()
-	last := t0
-	lap := func(what string) {
-		now := time.Now()
-		fmt.Printf("  %-34s %6.3f s\n", what, now.Sub(last).Seconds())
-		last = now
-	}
-	rec, err := data.Load(cfg.Source())
+	b, err := cmd.CombinedOutput()
 	if err != nil {
-		return err
+		return fmt.Errorf("stria fit --timings: %w\n%s", err, b)
 	}
-	lap("load (.npy responses and stimulus)")
-	p, err := train.PrepareRecording(cfg, rec)
-	if err != nil {
-		return err
-	}
-	lap("bin, check, split, z-score fit")
-	f, err := train.Fit(context.Background(), p, train.Hooks{}, nil)
-	if err != nil {
-		return err
-	}
-	lap(fmt.Sprintf("fit (%d epochs)", len(f.Log)))
-	scores := train.ScoreNet(p, f.Net)
-	lap("score (train.ScoreNet, neuron blocks)")
-	if o.refScore {
-		pred := train.PredictTrials(f.Net, p, p.Test)
-		lap("predict test trials (as stria fit)")
-		scores = train.Score(p, pred)
-		lap("score (as stria fit)")
-	}
-	if _, err := train.WriteRun(out, p, f, scores, time.Since(t0)); err != nil {
-		return err
-	}
-	lap("write run folder")
-	fmt.Printf("  %-34s %6.3f s\n", "total", time.Since(t0).Seconds())
-	fmt.Printf("  VmHWM of this process: %s\n", vmHWM())
-	var r2 []float64
-	for _, s := range scores {
-		if !math.IsNaN(s.TestR2) {
-			r2 = append(r2, s.TestR2)
+	fmt.Println("\nphases of one more such fit (stria fit --timings):")
+	for _, line := range strings.Split(string(b), "\n") {
+		if strings.HasPrefix(line, "timing: ") {
+			fmt.Println("  " + strings.TrimPrefix(line, "timing: "))
 		}
-	}
-	slices.Sort(r2)
-	if k := len(r2); k > 0 {
-		fmt.Printf("  held-out median R^2 %.5f\n", (r2[(k-1)/2]+r2[k/2])/2)
 	}
 	return nil
 }
@@ -514,4 +477,61 @@ func vmHWM() string {
 		}
 	}
 	return "unknown"
+}
+
+// compareTemplate adds a comparison to a fit config: the encoder of the
+// config (projected solver) and the default baselines, 5 folds.
+const compareTemplate = `compare:
+  output: %s
+`
+
+// timeCompare runs `stria compare` with 5 folds over the encoder and the
+// default baselines on r, once, and prints the wall time, the peak memory
+// and each model's median CC_norm.
+func timeCompare(o options, r rec) error {
+	name := "compare_full"
+	out := filepath.Join(o.dir, "run_"+name)
+	cfgPath := filepath.Join(o.dir, "config_"+name+".yaml")
+	cfg := fmt.Sprintf(configTemplate, o.seed, r.resp, r.stim, o.projectedReadoutL2, "projected", o.projectedLR, 0, o.projectedMaxEpochs, o.projectedPatience, out+"_fit")
+	cfg += fmt.Sprintf(compareTemplate, out)
+	if err := os.WriteFile(cfgPath, []byte(cfg), 0o644); err != nil {
+		return err
+	}
+	os.RemoveAll(out)
+	self, err := os.Executable()
+	if err != nil {
+		return err
+	}
+	fmt.Println("\nstria compare, 5 folds, the projected encoder and the default baselines (condmean, vonmises, vonmises2, smoothlinear), child process:")
+	b, err := exec.Command(self, runnerFlag, o.stria, "compare", "--quiet", "--config", cfgPath).Output()
+	if err != nil {
+		return fmt.Errorf("runner: %w", err)
+	}
+	var cr childResult
+	if err := json.Unmarshal(b, &cr); err != nil {
+		return fmt.Errorf("runner output %q: %w", b, err)
+	}
+	if cr.Err != "" {
+		return fmt.Errorf("stria compare %s: %s\n%s", cfgPath, cr.Err, cr.Stderr)
+	}
+	matMB := float64(r.neurons) * float64(r.trials) * 4 / 1e6
+	fmt.Printf("  wall %.1f s (target <= 60), peak resident memory %.0f MB = %.2f x the float32 matrix\n", cr.Wall, cr.MaxRSS/1e6, cr.MaxRSS/1e6/matMB)
+	var cj struct {
+		Models  []string                           `json:"models"`
+		Summary map[string]map[string]train.Spread `json:"summary"`
+	}
+	jb, err := os.ReadFile(filepath.Join(out, train.FileComparison))
+	if err != nil {
+		return err
+	}
+	if err := json.Unmarshal(jb, &cj); err != nil {
+		return err
+	}
+	for _, m := range cj.Models {
+		fmt.Printf("  %-14s median cc_norm %.4f, test_r2 %.4f\n", m, float64(cj.Summary[m]["cc_norm"].Median), float64(cj.Summary[m]["test_r2"].Median))
+	}
+	if !o.keepRuns {
+		os.RemoveAll(out)
+	}
+	return nil
 }
