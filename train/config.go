@@ -109,7 +109,7 @@ type TrainConfig struct {
 	MaxEpochs       int `yaml:"max_epochs"`
 	Patience        int `yaml:"patience"`
 	CheckpointEvery int `yaml:"checkpoint_every"`
-	// Threads bounds the goroutines used by the heavy kernels; 0 is all cores.
+	// Threads is the number of cores stria uses (GOMAXPROCS); 0 is all.
 	Threads int `yaml:"threads"`
 	// Solver is "adam" (gradient steps on all weights, the reference) or
 	// "projected" (closed-form ridge readout, filters optimised on the

@@ -5,6 +5,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strings"
 
 	"github.com/urfave/cli/v2"
@@ -72,6 +73,11 @@ func loadConfig(c *cli.Context) (*train.Config, error) {
 	}
 	if err := cfg.Validate(); err != nil {
 		return nil, fmt.Errorf("%s: %w", c.String("config"), err)
+	}
+	if cfg.Train.Threads > 0 {
+		// Results do not depend on it: every parallel kernel splits its
+		// work independently of the number of cores.
+		runtime.GOMAXPROCS(cfg.Train.Threads)
 	}
 	return cfg, nil
 }
