@@ -396,8 +396,13 @@ func (p *pyParser) tuple() ([]int, error) {
 // big endian, format versions 1.0, 2.0 and 3.0 (NEP 1).
 //
 // Little-endian float32 in C order (what numpy writes by default for
-// float32 data) is read straight into the result with a single read and no
-// per-element decoding. The file size is compared with the size the header
+// float32 data) is mapped into memory copy-on-write when the data exceed
+// 64 MB (on Linux, macOS and FreeBSD): the values come from the page cache
+// without a copy, writes to Data change only this process's copy, and the
+// mapping stays until the process ends (so a file changed on disk while
+// mapped changes under the matrix: do not rewrite a recording while stria
+// reads it). Smaller files of that layout are read straight into the result
+// with a single read and no per-element decoding. The file size is compared with the size the header
 // implies before anything large is allocated, so a truncated file or a
 // header that lies about its shape gives an error naming the file, never a
 // panic or a huge allocation.

@@ -3,8 +3,10 @@ package train
 import (
 	"context"
 	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
+	"runtime"
 	"slices"
 	"strings"
 	"testing"
@@ -279,5 +281,38 @@ func TestNormFromStats(t *testing.T) {
 	}
 	if got.Scale[0] != 1 {
 		t.Errorf("constant neuron: scale %v, want 1", got.Scale[0])
+	}
+}
+
+// TestCoresDoNotChangeResults fits with one core and with two and expects
+// the same weights and scores bit for bit (every parallel kernel splits its
+// work independently of the number of cores), for both solvers.
+func TestCoresDoNotChangeResults(t *testing.T) {
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
+	for _, solver := range []string{"adam", "projected"} {
+		var params [2][]float64
+		var scores [2][]eval.Scores
+		for i, procs := range []int{1, 2} {
+			runtime.GOMAXPROCS(procs)
+			p, _ := synthPrepared(t, 300, 600, func(c *Config) {
+				c.Train.Solver = solver
+				c.Train.MaxEpochs = 80
+				c.Axis.BinWidth = 12
+			})
+			f, err := Fit(context.Background(), p, Hooks{}, nil)
+			if err != nil {
+				t.Fatal(err)
+			}
+			params[i] = f.Net.Params
+			scores[i] = ScoreNet(p, f.Net)
+		}
+		if !slices.Equal(params[0], params[1]) {
+			t.Errorf("%s: weights differ between 1 and 2 cores", solver)
+		}
+		for j := range scores[0] {
+			if fmt.Sprint(scores[0][j]) != fmt.Sprint(scores[1][j]) {
+				t.Fatalf("%s: neuron %d scores differ between 1 and 2 cores", solver, j)
+			}
+		}
 	}
 }
