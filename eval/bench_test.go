@@ -63,3 +63,38 @@ func TestScorePopulationAllocs(t *testing.T) {
 		t.Errorf("allocations grow with neurons: %v for 200, %v for 2000", a, b)
 	}
 }
+
+// BenchmarkScoreConditions is BenchmarkScorePopulation for a one-hot
+// model: the same held-out set, with predictions given per condition
+// (60 x n) instead of per trial (920 x n).
+func BenchmarkScoreConditions(b *testing.B) {
+	const M, B = 920, 60
+	for _, n := range []int{1000, 6000, 24000} {
+		b.Run(fmt.Sprintf("neurons=%d", n), func(b *testing.B) {
+			rng := rand.New(rand.NewPCG(1, 2))
+			T := M + 80
+			y := make([]float32, T*n)
+			for i := range y {
+				y[i] = float32(rng.NormFloat64())
+			}
+			cond := make([]int, T)
+			for t := range cond {
+				cond[t] = t % B
+			}
+			trials := make([]int, M)
+			for i := range trials {
+				trials[i] = i
+			}
+			pred := make([]float64, B*n)
+			for i := range pred {
+				pred[i] = rng.NormFloat64()
+			}
+			dst := make([]Scores, n)
+			b.ReportAllocs()
+			b.ResetTimer()
+			for b.Loop() {
+				ScoreConditions(dst, y, n, trials, cond, pred, B)
+			}
+		})
+	}
+}

@@ -465,20 +465,6 @@ func phases(o options, r rec) error {
 	return nil
 }
 
-// vmHWM returns the peak resident set size line of /proc/self/status.
-func vmHWM() string {
-	b, err := os.ReadFile("/proc/self/status")
-	if err != nil {
-		return "unknown"
-	}
-	for _, l := range strings.Split(string(b), "\n") {
-		if strings.HasPrefix(l, "VmHWM:") {
-			return strings.TrimSpace(strings.TrimPrefix(l, "VmHWM:"))
-		}
-	}
-	return "unknown"
-}
-
 // compareTemplate adds a comparison to a fit config: the encoder of the
 // config (projected solver) and the default baselines, 5 folds.
 const compareTemplate = `compare:
