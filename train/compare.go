@@ -207,10 +207,7 @@ type FoldResult struct {
 // Folds returns the cross-validation folds of a prepared recording as
 // (train, validation, test) trial sets.
 func Folds(p *Prepared) ([][3][]int, error) {
-	var blocks []int
-	if p.Cfg.Split.KeepBlocks {
-		blocks = p.Rec.Block
-	}
+	blocks := p.Blocks
 	sp, err := data.KFold(p.Cond, blocks, p.NBins, p.Cfg.Split.Folds, p.Cfg.Seed)
 	if err != nil {
 		return nil, fmt.Errorf("folds: %w", err)

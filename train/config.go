@@ -74,6 +74,9 @@ type SplitConfig struct {
 	Folds              int     `yaml:"folds"`
 	// KeepBlocks keeps the trials of one block on one side of every split.
 	KeepBlocks bool `yaml:"keep_blocks"`
+	// BlockTrials, when the recording has no block ids, makes blocks of
+	// this many consecutive trials (trials in time order); 0: none.
+	BlockTrials int `yaml:"block_trials"`
 	// ZScore standardises each neuron with the training trials' mean and
 	// standard deviation.
 	ZScore bool `yaml:"zscore"`
@@ -330,6 +333,12 @@ func (c *Config) Validate() error {
 	}
 	if !(s.ValidationFraction > 0 && s.ValidationFraction < 1) {
 		bad("split.validation_fraction %v: want a value in (0, 1)", s.ValidationFraction)
+	}
+	if s.BlockTrials < 0 {
+		bad("split.block_trials %d: want 0 (no blocks) or a number of consecutive trials", s.BlockTrials)
+	}
+	if s.BlockTrials > 0 && (c.Data.Block != "" || c.Data.BlockColumn != "") {
+		bad("split.block_trials %d and data.block/block_column: give block ids or a block length, not both", s.BlockTrials)
 	}
 	if s.Folds < 2 {
 		bad("split.folds %d: want at least 2", s.Folds)

@@ -316,3 +316,45 @@ func TestCoresDoNotChangeResults(t *testing.T) {
 		}
 	}
 }
+
+// TestBlockTrials: without block ids, split.block_trials keeps runs of
+// consecutive trials on one side of the test split, of the validation
+// split and of every fold.
+func TestBlockTrials(t *testing.T) {
+	rec, _, _ := data.Synth(data.SynthConfig{Neurons: 10, Trials: 1200, Bins: 60, TwoPeakFrac: 0.25, UntunedFrac: 0.1, GainSD: 0.15, NoiseSD: 0.5, Seed: 11})
+	rec.Block = nil // no block ids: blocks come from split.block_trials
+	cfg := Defaults()
+	cfg.Data.Responses = "synthetic"
+	cfg.Axis = AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 30, Encoding: "onehot"}
+	cfg.Split.KeepBlocks = true
+	cfg.Split.BlockTrials = 40
+	if err := cfg.Validate(); err != nil {
+		t.Fatal(err)
+	}
+	p, err := PrepareRecording(&cfg, rec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	side := map[int]string{}
+	check := func(what string, trials []int, name string) {
+		for _, tr := range trials {
+			b := tr / 40
+			if s, ok := side[b]; ok && s != name {
+				t.Fatalf("%s: block %d is in %s and %s", what, b, s, name)
+			}
+			side[b] = name
+		}
+	}
+	check("hold-out", p.Train, "train")
+	check("hold-out", p.Val, "validation")
+	check("hold-out", p.Test, "test")
+	folds, err := Folds(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for f, sets := range folds {
+		side = map[int]string{}
+		check(fmt.Sprint("fold ", f+1), append(slices.Clone(sets[0]), sets[1]...), "train")
+		check(fmt.Sprint("fold ", f+1), sets[2], "test")
+	}
+}

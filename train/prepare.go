@@ -15,6 +15,10 @@ type Prepared struct {
 	NBins int
 	// Cond is the bin of each trial.
 	Cond []int
+	// Blocks is the block of each trial that splits keep together (nil when
+	// blocks are not kept): the recording's block ids, or runs of
+	// split.block_trials consecutive trials.
+	Blocks []int
 	// Train, Val and Test are trial indices. Val is carved from the
 	// training trials for early stopping; Test is held out until the end.
 	Train, Val, Test []int
@@ -61,10 +65,16 @@ func PrepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
 		return nil, err
 	}
 	p.Report = rep
-	var blocks []int
 	if cfg.Split.KeepBlocks {
-		blocks = rec.Block
+		p.Blocks = rec.Block
+		if p.Blocks == nil && cfg.Split.BlockTrials > 0 {
+			p.Blocks = make([]int, len(cond))
+			for t := range p.Blocks {
+				p.Blocks[t] = t / cfg.Split.BlockTrials
+			}
+		}
 	}
+	blocks := p.Blocks
 	sp, err := data.HoldOut(cond, blocks, p.NBins, cfg.Split.TestFraction, cfg.Seed)
 	if err != nil {
 		return nil, fmt.Errorf("test split: %w", err)
