@@ -1,11 +1,5 @@
 package eval
 
-import (
-	"runtime"
-	"sync"
-	"sync/atomic"
-)
-
 // ScoreConditions is ScorePopulation for a model whose prediction depends
 // only on the condition (one-hot input): pred is nbins x n, row b the
 // prediction for every trial of condition b. The scores are those of
@@ -32,59 +26,17 @@ func ScoreConditions(dst []Scores, y []float32, n int, trials, cond []int, pred 
 		panic("eval: ScoreConditions: nbins must be positive")
 	}
 	checkLen(len(pred), nbins*n, "ScoreConditions pred")
-	T := len(y) / n
-	if len(cond) < T {
-		panic("eval: ScoreConditions: cond shorter than the number of rows of y")
-	}
-	sh := &shared{
-		y: y, n: n, trials: trials, pred: pred, nbins: nbins,
-		ci:     make([]int, len(trials)),
-		half:   make([]bool, len(trials)),
-		counts: make([]int, nbins),
-		cntA:   make([]int, nbins),
-	}
-	for i, r := range trials {
-		if r < 0 || r >= T {
-			panic("eval: ScoreConditions: trial index out of range")
-		}
-		c := cond[r]
-		if c < 0 || c >= nbins {
-			panic("eval: ScoreConditions: condition out of range")
-		}
-		sh.ci[i] = c
-		sh.half[i] = sh.counts[c]%2 == 1
-		if !sh.half[i] {
-			sh.cntA[c]++
-		}
-		sh.counts[c]++
-	}
-	nblocks := (n + scoreBlock - 1) / scoreBlock
-	workers := min(runtime.GOMAXPROCS(0), nblocks)
-	var next atomic.Int64
-	var wg sync.WaitGroup
-	for w := 0; w < workers; w++ {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			sc := newScorer(nbins)
-			sq := make([]float64, nbins*scoreBlock)
-			for {
-				blk := int(next.Add(1) - 1)
-				if blk >= nblocks {
-					return
-				}
-				n0 := blk * scoreBlock
-				n1 := min(n0+scoreBlock, n)
-				sc.blockConditions(dst[n0:n1], sh, sq, n0, n1-n0)
-			}
-		}()
-	}
-	wg.Wait()
+	sh := newShared("ScoreConditions", y, n, trials, cond, pred, nbins)
+	eachBlock(dst, sh, func(sc *scorer, dst []Scores, n0, w int) { sc.blockConditions(dst, sh, n0, w) })
 }
 
 // blockConditions scores neurons n0..n0+w-1 from per-condition sums.
-func (s *scorer) blockConditions(dst []Scores, sh *shared, sq []float64, n0, w int) {
+func (s *scorer) blockConditions(dst []Scores, sh *shared, n0, w int) {
 	const nb = scoreBlock
+	if s.sq == nil {
+		s.sq = make([]float64, len(s.sumY))
+	}
+	sq := s.sq
 	for _, a := range [][]float64{s.sumY, s.sumP, s.sumA, s.ssw, sq, s.totY, s.totP, s.ssTot, s.ssP, s.cYP, s.sse, s.sseC} {
 		zero(a)
 	}

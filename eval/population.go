@@ -74,9 +74,17 @@ func ScorePopulation(dst []Scores, y []float32, n int, trials, cond []int, pred 
 	if nbins <= 0 {
 		panic("eval: ScorePopulation: nbins must be positive")
 	}
+	sh := newShared("ScorePopulation", y, n, trials, cond, pred, nbins)
+	eachBlock(dst, sh, func(sc *scorer, dst []Scores, n0, w int) { sc.block(dst, sh, n0, w) })
+}
+
+// newShared checks the inputs of a scoring call (panicking with an "eval: "
+// message naming fn) and assigns each held-out trial its condition and
+// split half.
+func newShared(fn string, y []float32, n int, trials, cond []int, pred []float64, nbins int) *shared {
 	T := len(y) / n
 	if len(cond) < T {
-		panic("eval: ScorePopulation: cond shorter than the number of rows of y")
+		panic("eval: " + fn + ": cond shorter than the number of rows of y")
 	}
 	sh := &shared{
 		y: y, n: n, trials: trials, pred: pred, nbins: nbins,
@@ -87,11 +95,11 @@ func ScorePopulation(dst []Scores, y []float32, n int, trials, cond []int, pred 
 	}
 	for i, r := range trials {
 		if r < 0 || r >= T {
-			panic("eval: ScorePopulation: trial index out of range")
+			panic("eval: " + fn + ": trial index out of range")
 		}
 		c := cond[r]
 		if c < 0 || c >= nbins {
-			panic("eval: ScorePopulation: condition out of range")
+			panic("eval: " + fn + ": condition out of range")
 		}
 		sh.ci[i] = c
 		sh.half[i] = sh.counts[c]%2 == 1 // false: half A, true: half B
@@ -100,18 +108,24 @@ func ScorePopulation(dst []Scores, y []float32, n int, trials, cond []int, pred 
 		}
 		sh.counts[c]++
 	}
+	return sh
+}
+
+// eachBlock scores the neurons in blocks of scoreBlock, the blocks shared
+// out to one worker per core, each with its own scratch space. Each
+// neuron is scored by one goroutine in a fixed order, so the result does
+// not depend on scheduling.
+func eachBlock(dst []Scores, sh *shared, score func(sc *scorer, dst []Scores, n0, w int)) {
+	n := sh.n
 	nblocks := (n + scoreBlock - 1) / scoreBlock
-	workers := runtime.GOMAXPROCS(0)
-	if workers > nblocks {
-		workers = nblocks
-	}
+	workers := min(runtime.GOMAXPROCS(0), nblocks)
 	var next atomic.Int64
 	var wg sync.WaitGroup
 	for w := 0; w < workers; w++ {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			sc := newScorer(nbins)
+			sc := newScorer(sh.nbins)
 			for {
 				blk := int(next.Add(1) - 1)
 				if blk >= nblocks {
@@ -119,7 +133,7 @@ func ScorePopulation(dst []Scores, y []float32, n int, trials, cond []int, pred 
 				}
 				n0 := blk * scoreBlock
 				n1 := min(n0+scoreBlock, n)
-				sc.block(dst[n0:n1], sh, n0, n1-n0)
+				score(sc, dst[n0:n1], n0, n1-n0)
 			}
 		}()
 	}
@@ -143,6 +157,7 @@ type shared struct {
 // shape nbins x scoreBlock and per-neuron accumulators of length scoreBlock.
 type scorer struct {
 	sumY, sumP, sumA, ssw                  []float64 // nbins x scoreBlock
+	sq                                     []float64 // nbins x scoreBlock, sums of squares (ScoreConditions only)
 	totY, totP, ssTot, ssP, cYP, sse, sseC []float64 // scoreBlock
 	refY, refP                             []float64 // scoreBlock
 	ybar, yhat, vars, hA, hB               []float64 // nbins
