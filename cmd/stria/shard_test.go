@@ -162,7 +162,7 @@ func TestKilledShardReruns(t *testing.T) {
 	dir := t.TempDir()
 	// Long enough units (no early stop) that the shard is still running
 	// when its first unit lands.
-	cfg := writeSessions(t, dir, 400)
+	cfg := writeSessions(t, dir, 2000)
 	if out, err := runCLI(t, "compare", "--config", cfg, "--quiet"); err != nil {
 		t.Fatalf("unsharded: %v\n%s", err, out)
 	}
