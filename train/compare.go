@@ -238,7 +238,10 @@ func RunUnit(ctx context.Context, p *Prepared, spec ModelSpec, fold int, sets [3
 			return nil, fmt.Errorf("%s, fold %d: %w", spec.Name, fold+1, err)
 		}
 		res.Epochs = len(f.Log)
-		res.Curves = PredictConditions(f.Net, p.NBins)
+		res.Curves = f.Curves
+		if res.Curves == nil {
+			res.Curves = PredictConditions(f.Net, p.NBins)
+		}
 		if pf.Norm != nil {
 			n := p.Neurons()
 			for i := range res.Curves {

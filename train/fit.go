@@ -60,6 +60,10 @@ type Fitted struct {
 	BestEpoch int
 	// Stop says why training ended: "patience" or "max_epochs".
 	Stop string
+	// Curves, when not nil, is the net's prediction for every bin
+	// (nbins x N, in the units the net was trained in), which a solver
+	// could compute more cheaply than a forward pass.
+	Curves []float64
 }
 
 // rowSet is a set of training rows: model inputs, targets and row weights.

@@ -87,6 +87,7 @@ type projector struct {
 	oneHot *oneHotConv
 
 	// Scratch.
+	h                   []float64 // B x F, features of the last call to features
 	hbar, hv            []float64 // F, Bv x F
 	a, ga, qt           []float64 // Bt x F
 	k, l, x, m          []float64 // Bt x Bt
@@ -98,13 +99,17 @@ type projector struct {
 	obj, loss, val, vr2 float64   // results of the last eval
 }
 
-// projectedR2Budget bounds the multiply-adds per epoch spent, on average,
-// on the median validation R^2 (Bv Bt N of them each time it is computed):
-// 2e6 is about the work of one step at the full-size shape (B 60, F 480),
-// so the R^2 never costs more than the training itself. At 60 bins it is
-// computed every epoch up to about 550 neurons and every 44th epoch at
-// 24,000 neurons.
-const projectedR2Budget = 2e6
+// The median validation R^2 costs Bv Bt N multiply-adds each time it is
+// computed. Up to projectedR2Every of them it is computed every epoch (at
+// 60 bins: up to about 1,100 neurons); above, every k-th epoch with k
+// chosen so that it costs on average projectedR2Budget per epoch, about a
+// quarter of a training step at the full-size shape (B 60, F 480): every
+// 173rd epoch at 24,000 neurons. It only feeds the log; the stop uses the
+// validation loss, computed every epoch.
+const (
+	projectedR2Every  = 4e6
+	projectedR2Budget = 5e5
+)
 
 func newProjector(p *Prepared, net *nn.Net) (*projector, error) {
 	cfg := p.Cfg
@@ -219,7 +224,10 @@ func newProjector(p *Prepared, net *nn.Net) (*projector, error) {
 				pj.cvt[r*Bt+c] *= pj.sq[c]
 			}
 		}
-		pj.r2Every = max(1, int(math.Ceil(float64(Bv)*float64(Bt)*float64(N)/projectedR2Budget)))
+		pj.r2Every = 1
+		if cost := float64(Bv) * float64(Bt) * float64(N); cost > projectedR2Every {
+			pj.r2Every = int(math.Ceil(cost / projectedR2Budget))
+		}
 		pj.g = make([]float64, Bv*N)
 		pj.ssRes = make([]float64, N)
 		pj.r2 = make([]float64, N)
@@ -266,6 +274,7 @@ func (pj *projector) features(net *nn.Net) []float64 {
 	} else {
 		h = net.ForwardFeatures(pj.work, pj.eye, pj.B)
 	}
+	pj.h = h
 	clear(pj.hbar)
 	for r, b := range pj.rows {
 		w := pj.pw[r]
@@ -489,6 +498,39 @@ func (pj *projector) readout(net *nn.Net) error {
 	return nil
 }
 
+// curves returns the prediction of every bin (B x N, trained units) for the
+// features and the readout of the last call to readout, in factored form:
+// f_bn = (h_b - hbar) . w_n + ybar_n and w_n = qt^T yc_n, so the B x N
+// predictions are ((H - 1 hbar^T) qt^T) Yc, a B x Bt x N product instead
+// of the B x F x N one of a forward pass through the readout.
+func (pj *projector) curves() []float64 {
+	B, Bt, F, N := pj.B, pj.Bt, pj.F, pj.N
+	h := pj.h
+	g := make([]float64, B*Bt)
+	hc := make([]float64, F)
+	for b := 0; b < B; b++ {
+		for f, v := range h[b*F : (b+1)*F] {
+			hc[f] = v - pj.hbar[f]
+		}
+		for r := 0; r < Bt; r++ {
+			var s float64
+			for f, q := range pj.qt[r*F : (r+1)*F] {
+				s += hc[f] * q
+			}
+			g[b*Bt+r] = s
+		}
+	}
+	out := make([]float64, B*N)
+	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(g, B, Bt), gen(pj.yc, Bt, N), 0, gen(out, B, N))
+	for b := 0; b < B; b++ {
+		row := out[b*N : (b+1)*N]
+		for n, m := range pj.ymean {
+			row[n] += m
+		}
+	}
+	return out
+}
+
 // initConv draws the conv parameters exactly as nn.Net.Init does (uniform
 // on [-1/sqrt(In K), 1/sqrt(In K)), in the order of Params), so that the
 // projected and the adam path start from the same filters, without drawing
@@ -631,5 +673,5 @@ func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpo
 	if err := pj.readout(net); err != nil {
 		return nil, err
 	}
-	return &Fitted{Net: net, Log: st.Log, BestEpoch: st.BestEpoch, Stop: stop}, nil
+	return &Fitted{Net: net, Log: st.Log, BestEpoch: st.BestEpoch, Stop: stop, Curves: pj.curves()}, nil
 }

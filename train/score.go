@@ -93,6 +93,22 @@ func ScoreNet(p *Prepared, net *nn.Net) []eval.Scores {
 	return ScoreCurves(p, pc)
 }
 
+// ScoreFitted is ScoreNet using the curves the solver computed, when it
+// did.
+func ScoreFitted(p *Prepared, f *Fitted) []eval.Scores {
+	if f.Curves == nil || p.Soft() {
+		return ScoreNet(p, f.Net)
+	}
+	n := p.Neurons()
+	pc := slices.Clone(f.Curves)
+	if p.Norm != nil {
+		for lo := 0; lo < len(pc); lo += n {
+			unscale(pc[lo:lo+n], p.Norm.Scale, p.Norm.Mean)
+		}
+	}
+	return ScoreCurves(p, pc)
+}
+
 // ScoreCurves scores a one-hot model's predictions (nbins x N, recording
 // units) on the test trials, reading each test trial once.
 func ScoreCurves(p *Prepared, pc []float64) []eval.Scores {

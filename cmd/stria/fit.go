@@ -129,7 +129,7 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*train.Summar
 	// The weights are written while the test trials are scored.
 	written := make(chan error, 1)
 	go func() { written <- train.WriteModel(dir, p, fitted) }()
-	scores := train.ScoreNet(p, fitted.Net)
+	scores := train.ScoreFitted(p, fitted)
 	phase("score the test trials")
 	if err := <-written; err != nil {
 		return nil, err
