@@ -149,7 +149,7 @@ func Defaults() Config {
 			CheckpointEvery: 100,
 			Solver:          "adam",
 		},
-		Compare: CompareConfig{Starts: 3, SmoothLambda: 2, Output: "runs/compare"},
+		Compare: CompareConfig{Starts: 8, SmoothLambda: 2, Output: "runs/compare"},
 		Output:  "runs/fit",
 	}
 }

@@ -91,7 +91,7 @@ compare:
       layers:
         - channels: 4
           kernel: 9
-  starts: 3
+  starts: 8
   output: compare
 output: run
 `

@@ -321,9 +321,12 @@ func (f *curveFit) fit(counts []int, means []float64) (ok bool, n int, ym, ysd f
 		MajorIterations:   200,
 		FuncEvaluations:   2000,
 	}
-	bestF := math.Inf(1)
-	var start [2]float64
+	// The starting points are screened: the objective is evaluated at each,
+	// and BFGS runs from the best one only (an evaluation costs little; a
+	// run of the optimiser a few dozen evaluations plus its set-up).
+	var cands [][2]float64
 	for s := 0; s < f.starts; s++ {
+		var start [2]float64
 		switch {
 		case f.kind == kindGauss && s == 0:
 			start = [2]float64{f.x[amax], math.Log(math.Max(span/6, math.Exp(f.lsLo)))}
@@ -334,13 +337,21 @@ func (f *curveFit) fit(counts []int, means []float64) (ok bool, n int, ym, ysd f
 		default:
 			start = [2]float64{math.Log(0.5) + math.Log(40)*f.rng.Float64(), 2 * math.Pi * f.rng.Float64()}
 		}
-		res, err := optimize.Minimize(prob, start[:], settings, f.method)
-		if res == nil {
-			continue
+		cands = append(cands, start)
+	}
+	bestStart, bestStartF := -1, math.Inf(1)
+	for i, c := range cands {
+		if v := prob.Func(c[:]); v < bestStartF {
+			bestStart, bestStartF = i, v
 		}
+	}
+	bestF := math.Inf(1)
+	if bestStart >= 0 {
+		start := cands[bestStart]
+		res, err := optimize.Minimize(prob, start[:], settings, f.method)
 		_ = err // a stopped-early result is still a candidate; compare by loss
-		if v := res.F; v < bestF && !math.IsNaN(v) {
-			bestF = v
+		if res != nil && !math.IsNaN(res.F) {
+			bestF = res.F
 			copy(best[:], res.X)
 		}
 	}

@@ -6,7 +6,12 @@ import (
 )
 
 // Curve is a parametric tuning curve fitted by weighted least squares from
-// several starts (see NewVonMises, NewVonMisesTwoPeak, NewGaussianBump).
+// the best of several starting points (see NewVonMises, NewVonMisesTwoPeak,
+// NewGaussianBump): the objective is evaluated at every starting point and
+// gonum's BFGS runs from the one with the lowest value. Screening costs one
+// evaluation per point, where each run of the optimiser costs a few dozen
+// evaluations and starts goroutines of its own, so many points can be
+// screened for the price of one run.
 //
 // The two linear parameters (baseline b and amplitudes A) are eliminated in
 // closed form for each value of the two nonlinear ones (variable projection,
@@ -35,8 +40,8 @@ type Curve struct {
 // with P = period (360 gives the direction form, 180 the orientation form).
 // Params: [b, A, kappa, mu], mu in [0, P) axis units, kappa in
 // [exp(-5), exp(6.5)] (about 0.0067 to 665). starts is the number of starting
-// points (at least 1): the first is mu at the largest condition mean with
-// kappa 2, the rest draw mu uniformly and log kappa uniformly in
+// points screened (at least 1): the first is mu at the largest condition
+// mean with kappa 2, the rest draw mu uniformly and log kappa uniformly in
 // [log 0.5, log 20] from rng. It panics unless period > 0.
 func NewVonMises(centers []float64, period float64, starts int, rng *rand.Rand) Model {
 	checkCenters("NewVonMises", centers, period)
