@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"stria/data"
+	"stria/eval/report/browsertest"
 	"stria/train"
 )
 
@@ -44,6 +45,8 @@ func TestDemoEndToEnd(t *testing.T) {
 			t.Errorf("demo report %s missing or small (%v)", f, err)
 		}
 	}
+	checkInBrowser(t, filepath.Join(run, train.FileReport), "demo-run-report")
+	checkInBrowser(t, filepath.Join(dir, "compare", train.FileReport), "demo-compare-report")
 	for _, f := range []string{train.FileConfig, train.FileManifest, train.FileFilters, train.FileMetrics, train.FileSummary, train.FileLog, train.FileSplit, "weights/readout_weight.npy"} {
 		if st, err := os.Stat(filepath.Join(run, f)); err != nil || st.Size() == 0 {
 			t.Errorf("run folder: %s missing or empty (%v)", f, err)
@@ -210,4 +213,46 @@ func TestInterruptAndResume(t *testing.T) {
 	if len(m1) == 0 || !bytes.Equal(m1, m2) {
 		t.Error("the resumed fit's metrics differ from an uninterrupted fit's")
 	}
+}
+
+// checkInBrowser opens a report that stria wrote in headless Chromium:
+// every figure must be visible, the page must not reach outside itself or
+// report a console error. The screenshot is kept in $STRIA_ARTEFACTS.
+func checkInBrowser(t *testing.T, path, name string) {
+	t.Helper()
+	if err := browsertest.Available(); err != nil {
+		if os.Getenv("CI") == "true" {
+			t.Fatalf("CI=true: %v", err)
+		}
+		t.Logf("browser check of %s skipped: %v", path, err)
+		return
+	}
+	page, err := browsertest.Open(path, t.TempDir(), 90*time.Second)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(page.Figures) < 5 {
+		t.Errorf("%s: only %d figures", name, len(page.Figures))
+	}
+	for _, f := range page.Figures {
+		if !f.OK {
+			t.Errorf("%s: figure %s not visible: %+v", name, f.ID, f)
+		}
+	}
+	if len(page.TOCBroken) > 0 {
+		t.Errorf("%s: broken contents links %v", name, page.TOCBroken)
+	}
+	for _, u := range page.Requests {
+		t.Errorf("%s: the page requested %s", name, u)
+	}
+	for _, p := range page.Problems {
+		t.Errorf("%s: browser reported %s", name, p)
+	}
+	if d := os.Getenv("STRIA_ARTEFACTS"); d != "" {
+		os.MkdirAll(d, 0o755)
+		if err := os.WriteFile(filepath.Join(d, name+".png"), page.Screenshot, 0o644); err != nil {
+			t.Error(err)
+		}
+	}
+	t.Logf("%s: %d figures visible, page height %.0f px", name, len(page.Figures), page.Height)
 }
