@@ -242,13 +242,7 @@ func RunUnit(ctx context.Context, p *Prepared, spec ModelSpec, fold int, sets [3
 		if res.Curves == nil {
 			res.Curves = PredictConditions(f.Net, p.NBins)
 		}
-		if pf.Norm != nil {
-			n := p.Neurons()
-			for i := range res.Curves {
-				j := i % n
-				res.Curves[i] = res.Curves[i]*pf.Norm.Scale[j] + pf.Norm.Mean[j]
-			}
-		}
+		pf.unscaleCurves(res.Curves)
 		if p.Soft() {
 			pred = PredictTrials(f.Net, pf, sets[2])
 		}

@@ -83,13 +83,8 @@ func ScoreNet(p *Prepared, net *nn.Net) []eval.Scores {
 	if p.Soft() {
 		return Score(p, PredictTrials(net, p, p.Test))
 	}
-	n := p.Neurons()
 	pc := PredictConditions(net, p.NBins)
-	if p.Norm != nil {
-		for lo := 0; lo < len(pc); lo += n {
-			unscale(pc[lo:lo+n], p.Norm.Scale, p.Norm.Mean)
-		}
-	}
+	p.unscaleCurves(pc)
 	return ScoreCurves(p, pc)
 }
 
@@ -99,14 +94,21 @@ func ScoreFitted(p *Prepared, f *Fitted) []eval.Scores {
 	if f.Curves == nil || p.Soft() {
 		return ScoreNet(p, f.Net)
 	}
-	n := p.Neurons()
 	pc := slices.Clone(f.Curves)
-	if p.Norm != nil {
-		for lo := 0; lo < len(pc); lo += n {
-			unscale(pc[lo:lo+n], p.Norm.Scale, p.Norm.Mean)
-		}
-	}
+	p.unscaleCurves(pc)
 	return ScoreCurves(p, pc)
+}
+
+// unscaleCurves undoes the z-scoring of per-bin predictions (nbins x N)
+// in place.
+func (p *Prepared) unscaleCurves(pc []float64) {
+	if p.Norm == nil {
+		return
+	}
+	n := p.Neurons()
+	for lo := 0; lo < len(pc); lo += n {
+		unscale(pc[lo:lo+n], p.Norm.Scale, p.Norm.Mean)
+	}
 }
 
 // ScoreCurves scores a one-hot model's predictions (nbins x N, recording
