@@ -3,7 +3,7 @@ package data_test
 import (
 	"fmt"
 
-	"stria/data"
+	"github.com/strialab/stria/data"
 )
 
 // Binning motion directions into 6-degree bins on a periodic axis.

@@ -6,8 +6,8 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"stria/eval"
-	"stria/eval/tuning"
+	"github.com/strialab/stria/eval"
+	"github.com/strialab/stria/eval/tuning"
 )
 
 // simPopulation draws R independent replicate "neurons" that share the tuning

@@ -4,7 +4,7 @@ import (
 	"fmt"
 	"math/rand/v2"
 
-	"stria/nn"
+	"github.com/strialab/stria/nn"
 )
 
 // Build a small encoder for a periodic stimulus axis of 60 bins, forward a

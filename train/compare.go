@@ -12,9 +12,9 @@ import (
 	"strings"
 	"sync"
 
-	"stria/data"
-	"stria/eval"
-	"stria/eval/tuning"
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
+	"github.com/strialab/stria/eval/tuning"
 )
 
 // CompareConfig is the compare section of a config: which models to

@@ -10,9 +10,9 @@ import (
 	"strconv"
 	"strings"
 
-	"stria/data"
-	"stria/eval"
-	"stria/eval/tuning"
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
+	"github.com/strialab/stria/eval/tuning"
 )
 
 // Comparison folder file names.

@@ -13,8 +13,8 @@ import (
 
 	"gopkg.in/yaml.v3"
 
-	"stria/data"
-	"stria/nn"
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/nn"
 )
 
 // Config is the YAML configuration of a fit (and, with Compare, of a

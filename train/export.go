@@ -24,10 +24,10 @@ import (
 	"gonum.org/v1/plot/vg/vgimg"
 	"gonum.org/v1/plot/vg/vgsvg"
 
-	"stria/data"
-	"stria/eval/figure"
-	"stria/eval/report"
-	"stria/eval/tuning"
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval/figure"
+	"github.com/strialab/stria/eval/report"
+	"github.com/strialab/stria/eval/tuning"
 )
 
 // DirExport is the folder, inside a run or comparison folder, that stria

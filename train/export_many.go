@@ -8,7 +8,7 @@ import (
 	"strconv"
 	"strings"
 
-	"stria/eval/report"
+	"github.com/strialab/stria/eval/report"
 )
 
 // KindMany is a comparison folder over several recordings: a comparison

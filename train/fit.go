@@ -9,8 +9,8 @@ import (
 	"slices"
 	"time"
 
-	"stria/data"
-	"stria/nn"
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/nn"
 )
 
 // EpochLog is one line of the training log.

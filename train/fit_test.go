@@ -11,9 +11,9 @@ import (
 	"strings"
 	"testing"
 
-	"stria/data"
-	"stria/eval"
-	"stria/nn"
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
+	"github.com/strialab/stria/nn"
 )
 
 // synthPrepared builds a prepared demo-scenario recording.

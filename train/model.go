@@ -6,8 +6,8 @@ import (
 	"os"
 	"path/filepath"
 
-	"stria/data"
-	"stria/nn"
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/nn"
 )
 
 // Model is a trained encoder loaded back from a run folder.

@@ -1,6 +1,6 @@
 package train
 
-import "stria/nn"
+import "github.com/strialab/stria/nn"
 
 // oneHotConv is the first conv layer (followed by its ReLU) evaluated on
 // the B one-hot inputs, one per bin, by placing the kernel instead of

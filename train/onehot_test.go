@@ -7,7 +7,7 @@ import (
 	"slices"
 	"testing"
 
-	"stria/nn"
+	"github.com/strialab/stria/nn"
 )
 
 // TestOneHotConvMatchesNet compares the one-hot evaluation of a one-layer

@@ -15,7 +15,7 @@ import (
 	"strings"
 	"sync"
 
-	"stria/eval"
+	"github.com/strialab/stria/eval"
 )
 
 // RecordingConfig is one entry of the recordings list of a comparison.

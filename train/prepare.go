@@ -4,7 +4,7 @@ import (
 	"fmt"
 	"math"
 
-	"stria/data"
+	"github.com/strialab/stria/data"
 )
 
 // Prepared is a recording loaded, binned, checked and split, ready to fit.

@@ -13,7 +13,7 @@ import (
 	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/lapack/lapack64"
 
-	"stria/nn"
+	"github.com/strialab/stria/nn"
 )
 
 // The projected solver (train.solver: projected) minimises exactly the

@@ -10,7 +10,7 @@ import (
 	"strings"
 	"testing"
 
-	"stria/nn"
+	"github.com/strialab/stria/nn"
 )
 
 // projectedCase builds a small prepared recording and a net with random

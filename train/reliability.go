@@ -3,8 +3,8 @@ package train
 import (
 	"math"
 
-	"stria/data"
-	"stria/eval"
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
 )
 
 // SplitHalf returns each neuron's split-half reliability over the given

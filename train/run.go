@@ -14,9 +14,9 @@ import (
 	"strconv"
 	"time"
 
-	"stria/data"
-	"stria/eval"
-	"stria/nn"
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
+	"github.com/strialab/stria/nn"
 )
 
 // Version is the stria version recorded in run folders; the command sets

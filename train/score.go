@@ -3,8 +3,8 @@ package train
 import (
 	"slices"
 
-	"stria/eval"
-	"stria/nn"
+	"github.com/strialab/stria/eval"
+	"github.com/strialab/stria/nn"
 )
 
 // Cautions are printed and saved wherever held-out and noise-ceiling

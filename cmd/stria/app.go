@@ -11,7 +11,7 @@ import (
 	"github.com/urfave/cli/v2"
 	"golang.org/x/term"
 
-	"stria/train"
+	"github.com/strialab/stria/train"
 )
 
 // version is set at build time with -ldflags "-X main.version=...".

@@ -11,7 +11,7 @@ import (
 
 	"github.com/urfave/cli/v2"
 
-	"stria/train"
+	"github.com/strialab/stria/train"
 )
 
 func compareCommand() *cli.Command {

@@ -12,8 +12,8 @@ import (
 
 	"github.com/urfave/cli/v2"
 
-	"stria/data"
-	"stria/train"
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/train"
 )
 
 func demoCommand() *cli.Command {

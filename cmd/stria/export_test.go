@@ -14,8 +14,8 @@ import (
 	"strings"
 	"testing"
 
-	"stria/data"
-	"stria/train"
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/train"
 )
 
 // copyDir copies a folder tree, leaving out the folder named skip.

@@ -15,8 +15,8 @@ import (
 	"github.com/schollz/progressbar/v3"
 	"github.com/urfave/cli/v2"
 
-	"stria/data"
-	"stria/train"
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/train"
 )
 
 func fitCommand() *cli.Command {

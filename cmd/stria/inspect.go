@@ -8,9 +8,9 @@ import (
 
 	"github.com/urfave/cli/v2"
 
-	"stria/data"
-	"stria/eval"
-	"stria/train"
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
+	"github.com/strialab/stria/train"
 )
 
 func inspectCommand() *cli.Command {

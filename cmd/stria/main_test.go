@@ -11,9 +11,9 @@ import (
 	"testing"
 	"time"
 
-	"stria/data"
-	"stria/eval/report/browsertest"
-	"stria/train"
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval/report/browsertest"
+	"github.com/strialab/stria/train"
 )
 
 // runCLI runs the stria command line with args and returns its output.

@@ -5,8 +5,8 @@ import (
 
 	"github.com/urfave/cli/v2"
 
-	"stria/data"
-	"stria/train"
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/train"
 )
 
 func predictCommand() *cli.Command {

@@ -5,7 +5,7 @@ import (
 
 	"github.com/urfave/cli/v2"
 
-	"stria/train"
+	"github.com/strialab/stria/train"
 )
 
 func reportCommand() *cli.Command {

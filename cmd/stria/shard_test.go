@@ -11,8 +11,8 @@ import (
 	"testing"
 	"time"
 
-	"stria/data"
-	"stria/train"
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/train"
 )
 
 // TestMain lets the tests run the stria command in child processes: the

@@ -27,8 +27,8 @@ import (
 	"syscall"
 	"time"
 
-	"stria/data"
-	"stria/train"
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/train"
 )
 
 type options struct {

@@ -7,7 +7,7 @@ import (
 	"testing"
 	"time"
 
-	"stria/eval/report/browsertest"
+	"github.com/strialab/stria/eval/report/browsertest"
 )
 
 // artefactDir returns $STRIA_ARTEFACTS (created if needed) or a test temp dir.

@@ -11,7 +11,7 @@ import (
 	"strings"
 	"testing"
 
-	"stria/eval/figure"
+	"github.com/strialab/stria/eval/figure"
 )
 
 // sampleReport draws synthetic figures with eval/figure into dir and returns a
