@@ -242,7 +242,7 @@ func RunUnit(ctx context.Context, p *Prepared, spec ModelSpec, fold int, sets [3
 		if res.Curves == nil {
 			res.Curves = PredictConditions(f.Net, p.NBins)
 		}
-		pf.unscaleCurves(res.Curves)
+		pf.Norm.InvertRows(res.Curves)
 		if p.Soft() {
 			pred = PredictTrials(f.Net, pf, sets[2])
 		}
@@ -310,7 +310,7 @@ func fitBaseline(p *Prepared, kind string) ([]float64, error) {
 			curve := make([]float64, b)
 			for j := w; j < n; j += workers {
 				pcg.Seed(p.Cfg.Seed, uint64(j))
-				mu, inv := p.zscore(j)
+				mu, inv := p.Norm.Affine(j)
 				for c := 0; c < b; c++ {
 					if st.Count[c] > 0 {
 						means[c] = (st.Sum[c*n+j]/float64(st.Count[c]) - mu) * inv

@@ -111,7 +111,7 @@ func condRows(p *Prepared, st *data.CondStats) *rowSet {
 	grand := make([]float64, n)
 	mu, inv := make([]float64, n), make([]float64, n)
 	for j := range mu {
-		mu[j], inv[j] = p.zscore(j)
+		mu[j], inv[j] = p.Norm.Affine(j)
 	}
 	for r, c := range keep {
 		rs.x[r*b+c] = 1
@@ -144,17 +144,7 @@ func trialRows(rs *rowSet, p *Prepared, trials []int) {
 	rs.rows = len(trials)
 	for i, t := range trials {
 		p.encode(rs.x[i*b:(i+1)*b], t)
-		src := p.Rec.Y.Row(t)
-		dst := rs.target[i*n : (i+1)*n]
-		if p.Norm == nil {
-			for j, v := range src {
-				dst[j] = float64(v)
-			}
-			continue
-		}
-		for j, v := range src {
-			dst[j] = (float64(v) - p.Norm.Mean[j]) / p.Norm.Scale[j]
-		}
+		p.Norm.ApplyRow(rs.target[i*n:(i+1)*n], p.Rec.Y.Row(t))
 	}
 }
 
@@ -175,7 +165,7 @@ func ssTotOf(p *Prepared, st *data.CondStats) []float64 {
 		}
 	}
 	for j := range tot {
-		_, inv := p.zscore(j)
+		_, inv := p.Norm.Affine(j)
 		tot[j] = (tot[j] - grand[j]*grand[j]/float64(trials)) * inv * inv
 	}
 	return tot
@@ -488,7 +478,7 @@ func initReadout(p *Prepared, net *nn.Net) {
 	}
 	b := net.ReadB()
 	for j := range mean {
-		mu, inv := p.zscore(j)
+		mu, inv := p.Norm.Affine(j)
 		m := (mean[j]/float64(len(p.Train)) - mu) * inv
 		switch net.Output {
 		case nn.Exp:

@@ -257,10 +257,10 @@ func TestDemoRecovery(t *testing.T) {
 	}
 }
 
-// TestNormFromStats checks the z-scoring derived from per-condition sums
+// TestNormalizerFromStats checks the z-scoring derived from per-condition sums
 // against data.FitNormalizer's two passes over the trials, including a
 // constant neuron (Scale 1) and one with a large offset.
-func TestNormFromStats(t *testing.T) {
+func TestNormalizerFromStats(t *testing.T) {
 	p, _ := synthPrepared(t, 20, 600, func(c *Config) { c.Axis.BinWidth = 12 })
 	y := p.Rec.Y
 	for i := 0; i < y.Rows; i++ {
@@ -270,7 +270,7 @@ func TestNormFromStats(t *testing.T) {
 	all := append(slices.Clone(p.Train), p.Val...)
 	want := data.FitNormalizer(y, all)
 	p.trainSt, p.valSt = nil, nil
-	got := normFromStats(p.TrainStats(), p.ValStats())
+	got := data.NormalizerFromStats(p.TrainStats(), p.ValStats())
 	for j := range want.Mean {
 		// Tolerance: float64 sums of ~500 float32 values; the offset neuron
 		// loses about log10(1000^2) digits to cancellation, leaving ~1e-9.

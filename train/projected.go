@@ -141,7 +141,7 @@ func newProjector(p *Prepared, net *nn.Net) (*projector, error) {
 	// centred mean scales by inv, a sum of squared deviations by inv^2.
 	mu, inv := make([]float64, N), make([]float64, N)
 	for n := range mu {
-		mu[n], inv[n] = p.zscore(n)
+		mu[n], inv[n] = p.Norm.Affine(n)
 	}
 	pj.ymean = make([]float64, N)
 	pj.yc = make([]float64, Bt*N)
@@ -531,22 +531,6 @@ func (pj *projector) curves() []float64 {
 	return out
 }
 
-// initConv draws the conv parameters exactly as nn.Net.Init does (uniform
-// on [-1/sqrt(In K), 1/sqrt(In K)), in the order of Params), so that the
-// projected and the adam path start from the same filters, without drawing
-// (and touching) the N x F readout.
-func initConv(net *nn.Net, rng *rand.Rand) {
-	for l := range net.Convs {
-		c := net.Conv(l)
-		bound := 1 / math.Sqrt(float64(c.In*c.K))
-		for _, dst := range [][]float64{net.ConvW(l), net.ConvB(l)} {
-			for i := range dst {
-				dst[i] = bound * (2*rng.Float64() - 1)
-			}
-		}
-	}
-}
-
 // fitProjected trains with the closed-form readout (METHODS.md §8,
 // variable projection; see the comment at the top of this file). Only the
 // filters (conv weights and biases) are optimised, with Adam and the
@@ -566,7 +550,7 @@ func initConv(net *nn.Net, rng *rand.Rand) {
 func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
 	cfg := p.Cfg
 	net := nn.NewNet(cfg.Shape(p.NBins, p.Neurons()))
-	initConv(net, rand.New(rand.NewPCG(cfg.Seed, 0x1417)))
+	net.InitConvs(rand.New(rand.NewPCG(cfg.Seed, 0x1417)))
 	pj, err := newProjector(p, net)
 	if err != nil {
 		return nil, err

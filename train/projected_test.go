@@ -125,20 +125,6 @@ func TestProjectedGradient(t *testing.T) {
 	}
 }
 
-// TestInitConvMatchesNet checks that initConv draws the filters exactly as
-// nn.Net.Init (the reference: nn's torch-default initialisation).
-func TestInitConvMatchesNet(t *testing.T) {
-	p, _ := projectedCase(t, "circular", 1)
-	a := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
-	b := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
-	a.Init(rand.New(rand.NewPCG(7, 0x1417)))
-	initConv(b, rand.New(rand.NewPCG(7, 0x1417)))
-	nc := len(a.Params) - a.Neurons*a.Features() - a.Neurons
-	if !slices.Equal(a.Params[:nc], b.Params[:nc]) {
-		t.Error("initConv filters differ from nn.Net.Init's")
-	}
-}
-
 func TestProjectedNeedsPenalty(t *testing.T) {
 	p, _ := projectedCase(t, "circular", 0)
 	_, err := Fit(context.Background(), p, Hooks{}, nil)
@@ -261,7 +247,7 @@ func BenchmarkProjectedEpoch(b *testing.B) {
 		b.Run(fmt.Sprintf("neurons=%d", n), func(b *testing.B) {
 			p := benchPrepared(b, n, 1200)
 			net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
-			initConv(net, rand.New(rand.NewPCG(1, 2)))
+			net.InitConvs(rand.New(rand.NewPCG(1, 2)))
 			pj, err := newProjector(p, net)
 			if err != nil {
 				b.Fatal(err)
@@ -284,7 +270,7 @@ func BenchmarkProjectedValR2(b *testing.B) {
 		b.Run(fmt.Sprintf("neurons=%d", n), func(b *testing.B) {
 			p := benchPrepared(b, n, 1200)
 			net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
-			initConv(net, rand.New(rand.NewPCG(1, 2)))
+			net.InitConvs(rand.New(rand.NewPCG(1, 2)))
 			pj, err := newProjector(p, net)
 			if err != nil {
 				b.Fatal(err)
