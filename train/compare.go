@@ -42,7 +42,7 @@ type EncoderSpec struct {
 	ReadoutL2    *float64             `yaml:"readout_l2"`
 	LearningRate *float64             `yaml:"learning_rate"`
 	WeightDecay  *float64             `yaml:"weight_decay"`
-	Solver       string               `yaml:"solver"`
+	Solver       *Solver              `yaml:"solver"`
 	Grid         map[string][]float64 `yaml:"grid"`
 }
 
@@ -109,8 +109,8 @@ func (c *Config) Specs() ([]ModelSpec, error) {
 		if e.WeightDecay != nil {
 			base.Train.WeightDecay = *e.WeightDecay
 		}
-		if e.Solver != "" {
-			base.Train.Solver = e.Solver
+		if e.Solver != nil {
+			base.Train.Solver = *e.Solver
 		}
 		keys := make([]string, 0, len(e.Grid))
 		for k, v := range e.Grid {
