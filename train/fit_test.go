@@ -198,7 +198,7 @@ type fakeSolver struct {
 	k      int
 }
 
-func (f *fakeSolver) name() string        { return "fake" }
+func (f *fakeSolver) name() string         { return "fake" }
 func (f *fakeSolver) trainable() []float64 { return f.params }
 func (f *fakeSolver) begin() error         { return nil }
 func (f *fakeSolver) random() *rand.PCG    { return nil }
