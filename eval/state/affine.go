@@ -257,42 +257,48 @@ func Objective(dst []float64, st *Stats, f []float64, p *Params) {
 	if len(dst) != st.N || len(f) != st.B*st.N || p.N != st.N || p.K != st.K {
 		panic("state: Objective: shape mismatch")
 	}
-	K, N := st.K, st.N
+	K := st.K
 	v := make([]float64, K)
-	for j := 0; j < N; j++ {
+	for j := range dst {
 		if p.Status[j] != Fitted {
 			dst[j] = math.NaN()
 			continue
 		}
-		a, o := p.Gain[j*K:j*K+K], p.Offset[j*K:j*K+K]
-		var J float64
-		for b := 0; b < st.B; b++ {
-			nb := st.Count[b]
-			if nb == 0 {
-				continue
-			}
-			fb := f[b*N+j]
-			u := st.Mean[b*N+j] - fb - p.Bias[j]
-			s1 := st.S1[b*K : b*K+K]
-			s2 := st.S2[b*K*K : (b+1)*K*K]
-			for k := range v {
-				v[k] = fb*a[k] + o[k]
-			}
-			J += nb*u*u + st.SSW[b*N+j]
-			for k := 0; k < K; k++ {
-				var q float64
-				for l := 0; l < K; l++ {
-					q += s2[k*K+l] * v[l]
-				}
-				J += v[k]*q - 2*u*v[k]*s1[k] - 2*v[k]*st.Cross[(b*K+k)*N+j]
-			}
-		}
-		pen := p.Penalty[j*2*K : (j+1)*2*K]
-		for k := 0; k < K; k++ {
-			J += pen[k]*a[k]*a[k] + pen[K+k]*o[k]*o[k]
-		}
-		dst[j] = J
+		dst[j] = objectiveOne(st, f, j, p.Gain[j*K:j*K+K], p.Offset[j*K:j*K+K], p.Bias[j],
+			p.Penalty[j*2*K:(j+1)*2*K], v)
 	}
+}
+
+// objectiveOne is Objective for neuron j with state terms a, o, bias and
+// penalty weights pen; v is scratch of length K.
+func objectiveOne(st *Stats, f []float64, j int, a, o []float64, bias float64, pen, v []float64) float64 {
+	K, N := st.K, st.N
+	var J float64
+	for b := 0; b < st.B; b++ {
+		nb := st.Count[b]
+		if nb == 0 {
+			continue
+		}
+		fb := f[b*N+j]
+		u := st.Mean[b*N+j] - fb - bias
+		s1 := st.S1[b*K : b*K+K]
+		s2 := st.S2[b*K*K : (b+1)*K*K]
+		for k := range v {
+			v[k] = fb*a[k] + o[k]
+		}
+		J += nb*u*u + st.SSW[b*N+j]
+		for k := 0; k < K; k++ {
+			var q float64
+			for l := 0; l < K; l++ {
+				q += s2[k*K+l] * v[l]
+			}
+			J += v[k]*q - 2*u*v[k]*s1[k] - 2*v[k]*st.Cross[(b*K+k)*N+j]
+		}
+	}
+	for k := 0; k < K; k++ {
+		J += pen[k]*a[k]*a[k] + pen[K+k]*o[k]*o[k]
+	}
+	return J
 }
 
 // Predict writes the state model's prediction for the given trials into dst

@@ -289,6 +289,7 @@ func CrossGain(y []float32, n int, f []float64, cond []int, nbins int, train, te
 	names := []string{"population_gain", "population_offset"}[:P]
 	res.Params = newParams(n, P, true)
 	res.Scores = make([]HeldOut, n)
+	res.Pred = make([]float64, len(test)*n)
 	for side := 0; side < 2; side++ {
 		// side 0: half A's neurons, predicted from half B's terms.
 		est := res.FromB
@@ -336,6 +337,9 @@ func CrossGain(y []float32, n int, f []float64, cond []int, nbins int, train, te
 		sco := make([]HeldOut, m)
 		ScoreHeldOut(sco, ys, m, cond, test, fs, pred)
 		for i, j := range cols {
+			for r := range test {
+				res.Pred[r*n+j] = pred[r*m+i]
+			}
 			res.Scores[j] = sco[i]
 			copy(res.Params.Gain[j*P:j*P+P], p.Gain[i*P:i*P+P])
 			copy(res.Params.Offset[j*P:j*P+P], p.Offset[i*P:i*P+P])
