@@ -230,7 +230,8 @@ type CrossResult struct {
 	Params       *Params          // per-neuron coupling to the other half's terms, standardised (see Scale)
 	Scale        [2]*Standardizer // [0] standardises FromB (for half A), [1] FromA (for half B)
 	Scores       []HeldOut        // held-out scores, stimulus-only and with the shared terms
-	LeftOut      []int            // neurons with zero noise variance, left out of the estimates (still scored)
+	Pred         []float64        // M x N prediction of the test trials, row i for test[i]
+	LeftOut      []int            // neurons with weight 0 everywhere, left out of the estimates (still scored)
 }
 
 // CrossGain scores how much of each neuron's held-out variance a shared
