@@ -72,16 +72,16 @@ const (
 	Alternate
 )
 
-// AltOptions control FitFree. Zero values pick the defaults.
-type AltOptions struct {
+// FreeOptions control FitFree. Zero values pick the defaults.
+type FreeOptions struct {
 	Method  Method  // Joint (default) or Alternate
 	Ridge   float64 // ridge of the state terms, as in FitAffine (default 0)
 	Tol     float64 // a neuron stops when one round lowers its objective by less than Tol times it (default 1e-12)
 	MaxIter int     // at most this many rounds (default 500)
 }
 
-// AltFit is the result of FitFree.
-type AltFit struct {
+// FreeFit is the result of FitFree.
+type FreeFit struct {
 	F      []float64 // B x N fitted tuning at the average training state
 	Params *Params   // state terms (HasBias false: F absorbs the bias)
 	// History holds the total objective (sum over fitted neurons of
@@ -94,7 +94,7 @@ type AltFit struct {
 }
 
 // Converged reports whether every fitted neuron met the tolerance.
-func (a *AltFit) Converged() bool {
+func (a *FreeFit) Converged() bool {
 	for j, r := range a.Stopped {
 		if r < 0 && a.Params.Status[j] == Fitted {
 			return false
@@ -130,7 +130,7 @@ func (a *AltFit) Converged() bool {
 // terms, keeps f0 and is left out of the total objective. Neurons are
 // independent, so the result does not depend on the order of the columns.
 // It panics if len(f0) != B*N or opt.Ridge < 0.
-func FitFree(st *Stats, f0 []float64, opt AltOptions) *AltFit {
+func FitFree(st *Stats, f0 []float64, opt FreeOptions) *FreeFit {
 	B, K, N := st.B, st.K, st.N
 	if len(f0) != B*N {
 		panic("state: FitFree: len(f0) != B*N")
@@ -147,7 +147,7 @@ func FitFree(st *Stats, f0 []float64, opt AltOptions) *AltFit {
 	f := append([]float64(nil), f0...)
 	p := newParams(N, K, false)
 	sv := newSolver(K, false)
-	fit := &AltFit{F: f, Params: p, Stopped: make([]int, N)}
+	fit := &FreeFit{F: f, Params: p, Stopped: make([]int, N)}
 	J := make([]float64, N)
 	v := make([]float64, K)
 	gn := newGaussNewton(B, K)

@@ -92,9 +92,9 @@ func TestFreeMonotone(t *testing.T) {
 	_, st := simTwo(t, 60, 4)
 	for _, ridge := range []float64{0, 1e-3} {
 		t.Run(fmt.Sprint("ridge ", ridge), func(t *testing.T) {
-			fits := map[Method]*AltFit{}
+			fits := map[Method]*FreeFit{}
 			for _, m := range []Method{Joint, Alternate} {
-				fit := FitFree(st, st.Mean, AltOptions{Method: m, Ridge: ridge, Tol: 1e-13, MaxIter: 5000})
+				fit := FitFree(st, st.Mean, FreeOptions{Method: m, Ridge: ridge, Tol: 1e-13, MaxIter: 5000})
 				if !fit.Converged() {
 					t.Fatalf("method %d: not converged in %d rounds", m, fit.Rounds)
 				}

@@ -51,7 +51,7 @@ func BenchmarkFitFree(b *testing.B) {
 	_, st, _ := benchSim(b, 2000, 40)
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
-		FitFree(st, st.Mean, AltOptions{Tol: 1e-10})
+		FitFree(st, st.Mean, FreeOptions{Tol: 1e-10})
 	}
 }
 

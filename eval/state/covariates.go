@@ -62,7 +62,7 @@ func NewCovariates(names []string, cols [][]float64, trials int) (*Covariates, e
 	seen := map[string]bool{}
 	for k, nm := range names {
 		if nm == "" {
-			return nil, &CovariateError{Column: fmt.Sprintf("#%d", k), Trial: -1, Reason: "empty name (column 0-based " + fmt.Sprint(k) + ")"}
+			return nil, &CovariateError{Column: fmt.Sprintf("#%d", k), Trial: -1, Reason: fmt.Sprintf("column %d (0-based) has an empty name", k)}
 		}
 		if seen[nm] {
 			return nil, &CovariateError{Column: nm, Trial: -1, Reason: "name used twice"}

@@ -23,7 +23,7 @@ func TestNewCovariatesErrors(t *testing.T) {
 		{"wrong length", []string{"speed", "pupil"}, [][]float64{{1, 2, 3, 4}, {1, 2, 3}}, 4, "pupil", -1, `has 3 values, the responses have 4 trials`},
 		{"constant", []string{"speed", "lick"}, [][]float64{{1, 2, 3, 4}, {0, 0, 0, 0}}, 4, "lick", -1, `constant (0) over all 4 trials`},
 		{"repeated name", []string{"speed", "speed"}, [][]float64{{1, 2}, {2, 1}}, 2, "speed", -1, `name used twice`},
-		{"empty name", []string{""}, [][]float64{{1, 2}}, 2, "#0", -1, `empty name`},
+		{"empty name", []string{""}, [][]float64{{1, 2}}, 2, "#0", -1, `column 0 (0-based) has an empty name`},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			_, err := NewCovariates(tc.names, tc.cols, tc.trials)

@@ -33,8 +33,8 @@ type stateRef struct {
 		R2State []float64 `json:"r2_state"`
 	}
 	Eta2             []float64
-	Alternating      refAlt
-	AlternatingRidge refAlt `json:"alternating_ridge"`
+	Alternating      refFree
+	AlternatingRidge refFree `json:"alternating_ridge"`
 	Population       struct {
 		Half          []bool
 		GainOnlyFromA []float64 `json:"gain_only_from_a"`
@@ -45,7 +45,7 @@ type stateRef struct {
 	}
 }
 
-type refAlt struct {
+type refFree struct {
 	F, Gain, Offset, Objective []float64
 }
 
@@ -162,7 +162,7 @@ func TestAlternatingReference(t *testing.T) {
 		name   string
 		method Method
 		ridge  float64
-		want   refAlt
+		want   refFree
 	}{
 		{"joint no ridge", Joint, 0, r.Alternating},
 		{"joint ridge", Joint, r.Ridge.Lambda, r.AlternatingRidge},
@@ -170,7 +170,7 @@ func TestAlternatingReference(t *testing.T) {
 		{"alternate ridge", Alternate, r.Ridge.Lambda, r.AlternatingRidge},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			fit := FitFree(st, st.Mean, AltOptions{Method: tc.method, Ridge: tc.ridge, Tol: 1e-15, MaxIter: 100000})
+			fit := FitFree(st, st.Mean, FreeOptions{Method: tc.method, Ridge: tc.ridge, Tol: 1e-15, MaxIter: 100000})
 			if !fit.Converged() {
 				t.Fatalf("not converged after %d rounds", fit.Rounds)
 			}

@@ -159,8 +159,11 @@ func (s *Sim) Predict(dst []Predicted) {
 // SharedGain writes the planted population gain change of every trial into
 // dst (length T): abar z_t + betabar l_t, with abar and betabar the means of
 // a_n and beta_n over the neurons, the gain a population of average neurons
-// shares on trial t.
+// shares on trial t. It panics if len(dst) != T.
 func (s *Sim) SharedGain(dst []float64) {
+	if len(dst) != len(s.Cond) {
+		panic("state: Sim.SharedGain: len(dst) != T")
+	}
 	var abar, bbar float64
 	for n := range s.GainPerSD {
 		abar += s.GainPerSD[n]
