@@ -76,6 +76,16 @@
 // offset rows (not the bias): ridge regression on regressors scaled to unit
 // root mean square, so it does not depend on units.
 //
+// Fixing the tuning at the training condition means shrinks the state terms:
+// the means have absorbed each condition's average state, so the part of a
+// covariate that varies between conditions (present by chance even for an
+// independent covariate, NullShare) carries no signal, and the fitted gains
+// shrink by about the covariate's condition share or more (on the
+// simulation: to 0.93 of the planted gains). FitFree, which fits tuning and
+// state terms together, has no such shrinkage (1.00); prefer it when the
+// gains themselves are reported. For held-out prediction the difference is
+// small.
+//
 // # Free tuning (FitFree, ConditionTargets) [derived]
 //
 // For fixed state terms the best tuning of condition b is
