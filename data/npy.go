@@ -446,7 +446,7 @@ func mapNPY(f *os.File, total int64, name string) (*Matrix, error) {
 	if !h.fastLayout(rows, cols, 4) {
 		return nil, nil
 	}
-	v := mapFloat32(f, used, int(h.count))
+	v := mapFloat32(f, used, int(h.count), name)
 	if v == nil {
 		return nil, nil
 	}
