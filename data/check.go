@@ -229,7 +229,7 @@ func CheckWith(rec *Recording, cond []int, opt CheckOptions) (*Report, error) {
 		if opt.Axis != nil {
 			hint = radiansHint(rec.Stim, *opt.Axis)
 		}
-		return rep, fmt.Errorf("data: %d of %d stimulus bins have no trials: %s; use wider bins or fewer bins%s", len(empty), opt.NBins, strings.Join(show, ", "), hint)
+		return rep, fmt.Errorf("data: %s: %d of %d stimulus bins have no trials: %s; use wider bins or fewer bins%s", rec.stimLabel(), len(empty), opt.NBins, strings.Join(show, ", "), hint)
 	}
 	if opt.Hash {
 		if err := rec.HashFiles(); err != nil {
@@ -237,6 +237,45 @@ func CheckWith(rec *Recording, cond []int, opt CheckOptions) (*Report, error) {
 		}
 	}
 	return rep, nil
+}
+
+// StimulusFile returns the file the stimulus values come from: the
+// stimulus file of the source, or the responses file when none is given.
+func (r *Recording) StimulusFile() string {
+	if r.Source.Stimulus != "" {
+		return r.Source.Stimulus
+	}
+	if r.Source.Responses != "" {
+		return r.Source.Responses
+	}
+	return "stimulus"
+}
+
+// stimLabel names the stimulus in messages: `resp.csv column "stim"`,
+// "rec.npz[stim]" or "stim.npy".
+func (r *Recording) stimLabel() string {
+	f, c := r.StimulusFile(), r.Source.StimulusColumn
+	switch {
+	case c == "":
+		return f
+	case fileKind(f) == "npz":
+		return fmt.Sprintf("%s[%s]", f, c)
+	case fileKind(f) == "table":
+		return fmt.Sprintf("%s column %q", f, c)
+	}
+	return f
+}
+
+// Bin bins every trial's stimulus value on the axis a (Axis.BinTrials); the
+// error names the stimulus file (and column or array), the trial (0-based)
+// and the value. Use it rather than a.BinTrials(r.Stim), whose error cannot
+// name the file.
+func (r *Recording) Bin(a Axis) ([]int, error) {
+	cond, err := a.BinTrials(r.Stim)
+	if err != nil && a.Validate() == nil {
+		return nil, fmt.Errorf("data: %s: %s", r.stimLabel(), strings.TrimPrefix(err.Error(), "data: "))
+	}
+	return cond, err
 }
 
 // radiansHint returns a hint for the empty-bins error when the stimulus
