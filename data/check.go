@@ -1,7 +1,6 @@
 package data
 
 import (
-	"crypto/sha256"
 	"fmt"
 	"math"
 	"runtime"
@@ -48,14 +47,23 @@ func Check(rec *Recording, cond []int, nbins int) (*Report, error) {
 //     (0-based) and neuron;
 //   - NaN or Inf stimulus values (trial named);
 //   - cond of the wrong length or with ids outside [0, NBins) (trial named);
-//   - empty condition bins (listed, with their ranges when an Axis is given);
-//   - condition or block id vectors of the wrong length.
+//   - empty condition bins (listed, with their ranges when an Axis is given;
+//     with a hint when the stimulus values look like radians on an axis in
+//     degrees);
+//   - condition or block id vectors of the wrong length;
+//   - with Counts, responses that are not whole numbers >= 0 (the count and
+//     the first few, each with its trial and neuron);
+//   - a *FaultError when the responses are mapped and their file is
+//     truncated during the pass (the pass runs under the fault guard);
+//   - with Hash, a file that changed since Load (wrapping ErrChanged).
 //
 // Otherwise the Report holds warnings: neurons constant over all trials
 // (Constant; excluded from metrics because a correlation or explained
 // variance is undefined for them), conditions with fewer than MinTrials
 // trials (FewTrials; the noise ceiling needs at least two trials per
-// condition), and blocks holding a single trial.
+// condition), blocks holding a single trial, and stimulus values far
+// outside a periodic axis of period 2 pi or pi (degrees on an axis in
+// radians, which wrap into every bin and leave no bin empty to tell).
 func CheckWith(rec *Recording, cond []int, opt CheckOptions) (*Report, error) {
 	rep := &Report{}
 	y := rec.Y
@@ -385,17 +393,29 @@ func scanResponses(y *Matrix, show int, counts bool, file []byte, off int) (scan
 				if k >= pieces {
 					return
 				}
-				if ch != nil {
-					lo, hi := ch.piece(k)
-					ch.digests[k] = sha256.Sum256(file[lo:hi])
+				segment := func(e0, e1 int) {
+					for e := e0; e < e1; {
+						t, n0 := e/N, e%N
+						end := min((t+1)*N, e1)
+						p.scanSegment(y.Data[e:end], t, n0, counts, show, &firsts[k], &firstsNC[k])
+						e = end
+					}
 				}
-				e0, e1 := elem(k), elem(k+1)
-				for e := e0; e < e1; {
-					t, n0 := e/N, e%N
-					end := min((t+1)*N, e1)
-					p.scanSegment(y.Data[e:end], t, n0, counts, show, &firsts[k], &firstsNC[k])
-					e = end
+				if ch == nil {
+					segment(elem(k), elem(k+1))
+					continue
 				}
+				// Checksum a block, then scan its values while they are
+				// in the cache.
+				at := func(b int64) int { return max(0, min(total, (int(b)-off)/4)) }
+				lo, hi := ch.piece(k)
+				var crc pieceCRC
+				for b := lo; b < hi; b += hashBlock {
+					be := min(b+hashBlock, hi)
+					crc.add(file[b:be])
+					segment(at(b), at(be))
+				}
+				ch.digests[k] = crc.digest()
 			}
 		})
 	}

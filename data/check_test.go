@@ -1,6 +1,7 @@
 package data
 
 import (
+	"encoding/binary"
 	"math"
 	"runtime"
 	"slices"
@@ -191,9 +192,30 @@ func TestScanPieces(t *testing.T) {
 			wantNC = append(wantNC, badValue{i / cols, i % cols, float64(v)})
 		}
 	}
-	for _, procs := range []int{1, 2, 7} {
+	// The file of y as an .npy, for the pass that hashes while it scans:
+	// the header shifts the 4 MiB pieces against the values.
+	file := npyHeaderBytes("<f4", []int{rows, cols})
+	off := len(file)
+	for _, v := range y.Data {
+		file = binary.LittleEndian.AppendUint32(file, math.Float32bits(v))
+	}
+	wantHash, _ := hashBytes(file)
+	for _, run := range []struct {
+		procs  int
+		hashed bool
+	}{{1, false}, {2, false}, {7, false}, {1, true}, {2, true}, {7, true}} {
+		procs := run.procs
 		prev := runtime.GOMAXPROCS(procs)
-		sc, err := scanResponses(y, 10, true, nil, 0)
+		var sc scan
+		var err error
+		if run.hashed {
+			sc, err = scanResponses(y, 10, true, file, off)
+			if sc.hash != wantHash {
+				t.Errorf("%d workers: hash %s, want %s", procs, sc.hash, wantHash)
+			}
+		} else {
+			sc, err = scanResponses(y, 10, true, nil, 0)
+		}
 		runtime.GOMAXPROCS(prev)
 		if err != nil {
 			t.Fatal(err)
