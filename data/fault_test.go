@@ -133,6 +133,10 @@ func TestGuardTruncatedMapping(t *testing.T) {
 		}
 	}), resp)
 
+	// A copy (runtime memmove) faults the same way.
+	dst := make([]float32, len(rec.Y.Data))
+	wantFault(t, "copy", Guard(func() { copy(dst, rec.Y.Data) }), resp)
+
 	// Pages of the file still present read fine.
 	if err := Guard(func() { sumAll(rec.Y.Data[:512]) }); err != nil {
 		t.Errorf("reading the part still in the file: %v", err)
