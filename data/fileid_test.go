@@ -263,3 +263,13 @@ func TestCheckHash(t *testing.T) {
 		t.Errorf("stimulus changed before hashing: %v", err)
 	}
 }
+
+// TestHashShortFile: a file that ends before the size it had when opened
+// (truncated while hashed) gives an error wrapping ErrChanged.
+func TestHashShortFile(t *testing.T) {
+	r := strings.NewReader(strings.Repeat("x", 5<<20))
+	_, err := hashReaderAt(r, 9<<20, "resp.npy")
+	if err == nil || !errors.Is(err, ErrChanged) || !strings.Contains(err.Error(), "resp.npy") || !strings.Contains(err.Error(), "shorter") {
+		t.Errorf("error %v", err)
+	}
+}
