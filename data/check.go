@@ -87,7 +87,7 @@ func CheckWith(rec *Recording, cond []int, opt CheckOptions) (*Report, error) {
 	var file []byte
 	var off int
 	if opt.Hash && len(rec.inputs) > 0 && rec.inputs[0].id.Hash == "" {
-		if b, o, _, ok := mappedBytes(y.Data); ok {
+		if b, o, path, ok := mappedBytes(y.Data); ok && path == rec.inputs[0].id.Path {
 			file, off = b, o
 		}
 	}

@@ -323,7 +323,7 @@ func (r *Recording) hashInput(i int, mapped []byte) error {
 		return nil
 	}
 	if mapped == nil && i == 0 && r.Y != nil {
-		if b, _, _, ok := mappedBytes(r.Y.Data); ok {
+		if b, _, path, ok := mappedBytes(r.Y.Data); ok && path == in.id.Path {
 			mapped = b
 		}
 	}
