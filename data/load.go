@@ -245,6 +245,12 @@ func Load(src Source) (*Recording, error) {
 		return nil, fmt.Errorf("data: %s: responses are %dx%d; need at least one trial and one neuron", src.Responses, rec.Y.Rows, rec.Y.Cols)
 	}
 
+	switch {
+	case stimFile == src.Responses && fileKind(stimFile) == "npy":
+		return nil, fmt.Errorf("data: %s: no stimulus file is given (data.stimulus), and a .npy file holds only the responses", src.Responses)
+	case fileKind(stimFile) == "npz" && src.StimulusColumn == "":
+		return nil, fmt.Errorf("data: %s: the stimulus is in an .npz, so its array name must be given (data.stimulus_column)", stimFile)
+	}
 	stim, err := l.vector(stimFile, src.StimulusColumn, "stimulus")
 	if err != nil {
 		return nil, err
