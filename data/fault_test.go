@@ -137,6 +137,17 @@ func TestGuardTruncatedMapping(t *testing.T) {
 	dst := make([]float32, len(rec.Y.Data))
 	wantFault(t, "copy", Guard(func() { copy(dst, rec.Y.Data) }), resp)
 
+	// Writing the values back out fails (a fault, or the kernel's EFAULT
+	// when it reads them itself) and leaves no file behind.
+	outDir := t.TempDir()
+	out := filepath.Join(outDir, "copy.npy")
+	if err := WriteNPY(out, []int{rec.Y.Rows, rec.Y.Cols}, rec.Y.Data); err == nil || !strings.Contains(err.Error(), "copy.npy") {
+		t.Errorf("WriteNPY of a truncated mapping: %v", err)
+	}
+	if left, _ := os.ReadDir(outDir); len(left) != 0 {
+		t.Errorf("WriteNPY left %v behind", left)
+	}
+
 	// Pages of the file still present read fine.
 	if err := Guard(func() { sumAll(rec.Y.Data[:512]) }); err != nil {
 		t.Errorf("reading the part still in the file: %v", err)
