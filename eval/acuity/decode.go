@@ -60,7 +60,8 @@ type Decoder struct {
 	Shrinkage float64
 	// UniformPrior drops the log prior (LinearDiscriminant); by default the
 	// prior of condition k is its share of the training trials, as in
-	// scikit-learn. Model decoders never use a prior (maximum likelihood).
+	// scikit-learn. The covariance stays the pooled one either way. Model
+	// decoders never use a prior (maximum likelihood).
 	UniformPrior bool
 	// Pred[f] holds the predicted mean of every condition and neuron for
 	// fold f, nbins x n row-major (all n neurons, whatever the subset), fitted
