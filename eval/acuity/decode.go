@@ -4,6 +4,9 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"runtime"
+	"slices"
+	"sync"
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
@@ -121,11 +124,22 @@ func (d *Decoder) Decode(dst []int, y []float32, n int, cond []int, nbins int, f
 	if err := checkFolds(folds, len(cond)); err != nil {
 		return st, err
 	}
-	cols := subset
-	if cols == nil {
+	// Columns in ascending order: the passes over the trials then read each
+	// row front to back (the scores do not depend on the order beyond
+	// rounding).
+	var cols []int
+	if subset == nil {
 		cols = make([]int, n)
 		for j := range cols {
 			cols[j] = j
+		}
+	} else {
+		cols = slices.Clone(subset)
+		slices.Sort(cols)
+		for j := 1; j < len(cols); j++ {
+			if cols[j] == cols[j-1] {
+				return st, fmt.Errorf("acuity: neuron %d appears twice in the subset", cols[j])
+			}
 		}
 	}
 	for t := range dst {
@@ -247,12 +261,47 @@ func row(dst []float64, y []float32, n, t int, cols []int) error {
 	r := y[t*n : t*n+n]
 	for j, c := range cols {
 		v := float64(r[c])
-		if math.IsNaN(v) || math.IsInf(v, 0) {
+		if v-v != 0 { // NaN or Inf
 			return fmt.Errorf("response of trial %d, neuron %d is %v", t, c, v)
 		}
 		dst[j] = v
 	}
 	return nil
+}
+
+// badValue locates a non-finite response.
+type badValue struct{ t, col int }
+
+func (b *badValue) err(y []float32, n int) error {
+	return fmt.Errorf("response of trial %d, neuron %d is %v", b.t, b.col, y[b.t*n+b.col])
+}
+
+// parallelCols runs fn on contiguous chunks [j0, j1) of 0..K-1 on
+// GOMAXPROCS goroutines. Each column is handled by one goroutine, in trial
+// order, so the result does not depend on their number. It returns the
+// non-finite value with the smallest trial (then column) index, if any.
+func parallelCols(K int, fn func(j0, j1 int) *badValue) *badValue {
+	w := min(runtime.GOMAXPROCS(0), max(K/256, 1))
+	if w <= 1 {
+		return fn(0, K)
+	}
+	bad := make([]*badValue, w)
+	var wg sync.WaitGroup
+	for i := 0; i < w; i++ {
+		wg.Add(1)
+		go func(i int) {
+			defer wg.Done()
+			bad[i] = fn(i*K/w, (i+1)*K/w)
+		}(i)
+	}
+	wg.Wait()
+	var first *badValue
+	for _, b := range bad {
+		if b != nil && (first == nil || b.t < first.t || b.t == first.t && b.col < first.col) {
+			first = b
+		}
+	}
+	return first
 }
 
 func (c *classifier) reset(B, K int) {
@@ -296,19 +345,30 @@ func (c *classifier) fitLDA(y []float32, n int, cond []int, B int, train, cols [
 	if err := row(c.shift, y, n, train[0], cols); err != nil {
 		return err
 	}
-	x := c.buf
 	for _, t := range train {
-		if err := row(x, y, n, t, cols); err != nil {
-			return err
+		c.cnt[cond[t]]++
+	}
+	bad := parallelCols(K, func(j0, j1 int) *badValue {
+		sh, q := c.shift[j0:j1], c.sq[j0:j1]
+		cs := cols[j0:j1]
+		for _, t := range train {
+			r := y[t*n : t*n+n]
+			k := cond[t]
+			s := c.sum[k*K+j0 : k*K+j1]
+			for i, col := range cs {
+				v := float64(r[col])
+				if v-v != 0 {
+					return &badValue{t, col}
+				}
+				v -= sh[i]
+				s[i] += v
+				q[i] += v * v
+			}
 		}
-		k := cond[t]
-		c.cnt[k]++
-		s := c.sum[k*K : k*K+K]
-		for j, v := range x {
-			v -= c.shift[j]
-			s[j] += v
-			c.sq[j] += v * v
-		}
+		return nil
+	})
+	if bad != nil {
+		return bad.err(y, n)
 	}
 	nt := float64(len(train))
 	tot := grow(c.s, K)
@@ -474,16 +534,25 @@ func (c *classifier) fitGaussian(y []float32, n int, cond []int, B int, train, c
 	for j := range c.sq {
 		c.sq[j] = 0
 	}
-	x := c.buf
-	for _, t := range train {
-		if err := row(x, y, n, t, cols); err != nil {
-			return err
+	bad := parallelCols(K, func(j0, j1 int) *badValue {
+		q := c.sq[j0:j1]
+		cs := cols[j0:j1]
+		for _, t := range train {
+			r := y[t*n : t*n+n]
+			p := c.sum[cond[t]*K+j0 : cond[t]*K+j1]
+			for i, col := range cs {
+				v := float64(r[col])
+				if v-v != 0 {
+					return &badValue{t, col}
+				}
+				d := v - p[i]
+				q[i] += d * d
+			}
 		}
-		p := c.sum[cond[t]*K : cond[t]*K+K]
-		for j, v := range x {
-			r := v - p[j]
-			c.sq[j] += r * r
-		}
+		return nil
+	})
+	if bad != nil {
+		return bad.err(y, n)
 	}
 	for j := range c.g {
 		for k := 0; k < B; k++ {
@@ -553,7 +622,9 @@ func (c *classifier) fitPoisson(B, n int, cols []int, pred []float64, st *Decode
 	return nil
 }
 
-const scoreBlock = 64
+// scoreBlock is the number of test trials scored per matrix product: at
+// least 4 x 64 rows, so that gonum's Dgemm runs blocked and in parallel.
+const scoreBlock = 256
 
 // predict writes argmax_k (x - g)^T w_k + c_k for the test trials.
 func (c *classifier) predict(dst []int, y []float32, n int, test, cols []int, counts bool) error {
