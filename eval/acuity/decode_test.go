@@ -3,6 +3,8 @@ package acuity
 import (
 	"math"
 	"math/rand/v2"
+	"runtime"
+	"slices"
 	"strings"
 	"testing"
 )
@@ -417,5 +419,52 @@ func TestInfoVsSizeMatchesLinearInfo(t *testing.T) {
 				}
 			}
 		}
+	}
+}
+
+// TestCoresIndependent: the same input gives bit-identical results with one
+// and with two goroutines (column chunks, pair workers and the blocked
+// matrix product all keep a fixed summation order).
+func TestCoresIndependent(t *testing.T) {
+	rng := rand.New(rand.NewPCG(11, 11))
+	const n, B, T = 600, 10, 70
+	y, cond := satPop(rng, n, B, T, 0.05, 0.02, 1)
+	var folds []Fold
+	for f := 0; f < 2; f++ {
+		var fo Fold
+		for tr := range cond {
+			if tr%2 == f {
+				fo.Test = append(fo.Test, tr)
+			} else {
+				fo.Train = append(fo.Train, tr)
+			}
+		}
+		folds = append(folds, fo)
+	}
+	ax := lineAxis(B, 1)
+	run := func() ([]int, []int, []float64) {
+		d := Decoder{Shrinkage: 1}
+		dec := make([]int, len(cond))
+		if _, err := d.Decode(dec, y, n, cond, B, folds, nil); err != nil {
+			t.Fatal(err)
+		}
+		d2 := Decoder{Shrinkage: 0.5}
+		dec2 := make([]int, len(cond))
+		if _, err := d2.Decode(dec2, y, n, cond, B, folds, rand.New(rand.NewPCG(1, 2)).Perm(n)[:300]); err != nil {
+			t.Fatal(err)
+		}
+		c, err := InfoVsSize(y, n, cond, ax, []int{10, 60}, 2, rand.New(rand.NewPCG(3, 4)))
+		if err != nil {
+			t.Fatal(err)
+		}
+		return dec, dec2, c.Info
+	}
+	prev := runtime.GOMAXPROCS(1)
+	a1, b1, c1 := run()
+	runtime.GOMAXPROCS(max(prev, 2))
+	a2, b2, c2 := run()
+	runtime.GOMAXPROCS(prev)
+	if !slices.Equal(a1, a2) || !slices.Equal(b1, b2) || !slices.Equal(c1, c2) {
+		t.Errorf("results differ between 1 and 2 goroutines")
 	}
 }
