@@ -21,6 +21,34 @@ import (
 // (doc.go, "Bias correction").
 func MaxNeurons(ta, tb int) int { return ta + tb - 4 }
 
+// MaxSubset returns the largest population size allowed for every
+// neighbouring pair of the axis, the minimum over pairs of
+// MaxNeurons(TA, TB), given the condition of each trial. About half of it is
+// a sensible largest size for InfoVsSize. Errors: an invalid axis, a condition
+// out of range, or a pair too small for even one neuron.
+func MaxSubset(cond []int, ax Axis) (int, error) {
+	if err := ax.check(); err != nil {
+		return 0, err
+	}
+	B := ax.NBins()
+	counts := make([]int, B)
+	for t, c := range cond {
+		if c < 0 || c >= B {
+			return 0, fmt.Errorf("acuity: trial %d has condition %d, want 0..%d", t, c, B-1)
+		}
+		counts[c]++
+	}
+	lim := math.MaxInt
+	for _, p := range ax.Pairs() {
+		m := MaxNeurons(counts[p.A], counts[p.B])
+		if m < 1 {
+			return 0, fmt.Errorf("acuity: pair (%d,%d) has %d+%d trials: too few for the bias-corrected information of even one neuron (needs 5)", p.A, p.B, counts[p.A], counts[p.B])
+		}
+		lim = min(lim, m)
+	}
+	return lim, nil
+}
+
 // CorrectInfo returns the bias-corrected linear Fisher information
 //
 //	I_bc = I_naive (nu - N - 1)/nu - N (1/ta + 1/tb)/ds^2,  nu = ta + tb - 2,
