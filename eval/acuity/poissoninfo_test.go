@@ -50,7 +50,7 @@ func TestCorrectionPoissonCounts(t *testing.T) {
 		sum2 += res[0].Info * res[0].Info
 	}
 	m := sum / float64(sets)
-	sem := math.Sqrt((sum2/float64(sets)-m*m)/float64(sets))
+	sem := math.Sqrt((sum2/float64(sets) - m*m) / float64(sets))
 	t.Logf("Poisson counts, N %d, T %d: mean corrected / truth %.4f (s.e.m. %.4f)", n, T, m/truth, sem/truth)
 	// Approximation: accept 10% plus 4 s.e.m.
 	if math.Abs(m-truth) > 0.1*truth+4*sem {
