@@ -80,7 +80,9 @@ type Decoder struct {
 type DecodeStats struct {
 	// Excluded counts (fold, neuron) pairs left out of the classifier because
 	// the neuron's training variance (within-condition for LDA, residual for
-	// GaussianModel) was zero: such a neuron would get infinite weight.
+	// GaussianModel) was zero (for LDA: below 1e-12 of its mean square about
+	// the first training trial, the rounding level of the one-pass sums): such
+	// a neuron would get infinite weight.
 	Excluded int
 	// Floored counts (fold, condition, neuron) predictions raised to
 	// PoissonFloor.
