@@ -26,13 +26,24 @@ func sampleReport(t testing.TB, dir string) (r *Report, nFig int) {
 	for i := range filt {
 		filt[i] = rng.NormFloat64() * math.Exp(-math.Pow(float64(i%K-4), 2)/8)
 	}
+	toFiles := func(base string) func(*figure.Image, error) error {
+		return func(im *figure.Image, err error) error {
+			if err != nil {
+				return err
+			}
+			if err := os.WriteFile(base+".svg", im.SVG, 0o644); err != nil {
+				return err
+			}
+			return os.WriteFile(base+".png", im.PNG, 0o644)
+		}
+	}
 	must := func(err error) {
 		t.Helper()
 		if err != nil {
 			t.Fatal(err)
 		}
 	}
-	must(figure.Filters(filepath.Join(dir, "filters"), filt, C, K, 6, ax))
+	must(toFiles(filepath.Join(dir, "filters"))(figure.Filters(filt, C, K, 6, ax)))
 	var cen, mean, sem, fx, fy []float64
 	vm := func(d float64) float64 { return 3 + 15*math.Exp(1.5*(math.Cos((d-200)*math.Pi/180)-1)) }
 	for b := range 60 {
@@ -42,8 +53,8 @@ func sampleReport(t testing.TB, dir string) (r *Report, nFig int) {
 	for i := 0; i <= 360; i += 2 {
 		fx, fy = append(fx, float64(i)), append(fy, vm(float64(i)))
 	}
-	must(figure.Tuning(filepath.Join(dir, "tuning"), cen, mean, sem,
-		[]figure.Curve{{Name: "encoder", X: cen, Y: mean}, {Name: "von Mises", X: fx, Y: fy}}, ax, "rate (spikes/s)"))
+	must(toFiles(filepath.Join(dir, "tuning"))(figure.Tuning(cen, mean, sem,
+		[]figure.Curve{{Name: "encoder", X: cen, Y: mean}, {Name: "von Mises", X: fx, Y: fy}}, ax, "rate (spikes/s)")))
 	a, b := make([]float64, 800), make([]float64, 800)
 	pref := make([]float64, 800)
 	for i := range a {
@@ -52,9 +63,9 @@ func sampleReport(t testing.TB, dir string) (r *Report, nFig int) {
 		pref[i] = 360 * rng.Float64()
 	}
 	a[5] = math.NaN()
-	must(figure.Histograms(filepath.Join(dir, "hists"), map[string][]float64{"von Mises": a, "encoder": b}, []string{"von Mises", "encoder"}, "CC_norm", 30))
-	must(figure.Scatter(filepath.Join(dir, "scatter"), a, b, "von Mises", "encoder", "CC_norm"))
-	must(figure.Preferred(filepath.Join(dir, "preferred"), pref, ax, 24))
+	must(toFiles(filepath.Join(dir, "hists"))(figure.Histograms(map[string][]float64{"von Mises": a, "encoder": b}, []string{"von Mises", "encoder"}, "CC_norm", 30)))
+	must(toFiles(filepath.Join(dir, "scatter"))(figure.Scatter(a, b, "von Mises", "encoder", "CC_norm")))
+	must(toFiles(filepath.Join(dir, "preferred"))(figure.Preferred(pref, ax, 24)))
 	read := func(name string) []byte {
 		t.Helper()
 		data, err := os.ReadFile(filepath.Join(dir, name))
