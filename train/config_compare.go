@@ -25,7 +25,7 @@ type EncoderSpec struct {
 	ReadoutL2    *float64             `yaml:"readout_l2"`
 	LearningRate *float64             `yaml:"learning_rate"`
 	WeightDecay  *float64             `yaml:"weight_decay"`
-	Solver       string               `yaml:"solver"`
+	Solver       *Solver              `yaml:"solver"`
 	Grid         map[string][]float64 `yaml:"grid"`
 }
 

@@ -155,7 +155,7 @@ func (p *Prepared) Neurons() int { return p.Rec.Y.Cols }
 
 // Soft reports whether trials are encoded by linear interpolation between
 // bin centres rather than one-hot.
-func (p *Prepared) Soft() bool { return p.Cfg.Axis.Encoding == "soft" }
+func (p *Prepared) Soft() bool { return p.Cfg.Axis.Encoding == Soft }
 
 // encode writes the model input for trial t (NBins values) into dst.
 func (p *Prepared) encode(dst []float64, t int) {

@@ -176,8 +176,7 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.
 	info := runfolder.ComparisonInfo{Models: names, Encoders: encoders, Folds: c.Folds, Neurons: n, Excluded: map[string]string{},
 		Summary: c.Summary, Winner: c.Winner, Pairs: runfolder.NewPairInfo(c.Pairs), PValues: runfolder.WilcoxonNote,
 		Cautions: train.Cautions, Warnings: p.Report.Warnings,
-		Axis: runfolder.AxisInfo{Name: p.Axis.Name, Unit: p.Axis.Unit, Min: p.Axis.Min, Max: p.Axis.Max, Periodic: p.Axis.Periodic,
-			Bins: nb, Encoding: fmt.Sprint(p.Cfg.Axis.Encoding), Edges: p.Axis.Edges(), Centers: centers},
+		Axis: runfolder.AxisOf(p),
 		Epochs: map[string][]int{}, Recordings: []string{p.Rec.Source.Responses}}
 	for j, why := range ex {
 		info.Excluded[strconv.Itoa(j)] = why

@@ -131,9 +131,6 @@ func expandRecordings(c *train.Config) ([]Recording, error) {
 			cfg.Data.Block = rel(rc.Block)
 			if rc.Axis != nil {
 				cfg.Axis = *rc.Axis
-				if cfg.Axis.Encoding == "" {
-					cfg.Axis.Encoding = "onehot"
-				}
 			}
 			if err := cfg.Validate(); err != nil {
 				return nil, fmt.Errorf("recording %s (%s): %w", name, field, err)

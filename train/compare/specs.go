@@ -65,8 +65,8 @@ func Specs(c *train.Config) ([]train.ModelSpec, error) {
 		if e.WeightDecay != nil {
 			base.Train.WeightDecay = *e.WeightDecay
 		}
-		if e.Solver != "" {
-			base.Train.Solver = e.Solver
+		if e.Solver != nil {
+			base.Train.Solver = *e.Solver
 		}
 		keys := make([]string, 0, len(e.Grid))
 		for k, v := range e.Grid {

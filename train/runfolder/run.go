@@ -41,11 +41,11 @@ type Array struct {
 
 // LayerInfo describes one conv layer in the manifest.
 type LayerInfo struct {
-	Channels int    `json:"channels"`
-	Kernel   int    `json:"kernel"`
-	Stride   int    `json:"stride"`
-	Border   string `json:"border"`
-	OutLen   int    `json:"out_len"`
+	Channels int       `json:"channels"`
+	Kernel   int       `json:"kernel"`
+	Stride   int       `json:"stride"`
+	Border   nn.Border `json:"border"`
+	OutLen   int       `json:"out_len"`
 }
 
 // Manifest is model.json: what is needed to rebuild the model and read its
@@ -58,8 +58,8 @@ type Manifest struct {
 	Seed     uint64            `json:"seed"`
 	Axis     AxisInfo          `json:"axis"`
 	Layers   []LayerInfo       `json:"layers"`
-	Output   string            `json:"output"`
-	Loss     string            `json:"loss"`
+	Output   nn.Activation     `json:"output"`
+	Loss     train.Loss        `json:"loss"`
 	Neurons  int               `json:"neurons"`
 	Features int               `json:"features"`
 	Arrays   map[string]Array  `json:"arrays"`
@@ -71,15 +71,15 @@ type Manifest struct {
 
 // AxisInfo is the stimulus axis as recorded in a run or comparison.
 type AxisInfo struct {
-	Name     string    `json:"name"`
-	Unit     string    `json:"unit"`
-	Min      float64   `json:"min"`
-	Max      float64   `json:"max"`
-	Periodic bool      `json:"periodic"`
-	Bins     int       `json:"bins"`
-	Encoding string    `json:"encoding"`
-	Edges    []float64 `json:"bin_edges"`
-	Centers  []float64 `json:"bin_centers"`
+	Name     string         `json:"name"`
+	Unit     string         `json:"unit"`
+	Min      float64        `json:"min"`
+	Max      float64        `json:"max"`
+	Periodic bool           `json:"periodic"`
+	Bins     int            `json:"bins"`
+	Encoding train.Encoding `json:"encoding"`
+	Edges    []float64      `json:"bin_edges"`
+	Centers  []float64      `json:"bin_centers"`
 }
 
 // DataAxis is the axis as a data.Axis.
@@ -87,20 +87,10 @@ func (a AxisInfo) DataAxis() data.Axis {
 	return data.Axis{Name: a.Name, Unit: a.Unit, Min: a.Min, Max: a.Max, Periodic: a.Periodic, Bins: a.Bins}
 }
 
-// axisInfo records the axis of a prepared recording.
-func axisInfo(p *train.Prepared) AxisInfo {
+// AxisOf records the axis of a prepared recording.
+func AxisOf(p *train.Prepared) AxisInfo {
 	return AxisInfo{Name: p.Axis.Name, Unit: p.Axis.Unit, Min: p.Axis.Min, Max: p.Axis.Max, Periodic: p.Axis.Periodic,
-		Bins: p.NBins, Encoding: fmt.Sprint(p.Cfg.Axis.Encoding), Edges: p.Axis.Edges(), Centers: p.Axis.Centers()}
-}
-
-func borderName(b nn.Border) string {
-	switch b {
-	case nn.Circular:
-		return "circular"
-	case nn.Valid:
-		return "valid"
-	}
-	return "zero"
+		Bins: p.NBins, Encoding: p.Cfg.Axis.Encoding, Edges: p.Axis.Edges(), Centers: p.Axis.Centers()}
 }
 
 // SplitInfo is split.json: the trial indices (0-based) of each part and
@@ -345,16 +335,16 @@ func WriteModel(dir string, p *train.Prepared, f *train.Fitted) error {
 	net := f.Net
 	m := Manifest{
 		Format: FormatRun, Stria: Version, Go: runtime.Version(), Created: time.Now().UTC().Format(time.RFC3339),
-		Seed: p.Cfg.Seed, Output: fmt.Sprint(p.Cfg.Model.Output), Loss: fmt.Sprint(p.Cfg.Model.Loss),
+		Seed: p.Cfg.Seed, Output: p.Cfg.Model.Output, Loss: p.Cfg.Model.Loss,
 		Neurons: net.Neurons, Features: net.Features(), Arrays: map[string]Array{}, ZScore: p.Norm != nil,
 		Names:   p.Rec.Neurons,
 		Trials:  map[string]int{"train": len(p.Train), "validation": len(p.Val), "test": len(p.Test)},
 		Sources: map[string]string{"responses": p.Rec.Source.Responses, "stimulus": p.Rec.Source.Stimulus},
-		Axis:    axisInfo(p),
+		Axis:    AxisOf(p),
 	}
 	in := net.In
 	for i, c := range net.Convs {
-		m.Layers = append(m.Layers, LayerInfo{Channels: c.Out, Kernel: c.K, Stride: c.Stride, Border: borderName(c.Border), OutLen: net.OutLen(i)})
+		m.Layers = append(m.Layers, LayerInfo{Channels: c.Out, Kernel: c.K, Stride: c.Stride, Border: c.Border, OutLen: net.OutLen(i)})
 		if err := saveArray(dir, &m, fmt.Sprintf("conv%d_weight", i), []int{c.Out, in, c.K}, net.ConvW(i)); err != nil {
 			return err
 		}
@@ -480,43 +470,20 @@ func LoadModel(dir string) (*Model, error) {
 	}
 	path := filepath.Join(dir, FileManifest)
 	shape := nn.Shape{In: 1, Length: mf.Axis.Bins, Neurons: mf.Neurons}
+	// The words of borders, output and encoding were checked when
+	// model.json was read (their UnmarshalText).
 	for i, l := range mf.Layers {
-		var bd nn.Border
-		switch l.Border {
-		case "zero":
-			bd = nn.Zero
-		case "circular":
-			bd = nn.Circular
-		case "valid":
-			bd = nn.Valid
-		default:
-			return nil, fmt.Errorf("%s: layers[%d].border %q", path, i, l.Border)
-		}
 		if l.Channels < 1 || l.Kernel < 1 || l.Stride < 1 {
 			return nil, fmt.Errorf("%s: layers[%d] has a bad shape", path, i)
 		}
-		shape.Convs = append(shape.Convs, nn.ConvSpec{Out: l.Channels, K: l.Kernel, Stride: l.Stride, Border: bd})
+		shape.Convs = append(shape.Convs, nn.ConvSpec{Out: l.Channels, K: l.Kernel, Stride: l.Stride, Border: l.Border})
 	}
-	switch mf.Output {
-	case "identity":
-		shape.Output = nn.Identity
-	case "softplus":
-		shape.Output = nn.Softplus
-	case "exp":
-		shape.Output = nn.Exp
-	default:
-		return nil, fmt.Errorf("%s: output %q", path, mf.Output)
-	}
-	switch mf.Axis.Encoding {
-	case "onehot", "soft":
-	default:
-		return nil, fmt.Errorf("%s: axis encoding %q, want onehot or soft", path, mf.Axis.Encoding)
-	}
+	shape.Output = mf.Output
 	if len(shape.Convs) == 0 || mf.Axis.Bins < 1 || mf.Neurons < 1 {
 		return nil, fmt.Errorf("%s: no layers, bins or neurons", path)
 	}
 	net := nn.NewNet(shape)
-	m := &Model{Dir: dir, Manifest: *mf, Model: &train.Model{Net: net, Axis: mf.Axis.DataAxis(), Soft: mf.Axis.Encoding == "soft"}}
+	m := &Model{Dir: dir, Manifest: *mf, Model: &train.Model{Net: net, Axis: mf.Axis.DataAxis(), Soft: mf.Axis.Encoding == train.Soft}}
 	read := func(name string, want int) ([]float64, error) {
 		a, ok := mf.Arrays[name]
 		if !ok {

@@ -234,7 +234,7 @@ func smallFit(t *testing.T) (*train.Prepared, *train.Fitted, []eval.Scores) {
 	}
 	cfg := train.Defaults()
 	cfg.Data.Responses = "synthetic"
-	cfg.Axis = train.AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 30, Encoding: "onehot"}
+	cfg.Axis = train.AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 30, Encoding: train.OneHot}
 	cfg.Split.KeepBlocks = false
 	cfg.Model.Layers = []train.LayerConfig{{Channels: 2, Kernel: 3, Stride: 1}}
 	cfg.Train.MaxEpochs, cfg.Train.Patience = 4, 4
@@ -437,7 +437,7 @@ func sampleComparison(n, nb int) *ComparisonFolder {
 	}
 	c.Info = ComparisonInfo{Models: models, Encoders: models[:1], Folds: 2, Neurons: n, Excluded: map[string]string{"1": excluded[1]},
 		Summary: c.Result.Summary, Winner: c.Result.Winner, Pairs: NewPairInfo(c.Result.Pairs), PValues: WilcoxonNote,
-		Cautions: []string{"c"}, Warnings: []string{"w, \"quoted\""}, Axis: AxisInfo{Name: "heading", Unit: "deg", Max: 360, Periodic: true, Bins: nb, Encoding: "onehot", Centers: centers},
+		Cautions: []string{"c"}, Warnings: []string{"w, \"quoted\""}, Axis: AxisInfo{Name: "heading", Unit: "deg", Max: 360, Periodic: true, Bins: nb, Encoding: train.OneHot, Centers: centers},
 		Epochs: map[string][]int{models[0]: {3, 4}}, Recordings: []string{"/data/r.npy"}}
 	return c
 }
