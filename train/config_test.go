@@ -109,6 +109,7 @@ func TestLoadConfigResolvesPaths(t *testing.T) {
 		t.Errorf("paths: %q %q %q", cfg.Data.Responses, cfg.Data.Stimulus, cfg.Output)
 	}
 }
+
 // TestConfigFileMistakes checks that mistakes in a config file are refused
 // with the line and the key, before any work.
 func TestConfigFileMistakes(t *testing.T) {

@@ -176,7 +176,7 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.
 	info := runfolder.ComparisonInfo{Models: names, Encoders: encoders, Folds: c.Folds, Neurons: n, Excluded: map[string]string{},
 		Summary: c.Summary, Winner: c.Winner, Pairs: runfolder.NewPairInfo(c.Pairs), PValues: runfolder.WilcoxonNote,
 		Cautions: train.Cautions, Warnings: p.Report.Warnings,
-		Axis: runfolder.AxisOf(p),
+		Axis:   runfolder.AxisOf(p),
 		Epochs: map[string][]int{}, Recordings: []string{p.Rec.Source.Responses}}
 	for j, why := range ex {
 		info.Excluded[strconv.Itoa(j)] = why
