@@ -80,11 +80,6 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*runfolder.Su
 			last = now
 		}
 	}
-	// An earlier fit's completion marker goes first: until this fit
-	// finishes, the folder reads as incomplete.
-	if err := runfolder.Begin(dir); err != nil {
-		return nil, err
-	}
 	rec, err := data.Load(cfg.Source())
 	if err != nil {
 		return nil, err
@@ -95,6 +90,12 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*runfolder.Su
 		return nil, err
 	}
 	phase("bin, check, split, normalise")
+	// The data are good: an earlier fit's completion marker goes before
+	// anything is written, so the folder reads as incomplete until this
+	// fit finishes.
+	if err := runfolder.Begin(dir); err != nil {
+		return nil, err
+	}
 	for _, w := range p.Report.Warnings {
 		fmt.Fprintln(o.stderr, "warning:", w)
 	}

@@ -3,6 +3,7 @@ package report
 import (
 	"bytes"
 	"encoding/xml"
+	"errors"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -99,7 +100,7 @@ func TestWrite(t *testing.T) {
 	dir := t.TempDir()
 	r, nFig := sampleReport(t, dir)
 	path := filepath.Join(dir, "report.html")
-	if err := Write(path, r); err != nil {
+	if err := writeFile(path, r); err != nil {
 		t.Fatal(err)
 	}
 	b, err := os.ReadFile(path)
@@ -226,7 +227,6 @@ func TestCleanSVG(t *testing.T) {
 }
 
 func TestWriteErrors(t *testing.T) {
-	dir := t.TempDir()
 	for name, tc := range map[string]struct {
 		fig  Figure
 		want string
@@ -237,16 +237,37 @@ func TestWriteErrors(t *testing.T) {
 		"no image": {Figure{Caption: "empty"}, "neither SVG nor PNG"},
 	} {
 		t.Run(name, func(t *testing.T) {
-			err := Write(filepath.Join(dir, "r.html"), &Report{Sections: []Section{{Heading: "A", Figures: []Figure{tc.fig}}}})
+			var out bytes.Buffer
+			err := Write(&out, &Report{Sections: []Section{{Heading: "A", Figures: []Figure{tc.fig}}}})
 			if err == nil || !strings.Contains(err.Error(), tc.want) || !strings.HasPrefix(err.Error(), "report: ") {
 				t.Errorf("err = %v, want a report: error containing %q", err, tc.want)
 			}
+			if out.Len() != 0 {
+				t.Errorf("a refused report wrote %d bytes", out.Len())
+			}
 		})
 	}
-	err := Write(filepath.Join(dir, "missing", "r.html"), &Report{})
-	if err == nil || !strings.Contains(err.Error(), filepath.Join(dir, "missing", "r.html")) {
-		t.Errorf("err = %v, want one naming the file", err)
+	boom := errors.New("disk full")
+	if err := Write(failWriter{boom}, &Report{}); !errors.Is(err, boom) || !strings.HasPrefix(err.Error(), "report: ") {
+		t.Errorf("err = %v, want a report: error wrapping the writer's", err)
 	}
+}
+
+type failWriter struct{ err error }
+
+func (f failWriter) Write([]byte) (int, error) { return 0, f.err }
+
+// writeFile writes the report to path, as train/export does.
+func writeFile(path string, r *Report) error {
+	f, err := os.Create(path)
+	if err != nil {
+		return err
+	}
+	if err := Write(f, r); err != nil {
+		f.Close()
+		return err
+	}
+	return f.Close()
 }
 
 func TestDeterministic(t *testing.T) {

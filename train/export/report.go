@@ -52,7 +52,8 @@ func WriteReport(dir, out string, opt Options) (string, error) {
 	return out, nil
 }
 
-// writeReport renders r and writes it to path atomically.
+// writeReport renders r into path atomically (nothing is written when r
+// cannot be rendered).
 func writeReport(path string, r *report.Report) error {
 	b, err := report.Render(r)
 	if err != nil {
