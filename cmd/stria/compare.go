@@ -121,7 +121,7 @@ func runCompare(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer
 	// gather read the plan from them. An earlier comparison's completion
 	// marker goes: the folder is incomplete until gathered.
 	out := cfg.Compare.Output
-	if err := runfolder.Begin(out); err != nil {
+	if err := plan.Begin(); err != nil {
 		return nil, err
 	}
 	b, err := cfg.Marshal()

@@ -5,6 +5,7 @@ import (
 	"context"
 	"encoding/csv"
 	"encoding/json"
+	"io/fs"
 	"os"
 	"path/filepath"
 	"strings"
@@ -55,6 +56,30 @@ func TestDemoEndToEnd(t *testing.T) {
 	if _, err := os.Stat(filepath.Join(run, runfolder.FileResume)); err == nil {
 		t.Error("checkpoint left behind after a finished fit")
 	}
+	// Both folders are marked complete, and every file the demo wrote is
+	// readable by others (0644; folders 0755).
+	for _, d := range []string{run, filepath.Join(dir, "compare")} {
+		if _, err := runfolder.Open(d); err != nil {
+			t.Errorf("%s: %v", d, err)
+		}
+	}
+	filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
+		if err != nil {
+			return err
+		}
+		info, err := d.Info()
+		if err != nil {
+			return err
+		}
+		want := fs.FileMode(0o644)
+		if d.IsDir() {
+			want = 0o755 | fs.ModeDir
+		}
+		if p != dir && info.Mode() != want {
+			t.Errorf("%s has mode %v, want %v", p, info.Mode(), want)
+		}
+		return nil
+	})
 	// metrics.csv: one row per neuron with the documented columns.
 	f, err := os.Open(filepath.Join(run, runfolder.FileNeuronScores))
 	if err != nil {

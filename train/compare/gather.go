@@ -30,7 +30,7 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 		return nil, fmt.Errorf("%w: %d of %d not done: %s", ErrMissingUnits, len(miss), len(p.Units), strings.Join(show, ", "))
 	}
 	out := p.Dir()
-	if err := runfolder.Begin(out); err != nil {
+	if err := p.Begin(); err != nil {
 		return nil, err
 	}
 	var cmps []*runfolder.Comparison
@@ -67,9 +67,6 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 		dir := out
 		if rec.Name != "" {
 			dir = filepath.Join(out, rec.Name)
-			if err := runfolder.Begin(dir); err != nil {
-				return nil, err
-			}
 		}
 		if err := runfolder.WriteComparison(dir, folder); err != nil {
 			return nil, err

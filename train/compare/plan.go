@@ -267,3 +267,22 @@ func (p *Plan) Missing() []string {
 
 // ErrMissingUnits is returned (wrapped) by Gather when units are missing.
 var ErrMissingUnits = errors.New("units missing")
+
+// Begin prepares the comparison folder for a run: it creates it and removes
+// the completion markers of an earlier comparison (of the folder and of
+// every recording's folder), so that readers refuse the folder until
+// Gather has written everything again.
+func (p *Plan) Begin() error {
+	if err := runfolder.Begin(p.Dir()); err != nil {
+		return err
+	}
+	for _, r := range p.Recordings {
+		if r.Name == "" {
+			continue
+		}
+		if err := runfolder.Begin(filepath.Join(p.Dir(), r.Name)); err != nil {
+			return err
+		}
+	}
+	return nil
+}
