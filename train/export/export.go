@@ -197,7 +197,7 @@ func exportRun(dir, out string, opt Options) (*Exported, error) {
 	if len(mf.Axis.Centers) != nb {
 		return nil, fmt.Errorf("%s: %d bin centres, want %d", filepath.Join(dir, runfolder.FileManifest), len(mf.Axis.Centers), nb)
 	}
-	met, err := runfolder.ReadNeuronScores(filepath.Join(dir, runfolder.FileNeuronScores), n)
+	met, err := runfolder.ReadNeuronScores(dir, n)
 	if err != nil {
 		return nil, err
 	}

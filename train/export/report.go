@@ -138,7 +138,7 @@ func runReport(ex *Exported) (*report.Report, error) {
 	// Training.
 	trainSec := report.Section{ID: "training", Heading: "Training",
 		Paragraphs: []string{fmt.Sprintf("%d epochs, best epoch %d (its weights are kept), stopped by %s, %.1f s.", sum.Epochs, sum.BestEpoch, sum.Stop, sum.WallSeconds)}}
-	log, err := runfolder.ReadHistory(filepath.Join(dir, runfolder.FileHistory))
+	log, err := runfolder.ReadHistory(dir)
 	if err != nil {
 		trainSec.Notes = append(trainSec.Notes, err.Error())
 	} else if len(log) > 0 {

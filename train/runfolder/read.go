@@ -58,10 +58,10 @@ func ReadRun(dir string) (*Run, error) {
 		return nil, err
 	}
 	r.Split = *sp
-	if r.History, err = ReadHistory(filepath.Join(dir, FileHistory)); err != nil {
+	if r.History, err = ReadHistory(dir); err != nil {
 		return nil, err
 	}
-	if r.NeuronScores, err = ReadNeuronScores(filepath.Join(dir, FileNeuronScores), mf.Neurons); err != nil {
+	if r.NeuronScores, err = ReadNeuronScores(dir, mf.Neurons); err != nil {
 		return nil, err
 	}
 	// model.json keeps the names exactly; a CSV reader turns a "\r\n"
@@ -121,10 +121,10 @@ func WriteRun(dir string, r *Run) error {
 	if err := WriteJSON(filepath.Join(dir, FileSplit), r.Split); err != nil {
 		return err
 	}
-	if err := WriteHistory(filepath.Join(dir, FileHistory), r.History); err != nil {
+	if err := WriteHistory(dir, r.History); err != nil {
 		return err
 	}
-	if err := WriteNeuronScores(filepath.Join(dir, FileNeuronScores), r.NeuronScores); err != nil {
+	if err := WriteNeuronScores(dir, r.NeuronScores); err != nil {
 		return err
 	}
 	return WriteJSON(filepath.Join(dir, FileSummary), r.Summary)

@@ -213,8 +213,9 @@ func NewNeuronScores(names []string, scores []eval.Scores, excluded map[int]stri
 	return t
 }
 
-// WriteNeuronScores writes neuron_scores.csv.
-func WriteNeuronScores(path string, t *NeuronScores) error {
+// WriteNeuronScores writes neuron_scores.csv into dir.
+func WriteNeuronScores(dir string, t *NeuronScores) error {
+	path := filepath.Join(dir, FileNeuronScores)
 	header := append(append([]string{"neuron", "name"}, ScoreColumns...), "excluded")
 	return writeCSV(path, header, func(cw *csv.Writer) error {
 		row := make([]string, len(header))
@@ -232,9 +233,10 @@ func WriteNeuronScores(path string, t *NeuronScores) error {
 	})
 }
 
-// ReadNeuronScores reads neuron_scores.csv; n is the number of neurons
-// expected (from model.json), or -1 for any.
-func ReadNeuronScores(path string, n int) (*NeuronScores, error) {
+// ReadNeuronScores reads neuron_scores.csv of dir; n is the number of
+// neurons expected (from model.json), or -1 for any.
+func ReadNeuronScores(dir string, n int) (*NeuronScores, error) {
+	path := filepath.Join(dir, FileNeuronScores)
 	tb, err := readTable(path)
 	if err != nil {
 		return nil, err
@@ -276,8 +278,9 @@ func ReadNeuronScores(path string, n int) (*NeuronScores, error) {
 // historyHeader is the header of training_history.csv.
 var historyHeader = []string{"epoch", "train_loss", "val_loss", "val_r2", "seconds"}
 
-// WriteHistory writes training_history.csv, one row per epoch.
-func WriteHistory(path string, log []train.EpochLog) error {
+// WriteHistory writes training_history.csv into dir, one row per epoch.
+func WriteHistory(dir string, log []train.EpochLog) error {
+	path := filepath.Join(dir, FileHistory)
 	return writeCSV(path, historyHeader, func(cw *csv.Writer) error {
 		for _, e := range log {
 			err := cw.Write([]string{strconv.Itoa(e.Epoch), strconv.FormatFloat(e.TrainLoss, 'g', 10, 64), strconv.FormatFloat(e.ValLoss, 'g', 10, 64),
@@ -290,8 +293,9 @@ func WriteHistory(path string, log []train.EpochLog) error {
 	})
 }
 
-// ReadHistory reads training_history.csv.
-func ReadHistory(path string) ([]train.EpochLog, error) {
+// ReadHistory reads training_history.csv of dir.
+func ReadHistory(dir string) ([]train.EpochLog, error) {
+	path := filepath.Join(dir, FileHistory)
 	tb, err := readTable(path)
 	if err != nil {
 		return nil, err
@@ -377,7 +381,7 @@ func WriteModel(dir string, p *train.Prepared, f *train.Fitted) error {
 	if err := WriteJSON(filepath.Join(dir, FileSplit), SplitInfo{Train: p.Train, Val: p.Val, Test: p.Test, Cond: p.Cond}); err != nil {
 		return err
 	}
-	return WriteHistory(filepath.Join(dir, FileHistory), f.Log)
+	return WriteHistory(dir, f.Log)
 }
 
 // WriteResults writes neuron_scores.csv and summary.json from the scores of
@@ -385,7 +389,7 @@ func WriteModel(dir string, p *train.Prepared, f *train.Fitted) error {
 // does not finish the folder: call Finish after it.
 func WriteResults(dir string, p *train.Prepared, f *train.Fitted, scores []eval.Scores, wall time.Duration) (*Summary, error) {
 	ex := train.ExcludedNeurons(p)
-	if err := WriteNeuronScores(filepath.Join(dir, FileNeuronScores), NewNeuronScores(p.Rec.Neurons, scores, ex)); err != nil {
+	if err := WriteNeuronScores(dir, NewNeuronScores(p.Rec.Neurons, scores, ex)); err != nil {
 		return nil, err
 	}
 	sum := Summarize(scores, ex)

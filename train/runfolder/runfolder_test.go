@@ -168,9 +168,10 @@ func TestNeuronScoresOddNames(t *testing.T) {
 			CCAbs: 0.5, CCMax: 1.0 / 3, CCNorm: math.Inf(-1), SPE: 12345.678901234, SplitHalf: 1e300}
 	}
 	ex := map[int]string{2: "constant response over all trials", 4: `odd, "why"` + "\n"}
-	path := filepath.Join(t.TempDir(), FileNeuronScores)
+	dir := t.TempDir()
+	path := filepath.Join(dir, FileNeuronScores)
 	want := NewNeuronScores(oddNames, scores, ex)
-	if err := WriteNeuronScores(path, want); err != nil {
+	if err := WriteNeuronScores(dir, want); err != nil {
 		t.Fatal(err)
 	}
 	// encoding/csv reads every row with the names intact.
@@ -183,7 +184,7 @@ func TestNeuronScoresOddNames(t *testing.T) {
 			t.Errorf("row %d name %q, want %q", j, rows[j+1][1], name)
 		}
 	}
-	got, err := ReadNeuronScores(path, n)
+	got, err := ReadNeuronScores(dir, n)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -207,9 +208,10 @@ func TestNeuronScoresOddNames(t *testing.T) {
 		}
 	}
 	// Written again from what was read: the same bytes.
-	again := filepath.Join(t.TempDir(), FileNeuronScores)
+	againDir := t.TempDir()
+	again := filepath.Join(againDir, FileNeuronScores)
 	got.Names = want.Names // the \r\n case: keep the writer's input
-	if err := WriteNeuronScores(again, got); err != nil {
+	if err := WriteNeuronScores(againDir, got); err != nil {
 		t.Fatal(err)
 	}
 	a, _ := os.ReadFile(path)
@@ -217,7 +219,7 @@ func TestNeuronScoresOddNames(t *testing.T) {
 	if !bytes.Equal(a, b) {
 		t.Errorf("neuron_scores.csv differs after a round trip:\n%s\n---\n%s", a, b)
 	}
-	if _, err := ReadNeuronScores(path, n+1); err == nil || !strings.Contains(err.Error(), "want 12") {
+	if _, err := ReadNeuronScores(dir, n+1); err == nil || !strings.Contains(err.Error(), "want 12") {
 		t.Errorf("wrong neuron count: %v", err)
 	}
 }
