@@ -1,7 +1,8 @@
 package figure
 
 // Loss plots the training and validation loss against the epoch: two
-// lines, "train" and "validation", in the first two series styles. A loss
+// lines, "train" and "validation", in the first two series styles, with a
+// band above the curves for the legend. A loss
 // that is NaN or infinite at some epoch breaks its line there; a series
 // with no finite value is left out of the legend.
 //
@@ -21,5 +22,6 @@ func Loss(epochs, train, val []float64) (*Image, error) {
 		}
 	}
 	emptyRanges(p)
+	headroom(p, 0.18) // a band for the legend above the curves
 	return finish(p, Width, Height)
 }
