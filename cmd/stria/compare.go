@@ -82,6 +82,9 @@ func gatherCommand() *cli.Command {
 				return err
 			}
 			dir := c.Args().First()
+			if k, err := runfolder.Kind(dir); err == nil && k == runfolder.KindRun {
+				return fmt.Errorf("gather: %s is a run folder (written by stria fit); gather takes the folder of stria compare", dir)
+			}
 			cfg, err := runfolder.LoadSettings(dir)
 			if err != nil {
 				return fmt.Errorf("gather: %s is not a comparison folder: %w", dir, err)
