@@ -79,7 +79,7 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 		cmps = append(cmps, folder.Result)
 	}
 	if len(p.Recordings) > 1 {
-		if err := runfolder.WriteAcross(out, cmps, Pool(cmps)); err != nil {
+		if err := runfolder.WriteAcross(out, runfolder.NewAcross(cmps, Pool(cmps))); err != nil {
 			return nil, err
 		}
 	}

@@ -195,10 +195,10 @@ func WriteComparison(dir string, c *ComparisonFolder) error {
 	if err := writeFoldAverages(filepath.Join(dir, FileFoldAverages), c.Result); err != nil {
 		return err
 	}
-	if err := writeSummaryCSV(filepath.Join(dir, FileModelSummary), c.Result); err != nil {
+	if err := WriteSpreadTable(filepath.Join(dir, FileModelSummary), summaryRows(c.Result), false); err != nil {
 		return err
 	}
-	if err := writePairsCSV(filepath.Join(dir, FileModelPairs), c.Result.Pairs); err != nil {
+	if err := WritePairsTable(filepath.Join(dir, FileModelPairs), c.Result.Pairs); err != nil {
 		return err
 	}
 	nb := c.Info.Axis.Bins
@@ -314,28 +314,95 @@ func ReadFoldAverages(dir string, models []string, n int) (map[string]map[string
 	return out, nil
 }
 
-// writeSummaryCSV writes the median and quartiles of every model and
-// metric of a comparison.
-func writeSummaryCSV(path string, c *Comparison) error {
-	return writeCSV(path, []string{"model", "metric", "median", "q1", "q3", "neurons", "nan"}, func(cw *csv.Writer) error {
-		for _, m := range c.Models {
-			for _, k := range CompareMetrics {
-				if err := cw.Write(spreadRow([]string{m, k}, c.Summary[m][k])); err != nil {
-					return err
-				}
+// SpreadRow is one row of model_summary.csv, pooled_summary.csv or
+// per_recording.csv: the spread over neurons of one model's fold-averaged
+// metric (Recording is empty outside per_recording.csv).
+type SpreadRow struct {
+	Recording, Model, Metric string
+	Spread
+}
+
+// summaryRows lists the spreads of a comparison, models in order, metrics
+// in the order of CompareMetrics.
+func summaryRows(c *Comparison) []SpreadRow {
+	var rows []SpreadRow
+	for _, m := range c.Models {
+		for _, k := range CompareMetrics {
+			rows = append(rows, SpreadRow{Model: m, Metric: k, Spread: c.Summary[m][k]})
+		}
+	}
+	return rows
+}
+
+var (
+	spreadHeader   = []string{"model", "metric", "median", "q1", "q3", "neurons", "nan"}
+	perRecHeader   = append([]string{"recording"}, spreadHeader...)
+	pairsHeader    = []string{"metric", "model_a", "model_b", "share_a_higher", "w", "p", "n", "dropped", "method"}
+	recordingsRows = "median of recordings"
+)
+
+// WriteSpreadTable writes rows as model_summary.csv or pooled_summary.csv,
+// or, withRecording, as per_recording.csv.
+func WriteSpreadTable(path string, rows []SpreadRow, withRecording bool) error {
+	header := spreadHeader
+	if withRecording {
+		header = perRecHeader
+	}
+	return writeCSV(path, header, func(cw *csv.Writer) error {
+		for _, r := range rows {
+			lead := []string{r.Model, r.Metric}
+			if withRecording {
+				lead = []string{r.Recording, r.Model, r.Metric}
+			}
+			s := r.Spread
+			if err := cw.Write(append(lead, g8(float64(s.Median)), g8(float64(s.Q1)), g8(float64(s.Q3)), strconv.Itoa(s.N), strconv.Itoa(s.NaN))); err != nil {
+				return err
 			}
 		}
 		return nil
 	})
 }
 
-func spreadRow(lead []string, s Spread) []string {
-	return append(lead, g8(float64(s.Median)), g8(float64(s.Q1)), g8(float64(s.Q3)), strconv.Itoa(s.N), strconv.Itoa(s.NaN))
+// ReadSpreadTable reads model_summary.csv, pooled_summary.csv or
+// per_recording.csv (which has a recording column).
+func ReadSpreadTable(path string) ([]SpreadRow, error) {
+	tb, err := readTable(path)
+	if err != nil {
+		return nil, err
+	}
+	k, err := tb.cols(spreadHeader...)
+	if err != nil {
+		return nil, err
+	}
+	kr, errRec := tb.col("recording")
+	rows := make([]SpreadRow, len(tb.rows))
+	for i, r := range tb.rows {
+		row := SpreadRow{Model: r[k[0]], Metric: r[k[1]]}
+		if errRec == nil {
+			row.Recording = r[kr]
+		}
+		for q, dst := range []*Num{&row.Median, &row.Q1, &row.Q3} {
+			v, err := tb.float(i, k[2+q])
+			if err != nil {
+				return nil, err
+			}
+			*dst = Num(v)
+		}
+		if row.N, err = tb.int(i, k[5]); err != nil {
+			return nil, err
+		}
+		if row.NaN, err = tb.int(i, k[6]); err != nil {
+			return nil, err
+		}
+		rows[i] = row
+	}
+	return rows, nil
 }
 
-// writePairsCSV writes pairwise tests.
-func writePairsCSV(path string, pairs []PairTest) error {
-	return writeCSV(path, []string{"metric", "model_a", "model_b", "share_a_higher", "w", "p", "n", "dropped", "method"}, func(cw *csv.Writer) error {
+// WritePairsTable writes pairwise tests as model_pairs.csv or
+// pooled_pairs.csv.
+func WritePairsTable(path string, pairs []PairTest) error {
+	return writeCSV(path, pairsHeader, func(cw *csv.Writer) error {
 		for _, pt := range pairs {
 			if err := cw.Write([]string{pt.Metric, pt.A, pt.B, g8(pt.ShareA), g8(pt.W), g8(pt.P), strconv.Itoa(pt.N), strconv.Itoa(pt.Dropped), pt.Method}); err != nil {
 				return err
@@ -343,6 +410,36 @@ func writePairsCSV(path string, pairs []PairTest) error {
 		}
 		return nil
 	})
+}
+
+// ReadPairsTable reads model_pairs.csv or pooled_pairs.csv.
+func ReadPairsTable(path string) ([]PairTest, error) {
+	tb, err := readTable(path)
+	if err != nil {
+		return nil, err
+	}
+	k, err := tb.cols(pairsHeader...)
+	if err != nil {
+		return nil, err
+	}
+	out := make([]PairTest, len(tb.rows))
+	for i, r := range tb.rows {
+		pt := PairTest{Metric: r[k[0]], A: r[k[1]], B: r[k[2]]}
+		pt.Method = r[k[8]]
+		for q, dst := range []*float64{&pt.ShareA, &pt.W, &pt.P} {
+			if *dst, err = tb.float(i, k[3+q]); err != nil {
+				return nil, err
+			}
+		}
+		if pt.N, err = tb.int(i, k[6]); err != nil {
+			return nil, err
+		}
+		if pt.Dropped, err = tb.int(i, k[7]); err != nil {
+			return nil, err
+		}
+		out[i] = pt
+	}
+	return out, nil
 }
 
 // ReadComparisonInfo reads comparison.json.
@@ -485,41 +582,68 @@ func readDescriptors(path string) ([]Descriptor, error) {
 	return out, nil
 }
 
-// WriteAcross writes the tables across recordings into dir: every
-// recording's medians with the median over recordings of each recording's
-// median (per_recording.csv), and the summary and pairwise tests of the
-// pooled neurons (pooled_summary.csv, pooled_pairs.csv).
-func WriteAcross(dir string, cmps []*Comparison, pooled *Comparison) error {
-	err := writeCSV(filepath.Join(dir, FilePerRecording), []string{"recording", "model", "metric", "median", "q1", "q3", "neurons", "nan"}, func(cw *csv.Writer) error {
-		for _, c := range cmps {
-			for _, m := range c.Models {
-				for _, k := range CompareMetrics {
-					if err := cw.Write(spreadRow([]string{c.Recording, m, k}, c.Summary[m][k])); err != nil {
-						return err
-					}
-				}
-			}
+// Across is what the top of a comparison over several recordings holds
+// beside the recordings' folders.
+type Across struct {
+	// PerRecording (per_recording.csv) has every recording's spreads, then
+	// rows "median of recordings": per model and metric the median and
+	// quartiles over recordings of the recordings' medians (each recording
+	// counts once).
+	PerRecording []SpreadRow
+	// Pooled (pooled_summary.csv) and PooledPairs (pooled_pairs.csv) are
+	// the spreads and pairwise tests of the neurons of all recordings
+	// pooled.
+	Pooled      []SpreadRow
+	PooledPairs []PairTest
+}
+
+// NewAcross builds the tables across recordings from every recording's
+// comparison and the pooled one.
+func NewAcross(cmps []*Comparison, pooled *Comparison) *Across {
+	a := &Across{Pooled: summaryRows(pooled), PooledPairs: pooled.Pairs}
+	for _, c := range cmps {
+		for _, r := range summaryRows(c) {
+			r.Recording = c.Recording
+			a.PerRecording = append(a.PerRecording, r)
 		}
-		for _, m := range pooled.Models {
-			for _, k := range CompareMetrics {
-				med := make([]float64, len(cmps))
-				for i, c := range cmps {
-					med[i] = float64(c.Summary[m][k].Median)
-				}
-				if err := cw.Write(spreadRow([]string{"median of recordings", m, k}, spreadOf(eval.Summarize(med), 0))); err != nil {
-					return err
-				}
+	}
+	for _, m := range pooled.Models {
+		for _, k := range CompareMetrics {
+			med := make([]float64, len(cmps))
+			for i, c := range cmps {
+				med[i] = float64(c.Summary[m][k].Median)
 			}
+			a.PerRecording = append(a.PerRecording, SpreadRow{Recording: recordingsRows, Model: m, Metric: k, Spread: spreadOf(eval.Summarize(med), 0)})
 		}
-		return nil
-	})
-	if err != nil {
+	}
+	return a
+}
+
+// WriteAcross writes the tables across recordings into dir.
+func WriteAcross(dir string, a *Across) error {
+	if err := WriteSpreadTable(filepath.Join(dir, FilePerRecording), a.PerRecording, true); err != nil {
 		return err
 	}
-	if err := writeSummaryCSV(filepath.Join(dir, FilePooledSummary), pooled); err != nil {
+	if err := WriteSpreadTable(filepath.Join(dir, FilePooledSummary), a.Pooled, false); err != nil {
 		return err
 	}
-	return writePairsCSV(filepath.Join(dir, FilePooledPairs), pooled.Pairs)
+	return WritePairsTable(filepath.Join(dir, FilePooledPairs), a.PooledPairs)
+}
+
+// ReadAcross reads the tables across recordings of dir.
+func ReadAcross(dir string) (*Across, error) {
+	var a Across
+	var err error
+	if a.PerRecording, err = ReadSpreadTable(filepath.Join(dir, FilePerRecording)); err != nil {
+		return nil, err
+	}
+	if a.Pooled, err = ReadSpreadTable(filepath.Join(dir, FilePooledSummary)); err != nil {
+		return nil, err
+	}
+	if a.PooledPairs, err = ReadPairsTable(filepath.Join(dir, FilePooledPairs)); err != nil {
+		return nil, err
+	}
+	return &a, nil
 }
 
 // RecordingFolders lists the per-recording comparison folders of a

@@ -475,6 +475,34 @@ func TestComparisonRoundTrip(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	// model_summary.csv and model_pairs.csv hold comparison.json's
+	// numbers to 8 significant digits.
+	spreads, err := ReadSpreadTable(filepath.Join(dir, FileModelSummary))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(spreads) != 2*len(CompareMetrics) {
+		t.Fatalf("%d summary rows", len(spreads))
+	}
+	close8 := func(g, w float64) bool {
+		return g == w || math.IsNaN(g) && math.IsNaN(w) || math.Abs(g-w) <= 5e-8*math.Abs(w)
+	}
+	for _, r := range spreads {
+		w := c.Result.Summary[r.Model][r.Metric]
+		if !close8(float64(r.Median), float64(w.Median)) || !close8(float64(r.Q3), float64(w.Q3)) || r.N != w.N || r.NaN != w.NaN {
+			t.Errorf("model_summary.csv %s %s: %+v, want %+v", r.Model, r.Metric, r.Spread, w)
+		}
+	}
+	pairs, err := ReadPairsTable(filepath.Join(dir, FileModelPairs))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i, pt := range pairs {
+		w := c.Result.Pairs[i]
+		if pt.A != w.A || pt.B != w.B || pt.Metric != w.Metric || !close8(pt.P, w.P) || !close8(pt.ShareA, w.ShareA) || pt.N != w.N || pt.Method != w.Method {
+			t.Errorf("model_pairs.csv row %d: %+v, want %+v", i, pt, w)
+		}
+	}
 	// The fold averages read back exactly.
 	for _, m := range c.Info.Models {
 		for _, col := range ScoreColumns {
@@ -503,7 +531,7 @@ func TestAcrossAndFoldResults(t *testing.T) {
 	dir := t.TempDir()
 	a, b := sampleComparison(5, 4).Result, sampleComparison(6, 4).Result
 	a.Recording, b.Recording = "m1,left", "m2"
-	if err := WriteAcross(dir, []*Comparison{a, b}, a); err != nil {
+	if err := WriteAcross(dir, NewAcross([]*Comparison{a, b}, a)); err != nil {
 		t.Fatal(err)
 	}
 	rows := readAllCSV(t, filepath.Join(dir, FilePerRecording))
@@ -511,6 +539,25 @@ func TestAcrossAndFoldResults(t *testing.T) {
 	// the median over recordings.
 	if len(rows) != 1+16+8 || rows[1][0] != "m1,left" || rows[17][0] != "median of recordings" {
 		t.Errorf("per_recording.csv: %d rows, first %q", len(rows), rows[1])
+	}
+	// Read back and written again: the same bytes.
+	across, err := ReadAcross(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r := across.PerRecording[0]; r.Recording != "m1,left" || r.Model != a.Models[0] || r.Metric != CompareMetrics[0] || r.N != a.Summary[a.Models[0]][CompareMetrics[0]].N {
+		t.Errorf("per_recording.csv row 1 read back as %+v", r)
+	}
+	again := t.TempDir()
+	if err := WriteAcross(again, across); err != nil {
+		t.Fatal(err)
+	}
+	for _, f := range []string{FilePerRecording, FilePooledSummary, FilePooledPairs} {
+		x, _ := os.ReadFile(filepath.Join(dir, f))
+		y, _ := os.ReadFile(filepath.Join(again, f))
+		if !bytes.Equal(x, y) {
+			t.Errorf("%s differs after reading back and writing again", f)
+		}
 	}
 	if k, err := Kind(dir); k != KindMany || err != nil {
 		t.Errorf("Kind: %q %v", k, err)
