@@ -107,7 +107,7 @@ func sameOutputs(t *testing.T, want, got map[string][]byte, what string) {
 	}
 	for name, b := range want {
 		if !bytes.Equal(b, got[name]) {
-			t.Errorf("%s: %s differs from the unsharded run", what, name)
+			t.Errorf("%s: %s differs from the run in one process", what, name)
 		}
 	}
 }
@@ -120,7 +120,7 @@ func TestArrayTasksGatherLikeOneRun(t *testing.T) {
 	cfg := writeSessions(t, dir, 40)
 	out, err := runCLI(t, "compare", "--config", cfg, "--quiet")
 	if err != nil {
-		t.Fatalf("unsharded: %v\n%s", err, out)
+		t.Fatalf("in one process: %v\n%s", err, out)
 	}
 	if !strings.Contains(out, "all 3 recordings, neurons pooled") {
 		t.Errorf("no pooled table in:\n%s", out)
@@ -140,14 +140,14 @@ func TestArrayTasksGatherLikeOneRun(t *testing.T) {
 	full := outputs(t, filepath.Join(dir, "full"))
 	for _, f := range []string{"m1-resp/fold_scores.csv", "m3-resp/comparison.json", runfolder.FilePerRecording, runfolder.FilePooledSummary, runfolder.FilePooledPairs} {
 		if _, ok := full[f]; !ok {
-			t.Errorf("unsharded run lacks %s", f)
+			t.Errorf("the run in one process lacks %s", f)
 		}
 	}
 
 	// Three array tasks in three processes, then gather. The third task
 	// finds its number in Slurm's environment: SLURM_ARRAY_TASK_ID 7 of
 	// an array 5-7 is task 7-5+1 = 3 of 3.
-	sharded := filepath.Join(dir, "sharded")
+	sharded := filepath.Join(dir, "tasks")
 	for i := 1; i <= 3; i++ {
 		cmd := child("compare", "--config", cfg, "--out", sharded, "--array-task", strconv.Itoa(i), "--array-task-count", "3", "--quiet")
 		if i == 3 {
@@ -171,7 +171,7 @@ func TestArrayTasksGatherLikeOneRun(t *testing.T) {
 	if _, err := os.Stat(filepath.Join(sharded, runfolder.FileComplete)); err != nil {
 		t.Errorf("gather wrote no %s: %v", runfolder.FileComplete, err)
 	}
-	sameOutputs(t, full, outputs(t, sharded), "sharded")
+	sameOutputs(t, full, outputs(t, sharded), "array tasks")
 }
 
 func TestKilledArrayTaskReruns(t *testing.T) {
@@ -179,11 +179,11 @@ func TestKilledArrayTaskReruns(t *testing.T) {
 		t.Skip("runs several processes")
 	}
 	dir := t.TempDir()
-	// Long enough units (no early stop) that the shard is still running
+	// Long enough units (no early stop) that the array task is still running
 	// when its first unit lands.
 	cfg := writeSessions(t, dir, 2000)
 	if out, err := runCLI(t, "compare", "--config", cfg, "--quiet"); err != nil {
-		t.Fatalf("unsharded: %v\n%s", err, out)
+		t.Fatalf("in one process: %v\n%s", err, out)
 	}
 	full := outputs(t, filepath.Join(dir, "full"))
 
@@ -193,19 +193,19 @@ func TestKilledArrayTaskReruns(t *testing.T) {
 	if err := cmd.Start(); err != nil {
 		t.Fatal(err)
 	}
-	// Kill the shard once its first unit is on disk.
+	// Kill the array task once its first unit is on disk.
 	deadline := time.Now().Add(60 * time.Second)
 	for countUnits(units) == 0 && time.Now().Before(deadline) {
 		time.Sleep(5 * time.Millisecond)
 	}
 	cmd.Process.Kill()
 	if err := cmd.Wait(); err == nil {
-		t.Fatal("the shard finished before it could be killed: make its units slower")
+		t.Fatal("the array task finished before it could be killed: make its units slower")
 	}
 	before := countUnits(units)
-	t.Logf("killed the shard after %d units", before)
+	t.Logf("killed the array task after %d units", before)
 	if before == 0 {
-		t.Fatal("the shard wrote no unit before the deadline")
+		t.Fatal("the array task wrote no unit before the deadline")
 	}
 	// No half-written unit: every file there decodes (gather checks that too).
 	b, err := child("gather", killed).CombinedOutput()
