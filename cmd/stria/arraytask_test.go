@@ -147,11 +147,11 @@ func TestArrayTasksGatherLikeOneRun(t *testing.T) {
 	// Three array tasks in three processes, then gather. The third task
 	// finds its number in Slurm's environment: SLURM_ARRAY_TASK_ID 7 of
 	// an array 5-7 is task 7-5+1 = 3 of 3.
-	sharded := filepath.Join(dir, "tasks")
+	tasks := filepath.Join(dir, "tasks")
 	for i := 1; i <= 3; i++ {
-		cmd := child("compare", "--config", cfg, "--out", sharded, "--array-task", strconv.Itoa(i), "--array-task-count", "3", "--quiet")
+		cmd := child("compare", "--config", cfg, "--out", tasks, "--array-task", strconv.Itoa(i), "--array-task-count", "3", "--quiet")
 		if i == 3 {
-			cmd = child("compare", "--config", cfg, "--out", sharded, "--quiet")
+			cmd = child("compare", "--config", cfg, "--out", tasks, "--quiet")
 			cmd.Env = append(cmd.Env, "SLURM_ARRAY_TASK_ID=7", "SLURM_ARRAY_TASK_MIN=5", "SLURM_ARRAY_TASK_COUNT=3")
 		}
 		b, err := cmd.CombinedOutput()
@@ -165,13 +165,13 @@ func TestArrayTasksGatherLikeOneRun(t *testing.T) {
 			t.Errorf("the task taken from Slurm's environment does not say so:\n%s", b)
 		}
 	}
-	if b, err := child("gather", sharded).CombinedOutput(); err != nil {
+	if b, err := child("gather", tasks).CombinedOutput(); err != nil {
 		t.Fatalf("gather: %v\n%s", err, b)
 	}
-	if _, err := os.Stat(filepath.Join(sharded, runfolder.FileComplete)); err != nil {
+	if _, err := os.Stat(filepath.Join(tasks, runfolder.FileComplete)); err != nil {
 		t.Errorf("gather wrote no %s: %v", runfolder.FileComplete, err)
 	}
-	sameOutputs(t, full, outputs(t, sharded), "array tasks")
+	sameOutputs(t, full, outputs(t, tasks), "array tasks")
 }
 
 func TestKilledArrayTaskReruns(t *testing.T) {
