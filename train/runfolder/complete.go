@@ -29,6 +29,10 @@ const (
 // FileComplete is the completion marker, written last.
 const FileComplete = "complete.json"
 
+// oldSettings is the settings file of folders written before
+// complete.json existed.
+const oldSettings = "config.yaml"
+
 // Complete is complete.json: the marker a finished fit or comparison
 // writes after every other file of its folder.
 type Complete struct {
@@ -103,6 +107,11 @@ func CheckComplete(dir, kind string) error {
 		return nil
 	} else if !errNotExist(err) {
 		return err
+	}
+	// A folder of an older stria has no marker either, and other file
+	// names: say so rather than call it unfinished.
+	if _, err := os.Stat(filepath.Join(dir, oldSettings)); err == nil {
+		return fmt.Errorf("%s was written by an older stria (%s, not %s; no %s): its files have other names, so fit or compare again", dir, oldSettings, FileSettings, FileComplete)
 	}
 	if kind == KindRun {
 		return fmt.Errorf("%s is incomplete: the fit that wrote it did not finish (no %s)", dir, FileComplete)

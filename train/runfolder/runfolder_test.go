@@ -599,4 +599,9 @@ func TestKind(t *testing.T) {
 	if _, err := Kind(filepath.Join(dir, FileManifest)); err == nil || !strings.Contains(err.Error(), "not a folder") {
 		t.Errorf("a file: %v", err)
 	}
+	// A folder of an older stria: named as such, not as unfinished.
+	os.WriteFile(filepath.Join(dir, "config.yaml"), []byte("seed: 1\n"), 0o644)
+	if _, err := Open(dir); err == nil || !strings.Contains(err.Error(), "written by an older stria") {
+		t.Errorf("an old folder: %v", err)
+	}
 }
