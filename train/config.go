@@ -113,9 +113,11 @@ type TrainConfig struct {
 	CheckpointEvery int `yaml:"checkpoint_every"`
 	// Threads is the number of cores stria uses (GOMAXPROCS); 0 is all.
 	Threads int `yaml:"threads"`
-	// Solver is adam (gradient steps on all weights, the reference) or
-	// projected (closed-form ridge readout, filters optimised on the
-	// projected loss; MSE, identity output, one-hot input, full batch).
+	// Solver is auto (the default: projected wherever the model allows
+	// it, adam otherwise), adam (gradient steps on all weights, the
+	// reference) or projected (closed-form ridge readout, filters
+	// optimised on the projected loss; MSE, identity output, one-hot
+	// input, full batch).
 	Solver Solver `yaml:"solver"`
 }
 
@@ -146,7 +148,7 @@ func Defaults() Config {
 			MaxEpochs:       3000,
 			Patience:        100,
 			CheckpointEvery: 100,
-			Solver:          SolverAdam,
+			Solver:          SolverAuto,
 		},
 		Compare: CompareConfig{Starts: 8, SmoothLambda: 2, Output: "runs/compare"},
 		Output:  "runs/fit",
@@ -292,7 +294,7 @@ func (c *Config) Validate() error {
 	if t.CheckpointEvery < 1 {
 		bad("train.checkpoint_every %d: want at least 1", t.CheckpointEvery)
 	}
-	if t.Solver == SolverProjected && (m.Loss != MSE || m.Output != nn.Identity || c.Axis.Encoding != OneHot || t.BatchSize != 0) {
+	if t.Solver == SolverProjected && !c.projectable() {
 		bad("train.solver projected needs model.loss mse, model.output identity, axis.encoding onehot and train.batch_size 0")
 	}
 	if t.Threads < 0 {
@@ -311,6 +313,24 @@ func (c *Config) Validate() error {
 		return fmt.Errorf("invalid config:\n  %s", strings.Join(errs, "\n  "))
 	}
 	return nil
+}
+
+// projectable reports whether the projected solver can fit the model.
+func (c *Config) projectable() bool {
+	m, t := c.Model, c.Train
+	return m.Loss == MSE && m.Output == nn.Identity && c.Axis.Encoding == OneHot && t.BatchSize == 0
+}
+
+// SolverToRun is the solver a fit of this config runs: train.solver, with
+// auto resolved to the fastest exact solver the model allows.
+func (c *Config) SolverToRun() Solver {
+	if c.Train.Solver != SolverAuto {
+		return c.Train.Solver
+	}
+	if c.projectable() {
+		return SolverProjected
+	}
+	return SolverAdam
 }
 
 // Shape is the nn.Shape the config describes for nbins positions and n

@@ -124,6 +124,7 @@ func TestResume(t *testing.T) {
 			c.Train.CheckpointEvery = 7
 			c.Train.BatchSize = batch
 			c.Axis.BinWidth = 12
+			c.Train.Solver = SolverAdam // the projected solver's resume: TestProjectedResume
 		}
 		p, _ := synthPrepared(t, 30, 400, edit)
 		whole, err := Fit(context.Background(), p, Hooks{}, nil)
@@ -413,5 +414,138 @@ func TestBlockTrials(t *testing.T) {
 		side = map[int]string{}
 		check(fmt.Sprint("fold ", f+1), append(slices.Clone(sets[0]), sets[1]...), "train")
 		check(fmt.Sprint("fold ", f+1), sets[2], "test")
+	}
+}
+
+// TestSolverAuto checks that a config that names no solver runs the
+// projected solver wherever the model allows it, and adam otherwise.
+func TestSolverAuto(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		edit func(*Config)
+		want Solver
+	}{
+		{"default", func(*Config) {}, SolverProjected},
+		{"soft encoding", func(c *Config) { c.Axis.Encoding = Soft }, SolverAdam},
+		{"mini-batches", func(c *Config) { c.Train.BatchSize = 32 }, SolverAdam},
+		{"named adam", func(c *Config) { c.Train.Solver = SolverAdam }, SolverAdam},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			c := Defaults()
+			tc.edit(&c)
+			if got := c.SolverToRun(); got != tc.want {
+				t.Errorf("got %s, want %s", got, tc.want)
+			}
+		})
+	}
+	p, _ := synthPrepared(t, 20, 300, func(c *Config) { c.Train.MaxEpochs = 5; c.Axis.BinWidth = 12 })
+	f, err := Fit(context.Background(), p, Hooks{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if f.Solver != SolverProjected {
+		t.Errorf("default fit ran %s, want projected", f.Solver)
+	}
+}
+
+// TestConstantNeuronsLeftOut appends constant neurons to a recording and
+// expects the other neurons' held-out scores to stay as they were, for
+// both solvers: neurons excluded from scoring take no part in training.
+// Not bitwise: the losses are means over all neurons, so the appended
+// columns rescale the filter gradient, which Adam undoes up to its
+// epsilon.
+func TestConstantNeuronsLeftOut(t *testing.T) {
+	for _, solver := range []Solver{SolverAdam, SolverProjected} {
+		t.Run(solver.String(), func(t *testing.T) {
+			edit := func(c *Config) {
+				c.Train.Solver = solver
+				c.Train.MaxEpochs = 150
+				c.Axis.BinWidth = 12
+			}
+			p, _ := synthPrepared(t, 40, 600, edit)
+			f, err := Fit(context.Background(), p, Hooks{}, nil)
+			if err != nil {
+				t.Fatal(err)
+			}
+			base := ScoreFitted(p, f)
+
+			q, _ := synthPrepared(t, 40, 600, edit)
+			y := q.Rec.Y
+			wide := data.NewMatrix(y.Rows, y.Cols+3)
+			for i := 0; i < y.Rows; i++ {
+				copy(wide.Row(i), y.Row(i))
+				wide.Row(i)[y.Cols], wide.Row(i)[y.Cols+1], wide.Row(i)[y.Cols+2] = 0, 2.5, -1
+			}
+			rec := *q.Rec
+			rec.Y = wide
+			rec.Neurons = nil
+			q2, err := PrepareRecording(q.Cfg, &rec)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if len(q2.Report.Constant) != 3 {
+				t.Fatalf("constant neurons %v, want the 3 appended", q2.Report.Constant)
+			}
+			g, err := Fit(context.Background(), q2, Hooks{}, nil)
+			if err != nil {
+				t.Fatal(err)
+			}
+			wider := ScoreFitted(q2, g)
+			var worst float64
+			for j := range base {
+				worst = max(worst, math.Abs(base[j].TestR2-wider[j].TestR2))
+			}
+			if worst > 1e-6 {
+				t.Errorf("appending 3 constant neurons moved another neuron's test R2 by %.3g, want < 1e-6", worst)
+			}
+			t.Logf("largest change of a test R2: %.3g", worst)
+		})
+	}
+}
+
+// TestProjectedColumnOrder reorders the neurons of a recording and expects
+// the default (projected) fit to give every neuron the same held-out
+// scores: the filters depend on the neurons only through sums over them,
+// which change with the order only by rounding.
+func TestProjectedColumnOrder(t *testing.T) {
+	edit := func(c *Config) { c.Train.MaxEpochs = 150; c.Axis.BinWidth = 12 }
+	p, _ := synthPrepared(t, 50, 600, edit)
+	f, err := Fit(context.Background(), p, Hooks{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	base := ScoreFitted(p, f)
+	q, _ := synthPrepared(t, 50, 600, edit)
+	perm := rand.New(rand.NewPCG(5, 6)).Perm(q.Rec.Y.Cols)
+	y := q.Rec.Y
+	re := data.NewMatrix(y.Rows, y.Cols)
+	for i := 0; i < y.Rows; i++ {
+		src, dst := y.Row(i), re.Row(i)
+		for k, j := range perm {
+			dst[k] = src[j]
+		}
+	}
+	rec := *q.Rec
+	rec.Y = re
+	rec.Neurons = nil
+	q2, err := PrepareRecording(q.Cfg, &rec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	g, err := Fit(context.Background(), q2, Hooks{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if f.Solver != SolverProjected || g.Solver != SolverProjected {
+		t.Fatalf("solvers %s, %s: want the default projected", f.Solver, g.Solver)
+	}
+	got := ScoreFitted(q2, g)
+	var worst float64
+	for k, j := range perm {
+		worst = max(worst, math.Abs(got[k].TestR2-base[j].TestR2))
+	}
+	t.Logf("largest change of a test R2 after reordering: %.3g", worst)
+	if worst > 1e-8 {
+		t.Errorf("reordering the neurons moved a test R2 by %.3g, want < 1e-8", worst)
 	}
 }
