@@ -25,7 +25,10 @@ type Hooks struct {
 	// OnEpoch is called after every epoch.
 	OnEpoch func(EpochLog)
 	// Checkpoint is called every train.checkpoint_every epochs and when
-	// the context is cancelled.
+	// the context is cancelled. The Checkpoint shares the trainer's
+	// buffers: it is valid only during the call (write it out, or copy
+	// what you keep); after a cancellation training does not continue, so
+	// that last one stays valid.
 	Checkpoint func(*Checkpoint) error
 }
 

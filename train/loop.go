@@ -85,12 +85,12 @@ func runEpochs(ctx context.Context, s solver, tc TrainConfig, hooks Hooks, resum
 	if n := len(st.Log); n > 0 {
 		offset = st.Log[n-1].Seconds
 	}
+	// snapshot shares the live buffers (no copy of the N x F readout and
+	// its moments); hooks get it only while training waits for them.
 	snapshot := func() *Checkpoint {
 		c := st
-		c.Params = slices.Clone(params)
-		c.M, c.V, c.T = slices.Clone(opt.M), slices.Clone(opt.V), opt.T
-		c.Best = slices.Clone(st.Best)
-		c.Log = slices.Clone(st.Log)
+		c.Params = params
+		c.M, c.V, c.T = opt.M, opt.V, opt.T
 		c.RNG = nil
 		if pcg := s.random(); pcg != nil {
 			c.RNG, _ = pcg.MarshalBinary()
