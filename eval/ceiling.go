@@ -1,6 +1,10 @@
 package eval
 
-import "math"
+import (
+	"math"
+
+	"gonum.org/v1/gonum/stat/distuv"
+)
 
 // Ceiling says whether a neuron's noise-ceiling estimate can divide a score,
 // and if not, why. The zero value is CeilingUsable.
@@ -17,7 +21,7 @@ const (
 	// Var[r] - sigma2_noise is <= 0.
 	CeilingNoSignal
 	// CeilingNotSignificant: both estimates are positive, but the condition
-	// effect on the held-out trials is not significant (SignalP >= alpha):
+	// effect on the held-out trials is not significant (SignalP() >= alpha):
 	// the estimate may be positive by chance and a ratio by it can take any
 	// value.
 	CeilingNotSignificant
@@ -67,7 +71,9 @@ const DefaultCeilingAlpha = 0.05
 //     two conditions): CeilingNoRepeats.
 //  2. SP <= 0 or the explainable fraction <= 0 (Var[r] <= sigma2_noise), or
 //     either is NaN: CeilingNoSignal (eval/methods.md §1: report NaN).
-//  3. SignalP >= alpha: CeilingNotSignificant.
+//  3. The F test of "no condition effect" does not reject at level alpha
+//     (SignalP() >= alpha, i.e. SignalF at or below the critical value):
+//     CeilingNotSignificant.
 //
 // Why the F test [derived]: with B conditions, M held-out trials and MS_w the
 // pooled noise variance, the explainable variance is
@@ -83,13 +89,33 @@ const DefaultCeilingAlpha = 0.05
 // units of the noise, which is what a ratio needs. alpha <= 0 or >= 1 skips
 // step 3.
 func CheckCeiling(s Scores, alpha float64) Ceiling {
+	var g critCache
+	return g.check(s, alpha)
+}
+
+// critCache remembers the critical F value of the last degrees of freedom:
+// all neurons scored on the same trials share them, so GateCeilings computes
+// one quantile per call instead of one incomplete beta per neuron.
+type critCache struct {
+	df1, df2, alpha, crit float64
+	ok                    bool
+}
+
+func (g *critCache) check(s Scores, alpha float64) Ceiling {
 	if math.IsNaN(s.SignalF) {
 		return CeilingNoRepeats
 	}
 	if !(s.SP > 0) || !(s.ExplainableFraction > 0) {
 		return CeilingNoSignal
 	}
-	if alpha > 0 && alpha < 1 && !(s.SignalP < alpha) {
+	if !(alpha > 0 && alpha < 1) {
+		return CeilingUsable
+	}
+	if !g.ok || g.df1 != s.SignalDF1 || g.df2 != s.SignalDF2 || g.alpha != alpha {
+		g.df1, g.df2, g.alpha, g.ok = s.SignalDF1, s.SignalDF2, alpha, true
+		g.crit = distuv.F{D1: s.SignalDF1, D2: s.SignalDF2}.Quantile(1 - alpha)
+	}
+	if !(s.SignalF > g.crit) {
 		return CeilingNotSignificant
 	}
 	return CeilingUsable
@@ -111,8 +137,9 @@ func GateCeilings(dst []Ceiling, scores []Scores, alpha float64) ([]Ceiling, int
 	checkLen(len(dst), len(scores), "GateCeilings")
 	usable := 0
 	nan := math.NaN()
+	var g critCache
 	for i := range scores {
-		c := CheckCeiling(scores[i], alpha)
+		c := g.check(scores[i], alpha)
 		dst[i] = c
 		if c == CeilingUsable {
 			usable++

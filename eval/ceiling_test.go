@@ -165,6 +165,10 @@ func TestGateBoundsRatios(t *testing.T) {
 			r := rangeOf(g, func(int) bool { return true })
 			tunedKept, untunedKept := 0, 0
 			for j, v := range verdict {
+				// The cached critical value agrees with the p-value.
+				if sc[j].SP > 0 && sc[j].ExplainableFraction > 0 && (v == eval.CeilingUsable) != (sc[j].SignalP() < alpha) {
+					t.Errorf("neuron %d: verdict %v but SignalP %v at alpha %v", j, v, sc[j].SignalP(), alpha)
+				}
 				if v == eval.CeilingUsable {
 					if j < nTuned {
 						tunedKept++
@@ -203,4 +207,44 @@ func countTrue(b []bool) int {
 		}
 	}
 	return k
+}
+
+// TestCheckCeiling: the order of the rules on hand-made scores. F(2, 10) has
+// its 0.95 quantile at 4.1028 (scipy.stats.f.ppf(0.95, 2, 10) = 4.102821,
+// scipy 1.10.1, run by hand; 4.10 in printed F tables).
+func TestCheckCeiling(t *testing.T) {
+	nan := math.NaN()
+	ok := eval.Scores{SP: 1, ExplainableFraction: 0.3, SignalF: 4.2, SignalDF1: 2, SignalDF2: 10, FEV: 0.5, CCNorm: 0.7, SPE: 0.4, CCMax: 0.8}
+	mod := func(f func(*eval.Scores)) eval.Scores { s := ok; f(&s); return s }
+	cases := []struct {
+		name  string
+		s     eval.Scores
+		alpha float64
+		want  eval.Ceiling
+	}{
+		{"usable", ok, 0.05, eval.CeilingUsable},
+		{"just below the critical value", mod(func(s *eval.Scores) { s.SignalF = 4.10 }), 0.05, eval.CeilingNotSignificant},
+		{"no test at alpha 0", mod(func(s *eval.Scores) { s.SignalF = 1 }), 0, eval.CeilingUsable},
+		{"no repeats", mod(func(s *eval.Scores) { s.SignalF = nan }), 0.05, eval.CeilingNoRepeats},
+		{"SP <= 0", mod(func(s *eval.Scores) { s.SP = -0.1 }), 0.05, eval.CeilingNoSignal},
+		{"no explainable variance", mod(func(s *eval.Scores) { s.ExplainableFraction = -0.01 }), 0.05, eval.CeilingNoSignal},
+		{"noise-free", mod(func(s *eval.Scores) { s.SignalF = math.Inf(1) }), 0.05, eval.CeilingUsable},
+	}
+	for _, c := range cases {
+		if got := eval.CheckCeiling(c.s, c.alpha); got != c.want {
+			t.Errorf("%s: got %v, want %v", c.name, got, c.want)
+		}
+	}
+	sc := []eval.Scores{ok, cases[1].s}
+	v, n := eval.GateCeilings(nil, sc, 0.05)
+	if n != 1 || v[1] != eval.CeilingNotSignificant || !math.IsNaN(sc[1].FEV) || !math.IsNaN(sc[1].CCNorm) || !math.IsNaN(sc[1].SPE) || sc[1].CCMax != 0.8 || sc[0].FEV != 0.5 {
+		t.Errorf("GateCeilings: %d usable, verdicts %v, scores %+v", n, v, sc)
+	}
+	if eval.CeilingNotSignificant.String() != "signal_not_significant" || eval.CeilingUsable.Reason() != "" {
+		t.Error("Ceiling names")
+	}
+	m, k := eval.ReliableMask(nil, []float64{0.5, 0.29, nan, 0.3}, eval.DefaultMinReliability)
+	if k != 2 || !m[0] || m[1] || m[2] || !m[3] {
+		t.Errorf("ReliableMask: %v, %d kept; want [true false false true], 2", m, k)
+	}
 }

@@ -25,9 +25,10 @@ import (
 //   - SplitHalf: Spearman-Brown corrected split-half reliability 2r/(1+r) of
 //     the held-out condition means, r the correlation across conditions of the
 //     two halves' means (see ScorePopulation for how halves are formed).
-//   - SignalF, SignalP: the one-way ANOVA F statistic of the held-out trials
-//     (condition as the factor) and its p-value, the test of "no condition
-//     effect" that CheckCeiling uses (see there).
+//   - SignalF, SignalDF1, SignalDF2: the one-way ANOVA F statistic of the
+//     held-out trials (condition as the factor) and its degrees of freedom,
+//     the test of "no condition effect" that CheckCeiling uses (see there);
+//     SignalP() is its p-value.
 //
 // A score that is undefined is NaN; in particular CCMax, CCNorm and SPE are
 // NaN when SP <= 0. The ratio scores FEV, CCNorm and SPE divide by a
@@ -39,7 +40,21 @@ type Scores struct {
 	ExplainableFraction, FEV      float64
 	SP, CCAbs, CCMax, CCNorm, SPE float64
 	SplitHalf                     float64
-	SignalF, SignalP              float64
+	SignalF, SignalDF1, SignalDF2 float64
+}
+
+// SignalP returns the p-value of SignalF, its upper tail under
+// F(SignalDF1, SignalDF2): 0 for SignalF = +Inf, NaN when SignalF is NaN. It
+// costs an incomplete beta function (microseconds); to test many neurons at
+// one level use GateCeilings, which compares SignalF with the critical value.
+func (s Scores) SignalP() float64 {
+	switch {
+	case math.IsNaN(s.SignalF):
+		return math.NaN()
+	case math.IsInf(s.SignalF, 1):
+		return 0
+	}
+	return distuv.F{D1: s.SignalDF1, D2: s.SignalDF2}.Survival(s.SignalF)
 }
 
 // scoreBlock is the number of neurons one worker scores at a time.
@@ -67,9 +82,9 @@ const scoreBlock = 64
 // every ratio by SP are NaN.
 //
 // SignalF = (SSbetween/(B-1)) / (SSwithin/(M-B)) over the B conditions with a
-// held-out trial and the M held-out trials, SSbetween = SStot - SSwithin;
-// SignalP is its upper tail under F(B-1, M-B). SignalF is +Inf (SignalP 0)
-// when the trials vary only between conditions.
+// held-out trial and the M held-out trials, SSbetween = SStot - SSwithin, with
+// SignalDF1 = B-1 and SignalDF2 = M-B. SignalF is +Inf when the trials vary
+// only between conditions.
 //
 // SplitHalf: within each condition the held-out trials, in the order they
 // appear in trials, are dealt alternately to half A (1st, 3rd, ...) and half
@@ -337,13 +352,14 @@ func (s *scorer) finish(sh *shared, j int, M float64) Scores {
 		k++
 	}
 	trialVar := ssTot / M
-	out.SignalF, out.SignalP = nan, nan
+	out.SignalF = nan
 	if dfw > 0 {
 		noise := ssw / dfw // PooledNoiseVariance from the sums of squares
 		out.ExplainableFraction = ExplainableFraction(trialVar, noise)
 		out.FEV = FEV(s.sse[j]/M, trialVar, noise)
 		if k >= 2 {
-			out.SignalF, out.SignalP = anovaF(ssTot, ssw, k, dfw)
+			out.SignalF = anovaF(ssTot, ssw, k, dfw)
+			out.SignalDF1, out.SignalDF2 = float64(k-1), dfw
 		}
 	} else {
 		out.ExplainableFraction, out.FEV = nan, nan
@@ -361,20 +377,17 @@ func (s *scorer) finish(sh *shared, j int, M float64) Scores {
 	return out
 }
 
-// anovaF returns the one-way ANOVA F statistic and its p-value from the total
-// and within-condition sums of squares, k conditions and dfw = M - k
+// anovaF returns the one-way ANOVA F statistic from the total and
+// within-condition sums of squares, k conditions and dfw = M - k
 // within-condition degrees of freedom. Rounding can make ssTot a hair below
 // ssw; the between-condition sum is then taken as 0.
-func anovaF(ssTot, ssw float64, k int, dfw float64) (f, p float64) {
+func anovaF(ssTot, ssw float64, k int, dfw float64) float64 {
 	ssb := math.Max(0, ssTot-ssw)
-	dfb := float64(k - 1)
 	switch {
 	case ssw > 0:
-		f = (ssb / dfb) / (ssw / dfw)
+		return (ssb / float64(k-1)) / (ssw / dfw)
 	case ssb > 0:
-		return math.Inf(1), 0
-	default:
-		return math.NaN(), math.NaN()
+		return math.Inf(1)
 	}
-	return f, distuv.F{D1: dfb, D2: dfw}.Survival(f)
+	return math.NaN()
 }

@@ -169,8 +169,8 @@ func TestSignalFScipy(t *testing.T) {
 		dc := make([]Scores, 1)
 		ScoreConditions(dc, y, 1, trials, cond, make([]float64, B), B)
 		for _, s := range []Scores{dst[0], dc[0]} {
-			if !near(s.SignalF, c.F, 1e-9*c.F) || !near(s.SignalP, c.P, 1e-9*c.P) {
-				t.Errorf("%s: SignalF %.12g, SignalP %.12g; want scipy %.12g, %.12g", c.Name, s.SignalF, s.SignalP, c.F, c.P)
+			if !near(s.SignalF, c.F, 1e-9*c.F) || !near(s.SignalP(), c.P, 1e-9*c.P) {
+				t.Errorf("%s: SignalF %.12g, SignalP %.12g; want scipy %.12g, %.12g", c.Name, s.SignalF, s.SignalP(), c.F, c.P)
 			}
 		}
 	}
@@ -178,7 +178,7 @@ func TestSignalFScipy(t *testing.T) {
 	// neuron: NaN.
 	dst := make([]Scores, 2)
 	ScorePopulation(dst, []float32{1, 5, 1, 5, 2, 5, 2, 5}, 2, []int{0, 1, 2, 3}, []int{0, 0, 1, 1}, make([]float64, 8), 2)
-	if !math.IsInf(dst[0].SignalF, 1) || dst[0].SignalP != 0 || !math.IsNaN(dst[1].SignalF) {
-		t.Errorf("noise-free neuron: F %v p %v (want +Inf, 0); constant neuron: F %v (want NaN)", dst[0].SignalF, dst[0].SignalP, dst[1].SignalF)
+	if !math.IsInf(dst[0].SignalF, 1) || dst[0].SignalP() != 0 || !math.IsNaN(dst[1].SignalF) || !math.IsNaN(dst[1].SignalP()) {
+		t.Errorf("noise-free neuron: F %v p %v (want +Inf, 0); constant neuron: F %v p %v (want NaN)", dst[0].SignalF, dst[0].SignalP(), dst[1].SignalF, dst[1].SignalP())
 	}
 }
