@@ -211,3 +211,21 @@ func TestConditionValues(t *testing.T) {
 }
 
 func near(got, want, tol float64) bool { return math.Abs(got-want) <= tol }
+
+// TestCenterOffset: 24 directions 15 deg apart in 12 bins of 30 deg: each
+// bin holds x and x + 15, mean x + 7.5, centre x + 15: offset -7.5 [computed
+// by hand]. The centred orientation design has offset 0.
+func TestCenterOffset(t *testing.T) {
+	a := Axis{Min: 0, Max: 360, Periodic: true, BinWidth: 30}
+	stim := repeatLevels(steps(24, 15, 0), 2, 3)
+	cond, _ := a.BinTrials(stim)
+	if _, off := a.CenterOffset(a.ConditionValues(nil, stim, cond)); !near(off, -7.5, 1e-9) {
+		t.Errorf("coarse bins: offset %v, want -7.5", off)
+	}
+	o := Axis{Min: -7.5, Max: 172.5, Periodic: true, BinWidth: 15}
+	stim = repeatLevels(steps(12, 15, 0), 2, 4)
+	cond, _ = o.BinTrials(stim)
+	if b, off := o.CenterOffset(o.ConditionValues(nil, stim, cond)); off != 0 {
+		t.Errorf("centred: bin %d offset %v, want 0", b, off)
+	}
+}
