@@ -10,6 +10,7 @@ import (
 	"gopkg.in/yaml.v3"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/nn"
 )
 
@@ -28,6 +29,9 @@ type Config struct {
 	Recordings []RecordingConfig `yaml:"recordings"`
 	// Compare lists the models of stria compare.
 	Compare CompareConfig `yaml:"compare"`
+	// Scores says which noise ceilings are usable and which neurons the
+	// summaries of ratio metrics keep.
+	Scores ScoresConfig `yaml:"scores"`
 	// Output is the run folder written by stria fit.
 	Output string `yaml:"output"`
 
@@ -121,6 +125,20 @@ type TrainConfig struct {
 	Solver Solver `yaml:"solver"`
 }
 
+// ScoresConfig controls how held-out scores are judged against the noise
+// ceiling (eval/methods.md §14).
+type ScoresConfig struct {
+	// CeilingAlpha is the level of the F test of a neuron's condition
+	// effect on the scored trials: where it is not significant the noise
+	// ceiling is unusable and the ratio metrics (FEV, cc_norm, SPE) are
+	// NaN, with the reason in the ceiling column.
+	CeilingAlpha float64 `yaml:"ceiling_alpha"`
+	// MinReliability is the split-half reliability (all trials,
+	// Spearman-Brown stepped up) a neuron needs to enter the summaries,
+	// pair tests and figures of the ratio metrics; -1 keeps all.
+	MinReliability float64 `yaml:"min_reliability"`
+}
+
 // Defaults returns a Config with every default filled in and no data.
 func Defaults() Config {
 	return Config{
@@ -150,6 +168,7 @@ func Defaults() Config {
 			CheckpointEvery: 100,
 			Solver:          SolverAuto,
 		},
+		Scores:  ScoresConfig{CeilingAlpha: eval.DefaultCeilingAlpha, MinReliability: eval.DefaultMinReliability},
 		Compare: CompareConfig{Starts: 8, SmoothLambda: 2, Output: "runs/compare"},
 		Output:  "runs/fit",
 	}
@@ -299,6 +318,12 @@ func (c *Config) Validate() error {
 	}
 	if t.Threads < 0 {
 		bad("train.threads %d: want 0 (all cores) or more", t.Threads)
+	}
+	if !(c.Scores.CeilingAlpha > 0 && c.Scores.CeilingAlpha <= 1) {
+		bad("scores.ceiling_alpha %v: want a level in (0, 1], e.g. 0.05", c.Scores.CeilingAlpha)
+	}
+	if !(c.Scores.MinReliability >= -1 && c.Scores.MinReliability <= 1) {
+		bad("scores.min_reliability %v: want a value in [-1, 1] (-1 keeps every neuron)", c.Scores.MinReliability)
 	}
 	if c.Compare.Starts < 1 {
 		bad("compare.starts %d: want at least 1", c.Compare.Starts)

@@ -13,6 +13,7 @@ import (
 
 	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/eval"
+	"github.com/strialab/stria/eval/tuning"
 	"github.com/strialab/stria/nn"
 )
 
@@ -547,5 +548,69 @@ func TestProjectedColumnOrder(t *testing.T) {
 	t.Logf("largest change of a test R2 after reordering: %.3g", worst)
 	if worst > 1e-8 {
 		t.Errorf("reordering the neurons moved a test R2 by %.3g, want < 1e-8", worst)
+	}
+}
+
+// TestDiscreteConditionsCentred fits twelve orientations 0, 15, ..., 165
+// declared as min 0, bin_width 15 (the values on the left bin edges) and
+// expects the bins moved onto the values, and the encoder's preferred
+// orientations within 1 degree of the planted ones on average (they were
+// +7.5 off before the bins were centred).
+func TestDiscreteConditionsCentred(t *testing.T) {
+	const N, reps = 120, 40
+	rng := rand.New(rand.NewPCG(3, 9))
+	pref := make([]float64, N)
+	for n := range pref {
+		pref[n] = 180 * rng.Float64()
+	}
+	T := 12 * reps
+	rec := &data.Recording{Y: data.NewMatrix(T, N), Stim: make([]float64, T), Source: data.Source{Responses: "synthetic", Stimulus: "orientations"}}
+	for t := 0; t < T; t++ {
+		th := 15 * float64(t%12)
+		rec.Stim[t] = th
+		for n, p := range pref {
+			mu := 1 + 3*math.Exp(2*(math.Cos(2*(th-p)*math.Pi/180)-1))
+			rec.Y.Row(t)[n] = float32(mu + 0.5*rng.NormFloat64())
+		}
+	}
+	cfg := Defaults()
+	cfg.Data.Responses = "synthetic"
+	cfg.Axis = AxisConfig{Name: "orientation", Unit: "deg", Min: 0, Max: 180, Periodic: true, BinWidth: 15}
+	cfg.Split.KeepBlocks = false
+	if err := cfg.Validate(); err != nil {
+		t.Fatal(err)
+	}
+	p, err := PrepareRecording(&cfg, rec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if c := p.Axis.Centers(); math.Abs(c[0]) > 1e-9 || math.Abs(c[1]-15) > 1e-9 {
+		t.Fatalf("bin centres %v..., want 0, 15, ...", c[:3])
+	}
+	if cfg.Axis.Min != -7.5 || cfg.Axis.Max != 172.5 {
+		t.Errorf("resolved axis %v..%v, want -7.5..172.5", cfg.Axis.Min, cfg.Axis.Max)
+	}
+	if len(p.Report.Warnings) == 0 || !strings.Contains(p.Report.Warnings[0], "centres") {
+		t.Errorf("no note about the moved bins: %q", p.Report.Warnings)
+	}
+	f, err := Fit(context.Background(), p, Hooks{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	pc := slices.Clone(f.Curves)
+	p.Norm.InvertRows(pc)
+	centres := p.Axis.Centers()
+	curve := make([]float64, p.NBins)
+	var sum float64
+	for n := range pref {
+		for b := range curve {
+			curve[b] = pc[b*N+n]
+		}
+		d := tuning.Describe(curve, centres, 180)
+		e := math.Mod(d.Preferred-pref[n]+270, 180) - 90 // signed, on the 180-degree circle
+		sum += e
+	}
+	if mean := sum / N; math.Abs(mean) > 1 {
+		t.Errorf("mean preferred-orientation error %.2f deg, want under 1", mean)
 	}
 }

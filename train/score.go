@@ -90,6 +90,7 @@ func ScoreFitted(p *Prepared, f *Fitted) []eval.Scores {
 func ScoreCurves(p *Prepared, pc []float64) []eval.Scores {
 	s := make([]eval.Scores, p.Neurons())
 	eval.ScoreConditions(s, p.Rec.Y.Data, p.Neurons(), p.Test, p.Cond, pc, p.NBins)
+	eval.GateCeilings(nil, s, p.Cfg.Scores.CeilingAlpha)
 	return s
 }
 
@@ -98,5 +99,6 @@ func ScoreCurves(p *Prepared, pc []float64) []eval.Scores {
 func Score(p *Prepared, pred []float64) []eval.Scores {
 	s := make([]eval.Scores, p.Neurons())
 	eval.ScorePopulation(s, p.Rec.Y.Data, p.Neurons(), p.Test, p.Cond, pred, p.NBins)
+	eval.GateCeilings(nil, s, p.Cfg.Scores.CeilingAlpha)
 	return s
 }
