@@ -614,3 +614,14 @@ func TestDiscreteConditionsCentred(t *testing.T) {
 		t.Errorf("mean preferred-orientation error %.2f deg, want under 1", mean)
 	}
 }
+
+// TestCautionsFor checks that the noise-ceiling caution appears only when
+// a condition has few scored trials, and the split caution always.
+func TestCautionsFor(t *testing.T) {
+	if got := CautionsFor([]int{24, 0, 30}); len(got) != 1 || !strings.Contains(got[0], "split") {
+		t.Errorf("24+ trials per condition: got %q, want only the split caution", got)
+	}
+	if got := CautionsFor([]int{24, 3, 30}); len(got) != 2 || !strings.Contains(got[0], "few trials") {
+		t.Errorf("3 trials in a condition: got %q, want both cautions", got)
+	}
+}
