@@ -32,6 +32,8 @@ type Config struct {
 	// Scores says which noise ceilings are usable and which neurons the
 	// summaries of ratio metrics keep.
 	Scores ScoresConfig `yaml:"scores"`
+	// Acuity is the section of stria acuity (config_acuity.go).
+	Acuity AcuityConfig `yaml:"acuity"`
 	// Output is the run folder written by stria fit.
 	Output string `yaml:"output"`
 
@@ -170,6 +172,7 @@ func Defaults() Config {
 		},
 		Scores:  ScoresConfig{CeilingAlpha: eval.DefaultCeilingAlpha, MinReliability: eval.DefaultMinReliability},
 		Compare: CompareConfig{Starts: 8, SmoothLambda: 2, Output: "stria-out/compare"},
+		Acuity:  DefaultAcuity(),
 		Output:  "stria-out/fit",
 	}
 }
@@ -331,6 +334,7 @@ func (c *Config) Validate() error {
 	if !(c.Compare.SmoothLambda >= 0) {
 		bad("compare.smooth_lambda %v: want a value >= 0", c.Compare.SmoothLambda)
 	}
+	c.validateAcuity(bad)
 	if c.Output == "" {
 		bad("output: no run folder given (set it in the config or with --out)")
 	}

@@ -54,7 +54,7 @@ func LoadConfig(path string) (*Config, error) {
 // folder works from anywhere.
 func (c *Config) resolvePaths() {
 	d := &c.Data
-	for _, p := range []*string{&d.Responses, &d.Stimulus, &d.Condition, &d.Block, &c.Output, &c.Compare.Output} {
+	for _, p := range []*string{&d.Responses, &d.Stimulus, &d.Condition, &d.Block, &c.Output, &c.Compare.Output, &c.Acuity.Output} {
 		*p = c.Resolve(*p)
 	}
 	// A recording's other paths are relative to its responses file.
@@ -248,6 +248,8 @@ func sectionOf(typ string) string {
 		return "compare.encoders[]"
 	case "RecordingConfig":
 		return "recordings[]"
+	case "AcuityConfig":
+		return "acuity"
 	}
 	return ""
 }

@@ -34,6 +34,7 @@ func newApp() *cli.App {
 			fitCommand(),
 			predictCommand(),
 			compareCommand(),
+			acuityCommand(),
 			exportCommand(),
 			reportCommand(),
 			gatherCommand(),

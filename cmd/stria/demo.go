@@ -95,6 +95,15 @@ compare:
           kernel: 9
   starts: 8
   output: compare
+acuity:
+  # information against the number of neurons: automatic sizes up to half
+  # of what the bias correction allows, 20 random subsets of each
+  repeats: 20
+  bootstrap: 1000
+  decoders: [lda, model]     # diagonal LDA, and the encoder's likelihood
+  shrinkage: 1
+  decode_repeats: 3
+  output: acuity
 output: run
 `
 
@@ -194,6 +203,15 @@ func runDemo(ctx context.Context, stdout, stderr io.Writer, o demoOptions) error
 	if err != nil {
 		return err
 	}
-	fmt.Fprintf(stdout, "\nreports (open in a browser; they print to PDF):\n  %s\n  %s\n", runReport, cmpReport)
+	fmt.Fprintf(stdout, "\n== stria acuity --config %s\n", cfgPath)
+	if _, err := runAcuity(ctx, cfg, stdout, stderr, o.quiet); err != nil {
+		return err
+	}
+	fmt.Fprintf(stdout, "\n== stria report %s\n", cfg.Acuity.Output)
+	acuityReport, err := export.WriteAcuityReport(cfg.Acuity.Output, "")
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(stdout, "\nreports (open in a browser; they print to PDF):\n  %s\n  %s\n  %s\n", runReport, cmpReport, acuityReport)
 	return nil
 }

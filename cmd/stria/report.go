@@ -12,7 +12,7 @@ import (
 func reportCommand() *cli.Command {
 	return &cli.Command{
 		Name:      "report",
-		Usage:     "write one self-contained HTML report of a run or comparison folder (runs export first)",
+		Usage:     "write one self-contained HTML report of a run, comparison or acuity folder (runs export first)",
 		ArgsUsage: "FOLDER",
 		Flags: []cli.Flag{
 			&cli.StringFlag{Name: "out", Usage: "report `FILE` (default: FOLDER/" + runfolder.FileReport + ")"},
@@ -23,7 +23,16 @@ func reportCommand() *cli.Command {
 			if err := oneFolderArg(c); err != nil {
 				return err
 			}
-			path, err := export.WriteReport(c.Args().First(), c.String("out"), exportOptions(c))
+			dir := c.Args().First()
+			if runfolder.IsAcuity(dir) {
+				path, err := export.WriteAcuityReport(dir, c.String("out"))
+				if err != nil {
+					return err
+				}
+				fmt.Fprintln(c.App.Writer, path)
+				return nil
+			}
+			path, err := export.WriteReport(dir, c.String("out"), exportOptions(c))
 			if err != nil {
 				return err
 			}
