@@ -195,10 +195,21 @@ func Acuity(ctx context.Context, p *Prepared, progress AcuityProgress) (*AcuityR
 		if r.Summary, err = acuity.Summarize(ax, p.Cond, dec); err != nil {
 			return nil, fmt.Errorf("acuity: decoder %s: %w", r.Name, err)
 		}
-		drng := rand.New(rand.NewPCG(cfg.Seed, 0xac03))
-		if r.Curve, err = d.VsSize(y, n, p.Cond, ax, afolds, dsizes, ac.DecodeRepeats, drng); err != nil {
-			return nil, fmt.Errorf("acuity: decoder %s against population size: %w", r.Name, err)
+		// Every subset of all n neurons is the whole population: its
+		// result is the one just computed, so only smaller sizes are
+		// decoded again (this halves the cost at full scale).
+		sub := dsizes
+		if sub[len(sub)-1] == n {
+			sub = sub[:len(sub)-1]
 		}
+		drng := rand.New(rand.NewPCG(cfg.Seed, 0xac03))
+		curve := &acuity.DecodeCurve{Repeats: ac.DecodeRepeats}
+		if len(sub) > 0 {
+			if curve, err = d.VsSize(y, n, p.Cond, ax, afolds, sub, ac.DecodeRepeats, drng); err != nil {
+				return nil, fmt.Errorf("acuity: decoder %s against population size: %w", r.Name, err)
+			}
+		}
+		r.Curve = withFull(curve, sub, n, len(sub) < len(dsizes), r.Summary)
 		res.Seconds["decoder "+r.Name] = time.Since(start).Seconds()
 		say("decoder %s: accuracy %.3f, mean absolute error %.3g (%.1f s)", r.Name, r.Summary.Accuracy, r.Summary.MAE, res.Seconds["decoder "+r.Name])
 		res.Decoders = append(res.Decoders, r)
@@ -207,6 +218,25 @@ func Acuity(ctx context.Context, p *Prepared, progress AcuityProgress) (*AcuityR
 		}
 	}
 	return res, nil
+}
+
+// withFull returns curve (over sizes sub) with the whole population of n
+// neurons appended as the last size when full is set: the same result for
+// every repeat.
+func withFull(curve *acuity.DecodeCurve, sub []int, n int, full bool, all acuity.DecodeSummary) *acuity.DecodeCurve {
+	if !full {
+		return curve
+	}
+	S, R := len(sub), curve.Repeats
+	out := &acuity.DecodeCurve{Sizes: append(slices.Clone(sub), n), Repeats: R,
+		MAE: make([]float64, R*(S+1)), Accuracy: make([]float64, R*(S+1))}
+	for r := 0; r < R; r++ {
+		for s := 0; s < S; s++ {
+			out.MAE[r*(S+1)+s], out.Accuracy[r*(S+1)+s] = curve.MAE[r*S+s], curve.Accuracy[r*S+s]
+		}
+		out.MAE[r*(S+1)+S], out.Accuracy[r*(S+1)+S] = all.MAE, all.Accuracy
+	}
+	return out
 }
 
 func ldaText(alpha float64) string {
