@@ -160,6 +160,11 @@ var wordKeys = map[string][]string{
 	"compare.encoders[].solver":          solverWords,
 }
 
+// wordListKeys are the settings that take a list of words from a list.
+var wordListKeys = map[string][]string{
+	"acuity.decoders": acuityDecoderWords,
+}
+
 // checkKeys refuses, before decoding, the values that decoding would
 // report without their key: an unknown word; and a stride of 0, which
 // decoding cannot tell from a stride left out (meaning 1).
@@ -170,6 +175,13 @@ func checkKeys(keys []yamlKey) error {
 			v := k.value
 			if v.Kind != yaml.ScalarNode || (v.Value != "" && !slices.Contains(words, v.Value)) {
 				return fmt.Errorf("line %d: %s %q: want %s", k.line, k.path, v.Value, orList(words))
+			}
+		}
+		if words, ok := wordListKeys[gen]; ok && k.value.Kind == yaml.SequenceNode {
+			for i, v := range k.value.Content {
+				if v.Kind != yaml.ScalarNode || !slices.Contains(words, v.Value) {
+					return fmt.Errorf("line %d: %s[%d] %q: want %s", v.Line, k.path, i, v.Value, orList(words))
+				}
 			}
 		}
 		if strings.HasSuffix(gen, "layers[].stride") && k.value.Kind == yaml.ScalarNode && k.value.Value == "0" {

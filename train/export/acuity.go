@@ -81,9 +81,6 @@ func AcuityFigures(dir, out string) (*Exported, *runfolder.AcuityFolder, error) 
 		return nil, nil, err
 	}
 	asym := float64(sat.Asymptote)
-	if sat.Error == "" && math.IsNaN(asym) && float64(sat.Eps) == 0 {
-		asym = math.Inf(1)
-	}
 	im, err = figure.Saturation([]figure.Band{{Name: "recorded", X: n, Y: si, SD: siSD}, {Name: "trial-shuffled", X: n, Y: ss, SD: ssSD}}, fx, fy, asym,
 		"information, mean over pairs ("+infoUnit+")")
 	if err := ex.add("acuity_saturation", im, err, fmt.Sprintf("Linear Fisher information (mean over neighbouring pairs) against the number of neurons: mean ± sd over %d random subsets, and the fit I(N) = a N/(1 + eps a N) to the recorded information. Its asymptote 1/eps is an extrapolation far beyond the largest subset.", info.Repeats),

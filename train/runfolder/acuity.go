@@ -39,13 +39,43 @@ const (
 type AcuitySaturation struct {
 	A             Num    `json:"a"`
 	Eps           Num    `json:"eps"`
-	Asymptote     Num    `json:"asymptote"`
-	Lo            Num    `json:"asymptote_lo95"`
-	Hi            Num    `json:"asymptote_hi95"`
+	Asymptote     InfNum `json:"asymptote"`
+	Lo            InfNum `json:"asymptote_lo95"`
+	Hi            InfNum `json:"asymptote_hi95"`
 	Boot          int    `json:"bootstrap"`
 	RMS           Num    `json:"rms_residual"`
 	Extrapolation bool   `json:"extrapolation"`
 	Error         string `json:"error,omitempty"`
+}
+
+// InfNum is a float64 that keeps infinities in JSON: NaN is written null,
+// +Inf and -Inf as the strings "+Inf" and "-Inf" (an asymptote of +Inf
+// means no saturation was detected, which null would hide).
+type InfNum float64
+
+// MarshalJSON implements json.Marshaler.
+func (v InfNum) MarshalJSON() ([]byte, error) {
+	f := float64(v)
+	switch {
+	case math.IsInf(f, 1):
+		return []byte(`"+Inf"`), nil
+	case math.IsInf(f, -1):
+		return []byte(`"-Inf"`), nil
+	}
+	return Num(f).MarshalJSON()
+}
+
+// UnmarshalJSON implements json.Unmarshaler.
+func (v *InfNum) UnmarshalJSON(b []byte) error {
+	switch string(b) {
+	case `"+Inf"`:
+		*v = InfNum(math.Inf(1))
+		return nil
+	case `"-Inf"`:
+		*v = InfNum(math.Inf(-1))
+		return nil
+	}
+	return (*Num)(v).UnmarshalJSON(b)
 }
 
 // AcuityDecoderInfo is one decoder's summary in acuity.json.
@@ -144,7 +174,7 @@ func NewAcuityFolder(p *train.Prepared, r *train.AcuityResult) *AcuityFolder {
 		Axis: AxisOf(p), Sources: map[string]string{"responses": cfg.Data.Responses, "stimulus": cfg.Data.Stimulus},
 		Neurons: r.Neurons, Trials: r.Trials, Folds: r.Folds, MaxSize: r.MaxSize,
 		InfoSizes: c.Sizes, Repeats: c.Repeats, DecodeRepeats: cfg.Acuity.DecodeRepeats,
-		Saturation: AcuitySaturation{A: Num(r.Fit.A), Eps: Num(r.Fit.Eps), Asymptote: Num(r.Fit.Asymptote), Lo: Num(r.Fit.Lo), Hi: Num(r.Fit.Hi),
+		Saturation: AcuitySaturation{A: Num(r.Fit.A), Eps: Num(r.Fit.Eps), Asymptote: InfNum(r.Fit.Asymptote), Lo: InfNum(r.Fit.Lo), Hi: InfNum(r.Fit.Hi),
 			Boot: r.Fit.Boot, RMS: Num(r.Fit.RMS), Extrapolation: true, Error: r.FitError},
 		Seconds: r.Seconds, Cautions: r.Cautions, Warnings: r.Warnings,
 	}}
