@@ -166,6 +166,9 @@ func Acuity(ctx context.Context, p *Prepared, progress AcuityProgress) (*AcuityR
 	} else if last := dsizes[len(dsizes)-1]; last > n {
 		return nil, fmt.Errorf("acuity.decode_sizes: the largest size %d is above the %d neurons of the recording", last, n)
 	}
+	if slices.Contains(ac.Decoders, DecoderLDA) && ac.Shrinkage < 1 && n > acuity.DefaultMaxFull {
+		return nil, fmt.Errorf("acuity.shrinkage %g: the linear discriminant with a full covariance is limited to %d neurons and the recording has %d (its cost grows with the cube of the number of neurons); use acuity.shrinkage: 1", ac.Shrinkage, acuity.DefaultMaxFull, n)
+	}
 	for _, kind := range ac.Decoders {
 		start := time.Now()
 		d := acuity.Decoder{Kind: acuity.LinearDiscriminant, Shrinkage: ac.Shrinkage}
