@@ -24,7 +24,7 @@ import (
 //	y_tn       = g_t rate_n(th_t) + NoiseSD a_n e_tn            Gaussian
 //	g_t        = max(0, 1 + GainSD z_t)
 //
-// Conditions are drawn at random, RareBins of them four times less often
+// Conditions are drawn at random, RareBins of them 2.5 times less often
 // than the others. The truth (oracle) is rate_n at each condition: the gain
 // has mean 1 (its clipping at 0 is a 5-sigma event at GainSD 0.2).
 type popSpec struct {
@@ -74,7 +74,7 @@ func makePopulation(s popSpec) (*data.Recording, []float64) {
 		weight[b] = 1
 	}
 	for _, b := range rng.Perm(B)[:s.RareBins] {
-		weight[b] = 0.25
+		weight[b] = 0.4
 	}
 	var wsum float64
 	for _, w := range weight {
