@@ -1,0 +1,253 @@
+package train
+
+import (
+	"context"
+	"fmt"
+	"math/rand/v2"
+	"testing"
+	"time"
+
+	"github.com/strialab/stria/nn"
+)
+
+// penaltyPopulation is the scenario of the penalty benchmark: 2,000 cells,
+// 3,000 trials, 60 conditions (6 of them rarer), Gaussian noise of noise
+// times a cell's amplitude and a 20 % shared gain, z-scored MSE with the default
+// encoder.
+func penaltyPopulation(b *testing.B, noise float64) (*Prepared, []float64) {
+	return popPrepared(b, popSpec{Neurons: 2000, Trials: 3000, Bins: 60, GainSD: 0.2, NoiseSD: noise, UntunedFrac: 0.1, RareBins: 6, Seed: 31},
+		func(c *Config) { c.Train.Solver = "projected"; c.Train.MaxEpochs = 3000; c.Train.Patience = 100 })
+}
+
+// trainProjected trains the filters of a projected fit; every 'every'
+// epochs (0: never) choose() may reset the penalty. It returns the net, the
+// projector at the best filters and the epochs run.
+func trainProjected(b *testing.B, p *Prepared, every int, choose func(pj *projector, net *nn.Net)) (*nn.Net, *projector, int) {
+	net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
+	initConv(net, rand.New(rand.NewPCG(p.Cfg.Seed, 0x1417)))
+	pj, err := newProjector(p, net)
+	if err != nil {
+		b.Fatal(err)
+	}
+	calls := 0
+	ep := trainFilters(b, p, net, pj.nconv, func(grad bool) (float64, error) {
+		if every > 0 && calls%every == 0 {
+			choose(pj, net)
+		}
+		calls++
+		err := pj.eval(net, grad, false)
+		return pj.val, err
+	})
+	return net, pj, ep
+}
+
+// BenchmarkReadoutPenalty reports the share of the gap between the
+// condition-mean model and the oracle (true noise-free means) that the
+// projected solver closes on the test trials with each choice of the
+// readout penalty (see penalty.go), and the chosen readout_l2 values.
+// Run with -benchtime=1x; seeded, so the numbers repeat.
+func BenchmarkReadoutPenalty(b *testing.B) {
+	for _, noise := range []float64{1, 0.3} {
+		b.Run(fmt.Sprintf("noise=%g", noise), func(b *testing.B) { benchPenalty(b, noise) })
+	}
+}
+
+func benchPenalty(b *testing.B, noise float64) {
+	p, truth := penaltyPopulation(b, noise)
+	cm, or := testR2(p, condMeanPred(p)), testR2(p, truth)
+	gap := func(name string, pred []float64) {
+		if p.Norm != nil {
+			N := p.Neurons()
+			for lo := 0; lo < len(pred); lo += N {
+				unscale(pred[lo:lo+N], p.Norm.Scale, p.Norm.Mean)
+			}
+		}
+		r2 := testR2(p, pred)
+		b.ReportMetric(gapShare(r2, cm, or), "gap_"+name)
+		b.Logf("%-22s gap share %.4f, median test R2 %.5f", name, gapShare(r2, cm, or), nanMedian(r2))
+	}
+	within := trainWithinN(p)
+	for range b.N {
+		b.Logf("median test R2: condition mean %.5f, oracle %.5f", nanMedian(cm), nanMedian(or))
+		// Fixed lambda = 1, then every choice at the best filters.
+		t0 := time.Now()
+		net, pj, ep := trainProjected(b, p, 0, nil)
+		b.Logf("fixed lambda 1: %d epochs, %v", ep, time.Since(t0))
+		rp := newRidgePath(pj, nil)
+		if err := rp.decompose(pj, net); err != nil {
+			b.Fatal(err)
+		}
+		g1 := argmin(absDiff(rp.mu, pj.mu))
+		all := func(g int) []int {
+			k := make([]int, pj.N)
+			for n := range k {
+				k[n] = g
+			}
+			return k
+		}
+		pj.features(net)
+		if err := pj.readout(net); err != nil {
+			b.Fatal(err)
+		}
+		gap("fixed1", pj.curves())
+		_ = g1
+		val, cp, gcv := make([]float64, len(rp.mu)), make([]float64, len(rp.mu)), make([]float64, len(rp.mu))
+		rp.valLoss(val, pj)
+		rp.sure(cp, gcv, pj)
+		for _, c := range []struct {
+			name string
+			x    []float64
+		}{{"final_val", val}, {"final_cp", cp}, {"final_gcv", gcv}} {
+			g := argmin(c.x)
+			b.Logf("%s: readout_l2 %.4g (tau %.3g)", c.name, pj.readoutL2(rp.mu[g]), rp.tau[g])
+			gap(c.name, rp.readout(pj, net, all(g)))
+		}
+		t1 := time.Now()
+		pv := rp.perNeuronVal(pj, argmin(val))
+		b.Logf("per-neuron validation choice: %v", time.Since(t1))
+		gap("final_neuron_val", rp.readout(pj, net, pv))
+		logPicks(b, pj, rp, pv)
+		pc := rp.perNeuronSURE(pj, within)
+		gap("final_neuron_cp", rp.readout(pj, net, pc))
+		logPicks(b, pj, rp, pc)
+
+		// Re-chosen during training every 10 epochs.
+		for _, how := range []string{"val", "cp"} {
+			var rq *ridgePath
+			t0 := time.Now()
+			net, pj, ep := trainProjected(b, p, 10, func(pj *projector, net *nn.Net) {
+				if rq == nil {
+					rq = newRidgePath(pj, nil)
+				}
+				if err := rq.decompose(pj, net); err != nil {
+					b.Fatal(err)
+				}
+				x := make([]float64, len(rq.mu))
+				if how == "val" {
+					rq.valLoss(x, pj)
+				} else {
+					rq.sure(x, nil, pj)
+				}
+				pj.mu = rq.mu[argmin(x)]
+			})
+			b.Logf("re-chosen (%s) every 10 epochs: %d epochs, %v, final readout_l2 %.4g", how, ep, time.Since(t0), pj.readoutL2(pj.mu))
+			if err := rq.decompose(pj, net); err != nil {
+				b.Fatal(err)
+			}
+			x := make([]float64, len(rq.mu))
+			if how == "val" {
+				rq.valLoss(x, pj)
+			} else {
+				rq.sure(x, nil, pj)
+			}
+			g := argmin(x)
+			gap("repick_"+how, rq.readout(pj, net, all(g)))
+			var pn []int
+			if how == "val" {
+				pn = rq.perNeuronVal(pj, g)
+			} else {
+				pn = rq.perNeuronSURE(pj, within)
+			}
+			gap("repick_neuron_"+how, rq.readout(pj, net, pn))
+		}
+	}
+}
+
+func absDiff(x []float64, v float64) []float64 {
+	out := make([]float64, len(x))
+	for i, a := range x {
+		out[i] = a - v
+		if out[i] < 0 {
+			out[i] = -out[i]
+		}
+	}
+	return out
+}
+
+// logPicks logs the spread of per-neuron readout_l2 choices.
+func logPicks(b *testing.B, pj *projector, rp *ridgePath, pick []int) {
+	v := make([]float64, len(pick))
+	for n, g := range pick {
+		v[n] = pj.readoutL2(rp.mu[g])
+	}
+	q := func(f float64) float64 {
+		s := append([]float64(nil), v...)
+		return quantile(s, f)
+	}
+	b.Logf("  per-neuron readout_l2: 10%% %.3g, median %.3g, 90%% %.3g", q(0.1), q(0.5), q(0.9))
+}
+
+func quantile(x []float64, f float64) float64 {
+	median(x) // sorts
+	return x[int(f*float64(len(x)-1))]
+}
+
+// BenchmarkPoissonFastVsAdam fits a spike-count population with the adam
+// solver (Poisson, softplus, full batch on condition sums) and with the
+// Poisson fast path on the same split and readout_l2 0.01; it reports the
+// median test R^2 of both, their gap shares, and the time ratio.
+func BenchmarkPoissonFastVsAdam(b *testing.B) {
+	for _, n := range []int{1000} {
+		b.Run(fmt.Sprintf("neurons=%d", n), func(b *testing.B) {
+			p, truth := popPrepared(b, popSpec{Neurons: n, Trials: 3000, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 41},
+				func(c *Config) { c.Model.ReadoutL2 = 0.01; c.Train.Patience = 100 })
+			cm, or := testR2(p, condMeanPred(p)), testR2(p, truth)
+			for range b.N {
+				t0 := time.Now()
+				fa, err := Fit(context.Background(), p, Hooks{}, nil)
+				if err != nil {
+					b.Fatal(err)
+				}
+				ta := time.Since(t0)
+				t0 = time.Now()
+				pf, ef := fitPoissonFast(b, p)
+				tf := time.Since(t0)
+				ra, rf := testR2(p, condPred(fa.Net, p)), testR2(p, pf)
+				b.ReportMetric(nanMedian(ra), "r2_adam")
+				b.ReportMetric(nanMedian(rf), "r2_fast")
+				b.ReportMetric(gapShare(ra, cm, or), "gap_adam")
+				b.ReportMetric(gapShare(rf, cm, or), "gap_fast")
+				b.ReportMetric(tf.Seconds()/ta.Seconds(), "time_fast/adam")
+				b.Logf("adam %d epochs %v; fast %d epochs %v; median R2 cm %.5f oracle %.5f", len(fa.Log), ta, ef, tf, nanMedian(cm), nanMedian(or))
+			}
+		})
+	}
+}
+
+// BenchmarkPoissonEpoch times one epoch of the Poisson fast path (features,
+// basis, per-neuron Newton from the previous epoch's readout, envelope
+// gradient, validation loss) after a filter step, at the full-size model
+// shape (60 bins, F 480): O(N Bt^3).
+func BenchmarkPoissonEpoch(b *testing.B) {
+	for _, n := range []int{1000, 6000, 24000} {
+		b.Run(fmt.Sprintf("neurons=%d", n), func(b *testing.B) {
+			p, _ := popPrepared(b, popSpec{Neurons: n, Trials: 1200, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, Seed: 41}, nil)
+			net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
+			initConv(net, rand.New(rand.NewPCG(1, 2)))
+			pp, err := newPoissonProj(p, net)
+			if err != nil {
+				b.Fatal(err)
+			}
+			opt := nn.NewAdam(pp.nconv)
+			opt.LR = 1e-2
+			for range 5 {
+				if err := pp.eval(net, true, false); err != nil {
+					b.Fatal(err)
+				}
+				opt.Step(net.Params[:pp.nconv], net.Grads[:pp.nconv])
+			}
+			b.ResetTimer()
+			var iters int
+			for range b.N {
+				if err := pp.eval(net, true, false); err != nil {
+					b.Fatal(err)
+				}
+				opt.Step(net.Params[:pp.nconv], net.Grads[:pp.nconv])
+				for _, k := range pp.iters {
+					iters += k
+				}
+			}
+			b.ReportMetric(float64(iters)/float64(b.N*n), "newton/neuron")
+		})
+	}
+}
