@@ -221,3 +221,97 @@ func (z *Normalizer) Apply(y *Matrix) {
 		}
 	}
 }
+
+// NormalizerFromStats is the z-scoring of the trials behind parts (ddof 0),
+// from their per-condition sums: no pass over the responses. The variance
+// is the sum over conditions of the within-condition sums of squares plus
+// the spread of the condition means, both in float64. A neuron whose
+// standard deviation is below 1e-6 of its mean magnitude (a few float32
+// rounding steps) or not positive counts as constant and gets Scale 1, as
+// FitNormalizer gives an exactly constant neuron.
+func NormalizerFromStats(parts ...*CondStats) *Normalizer {
+	n := parts[0].N
+	z := &Normalizer{Mean: make([]float64, n), Scale: make([]float64, n)}
+	var total float64
+	for _, st := range parts {
+		for c, k := range st.Count {
+			total += float64(k)
+			if k == 0 {
+				continue
+			}
+			sum := st.Sum[c*n : (c+1)*n]
+			for j, v := range sum {
+				z.Mean[j] += v
+			}
+		}
+	}
+	for j := range z.Mean {
+		z.Mean[j] /= total
+	}
+	for _, st := range parts {
+		for c, k := range st.Count {
+			if k == 0 {
+				continue
+			}
+			cnt := float64(k)
+			sum, sq := st.Sum[c*n:(c+1)*n], st.SumSq[c*n:(c+1)*n]
+			for j := range sum {
+				m := sum[j] / cnt
+				d := m - z.Mean[j]
+				// Within the condition around its own mean, then the
+				// condition mean around the grand mean.
+				z.Scale[j] += (sq[j] - sum[j]*m) + cnt*d*d
+			}
+		}
+	}
+	for j, ss := range z.Scale {
+		sd := math.Sqrt(max(ss, 0) / total)
+		if !(sd > 1e-6*math.Abs(z.Mean[j])) || math.IsInf(sd, 0) {
+			sd = 1
+		}
+		z.Scale[j] = sd
+	}
+	return z
+}
+
+// Affine returns the map z = (y - mu) * inv of neuron j; a nil
+// Normalizer is the identity (0, 1).
+func (z *Normalizer) Affine(j int) (mu, inv float64) {
+	if z == nil {
+		return 0, 1
+	}
+	return z.Mean[j], 1 / z.Scale[j]
+}
+
+// ApplyRow writes one trial's responses into dst in z-scored units,
+// dst[j] = (src[j] - Mean[j]) / Scale[j]; a nil Normalizer only converts.
+func (z *Normalizer) ApplyRow(dst []float64, src []float32) {
+	dst = dst[:len(src)]
+	if z == nil {
+		for j, v := range src {
+			dst[j] = float64(v)
+		}
+		return
+	}
+	mean, scale := z.Mean[:len(src)], z.Scale[:len(src)]
+	for j, v := range src {
+		dst[j] = (float64(v) - mean[j]) / scale[j]
+	}
+}
+
+// InvertRows undoes the z-scoring in place of rows of predictions laid out
+// row-major with one value per neuron (len(v) a multiple of the neuron
+// count): v = v*Scale + Mean. A nil Normalizer leaves v unchanged.
+func (z *Normalizer) InvertRows(v []float64) {
+	if z == nil {
+		return
+	}
+	n := len(z.Mean)
+	for lo := 0; lo < len(v); lo += n {
+		row := v[lo : lo+n]
+		scale, mean := z.Scale[:len(row)], z.Mean[:len(row)]
+		for j, x := range row {
+			row[j] = x*scale[j] + mean[j]
+		}
+	}
+}

@@ -136,3 +136,27 @@ func (a Activation) Backward(dz, dy, z, y []float64) {
 		}
 	}
 }
+
+// MarshalText implements encoding.TextMarshaler: the String form.
+func (a Activation) MarshalText() ([]byte, error) {
+	if a != Identity && a != Softplus && a != Exp {
+		return nil, fmt.Errorf("nn: unknown output activation %d", int(a))
+	}
+	return []byte(a.String()), nil
+}
+
+// UnmarshalText implements encoding.TextUnmarshaler: "identity",
+// "softplus" or "exp".
+func (a *Activation) UnmarshalText(b []byte) error {
+	switch string(b) {
+	case "identity":
+		*a = Identity
+	case "softplus":
+		*a = Softplus
+	case "exp":
+		*a = Exp
+	default:
+		return fmt.Errorf("%q: want identity, softplus or exp", b)
+	}
+	return nil
+}

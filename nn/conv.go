@@ -268,3 +268,27 @@ func (c Conv1D) Backward(dx, dw, db, dy, x, w []float64, rows int) {
 		}
 	}
 }
+
+// MarshalText implements encoding.TextMarshaler: the String form.
+func (b Border) MarshalText() ([]byte, error) {
+	if b != Zero && b != Circular && b != Valid {
+		return nil, fmt.Errorf("nn: unknown border %d", int(b))
+	}
+	return []byte(b.String()), nil
+}
+
+// UnmarshalText implements encoding.TextUnmarshaler: "zero", "circular"
+// or "valid".
+func (b *Border) UnmarshalText(s []byte) error {
+	switch string(s) {
+	case "zero":
+		*b = Zero
+	case "circular":
+		*b = Circular
+	case "valid":
+		*b = Valid
+	default:
+		return fmt.Errorf("%q: want zero, circular or valid", s)
+	}
+	return nil
+}

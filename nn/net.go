@@ -92,16 +92,26 @@ func NewNet(s Shape) *Net {
 // Init sets every parameter to a uniform draw from [-1/sqrt(fan_in),
 // 1/sqrt(fan_in)), with fan_in = In*K for a conv layer (weights and bias)
 // and Features for the readout: the default initialisation of torch's
-// Conv1d and Linear. Draws are taken in the order of Params.
+// Conv1d and Linear [from memory, not checked against torch]. Draws are
+// taken in the order of Params: InitConvs first, then the readout.
 func (n *Net) Init(rng *rand.Rand) {
+	n.InitConvs(rng)
+	bound := 1 / math.Sqrt(float64(n.feat))
+	uniform(rng, n.ReadW(), bound)
+	uniform(rng, n.ReadB(), bound)
+}
+
+// InitConvs draws the conv weights and biases as Init does, in the same
+// order and from the same stream, and leaves the readout untouched: a
+// solver that computes the readout itself starts from the same filters as
+// one that calls Init with an equally seeded generator, without drawing
+// (and touching the memory of) the Neurons x Features readout.
+func (n *Net) InitConvs(rng *rand.Rand) {
 	for l, c := range n.convs {
 		bound := 1 / math.Sqrt(float64(c.In*c.K))
 		uniform(rng, n.ConvW(l), bound)
 		uniform(rng, n.ConvB(l), bound)
 	}
-	bound := 1 / math.Sqrt(float64(n.feat))
-	uniform(rng, n.ReadW(), bound)
-	uniform(rng, n.ReadB(), bound)
 }
 
 func uniform(rng *rand.Rand, dst []float64, bound float64) {

@@ -3,6 +3,7 @@ package nn
 import (
 	"fmt"
 	"math"
+	"math/rand/v2"
 	"runtime"
 	"testing"
 	"time"
@@ -386,4 +387,26 @@ func TestWorkWorkersStop(t *testing.T) {
 		time.Sleep(10 * time.Millisecond)
 	}
 	t.Errorf("%d goroutines left after dropping 20 Works (base %d)", runtime.NumGoroutine(), base)
+}
+
+// TestInitConvsMatchesInit checks that InitConvs draws the conv parameters
+// exactly as Init does (same stream, same order) and leaves the readout at
+// zero.
+func TestInitConvsMatchesInit(t *testing.T) {
+	s := Shape{In: 1, Length: 20, Neurons: 7, Output: Identity,
+		Convs: []ConvSpec{{Out: 3, K: 5, Stride: 1, Border: Circular}, {Out: 2, K: 3, Stride: 2, Border: Zero}}}
+	a, b := NewNet(s), NewNet(s)
+	a.Init(rand.New(rand.NewPCG(7, 0x1417)))
+	b.InitConvs(rand.New(rand.NewPCG(7, 0x1417)))
+	nc := len(a.Params) - a.Neurons*a.Features() - a.Neurons
+	for i := 0; i < nc; i++ {
+		if a.Params[i] != b.Params[i] {
+			t.Fatalf("param %d: InitConvs %v, Init %v", i, b.Params[i], a.Params[i])
+		}
+	}
+	for i, v := range b.Params[nc:] {
+		if v != 0 {
+			t.Fatalf("readout param %d = %v after InitConvs, want 0", i, v)
+		}
+	}
 }

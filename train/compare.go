@@ -42,7 +42,7 @@ type EncoderSpec struct {
 	ReadoutL2    *float64             `yaml:"readout_l2"`
 	LearningRate *float64             `yaml:"learning_rate"`
 	WeightDecay  *float64             `yaml:"weight_decay"`
-	Solver       string               `yaml:"solver"`
+	Solver       *Solver              `yaml:"solver"`
 	Grid         map[string][]float64 `yaml:"grid"`
 }
 
@@ -109,8 +109,8 @@ func (c *Config) Specs() ([]ModelSpec, error) {
 		if e.WeightDecay != nil {
 			base.Train.WeightDecay = *e.WeightDecay
 		}
-		if e.Solver != "" {
-			base.Train.Solver = e.Solver
+		if e.Solver != nil {
+			base.Train.Solver = *e.Solver
 		}
 		keys := make([]string, 0, len(e.Grid))
 		for k, v := range e.Grid {
@@ -242,7 +242,7 @@ func RunUnit(ctx context.Context, p *Prepared, spec ModelSpec, fold int, sets [3
 		if res.Curves == nil {
 			res.Curves = PredictConditions(f.Net, p.NBins)
 		}
-		pf.unscaleCurves(res.Curves)
+		pf.Norm.InvertRows(res.Curves)
 		if p.Soft() {
 			pred = PredictTrials(f.Net, pf, sets[2])
 		}
@@ -310,7 +310,7 @@ func fitBaseline(p *Prepared, kind string) ([]float64, error) {
 			curve := make([]float64, b)
 			for j := w; j < n; j += workers {
 				pcg.Seed(p.Cfg.Seed, uint64(j))
-				mu, inv := p.zscore(j)
+				mu, inv := p.Norm.Affine(j)
 				for c := 0; c < b; c++ {
 					if st.Count[c] > 0 {
 						means[c] = (st.Sum[c*n+j]/float64(st.Count[c]) - mu) * inv

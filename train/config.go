@@ -2,13 +2,9 @@ package train
 
 import (
 	"bytes"
-	"errors"
 	"fmt"
-	"io"
 	"math"
-	"os"
 	"path/filepath"
-	"regexp"
 	"strings"
 
 	"gopkg.in/yaml.v3"
@@ -37,6 +33,9 @@ type Config struct {
 
 	// dir is the folder of the config file; relative paths resolve there.
 	dir string
+	// given holds the key paths the config file set (nil for a config
+	// built in code); Validate requires some of them.
+	given map[string]bool
 }
 
 // DataConfig says where the recording lives.
@@ -61,9 +60,9 @@ type AxisConfig struct {
 	Periodic bool    `yaml:"periodic"`
 	BinWidth float64 `yaml:"bin_width"`
 	Bins     int     `yaml:"bins"`
-	// Encoding is "onehot" (each trial's bin) or "soft" (linear
+	// Encoding is onehot (each trial's bin) or soft (linear
 	// interpolation between the two nearest bin centres).
-	Encoding string `yaml:"encoding"`
+	Encoding Encoding `yaml:"encoding"`
 }
 
 // SplitConfig controls the held-out test set, the validation part and
@@ -84,28 +83,28 @@ type SplitConfig struct {
 
 // LayerConfig is one conv layer.
 type LayerConfig struct {
-	Channels int    `yaml:"channels"`
-	Kernel   int    `yaml:"kernel"`
-	Stride   int    `yaml:"stride"`
-	Border   string `yaml:"border"`
+	Channels int         `yaml:"channels"`
+	Kernel   int         `yaml:"kernel"`
+	Stride   int         `yaml:"stride"`
+	Border   LayerBorder `yaml:"border"`
 }
 
 // ModelConfig is the shared-filter encoder.
 type ModelConfig struct {
 	Layers    []LayerConfig `yaml:"layers"`
-	Output    string        `yaml:"output"`
-	Loss      string        `yaml:"loss"`
+	Output    nn.Activation `yaml:"output"`
+	Loss      Loss          `yaml:"loss"`
 	ReadoutL2 float64       `yaml:"readout_l2"`
 }
 
 // TrainConfig is the optimiser and the stopping rule.
 type TrainConfig struct {
-	Optimizer    string  `yaml:"optimizer"`
-	LearningRate float64 `yaml:"learning_rate"`
-	Beta1        float64 `yaml:"beta1"`
-	Beta2        float64 `yaml:"beta2"`
-	Epsilon      float64 `yaml:"epsilon"`
-	WeightDecay  float64 `yaml:"weight_decay"`
+	Optimizer    Optimizer `yaml:"optimizer"`
+	LearningRate float64   `yaml:"learning_rate"`
+	Beta1        float64   `yaml:"beta1"`
+	Beta2        float64   `yaml:"beta2"`
+	Epsilon      float64   `yaml:"epsilon"`
+	WeightDecay  float64   `yaml:"weight_decay"`
 	// BatchSize 0 trains full-batch (on per-condition sums when the input
 	// is one-hot); a positive value trains on mini-batches of trials.
 	BatchSize       int `yaml:"batch_size"`
@@ -114,17 +113,17 @@ type TrainConfig struct {
 	CheckpointEvery int `yaml:"checkpoint_every"`
 	// Threads is the number of cores stria uses (GOMAXPROCS); 0 is all.
 	Threads int `yaml:"threads"`
-	// Solver is "adam" (gradient steps on all weights, the reference) or
-	// "projected" (closed-form ridge readout, filters optimised on the
+	// Solver is adam (gradient steps on all weights, the reference) or
+	// projected (closed-form ridge readout, filters optimised on the
 	// projected loss; MSE, identity output, one-hot input, full batch).
-	Solver string `yaml:"solver"`
+	Solver Solver `yaml:"solver"`
 }
 
 // Defaults returns a Config with every default filled in and no data.
 func Defaults() Config {
 	return Config{
 		Seed: 1,
-		Axis: AxisConfig{Name: "stimulus", Encoding: "onehot"},
+		Axis: AxisConfig{Name: "stimulus", Encoding: OneHot},
 		Split: SplitConfig{
 			TestFraction:       0.2,
 			ValidationFraction: 0.1,
@@ -134,12 +133,12 @@ func Defaults() Config {
 		},
 		Model: ModelConfig{
 			Layers:    []LayerConfig{{Channels: 8, Kernel: 9, Stride: 1}},
-			Output:    "identity",
-			Loss:      "mse",
+			Output:    nn.Identity,
+			Loss:      MSE,
 			ReadoutL2: 1,
 		},
 		Train: TrainConfig{
-			Optimizer:       "adam",
+			Optimizer:       OptimizerAdam,
 			LearningRate:    1e-2,
 			Beta1:           0.9,
 			Beta2:           0.999,
@@ -147,114 +146,11 @@ func Defaults() Config {
 			MaxEpochs:       3000,
 			Patience:        100,
 			CheckpointEvery: 100,
-			Solver:          "adam",
+			Solver:          SolverAdam,
 		},
 		Compare: CompareConfig{Starts: 8, SmoothLambda: 2, Output: "runs/compare"},
 		Output:  "runs/fit",
 	}
-}
-
-var yamlLine = regexp.MustCompile(`line (\d+): field (\S+) not found in type ([\w.]+)`)
-
-// LoadConfig reads a YAML config strictly: an unknown or misspelt key is an
-// error naming the key and its line. Missing keys keep their defaults.
-func LoadConfig(path string) (*Config, error) {
-	b, err := os.ReadFile(path)
-	if err != nil {
-		return nil, err
-	}
-	cfg, err := ParseConfig(b, path)
-	if err != nil {
-		return nil, err
-	}
-	abs, err := filepath.Abs(filepath.Dir(path))
-	if err != nil {
-		return nil, err
-	}
-	cfg.dir = abs
-	cfg.resolvePaths()
-	return cfg, nil
-}
-
-// resolvePaths makes every path of the config absolute, relative to the
-// config file's folder, so that the resolved config written into a run
-// folder works from anywhere.
-func (c *Config) resolvePaths() {
-	d := &c.Data
-	for _, p := range []*string{&d.Responses, &d.Stimulus, &d.Condition, &d.Block, &c.Output, &c.Compare.Output} {
-		*p = c.Resolve(*p)
-	}
-	// A recording's other paths are relative to its responses file.
-	for i := range c.Recordings {
-		c.Recordings[i].Responses = c.Resolve(c.Recordings[i].Responses)
-	}
-}
-
-// ParseConfig decodes YAML bytes over the defaults; name is used in errors.
-func ParseConfig(b []byte, name string) (*Config, error) {
-	cfg := Defaults()
-	// A layers list in the file replaces the default one rather than
-	// merging into it element by element.
-	cfg.Model.Layers = nil
-	dec := yaml.NewDecoder(bytes.NewReader(b))
-	dec.KnownFields(true)
-	// An empty file decodes to io.EOF: all defaults.
-	if err := dec.Decode(&cfg); err != nil && !errors.Is(err, io.EOF) {
-		return nil, fmt.Errorf("%s: %s", name, cleanYAMLError(err))
-	}
-	if cfg.Model.Layers == nil {
-		cfg.Model.Layers = Defaults().Model.Layers
-	}
-	for i := range cfg.Model.Layers {
-		if cfg.Model.Layers[i].Stride == 0 {
-			cfg.Model.Layers[i].Stride = 1
-		}
-	}
-	return &cfg, nil
-}
-
-func cleanYAMLError(err error) string {
-	msg := err.Error()
-	msg = strings.TrimPrefix(msg, "yaml: unmarshal errors:\n")
-	var out []string
-	for _, line := range strings.Split(msg, "\n") {
-		line = strings.TrimSpace(line)
-		if m := yamlLine.FindStringSubmatch(line); m != nil {
-			sec := sectionOf(m[3])
-			key := m[2]
-			if sec != "" {
-				key = sec + "." + key
-			}
-			out = append(out, fmt.Sprintf("line %s: unknown key %q", m[1], key))
-			continue
-		}
-		out = append(out, strings.TrimPrefix(line, "yaml: "))
-	}
-	return strings.Join(out, "; ")
-}
-
-func sectionOf(typ string) string {
-	switch strings.TrimPrefix(typ, "train.") {
-	case "DataConfig":
-		return "data"
-	case "AxisConfig":
-		return "axis"
-	case "SplitConfig":
-		return "split"
-	case "ModelConfig":
-		return "model"
-	case "LayerConfig":
-		return "model.layers[]"
-	case "TrainConfig":
-		return "train"
-	case "CompareConfig":
-		return "compare"
-	case "EncoderSpec":
-		return "compare.encoders[]"
-	case "RecordingConfig":
-		return "recordings[]"
-	}
-	return ""
 }
 
 // Resolve returns p relative to the config file's folder (unchanged if
@@ -288,25 +184,6 @@ func (c *Config) DataAxis() data.Axis {
 	return data.Axis{Name: a.Name, Unit: a.Unit, Min: a.Min, Max: a.Max, Periodic: a.Periodic, BinWidth: a.BinWidth, Bins: a.Bins}
 }
 
-// border is a layer's border mode; the default is circular on a periodic
-// axis and zero padding otherwise (METHODS.md §0 [practice]).
-func (c *Config) border(l LayerConfig) (nn.Border, error) {
-	switch l.Border {
-	case "":
-		if c.Axis.Periodic {
-			return nn.Circular, nil
-		}
-		return nn.Zero, nil
-	case "zero":
-		return nn.Zero, nil
-	case "circular":
-		return nn.Circular, nil
-	case "valid":
-		return nn.Valid, nil
-	}
-	return 0, fmt.Errorf("model.layers[].border %q: want zero, circular or valid", l.Border)
-}
-
 // Validate refuses bad settings before any work starts. Each error names
 // the field.
 func (c *Config) Validate() error {
@@ -315,17 +192,19 @@ func (c *Config) Validate() error {
 	if c.Data.Responses == "" && len(c.Recordings) == 0 {
 		bad("data.responses: no response file given (set it in the config or with --responses)")
 	}
+	if c.given != nil {
+		for _, k := range []string{"axis.min", "axis.max"} {
+			if !c.given[k] {
+				bad("%s: required (the stimulus range, e.g. min: 0 and max: 360 for directions in degrees; a range of -180 to 180 needs both)", k)
+			}
+		}
+	}
 	ax := c.DataAxis()
 	nbins := 0
 	if err := ax.Validate(); err != nil {
 		bad("%v", err)
 	} else {
 		nbins = ax.NumBins()
-	}
-	switch c.Axis.Encoding {
-	case "onehot", "soft":
-	default:
-		bad("axis.encoding %q: want onehot or soft", c.Axis.Encoding)
 	}
 	s := c.Split
 	if !(s.TestFraction > 0 && s.TestFraction < 1) {
@@ -358,11 +237,7 @@ func (c *Config) Validate() error {
 		if l.Stride < 1 {
 			bad("model.layers[%d].stride %d: want at least 1", i, l.Stride)
 		}
-		b, err := c.border(l)
-		if err != nil {
-			bad("model.layers[%d]: %v", i, err)
-			continue
-		}
+		b := l.Border.resolve(c.Axis.Periodic)
 		if length > 0 && l.Kernel >= 1 && l.Stride >= 1 {
 			if l.Kernel > length {
 				bad("model.layers[%d].kernel %d is longer than its input (%d positions)", i, l.Kernel, length)
@@ -376,32 +251,20 @@ func (c *Config) Validate() error {
 			}
 		}
 	}
-	switch m.Output {
-	case "identity", "softplus", "exp":
-	default:
-		bad("model.output %q: want identity, softplus or exp", m.Output)
-	}
 	switch m.Loss {
-	case "mse":
-	case "poisson":
-		if m.Output == "identity" {
+	case MSE:
+	case Poisson:
+		if m.Output == nn.Identity {
 			bad("model.loss poisson needs a positive output: set model.output to softplus or exp")
 		}
 		if s.ZScore {
 			bad("model.loss poisson needs the raw non-negative counts: set split.zscore: false")
 		}
-	default:
-		bad("model.loss %q: want mse or poisson", m.Loss)
 	}
 	if !(m.ReadoutL2 >= 0) || math.IsInf(m.ReadoutL2, 0) {
 		bad("model.readout_l2 %v: want a finite value >= 0", m.ReadoutL2)
 	}
 	t := c.Train
-	switch t.Optimizer {
-	case "adam", "adamw":
-	default:
-		bad("train.optimizer %q: want adam or adamw", t.Optimizer)
-	}
 	if !(t.LearningRate > 0) || math.IsInf(t.LearningRate, 0) {
 		bad("train.learning_rate %v: want a finite value > 0", t.LearningRate)
 	}
@@ -429,14 +292,8 @@ func (c *Config) Validate() error {
 	if t.CheckpointEvery < 1 {
 		bad("train.checkpoint_every %d: want at least 1", t.CheckpointEvery)
 	}
-	switch t.Solver {
-	case "adam":
-	case "projected":
-		if m.Loss != "mse" || m.Output != "identity" || c.Axis.Encoding != "onehot" || t.BatchSize != 0 {
-			bad("train.solver projected needs model.loss mse, model.output identity, axis.encoding onehot and train.batch_size 0")
-		}
-	default:
-		bad("train.solver %q: want adam or projected", t.Solver)
+	if t.Solver == SolverProjected && (m.Loss != MSE || m.Output != nn.Identity || c.Axis.Encoding != OneHot || t.BatchSize != 0) {
+		bad("train.solver projected needs model.loss mse, model.output identity, axis.encoding onehot and train.batch_size 0")
 	}
 	if t.Threads < 0 {
 		bad("train.threads %d: want 0 (all cores) or more", t.Threads)
@@ -461,17 +318,9 @@ func (c *Config) Validate() error {
 func (c *Config) Shape(nbins, neurons int) nn.Shape {
 	s := nn.Shape{In: 1, Length: nbins, Neurons: neurons}
 	for _, l := range c.Model.Layers {
-		b, _ := c.border(l)
-		s.Convs = append(s.Convs, nn.ConvSpec{Out: l.Channels, K: l.Kernel, Stride: l.Stride, Border: b})
+		s.Convs = append(s.Convs, nn.ConvSpec{Out: l.Channels, K: l.Kernel, Stride: l.Stride, Border: l.Border.resolve(c.Axis.Periodic)})
 	}
-	switch c.Model.Output {
-	case "softplus":
-		s.Output = nn.Softplus
-	case "exp":
-		s.Output = nn.Exp
-	default:
-		s.Output = nn.Identity
-	}
+	s.Output = c.Model.Output
 	return s
 }
 

@@ -44,7 +44,7 @@ func TestParseConfigDefaults(t *testing.T) {
 func validBase() Config {
 	c := Defaults()
 	c.Data.Responses = "r.npy"
-	c.Axis = AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 6, Encoding: "onehot"}
+	c.Axis = AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 6, Encoding: OneHot}
 	return c
 }
 
@@ -63,8 +63,7 @@ func TestValidateRefusesBadSettings(t *testing.T) {
 		{"second layer too long", func(c *Config) {
 			c.Model.Layers = []LayerConfig{{Channels: 4, Kernel: 9, Stride: 10}, {Channels: 4, Kernel: 7, Stride: 1}}
 		}, "model.layers[1].kernel 7 is longer than its input (6 positions)"},
-		{"poisson identity", func(c *Config) { c.Model.Loss = "poisson" }, "model.loss poisson needs a positive output"},
-		{"bad border", func(c *Config) { c.Model.Layers[0].Border = "reflect" }, `border "reflect"`},
+		{"poisson identity", func(c *Config) { c.Model.Loss = Poisson }, "model.loss poisson needs a positive output"},
 		{"no responses", func(c *Config) { c.Data.Responses = "" }, "data.responses"},
 		{"test fraction", func(c *Config) { c.Split.TestFraction = 1 }, "split.test_fraction 1"},
 		{"beta2", func(c *Config) { c.Train.Beta2 = 1 }, "train.beta2 1"},
@@ -186,5 +185,50 @@ func TestResolvedConfigRoundTrip(t *testing.T) {
 		if s1[i].Name != s2[i].Name || (s1[i].Cfg != nil && s1[i].Cfg.Model.Layers[0] != s2[i].Cfg.Model.Layers[0]) {
 			t.Errorf("spec %d: %+v then %+v", i, s1[i], s2[i])
 		}
+	}
+}
+
+// TestConfigFileMistakes checks that mistakes in a config file are refused
+// with the line and the key, before any work.
+func TestConfigFileMistakes(t *testing.T) {
+	const ok = "data: {responses: r.npy}\naxis:\n  min: 0\n  max: 360\n  periodic: true\n  bin_width: 30\n"
+	for _, tc := range []struct {
+		name, src string
+		want      []string
+	}{
+		{"wrong type", "data: {responses: r.npy}\naxis:\n  min: zero\n  max: 360\n", []string{"line 3", "axis.min", "zero"}},
+		{"wrong type in a list", ok + "model:\n  layers:\n    - channels: many\n", []string{"line 9", "model.layers[0].channels"}},
+		{"unknown word", ok + "model:\n  loss: poison\n", []string{"line 8", "model.loss", `"poison"`, "want mse or poisson"}},
+		{"unknown border", ok + "model:\n  layers:\n    - {channels: 2, kernel: 3, border: reflect}\n", []string{"line 9", "model.layers[0].border", "want auto, zero, circular or valid"}},
+		{"unknown solver in compare", ok + "compare:\n  encoders:\n    - {name: a, solver: fast}\n", []string{"compare.encoders[0].solver", `"fast"`}},
+		{"explicit stride 0", ok + "model:\n  layers:\n    - channels: 2\n      kernel: 3\n      stride: 0\n", []string{"line 11", "model.layers[0].stride 0", "leave it out"}},
+		{"no axis.min", "data: {responses: r.npy}\naxis:\n  max: 180\n  periodic: true\n  bin_width: 15\n", []string{"axis.min: required"}},
+		{"no axis.max", "data: {responses: r.npy}\naxis:\n  min: -180\n  periodic: true\n  bin_width: 15\n", []string{"axis.max: required"}},
+		{"too large", ok + "# " + strings.Repeat("x", 1<<20) + "\n", []string{"larger than 1 MB"}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			cfg, err := ParseConfig([]byte(tc.src), "x.yaml")
+			if err == nil {
+				err = cfg.Validate()
+			}
+			if err == nil {
+				t.Fatal("accepted")
+			}
+			for _, w := range tc.want {
+				if !strings.Contains(err.Error(), w) {
+					t.Errorf("error %q does not mention %s", err, w)
+				}
+			}
+		})
+	}
+	cfg, err := ParseConfig([]byte(ok+"model:\n  loss: mse\n  layers:\n    - {channels: 2, kernel: 3, border: auto}\n"), "x.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := cfg.Validate(); err != nil {
+		t.Errorf("valid config refused: %v", err)
+	}
+	if cfg.Model.Layers[0].Stride != 1 || cfg.Model.Layers[0].Border != BorderAuto {
+		t.Errorf("layer: %+v, want stride 1 and border auto", cfg.Model.Layers[0])
 	}
 }

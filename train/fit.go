@@ -3,11 +3,9 @@ package train
 import (
 	"context"
 	"errors"
-	"fmt"
 	"math"
 	"math/rand/v2"
 	"slices"
-	"time"
 
 	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/nn"
@@ -27,7 +25,10 @@ type Hooks struct {
 	// OnEpoch is called after every epoch.
 	OnEpoch func(EpochLog)
 	// Checkpoint is called every train.checkpoint_every epochs and when
-	// the context is cancelled.
+	// the context is cancelled. The Checkpoint shares the trainer's
+	// buffers: it is valid only during the call (write it out, or copy
+	// what you keep); after a cancellation training does not continue, so
+	// that last one stays valid.
 	Checkpoint func(*Checkpoint) error
 }
 
@@ -111,7 +112,7 @@ func condRows(p *Prepared, st *data.CondStats) *rowSet {
 	grand := make([]float64, n)
 	mu, inv := make([]float64, n), make([]float64, n)
 	for j := range mu {
-		mu[j], inv[j] = p.zscore(j)
+		mu[j], inv[j] = p.Norm.Affine(j)
 	}
 	for r, c := range keep {
 		rs.x[r*b+c] = 1
@@ -144,17 +145,7 @@ func trialRows(rs *rowSet, p *Prepared, trials []int) {
 	rs.rows = len(trials)
 	for i, t := range trials {
 		p.encode(rs.x[i*b:(i+1)*b], t)
-		src := p.Rec.Y.Row(t)
-		dst := rs.target[i*n : (i+1)*n]
-		if p.Norm == nil {
-			for j, v := range src {
-				dst[j] = float64(v)
-			}
-			continue
-		}
-		for j, v := range src {
-			dst[j] = (float64(v) - p.Norm.Mean[j]) / p.Norm.Scale[j]
-		}
+		p.Norm.ApplyRow(rs.target[i*n:(i+1)*n], p.Rec.Y.Row(t))
 	}
 }
 
@@ -175,7 +166,7 @@ func ssTotOf(p *Prepared, st *data.CondStats) []float64 {
 		}
 	}
 	for j := range tot {
-		_, inv := p.zscore(j)
+		_, inv := p.Norm.Affine(j)
 		tot[j] = (tot[j] - grand[j]*grand[j]/float64(trials)) * inv * inv
 	}
 	return tot
@@ -186,7 +177,6 @@ type trainer struct {
 	p      *Prepared
 	cfg    *Config
 	net    *nn.Net
-	opt    *nn.Adam
 	work   *nn.Work
 	rng    *rand.Rand
 	pcg    *rand.PCG
@@ -207,13 +197,9 @@ const chunkRows = 256
 
 func newTrainer(p *Prepared, net *nn.Net) *trainer {
 	cfg := p.Cfg
-	tr := &trainer{p: p, cfg: cfg, net: net, poiss: cfg.Model.Loss == "poisson"}
+	tr := &trainer{p: p, cfg: cfg, net: net, poiss: cfg.Model.Loss == Poisson}
 	tr.l2 = cfg.Model.ReadoutL2 / float64(p.Neurons())
-	tr.opt = nn.NewAdam(len(net.Params))
 	tc := cfg.Train
-	tr.opt.LR, tr.opt.Beta1, tr.opt.Beta2, tr.opt.Eps = tc.LearningRate, tc.Beta1, tc.Beta2, tc.Epsilon
-	tr.opt.WeightDecay = tc.WeightDecay
-	tr.opt.Decoupled = tc.Optimizer == "adamw"
 	tr.pcg = rand.NewPCG(cfg.Seed, 0x5eed)
 	tr.rng = rand.New(tr.pcg)
 	tr.chunk = chunkRows
@@ -354,8 +340,19 @@ func (tr *trainer) evalVal() (float64, float64) {
 	return loss, median(tr.r2[:k])
 }
 
-// epoch runs one epoch of training and returns the training loss.
-func (tr *trainer) epoch() float64 {
+func (tr *trainer) name() string         { return "adam" }
+func (tr *trainer) trainable() []float64 { return tr.net.Params }
+func (tr *trainer) begin() error         { return nil }
+func (tr *trainer) random() *rand.PCG    { return tr.pcg }
+
+func (tr *trainer) validate(int) (float64, float64, error) {
+	l, r2 := tr.evalVal()
+	return l, r2, nil
+}
+
+// epoch runs one epoch of training (one full-batch step, or one step per
+// mini-batch) and returns the training loss.
+func (tr *trainer) epoch(opt *nn.Adam) float64 {
 	p, tc := tr.p, tr.cfg.Train
 	n := float64(p.Neurons())
 	if tc.BatchSize == 0 {
@@ -367,7 +364,7 @@ func (tr *trainer) epoch() float64 {
 			loss = tr.sweep(p.Train, true, nil)
 		}
 		tr.penalty(true)
-		tr.opt.Step(tr.net.Params, tr.net.Grads)
+		opt.Step(tr.net.Params, tr.net.Grads)
 		return loss
 	}
 	order := slices.Clone(p.Train)
@@ -379,7 +376,7 @@ func (tr *trainer) epoch() float64 {
 		trialRows(tr.batch, p, order[lo:hi])
 		total += tr.lossGrad(tr.batch, true, 1, nil)
 		tr.penalty(true)
-		tr.opt.Step(tr.net.Params, tr.net.Grads)
+		opt.Step(tr.net.Params, tr.net.Grads)
 	}
 	return total / (float64(len(order)) * n)
 }
@@ -390,89 +387,18 @@ func (tr *trainer) epoch() float64 {
 // ErrInterrupted is returned.
 func Fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
 	cfg := p.Cfg
-	if cfg.Train.Solver == "projected" {
+	if cfg.Train.Solver == SolverProjected {
 		return fitProjected(ctx, p, hooks, resume)
 	}
 	net := nn.NewNet(cfg.Shape(p.NBins, p.Neurons()))
 	net.Init(rand.New(rand.NewPCG(cfg.Seed, 0x1417)))
 	initReadout(p, net)
 	tr := newTrainer(p, net)
-
-	st := Checkpoint{BestVal: math.Inf(1)}
-	if resume != nil {
-		if len(resume.Params) != len(net.Params) {
-			return nil, fmt.Errorf("checkpoint has %d parameters, the config's model has %d: was the config changed?", len(resume.Params), len(net.Params))
-		}
-		st = *resume
-		copy(net.Params, st.Params)
-		tr.opt.M, tr.opt.V, tr.opt.T = slices.Clone(st.M), slices.Clone(st.V), st.T
-		if err := tr.pcg.UnmarshalBinary(st.RNG); err != nil {
-			return nil, fmt.Errorf("checkpoint: random state: %w", err)
-		}
+	res, err := runEpochs(ctx, tr, cfg.Train, hooks, resume)
+	if err != nil {
+		return nil, err
 	}
-	start := time.Now()
-	offset := 0.0
-	if n := len(st.Log); n > 0 {
-		offset = st.Log[n-1].Seconds
-	}
-	snapshot := func() *Checkpoint {
-		c := st
-		c.Params = slices.Clone(net.Params)
-		c.M, c.V, c.T = slices.Clone(tr.opt.M), slices.Clone(tr.opt.V), tr.opt.T
-		c.Best = slices.Clone(st.Best)
-		c.Log = slices.Clone(st.Log)
-		c.RNG, _ = tr.pcg.MarshalBinary()
-		return &c
-	}
-	var first float64
-	if len(st.Log) > 0 {
-		first = st.Log[0].TrainLoss
-	}
-	stop := "max_epochs"
-	for st.Epoch < cfg.Train.MaxEpochs {
-		if err := ctx.Err(); err != nil {
-			if hooks.Checkpoint != nil {
-				if cerr := hooks.Checkpoint(snapshot()); cerr != nil {
-					return nil, cerr
-				}
-			}
-			return nil, fmt.Errorf("%w after epoch %d", ErrInterrupted, st.Epoch)
-		}
-		loss := tr.epoch()
-		st.Epoch++
-		if st.Epoch == 1 {
-			first = loss
-		}
-		if math.IsNaN(loss) || math.IsInf(loss, 0) || loss > 1e6*(math.Abs(first)+1e-12) {
-			return nil, fmt.Errorf("training diverged at epoch %d (loss %g, first epoch %g): try a smaller train.learning_rate (now %g)",
-				st.Epoch, loss, first, cfg.Train.LearningRate)
-		}
-		vl, vr2 := tr.evalVal()
-		e := EpochLog{Epoch: st.Epoch, TrainLoss: loss, ValLoss: vl, ValR2: vr2, Seconds: offset + time.Since(start).Seconds()}
-		st.Log = append(st.Log, e)
-		if vl < st.BestVal {
-			st.BestVal, st.BestEpoch, st.Since = vl, st.Epoch, 0
-			st.Best = append(st.Best[:0], net.Params...)
-		} else {
-			st.Since++
-		}
-		if hooks.OnEpoch != nil {
-			hooks.OnEpoch(e)
-		}
-		if st.Since >= cfg.Train.Patience {
-			stop = "patience"
-			break
-		}
-		if hooks.Checkpoint != nil && st.Epoch%cfg.Train.CheckpointEvery == 0 {
-			if err := hooks.Checkpoint(snapshot()); err != nil {
-				return nil, err
-			}
-		}
-	}
-	if st.Best != nil {
-		copy(net.Params, st.Best)
-	}
-	return &Fitted{Net: net, Log: st.Log, BestEpoch: st.BestEpoch, Stop: stop}, nil
+	return &Fitted{Net: net, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}, nil
 }
 
 // initReadout sets the readout bias to each neuron's mean training
@@ -488,7 +414,7 @@ func initReadout(p *Prepared, net *nn.Net) {
 	}
 	b := net.ReadB()
 	for j := range mean {
-		mu, inv := p.zscore(j)
+		mu, inv := p.Norm.Affine(j)
 		m := (mean[j]/float64(len(p.Train)) - mu) * inv
 		switch net.Output {
 		case nn.Exp:

@@ -36,32 +36,12 @@ func LoadModel(dir string) (*Model, error) {
 	}
 	shape := nn.Shape{In: 1, Length: mf.Axis.Bins, Neurons: mf.Neurons}
 	for i, l := range mf.Layers {
-		var bd nn.Border
-		switch l.Border {
-		case "zero":
-			bd = nn.Zero
-		case "circular":
-			bd = nn.Circular
-		case "valid":
-			bd = nn.Valid
-		default:
-			return nil, fmt.Errorf("%s: layers[%d].border %q", path, i, l.Border)
-		}
 		if l.Channels < 1 || l.Kernel < 1 || l.Stride < 1 {
 			return nil, fmt.Errorf("%s: layers[%d] has a bad shape", path, i)
 		}
-		shape.Convs = append(shape.Convs, nn.ConvSpec{Out: l.Channels, K: l.Kernel, Stride: l.Stride, Border: bd})
+		shape.Convs = append(shape.Convs, nn.ConvSpec{Out: l.Channels, K: l.Kernel, Stride: l.Stride, Border: l.Border})
 	}
-	switch mf.Output {
-	case "identity":
-		shape.Output = nn.Identity
-	case "softplus":
-		shape.Output = nn.Softplus
-	case "exp":
-		shape.Output = nn.Exp
-	default:
-		return nil, fmt.Errorf("%s: output %q", path, mf.Output)
-	}
+	shape.Output = mf.Output
 	if len(shape.Convs) == 0 || mf.Axis.Bins < 1 || mf.Neurons < 1 {
 		return nil, fmt.Errorf("%s: no layers, bins or neurons", path)
 	}
@@ -131,7 +111,7 @@ func (m *Model) Predict(stim []float64) (*data.Matrix, error) {
 		for i, v := range stim[lo:hi] {
 			dst := x[i*nb : (i+1)*nb]
 			var err error
-			if m.Manifest.Axis.Encoding == "soft" {
+			if m.Manifest.Axis.Encoding == Soft {
 				err = ax.Soft(dst, v)
 			} else {
 				err = ax.OneHot(dst, v)

@@ -63,7 +63,7 @@ func TestOneHotConvMatchesNet(t *testing.T) {
 // largest prediction: the same quantity, summed in another order.
 func TestProjectedCurves(t *testing.T) {
 	p, _ := synthPrepared(t, 150, 900, func(c *Config) {
-		c.Train.Solver = "projected"
+		c.Train.Solver = SolverProjected
 		c.Train.MaxEpochs = 30
 		c.Axis.BinWidth = 12
 	})

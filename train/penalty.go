@@ -364,7 +364,7 @@ func trainWithinN(p *Prepared) []float64 {
 		}
 	}
 	for n := range out {
-		_, inv := p.zscore(n)
+		_, inv := p.Norm.Affine(n)
 		out[n] *= inv * inv
 	}
 	return out

@@ -4,7 +4,6 @@ import (
 	"math"
 	"slices"
 	"testing"
-
 )
 
 // TestRidgePath checks the eigen-basis penalty path against the projector's
@@ -15,7 +14,7 @@ import (
 // readout with one penalty for all neurons must equal projector.readout's
 // weights, bias and curves.
 func TestRidgePath(t *testing.T) {
-	p, net := projectedCase(t, "circular", 1)
+	p, net := projectedCase(t, BorderCircular, 1)
 	pj, err := newProjector(p, net)
 	if err != nil {
 		t.Fatal(err)

@@ -155,9 +155,6 @@ func (c *Config) expandRecordings() ([]Recording, error) {
 			cfg.Data.Block = rel(rc.Block)
 			if rc.Axis != nil {
 				cfg.Axis = *rc.Axis
-				if cfg.Axis.Encoding == "" {
-					cfg.Axis.Encoding = "onehot"
-				}
 			}
 			if err := cfg.Validate(); err != nil {
 				return nil, fmt.Errorf("recording %s (%s): %w", name, field, err)

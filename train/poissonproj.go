@@ -117,7 +117,7 @@ const (
 // a softplus or exp output on raw (not z-scored) one-hot data.
 func newPoissonProj(p *Prepared, net *nn.Net) (*poissonProj, error) {
 	cfg := p.Cfg
-	if cfg.Model.Loss != "poisson" || p.Norm != nil || p.Soft() {
+	if cfg.Model.Loss != Poisson || p.Norm != nil || p.Soft() {
 		return nil, fmt.Errorf("train: the Poisson fast path needs model.loss poisson, split.zscore false and axis.encoding onehot")
 	}
 	if net.Output != nn.Softplus && net.Output != nn.Exp {

@@ -17,7 +17,7 @@ import (
 
 // poissonCase is a small spike-count recording (30 conditions, 3 channels,
 // stride 2: F 45 > Bt 30, the full-size situation) with random filters.
-func poissonCase(t *testing.T, output string, l2 float64) (*Prepared, *nn.Net) {
+func poissonCase(t *testing.T, output nn.Activation, l2 float64) (*Prepared, *nn.Net) {
 	t.Helper()
 	p, _ := popPrepared(t, popSpec{Neurons: 9, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, RareBins: 3, Seed: 5},
 		func(c *Config) {
@@ -39,10 +39,10 @@ func poissonCase(t *testing.T, output string, l2 float64) (*Prepared, *nn.Net) {
 // gradient must vanish.
 func TestPoissonReadoutBFGS(t *testing.T) {
 	for _, tc := range []struct {
-		output string
+		output nn.Activation
 		l2     float64
-	}{{"softplus", 0.05}, {"exp", 0.05}, {"softplus", 2}} {
-		t.Run(tc.output, func(t *testing.T) {
+	}{{nn.Softplus, 0.05}, {nn.Exp, 0.05}, {nn.Softplus, 2}} {
+		t.Run(tc.output.String(), func(t *testing.T) {
 			p, net := poissonCase(t, tc.output, tc.l2)
 			pp, err := newPoissonProj(p, net)
 			if err != nil {
@@ -200,8 +200,8 @@ func TestPoissonReadoutBFGS(t *testing.T) {
 // re-solving every neuron's readout, and against the adam path's filter
 // gradient at the optimal readout.
 func TestPoissonProjGradient(t *testing.T) {
-	for _, output := range []string{"softplus", "exp"} {
-		t.Run(output, func(t *testing.T) {
+	for _, output := range []nn.Activation{nn.Softplus, nn.Exp} {
+		t.Run(output.String(), func(t *testing.T) {
 			p, net := poissonCase(t, output, 0.05)
 			pp, err := newPoissonProj(p, net)
 			if err != nil {
@@ -264,7 +264,7 @@ func maxAbs(x []float64) float64 {
 // the per-bin rate predictions of the best filters and the epochs run.
 func fitPoissonFast(t testing.TB, p *Prepared) ([]float64, int) {
 	net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
-	initConv(net, rand.New(rand.NewPCG(p.Cfg.Seed, 0x1417)))
+	net.InitConvs(rand.New(rand.NewPCG(p.Cfg.Seed, 0x1417)))
 	pp, err := newPoissonProj(p, net)
 	if err != nil {
 		t.Fatal(err)

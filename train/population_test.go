@@ -117,10 +117,10 @@ func popPrepared(t testing.TB, s popSpec, edit func(*Config)) (*Prepared, []floa
 	rec, truth := makePopulation(s)
 	cfg := Defaults()
 	cfg.Data.Responses = "synthetic"
-	cfg.Axis = AxisConfig{Name: "direction", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 360 / float64(s.Bins), Encoding: "onehot"}
+	cfg.Axis = AxisConfig{Name: "direction", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 360 / float64(s.Bins), Encoding: OneHot}
 	cfg.Split.KeepBlocks = false
 	if s.Poisson {
-		cfg.Model.Loss, cfg.Model.Output, cfg.Split.ZScore = "poisson", "softplus", false
+		cfg.Model.Loss, cfg.Model.Output, cfg.Split.ZScore = Poisson, nn.Softplus, false
 	}
 	if edit != nil {
 		edit(&cfg)
@@ -222,12 +222,7 @@ func nanMedian(x []float64) float64 {
 // condPred returns the net's per-bin predictions in recording units.
 func condPred(net *nn.Net, p *Prepared) []float64 {
 	out := PredictConditions(net, p.NBins)
-	if p.Norm != nil {
-		N := p.Neurons()
-		for lo := 0; lo < len(out); lo += N {
-			unscale(out[lo:lo+N], p.Norm.Scale, p.Norm.Mean)
-		}
-	}
+	p.Norm.InvertRows(out)
 	return out
 }
 

@@ -2,7 +2,6 @@ package train
 
 import (
 	"fmt"
-	"math"
 
 	"github.com/strialab/stria/data"
 )
@@ -86,7 +85,7 @@ func PrepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
 		return nil, fmt.Errorf("validation split: %w", err)
 	}
 	if cfg.Split.ZScore {
-		p.Norm = normFromStats(p.TrainStats(), p.ValStats())
+		p.Norm = data.NormalizerFromStats(p.TrainStats(), p.ValStats())
 	}
 	return p, nil
 }
@@ -100,7 +99,7 @@ func (p *Prepared) WithSplit(train, val, test []int) *Prepared {
 	q.trainSt, q.valSt = nil, nil
 	q.Norm = nil
 	if p.Cfg.Split.ZScore {
-		q.Norm = normFromStats(q.TrainStats(), q.ValStats())
+		q.Norm = data.NormalizerFromStats(q.TrainStats(), q.ValStats())
 	}
 	return &q
 }
@@ -119,67 +118,6 @@ func (p *Prepared) ValStats() *data.CondStats {
 		p.valSt = data.NewCondStats(p.Rec.Y, p.Cond, p.Val, p.NBins)
 	}
 	return p.valSt
-}
-
-// normFromStats is the z-scoring of the trials behind a and b (ddof 0),
-// from their per-condition sums: no pass over the responses. The variance
-// is the sum over conditions of the within-condition sums of squares plus
-// the spread of the condition means, both in float64. A neuron whose
-// standard deviation is below 1e-6 of its mean magnitude (a few float32
-// rounding steps) or not positive counts as constant and gets Scale 1, as
-// data.FitNormalizer gives an exactly constant neuron.
-func normFromStats(a, b *data.CondStats) *data.Normalizer {
-	n := a.N
-	z := &data.Normalizer{Mean: make([]float64, n), Scale: make([]float64, n)}
-	var total float64
-	for _, st := range []*data.CondStats{a, b} {
-		for c, k := range st.Count {
-			total += float64(k)
-			if k == 0 {
-				continue
-			}
-			sum := st.Sum[c*n : (c+1)*n]
-			for j, v := range sum {
-				z.Mean[j] += v
-			}
-		}
-	}
-	for j := range z.Mean {
-		z.Mean[j] /= total
-	}
-	for _, st := range []*data.CondStats{a, b} {
-		for c, k := range st.Count {
-			if k == 0 {
-				continue
-			}
-			cnt := float64(k)
-			sum, sq := st.Sum[c*n:(c+1)*n], st.SumSq[c*n:(c+1)*n]
-			for j := range sum {
-				m := sum[j] / cnt
-				d := m - z.Mean[j]
-				// Within the condition around its own mean, then the
-				// condition mean around the grand mean.
-				z.Scale[j] += (sq[j] - sum[j]*m) + cnt*d*d
-			}
-		}
-	}
-	for j, ss := range z.Scale {
-		sd := math.Sqrt(max(ss, 0) / total)
-		if !(sd > 1e-6*math.Abs(z.Mean[j])) || math.IsInf(sd, 0) {
-			sd = 1
-		}
-		z.Scale[j] = sd
-	}
-	return z
-}
-
-// zscore returns the affine map y' = (y - mu) * inv of neuron j (0 and 1
-// without z-scoring).
-func (p *Prepared) zscore(j int) (mu, inv float64) {
-	if p.Norm == nil {
-		return 0, 1
-	}
-	return p.Norm.Mean[j], 1 / p.Norm.Scale[j]
 }
 
 // carve splits the trials in sub into a training and a validation part,
@@ -217,7 +155,7 @@ func (p *Prepared) Neurons() int { return p.Rec.Y.Cols }
 
 // Soft reports whether trials are encoded by linear interpolation between
 // bin centres rather than one-hot.
-func (p *Prepared) Soft() bool { return p.Cfg.Axis.Encoding == "soft" }
+func (p *Prepared) Soft() bool { return p.Cfg.Axis.Encoding == Soft }
 
 // encode writes the model input for trial t (NBins values) into dst.
 func (p *Prepared) encode(dst []float64, t int) {

@@ -5,8 +5,6 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
-	"slices"
-	"time"
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
@@ -141,7 +139,7 @@ func newProjector(p *Prepared, net *nn.Net) (*projector, error) {
 	// centred mean scales by inv, a sum of squared deviations by inv^2.
 	mu, inv := make([]float64, N), make([]float64, N)
 	for n := range mu {
-		mu[n], inv[n] = p.zscore(n)
+		mu[n], inv[n] = p.Norm.Affine(n)
 	}
 	pj.ymean = make([]float64, N)
 	pj.yc = make([]float64, Bt*N)
@@ -531,23 +529,7 @@ func (pj *projector) curves() []float64 {
 	return out
 }
 
-// initConv draws the conv parameters exactly as nn.Net.Init does (uniform
-// on [-1/sqrt(In K), 1/sqrt(In K)), in the order of Params), so that the
-// projected and the adam path start from the same filters, without drawing
-// (and touching) the N x F readout.
-func initConv(net *nn.Net, rng *rand.Rand) {
-	for l := range net.Convs {
-		c := net.Conv(l)
-		bound := 1 / math.Sqrt(float64(c.In*c.K))
-		for _, dst := range [][]float64{net.ConvW(l), net.ConvB(l)} {
-			for i := range dst {
-				dst[i] = bound * (2*rng.Float64() - 1)
-			}
-		}
-	}
-}
-
-// fitProjected trains with the closed-form readout (METHODS.md §8,
+// fitProjected trains with the closed-form readout (eval/methods.md §8,
 // variable projection; see the comment at the top of this file). Only the
 // filters (conv weights and biases) are optimised, with Adam and the
 // config's train settings, on the projected objective; each epoch is one
@@ -566,104 +548,19 @@ func initConv(net *nn.Net, rng *rand.Rand) {
 func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
 	cfg := p.Cfg
 	net := nn.NewNet(cfg.Shape(p.NBins, p.Neurons()))
-	initConv(net, rand.New(rand.NewPCG(cfg.Seed, 0x1417)))
+	net.InitConvs(rand.New(rand.NewPCG(cfg.Seed, 0x1417)))
 	pj, err := newProjector(p, net)
 	if err != nil {
 		return nil, err
 	}
-	nc := pj.nconv
-	params, grads := net.Params[:nc], net.Grads[:nc]
-	opt := nn.NewAdam(nc)
-	tc := cfg.Train
-	opt.LR, opt.Beta1, opt.Beta2, opt.Eps = tc.LearningRate, tc.Beta1, tc.Beta2, tc.Epsilon
-	opt.WeightDecay = tc.WeightDecay
-	opt.Decoupled = tc.Optimizer == "adamw"
-
-	st := Checkpoint{BestVal: math.Inf(1)}
-	if resume != nil {
-		if len(resume.Params) != nc || len(resume.M) != nc || len(resume.V) != nc {
-			return nil, fmt.Errorf("checkpoint has %d parameters, the projected solver of this config has %d filter parameters: was the config changed?", len(resume.Params), nc)
-		}
-		st = *resume
-		copy(params, st.Params)
-		opt.M, opt.V, opt.T = slices.Clone(st.M), slices.Clone(st.V), st.T
-	}
-	start := time.Now()
-	offset := 0.0
-	if n := len(st.Log); n > 0 {
-		offset = st.Log[n-1].Seconds
-	}
-	snapshot := func() *Checkpoint {
-		c := st
-		c.Params = slices.Clone(params)
-		c.M, c.V, c.T = slices.Clone(opt.M), slices.Clone(opt.V), opt.T
-		c.Best = slices.Clone(st.Best)
-		c.Log = slices.Clone(st.Log)
-		c.RNG = nil
-		return &c
-	}
-	var first float64
-	if len(st.Log) > 0 {
-		first = st.Log[0].TrainLoss
-	}
-	if err := pj.eval(net, true, false); err != nil {
+	s := &projectedSolver{pj: pj, net: net}
+	res, err := runEpochs(ctx, s, cfg.Train, hooks, resume)
+	if err != nil {
 		return nil, err
 	}
-	stop := "max_epochs"
-	for st.Epoch < tc.MaxEpochs {
-		if err := ctx.Err(); err != nil {
-			if hooks.Checkpoint != nil {
-				if cerr := hooks.Checkpoint(snapshot()); cerr != nil {
-					return nil, cerr
-				}
-			}
-			return nil, fmt.Errorf("%w after epoch %d", ErrInterrupted, st.Epoch)
-		}
-		loss := pj.loss
-		opt.Step(params, grads)
-		st.Epoch++
-		if st.Epoch == 1 {
-			first = loss
-		}
-		if math.IsNaN(loss) || math.IsInf(loss, 0) || loss > 1e6*(first+1e-12) {
-			return nil, fmt.Errorf("training diverged at epoch %d (loss %g, first epoch %g): try a smaller train.learning_rate (now %g)",
-				st.Epoch, loss, first, tc.LearningRate)
-		}
-		r2 := st.Epoch == 1 || st.Epoch%pj.r2Every == 0
-		if err := pj.eval(net, true, r2); err != nil {
-			return nil, fmt.Errorf("%w at epoch %d: try a smaller train.learning_rate (now %g)", err, st.Epoch, tc.LearningRate)
-		}
-		e := EpochLog{Epoch: st.Epoch, TrainLoss: loss, ValLoss: pj.val, ValR2: pj.vr2, Seconds: offset + time.Since(start).Seconds()}
-		if pj.Bv == 0 {
-			// No validation trials: stop on the training objective.
-			e.ValLoss = pj.obj
-		}
-		st.Log = append(st.Log, e)
-		if e.ValLoss < st.BestVal {
-			st.BestVal, st.BestEpoch, st.Since = e.ValLoss, st.Epoch, 0
-			st.Best = append(st.Best[:0], params...)
-		} else {
-			st.Since++
-		}
-		if hooks.OnEpoch != nil {
-			hooks.OnEpoch(e)
-		}
-		if st.Since >= tc.Patience {
-			stop = "patience"
-			break
-		}
-		if hooks.Checkpoint != nil && st.Epoch%tc.CheckpointEvery == 0 {
-			if err := hooks.Checkpoint(snapshot()); err != nil {
-				return nil, err
-			}
-		}
-	}
-	if st.Best != nil {
-		copy(params, st.Best)
-	}
 	// The best epoch always carries its R^2, even when r2Every skipped it.
-	for i := range st.Log {
-		if e := &st.Log[i]; e.Epoch == st.BestEpoch && math.IsNaN(e.ValR2) && pj.Bv > 0 {
+	for i := range res.log {
+		if e := &res.log[i]; e.Epoch == res.bestEpoch && math.IsNaN(e.ValR2) && pj.Bv > 0 {
 			if err := pj.eval(net, false, true); err != nil {
 				return nil, err
 			}
@@ -673,5 +570,40 @@ func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpo
 	if err := pj.readout(net); err != nil {
 		return nil, err
 	}
-	return &Fitted{Net: net, Log: st.Log, BestEpoch: st.BestEpoch, Stop: stop, Curves: pj.curves()}, nil
+	return &Fitted{Net: net, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop, Curves: pj.curves()}, nil
+}
+
+// projectedSolver plugs the projector into the epoch loop: the optimiser
+// moves the conv parameters along the gradient of the projected objective
+// that the last eval left in the net's conv gradients.
+type projectedSolver struct {
+	pj  *projector
+	net *nn.Net
+}
+
+func (s *projectedSolver) name() string         { return "projected" }
+func (s *projectedSolver) trainable() []float64 { return s.net.Params[:s.pj.nconv] }
+func (s *projectedSolver) random() *rand.PCG    { return nil }
+
+// begin evaluates the starting filters: their loss and gradient feed the
+// first step.
+func (s *projectedSolver) begin() error { return s.pj.eval(s.net, true, false) }
+
+func (s *projectedSolver) epoch(opt *nn.Adam) float64 {
+	loss := s.pj.loss
+	opt.Step(s.net.Params[:s.pj.nconv], s.net.Grads[:s.pj.nconv])
+	return loss
+}
+
+func (s *projectedSolver) validate(epoch int) (float64, float64, error) {
+	pj := s.pj
+	r2 := epoch == 1 || (pj.r2Every > 0 && epoch%pj.r2Every == 0)
+	if err := pj.eval(s.net, true, r2); err != nil {
+		return 0, 0, err
+	}
+	if pj.Bv == 0 {
+		// No validation trials: stop on the training objective.
+		return pj.obj, pj.vr2, nil
+	}
+	return pj.val, pj.vr2, nil
 }

@@ -16,13 +16,13 @@ import (
 // projectedCase builds a small prepared recording and a net with random
 // filters for the projected solver; stride 2 makes F (45) larger than the
 // number of conditions (30), the full-size situation.
-func projectedCase(t *testing.T, border string, l2 float64) (*Prepared, *nn.Net) {
+func projectedCase(t *testing.T, border LayerBorder, l2 float64) (*Prepared, *nn.Net) {
 	t.Helper()
 	p, _ := synthPrepared(t, 40, 400, func(c *Config) {
 		c.Model.Layers = []LayerConfig{{Channels: 3, Kernel: 5, Stride: 2, Border: border}}
 		c.Axis.BinWidth = 12
 		c.Model.ReadoutL2 = l2
-		c.Train.Solver = "projected"
+		c.Train.Solver = SolverProjected
 	})
 	net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
 	net.Init(rand.New(rand.NewPCG(3, 4)))
@@ -40,10 +40,10 @@ func projectedCase(t *testing.T, border string, l2 float64) (*Prepared, *nn.Net)
 //     validation loss and median R^2 must equal trainer.evalVal's.
 func TestProjectedGradient(t *testing.T) {
 	for _, tc := range []struct {
-		border string
+		border LayerBorder
 		l2     float64
-	}{{"circular", 1}, {"zero", 0.05}, {"valid", 20}} {
-		t.Run(tc.border, func(t *testing.T) {
+	}{{BorderCircular, 1}, {BorderZero, 0.05}, {BorderValid, 20}} {
+		t.Run(tc.border.String(), func(t *testing.T) {
 			p, net := projectedCase(t, tc.border, tc.l2)
 			pj, err := newProjector(p, net)
 			if err != nil {
@@ -125,22 +125,8 @@ func TestProjectedGradient(t *testing.T) {
 	}
 }
 
-// TestInitConvMatchesNet checks that initConv draws the filters exactly as
-// nn.Net.Init (the reference: nn's torch-default initialisation).
-func TestInitConvMatchesNet(t *testing.T) {
-	p, _ := projectedCase(t, "circular", 1)
-	a := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
-	b := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
-	a.Init(rand.New(rand.NewPCG(7, 0x1417)))
-	initConv(b, rand.New(rand.NewPCG(7, 0x1417)))
-	nc := len(a.Params) - a.Neurons*a.Features() - a.Neurons
-	if !slices.Equal(a.Params[:nc], b.Params[:nc]) {
-		t.Error("initConv filters differ from nn.Net.Init's")
-	}
-}
-
 func TestProjectedNeedsPenalty(t *testing.T) {
-	p, _ := projectedCase(t, "circular", 0)
+	p, _ := projectedCase(t, BorderCircular, 0)
 	_, err := Fit(context.Background(), p, Hooks{}, nil)
 	if err == nil || !strings.Contains(err.Error(), "readout_l2") {
 		t.Fatalf("readout_l2 0: got %v, want an error naming model.readout_l2", err)
@@ -154,12 +140,12 @@ func TestProjectedNeedsPenalty(t *testing.T) {
 // median over 300 neurons is larger than that, so the margin only allows
 // for the two optimisers stopping at slightly different filters).
 func TestProjectedVsAdam(t *testing.T) {
-	fit := func(solver string) (float64, *Fitted) {
+	fit := func(solver Solver) (float64, *Fitted) {
 		p, _ := synthPrepared(t, 300, 1500, func(c *Config) {
 			c.Train.Solver = solver
 			c.Train.MaxEpochs = 2000
 			c.Train.Patience = 50
-			if solver == "adam" {
+			if solver == SolverAdam {
 				c.Train.BatchSize = 64
 				c.Train.LearningRate = 1e-3
 			}
@@ -175,8 +161,8 @@ func TestProjectedVsAdam(t *testing.T) {
 		}
 		return median(r2), f
 	}
-	ra, fa := fit("adam")
-	rp, fp := fit("projected")
+	ra, fa := fit(SolverAdam)
+	rp, fp := fit(SolverProjected)
 	t.Logf("held-out median R2: adam (batch 64) %.5f in %d epochs; projected %.5f in %d epochs", ra, len(fa.Log), rp, len(fp.Log))
 	if rp < ra-0.002 {
 		t.Errorf("projected median test R2 %.5f is below the adam path's %.5f by more than 0.002", rp, ra)
@@ -187,7 +173,7 @@ func TestProjectedVsAdam(t *testing.T) {
 // checkpoint: the weights must equal those of an uninterrupted fit.
 func TestProjectedResume(t *testing.T) {
 	edit := func(c *Config) {
-		c.Train.Solver = "projected"
+		c.Train.Solver = SolverProjected
 		c.Train.MaxEpochs = 40
 		c.Train.Patience = 1000
 		c.Train.CheckpointEvery = 7
@@ -245,7 +231,7 @@ func TestProjectedResume(t *testing.T) {
 func benchPrepared(b *testing.B, neurons, trials int) *Prepared {
 	b.Helper()
 	p, _ := synthPrepared(b, neurons, trials, func(c *Config) {
-		c.Train.Solver = "projected"
+		c.Train.Solver = SolverProjected
 		c.Train.MaxEpochs = 3000
 		c.Train.Patience = 100
 	})
@@ -261,7 +247,7 @@ func BenchmarkProjectedEpoch(b *testing.B) {
 		b.Run(fmt.Sprintf("neurons=%d", n), func(b *testing.B) {
 			p := benchPrepared(b, n, 1200)
 			net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
-			initConv(net, rand.New(rand.NewPCG(1, 2)))
+			net.InitConvs(rand.New(rand.NewPCG(1, 2)))
 			pj, err := newProjector(p, net)
 			if err != nil {
 				b.Fatal(err)
@@ -284,7 +270,7 @@ func BenchmarkProjectedValR2(b *testing.B) {
 		b.Run(fmt.Sprintf("neurons=%d", n), func(b *testing.B) {
 			p := benchPrepared(b, n, 1200)
 			net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
-			initConv(net, rand.New(rand.NewPCG(1, 2)))
+			net.InitConvs(rand.New(rand.NewPCG(1, 2)))
 			pj, err := newProjector(p, net)
 			if err != nil {
 				b.Fatal(err)

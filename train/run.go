@@ -84,11 +84,11 @@ type Array struct {
 
 // LayerInfo describes one conv layer in the manifest.
 type LayerInfo struct {
-	Channels int    `json:"channels"`
-	Kernel   int    `json:"kernel"`
-	Stride   int    `json:"stride"`
-	Border   string `json:"border"`
-	OutLen   int    `json:"out_len"`
+	Channels int       `json:"channels"`
+	Kernel   int       `json:"kernel"`
+	Stride   int       `json:"stride"`
+	Border   nn.Border `json:"border"`
+	OutLen   int       `json:"out_len"`
 }
 
 // Manifest is model.json: what is needed to rebuild the model and read its
@@ -101,8 +101,8 @@ type Manifest struct {
 	Seed     uint64            `json:"seed"`
 	Axis     AxisInfo          `json:"axis"`
 	Layers   []LayerInfo       `json:"layers"`
-	Output   string            `json:"output"`
-	Loss     string            `json:"loss"`
+	Output   nn.Activation     `json:"output"`
+	Loss     Loss              `json:"loss"`
 	Neurons  int               `json:"neurons"`
 	Features int               `json:"features"`
 	Arrays   map[string]Array  `json:"arrays"`
@@ -120,7 +120,7 @@ type AxisInfo struct {
 	Max      float64   `json:"max"`
 	Periodic bool      `json:"periodic"`
 	Bins     int       `json:"bins"`
-	Encoding string    `json:"encoding"`
+	Encoding Encoding  `json:"encoding"`
 	Edges    []float64 `json:"bin_edges"`
 	Centers  []float64 `json:"bin_centers"`
 }
@@ -128,16 +128,6 @@ type AxisInfo struct {
 // DataAxis is the axis as a data.Axis.
 func (a AxisInfo) DataAxis() data.Axis {
 	return data.Axis{Name: a.Name, Unit: a.Unit, Min: a.Min, Max: a.Max, Periodic: a.Periodic, Bins: a.Bins}
-}
-
-func borderName(b nn.Border) string {
-	switch b {
-	case nn.Circular:
-		return "circular"
-	case nn.Valid:
-		return "valid"
-	}
-	return "zero"
 }
 
 // Summary is summary.json.
@@ -326,7 +316,7 @@ func WriteModel(dir string, p *Prepared, f *Fitted) error {
 	}
 	in := net.In
 	for i, c := range net.Convs {
-		m.Layers = append(m.Layers, LayerInfo{Channels: c.Out, Kernel: c.K, Stride: c.Stride, Border: borderName(c.Border), OutLen: net.OutLen(i)})
+		m.Layers = append(m.Layers, LayerInfo{Channels: c.Out, Kernel: c.K, Stride: c.Stride, Border: c.Border, OutLen: net.OutLen(i)})
 		if err := saveArray(dir, &m, fmt.Sprintf("conv%d_weight", i), []int{c.Out, in, c.K}, net.ConvW(i)); err != nil {
 			return err
 		}

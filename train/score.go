@@ -29,22 +29,8 @@ func PredictConditions(net *nn.Net, nbins int) []float64 {
 // len(trials) x N, in the recording's units (z-scoring undone).
 func PredictTrials(net *nn.Net, p *Prepared, trials []int) []float64 {
 	out := predictTrials(net, p, trials)
-	if p.Norm != nil {
-		n := p.Neurons()
-		for lo := 0; lo < len(out); lo += n {
-			unscale(out[lo:lo+n], p.Norm.Scale, p.Norm.Mean)
-		}
-	}
+	p.Norm.InvertRows(out)
 	return out
-}
-
-// unscale undoes the z-scoring of one row of predictions in place:
-// row[j] = row[j]*scale[j] + mean[j].
-func unscale(row, scale, mean []float64) {
-	scale, mean = scale[:len(row)], mean[:len(row)]
-	for j, v := range row {
-		row[j] = v*scale[j] + mean[j]
-	}
 }
 
 // predictTrials is PredictTrials in the units the net was trained in.
@@ -84,7 +70,7 @@ func ScoreNet(p *Prepared, net *nn.Net) []eval.Scores {
 		return Score(p, PredictTrials(net, p, p.Test))
 	}
 	pc := PredictConditions(net, p.NBins)
-	p.unscaleCurves(pc)
+	p.Norm.InvertRows(pc)
 	return ScoreCurves(p, pc)
 }
 
@@ -95,20 +81,8 @@ func ScoreFitted(p *Prepared, f *Fitted) []eval.Scores {
 		return ScoreNet(p, f.Net)
 	}
 	pc := slices.Clone(f.Curves)
-	p.unscaleCurves(pc)
+	p.Norm.InvertRows(pc)
 	return ScoreCurves(p, pc)
-}
-
-// unscaleCurves undoes the z-scoring of per-bin predictions (nbins x N)
-// in place.
-func (p *Prepared) unscaleCurves(pc []float64) {
-	if p.Norm == nil {
-		return
-	}
-	n := p.Neurons()
-	for lo := 0; lo < len(pc); lo += n {
-		unscale(pc[lo:lo+n], p.Norm.Scale, p.Norm.Mean)
-	}
 }
 
 // ScoreCurves scores a one-hot model's predictions (nbins x N, recording

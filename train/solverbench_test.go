@@ -16,7 +16,7 @@ import (
 // encoder.
 func penaltyPopulation(b *testing.B, noise float64) (*Prepared, []float64) {
 	return popPrepared(b, popSpec{Neurons: 2000, Trials: 3000, Bins: 60, GainSD: 0.2, NoiseSD: noise, UntunedFrac: 0.1, RareBins: 6, Seed: 31},
-		func(c *Config) { c.Train.Solver = "projected"; c.Train.MaxEpochs = 3000; c.Train.Patience = 100 })
+		func(c *Config) { c.Train.Solver = SolverProjected; c.Train.MaxEpochs = 3000; c.Train.Patience = 100 })
 }
 
 // trainProjected trains the filters of a projected fit; every 'every'
@@ -24,7 +24,7 @@ func penaltyPopulation(b *testing.B, noise float64) (*Prepared, []float64) {
 // projector at the best filters and the epochs run.
 func trainProjected(b *testing.B, p *Prepared, every int, choose func(pj *projector, net *nn.Net)) (*nn.Net, *projector, int) {
 	net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
-	initConv(net, rand.New(rand.NewPCG(p.Cfg.Seed, 0x1417)))
+	net.InitConvs(rand.New(rand.NewPCG(p.Cfg.Seed, 0x1417)))
 	pj, err := newProjector(p, net)
 	if err != nil {
 		b.Fatal(err)
@@ -56,12 +56,7 @@ func benchPenalty(b *testing.B, noise float64) {
 	p, truth := penaltyPopulation(b, noise)
 	cm, or := testR2(p, condMeanPred(p)), testR2(p, truth)
 	gap := func(name string, pred []float64) {
-		if p.Norm != nil {
-			N := p.Neurons()
-			for lo := 0; lo < len(pred); lo += N {
-				unscale(pred[lo:lo+N], p.Norm.Scale, p.Norm.Mean)
-			}
-		}
+		p.Norm.InvertRows(pred)
 		r2 := testR2(p, pred)
 		b.ReportMetric(gapShare(r2, cm, or), "gap_"+name)
 		b.Logf("%-22s gap share %.4f, median test R2 %.5f", name, gapShare(r2, cm, or), nanMedian(r2))
@@ -223,7 +218,7 @@ func BenchmarkPoissonEpoch(b *testing.B) {
 		b.Run(fmt.Sprintf("neurons=%d", n), func(b *testing.B) {
 			p, _ := popPrepared(b, popSpec{Neurons: n, Trials: 1200, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, Seed: 41}, nil)
 			net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
-			initConv(net, rand.New(rand.NewPCG(1, 2)))
+			net.InitConvs(rand.New(rand.NewPCG(1, 2)))
 			pp, err := newPoissonProj(p, net)
 			if err != nil {
 				b.Fatal(err)

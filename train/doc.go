@@ -1,0 +1,28 @@
+// Package train fits stria's encoders in memory: the typed config (read
+// once from YAML, checked by Validate), preparation of a recording (bins,
+// checks, the split, z-scoring), the epoch loop that every solver plugs
+// into, the two solvers, and the glue that scores a fit on its test
+// trials. It reads recordings through package data and writes no files;
+// the on-disk format of run and comparison folders lives in
+// train/runfolder, comparisons in train/compare, figures and reports in
+// train/export.
+//
+// Conventions:
+//   - Letters: T trials, N neurons, B stimulus bins (conditions), F features
+//     of the last conv layer (channels x positions), W training trials.
+//   - Matrices are row-major flat slices: predictions per bin are B x N,
+//     per trial T x N; responses stay float32 in the recording's units.
+//   - Words from the config (loss, output, border, encoding, optimizer,
+//     solver) are typed values (Loss, Encoding, ...); code switches on
+//     them and never compares strings.
+//   - With split.zscore the trainer works in z-scored units
+//     (data.Normalizer, fitted on the training and validation trials);
+//     every prediction handed out of this package is in the recording's
+//     units again (Normalizer.InvertRows).
+//   - One epoch loop (runEpochs) owns early stopping on the validation
+//     loss, divergence, checkpoints, interruption and resume; a solver
+//     supplies one epoch and its validation.
+//   - Same config and seed give the same numbers, whatever the number of
+//     cores: parallel kernels split work independently of GOMAXPROCS.
+//   - Formulas cite eval/methods.md by section.
+package train

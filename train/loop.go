@@ -1,0 +1,152 @@
+package train
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"slices"
+	"time"
+
+	"github.com/strialab/stria/nn"
+)
+
+// solver is one training method's side of the epoch loop (runEpochs):
+// what an epoch does and how the fit is judged after it. The loop owns
+// everything else: the optimiser state, early stopping on the validation
+// loss, divergence, checkpoints, interruption and resume.
+type solver interface {
+	// name is the solver's config name, for messages.
+	name() string
+	// trainable returns the parameters the optimiser updates (a view into
+	// the net's buffer).
+	trainable() []float64
+	// begin prepares the first epoch once the parameters are set (from
+	// the initialisation or a checkpoint).
+	begin() error
+	// epoch runs one epoch of optimiser steps and returns the training
+	// data loss it measured before updating (EpochLog.TrainLoss).
+	epoch(opt *nn.Adam) float64
+	// validate judges the parameters after an epoch: the validation loss
+	// that early stopping watches and the median validation R^2 (NaN on
+	// epochs the solver skips it).
+	validate(epoch int) (loss, r2 float64, err error)
+	// random returns the solver's random source, saved in checkpoints
+	// (nil if it draws nothing while training).
+	random() *rand.PCG
+}
+
+// newOptimizer returns the Adam optimiser the train settings describe for
+// n parameters.
+func newOptimizer(tc TrainConfig, n int) *nn.Adam {
+	opt := nn.NewAdam(n)
+	opt.LR, opt.Beta1, opt.Beta2, opt.Eps = tc.LearningRate, tc.Beta1, tc.Beta2, tc.Epsilon
+	opt.WeightDecay = tc.WeightDecay
+	opt.Decoupled = tc.Optimizer == OptimizerAdamW
+	return opt
+}
+
+// loopResult is what runEpochs hands back to the solver.
+type loopResult struct {
+	log       []EpochLog
+	bestEpoch int
+	stop      string
+}
+
+// runEpochs trains s until the validation loss has not improved for
+// train.patience epochs or train.max_epochs have run, and leaves the best
+// parameters in place. With resume not nil it continues from that
+// checkpoint. Between epochs it honours ctx: on cancellation a checkpoint
+// is handed to hooks and ErrInterrupted is returned. A loss that is not
+// finite or grows a millionfold over the first epoch's stops training with
+// an error that suggests a smaller learning rate.
+func runEpochs(ctx context.Context, s solver, tc TrainConfig, hooks Hooks, resume *Checkpoint) (*loopResult, error) {
+	params := s.trainable()
+	opt := newOptimizer(tc, len(params))
+	st := Checkpoint{BestVal: math.Inf(1)}
+	if resume != nil {
+		if len(resume.Params) != len(params) || len(resume.M) != len(params) || len(resume.V) != len(params) {
+			return nil, fmt.Errorf("checkpoint has %d parameters, the %s solver of this config trains %d: was the config changed?", len(resume.Params), s.name(), len(params))
+		}
+		st = *resume
+		copy(params, st.Params)
+		opt.M, opt.V, opt.T = slices.Clone(st.M), slices.Clone(st.V), st.T
+		if pcg := s.random(); pcg != nil {
+			if err := pcg.UnmarshalBinary(st.RNG); err != nil {
+				return nil, fmt.Errorf("checkpoint: random state: %w", err)
+			}
+		}
+	}
+	if err := s.begin(); err != nil {
+		return nil, err
+	}
+	start := time.Now()
+	offset := 0.0
+	if n := len(st.Log); n > 0 {
+		offset = st.Log[n-1].Seconds
+	}
+	// snapshot shares the live buffers (no copy of the N x F readout and
+	// its moments); hooks get it only while training waits for them.
+	snapshot := func() *Checkpoint {
+		c := st
+		c.Params = params
+		c.M, c.V, c.T = opt.M, opt.V, opt.T
+		c.RNG = nil
+		if pcg := s.random(); pcg != nil {
+			c.RNG, _ = pcg.MarshalBinary()
+		}
+		return &c
+	}
+	var first float64
+	if len(st.Log) > 0 {
+		first = st.Log[0].TrainLoss
+	}
+	stop := "max_epochs"
+	for st.Epoch < tc.MaxEpochs {
+		if err := ctx.Err(); err != nil {
+			if hooks.Checkpoint != nil {
+				if cerr := hooks.Checkpoint(snapshot()); cerr != nil {
+					return nil, cerr
+				}
+			}
+			return nil, fmt.Errorf("%w after epoch %d", ErrInterrupted, st.Epoch)
+		}
+		loss := s.epoch(opt)
+		st.Epoch++
+		if st.Epoch == 1 {
+			first = loss
+		}
+		if math.IsNaN(loss) || math.IsInf(loss, 0) || loss > 1e6*(math.Abs(first)+1e-12) {
+			return nil, fmt.Errorf("training diverged at epoch %d (loss %g, first epoch %g): try a smaller train.learning_rate (now %g)",
+				st.Epoch, loss, first, tc.LearningRate)
+		}
+		vl, vr2, err := s.validate(st.Epoch)
+		if err != nil {
+			return nil, fmt.Errorf("%w at epoch %d: try a smaller train.learning_rate (now %g)", err, st.Epoch, tc.LearningRate)
+		}
+		e := EpochLog{Epoch: st.Epoch, TrainLoss: loss, ValLoss: vl, ValR2: vr2, Seconds: offset + time.Since(start).Seconds()}
+		st.Log = append(st.Log, e)
+		if vl < st.BestVal {
+			st.BestVal, st.BestEpoch, st.Since = vl, st.Epoch, 0
+			st.Best = append(st.Best[:0], params...)
+		} else {
+			st.Since++
+		}
+		if hooks.OnEpoch != nil {
+			hooks.OnEpoch(e)
+		}
+		if st.Since >= tc.Patience {
+			stop = "patience"
+			break
+		}
+		if hooks.Checkpoint != nil && st.Epoch%tc.CheckpointEvery == 0 {
+			if err := hooks.Checkpoint(snapshot()); err != nil {
+				return nil, err
+			}
+		}
+	}
+	if st.Best != nil {
+		copy(params, st.Best)
+	}
+	return &loopResult{log: st.Log, bestEpoch: st.BestEpoch, stop: stop}, nil
+}
