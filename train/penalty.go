@@ -50,12 +50,12 @@ import (
 // scale of the responses, so one grid serves raw counts and z-scored data.
 // In the config's units, readout_l2 = 2 mu / W.
 
-// l2Grid is the default relative grid: tau = 10^(-6 + k/4), k = 0..36
-// (1e-6 to 1e3, four values per decade).
+// l2Grid is the default relative grid: tau = 10^(-6 + k/8), k = 0..72
+// (1e-6 to 1e3, eight values per decade: neighbours 1.33x apart).
 func l2Grid() []float64 {
-	g := make([]float64, 37)
+	g := make([]float64, 73)
 	for k := range g {
-		g[k] = math.Pow(10, -6+float64(k)/4)
+		g[k] = math.Pow(10, -6+float64(k)/8)
 	}
 	return g
 }

@@ -8,6 +8,7 @@ import (
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
+	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/lapack"
 	"gonum.org/v1/gonum/lapack/lapack64"
 
@@ -92,6 +93,9 @@ type poissonProj struct {
 
 	obj, loss, val, vr2 float64
 	r2Every             int
+	// chord: factor each neuron's Hessian once per eval (set by the
+	// training loop after the first, exact, eval; see solveNeuron).
+	chord bool
 }
 
 // psRankTol drops eigen-directions of H_t H_t^T below this fraction of the
@@ -110,6 +114,7 @@ const (
 	psNewtonTol  = 1e-13
 	psNewtonFull = 1e-8
 	psMaxNewton  = 100
+	psChordIters = 4
 )
 
 // newPoissonProj reduces a prepared recording to the per-condition spike
@@ -318,13 +323,13 @@ func (pp *poissonProj) basis(h []float64) error {
 
 // psWorker is the scratch space of one goroutine of the per-neuron solve.
 type psWorker struct {
-	u, g, xs, hess, step, grad, trial, try []float64
+	u, xs, hess, step, grad, trial, try []float64
 }
 
 func newPSWorker(Bt int) *psWorker {
 	p := Bt + 1
 	return &psWorker{
-		u: make([]float64, Bt), g: make([]float64, Bt),
+		u:  make([]float64, Bt),
 		xs: make([]float64, Bt*p), hess: make([]float64, p*p), step: make([]float64, p),
 		grad: make([]float64, p), trial: make([]float64, p), try: make([]float64, p),
 	}
@@ -385,19 +390,30 @@ func (pp *poissonProj) objective(w *psWorker, theta []float64, sum []float64) (o
 }
 
 // solveNeuron runs Newton's method on neuron n from its stored readout.
+// With pp.chord (training epochs after the first) the Hessian is factored
+// once, at the warm start, and up to psChordIters steps reuse that factor
+// with fresh gradients (the chord method: linear convergence at a rate
+// that vanishes as the warm start approaches the optimum); otherwise every
+// iteration refactors (quadratic convergence, for exact readouts).
 func (pp *poissonProj) solveNeuron(w *psWorker, n int) {
 	Bt, r, p1 := pp.Bt, pp.r, pp.Bt+1
 	p := r + 1
 	sum := pp.sum[n*Bt : (n+1)*Bt]
 	// x: current parameters (beta[:r], c); step: Newton step; try: the
-	// line search's trial point.
+	// line search's trial point; xs: sqrt(omega) X, transposed (p x Bt).
 	x := w.trial[:p]
 	copy(x, pp.beta[n*Bt:n*Bt+r])
 	x[r] = pp.c[n]
 	obj, data := pp.objective(w, x, sum)
+	hs := w.hess[:p*p]
+	maxIt := psMaxNewton
+	if pp.chord {
+		maxIt = psChordIters
+	}
 	it := 0
-	for ; it < psMaxNewton; it++ {
-		// Gradient and Hessian at x (w.u holds X x).
+	for ; it < maxIt; it++ {
+		// Gradient (and, when refactoring, the Hessian) at x; w.u holds X x.
+		refactor := it == 0 || !pp.chord
 		grad := w.grad[:p]
 		clear(grad)
 		for i := 0; i < Bt; i++ {
@@ -405,45 +421,50 @@ func (pp *poissonProj) solveNeuron(w *psWorker, n int) {
 			fe := f + nn.PoissonEps
 			ratio := sum[i] / fe
 			gi := d1 * (pp.cnt[i] - ratio)
-			om := d2*(pp.cnt[i]-ratio) + ratio*d1*d1/fe
-			if !(om > 0) {
-				om = 0
-			}
-			w.g[i] = gi
-			sq := math.Sqrt(om)
 			row := pp.phi[i*p1 : i*p1+p]
-			xs := w.xs[i*p : (i+1)*p]
 			for k, v := range row {
 				grad[k] += gi * v
-				xs[k] = sq * v
+			}
+			if refactor {
+				om := d2*(pp.cnt[i]-ratio) + ratio*d1*d1/fe
+				if !(om > 0) {
+					om = 0
+				}
+				sq := math.Sqrt(om)
+				for k, v := range row {
+					w.xs[k*Bt+i] = sq * v
+				}
 			}
 		}
 		for k := 0; k < r; k++ {
 			grad[k] += 2 * pp.mu * x[k]
 		}
-		hs := w.hess[:p*p]
-		blas64.Syrk(blas.Trans, 1, blas64.General{Rows: Bt, Cols: p, Stride: p, Data: w.xs[:Bt*p]}, 0,
-			blas64.Symmetric{Uplo: blas.Upper, N: p, Stride: p, Data: hs})
-		var tr float64
-		for k := 0; k < p; k++ {
-			tr += hs[k*p+k]
-		}
-		damp := 1e-14 * (tr/float64(p) + 2*pp.mu)
-		for k := 0; k < p; k++ {
-			hs[k*p+k] += damp
-			if k < r {
-				hs[k*p+k] += 2 * pp.mu
+		if refactor {
+			// Upper triangle of X^T diag(omega) X + 2 mu diag(1..1, 0).
+			var tr float64
+			for k := 0; k < p; k++ {
+				xk := w.xs[k*Bt : (k+1)*Bt]
+				for l := k; l < p; l++ {
+					hs[k*p+l] = floats.Dot(xk, w.xs[l*Bt:(l+1)*Bt])
+				}
+				tr += hs[k*p+k]
 			}
-		}
-		l, ok := lapack64.Potrf(blas64.Symmetric{Uplo: blas.Upper, N: p, Stride: p, Data: hs})
-		if !ok {
-			break
+			damp := 1e-14 * (tr/float64(p) + 2*pp.mu)
+			for k := 0; k < p; k++ {
+				hs[k*p+k] += damp
+				if k < r {
+					hs[k*p+k] += 2 * pp.mu
+				}
+			}
+			if _, ok := lapack64.Potrf(blas64.Symmetric{Uplo: blas.Upper, N: p, Stride: p, Data: hs}); !ok {
+				break
+			}
 		}
 		step := w.step[:p]
 		for k := range step {
 			step[k] = -grad[k]
 		}
-		lapack64.Potrs(l, blas64.General{Rows: p, Cols: 1, Stride: 1, Data: step})
+		cholSolve(hs, p, step)
 		var dec float64
 		for k, v := range step {
 			dec -= v * grad[k]
@@ -498,6 +519,23 @@ func (pp *poissonProj) solveNeuron(w *psWorker, n int) {
 	pp.c[n] = x[r]
 	pp.objN[n], pp.dataN[n] = obj, data
 	pp.iters[n] = it
+}
+
+// cholSolve overwrites b with A^-1 b, where the upper triangle of u
+// (p x p, row-major) holds the Cholesky factor U of A = U^T U.
+func cholSolve(u []float64, p int, b []float64) {
+	for i := 0; i < p; i++ { // U^T y = b
+		s := b[i]
+		for k := 0; k < i; k++ {
+			s -= u[k*p+i] * b[k]
+		}
+		b[i] = s / u[i*p+i]
+	}
+	for i := p - 1; i >= 0; i-- { // U x = y
+		row := u[i*p : (i+1)*p]
+		s := b[i] - floats.Dot(row[i+1:], b[i+1:p])
+		b[i] = s / row[i]
+	}
 }
 
 // solveAll solves every neuron's readout for the current basis, in

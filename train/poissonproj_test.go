@@ -271,8 +271,10 @@ func fitPoissonFast(t testing.TB, p *Prepared) ([]float64, int) {
 	}
 	epochs := trainFilters(t, p, net, pp.nconv, func(grad bool) (float64, error) {
 		err := pp.eval(net, grad, false)
+		pp.chord = true
 		return pp.val, err
 	})
+	pp.chord = false
 	if err := pp.eval(net, false, false); err != nil {
 		t.Fatal(err)
 	}

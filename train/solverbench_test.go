@@ -225,6 +225,7 @@ func BenchmarkPoissonEpoch(b *testing.B) {
 			}
 			opt := nn.NewAdam(pp.nconv)
 			opt.LR = 1e-2
+			pp.chord = true
 			for range 5 {
 				if err := pp.eval(net, true, false); err != nil {
 					b.Fatal(err)
