@@ -369,3 +369,42 @@ func trainWithinN(p *Prepared) []float64 {
 	}
 	return out
 }
+
+// autoReadout chooses the readout penalty at the net's current filters and
+// writes the closed-form readout with it into the net. Global: one penalty
+// for all neurons, by the validation loss when there are validation trials
+// and by C_p otherwise. Per neuron: each neuron's own C_p (its own
+// within-condition variance; measured better than per-neuron validation
+// choices, which the small validation set makes noisy). It returns the
+// per-bin predictions (B x N, trained units) and the chosen
+// model.readout_l2 of every neuron (all equal unless perNeuron), and
+// leaves pj.mu at the global choice.
+func (pj *projector) autoReadout(p *Prepared, net *nn.Net, perNeuron bool) (curves, l2 []float64, err error) {
+	rp := newRidgePath(pj, nil)
+	if err := rp.decompose(pj, net); err != nil {
+		return nil, nil, err
+	}
+	score := make([]float64, len(rp.mu))
+	if pj.Bv > 0 {
+		rp.valLoss(score, pj)
+	} else {
+		rp.sure(score, nil, pj)
+	}
+	g := argmin(score)
+	pj.mu = rp.mu[g]
+	var pick []int
+	if perNeuron {
+		pick = rp.perNeuronSURE(pj, trainWithinN(p))
+	} else {
+		pick = make([]int, pj.N)
+		for n := range pick {
+			pick[n] = g
+		}
+	}
+	curves = rp.readout(pj, net, pick)
+	l2 = make([]float64, pj.N)
+	for n, k := range pick {
+		l2[n] = pj.readoutL2(rp.mu[k])
+	}
+	return curves, l2, nil
+}

@@ -1,8 +1,10 @@
 package train
 
 import (
+	"context"
 	"fmt"
 	"math"
+	"math/rand/v2"
 	"runtime"
 	"sync"
 
@@ -682,4 +684,79 @@ func (pp *poissonProj) curves() []float64 {
 		}
 	}
 	return out
+}
+
+// fitPoissonProjected trains with the Poisson fast path: the epoch loop
+// (runEpochs) moves the filters with Adam along the envelope gradient of
+// the projected Poisson objective; early stopping watches the validation
+// loss of the per-neuron optimal readouts. The first evaluation solves
+// every readout exactly; later training epochs factor each neuron's
+// Hessian once (poissonProj.chord). At the end the readouts of the best
+// filters are solved exactly and written into the net.
+//
+// A checkpoint holds the conv parameters only: a resumed fit re-solves the
+// readouts from the mean-rate start, so it agrees with an uninterrupted
+// one to the Newton tolerance, not bit for bit.
+func fitPoissonProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
+	cfg := p.Cfg
+	net := nn.NewNet(cfg.Shape(p.NBins, p.Neurons()))
+	net.InitConvs(rand.New(rand.NewPCG(cfg.Seed, 0x1417)))
+	pp, err := newPoissonProj(p, net)
+	if err != nil {
+		return nil, err
+	}
+	s := &poissonSolver{pp: pp, net: net}
+	res, err := runEpochs(ctx, s, cfg.Train, hooks, resume)
+	if err != nil {
+		return nil, err
+	}
+	pp.chord = false
+	if err := pp.eval(net, false, pp.Bv > 0); err != nil {
+		return nil, err
+	}
+	for i := range res.log {
+		if e := &res.log[i]; e.Epoch == res.bestEpoch && math.IsNaN(e.ValR2) {
+			e.ValR2 = pp.vr2
+		}
+	}
+	pp.readout(net)
+	return &Fitted{Net: net, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop, Curves: pp.curves()}, nil
+}
+
+// poissonSolver plugs the Poisson fast path into the epoch loop, as
+// projectedSolver does the MSE one.
+type poissonSolver struct {
+	pp  *poissonProj
+	net *nn.Net
+}
+
+func (s *poissonSolver) name() string         { return "projected" }
+func (s *poissonSolver) trainable() []float64 { return s.net.Params[:s.pp.nconv] }
+func (s *poissonSolver) random() *rand.PCG    { return nil }
+
+// begin solves the readouts of the starting filters exactly; their loss
+// and gradient feed the first step.
+func (s *poissonSolver) begin() error {
+	s.pp.chord = false
+	err := s.pp.eval(s.net, true, false)
+	s.pp.chord = true
+	return err
+}
+
+func (s *poissonSolver) epoch(opt *nn.Adam) float64 {
+	loss := s.pp.loss
+	opt.Step(s.net.Params[:s.pp.nconv], s.net.Grads[:s.pp.nconv])
+	return loss
+}
+
+func (s *poissonSolver) validate(epoch int) (float64, float64, error) {
+	pp := s.pp
+	r2 := epoch == 1 || (pp.r2Every > 0 && epoch%pp.r2Every == 0)
+	if err := pp.eval(s.net, true, r2); err != nil {
+		return 0, 0, err
+	}
+	if pp.Bv == 0 {
+		return pp.obj, pp.vr2, nil
+	}
+	return pp.val, pp.vr2, nil
 }

@@ -260,25 +260,14 @@ func maxAbs(x []float64) float64 {
 	return m
 }
 
-// fitPoissonFast trains the filters with the Poisson fast path and returns
-// the per-bin rate predictions of the best filters and the epochs run.
+// fitPoissonFast fits with fitPoissonProjected and returns the per-bin
+// rate predictions and the epochs run.
 func fitPoissonFast(t testing.TB, p *Prepared) ([]float64, int) {
-	net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
-	net.InitConvs(rand.New(rand.NewPCG(p.Cfg.Seed, 0x1417)))
-	pp, err := newPoissonProj(p, net)
+	f, err := fitPoissonProjected(context.Background(), p, Hooks{}, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
-	epochs := trainFilters(t, p, net, pp.nconv, func(grad bool) (float64, error) {
-		err := pp.eval(net, grad, false)
-		pp.chord = true
-		return pp.val, err
-	})
-	pp.chord = false
-	if err := pp.eval(net, false, false); err != nil {
-		t.Fatal(err)
-	}
-	return pp.curves(), epochs
+	return f.Curves, len(f.Log)
 }
 
 // TestPoissonFastVsAdam fits a spike-count population with the adam solver
