@@ -59,11 +59,12 @@ func benchPenalty(b *testing.B, noise float64) {
 		p.Norm.InvertRows(pred)
 		r2 := testR2(p, pred)
 		b.ReportMetric(gapShare(r2, cm, or), "gap_"+name)
-		b.Logf("%-22s gap share %.4f, median test R2 %.5f", name, gapShare(r2, cm, or), nanMedian(r2))
+		b.ReportMetric(nanMedian(r2), "r2_"+name)
 	}
 	within := trainWithinN(p)
 	for range b.N {
-		b.Logf("median test R2: condition mean %.5f, oracle %.5f", nanMedian(cm), nanMedian(or))
+		b.ReportMetric(nanMedian(cm), "r2_condition_mean")
+		b.ReportMetric(nanMedian(or), "r2_oracle")
 		// Fixed lambda = 1, then every choice at the best filters.
 		t0 := time.Now()
 		net, pj, ep := trainProjected(b, p, 0, nil)
@@ -94,17 +95,17 @@ func benchPenalty(b *testing.B, noise float64) {
 			x    []float64
 		}{{"final_val", val}, {"final_cp", cp}, {"final_gcv", gcv}} {
 			g := argmin(c.x)
-			b.Logf("%s: readout_l2 %.4g (tau %.3g)", c.name, pj.readoutL2(rp.mu[g]), rp.tau[g])
+			b.ReportMetric(pj.readoutL2(rp.mu[g]), "l2_"+c.name)
 			gap(c.name, rp.readout(pj, net, all(g)))
 		}
 		t1 := time.Now()
 		pv := rp.perNeuronVal(pj, argmin(val))
-		b.Logf("per-neuron validation choice: %v", time.Since(t1))
+		b.ReportMetric(time.Since(t1).Seconds(), "s_neuron_val_choice")
 		gap("final_neuron_val", rp.readout(pj, net, pv))
-		logPicks(b, pj, rp, pv)
+		logPicks(b, "final_neuron_val", pj, rp, pv)
 		pc := rp.perNeuronSURE(pj, within)
 		gap("final_neuron_cp", rp.readout(pj, net, pc))
-		logPicks(b, pj, rp, pc)
+		logPicks(b, "final_neuron_cp", pj, rp, pc)
 
 		// Re-chosen during training every 10 epochs.
 		for _, how := range []string{"val", "cp"} {
@@ -125,7 +126,8 @@ func benchPenalty(b *testing.B, noise float64) {
 				}
 				pj.mu = rq.mu[argmin(x)]
 			})
-			b.Logf("re-chosen (%s) every 10 epochs: %d epochs, %v, final readout_l2 %.4g", how, ep, time.Since(t0), pj.readoutL2(pj.mu))
+			b.Logf("re-chosen (%s) every 10 epochs: %d epochs, %v", how, ep, time.Since(t0))
+			b.ReportMetric(pj.readoutL2(pj.mu), "l2_repick_"+how)
 			if err := rq.decompose(pj, net); err != nil {
 				b.Fatal(err)
 			}
@@ -159,8 +161,8 @@ func absDiff(x []float64, v float64) []float64 {
 	return out
 }
 
-// logPicks logs the spread of per-neuron readout_l2 choices.
-func logPicks(b *testing.B, pj *projector, rp *ridgePath, pick []int) {
+// logPicks reports the spread of per-neuron readout_l2 choices.
+func logPicks(b *testing.B, name string, pj *projector, rp *ridgePath, pick []int) {
 	v := make([]float64, len(pick))
 	for n, g := range pick {
 		v[n] = pj.readoutL2(rp.mu[g])
@@ -169,7 +171,9 @@ func logPicks(b *testing.B, pj *projector, rp *ridgePath, pick []int) {
 		s := append([]float64(nil), v...)
 		return quantile(s, f)
 	}
-	b.Logf("  per-neuron readout_l2: 10%% %.3g, median %.3g, 90%% %.3g", q(0.1), q(0.5), q(0.9))
+	b.ReportMetric(q(0.1), "l2q10_"+name)
+	b.ReportMetric(q(0.5), "l2q50_"+name)
+	b.ReportMetric(q(0.9), "l2q90_"+name)
 }
 
 func quantile(x []float64, f float64) float64 {
