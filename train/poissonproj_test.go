@@ -299,3 +299,34 @@ func TestPoissonFastVsAdam(t *testing.T) {
 		t.Errorf("fast path median test R2 %.5f is below adam's %.5f by more than 0.005", nanMedian(rf), nanMedian(ra))
 	}
 }
+
+// TestPoissonCores checks that the readouts and the gradient do not depend
+// on how many goroutines share the neurons (bit for bit).
+func TestPoissonCores(t *testing.T) {
+	var ref []float64
+	for _, workers := range []int{1, 2, 5} {
+		p, net := poissonCase(t, nn.Softplus, 0.05)
+		pp, err := newPoissonProj(p, net)
+		if err != nil {
+			t.Fatal(err)
+		}
+		pp.workers = pp.workers[:0]
+		for range workers {
+			pp.workers = append(pp.workers, newPSWorker(pp.Bt))
+		}
+		for range 3 { // the later evals start from the earlier readouts
+			if err := pp.eval(net, true, false); err != nil {
+				t.Fatal(err)
+			}
+			pp.chord = true
+			net.Params[0] += 0.01
+		}
+		pp.readout(net)
+		got := append(slices.Clone(net.Params), net.Grads[:pp.nconv]...)
+		if ref == nil {
+			ref = got
+		} else if !slices.Equal(got, ref) {
+			t.Errorf("%d goroutines: parameters or gradient differ from one goroutine's", workers)
+		}
+	}
+}
