@@ -760,3 +760,72 @@ func (s *poissonSolver) validate(epoch int) (float64, float64, error) {
 	}
 	return pp.val, pp.vr2, nil
 }
+
+// poissonL2Grid is the relative grid of the Poisson penalty choice: tau =
+// 10^(-4 + k/4), k = 0..24 (1e-4 to 1e2, four per decade); each value
+// costs one solve of every neuron's readout.
+func poissonL2Grid() []float64 {
+	g := make([]float64, 25)
+	for k := range g {
+		g[k] = math.Pow(10, -4+float64(k)/4)
+	}
+	return g
+}
+
+// l2Scale is the data's scale for the Poisson penalty: mu = tau * scale
+// with scale = (1/Bt) sum_b N_b ||h_b||^2 * (mean count per trial and
+// neuron), the size of the data term's curvature for a neuron firing at
+// the population's mean rate (for exp output: d2/du2 of N f = N f), so
+// that one relative grid serves any feature scale and firing rate.
+func (pp *poissonProj) l2Scale() float64 {
+	F := pp.F
+	var hh, total float64
+	for i, b := range pp.rows {
+		var s float64
+		for _, v := range pp.h[b*F : (b+1)*F] {
+			s += v * v
+		}
+		hh += pp.cnt[i] * s
+	}
+	for _, v := range pp.sum {
+		total += v
+	}
+	return hh / float64(pp.Bt) * total / (pp.W * float64(pp.N))
+}
+
+// choosePenalty picks, at the net's current filters, the penalty of the
+// grid tau (poissonL2Grid if nil) with the smallest validation loss, by
+// solving every neuron's readout exactly for each value (from the largest
+// penalty down, each solve starting from the previous one). It leaves
+// pp.mu and the readouts at the choice and returns the chosen
+// model.readout_l2 (2 mu / W) and the validation loss of every grid value.
+func (pp *poissonProj) choosePenalty(net *nn.Net, tau []float64) (float64, []float64, error) {
+	if pp.Bv == 0 {
+		return 0, nil, fmt.Errorf("train: the Poisson penalty choice needs validation trials")
+	}
+	if tau == nil {
+		tau = poissonL2Grid()
+	}
+	pp.chord = false
+	h := pp.features(net)
+	if err := pp.basis(h); err != nil {
+		return 0, nil, err
+	}
+	scale := pp.l2Scale()
+	val := make([]float64, len(tau))
+	best, bestMu := math.Inf(1), pp.mu
+	for k := len(tau) - 1; k >= 0; k-- {
+		pp.mu = tau[k] * scale
+		pp.solveAll()
+		pp.valLoss(h, false)
+		val[k] = pp.val
+		if pp.val < best {
+			best, bestMu = pp.val, pp.mu
+		}
+	}
+	pp.mu = bestMu
+	if err := pp.eval(net, false, true); err != nil {
+		return 0, nil, err
+	}
+	return 2 * bestMu / pp.W, val, nil
+}

@@ -183,13 +183,15 @@ func quantile(x []float64, f float64) float64 {
 
 // BenchmarkPoissonFastVsAdam fits a spike-count population with the adam
 // solver (Poisson, softplus, full batch on condition sums) and with the
-// Poisson fast path on the same split and readout_l2 0.01; it reports the
-// median test R^2 of both, their gap shares, and the time ratio.
+// Poisson fast path on the same split and readout_l2 (0.01 and 1); it
+// reports the median test R^2 of both, their gap shares, and the time
+// ratio.
 func BenchmarkPoissonFastVsAdam(b *testing.B) {
-	for _, n := range []int{1000} {
-		b.Run(fmt.Sprintf("neurons=%d", n), func(b *testing.B) {
+	for _, l2 := range []float64{0.01, 1} {
+		n := 1000
+		b.Run(fmt.Sprintf("neurons=%d/readout_l2=%g", n, l2), func(b *testing.B) {
 			p, truth := popPrepared(b, popSpec{Neurons: n, Trials: 3000, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 41},
-				func(c *Config) { c.Model.ReadoutL2 = 0.01; c.Train.Patience = 100 })
+				func(c *Config) { c.Model.ReadoutL2 = l2; c.Train.Patience = 100 })
 			cm, or := testR2(p, condMeanPred(p)), testR2(p, truth)
 			for range b.N {
 				t0 := time.Now()
@@ -207,7 +209,12 @@ func BenchmarkPoissonFastVsAdam(b *testing.B) {
 				b.ReportMetric(gapShare(ra, cm, or), "gap_adam")
 				b.ReportMetric(gapShare(rf, cm, or), "gap_fast")
 				b.ReportMetric(tf.Seconds()/ta.Seconds(), "time_fast/adam")
-				b.Logf("adam %d epochs %v; fast %d epochs %v; median R2 cm %.5f oracle %.5f", len(fa.Log), ta, ef, tf, nanMedian(cm), nanMedian(or))
+				b.ReportMetric(float64(len(fa.Log)), "epochs_adam")
+				b.ReportMetric(float64(ef), "epochs_fast")
+				b.ReportMetric(ta.Seconds(), "s_adam")
+				b.ReportMetric(tf.Seconds(), "s_fast")
+				b.ReportMetric(nanMedian(cm), "r2_condition_mean")
+				b.ReportMetric(nanMedian(or), "r2_oracle")
 			}
 		})
 	}
@@ -248,6 +255,45 @@ func BenchmarkPoissonEpoch(b *testing.B) {
 				}
 			}
 			b.ReportMetric(float64(iters)/float64(b.N*n), "newton/neuron")
+		})
+	}
+}
+
+// BenchmarkPoissonPenalty trains the Poisson fast path with readout_l2 1
+// (the default) and 0.01 on a spike-count population and reports the
+// test gap share of the trained readout and of the readout re-solved with
+// the penalty chosen on the validation trials at the final filters
+// (poissonProj.choosePenalty), with the chosen readout_l2.
+func BenchmarkPoissonPenalty(b *testing.B) {
+	for _, l2 := range []float64{1, 0.01} {
+		b.Run(fmt.Sprintf("readout_l2=%g", l2), func(b *testing.B) {
+			p, truth := popPrepared(b, popSpec{Neurons: 1000, Trials: 3000, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 41},
+				func(c *Config) { c.Model.ReadoutL2 = l2; c.Train.Patience = 100 })
+			cm, or := testR2(p, condMeanPred(p)), testR2(p, truth)
+			for range b.N {
+				f, err := fitPoissonProjected(context.Background(), p, Hooks{}, nil)
+				if err != nil {
+					b.Fatal(err)
+				}
+				r := testR2(p, f.Curves)
+				b.ReportMetric(gapShare(r, cm, or), "gap_trained")
+				b.ReportMetric(nanMedian(r), "r2_trained")
+				pp, err := newPoissonProj(p, f.Net)
+				if err != nil {
+					b.Fatal(err)
+				}
+				t0 := time.Now()
+				chosen, _, err := pp.choosePenalty(f.Net, nil)
+				if err != nil {
+					b.Fatal(err)
+				}
+				b.ReportMetric(time.Since(t0).Seconds(), "s_choice")
+				r = testR2(p, pp.curves())
+				b.ReportMetric(gapShare(r, cm, or), "gap_chosen")
+				b.ReportMetric(nanMedian(r), "r2_chosen")
+				b.ReportMetric(chosen, "l2_chosen")
+				b.ReportMetric(float64(len(f.Log)), "epochs")
+			}
 		})
 	}
 }
