@@ -276,9 +276,9 @@ func fitPoissonFast(t testing.TB, p *Prepared) ([]float64, int) {
 // 0.005 of adam's or better.
 func TestPoissonFastVsAdam(t *testing.T) {
 	if testing.Short() {
-		t.Skip("fits two models on 400 neurons")
+		t.Skip("fits two models on 200 neurons")
 	}
-	spec := popSpec{Neurons: 400, Trials: 2400, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 21}
+	spec := popSpec{Neurons: 200, Trials: 2400, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 21}
 	edit := func(c *Config) { c.Model.ReadoutL2 = 0.01; c.Train.Patience = 50 }
 	p, truth := popPrepared(t, spec, edit)
 	t0 := time.Now()
