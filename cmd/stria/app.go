@@ -26,6 +26,7 @@ func newApp() *cli.App {
 		Description: "stria trains a convolutional encoder whose few filters are shared by every neuron, fits per-neuron\n" +
 			"tuning curves, scores all of them on held-out trials against the noise ceiling, and exports\n" +
 			"filters, tuning curves and per-neuron tables. Start with: stria demo",
+		Flags: []cli.Flag{cli.HelpFlag}, // added by hand: the library adds it only with its own help command
 		Commands: []*cli.Command{
 			demoCommand(),
 			inspectCommand(),
@@ -35,6 +36,7 @@ func newApp() *cli.App {
 			exportCommand(),
 			reportCommand(),
 			mergeCommand(),
+			helpCommand(),
 		},
 	}
 }
