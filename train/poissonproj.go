@@ -71,7 +71,7 @@ type poissonProj struct {
 	// Basis of the current features.
 	r          int
 	kmat, evec []float64 // Bt x Bt
-	eval_      []float64 // Bt eigenvalues (ascending)
+	eigval      []float64 // Bt eigenvalues (ascending)
 	syevWork   []float64
 	phi        []float64 // Bt x (Bt+1), X = [Phi 1], first r+1 columns used (stride Bt+1)
 	qt, qtOld  []float64 // r x F (capacity Bt x F)
@@ -200,9 +200,9 @@ func newPoissonProj(p *Prepared, net *nn.Net) (*poissonProj, error) {
 	}
 	pp.kmat = make([]float64, Bt*Bt)
 	pp.evec = make([]float64, Bt*Bt)
-	pp.eval_ = make([]float64, Bt)
+	pp.eigval = make([]float64, Bt)
 	var q [1]float64
-	lapack64.Syev(lapack.EVCompute, blas64.Symmetric{Uplo: blas.Upper, N: Bt, Stride: Bt, Data: pp.evec}, pp.eval_, q[:], -1)
+	lapack64.Syev(lapack.EVCompute, blas64.Symmetric{Uplo: blas.Upper, N: Bt, Stride: Bt, Data: pp.evec}, pp.eigval, q[:], -1)
 	pp.syevWork = make([]float64, int(q[0]))
 	pp.phi = make([]float64, Bt*(Bt+1))
 	pp.qt = make([]float64, Bt*F)
@@ -267,13 +267,13 @@ func (pp *poissonProj) basis(h []float64) error {
 		}
 	}
 	copy(pp.evec, pp.kmat)
-	if !lapack64.Syev(lapack.EVCompute, blas64.Symmetric{Uplo: blas.Upper, N: Bt, Stride: Bt, Data: pp.evec}, pp.eval_, pp.syevWork, len(pp.syevWork)) {
+	if !lapack64.Syev(lapack.EVCompute, blas64.Symmetric{Uplo: blas.Upper, N: Bt, Stride: Bt, Data: pp.evec}, pp.eigval, pp.syevWork, len(pp.syevWork)) {
 		return fmt.Errorf("train: Poisson fast path: the eigendecomposition of the feature kernel did not converge")
 	}
-	smax := pp.eval_[Bt-1]
+	smax := pp.eigval[Bt-1]
 	// Kept directions: the r largest eigenvalues, in descending order.
 	r := 0
-	for j := Bt - 1; j >= 0 && pp.eval_[j] > psRankTol*smax && smax > 0; j-- {
+	for j := Bt - 1; j >= 0 && pp.eigval[j] > psRankTol*smax && smax > 0; j-- {
 		r++
 	}
 	pp.qt, pp.qtOld = pp.qtOld, pp.qt
@@ -285,7 +285,7 @@ func (pp *poissonProj) basis(h []float64) error {
 		clear(row)
 		for k := 0; k < r; k++ {
 			j := Bt - 1 - k
-			row[k] = pp.evec[i*Bt+j] * math.Sqrt(pp.eval_[j])
+			row[k] = pp.evec[i*Bt+j] * math.Sqrt(pp.eigval[j])
 		}
 		row[r] = 1
 	}
@@ -294,7 +294,7 @@ func (pp *poissonProj) basis(h []float64) error {
 		j := Bt - 1 - k
 		q := pp.qt[k*F : (k+1)*F]
 		clear(q)
-		s := 1 / math.Sqrt(pp.eval_[j])
+		s := 1 / math.Sqrt(pp.eigval[j])
 		for i := 0; i < Bt; i++ {
 			if v := pp.evec[i*Bt+j] * s; v != 0 {
 				for f, x := range ht[i*F : (i+1)*F] {
