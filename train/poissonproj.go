@@ -71,7 +71,7 @@ type poissonProj struct {
 	// Basis of the current features.
 	r          int
 	kmat, evec []float64 // Bt x Bt
-	eigval      []float64 // Bt eigenvalues (ascending)
+	eigval     []float64 // Bt eigenvalues (ascending)
 	syevWork   []float64
 	phi        []float64 // Bt x (Bt+1), X = [Phi 1], first r+1 columns used (stride Bt+1)
 	qt, qtOld  []float64 // r x F (capacity Bt x F)
