@@ -5,6 +5,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"slices"
+	"strings"
 	"testing"
 	"time"
 
@@ -328,5 +329,60 @@ func TestPoissonCores(t *testing.T) {
 		} else if !slices.Equal(got, ref) {
 			t.Errorf("%d goroutines: parameters or gradient differ from one goroutine's", workers)
 		}
+	}
+}
+
+// TestPoissonEdgeCases: a silent neuron (all counts 0) gets a finite
+// readout with a rate near 0 and a finite gradient; a negative response
+// is refused with an error naming the neuron.
+func TestPoissonEdgeCases(t *testing.T) {
+	prep := func(edit func(y []float32)) (*Prepared, error) {
+		rec, _ := makePopulation(popSpec{Neurons: 6, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, Seed: 5})
+		for tr := 0; tr < rec.Y.Rows; tr++ {
+			edit(rec.Y.Row(tr))
+		}
+		cfg := Defaults()
+		cfg.Data.Responses = "synthetic"
+		cfg.Axis = AxisConfig{Name: "direction", Min: 0, Max: 360, Periodic: true, BinWidth: 12, Encoding: OneHot}
+		cfg.Split.KeepBlocks = false
+		cfg.Model.Loss, cfg.Model.Output, cfg.Split.ZScore = Poisson, nn.Softplus, false
+		if err := cfg.Validate(); err != nil {
+			t.Fatal(err)
+		}
+		return PrepareRecording(&cfg, rec)
+	}
+	p, err := prep(func(y []float32) { y[2] = 0 })
+	if err != nil {
+		t.Fatal(err)
+	}
+	net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
+	net.InitConvs(rand.New(rand.NewPCG(1, 2)))
+	pp, err := newPoissonProj(p, net)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := pp.eval(net, true, true); err != nil {
+		t.Fatal(err)
+	}
+	for i, g := range net.Grads[:pp.nconv] {
+		if math.IsNaN(g) || math.IsInf(g, 0) {
+			t.Fatalf("gradient %d is %v", i, g)
+		}
+	}
+	curves := pp.curves()
+	for b := 0; b < p.NBins; b++ {
+		if r := curves[b*p.Neurons()+2]; !(r >= 0 && r < 1e-6) {
+			t.Errorf("silent neuron, bin %d: rate %g, want ~0", b, r)
+		}
+	}
+
+	p, err = prep(func(y []float32) { y[4] = -1 })
+	if err != nil {
+		t.Fatal(err)
+	}
+	net = nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
+	_, err = newPoissonProj(p, net)
+	if err == nil || !strings.Contains(err.Error(), "neuron 4") {
+		t.Errorf("negative counts: got %v, want an error naming neuron 4", err)
 	}
 }
