@@ -255,6 +255,24 @@ func BenchmarkPoissonEpoch(b *testing.B) {
 				}
 			}
 			b.ReportMetric(float64(iters)/float64(b.N*n), "newton/neuron")
+			fast := b.Elapsed().Seconds() / float64(b.N)
+			// One epoch of the adam solver on the same data (full batch on
+			// condition sums, then its validation pass), for the ratio.
+			b.StopTimer()
+			an := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
+			an.Init(rand.New(rand.NewPCG(1, 2)))
+			tr := newTrainer(p, an)
+			aopt := newOptimizer(p.Cfg.Train, len(an.Params))
+			tr.epoch(aopt)
+			t0 := time.Now()
+			const reps = 3
+			for range reps {
+				tr.epoch(aopt)
+				tr.evalVal()
+			}
+			adam := time.Since(t0).Seconds() / reps
+			b.ReportMetric(adam, "adam_s/epoch")
+			b.ReportMetric(fast/adam, "fast/adam_epoch")
 		})
 	}
 }
