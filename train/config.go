@@ -148,8 +148,8 @@ func Defaults() Config {
 			CheckpointEvery: 100,
 			Solver:          SolverAdam,
 		},
-		Compare: CompareConfig{Starts: 8, SmoothLambda: 2, Output: "runs/compare"},
-		Output:  "runs/fit",
+		Compare: CompareConfig{Starts: 8, SmoothLambda: 2, Output: "stria-out/compare"},
+		Output:  "stria-out/fit",
 	}
 }
 

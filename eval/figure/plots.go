@@ -83,7 +83,7 @@ func addLines(p *plot.Plot, x, y []float64, st draw.LineStyle) *plotter.Line {
 // "ch 1" ... "ch C". The x axis is labelled "offset (unit)".
 //
 // Panics if channels < 1, k < 1 or len(filters) != channels*k.
-func Filters(base string, filters []float64, channels, k int, binWidth float64, ax AxisInfo) error {
+func Filters(filters []float64, channels, k int, binWidth float64, ax AxisInfo) (*Image, error) {
 	if channels < 1 || k < 1 {
 		panic(fmt.Sprintf("figure: Filters with %d channels and %d taps", channels, k))
 	}
@@ -122,7 +122,7 @@ func Filters(base string, filters []float64, channels, k int, binWidth float64, 
 	}
 	emptyRanges(p)
 	headroom(p, 0.12*float64(min(channels, 8)))
-	return save(base, p, Width, Height)
+	return finish(p, Width, Height)
 }
 
 // TapOffsets returns the offsets, in axis units, that Filters draws taps
@@ -143,7 +143,7 @@ func TapOffsets(k int, binWidth float64) []float64 {
 // quarter periods. yLabel should carry the unit, e.g. "rate (spikes/s)".
 //
 // Panics if len(mean) or len(sem) != len(centers), or a curve's len(X) != len(Y).
-func Tuning(base string, centers, mean, sem []float64, curves []Curve, ax AxisInfo, yLabel string) error {
+func Tuning(centers, mean, sem []float64, curves []Curve, ax AxisInfo, yLabel string) (*Image, error) {
 	if len(mean) != len(centers) || len(sem) != len(centers) {
 		panic(fmt.Sprintf("figure: Tuning lengths centers %d, mean %d, sem %d", len(centers), len(mean), len(sem)))
 	}
@@ -196,7 +196,7 @@ func Tuning(base string, centers, mean, sem []float64, curves []Curve, ax AxisIn
 	}
 	emptyRanges(p)
 	headroom(p, 0.12*float64(min(len(curves)+1, 8)))
-	return save(base, p, Width, Height)
+	return finish(p, Width, Height)
 }
 
 // plotterErrs is the XYer and YErrorer given to plotter.NewYErrorBars.
@@ -282,7 +282,7 @@ func countNote(n, bad int) string {
 // bins spanning its finite values. NaN and ±Inf are excluded and counted in
 // the legend ("n = 480 (12 NaN excluded)"). The x axis is label, the y axis
 // "neurons". bins < 1 is taken as 20.
-func Histogram(base string, values []float64, label string, bins int) error {
+func Histogram(values []float64, label string, bins int) (*Image, error) {
 	if bins < 1 {
 		bins = 20
 	}
@@ -298,7 +298,7 @@ func Histogram(base string, values []float64, label string, bins int) error {
 	p.Y.Min = 0
 	emptyRanges(p)
 	headroom(p, 0.18)
-	return save(base, p, Width, Height)
+	return finish(p, Width, Height)
 }
 
 // Histograms overlays the distributions of several series (e.g. one score
@@ -306,7 +306,7 @@ func Histogram(base string, values []float64, label string, bins int) error {
 // spanning the finite values of all series. Series are drawn in the order of
 // order (names missing from series are skipped), in SeriesStyle(i); each
 // legend entry is "name, n = ..." with its NaN count. bins < 1 is taken as 20.
-func Histograms(base string, series map[string][]float64, order []string, label string, bins int) error {
+func Histograms(series map[string][]float64, order []string, label string, bins int) (*Image, error) {
 	if bins < 1 {
 		bins = 20
 	}
@@ -335,7 +335,7 @@ func Histograms(base string, series map[string][]float64, order []string, label 
 	p.Y.Min = 0
 	emptyRanges(p)
 	headroom(p, 0.12*float64(min(i, 8))+0.04)
-	return save(base, p, Width, Height)
+	return finish(p, Width, Height)
 }
 
 // Scatter plots per-neuron scores of model A (x) against model B (y), with
@@ -346,7 +346,7 @@ func Histograms(base string, series map[string][]float64, order []string, label 
 // and "label, nameB".
 //
 // Panics if len(a) != len(b).
-func Scatter(base string, a, b []float64, nameA, nameB, label string) error {
+func Scatter(a, b []float64, nameA, nameB, label string) (*Image, error) {
 	if len(a) != len(b) {
 		panic(fmt.Sprintf("figure: Scatter len(a) = %d, len(b) = %d", len(a), len(b)))
 	}
@@ -391,7 +391,7 @@ func Scatter(base string, a, b []float64, nameA, nameB, label string) error {
 	}
 	p.X.Min, p.X.Max = lo, hi
 	p.Y.Min, p.Y.Max = lo, hi
-	return save(base, p, Width, ScatterHeight)
+	return finish(p, Width, ScatterHeight)
 }
 
 // crowd counts the points in the top-left (or bottom-right) corner box of
@@ -429,7 +429,7 @@ func ys(p plotter.XYs) []float64 {
 // [0, Period) and the bins span exactly 0..Period (ticks at quarter periods);
 // otherwise they span the finite values. Non-finite values are excluded and
 // counted in the legend. bins < 1 is taken as 24.
-func Preferred(base string, preferred []float64, ax AxisInfo, bins int) error {
+func Preferred(preferred []float64, ax AxisInfo, bins int) (*Image, error) {
 	if bins < 1 {
 		bins = 24
 	}
@@ -464,5 +464,5 @@ func Preferred(base string, preferred []float64, ax AxisInfo, bins int) error {
 	}
 	emptyRanges(p)
 	headroom(p, 0.18)
-	return save(base, p, Width, Height)
+	return finish(p, Width, Height)
 }
