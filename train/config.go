@@ -114,8 +114,10 @@ type TrainConfig struct {
 	// Threads is the number of cores stria uses (GOMAXPROCS); 0 is all.
 	Threads int `yaml:"threads"`
 	// Solver is adam (gradient steps on all weights, the reference) or
-	// projected (closed-form ridge readout, filters optimised on the
-	// projected loss; MSE, identity output, one-hot input, full batch).
+	// projected (for fixed filters the best readout of every neuron, the
+	// filters optimised on the resulting projected loss; one-hot input,
+	// full batch; MSE with identity output: closed-form ridge readout;
+	// Poisson with softplus or exp output: per-neuron Newton readout).
 	Solver Solver `yaml:"solver"`
 }
 
@@ -292,8 +294,16 @@ func (c *Config) Validate() error {
 	if t.CheckpointEvery < 1 {
 		bad("train.checkpoint_every %d: want at least 1", t.CheckpointEvery)
 	}
-	if t.Solver == SolverProjected && (m.Loss != MSE || m.Output != nn.Identity || c.Axis.Encoding != OneHot || t.BatchSize != 0) {
-		bad("train.solver projected needs model.loss mse, model.output identity, axis.encoding onehot and train.batch_size 0")
+	if t.Solver == SolverProjected {
+		ok := c.Axis.Encoding == OneHot && t.BatchSize == 0
+		if m.Loss == MSE {
+			ok = ok && m.Output == nn.Identity
+		} else {
+			ok = ok && (m.Output == nn.Softplus || m.Output == nn.Exp)
+		}
+		if !ok {
+			bad("train.solver projected needs axis.encoding onehot, train.batch_size 0 and either model.loss mse with model.output identity or model.loss poisson with model.output softplus or exp")
+		}
 	}
 	if t.Threads < 0 {
 		bad("train.threads %d: want 0 (all cores) or more", t.Threads)

@@ -388,6 +388,9 @@ func (tr *trainer) epoch(opt *nn.Adam) float64 {
 func Fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
 	cfg := p.Cfg
 	if cfg.Train.Solver == SolverProjected {
+		if cfg.Model.Loss == Poisson {
+			return fitPoissonProjected(ctx, p, hooks, resume)
+		}
 		return fitProjected(ctx, p, hooks, resume)
 	}
 	net := nn.NewNet(cfg.Shape(p.NBins, p.Neurons()))

@@ -261,10 +261,18 @@ func maxAbs(x []float64) float64 {
 	return m
 }
 
-// fitPoissonFast fits with fitPoissonProjected and returns the per-bin
-// rate predictions and the epochs run.
+// fitPoissonFast fits with train.solver projected (Fit dispatches Poisson
+// to fitPoissonProjected) and returns the per-bin rate predictions and the
+// epochs run.
 func fitPoissonFast(t testing.TB, p *Prepared) ([]float64, int) {
-	f, err := fitPoissonProjected(context.Background(), p, Hooks{}, nil)
+	q := *p
+	cfg := *p.Cfg
+	cfg.Train.Solver = SolverProjected
+	if err := cfg.Validate(); err != nil {
+		t.Fatal(err)
+	}
+	q.Cfg = &cfg
+	f, err := Fit(context.Background(), &q, Hooks{}, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -384,5 +392,34 @@ func TestPoissonEdgeCases(t *testing.T) {
 	_, err = newPoissonProj(p, net)
 	if err == nil || !strings.Contains(err.Error(), "neuron 4") {
 		t.Errorf("negative counts: got %v, want an error naming neuron 4", err)
+	}
+}
+
+// TestPoissonFitDeterministic fits twice through Fit with train.solver
+// projected and wants the same weights and a net whose forward pass gives
+// the returned curves.
+func TestPoissonFitDeterministic(t *testing.T) {
+	p, _ := popPrepared(t, popSpec{Neurons: 20, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, Seed: 9},
+		func(c *Config) {
+			c.Train.Solver = SolverProjected
+			c.Train.MaxEpochs = 30
+			c.Model.Layers = []LayerConfig{{Channels: 3, Kernel: 5, Stride: 2}}
+		})
+	a, err := Fit(context.Background(), p, Hooks{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := Fit(context.Background(), p, Hooks{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !slices.Equal(a.Net.Params, b.Net.Params) {
+		t.Error("two fits with the same seed differ")
+	}
+	want := PredictConditions(a.Net, p.NBins)
+	for i := range want {
+		if math.Abs(a.Curves[i]-want[i]) > 1e-9*math.Max(1, math.Abs(want[i])) {
+			t.Fatalf("curve value %d: %g, the net's forward pass %g", i, a.Curves[i], want[i])
+		}
 	}
 }
