@@ -10,6 +10,7 @@ import (
 	"gopkg.in/yaml.v3"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/nn"
 )
 
@@ -28,6 +29,9 @@ type Config struct {
 	Recordings []RecordingConfig `yaml:"recordings"`
 	// Compare lists the models of stria compare.
 	Compare CompareConfig `yaml:"compare"`
+	// Scores says which noise ceilings are usable and which neurons the
+	// summaries of ratio metrics keep.
+	Scores ScoresConfig `yaml:"scores"`
 	// Output is the run folder written by stria fit.
 	Output string `yaml:"output"`
 
@@ -113,12 +117,28 @@ type TrainConfig struct {
 	CheckpointEvery int `yaml:"checkpoint_every"`
 	// Threads is the number of cores stria uses (GOMAXPROCS); 0 is all.
 	Threads int `yaml:"threads"`
-	// Solver is adam (gradient steps on all weights, the reference) or
-	// projected (for fixed filters the best readout of every neuron, the
-	// filters optimised on the resulting projected loss; one-hot input,
-	// full batch; MSE with identity output: closed-form ridge readout;
-	// Poisson with softplus or exp output: per-neuron Newton readout).
+	// Solver is auto (the default: projected wherever the model allows
+	// it, adam otherwise), adam (gradient steps on all weights, the
+	// reference) or projected (for fixed filters the best readout of every
+	// neuron, the filters optimised on the resulting projected loss;
+	// one-hot input, full batch; MSE with identity output: closed-form
+	// ridge readout; Poisson with softplus or exp output, on request only:
+	// per-neuron Newton readout).
 	Solver Solver `yaml:"solver"`
+}
+
+// ScoresConfig controls how held-out scores are judged against the noise
+// ceiling (eval/methods.md §14).
+type ScoresConfig struct {
+	// CeilingAlpha is the level of the F test of a neuron's condition
+	// effect on the scored trials: where it is not significant the noise
+	// ceiling is unusable and the ratio metrics (FEV, cc_norm, SPE) are
+	// NaN, with the reason in the ceiling column.
+	CeilingAlpha float64 `yaml:"ceiling_alpha"`
+	// MinReliability is the split-half reliability (all trials,
+	// Spearman-Brown stepped up) a neuron needs to enter the summaries,
+	// pair tests and figures of the ratio metrics; -1 keeps all.
+	MinReliability float64 `yaml:"min_reliability"`
 }
 
 // Defaults returns a Config with every default filled in and no data.
@@ -148,8 +168,9 @@ func Defaults() Config {
 			MaxEpochs:       3000,
 			Patience:        100,
 			CheckpointEvery: 100,
-			Solver:          SolverAdam,
+			Solver:          SolverAuto,
 		},
+		Scores:  ScoresConfig{CeilingAlpha: eval.DefaultCeilingAlpha, MinReliability: eval.DefaultMinReliability},
 		Compare: CompareConfig{Starts: 8, SmoothLambda: 2, Output: "stria-out/compare"},
 		Output:  "stria-out/fit",
 	}
@@ -294,19 +315,17 @@ func (c *Config) Validate() error {
 	if t.CheckpointEvery < 1 {
 		bad("train.checkpoint_every %d: want at least 1", t.CheckpointEvery)
 	}
-	if t.Solver == SolverProjected {
-		ok := c.Axis.Encoding == OneHot && t.BatchSize == 0
-		if m.Loss == MSE {
-			ok = ok && m.Output == nn.Identity
-		} else {
-			ok = ok && (m.Output == nn.Softplus || m.Output == nn.Exp)
-		}
-		if !ok {
-			bad("train.solver projected needs axis.encoding onehot, train.batch_size 0 and either model.loss mse with model.output identity or model.loss poisson with model.output softplus or exp")
-		}
+	if t.Solver == SolverProjected && !c.projectable() && !c.poissonProjectable() {
+		bad("train.solver projected needs axis.encoding onehot, train.batch_size 0 and either model.loss mse with model.output identity or model.loss poisson with model.output softplus or exp")
 	}
 	if t.Threads < 0 {
 		bad("train.threads %d: want 0 (all cores) or more", t.Threads)
+	}
+	if !(c.Scores.CeilingAlpha > 0 && c.Scores.CeilingAlpha <= 1) {
+		bad("scores.ceiling_alpha %v: want a level in (0, 1], e.g. 0.05", c.Scores.CeilingAlpha)
+	}
+	if !(c.Scores.MinReliability >= -1 && c.Scores.MinReliability <= 1) {
+		bad("scores.min_reliability %v: want a value in [-1, 1] (-1 keeps every neuron)", c.Scores.MinReliability)
 	}
 	if c.Compare.Starts < 1 {
 		bad("compare.starts %d: want at least 1", c.Compare.Starts)
@@ -321,6 +340,33 @@ func (c *Config) Validate() error {
 		return fmt.Errorf("invalid config:\n  %s", strings.Join(errs, "\n  "))
 	}
 	return nil
+}
+
+// projectable reports whether the projected solver can fit the model.
+func (c *Config) projectable() bool {
+	m, t := c.Model, c.Train
+	return m.Loss == MSE && m.Output == nn.Identity && c.Axis.Encoding == OneHot && t.BatchSize == 0
+}
+
+// poissonProjectable reports whether train.solver projected can fit the
+// model with the Poisson fast path: Poisson loss with a softplus or exp
+// output on one-hot input, full batch. Solver auto does not choose it
+// (an epoch costs O(N B^3), more than an adam epoch at the usual sizes).
+func (c *Config) poissonProjectable() bool {
+	m, t := c.Model, c.Train
+	return m.Loss == Poisson && (m.Output == nn.Softplus || m.Output == nn.Exp) && c.Axis.Encoding == OneHot && t.BatchSize == 0
+}
+
+// SolverToRun is the solver a fit of this config runs: train.solver, with
+// auto resolved to the fastest exact solver the model allows.
+func (c *Config) SolverToRun() Solver {
+	if c.Train.Solver != SolverAuto {
+		return c.Train.Solver
+	}
+	if c.projectable() {
+		return SolverProjected
+	}
+	return SolverAdam
 }
 
 // Shape is the nn.Shape the config describes for nbins positions and n

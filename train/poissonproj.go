@@ -720,7 +720,7 @@ func fitPoissonProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *
 		}
 	}
 	pp.readout(net)
-	return &Fitted{Net: net, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop, Curves: pp.curves()}, nil
+	return &Fitted{Net: net, Solver: SolverProjected, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop, Curves: pp.curves()}, nil
 }
 
 // poissonSolver plugs the Poisson fast path into the epoch loop, as

@@ -570,7 +570,7 @@ func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpo
 	if err := pj.readout(net); err != nil {
 		return nil, err
 	}
-	return &Fitted{Net: net, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop, Curves: pj.curves()}, nil
+	return &Fitted{Net: net, Solver: SolverProjected, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop, Curves: pj.curves()}, nil
 }
 
 // projectedSolver plugs the projector into the epoch loop: the optimiser

@@ -48,9 +48,12 @@ const (
 type Solver int
 
 const (
+	// SolverAuto is the default: the fastest exact solver the model
+	// allows (SolverProjected where it applies, SolverAdam otherwise).
+	SolverAuto Solver = iota
 	// SolverAdam trains every weight by gradient steps: the reference, and
 	// what every model can use.
-	SolverAdam Solver = iota
+	SolverAdam
 	// SolverProjected computes the readout in closed form and trains the
 	// filters on the projected loss (MSE, identity output, one-hot input,
 	// full batch).
@@ -73,7 +76,7 @@ var (
 	lossWords      = []string{"mse", "poisson"}
 	encodingWords  = []string{"onehot", "soft"}
 	optimizerWords = []string{"adam", "adamw"}
-	solverWords    = []string{"adam", "projected"}
+	solverWords    = []string{"auto", "adam", "projected"}
 	borderWords    = []string{"auto", "zero", "circular", "valid"}
 )
 
