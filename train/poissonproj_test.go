@@ -2,6 +2,7 @@ package train
 
 import (
 	"context"
+	"errors"
 	"math"
 	"math/rand/v2"
 	"slices"
@@ -421,5 +422,66 @@ func TestPoissonFitDeterministic(t *testing.T) {
 		if math.Abs(a.Curves[i]-want[i]) > 1e-9*math.Max(1, math.Abs(want[i])) {
 			t.Fatalf("curve value %d: %g, the net's forward pass %g", i, a.Curves[i], want[i])
 		}
+	}
+}
+
+// TestPoissonResumeState interrupts a fast-path fit in the epoch loop and
+// resumes it with the checkpoint and the solver state (saveState /
+// loadState): the weights must equal those of an uninterrupted fit bit
+// for bit.
+func TestPoissonResumeState(t *testing.T) {
+	p, _ := popPrepared(t, popSpec{Neurons: 20, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, Seed: 9},
+		func(c *Config) {
+			c.Train.Solver = SolverProjected
+			c.Train.MaxEpochs = 40
+			c.Train.Patience = 1000
+			c.Model.Layers = []LayerConfig{{Channels: 3, Kernel: 5, Stride: 2}}
+		})
+	newSolver := func() *poissonSolver {
+		net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
+		net.InitConvs(rand.New(rand.NewPCG(p.Cfg.Seed, 0x1417)))
+		pp, err := newPoissonProj(p, net)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return &poissonSolver{pp: pp, net: net}
+	}
+	whole := newSolver()
+	if _, err := runEpochs(context.Background(), whole, p.Cfg.Train, Hooks{}, nil); err != nil {
+		t.Fatal(err)
+	}
+	first := newSolver()
+	ctx, cancel := context.WithCancel(context.Background())
+	var saved *Checkpoint
+	var state []float64
+	hooks := Hooks{
+		OnEpoch: func(e EpochLog) {
+			if e.Epoch == 17 {
+				cancel()
+			}
+		},
+		Checkpoint: func(c *Checkpoint) error {
+			cp := *c
+			cp.Params, cp.M, cp.V = slices.Clone(c.Params), slices.Clone(c.M), slices.Clone(c.V)
+			cp.Best, cp.Log = slices.Clone(c.Best), slices.Clone(c.Log)
+			saved, state = &cp, first.saveState()
+			return nil
+		},
+	}
+	if _, err := runEpochs(ctx, first, p.Cfg.Train, hooks, nil); !errors.Is(err, ErrInterrupted) {
+		t.Fatalf("interrupted fit returned %v", err)
+	}
+	again := newSolver()
+	if err := again.loadState(state); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := runEpochs(context.Background(), again, p.Cfg.Train, Hooks{}, saved); err != nil {
+		t.Fatal(err)
+	}
+	if !slices.Equal(whole.net.Params[:whole.pp.nconv], again.net.Params[:again.pp.nconv]) {
+		t.Error("resumed filters differ from the uninterrupted fit's")
+	}
+	if err := again.loadState(state[:len(state)-1]); err == nil {
+		t.Error("a truncated state was accepted")
 	}
 }
