@@ -98,7 +98,10 @@ type ModelConfig struct {
 	Layers    []LayerConfig `yaml:"layers"`
 	Output    nn.Activation `yaml:"output"`
 	Loss      Loss          `yaml:"loss"`
-	ReadoutL2 float64       `yaml:"readout_l2"`
+	ReadoutL2 Penalty       `yaml:"readout_l2"`
+	// ReadoutL2PerNeuron, with readout_l2 auto, chooses one penalty per
+	// neuron (by its own C_p, eval/methods.md §12) instead of one for all.
+	ReadoutL2PerNeuron bool `yaml:"readout_l2_per_neuron"`
 }
 
 // TrainConfig is the optimiser and the stopping rule.
@@ -157,7 +160,7 @@ func Defaults() Config {
 			Layers:    []LayerConfig{{Channels: 8, Kernel: 9, Stride: 1}},
 			Output:    nn.Identity,
 			Loss:      MSE,
-			ReadoutL2: 1,
+			ReadoutL2: AutoPenalty,
 		},
 		Train: TrainConfig{
 			Optimizer:       OptimizerAdam,
@@ -284,8 +287,11 @@ func (c *Config) Validate() error {
 			bad("model.loss poisson needs the raw non-negative counts: set split.zscore: false")
 		}
 	}
-	if !(m.ReadoutL2 >= 0) || math.IsInf(m.ReadoutL2, 0) {
-		bad("model.readout_l2 %v: want a finite value >= 0", m.ReadoutL2)
+	if !(m.ReadoutL2.Value >= 0) || math.IsInf(m.ReadoutL2.Value, 0) {
+		bad("model.readout_l2 %v: want auto or a finite value >= 0", m.ReadoutL2)
+	}
+	if m.ReadoutL2PerNeuron && !m.ReadoutL2.Auto {
+		bad("model.readout_l2_per_neuron needs model.readout_l2: auto (a fixed number is one penalty for all neurons)")
 	}
 	t := c.Train
 	if !(t.LearningRate > 0) || math.IsInf(t.LearningRate, 0) {

@@ -130,7 +130,7 @@ func newPoissonProj(p *Prepared, net *nn.Net) (*poissonProj, error) {
 	if net.Output != nn.Softplus && net.Output != nn.Exp {
 		return nil, fmt.Errorf("train: the Poisson fast path needs model.output softplus or exp")
 	}
-	if !(cfg.Model.ReadoutL2 > 0) {
+	if !(cfg.Model.ReadoutL2.Value > 0) {
 		return nil, fmt.Errorf("train: the Poisson fast path needs model.readout_l2 > 0 (it is %v)", cfg.Model.ReadoutL2)
 	}
 	B, N, F := p.NBins, p.Neurons(), net.Features()
@@ -147,7 +147,7 @@ func newPoissonProj(p *Prepared, net *nn.Net) (*poissonProj, error) {
 	}
 	pp.Bt = Bt
 	pp.W = float64(len(p.Train))
-	pp.mu = cfg.Model.ReadoutL2 * pp.W / 2
+	pp.mu = cfg.Model.ReadoutL2.Value * pp.W / 2
 	pp.cnt = make([]float64, Bt)
 	pp.sum = make([]float64, N*Bt)
 	for r, b := range pp.rows {

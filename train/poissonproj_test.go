@@ -24,7 +24,7 @@ func poissonCase(t *testing.T, output nn.Activation, l2 float64) (*Prepared, *nn
 	p, _ := popPrepared(t, popSpec{Neurons: 9, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, RareBins: 3, Seed: 5},
 		func(c *Config) {
 			c.Model.Output = output
-			c.Model.ReadoutL2 = l2
+			c.Model.ReadoutL2 = Penalty{Value: l2}
 			c.Model.Layers = []LayerConfig{{Channels: 3, Kernel: 5, Stride: 2}}
 		})
 	net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
@@ -289,7 +289,7 @@ func TestPoissonFastVsAdam(t *testing.T) {
 		t.Skip("fits two models on 200 neurons")
 	}
 	spec := popSpec{Neurons: 200, Trials: 2400, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 21}
-	edit := func(c *Config) { c.Model.ReadoutL2 = 0.01; c.Train.Patience = 50 }
+	edit := func(c *Config) { c.Model.ReadoutL2 = Penalty{Value: 0.01}; c.Train.Patience = 50 }
 	p, truth := popPrepared(t, spec, edit)
 	t0 := time.Now()
 	fa, err := Fit(context.Background(), p, Hooks{}, nil)

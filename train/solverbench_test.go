@@ -191,7 +191,7 @@ func BenchmarkPoissonFastVsAdam(b *testing.B) {
 		n := 1000
 		b.Run(fmt.Sprintf("neurons=%d/readout_l2=%g", n, l2), func(b *testing.B) {
 			p, truth := popPrepared(b, popSpec{Neurons: n, Trials: 3000, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 41},
-				func(c *Config) { c.Model.ReadoutL2 = l2; c.Train.Patience = 100 })
+				func(c *Config) { c.Model.ReadoutL2 = Penalty{Value: l2}; c.Train.Patience = 100 })
 			cm, or := testR2(p, condMeanPred(p)), testR2(p, truth)
 			for range b.N {
 				t0 := time.Now()
@@ -286,7 +286,7 @@ func BenchmarkPoissonPenalty(b *testing.B) {
 	for _, l2 := range []float64{1, 0.01} {
 		b.Run(fmt.Sprintf("readout_l2=%g", l2), func(b *testing.B) {
 			p, truth := popPrepared(b, popSpec{Neurons: 1000, Trials: 3000, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 41},
-				func(c *Config) { c.Model.ReadoutL2 = l2; c.Train.Patience = 100 })
+				func(c *Config) { c.Model.ReadoutL2 = Penalty{Value: l2}; c.Train.Patience = 100 })
 			cm, or := testR2(p, condMeanPred(p)), testR2(p, truth)
 			for range b.N {
 				f, err := fitPoissonProjected(context.Background(), p, Hooks{}, nil)
