@@ -100,7 +100,8 @@ type ModelConfig struct {
 	Loss      Loss          `yaml:"loss"`
 	ReadoutL2 Penalty       `yaml:"readout_l2"`
 	// ReadoutL2PerNeuron, with readout_l2 auto, chooses one penalty per
-	// neuron (by its own C_p, eval/methods.md §12) instead of one for all.
+	// neuron (by its own C_p, eval/methods.md §12) instead of one for all
+	// (default true; a fixed number is one penalty for all neurons).
 	ReadoutL2PerNeuron bool `yaml:"readout_l2_per_neuron"`
 }
 
@@ -157,10 +158,11 @@ func Defaults() Config {
 			ZScore:             true,
 		},
 		Model: ModelConfig{
-			Layers:    []LayerConfig{{Channels: 8, Kernel: 9, Stride: 1}},
-			Output:    nn.Identity,
-			Loss:      MSE,
-			ReadoutL2: AutoPenalty,
+			Layers:             []LayerConfig{{Channels: 8, Kernel: 9, Stride: 1}},
+			Output:             nn.Identity,
+			Loss:               MSE,
+			ReadoutL2:          AutoPenalty,
+			ReadoutL2PerNeuron: true,
 		},
 		Train: TrainConfig{
 			Optimizer:       OptimizerAdam,
@@ -290,9 +292,7 @@ func (c *Config) Validate() error {
 	if !(m.ReadoutL2.Value >= 0) || math.IsInf(m.ReadoutL2.Value, 0) {
 		bad("model.readout_l2 %v: want auto or a finite value >= 0", m.ReadoutL2)
 	}
-	if m.ReadoutL2PerNeuron && !m.ReadoutL2.Auto {
-		bad("model.readout_l2_per_neuron needs model.readout_l2: auto (a fixed number is one penalty for all neurons)")
-	}
+
 	t := c.Train
 	if !(t.LearningRate > 0) || math.IsInf(t.LearningRate, 0) {
 		bad("train.learning_rate %v: want a finite value > 0", t.LearningRate)
