@@ -187,6 +187,7 @@ func Acuity(ctx context.Context, p *Prepared, progress AcuityProgress) (*AcuityR
 					return nil, fmt.Errorf("acuity: decoder model: %w", err)
 				}
 				d.Pred[f] = u.Curves
+				say("decoder %s: encoder of fold %d of %d fitted (%d epochs)", r.Name, f+1, len(folds), u.Epochs)
 			}
 		}
 		dec := make([]int, T)

@@ -84,6 +84,17 @@ func TestAcuityEndToEnd(t *testing.T) {
 		}
 	}
 	checkInBrowser(t, report, "acuity-report")
+
+	// stria export writes the same figures elsewhere.
+	other := filepath.Join(dir, "figs")
+	if got, err = runCLI(t, "export", "--out", other, out); err != nil || !strings.Contains(got, "exported 6 figures of the acuity folder") {
+		t.Errorf("stria export of the acuity folder: %v\n%s", err, got)
+	}
+	sa, _ := os.ReadFile(filepath.Join(figs, "acuity_saturation.svg"))
+	sb, _ := os.ReadFile(filepath.Join(other, "acuity_saturation.svg"))
+	if len(sa) == 0 || string(sa) != string(sb) {
+		t.Error("stria export and stria report drew different acuity_saturation.svg files")
+	}
 }
 
 // TestAcuityRefusesBadConfig checks that a bad acuity setting is refused

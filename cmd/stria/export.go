@@ -12,7 +12,7 @@ import (
 func exportCommand() *cli.Command {
 	return &cli.Command{
 		Name:      "export",
-		Usage:     "write figures (SVG, PNG) and the arrays they are drawn from, for a run or comparison folder",
+		Usage:     "write figures (SVG, PNG) and the arrays they are drawn from, for a run, comparison or acuity folder",
 		ArgsUsage: "FOLDER",
 		Flags: []cli.Flag{
 			&cli.StringFlag{Name: "out", Usage: "output `FOLDER` (default: FOLDER/" + runfolder.DirFigures + ")"},
@@ -25,7 +25,16 @@ func exportCommand() *cli.Command {
 			}
 			opt := exportOptions(c)
 			opt.Out = c.String("out")
-			ex, err := export.Folder(c.Args().First(), opt)
+			var ex *export.Exported
+			var err error
+			if dir := c.Args().First(); runfolder.IsAcuity(dir) {
+				if opt.Neurons != "" || opt.Compare != "" {
+					return fmt.Errorf("export: %s is an acuity folder; --neurons and --compare apply to run folders only", dir)
+				}
+				ex, _, err = export.AcuityFigures(dir, opt.Out)
+			} else {
+				ex, err = export.Folder(dir, opt)
+			}
 			if err != nil {
 				return err
 			}
