@@ -2,10 +2,14 @@ package train
 
 import (
 	"context"
+	"math"
 	"reflect"
 	"slices"
 	"strings"
 	"testing"
+
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/nn"
 )
 
 // TestAcuityConfigErrors checks that every bad setting of the acuity
@@ -130,5 +134,42 @@ func TestAcuityUsesCompareFolds(t *testing.T) {
 	}
 	if !reflect.DeepEqual(again.Curve, res.Curve) || again.Fit != res.Fit || again.Decoders[0].Summary.MAE != res.Decoders[0].Summary.MAE || again.Decoders[1].Summary.MAE != res.Decoders[1].Summary.MAE {
 		t.Error("the same config gave other numbers")
+	}
+}
+
+// TestAcuityPoissonModel checks that a count model is decoded with the
+// Poisson likelihood, and that it decodes the synthetic heading far better
+// than chance (60 bins of 6 deg: a random guess has a mean absolute error
+// of about 90 deg [computed: uniform error on a circle]).
+func TestAcuityPoissonModel(t *testing.T) {
+	rec, _, _ := data.Synth(data.SynthConfig{Neurons: 40, Trials: 1200, Bins: 60, TwoPeakFrac: 0.25, UntunedFrac: 0.1, GainSD: 0.15, Poisson: true, Seed: 5})
+	cfg := Defaults()
+	cfg.Data.Responses = "synthetic"
+	cfg.Axis = AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 6, Encoding: OneHot}
+	cfg.Split.KeepBlocks, cfg.Split.ZScore = false, false
+	cfg.Model.Loss, cfg.Model.Output = Poisson, nn.Softplus
+	cfg.Train.MaxEpochs, cfg.Train.Patience = 200, 30
+	cfg.Acuity.Decoders = []AcuityDecoder{DecoderModel}
+	cfg.Acuity.Repeats, cfg.Acuity.Bootstrap, cfg.Acuity.DecodeRepeats, cfg.Acuity.SizeCount = 3, 0, 1, 3
+	if err := cfg.Validate(); err != nil {
+		t.Fatal(err)
+	}
+	p, err := PrepareRecording(&cfg, rec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	res, err := Acuity(context.Background(), p, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.Decoders) != 1 || res.Decoders[0].Name != "model-poisson" {
+		t.Fatalf("decoders %v, want model-poisson alone", res.Decoders)
+	}
+	if mae := res.Decoders[0].Summary.MAE; !(mae < 30) {
+		t.Errorf("Poisson model decoder: mean absolute error %.1f deg, want well below chance (about 90 deg)", mae)
+	}
+	// No bootstrap: no interval.
+	if res.FitError == "" && (!math.IsNaN(res.Fit.Lo) || !math.IsNaN(res.Fit.Hi)) {
+		t.Errorf("bootstrap 0: interval %v to %v, want NaN", res.Fit.Lo, res.Fit.Hi)
 	}
 }
