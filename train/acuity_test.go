@@ -148,7 +148,7 @@ func TestAcuityPoissonModel(t *testing.T) {
 	cfg.Axis = AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 6, Encoding: OneHot}
 	cfg.Split.KeepBlocks, cfg.Split.ZScore = false, false
 	cfg.Model.Loss, cfg.Model.Output = Poisson, nn.Softplus
-	cfg.Train.MaxEpochs, cfg.Train.Patience = 200, 30
+	cfg.Train.MaxEpochs, cfg.Train.Patience = 80, 20
 	cfg.Acuity.Decoders = []AcuityDecoder{DecoderModel}
 	cfg.Acuity.Repeats, cfg.Acuity.Bootstrap, cfg.Acuity.DecodeRepeats, cfg.Acuity.SizeCount = 3, 0, 1, 3
 	if err := cfg.Validate(); err != nil {
