@@ -164,6 +164,7 @@ func WriteAcuityReport(dir, out string) (string, error) {
 func AcuitySections(ex *Exported, f *runfolder.AcuityFolder) []report.Section {
 	info := f.Info
 	unit := orUnits(info.Axis.Unit)
+	infoUnit := "1/" + unit + "²"
 	caution := func(i int) []string {
 		if i < len(info.Cautions) {
 			return info.Cautions[i : i+1]
@@ -180,13 +181,13 @@ func AcuitySections(ex *Exported, f *runfolder.AcuityFolder) []report.Section {
 			return false
 		})
 	}
-	pairs := report.Table{Caption: fmt.Sprintf("Information between neighbouring conditions for random subsets of %d neurons, mean over %d subsets (%s); se is the analytic standard error for Gaussian noise, threshold at d' = 1 in %s.", firstSize(f), info.Repeats, runfolder.FileInfoPairs, unit),
+	pairs := report.Table{Caption: fmt.Sprintf("Information between neighbouring conditions for random subsets of %d neurons, mean over %d subsets (%s): information in %s, its sd over subsets and its analytic standard error for Gaussian noise (se); threshold at d' = 1 in %s.", firstSize(f), info.Repeats, runfolder.FileInfoPairs, infoUnit, unit),
 		Header:  []string{"stimulus", "trials A", "trials B", "information", "sd", "se", "threshold", "shuffled", "shuffled threshold"},
 		Numeric: []bool{true, true, true, true, true, true, true, true, true}}
 	for _, r := range f.Pairs {
 		pairs.Rows = append(pairs.Rows, []string{g4(r.Stim), strconv.Itoa(r.TA), strconv.Itoa(r.TB), g4(r.Info), g4(r.InfoSD), g4(r.SE), g4(r.Threshold), g4(r.Shuffled), g4(r.ShuffledThreshold)})
 	}
-	sizes := report.Table{Caption: "Information (mean over pairs) against the number of neurons: mean and sd over random subsets, and the saturation fit (" + runfolder.FileInfoVsSize + ").",
+	sizes := report.Table{Caption: "Information (mean over pairs, " + infoUnit + ") against the number of neurons: mean and sd over random subsets, and the saturation fit (" + runfolder.FileInfoVsSize + ").",
 		Header: []string{"neurons", "information", "sd", "shuffled", "shuffled sd", "fit"}, Numeric: []bool{true, true, true, true, true, true}}
 	for _, r := range f.Sizes {
 		sizes.Rows = append(sizes.Rows, []string{strconv.Itoa(r.Size), g4(r.Info), g4(r.InfoSD), g4(r.Shuffled), g4(r.ShuffledSD), g4(r.Fit)})
@@ -194,8 +195,8 @@ func AcuitySections(ex *Exported, f *runfolder.AcuityFolder) []report.Section {
 	sat := info.Saturation
 	satText := "The saturation model could not be fitted: " + sat.Error
 	if sat.Error == "" {
-		satText = fmt.Sprintf("Saturation fit I(N) = a N/(1 + eps a N): a = %s per neuron, eps = %s; asymptotic information 1/eps = %s (EXTRAPOLATION; 95%% bootstrap interval over the subsets %s to %s, %d resamples), threshold of an infinite population %s %s; rms residual %s.",
-			g4(float64(sat.A)), g4(float64(sat.Eps)), g4(float64(sat.Asymptote)), g4(float64(sat.Lo)), g4(float64(sat.Hi)), sat.Boot, g4(1/math.Sqrt(float64(sat.Asymptote))), unit, g4(float64(sat.RMS)))
+		satText = fmt.Sprintf("Saturation fit I(N) = a N/(1 + eps a N): a = %s %s per neuron, eps = %s %s²; asymptotic information 1/eps = %s %s (EXTRAPOLATION; 95%% bootstrap interval over the subsets %s to %s, %d resamples), so a threshold of an infinite population of %s %s; rms residual %s %s.",
+			g4(float64(sat.A)), infoUnit, g4(float64(sat.Eps)), unit, g4(float64(sat.Asymptote)), infoUnit, g4(float64(sat.Lo)), g4(float64(sat.Hi)), sat.Boot, g4(1/math.Sqrt(float64(sat.Asymptote))), unit, g4(float64(sat.RMS)), infoUnit)
 	}
 	dec := report.Table{Caption: "Cross-validated decoding of the held-out trials with all neurons (" + runfolder.FileDecodingSummary + "); errors in " + unit + circularText(info.Axis) + ".",
 		Header: []string{"decoder", "trials", "accuracy", "mean abs error", "s.e.m.", "rms error", "left out"}, Numeric: []bool{false, true, true, true, true, true, true}}
