@@ -2,7 +2,8 @@
 // once from YAML, checked by Validate), preparation of a recording (bins,
 // checks, the split, z-scoring), the epoch loop that every solver plugs
 // into, the two solvers, and the glue that scores a fit on its test
-// trials. It reads recordings through package data and writes no files;
+// trials; Acuity runs stria acuity's analysis (eval/acuity) on compare's
+// folds. It reads recordings through package data and writes no files;
 // the on-disk format of run and comparison folders lives in
 // train/runfolder, comparisons in train/compare, figures and reports in
 // train/export.

@@ -1,4 +1,5 @@
-// Package export writes the figures of a finished run or comparison folder
+// Package export writes the figures of a finished run, comparison or
+// acuity folder
 // (SVG and PNG, with the arrays each figure is drawn from beside it, in the
 // folder's figures/) and one self-contained HTML report of it. Everything
 // it reads comes through train/runfolder's readers, which refuse a folder

@@ -1,7 +1,7 @@
 // Package runfolder is the on-disk format of stria's run folders (written
-// by stria fit) and comparison folders (written by stria compare and
-// stria gather): every file of both is written and read back here, and
-// nowhere else.
+// by stria fit), comparison folders (written by stria compare and stria
+// gather) and acuity folders (stria acuity, acuity.go): every file of them
+// is written and read back here, and nowhere else.
 //
 // Conventions:
 //
