@@ -1,7 +1,7 @@
 // Package export writes the figures of a finished run, comparison or
-// acuity folder
-// (SVG and PNG, with the arrays each figure is drawn from beside it, in the
-// folder's figures/) and one self-contained HTML report of it. Everything
+// acuity folder (SVG and PNG, with the arrays each figure is drawn from
+// beside it, in the folder's figures/) and one self-contained HTML report
+// of it. Everything
 // it reads comes through train/runfolder's readers, which refuse a folder
 // without complete.json; the figures come from eval/figure as bytes, and
 // the report embeds the SVG bytes it rendered (it never reads a figure back
