@@ -75,6 +75,22 @@ func AcuityFolds(folds [][3][]int) []acuity.Fold {
 	return out
 }
 
+// AcuityEncoder is a fitted encoder for the model decoder, given instead
+// of fitting one per fold (acuity.encoder: a run folder).
+type AcuityEncoder struct {
+	// Source names it (the run folder), for messages and descriptions.
+	Source string
+	// Pred is its prediction for every condition, B x N row-major, in the
+	// recording's units.
+	Pred []float64
+	// Loss is the loss it was fitted with: Poisson selects the Poisson
+	// likelihood.
+	Loss Loss
+	// Train are the trials it was fitted on (training and validation),
+	// Test its held-out trials, the only ones it decodes.
+	Train, Test []int
+}
+
 // AcuityProgress receives a line per finished step.
 type AcuityProgress func(step string)
 
@@ -87,10 +103,13 @@ type AcuityProgress func(step string)
 // trial (it is not cross-validated); decoders train on each fold's
 // training and validation trials and decode its test trials.
 //
+// With enc not nil the model decoder uses that encoder, on its own
+// held-out trials (one fold), instead of fitting one per fold.
+//
 // Random subsets and the bootstrap are seeded by cfg.Seed: the same config
 // gives the same numbers, whatever the number of cores. Errors name the
 // config key, pair, fold or trial.
-func Acuity(ctx context.Context, p *Prepared, progress AcuityProgress) (*AcuityResult, error) {
+func Acuity(ctx context.Context, p *Prepared, enc *AcuityEncoder, progress AcuityProgress) (*AcuityResult, error) {
 	cfg := p.Cfg
 	ac := cfg.Acuity
 	say := func(format string, a ...any) {
@@ -173,25 +192,38 @@ func Acuity(ctx context.Context, p *Prepared, progress AcuityProgress) (*AcuityR
 		start := time.Now()
 		d := acuity.Decoder{Kind: acuity.LinearDiscriminant, Shrinkage: ac.Shrinkage}
 		r := AcuityDecoding{Name: "lda", Description: ldaText(ac.Shrinkage)}
+		dfolds := afolds
 		if kind == DecoderModel {
 			d = acuity.Decoder{Kind: acuity.GaussianModel}
-			r.Name, r.Description = "model-gaussian", "maximum likelihood from the encoder fitted on each fold's training trials, independent Gaussian noise with per-neuron variance (the training residuals)"
-			if cfg.Model.Loss == Poisson {
-				d.Kind = acuity.PoissonModel
-				r.Name, r.Description = "model-poisson", "maximum likelihood from the encoder fitted on each fold's training trials, independent Poisson noise"
+			loss, which := cfg.Model.Loss, "the encoder fitted on each fold's training trials"
+			if enc != nil {
+				loss, which = enc.Loss, fmt.Sprintf("the encoder of the run folder %s, on its %d held-out test trials only", enc.Source, len(enc.Test))
 			}
-			d.Pred = make([][]float64, len(folds))
-			for f, sets := range folds {
-				u, err := RunUnit(ctx, p, ModelSpec{Name: "encoder", Cfg: cfg}, f, sets)
-				if err != nil {
-					return nil, fmt.Errorf("acuity: decoder model: %w", err)
+			r.Name, r.Description = "model-gaussian", "maximum likelihood from "+which+", independent Gaussian noise with per-neuron variance (the training residuals)"
+			if loss == Poisson {
+				d.Kind = acuity.PoissonModel
+				r.Name, r.Description = "model-poisson", "maximum likelihood from "+which+", independent Poisson noise"
+			}
+			if enc != nil {
+				if len(enc.Pred) != p.NBins*n {
+					return nil, fmt.Errorf("acuity.encoder %s: %d predictions, want %d conditions x %d neurons", enc.Source, len(enc.Pred), p.NBins, n)
 				}
-				d.Pred[f] = u.Curves
-				say("decoder %s: encoder of fold %d of %d fitted (%d epochs)", r.Name, f+1, len(folds), u.Epochs)
+				d.Pred = [][]float64{enc.Pred}
+				dfolds = []acuity.Fold{{Train: enc.Train, Test: enc.Test}}
+			} else {
+				d.Pred = make([][]float64, len(folds))
+				for f, sets := range folds {
+					u, err := RunUnit(ctx, p, ModelSpec{Name: "encoder", Cfg: cfg}, f, sets)
+					if err != nil {
+						return nil, fmt.Errorf("acuity: decoder model: %w", err)
+					}
+					d.Pred[f] = u.Curves
+					say("decoder %s: encoder of fold %d of %d fitted (%d epochs)", r.Name, f+1, len(folds), u.Epochs)
+				}
 			}
 		}
 		dec := make([]int, T)
-		st, err := d.Decode(dec, y, n, p.Cond, p.NBins, afolds, nil)
+		st, err := d.Decode(dec, y, n, p.Cond, p.NBins, dfolds, nil)
 		if err != nil {
 			return nil, fmt.Errorf("acuity: decoder %s: %w", r.Name, err)
 		}
@@ -209,7 +241,7 @@ func Acuity(ctx context.Context, p *Prepared, progress AcuityProgress) (*AcuityR
 		drng := rand.New(rand.NewPCG(cfg.Seed, 0xac03))
 		curve := &acuity.DecodeCurve{Repeats: ac.DecodeRepeats}
 		if len(sub) > 0 {
-			if curve, err = d.VsSize(y, n, p.Cond, ax, afolds, sub, ac.DecodeRepeats, drng); err != nil {
+			if curve, err = d.VsSize(y, n, p.Cond, ax, dfolds, sub, ac.DecodeRepeats, drng); err != nil {
 				return nil, fmt.Errorf("acuity: decoder %s against population size: %w", r.Name, err)
 			}
 		}

@@ -89,7 +89,7 @@ func TestAcuityUsesCompareFolds(t *testing.T) {
 		c.Train.MaxEpochs = 60
 	}
 	p, _ := synthPrepared(t, 30, 1200, small)
-	res, err := Acuity(context.Background(), p, nil)
+	res, err := Acuity(context.Background(), p, nil, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -131,7 +131,7 @@ func TestAcuityUsesCompareFolds(t *testing.T) {
 	}
 	// The second run on one core: the numbers must not depend on it.
 	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(1))
-	again, err := Acuity(context.Background(), q, nil)
+	again, err := Acuity(context.Background(), q, nil, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -161,7 +161,7 @@ func TestAcuityPoissonModel(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	res, err := Acuity(context.Background(), p, nil)
+	res, err := Acuity(context.Background(), p, nil, nil)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -41,6 +41,11 @@ type AcuityConfig struct {
 	// DecodeRepeats is the number of random neuron orders for decoding
 	// against N.
 	DecodeRepeats int `yaml:"decode_repeats"`
+	// Encoder is the model decoder's encoder: empty (the default) fits the
+	// model section on each fold of stria compare; a run folder of stria
+	// fit on the same recording uses that run's encoder, on that run's
+	// held-out test trials only.
+	Encoder string `yaml:"encoder"`
 	// Output is the acuity folder.
 	Output string `yaml:"output"`
 }
@@ -132,6 +137,9 @@ func (c *Config) validateAcuity(bad func(format string, a ...any)) {
 	}
 	if a.DecodeRepeats < 1 {
 		bad("acuity.decode_repeats %d: want at least 1", a.DecodeRepeats)
+	}
+	if a.Encoder != "" && !slices.Contains(a.Decoders, DecoderModel) {
+		bad("acuity.encoder %s: used only by the model decoder, which acuity.decoders does not list", a.Encoder)
 	}
 	if a.Output == "" {
 		bad("acuity.output: no acuity folder given (set it in the config or with --out)")

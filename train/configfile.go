@@ -54,7 +54,7 @@ func LoadConfig(path string) (*Config, error) {
 // folder works from anywhere.
 func (c *Config) resolvePaths() {
 	d := &c.Data
-	for _, p := range []*string{&d.Responses, &d.Stimulus, &d.Condition, &d.Block, &c.Output, &c.Compare.Output, &c.Acuity.Output} {
+	for _, p := range []*string{&d.Responses, &d.Stimulus, &d.Condition, &d.Block, &c.Output, &c.Compare.Output, &c.Acuity.Output, &c.Acuity.Encoder} {
 		*p = c.Resolve(*p)
 	}
 	// A recording's other paths are relative to its responses file.

@@ -53,6 +53,12 @@ func runAcuity(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer,
 	if err != nil {
 		return nil, err
 	}
+	var enc *train.AcuityEncoder
+	if dir := cfg.Acuity.Encoder; dir != "" {
+		if enc, err = runfolder.AcuityEncoder(dir, p); err != nil {
+			return nil, err
+		}
+	}
 	settings, err := cfg.Marshal()
 	if err != nil {
 		return nil, err
@@ -69,7 +75,7 @@ func runAcuity(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer,
 	if !quiet {
 		fmt.Fprintf(stderr, "  loaded %d trials x %d neurons, %d conditions (%.1f s)\n", len(p.Cond), p.Neurons(), p.NBins, time.Since(start).Seconds())
 	}
-	r, err := train.Acuity(ctx, p, progress)
+	r, err := train.Acuity(ctx, p, enc, progress)
 	if err != nil {
 		return nil, err
 	}

@@ -114,3 +114,55 @@ func TestAcuityRefusesBadConfig(t *testing.T) {
 		t.Error("a refused config left an output folder")
 	}
 }
+
+// TestAcuityRunEncoder checks acuity.encoder: the model decoder uses the
+// encoder of a finished run folder and decodes only that run's held-out
+// test trials, while the LDA still decodes every trial on compare's
+// folds; a folder that is not a finished run is refused, naming the key.
+func TestAcuityRunEncoder(t *testing.T) {
+	dir := t.TempDir()
+	cfgPath, _, err := writeDemo(demoOptions{dir: dir, neurons: 30, trials: 1200, seed: 3})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if out, err := runCLI(t, "fit", "--config", cfgPath, "--quiet"); err != nil {
+		t.Fatalf("stria fit: %v\n%s", err, out)
+	}
+	b, err := os.ReadFile(cfgPath)
+	if err != nil {
+		t.Fatal(err)
+	}
+	withEncoder := func(name, enc string) string {
+		p := filepath.Join(dir, name)
+		text := strings.Replace(string(b), "  output: acuity\n", "  encoder: "+enc+"\n  output: acuity\n", 1)
+		if err := os.WriteFile(p, []byte(text), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		return p
+	}
+	out := filepath.Join(dir, "acu")
+	if got, err := runCLI(t, "acuity", "--config", withEncoder("enc.yaml", "run"), "--out", out, "--quiet"); err != nil {
+		t.Fatalf("stria acuity: %v\n%s", err, got)
+	}
+	f, err := runfolder.ReadAcuity(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sp, err := runfolder.ReadSplit(filepath.Join(dir, "run"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(f.Info.Decoders) != 2 || f.Info.Decoders[0].Trials != 1200 || f.Info.Decoders[1].Trials != len(sp.Test) {
+		t.Fatalf("decoders %+v: want lda on all 1200 trials and the model on the run's %d test trials", f.Info.Decoders, len(sp.Test))
+	}
+	if d := f.Info.Decoders[1].Description; !strings.Contains(d, filepath.Join(dir, "run")) || !strings.Contains(d, "held-out test trials only") {
+		t.Errorf("model decoder description %q does not name the run folder and its test trials", d)
+	}
+	_, err = runCLI(t, "acuity", "--config", withEncoder("bad.yaml", "nowhere"), "--out", filepath.Join(dir, "acu2"), "--quiet")
+	if err == nil || !strings.Contains(err.Error(), "acuity.encoder") {
+		t.Errorf("a missing run folder: got %v, want an error naming acuity.encoder", err)
+	}
+	if _, err := os.Stat(filepath.Join(dir, "acu2")); err == nil {
+		t.Error("a refused encoder left an acuity folder")
+	}
+}

@@ -6,6 +6,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"time"
 
@@ -450,4 +451,46 @@ func (t *table) scan(i int, names []string, dst ...any) error {
 		}
 	}
 	return nil
+}
+
+// AcuityEncoder loads the encoder of the run folder dir (acuity.encoder)
+// for the model decoder of stria acuity on the prepared recording p: its
+// prediction at every bin centre (recording units), its loss, and the
+// trials of its split. The run must be finished, and fitted on a recording
+// with the same neurons, trials and bins as p (checked trial by trial);
+// errors name the folder and what differs.
+func AcuityEncoder(dir string, p *train.Prepared) (*train.AcuityEncoder, error) {
+	m, err := LoadModel(dir)
+	if err != nil {
+		return nil, fmt.Errorf("acuity.encoder: %w", err)
+	}
+	if n := m.Net.Neurons; n != p.Neurons() {
+		return nil, fmt.Errorf("acuity.encoder %s: the run has %d neurons, the recording %d", dir, n, p.Neurons())
+	}
+	if b := m.Axis.NumBins(); b != p.NBins {
+		return nil, fmt.Errorf("acuity.encoder %s: the run has %d bins, the config %d", dir, b, p.NBins)
+	}
+	sp, err := ReadSplit(dir)
+	if err != nil {
+		return nil, fmt.Errorf("acuity.encoder: %w", err)
+	}
+	if len(sp.Cond) != len(p.Cond) {
+		return nil, fmt.Errorf("acuity.encoder %s: the run's %s has %d trials, the recording %d", dir, FileSplit, len(sp.Cond), len(p.Cond))
+	}
+	for t, c := range sp.Cond {
+		if c != p.Cond[t] {
+			return nil, fmt.Errorf("acuity.encoder %s: trial %d (0-based) is in bin %d in the run's %s but in bin %d here: not the same recording or bins", dir, t, c, FileSplit, p.Cond[t])
+		}
+	}
+	pred, err := m.Predict(p.Axis.Centers())
+	if err != nil {
+		return nil, fmt.Errorf("acuity.encoder %s: %w", dir, err)
+	}
+	enc := &train.AcuityEncoder{Source: dir, Pred: make([]float64, len(pred.Data)), Loss: m.Manifest.Loss,
+		Train: append(append([]int(nil), sp.Train...), sp.Val...), Test: sp.Test}
+	for i, v := range pred.Data {
+		enc.Pred[i] = float64(v)
+	}
+	slices.Sort(enc.Train)
+	return enc, nil
 }
