@@ -35,6 +35,7 @@ func TestAcuityConfigErrors(t *testing.T) {
 		{"shrinkage", func(a *AcuityConfig) { a.Shrinkage = 1.5 }, "acuity.shrinkage 1.5"},
 		{"decode repeats", func(a *AcuityConfig) { a.DecodeRepeats = 0 }, "acuity.decode_repeats 0"},
 		{"output", func(a *AcuityConfig) { a.Output = "" }, "acuity.output"},
+		{"encoder without model decoder", func(a *AcuityConfig) { a.Encoder, a.Decoders = "run", []AcuityDecoder{DecoderLDA} }, "acuity.encoder run: used only by the model decoder"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
