@@ -47,6 +47,7 @@ type options struct {
 	adamTimeout        time.Duration
 	skipAdam, skipLoad bool
 	compare            bool
+	acuity             bool
 	keepRuns           bool
 	projectedMaxEpochs int
 	projectedPatience  int
@@ -85,6 +86,7 @@ func main() {
 	flag.DurationVar(&o.adamTimeout, "adam-timeout", 20*time.Minute, "give up the Adam comparison after this long")
 	flag.BoolVar(&o.skipAdam, "skip-adam", false, "skip the mini-batch Adam comparison")
 	flag.BoolVar(&o.compare, "compare", true, "also time stria compare (5 folds: the projected encoder and the default baselines) on the full recording")
+	flag.BoolVar(&o.acuity, "acuity", true, "also time stria acuity (default settings) on the full recording")
 	flag.BoolVar(&o.skipLoad, "skip-load", false, "skip the .npy load measurement")
 	flag.BoolVar(&o.keepRuns, "keep", true, "keep the run folders in -dir")
 	flag.IntVar(&o.projectedMaxEpochs, "max-epochs", 3000, "train.max_epochs of the projected fits")
@@ -163,6 +165,12 @@ func run(o options) error {
 		}
 	}
 
+	if o.acuity {
+		if err := timeAcuity(o, full); err != nil {
+			return err
+		}
+	}
+
 	if !o.skipAdam {
 		n, t := o.adamNeurons, o.adamTrials
 		if n <= 0 || n > o.neurons {
@@ -196,6 +204,7 @@ func run(o options) error {
 type childResult struct {
 	Wall   float64 `json:"wall"`
 	MaxRSS float64 `json:"max_rss"` // bytes
+	CPU    float64 `json:"cpu"`     // user + system seconds of the child, all threads
 	Err    string  `json:"err,omitempty"`
 	Stderr string  `json:"stderr,omitempty"`
 }
@@ -230,6 +239,7 @@ func runChild(args []string) {
 		res.Err, res.Stderr = err.Error(), stderr.String()
 	} else if ru, ok := cmd.ProcessState.SysUsage().(*syscall.Rusage); ok {
 		res.MaxRSS = float64(ru.Maxrss) * 1024 // Linux reports kilobytes
+		res.CPU = float64(ru.Utime.Nano()+ru.Stime.Nano()) / 1e9
 	}
 	json.NewEncoder(os.Stdout).Encode(res)
 }
