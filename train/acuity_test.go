@@ -177,3 +177,31 @@ func TestAcuityPoissonModel(t *testing.T) {
 		t.Errorf("bootstrap 0: interval %v to %v, want NaN", res.Fit.Lo, res.Fit.Hi)
 	}
 }
+
+// TestAcuityBoundedAxis checks a bounded axis: one pair fewer than bins
+// (no wrap pair), and decoding errors as plain differences.
+func TestAcuityBoundedAxis(t *testing.T) {
+	p, _ := synthPrepared(t, 20, 1200, func(c *Config) {
+		c.Axis.Periodic = false
+		c.Axis.BinWidth = 12
+		c.Acuity.Decoders = []AcuityDecoder{DecoderLDA}
+		c.Acuity.Repeats, c.Acuity.Bootstrap, c.Acuity.DecodeRepeats, c.Acuity.SizeCount = 3, 0, 1, 3
+	})
+	res, err := Acuity(context.Background(), p, nil, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.Pairs) != p.NBins-1 || res.Axis.Periodic() {
+		t.Errorf("%d pairs on a bounded axis of %d bins (periodic %v), want %d", len(res.Pairs), p.NBins, res.Axis.Periodic(), p.NBins-1)
+	}
+	s := res.Decoders[0].Summary
+	for i, tr := range s.Trials {
+		// The error is decoded minus true bin centre; find the decoded bin
+		// back from it and check it is a bin.
+		want := s.Err[i] + res.Axis.Values[p.Cond[tr]]
+		k := slices.Index(res.Axis.Values, want)
+		if k < 0 {
+			t.Fatalf("trial %d: error %v does not lead to a bin centre (%v): not a plain difference", tr, s.Err[i], want)
+		}
+	}
+}
