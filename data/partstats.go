@@ -1,0 +1,609 @@
+package data
+
+import (
+	"fmt"
+	"math"
+	"runtime"
+	"sync"
+)
+
+// NoPart marks a trial that belongs to no part of a StreamPlan.
+const NoPart = -1
+
+// PartSpec says which statistics AccumulateParts keeps for one part beyond
+// the counts, the per-condition sums and the per-neuron sums of squares
+// that every part gets.
+type PartSpec struct {
+	// Halves keeps the split-half sums CountA and SumA (the held-out part,
+	// for split-half reliability).
+	Halves bool
+	// CondSquares keeps the sums of squares per condition (SumSq, B x N).
+	// Without it only the per-neuron totals (TotSq) are kept. Scoring a
+	// held-out part needs it (the noise variance of eval is the mean of
+	// the per-condition variances); fitting needs only the totals.
+	CondSquares bool
+}
+
+// StreamPlan assigns every trial (row) of a recording to a part and a
+// condition for AccumulateParts.
+type StreamPlan struct {
+	NBins int
+	// Cond[t] in [0, NBins) is the condition of trial t; it is read only
+	// for trials that belong to a part.
+	Cond []int
+	// Part[t] in [0, len(Specs)) is the part of trial t, or NoPart.
+	Part []int
+	// Specs holds one entry per part.
+	Specs []PartSpec
+}
+
+// PartOf returns the part of each of T trials: trials listed in sets[i]
+// belong to part i, the others to NoPart. For stria fit the sets are the
+// training, validation and test trials. The error names a trial listed
+// twice or out of range.
+func PartOf(T int, sets ...[]int) ([]int, error) {
+	part := make([]int, T)
+	for t := range part {
+		part[t] = NoPart
+	}
+	for i, set := range sets {
+		for _, t := range set {
+			if t < 0 || t >= T {
+				return nil, fmt.Errorf("data: trial %d (0-based) of part %d is outside the recording's %d trials", t, i, T)
+			}
+			if part[t] != NoPart {
+				return nil, fmt.Errorf("data: trial %d (0-based) is in part %d and in part %d", t, part[t], i)
+			}
+			part[t] = i
+		}
+	}
+	return part, nil
+}
+
+// PartStats are the sufficient statistics of one part of a recording's
+// trials (METHODS.md §8), all in float64, for condition b and neuron n:
+//
+//	Count[b]     N_b, the part's trials of condition b
+//	Ref[n]       r_n, the response of the part's first trial (lowest index)
+//	Sum[b*N+n]   sum over the part's trials t of condition b of (y_tn - r_n)
+//	TotSq[n]     sum over all the part's trials of (y_tn - r_n)^2
+//	SumSq[b*N+n] sum over the part's trials of condition b of (y_tn - r_n)^2
+//	             (only with PartSpec.CondSquares, else nil)
+//	CountA[b], SumA[b*N+n]  the same count and sum over half A only (only
+//	             with PartSpec.Halves, else nil)
+//
+// The sums are taken relative to Ref so that a neuron constant over the
+// part has exactly zero sums, and the one-pass sums of squares lose no
+// precision to a large offset. Every element is summed in ascending trial
+// order. Split halves: within each condition the part's trials in
+// ascending index order are dealt alternately to half A (1st, 3rd, ...)
+// and half B (2nd, 4th, ...), as eval.ScorePopulation deals its (sorted)
+// held-out trials and train.SplitHalf deals trials; half B's count and sum
+// are Count - CountA and Sum - SumA.
+//
+// The field names match eval.HeldOutSums, which scores a one-hot model
+// from a PartStats with CondSquares and Halves.
+type PartStats struct {
+	B, N   int
+	Trials int // sum of Count
+	Count  []int
+	Ref    []float64
+	Sum    []float64
+	TotSq  []float64
+	SumSq  []float64
+	CountA []int
+	SumA   []float64
+}
+
+func (ps *PartStats) dstBN(dst []float64, fn string) []float64 {
+	if dst == nil {
+		return make([]float64, ps.B*ps.N)
+	}
+	if len(dst) != ps.B*ps.N {
+		panic(fmt.Sprintf("data: PartStats.%s dst length %d, want B*N = %d", fn, len(dst), ps.B*ps.N))
+	}
+	return dst
+}
+
+func (ps *PartStats) dstN(dst []float64, fn string) []float64 {
+	if dst == nil {
+		return make([]float64, ps.N)
+	}
+	if len(dst) != ps.N {
+		panic(fmt.Sprintf("data: PartStats.%s dst length %d, want N = %d", fn, len(dst), ps.N))
+	}
+	return dst
+}
+
+// Means writes the condition means ybar_bn = r_n + Sum_bn / N_b into dst
+// (B x N; allocated if nil) and returns it; empty conditions give NaN. It
+// panics if dst is not nil and not of length B*N.
+func (ps *PartStats) Means(dst []float64) []float64 {
+	dst = ps.dstBN(dst, "Means")
+	N := ps.N
+	for b, k := range ps.Count {
+		d := dst[b*N : (b+1)*N]
+		if k == 0 {
+			for n := range d {
+				d[n] = math.NaN()
+			}
+			continue
+		}
+		inv := 1 / float64(k)
+		for n, s := range ps.Sum[b*N : (b+1)*N] {
+			d[n] = ps.Ref[n] + s*inv
+		}
+	}
+	return dst
+}
+
+// grandRel writes sum_b Sum_bn / Trials (the grand mean minus Ref) into
+// dst, summing over conditions in ascending order.
+func (ps *PartStats) grandRel(dst []float64) {
+	clear(dst)
+	N := ps.N
+	for b, k := range ps.Count {
+		if k == 0 {
+			continue
+		}
+		for n, s := range ps.Sum[b*N : (b+1)*N] {
+			dst[n] += s
+		}
+	}
+	inv := 1 / float64(ps.Trials)
+	for n := range dst {
+		dst[n] *= inv
+	}
+}
+
+// GrandMean writes each neuron's mean over all the part's trials,
+// ybar_n = r_n + sum_b Sum_bn / Trials, into dst (N; allocated if nil) and
+// returns it. NaN for a part with no trials. It panics if dst is not nil
+// and not of length N.
+func (ps *PartStats) GrandMean(dst []float64) []float64 {
+	dst = ps.dstN(dst, "GrandMean")
+	if ps.Trials == 0 {
+		for n := range dst {
+			dst[n] = math.NaN()
+		}
+		return dst
+	}
+	ps.grandRel(dst)
+	for n := range dst {
+		dst[n] += ps.Ref[n]
+	}
+	return dst
+}
+
+// CentredMeans writes ybar_bn - ybar_n, each condition mean minus the
+// neuron's grand mean over the part (the trial-weighted mean of the
+// condition means), into dst (B x N; allocated if nil) and returns it;
+// empty conditions give NaN. This is Yc of train's projected solver
+// before z-scoring. It panics like Means.
+func (ps *PartStats) CentredMeans(dst []float64) []float64 {
+	dst = ps.dstBN(dst, "CentredMeans")
+	g := make([]float64, ps.N)
+	if ps.Trials > 0 {
+		ps.grandRel(g)
+	}
+	N := ps.N
+	for b, k := range ps.Count {
+		d := dst[b*N : (b+1)*N]
+		if k == 0 {
+			for n := range d {
+				d[n] = math.NaN()
+			}
+			continue
+		}
+		inv := 1 / float64(k)
+		for n, s := range ps.Sum[b*N : (b+1)*N] {
+			d[n] = s*inv - g[n]
+		}
+	}
+	return dst
+}
+
+// WithinSS writes each neuron's within-condition sum of squares,
+//
+//	sum_b sum_{t in b} (y_tn - ybar_bn)^2 = TotSq_n - sum_b Sum_bn^2 / N_b,
+//
+// into dst (N; allocated if nil) and returns it; tiny negative results of
+// rounding are set to 0. Only per-neuron totals of squares are needed.
+// It panics like GrandMean.
+func (ps *PartStats) WithinSS(dst []float64) []float64 {
+	dst = ps.dstN(dst, "WithinSS")
+	copy(dst, ps.TotSq)
+	N := ps.N
+	for b, k := range ps.Count {
+		if k == 0 {
+			continue
+		}
+		inv := 1 / float64(k)
+		for n, s := range ps.Sum[b*N : (b+1)*N] {
+			dst[n] -= s * s * inv
+		}
+	}
+	for n, v := range dst {
+		dst[n] = max(v, 0)
+	}
+	return dst
+}
+
+// TotalSS writes each neuron's sum of squares about its grand mean over
+// the part, TotSq_n - (sum_b Sum_bn)^2 / Trials, into dst (N; allocated if
+// nil) and returns it; tiny negative results of rounding are set to 0 and
+// a part with no trials gives 0. It panics like GrandMean.
+func (ps *PartStats) TotalSS(dst []float64) []float64 {
+	dst = ps.dstN(dst, "TotalSS")
+	if ps.Trials == 0 {
+		clear(dst)
+		return dst
+	}
+	ps.grandRel(dst)
+	for n, g := range dst {
+		dst[n] = max(ps.TotSq[n]-g*g*float64(ps.Trials), 0)
+	}
+	return dst
+}
+
+// CondStats converts the statistics of a part kept with CondSquares to a
+// CondStats (absolute sums, Sum_b + N_b r and SumSq_b + 2 r Sum_b + N_b
+// r^2), for code written against CondStats. It panics if the part was
+// accumulated without CondSquares.
+func (ps *PartStats) CondStats() *CondStats {
+	if ps.SumSq == nil {
+		panic("data: PartStats.CondStats needs a part accumulated with CondSquares")
+	}
+	N := ps.N
+	cs := &CondStats{B: ps.B, N: N, Count: append([]int(nil), ps.Count...),
+		Sum: make([]float64, ps.B*N), SumSq: make([]float64, ps.B*N)}
+	for b, k := range ps.Count {
+		if k == 0 {
+			continue
+		}
+		c := float64(k)
+		for n := 0; n < N; n++ {
+			r, s, q := ps.Ref[n], ps.Sum[b*N+n], ps.SumSq[b*N+n]
+			cs.Sum[b*N+n] = s + c*r
+			cs.SumSq[b*N+n] = q + 2*r*s + c*r*r
+		}
+	}
+	return cs
+}
+
+// NormalizerFromParts is NormalizerFromStats for PartStats: the z-scoring
+// (ddof 0) of all the trials of the given parts, from their sums alone.
+// The mean is the trial-weighted mean of the parts' grand means; the sum
+// of squares adds each part's TotalSS and Trials (part mean - mean)^2. A
+// neuron whose standard deviation is not above 1e-6 of its mean magnitude
+// counts as constant and gets Scale 1, as in NormalizerFromStats. It
+// panics if no part has a trial or the parts differ in N.
+func NormalizerFromParts(parts ...*PartStats) *Normalizer {
+	N := parts[0].N
+	z := &Normalizer{Mean: make([]float64, N), Scale: make([]float64, N)}
+	total := 0
+	means := make([][]float64, len(parts))
+	for i, ps := range parts {
+		if ps.N != N {
+			panic(fmt.Sprintf("data: NormalizerFromParts parts of %d and %d neurons", N, ps.N))
+		}
+		total += ps.Trials
+		if ps.Trials == 0 {
+			continue
+		}
+		means[i] = ps.GrandMean(nil)
+		w := float64(ps.Trials)
+		for n, m := range means[i] {
+			z.Mean[n] += w * m
+		}
+	}
+	if total == 0 {
+		panic("data: NormalizerFromParts with no trials")
+	}
+	for n := range z.Mean {
+		z.Mean[n] /= float64(total)
+	}
+	ss := make([]float64, N)
+	for i, ps := range parts {
+		if ps.Trials == 0 {
+			continue
+		}
+		ps.TotalSS(ss)
+		w := float64(ps.Trials)
+		for n, v := range ss {
+			d := means[i][n] - z.Mean[n]
+			z.Scale[n] += v + w*d*d
+		}
+	}
+	for n, v := range z.Scale {
+		sd := math.Sqrt(max(v, 0) / float64(total))
+		if !(sd > 1e-6*math.Abs(z.Mean[n])) || math.IsInf(sd, 0) {
+			sd = 1
+		}
+		z.Scale[n] = sd
+	}
+	return z
+}
+
+// StreamOptions tune AccumulateParts; the zero value is the default.
+type StreamOptions struct {
+	// BlockBytes is the size of one row-block buffer (0: 16 MiB). Two are
+	// used, one being read while the other is summed; a block holds at
+	// least one row.
+	BlockBytes int
+	// Workers is the number of goroutines summing a block, each owning a
+	// range of neurons (0: GOMAXPROCS). The result does not depend on it.
+	Workers int
+}
+
+// AccumulateParts passes once over the rows of s and returns the
+// statistics of each part of plan (one PartStats per Specs entry, in
+// order). Memory is the parts' statistics (B x N float64 for Sum, and as
+// much again for SumSq and for SumA where kept) plus two row blocks;
+// nothing is of size trials x neurons.
+//
+// One goroutine reads the next block (pread) while the others sum the
+// current one, each owning a fixed range of neurons, so every element is
+// summed in ascending trial order whatever the number of workers: the
+// result is the same on any machine for the same file and plan.
+//
+// Errors: a plan whose lengths do not match the file's rows, a condition
+// or part out of range (the trial is named), a read error, and a
+// non-finite response in a trial of a part (the neuron and trial are
+// named; found after the pass from the sums, then located with one small
+// read per trial).
+func AccumulateParts(s *NPYStream, plan StreamPlan, opt StreamOptions) ([]*PartStats, error) {
+	T, N, B := s.Rows(), s.Cols(), plan.NBins
+	if len(plan.Cond) != T || len(plan.Part) != T {
+		return nil, fmt.Errorf("data: %s has %d trials (rows), but the plan has %d conditions and %d part labels", s.Name(), T, len(plan.Cond), len(plan.Part))
+	}
+	if B < 1 {
+		return nil, fmt.Errorf("data: %s: the plan has %d conditions; need at least 1", s.Name(), B)
+	}
+	P := len(plan.Specs)
+	parts := make([]*PartStats, P)
+	first := make([]int, P)
+	for i := range parts {
+		parts[i] = &PartStats{B: B, N: N, Count: make([]int, B)}
+		first[i] = -1
+	}
+	// half[t]: trial t goes to half A of its part's condition.
+	half := make([]bool, T)
+	for t, p := range plan.Part {
+		if p == NoPart {
+			continue
+		}
+		if p < 0 || p >= P {
+			return nil, fmt.Errorf("data: %s: trial %d (0-based) has part %d, outside [0, %d)", s.Name(), t, p, P)
+		}
+		c := plan.Cond[t]
+		if c < 0 || c >= B {
+			return nil, fmt.Errorf("data: %s: trial %d (0-based) has condition %d, outside [0, %d)", s.Name(), t, c, B)
+		}
+		ps := parts[p]
+		half[t] = ps.Count[c]%2 == 0
+		ps.Count[c]++
+		ps.Trials++
+		if first[p] < 0 {
+			first[p] = t
+		}
+	}
+	for i, ps := range parts {
+		ps.Ref = make([]float64, N)
+		ps.TotSq = make([]float64, N)
+		ps.Sum = make([]float64, B*N)
+		if plan.Specs[i].CondSquares {
+			ps.SumSq = make([]float64, B*N)
+		}
+		if plan.Specs[i].Halves {
+			ps.SumA = make([]float64, B*N)
+			ps.CountA = make([]int, B)
+			for c, k := range ps.Count {
+				ps.CountA[c] = (k + 1) / 2
+			}
+		}
+	}
+	// The reference rows.
+	row := make([]float32, N)
+	for i, t := range first {
+		if t < 0 {
+			continue
+		}
+		if _, err := s.ReadRows32(row, t, t+1); err != nil {
+			return nil, err
+		}
+		for n, v := range row {
+			parts[i].Ref[n] = float64(v)
+		}
+	}
+	row = nil
+
+	blockBytes := opt.BlockBytes
+	if blockBytes <= 0 {
+		blockBytes = 16 << 20
+	}
+	R := max(1, blockBytes/max(4*N, 1))
+	R = min(R, max(T, 1))
+	workers := opt.Workers
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	workers = max(1, min(workers, N/256)) // at least 256 neurons each
+	acc := &accumulator{parts: parts, plan: &plan, half: half, N: N}
+
+	type block struct {
+		lo, hi, buf int
+		err         error
+	}
+	bufs := [2][]float32{make([]float32, R*N), make([]float32, R*N)}
+	free := make(chan int, 2)
+	free <- 0
+	free <- 1
+	full := make(chan block, 1)
+	done := make(chan struct{})
+	go func() {
+		defer close(full)
+		for lo := 0; lo < T; lo += R {
+			hi := min(lo+R, T)
+			if !acc.anyPart(lo, hi) {
+				continue
+			}
+			var i int
+			select {
+			case i = <-free:
+			case <-done:
+				return
+			}
+			_, err := s.ReadRows32(bufs[i], lo, hi)
+			full <- block{lo, hi, i, err}
+			if err != nil {
+				return
+			}
+		}
+	}()
+	var err error
+	var wg sync.WaitGroup
+	chunk := (N + workers - 1) / workers
+	for bk := range full {
+		if bk.err != nil {
+			err = bk.err
+			break
+		}
+		y := bufs[bk.buf]
+		for c0 := chunk; c0 < N; c0 += chunk {
+			wg.Add(1)
+			go func(c0, c1 int) {
+				defer wg.Done()
+				acc.add(y, bk.lo, bk.hi, c0, c1)
+			}(c0, min(c0+chunk, N))
+		}
+		acc.add(y, bk.lo, bk.hi, 0, min(chunk, N))
+		wg.Wait()
+		free <- bk.buf
+	}
+	close(done)
+	for range full { // let the reader finish
+	}
+	if err != nil {
+		return nil, err
+	}
+	for i, ps := range parts {
+		if ps.SumSq != nil {
+			for b := 0; b < B; b++ {
+				for n, q := range ps.SumSq[b*N : (b+1)*N] {
+					ps.TotSq[n] += q
+				}
+			}
+		}
+		for n, q := range ps.TotSq {
+			if math.IsNaN(q) || math.IsInf(q, 0) {
+				return nil, nonFiniteErr(s, plan.Part, i, n)
+			}
+		}
+	}
+	return parts, nil
+}
+
+// nonFiniteErr names the first trial of part p whose response of neuron n
+// is not finite.
+func nonFiniteErr(s *NPYStream, part []int, p, n int) error {
+	for t, q := range part {
+		if q != p {
+			continue
+		}
+		v, err := s.readElem(t, n)
+		if err != nil {
+			return err
+		}
+		if !isFinite32(v) {
+			return fmt.Errorf("data: %s: neuron %d (0-based) has a non-finite response (%v) in trial %d (0-based); remove or fix it before fitting", s.Name(), n, v, t)
+		}
+	}
+	return fmt.Errorf("data: %s: neuron %d (0-based) has sums of squares too large for float64", s.Name(), n)
+}
+
+// readElem reads element (t, n) as float32.
+func (s *NPYStream) readElem(t, n int) (float32, error) {
+	size := s.h.size
+	b := make([]byte, size)
+	if _, err := s.f.ReadAt(b, s.off+int64(t)*s.rowBytes+int64(n)*int64(size)); err != nil {
+		return 0, fmt.Errorf("data: %s: reading trial %d, neuron %d: %w", s.name, t, n, err)
+	}
+	return float32(s.h.getter()(b)), nil
+}
+
+// accumulator sums row blocks into parts.
+type accumulator struct {
+	parts []*PartStats
+	plan  *StreamPlan
+	half  []bool
+	N     int
+}
+
+// anyPart reports whether a trial of [lo, hi) belongs to a part.
+func (a *accumulator) anyPart(lo, hi int) bool {
+	for _, p := range a.plan.Part[lo:hi] {
+		if p != NoPart {
+			return true
+		}
+	}
+	return false
+}
+
+// add sums the rows [lo, hi) held in y (row t at (t-lo)*N) into neurons
+// [c0, c1) of every part's statistics. Rows are visited in ascending
+// order.
+func (a *accumulator) add(y []float32, lo, hi, c0, c1 int) {
+	N := a.N
+	for t := lo; t < hi; t++ {
+		p := a.plan.Part[t]
+		if p == NoPart {
+			continue
+		}
+		ps := a.parts[p]
+		b := a.plan.Cond[t]
+		o := b*N + c0
+		w := c1 - c0
+		row := y[(t-lo)*N+c0 : (t-lo)*N+c1]
+		ref := ps.Ref[c0:c1:c1]
+		sum := ps.Sum[o : o+w : o+w]
+		var sq []float64
+		if ps.SumSq != nil {
+			sq = ps.SumSq[o : o+w : o+w]
+		} else {
+			sq = ps.TotSq[c0:c1:c1]
+		}
+		if ps.SumA != nil && a.half[t] {
+			sa := ps.SumA[o : o+w : o+w]
+			addRowHalf(sum, sq, sa, row, ref)
+			continue
+		}
+		addRow(sum, sq, row, ref)
+	}
+}
+
+// addRow adds d = row - ref to sum and d^2 to sq.
+func addRow(sum, sq []float64, row []float32, ref []float64) {
+	sum = sum[:len(row)]
+	sq = sq[:len(row)]
+	ref = ref[:len(row)]
+	for j, v := range row {
+		d := float64(v) - ref[j]
+		sum[j] += d
+		sq[j] += d * d
+	}
+}
+
+// addRowHalf is addRow that also adds d to sa.
+func addRowHalf(sum, sq, sa []float64, row []float32, ref []float64) {
+	sum = sum[:len(row)]
+	sq = sq[:len(row)]
+	sa = sa[:len(row)]
+	ref = ref[:len(row)]
+	for j, v := range row {
+		d := float64(v) - ref[j]
+		sum[j] += d
+		sq[j] += d * d
+		sa[j] += d
+	}
+}
