@@ -65,6 +65,7 @@ func PartOf(T int, sets ...[]int) ([]int, error) {
 //
 //	Count[b]     N_b, the part's trials of condition b
 //	Ref[n]       r_n, the response of the part's first trial (lowest index)
+//	RefCond      the condition of that trial (-1 for a part with no trials)
 //	Sum[b*N+n]   sum over the part's trials t of condition b of (y_tn - r_n)
 //	TotSq[n]     sum over all the part's trials of (y_tn - r_n)^2
 //	SumSq[b*N+n] sum over the part's trials of condition b of (y_tn - r_n)^2
@@ -84,15 +85,16 @@ func PartOf(T int, sets ...[]int) ([]int, error) {
 // The field names match eval.HeldOutSums, which scores a one-hot model
 // from a PartStats with CondSquares and Halves.
 type PartStats struct {
-	B, N   int
-	Trials int // sum of Count
-	Count  []int
-	Ref    []float64
-	Sum    []float64
-	TotSq  []float64
-	SumSq  []float64
-	CountA []int
-	SumA   []float64
+	B, N    int
+	Trials  int // sum of Count
+	Count   []int
+	Ref     []float64
+	RefCond int
+	Sum     []float64
+	TotSq   []float64
+	SumSq   []float64
+	CountA  []int
+	SumA    []float64
 }
 
 func (ps *PartStats) dstBN(dst []float64, fn string) []float64 {
@@ -406,9 +408,11 @@ func AccumulateParts(s *NPYStream, plan StreamPlan, opt StreamOptions) ([]*PartS
 	// The reference rows.
 	row := make([]float32, N)
 	for i, t := range first {
+		parts[i].RefCond = -1
 		if t < 0 {
 			continue
 		}
+		parts[i].RefCond = plan.Cond[t]
 		if _, err := s.ReadRows32(row, t, t+1); err != nil {
 			return nil, err
 		}
@@ -550,11 +554,27 @@ func (a *accumulator) anyPart(lo, hi int) bool {
 	return false
 }
 
+// streamTile is the width in neurons of the column tiles add works on:
+// the accumulator segments a block touches in one tile (up to parts x B
+// segments of 2 KiB per kept array) then stay in a core's L2 cache while
+// the block's rows are added, instead of streaming B x N accumulators
+// through memory once per row.
+const streamTile = 256
+
 // add sums the rows [lo, hi) held in y (row t at (t-lo)*N) into neurons
-// [c0, c1) of every part's statistics. Rows are visited in ascending
-// order.
+// [c0, c1) of every part's statistics, in column tiles of streamTile.
+// Within a tile the rows are visited in ascending order, so every element
+// is summed in ascending trial order whatever the tile, block and worker
+// boundaries.
 func (a *accumulator) add(y []float32, lo, hi, c0, c1 int) {
+	for t0 := c0; t0 < c1; t0 += streamTile {
+		a.addTile(y, lo, hi, t0, min(t0+streamTile, c1))
+	}
+}
+
+func (a *accumulator) addTile(y []float32, lo, hi, c0, c1 int) {
 	N := a.N
+	w := c1 - c0
 	for t := lo; t < hi; t++ {
 		p := a.plan.Part[t]
 		if p == NoPart {
@@ -563,7 +583,6 @@ func (a *accumulator) add(y []float32, lo, hi, c0, c1 int) {
 		ps := a.parts[p]
 		b := a.plan.Cond[t]
 		o := b*N + c0
-		w := c1 - c0
 		row := y[(t-lo)*N+c0 : (t-lo)*N+c1]
 		ref := ps.Ref[c0:c1:c1]
 		sum := ps.Sum[o : o+w : o+w]
@@ -574,8 +593,7 @@ func (a *accumulator) add(y []float32, lo, hi, c0, c1 int) {
 			sq = ps.TotSq[c0:c1:c1]
 		}
 		if ps.SumA != nil && a.half[t] {
-			sa := ps.SumA[o : o+w : o+w]
-			addRowHalf(sum, sq, sa, row, ref)
+			addRowHalf(sum, sq, ps.SumA[o:o+w:o+w], row, ref)
 			continue
 		}
 		addRow(sum, sq, row, ref)
