@@ -3,6 +3,7 @@ package data
 import (
 	"bytes"
 	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -46,8 +47,23 @@ func relClose(got, want, tol float64) bool {
 	return math.Abs(got-want) <= tol*math.Max(1, math.Abs(want))
 }
 
+// TestAccumulatePartsMatchesCondStats checks the streamed statistics of
+// three parts (and unused trials) against NewCondStats and two-pass sums
+// over the matrix in memory, and that the sums are bitwise the same for
+// any number of workers and block size. The second size (skipped with
+// -short) has blocks of many rows and two workers with wide column ranges.
 func TestAccumulatePartsMatchesCondStats(t *testing.T) {
-	const T, N, B = 301, 700, 8
+	sizes := []struct{ T, N int }{{301, 700}, {1500, 3000}}
+	if testing.Short() {
+		sizes = sizes[:1]
+	}
+	for _, sz := range sizes {
+		t.Run(fmt.Sprintf("%dx%d", sz.T, sz.N), func(t *testing.T) { testAccumulateParts(t, sz.T, sz.N) })
+	}
+}
+
+func testAccumulateParts(t *testing.T, T, N int) {
+	const B = 8
 	y, cond, path := streamCase(t, T, N, B)
 	rng := rand.New(rand.NewPCG(3, 4))
 	var train, val, test, unused []int
