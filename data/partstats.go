@@ -614,3 +614,37 @@ func addRowHalf(sum, sq, sa []float64, row []float32, ref []float64) {
 		sa[j] += d
 	}
 }
+
+// ConstantNeurons returns, in ascending order, the neurons whose response
+// is the same on every trial of the given parts, as Check's Report.Constant
+// finds them over all trials: every part's sums relative to its reference
+// trial are exactly zero (so all its trials equal the reference) and the
+// references of the parts with trials agree. It panics if the parts differ
+// in N.
+func ConstantNeurons(parts ...*PartStats) []int {
+	if len(parts) == 0 {
+		return nil
+	}
+	N := parts[0].N
+	var out []int
+	for n := 0; n < N; n++ {
+		constant, ref, seen := true, 0.0, false
+		for _, ps := range parts {
+			if ps.N != N {
+				panic(fmt.Sprintf("data: ConstantNeurons parts of %d and %d neurons", N, ps.N))
+			}
+			if ps.Trials == 0 {
+				continue
+			}
+			if ps.TotSq[n] != 0 || (seen && ps.Ref[n] != ref) {
+				constant = false
+				break
+			}
+			ref, seen = ps.Ref[n], true
+		}
+		if constant && seen {
+			out = append(out, n)
+		}
+	}
+	return out
+}

@@ -212,6 +212,9 @@ func testAccumulateParts(t *testing.T, T, N int) {
 					t.Fatalf("SumA[%d] = %v, want %v", k, got[2].SumA[k], sumA[k])
 				}
 			}
+			if c := ConstantNeurons(got...); len(c) != 1 || c[0] != 2 {
+				t.Fatalf("ConstantNeurons = %v, want [2]", c)
+			}
 			if got[0].SumSq != nil || got[0].SumA != nil {
 				t.Fatal("training part kept SumSq or SumA without asking")
 			}
