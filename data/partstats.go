@@ -61,7 +61,7 @@ func PartOf(T int, sets ...[]int) ([]int, error) {
 }
 
 // PartStats are the sufficient statistics of one part of a recording's
-// trials (METHODS.md §8), all in float64, for condition b and neuron n:
+// trials (eval/methods.md §8), all in float64, for condition b and neuron n:
 //
 //	Count[b]     N_b, the part's trials of condition b
 //	Ref[n]       r_n, the response of the part's first trial (lowest index)

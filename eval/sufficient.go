@@ -29,7 +29,7 @@ import (
 // The per-condition sums of squares are needed (not only their total over
 // conditions): the noise variance is the unweighted mean over conditions
 // of the ddof-1 variances s2_b = (SumSq_b - Sum_b^2/N_b)/(N_b - 1), and
-// SignalPower weights each s2_b by 1/N_b (METHODS.md §1, §4); with unequal
+// SignalPower weights each s2_b by 1/N_b (eval/methods.md §1, §4); with unequal
 // counts neither follows from sum_b SumSq_b.
 //
 // data.PartStats, accumulated with CondSquares and Halves, has these
@@ -212,7 +212,7 @@ func (cs *condSummary) fromSums(h *HeldOutSums, pred []float64, j int) {
 }
 
 // scores computes every field of Scores from the summary, as
-// scorer.finish does (METHODS.md §1-§5).
+// scorer.finish does (eval/methods.md §1-§5).
 func (cs *condSummary) scores() Scores {
 	nan := math.NaN()
 	var out Scores
