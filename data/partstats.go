@@ -118,8 +118,10 @@ func (ps *PartStats) dstN(dst []float64, fn string) []float64 {
 }
 
 // Means writes the condition means ybar_bn = r_n + Sum_bn / N_b into dst
-// (B x N; allocated if nil) and returns it; empty conditions give NaN. It
-// panics if dst is not nil and not of length B*N.
+// (B x N; allocated if nil) and returns it; empty conditions give NaN.
+// dst may be ps.Sum (the sums are then replaced by the means, saving B x N
+// values at a million neurons). It panics if dst is not nil and not of
+// length B*N.
 func (ps *PartStats) Means(dst []float64) []float64 {
 	dst = ps.dstBN(dst, "Means")
 	N := ps.N
@@ -181,7 +183,8 @@ func (ps *PartStats) GrandMean(dst []float64) []float64 {
 // neuron's grand mean over the part (the trial-weighted mean of the
 // condition means), into dst (B x N; allocated if nil) and returns it;
 // empty conditions give NaN. This is Yc of train's projected solver
-// before z-scoring. It panics like Means.
+// before z-scoring. dst may be ps.Sum, as for Means; call GrandMean and
+// the other per-neuron methods first then. It panics like Means.
 func (ps *PartStats) CentredMeans(dst []float64) []float64 {
 	dst = ps.dstBN(dst, "CentredMeans")
 	g := make([]float64, ps.N)
@@ -355,70 +358,21 @@ type StreamOptions struct {
 // named; found after the pass from the sums, then located with one small
 // read per trial).
 func AccumulateParts(s *NPYStream, plan StreamPlan, opt StreamOptions) ([]*PartStats, error) {
-	T, N, B := s.Rows(), s.Cols(), plan.NBins
-	if len(plan.Cond) != T || len(plan.Part) != T {
-		return nil, fmt.Errorf("data: %s has %d trials (rows), but the plan has %d conditions and %d part labels", s.Name(), T, len(plan.Cond), len(plan.Part))
-	}
-	if B < 1 {
-		return nil, fmt.Errorf("data: %s: the plan has %d conditions; need at least 1", s.Name(), B)
-	}
-	P := len(plan.Specs)
-	parts := make([]*PartStats, P)
-	first := make([]int, P)
-	for i := range parts {
-		parts[i] = &PartStats{B: B, N: N, Count: make([]int, B)}
-		first[i] = -1
-	}
-	// half[t]: trial t goes to half A of its part's condition.
-	half := make([]bool, T)
-	for t, p := range plan.Part {
-		if p == NoPart {
-			continue
-		}
-		if p < 0 || p >= P {
-			return nil, fmt.Errorf("data: %s: trial %d (0-based) has part %d, outside [0, %d)", s.Name(), t, p, P)
-		}
-		c := plan.Cond[t]
-		if c < 0 || c >= B {
-			return nil, fmt.Errorf("data: %s: trial %d (0-based) has condition %d, outside [0, %d)", s.Name(), t, c, B)
-		}
-		ps := parts[p]
-		half[t] = ps.Count[c]%2 == 0
-		ps.Count[c]++
-		ps.Trials++
-		if first[p] < 0 {
-			first[p] = t
-		}
-	}
-	for i, ps := range parts {
-		ps.Ref = make([]float64, N)
-		ps.TotSq = make([]float64, N)
-		ps.Sum = make([]float64, B*N)
-		if plan.Specs[i].CondSquares {
-			ps.SumSq = make([]float64, B*N)
-		}
-		if plan.Specs[i].Halves {
-			ps.SumA = make([]float64, B*N)
-			ps.CountA = make([]int, B)
-			for c, k := range ps.Count {
-				ps.CountA[c] = (k + 1) / 2
-			}
-		}
+	T, N := s.Rows(), s.Cols()
+	acc, first, err := newAccumulator(&plan, T, N, s.Name())
+	if err != nil {
+		return nil, err
 	}
 	// The reference rows.
 	row := make([]float32, N)
 	for i, t := range first {
-		parts[i].RefCond = -1
 		if t < 0 {
 			continue
 		}
-		parts[i].RefCond = plan.Cond[t]
 		if _, err := s.ReadRows32(row, t, t+1); err != nil {
 			return nil, err
 		}
-		for n, v := range row {
-			parts[i].Ref[n] = float64(v)
-		}
+		acc.setRef(i, row)
 	}
 	row = nil
 
@@ -428,13 +382,6 @@ func AccumulateParts(s *NPYStream, plan StreamPlan, opt StreamOptions) ([]*PartS
 	}
 	R := max(1, blockBytes/max(4*N, 1))
 	R = min(R, max(T, 1))
-	workers := opt.Workers
-	if workers <= 0 {
-		workers = runtime.GOMAXPROCS(0)
-	}
-	workers = max(1, min(workers, N/256)) // at least 256 neurons each
-	acc := &accumulator{parts: parts, plan: &plan, half: half, N: N}
-
 	type block struct {
 		lo, hi, buf int
 		err         error
@@ -465,24 +412,12 @@ func AccumulateParts(s *NPYStream, plan StreamPlan, opt StreamOptions) ([]*PartS
 			}
 		}
 	}()
-	var err error
-	var wg sync.WaitGroup
-	chunk := (N + workers - 1) / workers
 	for bk := range full {
 		if bk.err != nil {
 			err = bk.err
 			break
 		}
-		y := bufs[bk.buf]
-		for c0 := chunk; c0 < N; c0 += chunk {
-			wg.Add(1)
-			go func(c0, c1 int) {
-				defer wg.Done()
-				acc.add(y, bk.lo, bk.hi, c0, c1)
-			}(c0, min(c0+chunk, N))
-		}
-		acc.add(y, bk.lo, bk.hi, 0, min(chunk, N))
-		wg.Wait()
+		acc.addParallel(bufs[bk.buf], bk.lo, bk.hi, opt.Workers)
 		free <- bk.buf
 	}
 	close(done)
@@ -491,9 +426,135 @@ func AccumulateParts(s *NPYStream, plan StreamPlan, opt StreamOptions) ([]*PartS
 	if err != nil {
 		return nil, err
 	}
+	if p, n := acc.finish(); p >= 0 {
+		return nil, nonFiniteErr(s, plan.Part, p, n)
+	}
+	return acc.parts, nil
+}
+
+// AccumulatePartsMatrix is AccumulateParts for a recording already in
+// memory: the same statistics, summed in the same order from the same
+// reference trials, so bitwise equal to those of the file y was read from.
+// It lets an in-memory fit use the numbers a streamed fit of the same file
+// uses. Errors as for AccumulateParts (the file named "responses").
+func AccumulatePartsMatrix(y *Matrix, plan StreamPlan, opt StreamOptions) ([]*PartStats, error) {
+	acc, first, err := newAccumulator(&plan, y.Rows, y.Cols, "responses")
+	if err != nil {
+		return nil, err
+	}
+	for i, t := range first {
+		if t >= 0 {
+			acc.setRef(i, y.Row(t))
+		}
+	}
+	acc.addParallel(y.Data, 0, y.Rows, opt.Workers)
+	if p, n := acc.finish(); p >= 0 {
+		for t, q := range plan.Part {
+			if v := y.Data[t*y.Cols+n]; q == p && !isFinite32(v) {
+				return nil, fmt.Errorf("data: responses: neuron %d (0-based) has a non-finite response (%v) in trial %d (0-based); remove or fix it before fitting", n, v, t)
+			}
+		}
+		return nil, fmt.Errorf("data: responses: neuron %d (0-based) has sums of squares too large for float64", n)
+	}
+	return acc.parts, nil
+}
+
+// newAccumulator checks plan against a recording of T trials and N
+// neurons (errors name the file called name), counts each part's trials
+// per condition, deals the split halves and allocates the statistics. It
+// returns the first trial of each part (-1 for none), whose row setRef
+// must be given before any add.
+func newAccumulator(plan *StreamPlan, T, N int, name string) (*accumulator, []int, error) {
+	B := plan.NBins
+	if len(plan.Cond) != T || len(plan.Part) != T {
+		return nil, nil, fmt.Errorf("data: %s has %d trials (rows), but the plan has %d conditions and %d part labels", name, T, len(plan.Cond), len(plan.Part))
+	}
+	if B < 1 {
+		return nil, nil, fmt.Errorf("data: %s: the plan has %d conditions; need at least 1", name, B)
+	}
+	P := len(plan.Specs)
+	parts := make([]*PartStats, P)
+	first := make([]int, P)
+	for i := range parts {
+		parts[i] = &PartStats{B: B, N: N, Count: make([]int, B), RefCond: -1}
+		first[i] = -1
+	}
+	// half[t]: trial t goes to half A of its part's condition.
+	half := make([]bool, T)
+	for t, p := range plan.Part {
+		if p == NoPart {
+			continue
+		}
+		if p < 0 || p >= P {
+			return nil, nil, fmt.Errorf("data: %s: trial %d (0-based) has part %d, outside [0, %d)", name, t, p, P)
+		}
+		c := plan.Cond[t]
+		if c < 0 || c >= B {
+			return nil, nil, fmt.Errorf("data: %s: trial %d (0-based) has condition %d, outside [0, %d)", name, t, c, B)
+		}
+		ps := parts[p]
+		half[t] = ps.Count[c]%2 == 0
+		ps.Count[c]++
+		ps.Trials++
+		if first[p] < 0 {
+			first[p] = t
+			ps.RefCond = c
+		}
+	}
 	for i, ps := range parts {
+		ps.Ref = make([]float64, N)
+		ps.TotSq = make([]float64, N)
+		ps.Sum = make([]float64, B*N)
+		if plan.Specs[i].CondSquares {
+			ps.SumSq = make([]float64, B*N)
+		}
+		if plan.Specs[i].Halves {
+			ps.SumA = make([]float64, B*N)
+			ps.CountA = make([]int, B)
+			for c, k := range ps.Count {
+				ps.CountA[c] = (k + 1) / 2
+			}
+		}
+	}
+	return &accumulator{parts: parts, plan: plan, half: half, N: N}, first, nil
+}
+
+// setRef sets part i's reference to row.
+func (a *accumulator) setRef(i int, row []float32) {
+	for n, v := range row {
+		a.parts[i].Ref[n] = float64(v)
+	}
+}
+
+// addParallel adds rows [lo, hi) held in y over workers goroutines (0:
+// GOMAXPROCS, at most one per 256 neurons), each owning a range of
+// neurons.
+func (a *accumulator) addParallel(y []float32, lo, hi, workers int) {
+	N := a.N
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	workers = max(1, min(workers, N/256))
+	chunk := (N + workers - 1) / workers
+	var wg sync.WaitGroup
+	for c0 := chunk; c0 < N; c0 += chunk {
+		wg.Add(1)
+		go func(c0, c1 int) {
+			defer wg.Done()
+			a.add(y, lo, hi, c0, c1)
+		}(c0, min(c0+chunk, N))
+	}
+	a.add(y, lo, hi, 0, min(chunk, N))
+	wg.Wait()
+}
+
+// finish forms TotSq of the parts kept with CondSquares and returns the
+// first part and neuron whose sums are not finite, or -1, -1.
+func (a *accumulator) finish() (part, neuron int) {
+	N := a.N
+	for i, ps := range a.parts {
 		if ps.SumSq != nil {
-			for b := 0; b < B; b++ {
+			for b := 0; b < ps.B; b++ {
 				for n, q := range ps.SumSq[b*N : (b+1)*N] {
 					ps.TotSq[n] += q
 				}
@@ -501,11 +562,11 @@ func AccumulateParts(s *NPYStream, plan StreamPlan, opt StreamOptions) ([]*PartS
 		}
 		for n, q := range ps.TotSq {
 			if math.IsNaN(q) || math.IsInf(q, 0) {
-				return nil, nonFiniteErr(s, plan.Part, i, n)
+				return i, n
 			}
 		}
 	}
-	return parts, nil
+	return -1, -1
 }
 
 // nonFiniteErr names the first trial of part p whose response of neuron n

@@ -107,6 +107,23 @@ func testAccumulateParts(t *testing.T, T, N int) {
 			}
 			if ref == nil {
 				ref = got
+				// The in-memory pass gives the same numbers bitwise.
+				mem, err := AccumulatePartsMatrix(y, plan, StreamOptions{})
+				if err != nil {
+					t.Fatal(err)
+				}
+				for i := range got {
+					for k, arr := range [][2][]float64{{mem[i].Sum, got[i].Sum}, {mem[i].TotSq, got[i].TotSq}, {mem[i].SumSq, got[i].SumSq}, {mem[i].SumA, got[i].SumA}, {mem[i].Ref, got[i].Ref}} {
+						if len(arr[0]) != len(arr[1]) {
+							t.Fatalf("part %d array %d: in memory %d values, streamed %d", i, k, len(arr[0]), len(arr[1]))
+						}
+						for e := range arr[0] {
+							if arr[0][e] != arr[1][e] {
+								t.Fatalf("part %d array %d element %d: in memory %v, streamed %v", i, k, e, arr[0][e], arr[1][e])
+							}
+						}
+					}
+				}
 			} else {
 				// Same summation order for every element: bitwise equal.
 				for i := range got {
@@ -274,6 +291,10 @@ func TestAccumulatePartsErrors(t *testing.T) {
 		_, err = AccumulateParts(s2, StreamPlan{NBins: B, Cond: cond, Part: part, Specs: []PartSpec{{}}}, StreamOptions{})
 		if err == nil || !strings.Contains(err.Error(), "neuron 123") || !strings.Contains(err.Error(), "trial 17") {
 			t.Fatalf("got error %v, want one naming neuron 123 and trial 17", err)
+		}
+		_, err = AccumulatePartsMatrix(y, StreamPlan{NBins: B, Cond: cond, Part: part, Specs: []PartSpec{{}}}, StreamOptions{})
+		if err == nil || !strings.Contains(err.Error(), "neuron 123") || !strings.Contains(err.Error(), "trial 17") {
+			t.Fatalf("in memory: got error %v, want one naming neuron 123 and trial 17", err)
 		}
 	})
 	t.Run("duplicate trial", func(t *testing.T) {
