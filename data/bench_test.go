@@ -125,3 +125,81 @@ func BenchmarkHoldOutBlocked(b *testing.B) {
 		})
 	}
 }
+
+// BenchmarkCheckHash measures what the content hash adds to the checking
+// pass on the full-scale recording (4600 x 24000 float32, 442 MB, mapped):
+// load and check without a hash; load and check with CheckOptions.Hash (the
+// hash computed in the same pass); load, check, then HashFiles (a second
+// pass over the mapping); and Identify alone (the file read in pieces).
+// Each iteration maps the file afresh, as a fit does, so the page faults
+// of the first touch are included. MB/s via SetBytes.
+func BenchmarkCheckHash(b *testing.B) {
+	rows, cols := 4600, 24000
+	if testing.Short() {
+		rows, cols = 1000, 4000
+	}
+	resp := benchFile(b, rows, cols, false)
+	stim := filepath.Join(filepath.Dir(resp), "stim.npy")
+	s := make([]float64, rows)
+	cond := make([]int, rows)
+	for t := range s {
+		cond[t] = t % 60
+		s[t] = float64(cond[t]) * 6
+	}
+	if err := WriteNPY64(stim, []int{rows}, s); err != nil {
+		b.Fatal(err)
+	}
+	saved := mapThreshold
+	mapThreshold = 0
+	defer func() { mapThreshold = saved }()
+	src := Source{Responses: resp, Stimulus: stim}
+	opt := CheckOptions{NBins: 60}
+	for _, c := range []struct {
+		name string
+		run  func() error
+	}{
+		{"check", func() error {
+			rec, err := Load(src)
+			if err == nil {
+				_, err = CheckWith(rec, cond, opt)
+			}
+			return err
+		}},
+		{"check_with_hash", func() error {
+			rec, err := Load(src)
+			if err == nil {
+				o := opt
+				o.Hash = true
+				_, err = CheckWith(rec, cond, o)
+			}
+			return err
+		}},
+		{"check_then_hash", func() error {
+			rec, err := Load(src)
+			if err == nil {
+				_, err = CheckWith(rec, cond, opt)
+			}
+			if err == nil {
+				err = rec.HashFiles()
+			}
+			return err
+		}},
+		{"identify", func() error {
+			_, err := Identify(resp)
+			return err
+		}},
+	} {
+		b.Run(c.name, func(b *testing.B) {
+			b.SetBytes(int64(4 * rows * cols))
+			cpu := cpuSeconds()
+			n := 0
+			for b.Loop() {
+				if err := c.run(); err != nil {
+					b.Fatal(err)
+				}
+				n++
+			}
+			b.ReportMetric((cpuSeconds()-cpu)/float64(n), "cpu-s/op")
+		})
+	}
+}

@@ -18,6 +18,13 @@
 //     starting "data: ". Anything that comes from outside (files, config
 //     values, stimulus values) gives a returned error naming the file, field,
 //     line, trial or neuron. User data never causes a panic.
+//   - A response matrix of more than 64 MB read from a little-endian float32
+//     .npy is mapped, not copied (ReadNPY). Every pass over recording values
+//     runs under Guard or a GuardGroup, so that a file truncated meanwhile
+//     gives a *FaultError naming it instead of a crash; data's own passes
+//     (CheckWith, NewCondStats, the hashing) do so already. Recording.Files
+//     records the inputs as Load found them (FileID), and Recording.Unchanged
+//     refuses, at the end of a fit, a file modified while stria read it.
 //   - Randomness comes from a seed (uint64) turned into a PCG source of
 //     math/rand/v2; no global random source is used, so results are the same
 //     for the same seed on every machine.

@@ -173,3 +173,29 @@ func FuzzAxisBin(f *testing.F) {
 		}
 	})
 }
+
+// FuzzLoadCheck: any table goes through loading, binning and checking (with
+// counts and hashes) to a recording or an error naming the file; never a
+// panic.
+func FuzzLoadCheck(f *testing.F) {
+	addFixtures(f, ".csv")
+	f.Add(csvRec(nil))
+	f.Add(csvRec(map[int]string{2: ",2,0,1,1,1", 5: "90,1,1,-1,0.5,3"}))
+	dir := f.TempDir()
+	ax := Axis{Name: "direction", Unit: "deg", Min: 0, Max: 360, Periodic: true, Bins: 4}
+	f.Fuzz(func(t *testing.T, b []byte) {
+		p := filepath.Join(dir, "fuzz.csv")
+		if err := os.WriteFile(p, b, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		for _, src := range []Source{
+			{Responses: p, StimulusColumn: "stim"},
+			{Responses: p, StimulusColumn: "stim", ConditionColumn: "cond", BlockColumn: "block", NeuronColumns: []string{"n0", "n1"}},
+		} {
+			err := loadAndCheck(src, ax, CheckOptions{Counts: true, Hash: true})
+			if err != nil && !strings.Contains(err.Error(), "fuzz.csv") {
+				t.Fatalf("error %q does not name the file", err)
+			}
+		}
+	})
+}

@@ -31,6 +31,8 @@ type Recording struct {
 	Block   []int     // optional block ids (nil if absent)
 	Neurons []string  // neuron names (CSV header) or nil
 	Source  Source
+
+	inputs []inputFile // the files read, as Load found them (see Files)
 }
 
 // NeuronName returns "neuron 12" or `neuron 12 ("cellA")` for messages.
@@ -170,6 +172,14 @@ func Load(src Source) (*Recording, error) {
 	if stimFile == "" {
 		stimFile = src.Responses
 	}
+	if fileKind(src.Responses) == "" {
+		return nil, fmt.Errorf("data: %s: unknown file type for the responses (use .npy, .npz, .csv or .tsv)", src.Responses)
+	}
+	inputs, err := statInputs(src)
+	if err != nil {
+		return nil, err
+	}
+	rec.inputs = inputs
 	// inResponses reports whether an optional file (empty: the stimulus
 	// file) is the responses file itself.
 	inResponses := func(f string) bool {
@@ -198,6 +208,9 @@ func Load(src Source) (*Recording, error) {
 			return nil, err
 		}
 		names := src.NeuronColumns
+		if err := checkNeuronColumns(src, stimFile, inResponses); err != nil {
+			return nil, err
+		}
 		if len(names) == 0 {
 			skip := map[string]bool{}
 			if src.StimulusColumn != "" && inResponses(stimFile) {
@@ -232,11 +245,17 @@ func Load(src Source) (*Recording, error) {
 		return nil, fmt.Errorf("data: %s: responses are %dx%d; need at least one trial and one neuron", src.Responses, rec.Y.Rows, rec.Y.Cols)
 	}
 
+	switch {
+	case stimFile == src.Responses && fileKind(stimFile) == "npy":
+		return nil, fmt.Errorf("data: %s: no stimulus file is given (data.stimulus), and a .npy file holds only the responses", src.Responses)
+	case fileKind(stimFile) == "npz" && src.StimulusColumn == "":
+		return nil, fmt.Errorf("data: %s: the stimulus is in an .npz, so its array name must be given (data.stimulus_column)", stimFile)
+	}
 	stim, err := l.vector(stimFile, src.StimulusColumn, "stimulus")
 	if err != nil {
 		return nil, err
 	}
-	if err := sameLength(src.Responses, rec.Y.Rows, stimFile, "stimulus", len(stim)); err != nil {
+	if err := sameLength(src.Responses, rec.Y.Rows, rec.Y.Cols, stimFile, "stimulus", len(stim)); err != nil {
 		return nil, err
 	}
 	rec.Stim = stim
@@ -252,7 +271,7 @@ func Load(src Source) (*Recording, error) {
 		if err != nil {
 			return nil, err
 		}
-		if err := sameLength(src.Responses, rec.Y.Rows, file, what, len(v)); err != nil {
+		if err := sameLength(src.Responses, rec.Y.Rows, rec.Y.Cols, file, what, len(v)); err != nil {
 			return nil, err
 		}
 		return v, nil
@@ -266,10 +285,42 @@ func Load(src Source) (*Recording, error) {
 	return rec, nil
 }
 
-func sameLength(respFile string, trials int, file, what string, n int) error {
+func sameLength(respFile string, trials, neurons int, file, what string, n int) error {
 	if n != trials {
-		return fmt.Errorf("data: %s has %d trials (rows) but the %s from %s has %d values; they must match one to one",
-			respFile, trials, what, file, n)
+		hint := ""
+		if n == neurons {
+			hint = fmt.Sprintf(" (the responses have %d columns: are they saved neurons x trials? stria needs trials x neurons, so save the transpose)", neurons)
+		}
+		return fmt.Errorf("data: %s has %d trials (rows) but the %s from %s has %d values; they must match one to one%s",
+			respFile, trials, what, file, n, hint)
+	}
+	return nil
+}
+
+// checkNeuronColumns refuses a list of neuron columns that names a column
+// twice, has an empty name, or names the stimulus, condition or block
+// column of the same file: each would silently duplicate a neuron or fit
+// the stimulus as a response.
+func checkNeuronColumns(src Source, stimFile string, inResponses func(string) bool) error {
+	seen := map[string]int{}
+	for i, n := range src.NeuronColumns {
+		n = strings.TrimSpace(n)
+		if n == "" {
+			return fmt.Errorf("data: neuron_columns entry %d (0-based) for %s is empty", i, src.Responses)
+		}
+		if j, dup := seen[n]; dup {
+			return fmt.Errorf("data: neuron_columns names %q twice (entries %d and %d, 0-based) for %s; each neuron must be listed once", n, j, i, src.Responses)
+		}
+		seen[n] = i
+		for _, o := range []struct{ col, file, what string }{
+			{src.StimulusColumn, stimFile, "stimulus"},
+			{src.ConditionColumn, src.Condition, "condition"},
+			{src.BlockColumn, src.Block, "block"},
+		} {
+			if o.col != "" && strings.TrimSpace(o.col) == n && inResponses(o.file) {
+				return fmt.Errorf("data: neuron_columns entry %d (0-based) %q of %s is also the %s column; a column cannot be both", i, n, src.Responses, o.what)
+			}
+		}
 	}
 	return nil
 }

@@ -399,9 +399,12 @@ func (p *pyParser) tuple() ([]int, error) {
 // float32 data) is mapped into memory copy-on-write when the data exceed
 // 64 MB (on Linux, macOS and FreeBSD): the values come from the page cache
 // without a copy, writes to Data change only this process's copy, and the
-// mapping stays until the process ends (so a file changed on disk while
-// mapped changes under the matrix: do not rewrite a recording while stria
-// reads it). Smaller files of that layout are read straight into the result
+// mapping stays until the process ends. A file changed on disk while
+// mapped changes under the matrix, and reading a value past the end of a
+// truncated file faults: every pass over the values of a mapped matrix
+// (Matrix.MappedFile) must run under Guard or a GuardGroup, which turn the
+// fault into a *FaultError naming the file, and Recording.Unchanged at the
+// end of a fit refuses a file that was modified meanwhile. Smaller files of that layout are read straight into the result
 // with a single read and no per-element decoding. The file size is compared with the size the header
 // implies before anything large is allocated, so a truncated file or a
 // header that lies about its shape gives an error naming the file, never a
@@ -446,7 +449,7 @@ func mapNPY(f *os.File, total int64, name string) (*Matrix, error) {
 	if !h.fastLayout(rows, cols, 4) {
 		return nil, nil
 	}
-	v := mapFloat32(f, used, int(h.count))
+	v := mapFloat32(f, used, int(h.count), name)
 	if v == nil {
 		return nil, nil
 	}

@@ -4,5 +4,8 @@ package data
 
 import "os"
 
+// mapThreshold is unused here: .npy files are always read.
+var mapThreshold int64 = 64 << 20
+
 // mapFloat32 is not available here: .npy files are always read.
-func mapFloat32(f *os.File, off int64, n int) []float32 { return nil }
+func mapFloat32(f *os.File, off int64, n int, name string) []float32 { return nil }

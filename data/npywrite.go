@@ -118,14 +118,20 @@ func writeNPY(path, descr string, shape []int, raw []byte, n int, put func(b []b
 	if _, err = w.Write(npyHeaderBytes(descr, shape)); err != nil {
 		return fmt.Errorf("data: writing %s: %w", path, err)
 	}
-	if raw != nil {
-		_, err = w.Write(raw)
-	} else {
-		var b [8]byte
-		for i := 0; i < n && err == nil; i++ {
-			put(b[:size], i)
-			_, err = w.Write(b[:size])
+	// The values may be mapped from a file (a recording written back out):
+	// a fault while reading them is an error, not a crash.
+	if ferr := Guard(func() {
+		if raw != nil {
+			_, err = w.Write(raw)
+		} else {
+			var b [8]byte
+			for i := 0; i < n && err == nil; i++ {
+				put(b[:size], i)
+				_, err = w.Write(b[:size])
+			}
 		}
+	}); ferr != nil {
+		err = ferr
 	}
 	if err == nil {
 		err = w.Flush()

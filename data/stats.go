@@ -4,7 +4,6 @@ import (
 	"fmt"
 	"math"
 	"runtime"
-	"sync"
 )
 
 // CondStats holds per-condition sufficient statistics of a set of trials
@@ -29,6 +28,10 @@ type CondStats struct {
 // still summed in trial order, so the result does not depend on the number
 // of goroutines. It panics if a trial index or a condition id of a listed
 // trial is out of range, or len(cond) != y.Rows.
+//
+// When y is mapped (see ReadNPY) and its file is truncated during the
+// pass, NewCondStats panics with a *FaultError naming the file; run it
+// under Guard, which returns that error.
 func NewCondStats(y *Matrix, cond []int, trials []int, nbins int) *CondStats {
 	if len(cond) != y.Rows {
 		panic(fmt.Sprintf("data: NewCondStats %d condition ids for %d trials", len(cond), y.Rows))
@@ -66,16 +69,14 @@ func NewCondStats(y *Matrix, cond []int, trials []int, nbins int) *CondStats {
 		workers = 1
 	}
 	chunk := (N + workers - 1) / workers
-	var wg sync.WaitGroup
+	var g GuardGroup
 	for lo := 0; lo < N; lo += chunk {
 		hi := min(lo+chunk, N)
-		wg.Add(1)
-		go func(lo, hi int) {
-			defer wg.Done()
-			s.accumulate(y, cond, trials, lo, hi)
-		}(lo, hi)
+		g.Go(func() { s.accumulate(y, cond, trials, lo, hi) })
 	}
-	wg.Wait()
+	if err := g.Wait(); err != nil {
+		panic(err) // a *FaultError: the mapped file was truncated; Guard returns it
+	}
 	return s
 }
 
