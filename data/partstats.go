@@ -4,7 +4,6 @@ import (
 	"fmt"
 	"math"
 	"runtime"
-	"sync"
 )
 
 // NoPart marks a trial that belongs to no part of a StreamPlan.
@@ -417,7 +416,9 @@ func AccumulateParts(s *NPYStream, plan StreamPlan, opt StreamOptions) ([]*PartS
 			err = bk.err
 			break
 		}
-		acc.addParallel(bufs[bk.buf], bk.lo, bk.hi, opt.Workers)
+		if err = acc.addParallel(bufs[bk.buf], bk.lo, bk.hi, opt.Workers); err != nil {
+			break
+		}
 		free <- bk.buf
 	}
 	close(done)
@@ -436,18 +437,25 @@ func AccumulateParts(s *NPYStream, plan StreamPlan, opt StreamOptions) ([]*PartS
 // memory: the same statistics, summed in the same order from the same
 // reference trials, so bitwise equal to those of the file y was read from.
 // It lets an in-memory fit use the numbers a streamed fit of the same file
-// uses. Errors as for AccumulateParts (the file named "responses").
+// uses. Errors as for AccumulateParts (the file named "responses"), and
+// the *FaultError of a mapped y whose file is truncated during the pass.
 func AccumulatePartsMatrix(y *Matrix, plan StreamPlan, opt StreamOptions) ([]*PartStats, error) {
 	acc, first, err := newAccumulator(&plan, y.Rows, y.Cols, "responses")
 	if err != nil {
 		return nil, err
 	}
-	for i, t := range first {
-		if t >= 0 {
-			acc.setRef(i, y.Row(t))
+	if err := Guard(func() {
+		for i, t := range first {
+			if t >= 0 {
+				acc.setRef(i, y.Row(t))
+			}
 		}
+	}); err != nil {
+		return nil, err
 	}
-	acc.addParallel(y.Data, 0, y.Rows, opt.Workers)
+	if err := acc.addParallel(y.Data, 0, y.Rows, opt.Workers); err != nil {
+		return nil, err
+	}
 	if p, n := acc.finish(); p >= 0 {
 		for t, q := range plan.Part {
 			if v := y.Data[t*y.Cols+n]; q == p && !isFinite32(v) {
@@ -528,24 +536,21 @@ func (a *accumulator) setRef(i int, row []float32) {
 
 // addParallel adds rows [lo, hi) held in y over workers goroutines (0:
 // GOMAXPROCS, at most one per 256 neurons), each owning a range of
-// neurons.
-func (a *accumulator) addParallel(y []float32, lo, hi, workers int) {
+// neurons. The goroutines run under Guard: a mapped y whose file is
+// truncated during the pass gives a *FaultError, not a crash.
+func (a *accumulator) addParallel(y []float32, lo, hi, workers int) error {
 	N := a.N
 	if workers <= 0 {
 		workers = runtime.GOMAXPROCS(0)
 	}
 	workers = max(1, min(workers, N/256))
 	chunk := (N + workers - 1) / workers
-	var wg sync.WaitGroup
-	for c0 := chunk; c0 < N; c0 += chunk {
-		wg.Add(1)
-		go func(c0, c1 int) {
-			defer wg.Done()
-			a.add(y, lo, hi, c0, c1)
-		}(c0, min(c0+chunk, N))
+	var g GuardGroup
+	for c0 := 0; c0 < N; c0 += chunk {
+		c1 := min(c0+chunk, N)
+		g.Go(func() { a.add(y, lo, hi, c0, c1) })
 	}
-	a.add(y, lo, hi, 0, min(chunk, N))
-	wg.Wait()
+	return g.Wait()
 }
 
 // finish forms TotSq of the parts kept with CondSquares and returns the
