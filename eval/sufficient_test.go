@@ -188,3 +188,36 @@ func TestScoreSumsPanics(t *testing.T) {
 		})
 	}
 }
+
+// BenchmarkScoreSums scores 24,000 neurons over 60 conditions from sums
+// (the streamed path) against ScoreConditions on 920 held-out trials
+// (the in-memory path, which also forms the sums).
+func BenchmarkScoreSums(b *testing.B) {
+	const T, n, nb = 920, 24000, 60
+	rng := rand.New(rand.NewPCG(1, 2))
+	y := make([]float32, T*n)
+	for i := range y {
+		y[i] = float32(rng.NormFloat64())
+	}
+	cond := make([]int, T)
+	trials := make([]int, T)
+	for i := range cond {
+		cond[i] = i % nb
+		trials[i] = i
+	}
+	pc := make([]float64, nb*n)
+	dst := make([]Scores, n)
+	b.Run("sums", func(b *testing.B) {
+		h := heldOutSumsOf(y, n, trials, cond, nb, 0)
+		b.ReportAllocs()
+		for i := 0; i < b.N; i++ {
+			ScoreSums(dst, h, pc)
+		}
+	})
+	b.Run("conditions", func(b *testing.B) {
+		b.ReportAllocs()
+		for i := 0; i < b.N; i++ {
+			ScoreConditions(dst, y, n, trials, cond, pc, nb)
+		}
+	})
+}
