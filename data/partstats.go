@@ -329,11 +329,16 @@ func NormalizerFromParts(parts ...*PartStats) *Normalizer {
 	return z
 }
 
+// defaultBlockBytes is the default size of a block buffer.
+var defaultBlockBytes = 2 << 20
+
 // StreamOptions tune AccumulateParts; the zero value is the default.
 type StreamOptions struct {
-	// BlockBytes is the size of one row-block buffer (0: 16 MiB). Two are
-	// used, one being read while the other is summed; a block holds at
-	// least one row.
+	// BlockBytes is the size of one block buffer (0: 2 MiB, which two
+	// buffers keep in the L3 cache between the read and the sums). Two
+	// are used, one being read while the other is summed. A block is
+	// whole rows when a row fits, else a span of one row of at least 256
+	// neurons.
 	BlockBytes int
 	// Workers is the number of goroutines summing a block, each owning a
 	// range of neurons (0: GOMAXPROCS). The result does not depend on it.
@@ -343,8 +348,10 @@ type StreamOptions struct {
 // AccumulateParts passes once over the rows of s and returns the
 // statistics of each part of plan (one PartStats per Specs entry, in
 // order). Memory is the parts' statistics (B x N float64 for Sum, and as
-// much again for SumSq and for SumA where kept) plus two row blocks;
-// nothing is of size trials x neurons.
+// much again for SumSq and for SumA where kept) plus two blocks of
+// StreamOptions.BlockBytes; nothing is of size trials x neurons. At
+// 1,000,000 neurons, 60 conditions and the three parts of a fit (the test
+// part with halves and squares) that is 2.4 GB.
 //
 // One goroutine reads the next block (pread) while the others sum the
 // current one, each owning a fixed range of neurons, so every element is
@@ -377,15 +384,21 @@ func AccumulateParts(s *NPYStream, plan StreamPlan, opt StreamOptions) ([]*PartS
 
 	blockBytes := opt.BlockBytes
 	if blockBytes <= 0 {
-		blockBytes = 16 << 20
+		blockBytes = defaultBlockBytes
 	}
+	// A block is rows [lo, hi) x neurons [c0, c1): whole rows when a row
+	// fits in a block, else spans of one row.
 	R := max(1, blockBytes/max(4*N, 1))
 	R = min(R, max(T, 1))
-	type block struct {
-		lo, hi, buf int
-		err         error
+	W := N
+	if R == 1 {
+		W = min(N, max(blockBytes/4, 256))
 	}
-	bufs := [2][]float32{make([]float32, R*N), make([]float32, R*N)}
+	type block struct {
+		lo, hi, c0, c1, buf int
+		err                 error
+	}
+	bufs := [2][]float32{make([]float32, R*W), make([]float32, R*W)}
 	free := make(chan int, 2)
 	free <- 0
 	free <- 1
@@ -398,16 +411,19 @@ func AccumulateParts(s *NPYStream, plan StreamPlan, opt StreamOptions) ([]*PartS
 			if !acc.anyPart(lo, hi) {
 				continue
 			}
-			var i int
-			select {
-			case i = <-free:
-			case <-done:
-				return
-			}
-			_, err := s.ReadRows32(bufs[i], lo, hi)
-			full <- block{lo, hi, i, err}
-			if err != nil {
-				return
+			for c0 := 0; c0 < N; c0 += W {
+				c1 := min(c0+W, N)
+				var i int
+				select {
+				case i = <-free:
+				case <-done:
+					return
+				}
+				err := s.readSpan32(bufs[i][:(hi-lo)*(c1-c0)], lo, c0)
+				full <- block{lo, hi, c0, c1, i, err}
+				if err != nil {
+					return
+				}
 			}
 		}
 	}()
@@ -416,7 +432,7 @@ func AccumulateParts(s *NPYStream, plan StreamPlan, opt StreamOptions) ([]*PartS
 			err = bk.err
 			break
 		}
-		if err = acc.addParallel(bufs[bk.buf], bk.lo, bk.hi, opt.Workers); err != nil {
+		if err = acc.addParallel(bufs[bk.buf], bk.lo, bk.hi, bk.c0, bk.c1, opt.Workers); err != nil {
 			break
 		}
 		free <- bk.buf
@@ -453,7 +469,7 @@ func AccumulatePartsMatrix(y *Matrix, plan StreamPlan, opt StreamOptions) ([]*Pa
 	}); err != nil {
 		return nil, err
 	}
-	if err := acc.addParallel(y.Data, 0, y.Rows, opt.Workers); err != nil {
+	if err := acc.addParallel(y.Data, 0, y.Rows, 0, y.Cols, opt.Workers); err != nil {
 		return nil, err
 	}
 	if p, n := acc.finish(); p >= 0 {
@@ -509,15 +525,20 @@ func newAccumulator(plan *StreamPlan, T, N int, name string) (*accumulator, []in
 			ps.RefCond = c
 		}
 	}
+	big := func(n int) []float64 {
+		v := make([]float64, n)
+		adviseHuge(v)
+		return v
+	}
 	for i, ps := range parts {
 		ps.Ref = make([]float64, N)
 		ps.TotSq = make([]float64, N)
-		ps.Sum = make([]float64, B*N)
+		ps.Sum = big(B * N)
 		if plan.Specs[i].CondSquares {
-			ps.SumSq = make([]float64, B*N)
+			ps.SumSq = big(B * N)
 		}
 		if plan.Specs[i].Halves {
-			ps.SumA = make([]float64, B*N)
+			ps.SumA = big(B * N)
 			ps.CountA = make([]int, B)
 			for c, k := range ps.Count {
 				ps.CountA[c] = (k + 1) / 2
@@ -534,21 +555,22 @@ func (a *accumulator) setRef(i int, row []float32) {
 	}
 }
 
-// addParallel adds rows [lo, hi) held in y over workers goroutines (0:
-// GOMAXPROCS, at most one per 256 neurons), each owning a range of
-// neurons. The goroutines run under Guard: a mapped y whose file is
-// truncated during the pass gives a *FaultError, not a crash.
-func (a *accumulator) addParallel(y []float32, lo, hi, workers int) error {
-	N := a.N
+// addParallel adds the values held in y, rows [lo, hi) x neurons
+// [y0, y1) (element (t, n) at (t-lo)*(y1-y0) + n-y0), over workers
+// goroutines (0: GOMAXPROCS, at most one per 256 neurons), each owning a
+// range of neurons. The goroutines run under Guard: a mapped y whose file
+// is truncated during the pass gives a *FaultError, not a crash.
+func (a *accumulator) addParallel(y []float32, lo, hi, y0, y1, workers int) error {
+	w := y1 - y0
 	if workers <= 0 {
 		workers = runtime.GOMAXPROCS(0)
 	}
-	workers = max(1, min(workers, N/256))
-	chunk := (N + workers - 1) / workers
+	workers = max(1, min(workers, w/256))
+	chunk := (w + workers - 1) / workers
 	var g GuardGroup
-	for c0 := 0; c0 < N; c0 += chunk {
-		c1 := min(c0+chunk, N)
-		g.Go(func() { a.add(y, lo, hi, c0, c1) })
+	for c0 := y0; c0 < y1; c0 += chunk {
+		c1 := min(c0+chunk, y1)
+		g.Go(func() { a.add(y, lo, hi, y0, y1, c0, c1) })
 	}
 	return g.Wait()
 }
@@ -620,16 +642,18 @@ func (a *accumulator) anyPart(lo, hi int) bool {
 	return false
 }
 
-// add sums the rows [lo, hi) held in y (row t at (t-lo)*N) into neurons
-// [c0, c1) of every part's statistics, the rows in ascending order, so
-// that every element is summed in ascending trial order whatever the
-// block and worker boundaries. (Column tiles sized for the L2 cache, and
-// rows grouped by condition within larger blocks, were measured at 4,600
-// x 24,000 and gained nothing beyond the noise: the cost is the
-// arithmetic, about 1 ns per value and core, and the B x N accumulators.)
-func (a *accumulator) add(y []float32, lo, hi, c0, c1 int) {
+// add sums the values held in y, rows [lo, hi) x neurons [y0, y1), into
+// neurons [c0, c1) (within [y0, y1)) of every part's statistics, the rows
+// in ascending order, so that every element is summed in ascending trial
+// order whatever the block and worker boundaries. (Column tiles sized for
+// the L2 cache, and rows grouped by condition within larger blocks, were
+// measured at 4,600 x 24,000 and gained nothing beyond the noise: the
+// cost is the arithmetic, about 1 ns per value and core, and the B x N
+// accumulators.)
+func (a *accumulator) add(y []float32, lo, hi, y0, y1, c0, c1 int) {
 	N := a.N
 	w := c1 - c0
+	yw := y1 - y0
 	for t := lo; t < hi; t++ {
 		p := a.plan.Part[t]
 		if p == NoPart {
@@ -638,7 +662,8 @@ func (a *accumulator) add(y []float32, lo, hi, c0, c1 int) {
 		ps := a.parts[p]
 		b := a.plan.Cond[t]
 		o := b*N + c0
-		row := y[(t-lo)*N+c0 : (t-lo)*N+c1]
+		r := (t-lo)*yw + c0 - y0
+		row := y[r : r+w : r+w]
 		ref := ps.Ref[c0:c1:c1]
 		sum := ps.Sum[o : o+w : o+w]
 		var sq []float64

@@ -105,18 +105,17 @@ func (s *NPYStream) checkRange(fn string, n, lo, hi int) {
 	}
 }
 
-// readAt fills b from the data bytes starting at row lo.
-func (s *NPYStream) readAt(b []byte, lo int) error {
-	if len(b) == 0 {
-		return nil
+// pos is the file offset of element (t, c).
+func (s *NPYStream) pos(t, c int) int64 {
+	return s.off + int64(t)*s.rowBytes + int64(c)*int64(s.h.size)
+}
+
+// readErr wraps an error of a read starting at element (t, c).
+func (s *NPYStream) readErr(err error, t, c int) error {
+	if err == io.EOF || err == io.ErrUnexpectedEOF {
+		return formatErr(s.name, "file ends before the data of trial %d (0-based) the header announces: was it truncated while being read?", t)
 	}
-	if _, err := s.f.ReadAt(b, s.off+int64(lo)*s.rowBytes); err != nil {
-		if err == io.EOF || err == io.ErrUnexpectedEOF {
-			return formatErr(s.name, "file ends before row %d (0-based): was it truncated while being read?", lo+len(b)/int(max(s.rowBytes, 1)))
-		}
-		return fmt.Errorf("data: %s: reading rows from %d (0-based): %w", s.name, lo, err)
-	}
-	return nil
+	return fmt.Errorf("data: %s: reading trial %d, neuron %d (0-based) onwards: %w", s.name, t, c, err)
 }
 
 // ReadRows32 reads rows [lo, hi) into dst[:(hi-lo)*Cols] as float32 in C
@@ -128,17 +127,25 @@ func (s *NPYStream) readAt(b []byte, lo int) error {
 // (hi-lo)*Cols.
 func (s *NPYStream) ReadRows32(dst []float32, lo, hi int) ([]float32, error) {
 	s.checkRange("ReadRows32", len(dst), lo, hi)
-	n := (hi - lo) * s.cols
-	out := dst[:n]
-	if n == 0 {
-		return out, nil
+	out := dst[:(hi-lo)*s.cols]
+	return out, s.readSpan32(out, lo, 0)
+}
+
+// readSpan32 reads len(dst) consecutive elements starting at element
+// (t, c) (continuing into the next rows) into dst as float32.
+func (s *NPYStream) readSpan32(dst []float32, t, c int) error {
+	if len(dst) == 0 {
+		return nil
 	}
 	if s.direct(4) {
-		b := unsafe.Slice((*byte)(unsafe.Pointer(&out[0])), 4*n)
-		return out, s.readAt(b, lo)
+		b := unsafe.Slice((*byte)(unsafe.Pointer(&dst[0])), 4*len(dst))
+		if _, err := s.f.ReadAt(b, s.pos(t, c)); err != nil {
+			return s.readErr(err, t, c)
+		}
+		return nil
 	}
 	get := s.h.getter()
-	return out, s.convert(n, lo, func(i int, b []byte) { out[i] = float32(get(b)) })
+	return s.convert(len(dst), t, c, func(i int, b []byte) { dst[i] = float32(get(b)) })
 }
 
 // ReadRows64 is ReadRows32 for float64 destinations; little-endian
@@ -152,28 +159,28 @@ func (s *NPYStream) ReadRows64(dst []float64, lo, hi int) ([]float64, error) {
 	}
 	if s.direct(8) {
 		b := unsafe.Slice((*byte)(unsafe.Pointer(&out[0])), 8*n)
-		return out, s.readAt(b, lo)
+		if _, err := s.f.ReadAt(b, s.pos(lo, 0)); err != nil {
+			return out, s.readErr(err, lo, 0)
+		}
+		return out, nil
 	}
 	get := s.h.getter()
-	return out, s.convert(n, lo, func(i int, b []byte) { out[i] = get(b) })
+	return out, s.convert(n, lo, 0, func(i int, b []byte) { out[i] = get(b) })
 }
 
-// convert reads n elements from row lo in chunks and hands element i's
-// bytes to set.
-func (s *NPYStream) convert(n, lo int, set func(i int, b []byte)) error {
+// convert reads n elements starting at element (t, c) in chunks and hands
+// element i's bytes to set.
+func (s *NPYStream) convert(n, t, c int, set func(i int, b []byte)) error {
 	size := s.h.size
 	const chunk = 1 << 16
 	buf := make([]byte, chunk-chunk%size)
 	per := len(buf) / size
-	pos := s.off + int64(lo)*s.rowBytes
+	pos := s.pos(t, c)
 	for i := 0; i < n; i += per {
 		k := min(per, n-i)
 		b := buf[:k*size]
 		if _, err := s.f.ReadAt(b, pos); err != nil {
-			if err == io.EOF || err == io.ErrUnexpectedEOF {
-				return formatErr(s.name, "file ends before the data the header announces: was it truncated while being read?")
-			}
-			return fmt.Errorf("data: %s: reading rows from %d (0-based): %w", s.name, lo, err)
+			return s.readErr(err, t, c)
 		}
 		for e := 0; e < k; e++ {
 			set(i+e, b[e*size:])

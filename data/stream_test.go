@@ -96,7 +96,7 @@ func testAccumulateParts(t *testing.T, T, N int) {
 		name string
 		opt  StreamOptions
 	}{
-		{"one worker, one row per block", StreamOptions{Workers: 1, BlockBytes: 1}},
+		{"one worker, spans of 256 neurons", StreamOptions{Workers: 1, BlockBytes: 1}},
 		{"two workers, 7 rows per block", StreamOptions{Workers: 2, BlockBytes: 7 * 4 * N}},
 		{"three workers, default blocks", StreamOptions{Workers: 3}},
 	} {
