@@ -84,7 +84,7 @@ func BenchmarkStream(b *testing.B) {
 			defer s.Close()
 			bytes := int64(4) * int64(s.Rows()) * int64(s.Cols())
 			b.Run("read", func(b *testing.B) {
-				R := max(1, (16<<20)/(4*s.Cols()))
+				R := max(1, defaultBlockBytes/(4*s.Cols()))
 				buf := make([]float32, R*s.Cols())
 				b.SetBytes(bytes)
 				c0 := cpuTime()
