@@ -1,7 +1,7 @@
 #!/bin/bash
-# stria comparison as a Slurm job array: one shard per array task.
+# stria comparison as a Slurm job array: one array task per Slurm task.
 # Submit:  sbatch this-script.sh
-# Then, when every task has finished:  stria merge COMPARE_FOLDER
+# Then, when every task has finished:  stria gather COMPARE_FOLDER
 # A failed or killed task can be rerun alone (sbatch --array=K this-script.sh);
 # units it finished before are not redone.
 #SBATCH --job-name=stria-compare
@@ -9,8 +9,8 @@
 #SBATCH --cpus-per-task=2
 #SBATCH --mem=8G
 #SBATCH --time=04:00:00
-#SBATCH --output=stria-shard-%a-of-40.log
+#SBATCH --output=stria-task-%a-of-40.log
 set -euo pipefail
 STRIA=${STRIA:-stria}
-"$STRIA" compare --config "/path/to/many.yaml" --out "/path/to/runs/compare" --shard "${SLURM_ARRAY_TASK_ID}/40" --quiet
-# merge afterwards: "$STRIA" merge "/path/to/runs/compare"
+"$STRIA" compare --config "/path/to/many.yaml" --out "/path/to/stria-out/compare" --array-task "${SLURM_ARRAY_TASK_ID}" --array-task-count 40 --quiet
+# gather afterwards: "$STRIA" gather "/path/to/stria-out/compare"

@@ -34,6 +34,11 @@
 //     math/rand/v2; no global random source is used, so results are the same
 //     for the same seed on every machine.
 //
+// Stimulus axis: equal-width bins (Axis). When the stimulus takes a few
+// discrete values, the bins should be centred on them (Axis.CenterOnStimulus),
+// or every condition's value, and so every preferred stimulus, is off by the
+// distance from the values to the bin centres.
+//
 // File formats: .npy (NEP 1, "A Simple File Format for NumPy Arrays",
 // versions 1.0, 2.0 and 3.0), .npz (a zip archive of .npy files) and
 // delimited text with a header row (.csv with commas, .tsv with tabs).

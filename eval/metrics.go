@@ -139,40 +139,50 @@ func Pearson(x, y []float64) float64 {
 }
 
 // SignalPower returns the signal power of one neuron from condition statistics
-// in the ANOVA form for unequal repeat counts (METHODS.md §1 [derived]):
+// in an ANOVA form for unequal repeat counts:
 //
-//	SP = Var_b(ybar_b) - mean_b(s2_b / N_b),
+//	SP = Var_b(ybar_b) - (B-1)/B * mean_b(s2_b / N_b),
 //
-// with Var_b over the conditions with N_b >= 1 (ddof 0) and s2_b the
-// within-condition variance (ddof 1). Conditions with counts[b] == 0 are
-// skipped. A condition with a single trial has no within-condition variance of
-// its own: vars[b] is then ignored and the mean of s2 over the conditions with
-// N_b >= 2 (the pooled noise variance) is used in its place. SP is NaN when no
-// condition has two trials or fewer than two conditions have a trial, and may
-// be <= 0 for an unreliable neuron.
+// with B the number of conditions with N_b >= 1, Var_b over them (ddof 0) and
+// s2_b the within-condition variance (ddof 1). Conditions with counts[b] == 0
+// are skipped. A condition with a single trial has no within-condition
+// variance of its own: vars[b] is then ignored and the pooled noise variance
+// of the conditions with N_b >= 2 (PooledNoiseVariance) stands in for it. SP
+// is NaN when no condition has two trials or fewer than two conditions have a
+// trial, and may be <= 0 for an unreliable neuron.
 //
-// For equal N_b and ddof 0 across conditions this equals Var[r] - sigma2_noise
-// of ExplainableFraction. SignalPower panics if the slice lengths differ.
+// The factor (B-1)/B makes SP unbiased for the ddof-0 variance of the true
+// condition means, V = Var_b(mu_b) [derived]: with ybar_b = mu_b + e_b,
+// Var(e_b) = sigma2_b/N_b and the e_b independent,
+//
+//	E[Var_b(ybar)] = V + (1/B) sum_b (1 - 1/B) sigma2_b/N_b = V + (B-1)/B mean_b(sigma2_b/N_b),
+//
+// and E[s2_b] = sigma2_b. The form without the factor (eval/methods.md §1,
+// check value E3: 73/20) is biased low by mean_b(sigma2_b/N_b)/B, which
+// makes CC_norm of a perfect model exceed 1 when conditions are few and
+// held-out trials per condition are few (TestSignalPowerUnbiased). With equal
+// N_b the Sahani-Linden form (SignalPowerEqual, unbiased as well) equals
+// Var_b(ybar) - mean_b(s2_b)/N + sum_n ebar_n^2/(N(N-1)), ebar_n the mean over
+// conditions of repeat n's deviation from its condition mean: a term that
+// depends on which trial is called repeat n and whose expectation is
+// mean_b(sigma2_b/N)/B. The form here replaces that term by its expectation,
+// so it does not depend on the labelling; on E3 it gives 749/200 (the
+// Sahani-Linden form 11/3). SignalPower panics if the slice lengths differ.
 func SignalPower(counts []int, means, vars []float64) float64 {
 	checkLen(len(counts), len(means), "SignalPower")
 	checkLen(len(counts), len(vars), "SignalPower")
-	var pooled float64
-	var nVar, nCond int
+	pooled := PooledNoiseVariance(counts, vars)
+	var nCond int
 	var sum float64
 	for b, c := range counts {
 		if c >= 1 {
 			nCond++
 			sum += means[b]
 		}
-		if c >= 2 {
-			pooled += vars[b]
-			nVar++
-		}
 	}
-	if nVar == 0 || nCond < 2 {
+	if math.IsNaN(pooled) || nCond < 2 {
 		return math.NaN()
 	}
-	pooled /= float64(nVar)
 	m := sum / float64(nCond)
 	var vbar, noise float64
 	for b, c := range counts {
@@ -187,7 +197,34 @@ func SignalPower(counts []int, means, vars []float64) float64 {
 		}
 		noise += s2 / float64(c)
 	}
-	return (vbar - noise) / float64(nCond)
+	B := float64(nCond)
+	return (vbar - noise*(B-1)/B) / B
+}
+
+// PooledNoiseVariance returns the pooled within-condition variance, the
+// within-group mean square of a one-way ANOVA (eval/methods.md §4):
+//
+//	sigma2_noise = sum_b (N_b - 1) s2_b / sum_b (N_b - 1),
+//
+// over the conditions with N_b >= 2 (s2_b, ddof 1, is ignored for the others).
+// With equal counts it is the plain mean of s2_b; with unequal counts the plain
+// mean over-weights rare conditions (check value E8: [1, 3] and [2, 4, 9] give
+// 28/3, the plain mean 15/2). NaN when no condition has two trials. It panics
+// if the lengths differ.
+func PooledNoiseVariance(counts []int, vars []float64) float64 {
+	checkLen(len(counts), len(vars), "PooledNoiseVariance")
+	var num, den float64
+	for b, c := range counts {
+		if c >= 2 {
+			w := float64(c - 1)
+			num += w * vars[b]
+			den += w
+		}
+	}
+	if den == 0 {
+		return math.NaN()
+	}
+	return num / den
 }
 
 // SignalPowerEqual returns the signal power of one neuron recorded with an
@@ -319,8 +356,8 @@ func CCMaxSplitHalf(ccHalf float64) float64 {
 //	(Var[r] - sigma2_noise) / Var[r],
 //
 // with trialVar = Var[r] the ddof-0 variance of all single trials and noiseVar
-// = sigma2_noise the mean over conditions of the ddof-1 within-condition
-// variance. It is NaN if trialVar <= 0, and may be negative for an unreliable
+// = sigma2_noise the pooled within-condition variance (PooledNoiseVariance).
+// It is NaN if trialVar <= 0, and may be negative for an unreliable
 // neuron.
 func ExplainableFraction(trialVar, noiseVar float64) float64 {
 	if !(trialVar > 0) {

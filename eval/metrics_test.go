@@ -64,7 +64,7 @@ func TestWorkedValues(t *testing.T) {
 		}
 	}
 	trialVar := variance0(all)
-	noiseVar := mean(vars)
+	noiseVar := PooledNoiseVariance(counts, vars)
 	cases := []struct {
 		name      string
 		got, want float64
@@ -80,7 +80,15 @@ func TestWorkedValues(t *testing.T) {
 		{"E2 CCmax(0.8) printed", CCMaxSplitHalf(0.8), 0.9428090416, 1e-10}, // 10 printed digits
 		// METHODS.md §9 E3 [computed].
 		{"E3 SP equal-repeat", spEq, 11.0 / 3, exactTol},
-		{"E3 SP ANOVA", SignalPower(counts, means, vars), 73.0 / 20, exactTol},
+		// eval/methods.md §9 E3 gives the ANOVA form without the (B-1)/B
+		// factor, 73/20 = Var(ybar) - mean(s2)/N = 33/8 - 19/40. SignalPower
+		// multiplies the noise term by (B-1)/B = 4/5 (derivation on
+		// SignalPower): 33/8 - (4/5)(19/40) = 749/200 [derived, exact fractions].
+		{"E3 SP ANOVA", SignalPower(counts, means, vars), 749.0 / 200, exactTol},
+		{"E3 SP ANOVA without the factor", variance0(e3Ybar) - mean(vars)/4, 73.0 / 20, exactTol},
+		// eval/methods.md §9 E8 [computed]: pooled 28/3, the plain mean 15/2.
+		{"E8 pooled noise", PooledNoiseVariance([]int{2, 3}, []float64{2, 13}), 28.0 / 3, exactTol},
+		{"E8 plain mean", mean([]float64{2, 13}), 15.0 / 2, exactTol},
 		{"E3 Var(ybar)", variance0(e3Ybar), 33.0 / 8, exactTol},
 		{"E3 Var(yhat)", variance0(e3Yhat), 56.0 / 25, exactTol},
 		{"E3 CC_abs", CCAbs(e3Ybar, e3Yhat), 0.8224396187, 1e-10},              // printed to 10 digits
@@ -130,9 +138,10 @@ func TestScorePopulationE3(t *testing.T) {
 	ScorePopulation(dst, y, 1, trials, cond, pred, 5)
 	s := dst[0]
 	half := 37.0 / 42
-	// Expected values: METHODS.md §9 E3 [computed]; SP is the ANOVA form 73/20,
-	// so CC_max, CC_norm and SPE use 73/20 rather than the equal-repeat 11/3.
-	sp := 73.0 / 20
+	// Expected values: eval/methods.md §9 E3 [computed]; SP is the ANOVA
+	// form with the (B-1)/B factor, 749/200 (TestWorkedValues), so CC_max,
+	// CC_norm and SPE use 749/200 rather than the equal-repeat 11/3.
+	sp := 749.0 / 200
 	cases := []struct {
 		name      string
 		got, want float64
@@ -181,9 +190,22 @@ func TestNaNRules(t *testing.T) {
 	// One condition with a single trial: its variance is ignored and the
 	// pooled variance of the others (here 1) stands in.
 	got := SignalPower([]int{2, 2, 1, 0}, []float64{0, 2, 4, 99}, []float64{1, 1, math.NaN(), math.NaN()})
-	// Var_b([0,2,4]) = 8/3; noise = (1/2+1/2+1/1)/3 = 2/3 -> SP = 2 [computed by hand]
-	if !near(got, 2, exactTol) {
-		t.Errorf("SignalPower with a single-trial condition = %v, want 2", got)
+	// Var_b([0,2,4]) = 8/3; noise = (1/2+1/2+1/1)/3 = 2/3, times (B-1)/B =
+	// 2/3 -> SP = 8/3 - 4/9 = 20/9 [computed by hand]
+	if !near(got, 20.0/9, exactTol) {
+		t.Errorf("SignalPower with a single-trial condition = %v, want 20/9", got)
+	}
+	// The stand-in is the pooled variance, weights N_b - 1 (eval/methods.md
+	// §4): counts 2 and 3 with s2 1 and 4 pool to (1*1 + 2*4)/3 = 3; the
+	// single-trial condition then adds 3/1. Means [0, 3, 6]: Var_b = 6;
+	// noise = (1/2 + 4/3 + 3)/3 = 29/18, times 2/3 = 29/27; SP = 6 - 29/27 =
+	// 133/27 [computed by hand].
+	got = SignalPower([]int{2, 3, 1}, []float64{0, 3, 6}, []float64{1, 4, math.NaN()})
+	if !near(got, 133.0/27, exactTol) {
+		t.Errorf("SignalPower with unequal counts and a single-trial condition = %v, want 133/27", got)
+	}
+	if !math.IsNaN(PooledNoiseVariance([]int{1, 0}, []float64{5, 5})) {
+		t.Error("PooledNoiseVariance without a condition of two trials should be NaN")
 	}
 }
 

@@ -5,6 +5,8 @@ import (
 	"runtime"
 	"sync"
 	"sync/atomic"
+
+	"gonum.org/v1/gonum/stat/distuv"
 )
 
 // Scores holds the held-out scores of one neuron.
@@ -23,14 +25,36 @@ import (
 //   - SplitHalf: Spearman-Brown corrected split-half reliability 2r/(1+r) of
 //     the held-out condition means, r the correlation across conditions of the
 //     two halves' means (see ScorePopulation for how halves are formed).
+//   - SignalF, SignalDF1, SignalDF2: the one-way ANOVA F statistic of the
+//     held-out trials (condition as the factor) and its degrees of freedom,
+//     the test of "no condition effect" that CheckCeiling uses (see there);
+//     SignalP() is its p-value.
 //
 // A score that is undefined is NaN; in particular CCMax, CCNorm and SPE are
-// NaN when SP <= 0.
+// NaN when SP <= 0. The ratio scores FEV, CCNorm and SPE divide by a
+// noise-ceiling estimate and can explode for an untuned neuron whose estimate
+// is positive by chance: pass the scores through GateCeilings before
+// summarising them.
 type Scores struct {
 	TestR2, TestR, EVScore        float64
 	ExplainableFraction, FEV      float64
 	SP, CCAbs, CCMax, CCNorm, SPE float64
 	SplitHalf                     float64
+	SignalF, SignalDF1, SignalDF2 float64
+}
+
+// SignalP returns the p-value of SignalF, its upper tail under
+// F(SignalDF1, SignalDF2): 0 for SignalF = +Inf, NaN when SignalF is NaN. It
+// costs an incomplete beta function (microseconds); to test many neurons at
+// one level use GateCeilings, which compares SignalF with the critical value.
+func (s Scores) SignalP() float64 {
+	switch {
+	case math.IsNaN(s.SignalF):
+		return math.NaN()
+	case math.IsInf(s.SignalF, 1):
+		return 0
+	}
+	return distuv.F{D1: s.SignalDF1, D2: s.SignalDF2}.Survival(s.SignalF)
 }
 
 // scoreBlock is the number of neurons one worker scores at a time.
@@ -50,10 +74,17 @@ const scoreBlock = 64
 // yhat_b of pred over those trials; conditions with no held-out trial are left
 // out of every condition-level sum. A condition with exactly one held-out
 // trial counts for ybar_b, yhat_b and Var_b(ybar), but not for the noise
-// variance: sigma2_noise is the mean of the ddof-1 within-condition variances
-// of the conditions with N_b >= 2, and that pooled value stands in for s2_b of
-// the single-trial conditions in SP (see SignalPower). If no condition has two
-// held-out trials, SP, ExplainableFraction, FEV and every ratio by SP are NaN.
+// variance: sigma2_noise is the pooled within-condition variance of the
+// conditions with N_b >= 2, sum_b SSwithin_b / sum_b (N_b - 1)
+// (PooledNoiseVariance, eval/methods.md §4), and that pooled value stands in
+// for s2_b of the single-trial conditions in SP (see SignalPower). If no
+// condition has two held-out trials, SP, ExplainableFraction, FEV, SignalF and
+// every ratio by SP are NaN.
+//
+// SignalF = (SSbetween/(B-1)) / (SSwithin/(M-B)) over the B conditions with a
+// held-out trial and the M held-out trials, SSbetween = SStot - SSwithin, with
+// SignalDF1 = B-1 and SignalDF2 = M-B. SignalF is +Inf when the trials vary
+// only between conditions.
 //
 // SplitHalf: within each condition the held-out trials, in the order they
 // appear in trials, are dealt alternately to half A (1st, 3rd, ...) and half
@@ -298,8 +329,7 @@ func (s *scorer) finish(sh *shared, j int, M float64) Scores {
 	}
 	// Gather the present conditions.
 	k, kh := 0, 0
-	var noise float64
-	nNoise := 0
+	var ssw, dfw float64 // within-condition sum of squares and its degrees of freedom
 	for c, cnt := range sh.counts {
 		if cnt == 0 {
 			continue
@@ -310,8 +340,8 @@ func (s *scorer) finish(sh *shared, j int, M float64) Scores {
 		v := nan
 		if cnt >= 2 {
 			v = s.ssw[c*nb+j] / float64(cnt-1)
-			noise += v
-			nNoise++
+			ssw += s.ssw[c*nb+j]
+			dfw += float64(cnt - 1)
 			na := sh.cntA[c]
 			sa := s.sumA[c*nb+j]
 			s.hA[kh] = sa / float64(na)
@@ -322,10 +352,15 @@ func (s *scorer) finish(sh *shared, j int, M float64) Scores {
 		k++
 	}
 	trialVar := ssTot / M
-	if nNoise > 0 {
-		noise /= float64(nNoise)
+	out.SignalF = nan
+	if dfw > 0 {
+		noise := ssw / dfw // PooledNoiseVariance from the sums of squares
 		out.ExplainableFraction = ExplainableFraction(trialVar, noise)
 		out.FEV = FEV(s.sse[j]/M, trialVar, noise)
+		if k >= 2 {
+			out.SignalF = anovaF(ssTot, ssw, k, dfw)
+			out.SignalDF1, out.SignalDF2 = float64(k-1), dfw
+		}
 	} else {
 		out.ExplainableFraction, out.FEV = nan, nan
 	}
@@ -340,4 +375,19 @@ func (s *scorer) finish(sh *shared, j int, M float64) Scores {
 		out.SplitHalf = SpearmanBrown(Pearson(s.hA[:kh], s.hB[:kh]), 2)
 	}
 	return out
+}
+
+// anovaF returns the one-way ANOVA F statistic from the total and
+// within-condition sums of squares, k conditions and dfw = M - k
+// within-condition degrees of freedom. Rounding can make ssTot a hair below
+// ssw; the between-condition sum is then taken as 0.
+func anovaF(ssTot, ssw float64, k int, dfw float64) float64 {
+	ssb := math.Max(0, ssTot-ssw)
+	switch {
+	case ssw > 0:
+		return (ssb / float64(k-1)) / (ssw / dfw)
+	case ssb > 0:
+		return math.Inf(1)
+	}
+	return math.NaN()
 }

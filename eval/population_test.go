@@ -1,9 +1,11 @@
 package eval
 
 import (
+	"encoding/json"
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"os"
 	"testing"
 )
 
@@ -65,8 +67,6 @@ func TestScorePopulationMatchesDirect(t *testing.T) {
 			mp[cond[r]] += pp[i]
 		}
 		vars := make([]float64, B)
-		var noise float64
-		nn := 0
 		var ybar, yhat []float64
 		var cnt []int
 		var vv []float64
@@ -83,12 +83,10 @@ func TestScorePopulationMatchesDirect(t *testing.T) {
 					}
 				}
 				vars[b] /= float64(counts[b] - 1)
-				noise += vars[b]
-				nn++
 			}
 			ybar, yhat, cnt, vv = append(ybar, my[b]), append(yhat, mp[b]), append(cnt, counts[b]), append(vv, vars[b])
 		}
-		noise /= float64(nn)
+		noise := PooledNoiseVariance(cnt, vv)
 		var mse float64
 		for i := range yy {
 			mse += (yy[i] - pp[i]) * (yy[i] - pp[i])
@@ -133,5 +131,54 @@ func TestScorePopulationEmpty(t *testing.T) {
 	ScorePopulation(dst, []float32{1, 2, 3, 4}, 2, nil, []int{0, 1}, nil, 2)
 	if !math.IsNaN(dst[0].TestR2) || !math.IsNaN(dst[1].SP) || !math.IsNaN(dst[0].CCNorm) {
 		t.Errorf("no held-out trials: got %+v", dst[0])
+	}
+}
+
+// TestSignalFScipy: SignalF and SignalP of ScorePopulation and
+// ScoreConditions against scipy.stats.f_oneway (testdata/eval/gen_anova.py).
+// Tolerance 1e-9 relative: float32-exact inputs, sums in a different order,
+// and gonum's regularised incomplete beta against scipy's.
+func TestSignalFScipy(t *testing.T) {
+	b, err := os.ReadFile("../testdata/eval/anova_ref.json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var ref struct {
+		Anova []struct {
+			Name   string
+			Groups [][]float64
+			F, P   float64
+		}
+	}
+	if err := json.Unmarshal(b, &ref); err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range ref.Anova {
+		var y []float32
+		var cond, trials []int
+		for g, vals := range c.Groups {
+			for _, v := range vals {
+				trials = append(trials, len(y))
+				y = append(y, float32(v))
+				cond = append(cond, g)
+			}
+		}
+		B := len(c.Groups)
+		dst := make([]Scores, 1)
+		ScorePopulation(dst, y, 1, trials, cond, make([]float64, len(y)), B)
+		dc := make([]Scores, 1)
+		ScoreConditions(dc, y, 1, trials, cond, make([]float64, B), B)
+		for _, s := range []Scores{dst[0], dc[0]} {
+			if !near(s.SignalF, c.F, 1e-9*c.F) || !near(s.SignalP(), c.P, 1e-9*c.P) {
+				t.Errorf("%s: SignalF %.12g, SignalP %.12g; want scipy %.12g, %.12g", c.Name, s.SignalF, s.SignalP(), c.F, c.P)
+			}
+		}
+	}
+	// Trials that vary only between conditions: F = +Inf, p = 0; a constant
+	// neuron: NaN.
+	dst := make([]Scores, 2)
+	ScorePopulation(dst, []float32{1, 5, 1, 5, 2, 5, 2, 5}, 2, []int{0, 1, 2, 3}, []int{0, 0, 1, 1}, make([]float64, 8), 2)
+	if !math.IsInf(dst[0].SignalF, 1) || dst[0].SignalP() != 0 || !math.IsNaN(dst[1].SignalF) || !math.IsNaN(dst[1].SignalP()) {
+		t.Errorf("noise-free neuron: F %v p %v (want +Inf, 0); constant neuron: F %v p %v (want NaN)", dst[0].SignalF, dst[0].SignalP(), dst[1].SignalF, dst[1].SignalP())
 	}
 }

@@ -244,3 +244,198 @@ func ExampleSummarize() {
 	fmt.Printf("median %.2f, IQR [%.3f, %.3f], %d neurons, %d NaN\n", s.Median, s.Q1, s.Q3, s.N, s.NaN)
 	// Output: median 0.45, IQR [0.350, 0.600], 4 neurons, 1 NaN
 }
+
+// placePop simulates R place cells on a track of B bins with Poisson counts:
+// rate 0.3 + peak exp(-(x - c)^2 / (2 w^2)) with the field centre c in the
+// middle half of the track, so the end bins are nearly silent. Condition b
+// has counts[b] trials. It returns the responses (T x R, condition-major),
+// the conditions and the true rates (B x R).
+func placePop(rng *rand.Rand, counts []int, R int) (y []float32, cond []int, rate []float64) {
+	B := len(counts)
+	rate = make([]float64, B*R)
+	for r := 0; r < R; r++ {
+		c := float64(B)/4 + rng.Float64()*float64(B)/2
+		w := 1 + 2*rng.Float64()
+		peak := 4 + 10*rng.Float64()
+		for b := 0; b < B; b++ {
+			d := float64(b) + 0.5 - c
+			rate[b*R+r] = 0.3 + peak*math.Exp(-d*d/(2*w*w))
+		}
+	}
+	for b, k := range counts {
+		for i := 0; i < k; i++ {
+			cond = append(cond, b)
+		}
+	}
+	y = make([]float32, len(cond)*R)
+	for t, b := range cond {
+		for r := 0; r < R; r++ {
+			y[t*R+r] = float32(poisson(rng, rate[b*R+r]))
+		}
+	}
+	return y, cond, rate
+}
+
+// TestPerfectModelFEV: a model that predicts the true rates reaches FEV = 1
+// on a recording whose rarely visited end bins (3 trials, against 12 in the
+// middle) are nearly silent, so that their noise variance differs from the
+// rest. Analytic expectation [derived here], per neuron, with sigma2_b the
+// true (Poisson) noise variance = the rate, T trials, N_b per condition:
+//
+//	E[MSE of the true rates]  = sum_b N_b sigma2_b / T           (trial-weighted)
+//	E[pooled sigma2_noise]    = sum_b (N_b - 1) sigma2_b / (T - B)
+//	E[plain-mean sigma2]      = mean_b sigma2_b
+//	E[Var[r]]                 = Sw + (1 - 1/T) sum_b N_b sigma2_b / T
+//
+// with Sw the trial-weighted variance of the true rates. FEV's expectation is
+// taken as 1 - (E[MSE] - E[sigma2])/(E[Var[r]] - E[sigma2]) per neuron (the
+// ratio's own bias is second order; the tolerance covers it), averaged over
+// neurons. The pooled estimate (eval/methods.md §4) must give a mean FEV
+// within 4 standard errors + 0.002 of that, and within 0.01 of 1: pooling
+// weighs condition b by N_b - 1 where the MSE weighs it by N_b, so with
+// Poisson noise (variance = rate) and silent rare conditions the pooled
+// variance exceeds the perfect model's expected MSE a little and FEV comes
+// out about 1.008 here (exactly 1 in expectation for equal noise variances).
+// The plain mean over conditions (the previous estimator, about 0.94 here)
+// and the trial-weighted sum_b N_b s2_b / T (unbiased for E[MSE] whatever
+// the noise variances) are logged for comparison.
+func TestPerfectModelFEV(t *testing.T) {
+	const B, R = 20, 2000
+	counts := make([]int, B)
+	for b := range counts {
+		counts[b] = 12
+		if b < 3 || b >= B-3 {
+			counts[b] = 3
+		}
+	}
+	rng := rand.New(rand.NewPCG(5, 77))
+	y, cond, rate := placePop(rng, counts, R)
+	T := len(cond)
+	trials := make([]int, T)
+	pred := make([]float64, T*R)
+	for i := range trials {
+		trials[i] = i
+		for r := 0; r < R; r++ {
+			pred[i*R+r] = rate[cond[i]*R+r]
+		}
+	}
+	sc := make([]eval.Scores, R)
+	eval.ScorePopulation(sc, y, R, trials, cond, pred, B)
+
+	var sumFEV, sumFEV2, sumPlain, sumTW, sumExp, sumExpPlain float64
+	vars := make([]float64, B)
+	means := make([]float64, B)
+	for r := 0; r < R; r++ {
+		sumFEV += sc[r].FEV
+		sumFEV2 += sc[r].FEV * sc[r].FEV
+		// The previous estimator: plain mean of the within-condition variances.
+		clear(vars)
+		clear(means)
+		var mse, gm float64
+		for i, c := range cond {
+			v := float64(y[i*R+r])
+			means[c] += v / float64(counts[c])
+			gm += v / float64(T)
+			mse += (v - rate[c*R+r]) * (v - rate[c*R+r]) / float64(T)
+		}
+		var vr float64
+		for i, c := range cond {
+			v := float64(y[i*R+r])
+			vars[c] += (v - means[c]) * (v - means[c]) / float64(counts[c]-1)
+			vr += (v - gm) * (v - gm) / float64(T)
+		}
+		plain, tw := 0.0, 0.0
+		for b, v := range vars {
+			plain += v / B
+			tw += float64(counts[b]) * v / float64(T)
+		}
+		sumPlain += eval.FEV(mse, vr, plain)
+		sumTW += eval.FEV(mse, vr, tw)
+		// Expectations.
+		var eMSE, ePooled, ePlain, mw float64
+		for b, k := range counts {
+			s2 := rate[b*R+r]
+			eMSE += float64(k) * s2 / float64(T)
+			ePooled += float64(k-1) * s2 / float64(T-B)
+			ePlain += s2 / B
+			mw += float64(k) * rate[b*R+r] / float64(T)
+		}
+		var sw float64
+		for b, k := range counts {
+			d := rate[b*R+r] - mw
+			sw += float64(k) * d * d / float64(T)
+		}
+		eVar := sw + (1-1/float64(T))*eMSE
+		sumExp += 1 - (eMSE-ePooled)/(eVar-ePooled)
+		sumExpPlain += 1 - (eMSE-ePlain)/(eVar-ePlain)
+	}
+	m := sumFEV / R
+	se := math.Sqrt((sumFEV2/R - m*m) / R)
+	exp := sumExp / R
+	t.Logf("perfect model, mean FEV over %d neurons: pooled noise %.4f (SE %.4f, expected %.4f); plain mean over conditions %.4f (expected %.4f); trial-weighted %.4f",
+		R, m, se, exp, sumPlain/R, sumExpPlain/R, sumTW/R)
+	if math.Abs(m-exp) > 4*se+0.002 {
+		t.Errorf("mean FEV %.4f, expected %.4f (tol %.4f)", m, exp, 4*se+0.002)
+	}
+	if math.Abs(exp-1) > 0.01 || math.Abs(m-1) > 4*se+0.01 {
+		t.Errorf("perfect model: mean FEV %.4f (expected %.4f), want 1 within 0.01", m, exp)
+	}
+}
+
+// TestSignalPowerUnbiased: with 12 conditions and 2-4 held-out trials each
+// (a typical test fold), SignalPower is unbiased for Var_b(s) (ddof 0) and
+// the true curve as prediction has CC_norm near 1. Expectations [derived on
+// SignalPower]: E[SP] = Var_b(s); the form without the (B-1)/B factor has
+// E = Var_b(s) - mean_b(sigma2/N_b)/B. Gaussian noise, sigma known.
+// Tolerance: 4 standard errors of the replicate mean.
+func TestSignalPowerUnbiased(t *testing.T) {
+	const B, R = 12, 4000
+	rng := rand.New(rand.NewPCG(8, 9))
+	s := make([]float64, B)
+	for b := range s {
+		s[b] = 2 + math.Cos(2*math.Pi*float64(b)/B)
+	}
+	vs := var0(s)
+	sigma := 2.0
+	counts := []int{2, 3, 4, 2, 3, 4, 2, 3, 4, 2, 3, 4}
+	var cond []int
+	for b, k := range counts {
+		for i := 0; i < k; i++ {
+			cond = append(cond, b)
+		}
+	}
+	T := len(cond)
+	y := make([]float32, T*R)
+	trials := make([]int, T)
+	pred := make([]float64, B*R)
+	for i, c := range cond {
+		trials[i] = i
+		for r := 0; r < R; r++ {
+			y[i*R+r] = float32(s[c] + sigma*rng.NormFloat64())
+		}
+	}
+	for b := range s {
+		for r := 0; r < R; r++ {
+			pred[b*R+r] = s[b]
+		}
+	}
+	sc := make([]eval.Scores, R)
+	eval.ScoreConditions(sc, y, R, trials, cond, pred, B)
+	var sum, sum2 float64
+	for _, x := range sc {
+		sum += x.SP
+		sum2 += x.SP * x.SP
+	}
+	m := sum / R
+	se := math.Sqrt((sum2/R - m*m) / R)
+	noiseOfMeans := 0.0
+	for _, k := range counts {
+		noiseOfMeans += sigma * sigma / float64(k) / B
+	}
+	old := m - noiseOfMeans/B // the same replicates with the form without the factor
+	t.Logf("B=%d, 2-4 trials per condition: mean SP %.4f (SE %.4f), Var_b(s) %.4f; without the (B-1)/B factor the mean would be %.4f (bias %.4f)",
+		B, m, se, vs, old, -noiseOfMeans/B)
+	if math.Abs(m-vs) > 4*se {
+		t.Errorf("mean SP %.5f, want Var_b(s) = %.5f (tol %.5f)", m, vs, 4*se)
+	}
+}

@@ -10,6 +10,7 @@ import (
 	"gopkg.in/yaml.v3"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/nn"
 )
 
@@ -28,6 +29,9 @@ type Config struct {
 	Recordings []RecordingConfig `yaml:"recordings"`
 	// Compare lists the models of stria compare.
 	Compare CompareConfig `yaml:"compare"`
+	// Scores says which noise ceilings are usable and which neurons the
+	// summaries of ratio metrics keep.
+	Scores ScoresConfig `yaml:"scores"`
 	// Output is the run folder written by stria fit.
 	Output string `yaml:"output"`
 
@@ -94,7 +98,11 @@ type ModelConfig struct {
 	Layers    []LayerConfig `yaml:"layers"`
 	Output    nn.Activation `yaml:"output"`
 	Loss      Loss          `yaml:"loss"`
-	ReadoutL2 float64       `yaml:"readout_l2"`
+	ReadoutL2 Penalty       `yaml:"readout_l2"`
+	// ReadoutL2PerNeuron, with readout_l2 auto, chooses one penalty per
+	// neuron (by its own C_p, eval/methods.md §12) instead of one for all
+	// (default true; a fixed number is one penalty for all neurons).
+	ReadoutL2PerNeuron bool `yaml:"readout_l2_per_neuron"`
 }
 
 // TrainConfig is the optimiser and the stopping rule.
@@ -113,10 +121,28 @@ type TrainConfig struct {
 	CheckpointEvery int `yaml:"checkpoint_every"`
 	// Threads is the number of cores stria uses (GOMAXPROCS); 0 is all.
 	Threads int `yaml:"threads"`
-	// Solver is adam (gradient steps on all weights, the reference) or
-	// projected (closed-form ridge readout, filters optimised on the
-	// projected loss; MSE, identity output, one-hot input, full batch).
+	// Solver is auto (the default: projected wherever the model allows
+	// it, adam otherwise), adam (gradient steps on all weights, the
+	// reference) or projected (for fixed filters the best readout of every
+	// neuron, the filters optimised on the resulting projected loss;
+	// one-hot input, full batch; MSE with identity output: closed-form
+	// ridge readout; Poisson with softplus or exp output, on request only:
+	// per-neuron Newton readout).
 	Solver Solver `yaml:"solver"`
+}
+
+// ScoresConfig controls how held-out scores are judged against the noise
+// ceiling (eval/methods.md §14).
+type ScoresConfig struct {
+	// CeilingAlpha is the level of the F test of a neuron's condition
+	// effect on the scored trials: where it is not significant the noise
+	// ceiling is unusable and the ratio metrics (FEV, cc_norm, SPE) are
+	// NaN, with the reason in the ceiling column.
+	CeilingAlpha float64 `yaml:"ceiling_alpha"`
+	// MinReliability is the split-half reliability (all trials,
+	// Spearman-Brown stepped up) a neuron needs to enter the summaries,
+	// pair tests and figures of the ratio metrics; -1 keeps all.
+	MinReliability float64 `yaml:"min_reliability"`
 }
 
 // Defaults returns a Config with every default filled in and no data.
@@ -132,10 +158,11 @@ func Defaults() Config {
 			ZScore:             true,
 		},
 		Model: ModelConfig{
-			Layers:    []LayerConfig{{Channels: 8, Kernel: 9, Stride: 1}},
-			Output:    nn.Identity,
-			Loss:      MSE,
-			ReadoutL2: 1,
+			Layers:             []LayerConfig{{Channels: 8, Kernel: 9, Stride: 1}},
+			Output:             nn.Identity,
+			Loss:               MSE,
+			ReadoutL2:          AutoPenalty,
+			ReadoutL2PerNeuron: true,
 		},
 		Train: TrainConfig{
 			Optimizer:       OptimizerAdam,
@@ -146,10 +173,11 @@ func Defaults() Config {
 			MaxEpochs:       3000,
 			Patience:        100,
 			CheckpointEvery: 100,
-			Solver:          SolverAdam,
+			Solver:          SolverAuto,
 		},
-		Compare: CompareConfig{Starts: 8, SmoothLambda: 2, Output: "runs/compare"},
-		Output:  "runs/fit",
+		Scores:  ScoresConfig{CeilingAlpha: eval.DefaultCeilingAlpha, MinReliability: eval.DefaultMinReliability},
+		Compare: CompareConfig{Starts: 8, SmoothLambda: 2, Output: "stria-out/compare"},
+		Output:  "stria-out/fit",
 	}
 }
 
@@ -261,9 +289,10 @@ func (c *Config) Validate() error {
 			bad("model.loss poisson needs the raw non-negative counts: set split.zscore: false")
 		}
 	}
-	if !(m.ReadoutL2 >= 0) || math.IsInf(m.ReadoutL2, 0) {
-		bad("model.readout_l2 %v: want a finite value >= 0", m.ReadoutL2)
+	if !(m.ReadoutL2.Value >= 0) || math.IsInf(m.ReadoutL2.Value, 0) {
+		bad("model.readout_l2 %v: want auto or a finite value >= 0", m.ReadoutL2)
 	}
+
 	t := c.Train
 	if !(t.LearningRate > 0) || math.IsInf(t.LearningRate, 0) {
 		bad("train.learning_rate %v: want a finite value > 0", t.LearningRate)
@@ -292,11 +321,17 @@ func (c *Config) Validate() error {
 	if t.CheckpointEvery < 1 {
 		bad("train.checkpoint_every %d: want at least 1", t.CheckpointEvery)
 	}
-	if t.Solver == SolverProjected && (m.Loss != MSE || m.Output != nn.Identity || c.Axis.Encoding != OneHot || t.BatchSize != 0) {
-		bad("train.solver projected needs model.loss mse, model.output identity, axis.encoding onehot and train.batch_size 0")
+	if t.Solver == SolverProjected && !c.projectable() && !c.poissonProjectable() {
+		bad("train.solver projected needs axis.encoding onehot, train.batch_size 0 and either model.loss mse with model.output identity or model.loss poisson with model.output softplus or exp")
 	}
 	if t.Threads < 0 {
 		bad("train.threads %d: want 0 (all cores) or more", t.Threads)
+	}
+	if !(c.Scores.CeilingAlpha > 0 && c.Scores.CeilingAlpha <= 1) {
+		bad("scores.ceiling_alpha %v: want a level in (0, 1], e.g. 0.05", c.Scores.CeilingAlpha)
+	}
+	if !(c.Scores.MinReliability >= -1 && c.Scores.MinReliability <= 1) {
+		bad("scores.min_reliability %v: want a value in [-1, 1] (-1 keeps every neuron)", c.Scores.MinReliability)
 	}
 	if c.Compare.Starts < 1 {
 		bad("compare.starts %d: want at least 1", c.Compare.Starts)
@@ -311,6 +346,33 @@ func (c *Config) Validate() error {
 		return fmt.Errorf("invalid config:\n  %s", strings.Join(errs, "\n  "))
 	}
 	return nil
+}
+
+// projectable reports whether the projected solver can fit the model.
+func (c *Config) projectable() bool {
+	m, t := c.Model, c.Train
+	return m.Loss == MSE && m.Output == nn.Identity && c.Axis.Encoding == OneHot && t.BatchSize == 0
+}
+
+// poissonProjectable reports whether train.solver projected can fit the
+// model with the Poisson fast path: Poisson loss with a softplus or exp
+// output on one-hot input, full batch. Solver auto does not choose it
+// (an epoch costs O(N B^3), more than an adam epoch at the usual sizes).
+func (c *Config) poissonProjectable() bool {
+	m, t := c.Model, c.Train
+	return m.Loss == Poisson && (m.Output == nn.Softplus || m.Output == nn.Exp) && c.Axis.Encoding == OneHot && t.BatchSize == 0
+}
+
+// SolverToRun is the solver a fit of this config runs: train.solver, with
+// auto resolved to the fastest exact solver the model allows.
+func (c *Config) SolverToRun() Solver {
+	if c.Train.Solver != SolverAuto {
+		return c.Train.Solver
+	}
+	if c.projectable() {
+		return SolverProjected
+	}
+	return SolverAdam
 }
 
 // Shape is the nn.Shape the config describes for nbins positions and n

@@ -242,6 +242,8 @@ func sectionOf(typ string) string {
 		return "train"
 	case "CompareConfig":
 		return "compare"
+	case "ScoresConfig":
+		return "scores"
 	case "EncoderSpec":
 		return "compare.encoders[]"
 	case "RecordingConfig":

@@ -56,7 +56,13 @@ var ErrInterrupted = errors.New("training interrupted")
 
 // Fitted is a trained encoder.
 type Fitted struct {
-	Net       *nn.Net
+	Net *nn.Net
+	// Solver is the solver that ran (never SolverAuto).
+	Solver Solver
+	// ReadoutL2 is the readout penalty of each neuron when it was chosen
+	// from the data (model.readout_l2: auto on the projected solver); nil
+	// when the config's number was used throughout.
+	ReadoutL2 []float64
 	Log       []EpochLog
 	BestEpoch int
 	// Stop says why training ended: "patience" or "max_epochs".
@@ -190,6 +196,11 @@ type trainer struct {
 	valTot []float64
 	ssRes  []float64
 	r2     []float64
+	// excluded are the neurons left out of training and scoring.
+	excluded []int
+	// gradScale turns gradients of means over all neurons into gradients
+	// of means over the trained ones.
+	gradScale float64
 }
 
 // chunkRows bounds the rows of one forward pass on trial-level data.
@@ -197,8 +208,13 @@ const chunkRows = 256
 
 func newTrainer(p *Prepared, net *nn.Net) *trainer {
 	cfg := p.Cfg
-	tr := &trainer{p: p, cfg: cfg, net: net, poiss: cfg.Model.Loss == Poisson}
-	tr.l2 = cfg.Model.ReadoutL2 / float64(p.Neurons())
+	tr := &trainer{p: p, cfg: cfg, net: net, poiss: cfg.Model.Loss == Poisson, excluded: p.Report.Constant}
+	// The losses are means over the neurons that train: the penalty per
+	// weight and the gradient scale do not change when excluded neurons
+	// are added (Adam's epsilon would otherwise make them matter).
+	trained := p.Neurons() - len(tr.excluded)
+	tr.gradScale = float64(p.Neurons()) / float64(max(trained, 1))
+	tr.l2 = cfg.Model.ReadoutL2.Value / float64(max(trained, 1))
 	tc := cfg.Train
 	tr.pcg = rand.NewPCG(cfg.Seed, 0x5eed)
 	tr.rng = rand.New(tr.pcg)
@@ -240,6 +256,14 @@ func (tr *trainer) lossGrad(rs *rowSet, grad bool, scale float64, ssRes []float6
 	} else {
 		l = nn.MSE(dp, pred[:rs.rows*n], rs.target[:rs.rows*n], w, rs.rows, n)
 	}
+	// Excluded neurons are not trained: no gradient reaches their
+	// readout (which stays at zero weights and their mean) or the filters.
+	for _, j := range tr.excluded {
+		for r := 0; r < rs.rows; r++ {
+			dp[r*n+j] = 0
+		}
+	}
+	scale *= tr.gradScale
 	wsum := float64(rs.rows)
 	if w != nil {
 		wsum = 0
@@ -387,18 +411,27 @@ func (tr *trainer) epoch(opt *nn.Adam) float64 {
 // ErrInterrupted is returned.
 func Fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
 	cfg := p.Cfg
-	if cfg.Train.Solver == SolverProjected {
+	if cfg.SolverToRun() == SolverProjected {
+		if cfg.Model.Loss == Poisson {
+			return fitPoissonProjected(ctx, p, hooks, resume)
+		}
 		return fitProjected(ctx, p, hooks, resume)
 	}
 	net := nn.NewNet(cfg.Shape(p.NBins, p.Neurons()))
 	net.Init(rand.New(rand.NewPCG(cfg.Seed, 0x1417)))
 	initReadout(p, net)
+	// Neurons excluded from scoring (constant ones) predict their mean and
+	// take no part in training.
+	rw, nf := net.ReadW(), net.Features()
+	for _, j := range p.Report.Constant {
+		clear(rw[j*nf : (j+1)*nf])
+	}
 	tr := newTrainer(p, net)
 	res, err := runEpochs(ctx, tr, cfg.Train, hooks, resume)
 	if err != nil {
 		return nil, err
 	}
-	return &Fitted{Net: net, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}, nil
+	return &Fitted{Net: net, Solver: SolverAdam, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}, nil
 }
 
 // initReadout sets the readout bias to each neuron's mean training

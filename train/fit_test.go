@@ -13,6 +13,7 @@ import (
 
 	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/eval"
+	"github.com/strialab/stria/eval/tuning"
 	"github.com/strialab/stria/nn"
 )
 
@@ -124,6 +125,7 @@ func TestResume(t *testing.T) {
 			c.Train.CheckpointEvery = 7
 			c.Train.BatchSize = batch
 			c.Axis.BinWidth = 12
+			c.Train.Solver = SolverAdam // the projected solver's resume: TestProjectedResume
 		}
 		p, _ := synthPrepared(t, 30, 400, edit)
 		whole, err := Fit(context.Background(), p, Hooks{}, nil)
@@ -258,7 +260,7 @@ func TestDemoRecovery(t *testing.T) {
 	p, truth := synthPrepared(t, 200, 1200, func(c *Config) {
 		c.Train.MaxEpochs = 3000
 		c.Train.Patience = 100
-		c.Model.ReadoutL2 = demoL2
+		c.Model.ReadoutL2 = Penalty{Value: demoL2}
 		c.Split.ZScore = false
 	})
 	f, err := Fit(context.Background(), p, Hooks{}, nil)
@@ -413,5 +415,213 @@ func TestBlockTrials(t *testing.T) {
 		side = map[int]string{}
 		check(fmt.Sprint("fold ", f+1), append(slices.Clone(sets[0]), sets[1]...), "train")
 		check(fmt.Sprint("fold ", f+1), sets[2], "test")
+	}
+}
+
+// TestSolverAuto checks that a config that names no solver runs the
+// projected solver wherever the model allows it, and adam otherwise.
+func TestSolverAuto(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		edit func(*Config)
+		want Solver
+	}{
+		{"default", func(*Config) {}, SolverProjected},
+		{"soft encoding", func(c *Config) { c.Axis.Encoding = Soft }, SolverAdam},
+		{"mini-batches", func(c *Config) { c.Train.BatchSize = 32 }, SolverAdam},
+		{"named adam", func(c *Config) { c.Train.Solver = SolverAdam }, SolverAdam},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			c := Defaults()
+			tc.edit(&c)
+			if got := c.SolverToRun(); got != tc.want {
+				t.Errorf("got %s, want %s", got, tc.want)
+			}
+		})
+	}
+	p, _ := synthPrepared(t, 20, 300, func(c *Config) { c.Train.MaxEpochs = 5; c.Axis.BinWidth = 12 })
+	f, err := Fit(context.Background(), p, Hooks{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if f.Solver != SolverProjected {
+		t.Errorf("default fit ran %s, want projected", f.Solver)
+	}
+}
+
+// TestConstantNeuronsLeftOut appends constant neurons to a recording and
+// expects the other neurons' held-out scores to stay as they were, for
+// both solvers: neurons excluded from scoring take no part in training.
+// Not bitwise: the losses are means over all neurons, so the appended
+// columns rescale the filter gradient, which Adam undoes up to its
+// epsilon.
+func TestConstantNeuronsLeftOut(t *testing.T) {
+	for _, solver := range []Solver{SolverAdam, SolverProjected} {
+		t.Run(solver.String(), func(t *testing.T) {
+			edit := func(c *Config) {
+				c.Train.Solver = solver
+				c.Train.MaxEpochs = 150
+				c.Axis.BinWidth = 12
+			}
+			p, _ := synthPrepared(t, 40, 600, edit)
+			f, err := Fit(context.Background(), p, Hooks{}, nil)
+			if err != nil {
+				t.Fatal(err)
+			}
+			base := ScoreFitted(p, f)
+
+			q, _ := synthPrepared(t, 40, 600, edit)
+			y := q.Rec.Y
+			wide := data.NewMatrix(y.Rows, y.Cols+3)
+			for i := 0; i < y.Rows; i++ {
+				copy(wide.Row(i), y.Row(i))
+				wide.Row(i)[y.Cols], wide.Row(i)[y.Cols+1], wide.Row(i)[y.Cols+2] = 0, 2.5, -1
+			}
+			rec := *q.Rec
+			rec.Y = wide
+			rec.Neurons = nil
+			q2, err := PrepareRecording(q.Cfg, &rec)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if len(q2.Report.Constant) != 3 {
+				t.Fatalf("constant neurons %v, want the 3 appended", q2.Report.Constant)
+			}
+			g, err := Fit(context.Background(), q2, Hooks{}, nil)
+			if err != nil {
+				t.Fatal(err)
+			}
+			wider := ScoreFitted(q2, g)
+			var worst float64
+			for j := range base {
+				worst = max(worst, math.Abs(base[j].TestR2-wider[j].TestR2))
+			}
+			if worst > 1e-6 {
+				t.Errorf("appending 3 constant neurons moved another neuron's test R2 by %.3g, want < 1e-6", worst)
+			}
+			t.Logf("largest change of a test R2: %.3g", worst)
+		})
+	}
+}
+
+// TestProjectedColumnOrder reorders the neurons of a recording and expects
+// the default (projected) fit to give every neuron the same held-out
+// scores: the filters depend on the neurons only through sums over them,
+// which change with the order only by rounding.
+func TestProjectedColumnOrder(t *testing.T) {
+	edit := func(c *Config) { c.Train.MaxEpochs = 150; c.Axis.BinWidth = 12 }
+	p, _ := synthPrepared(t, 50, 600, edit)
+	f, err := Fit(context.Background(), p, Hooks{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	base := ScoreFitted(p, f)
+	q, _ := synthPrepared(t, 50, 600, edit)
+	perm := rand.New(rand.NewPCG(5, 6)).Perm(q.Rec.Y.Cols)
+	y := q.Rec.Y
+	re := data.NewMatrix(y.Rows, y.Cols)
+	for i := 0; i < y.Rows; i++ {
+		src, dst := y.Row(i), re.Row(i)
+		for k, j := range perm {
+			dst[k] = src[j]
+		}
+	}
+	rec := *q.Rec
+	rec.Y = re
+	rec.Neurons = nil
+	q2, err := PrepareRecording(q.Cfg, &rec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	g, err := Fit(context.Background(), q2, Hooks{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if f.Solver != SolverProjected || g.Solver != SolverProjected {
+		t.Fatalf("solvers %s, %s: want the default projected", f.Solver, g.Solver)
+	}
+	got := ScoreFitted(q2, g)
+	var worst float64
+	for k, j := range perm {
+		worst = max(worst, math.Abs(got[k].TestR2-base[j].TestR2))
+	}
+	t.Logf("largest change of a test R2 after reordering: %.3g", worst)
+	if worst > 1e-8 {
+		t.Errorf("reordering the neurons moved a test R2 by %.3g, want < 1e-8", worst)
+	}
+}
+
+// TestDiscreteConditionsCentred fits twelve orientations 0, 15, ..., 165
+// declared as min 0, bin_width 15 (the values on the left bin edges) and
+// expects the bins moved onto the values, and the encoder's preferred
+// orientations within 1 degree of the planted ones on average (they were
+// +7.5 off before the bins were centred).
+func TestDiscreteConditionsCentred(t *testing.T) {
+	const N, reps = 120, 40
+	rng := rand.New(rand.NewPCG(3, 9))
+	pref := make([]float64, N)
+	for n := range pref {
+		pref[n] = 180 * rng.Float64()
+	}
+	T := 12 * reps
+	rec := &data.Recording{Y: data.NewMatrix(T, N), Stim: make([]float64, T), Source: data.Source{Responses: "synthetic", Stimulus: "orientations"}}
+	for t := 0; t < T; t++ {
+		th := 15 * float64(t%12)
+		rec.Stim[t] = th
+		for n, p := range pref {
+			mu := 1 + 3*math.Exp(2*(math.Cos(2*(th-p)*math.Pi/180)-1))
+			rec.Y.Row(t)[n] = float32(mu + 0.5*rng.NormFloat64())
+		}
+	}
+	cfg := Defaults()
+	cfg.Data.Responses = "synthetic"
+	cfg.Axis = AxisConfig{Name: "orientation", Unit: "deg", Min: 0, Max: 180, Periodic: true, BinWidth: 15}
+	cfg.Split.KeepBlocks = false
+	if err := cfg.Validate(); err != nil {
+		t.Fatal(err)
+	}
+	p, err := PrepareRecording(&cfg, rec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if c := p.Axis.Centers(); math.Abs(c[0]) > 1e-9 || math.Abs(c[1]-15) > 1e-9 {
+		t.Fatalf("bin centres %v..., want 0, 15, ...", c[:3])
+	}
+	if cfg.Axis.Min != -7.5 || cfg.Axis.Max != 172.5 {
+		t.Errorf("resolved axis %v..%v, want -7.5..172.5", cfg.Axis.Min, cfg.Axis.Max)
+	}
+	if len(p.Report.Warnings) == 0 || !strings.Contains(p.Report.Warnings[0], "centres") {
+		t.Errorf("no note about the moved bins: %q", p.Report.Warnings)
+	}
+	f, err := Fit(context.Background(), p, Hooks{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	pc := slices.Clone(f.Curves)
+	p.Norm.InvertRows(pc)
+	centres := p.Axis.Centers()
+	curve := make([]float64, p.NBins)
+	var sum float64
+	for n := range pref {
+		for b := range curve {
+			curve[b] = pc[b*N+n]
+		}
+		d := tuning.Describe(curve, centres, 180)
+		e := math.Mod(d.Preferred-pref[n]+270, 180) - 90 // signed, on the 180-degree circle
+		sum += e
+	}
+	if mean := sum / N; math.Abs(mean) > 1 {
+		t.Errorf("mean preferred-orientation error %.2f deg, want under 1", mean)
+	}
+}
+
+// TestCautionsFor checks that the noise-ceiling caution appears only when
+// a condition has few scored trials, and the split caution always.
+func TestCautionsFor(t *testing.T) {
+	if got := CautionsFor([]int{24, 0, 30}); len(got) != 1 || !strings.Contains(got[0], "split") {
+		t.Errorf("24+ trials per condition: got %q, want only the split caution", got)
+	}
+	if got := CautionsFor([]int{24, 3, 30}); len(got) != 2 || !strings.Contains(got[0], "few trials") {
+		t.Errorf("3 trials in a condition: got %q, want both cautions", got)
 	}
 }

@@ -1,107 +1,34 @@
 package train
 
 import (
-	"encoding/json"
 	"fmt"
-	"os"
-	"path/filepath"
 
 	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/nn"
 )
 
-// Model is a trained encoder loaded back from a run folder.
+// Model is a trained encoder ready to predict: the net, the stimulus axis
+// it was trained on and the z-scoring to undo. train/runfolder loads one
+// back from a run folder.
 type Model struct {
-	Dir      string
-	Manifest Manifest
-	Net      *nn.Net
-	// Mean and Scale undo the z-scoring (nil when the run did not z-score).
+	Net  *nn.Net
+	Axis data.Axis
+	// Soft is true when stimuli are encoded by linear interpolation
+	// between the two nearest bin centres (axis.encoding soft), false for
+	// one-hot bins.
+	Soft bool
+	// Mean and Scale undo the z-scoring (nil when the run did not z-score):
+	// response = prediction*Scale[j] + Mean[j].
 	Mean, Scale []float64
 }
 
-// LoadModel reads model.json and the weights of a run folder.
-func LoadModel(dir string) (*Model, error) {
-	path := filepath.Join(dir, FileManifest)
-	b, err := os.ReadFile(path)
-	if err != nil {
-		return nil, fmt.Errorf("not a stria run folder: %w", err)
-	}
-	m := &Model{Dir: dir}
-	if err := json.Unmarshal(b, &m.Manifest); err != nil {
-		return nil, fmt.Errorf("%s: %w", path, err)
-	}
-	mf := &m.Manifest
-	if mf.Format != "stria-run/1" {
-		return nil, fmt.Errorf("%s: format %q, want stria-run/1", path, mf.Format)
-	}
-	shape := nn.Shape{In: 1, Length: mf.Axis.Bins, Neurons: mf.Neurons}
-	for i, l := range mf.Layers {
-		if l.Channels < 1 || l.Kernel < 1 || l.Stride < 1 {
-			return nil, fmt.Errorf("%s: layers[%d] has a bad shape", path, i)
-		}
-		shape.Convs = append(shape.Convs, nn.ConvSpec{Out: l.Channels, K: l.Kernel, Stride: l.Stride, Border: l.Border})
-	}
-	shape.Output = mf.Output
-	if len(shape.Convs) == 0 || mf.Axis.Bins < 1 || mf.Neurons < 1 {
-		return nil, fmt.Errorf("%s: no layers, bins or neurons", path)
-	}
-	m.Net = nn.NewNet(shape)
-	read := func(name string, want int) ([]float64, error) {
-		a, ok := mf.Arrays[name]
-		if !ok {
-			return nil, fmt.Errorf("%s: no array %q", path, name)
-		}
-		file := filepath.Join(dir, a.File)
-		_, v, err := data.ReadArray(file)
-		if err != nil {
-			return nil, err
-		}
-		if len(v) != want {
-			return nil, fmt.Errorf("%s: %d values, want %d", file, len(v), want)
-		}
-		return v, nil
-	}
-	// The parameters, layer by layer, into nn's flat layout.
-	net := m.Net
-	for i := range net.Convs {
-		for _, part := range []struct {
-			name string
-			dst  []float64
-		}{{fmt.Sprintf("conv%d_weight", i), net.ConvW(i)}, {fmt.Sprintf("conv%d_bias", i), net.ConvB(i)}} {
-			v, err := read(part.name, len(part.dst))
-			if err != nil {
-				return nil, err
-			}
-			copy(part.dst, v)
-		}
-	}
-	for _, part := range []struct {
-		name string
-		dst  []float64
-	}{{"readout_weight", net.ReadW()}, {"readout_bias", net.ReadB()}} {
-		v, err := read(part.name, len(part.dst))
-		if err != nil {
-			return nil, err
-		}
-		copy(part.dst, v)
-	}
-	if mf.ZScore {
-		if m.Mean, err = read("norm_mean", mf.Neurons); err != nil {
-			return nil, err
-		}
-		if m.Scale, err = read("norm_scale", mf.Neurons); err != nil {
-			return nil, err
-		}
-	}
-	return m, nil
-}
-
 // Predict returns the predicted responses (len(stim) x N, float32, in the
-// recording's units) for stimulus values in axis units.
+// recording's units) for stimulus values in axis units. Errors name the
+// stimulus value (0-based) outside the axis.
 func (m *Model) Predict(stim []float64) (*data.Matrix, error) {
-	ax := m.Manifest.Axis.DataAxis()
+	ax := m.Axis
 	nb := ax.NumBins()
-	n := m.Manifest.Neurons
+	n := m.Net.Neurons
 	out := data.NewMatrix(len(stim), n)
 	rows := min(chunkRows, max(len(stim), 1))
 	w := m.Net.NewWork(rows)
@@ -111,7 +38,7 @@ func (m *Model) Predict(stim []float64) (*data.Matrix, error) {
 		for i, v := range stim[lo:hi] {
 			dst := x[i*nb : (i+1)*nb]
 			var err error
-			if m.Manifest.Axis.Encoding == Soft {
+			if m.Soft {
 				err = ax.Soft(dst, v)
 			} else {
 				err = ax.OneHot(dst, v)

@@ -50,6 +50,26 @@ func PrepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
 	if err := ax.Validate(); err != nil {
 		return nil, err
 	}
+	// A stimulus with a few discrete values gets bins centred on them
+	// (eval/methods.md §0): otherwise every condition, and every preferred
+	// stimulus, would be reported up to half a bin off. The resolved axis
+	// goes back into the config, so the run's settings show it.
+	var notes []string
+	centred, note, err := ax.CenterOnStimulus(rec.Stim, rec.Cond)
+	if err != nil {
+		return nil, fmt.Errorf("stimulus %s: %w", rec.Source.Stimulus, err)
+	}
+	if note != "" {
+		ax = centred
+		cfg.Axis.Min, cfg.Axis.Max = ax.Min, ax.Max
+		if ax.Bins == 0 && cfg.Axis.Bins > 0 {
+			cfg.Axis.Bins, cfg.Axis.BinWidth = 0, ax.BinWidth
+		}
+		notes = append(notes, note)
+	}
+	if hint := ax.RadiansHint(rec.Stim); hint != "" {
+		notes = append(notes, hint)
+	}
 	p := &Prepared{Cfg: cfg, Rec: rec, Axis: ax, NBins: ax.NumBins()}
 	cond, err := ax.BinTrials(rec.Stim)
 	if err != nil {
@@ -64,6 +84,7 @@ func PrepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
 		return nil, err
 	}
 	p.Report = rep
+	rep.Warnings = append(notes, rep.Warnings...)
 	if cfg.Split.KeepBlocks {
 		p.Blocks = rec.Block
 		if p.Blocks == nil && cfg.Split.BlockTrials > 0 {

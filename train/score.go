@@ -14,6 +14,35 @@ var Cautions = []string{
 	"Held-out scores depend on the split: another seed or fold gives other numbers. Compare models on the same splits, and use stria compare (k-fold) before drawing conclusions.",
 }
 
+// FewTrials is the number of scored trials per condition below which the
+// noise-ceiling caution is shown: with fewer, the ceiling estimates scatter
+// and are biased (see the few-trials table in `stria help metrics`).
+const FewTrials = 10
+
+// CautionsFor returns the cautions to show beside held-out scores whose
+// conditions have the given numbers of scored trials (conditions without
+// any are ignored): the split caution always, the noise-ceiling caution
+// only when some condition has fewer than FewTrials trials.
+func CautionsFor(trialsPerCondition []int) []string {
+	few := false
+	for _, k := range trialsPerCondition {
+		few = few || (k > 0 && k < FewTrials)
+	}
+	if few {
+		return []string{Cautions[0], Cautions[1]}
+	}
+	return []string{Cautions[1]}
+}
+
+// TrialsPerCondition counts the given trials in each condition.
+func (p *Prepared) TrialsPerCondition(trials []int) []int {
+	k := make([]int, p.NBins)
+	for _, t := range trials {
+		k[p.Cond[t]]++
+	}
+	return k
+}
+
 // PredictConditions returns the net's prediction for every bin (one-hot
 // input): nbins x N, row b for bin b.
 func PredictConditions(net *nn.Net, nbins int) []float64 {
@@ -90,6 +119,7 @@ func ScoreFitted(p *Prepared, f *Fitted) []eval.Scores {
 func ScoreCurves(p *Prepared, pc []float64) []eval.Scores {
 	s := make([]eval.Scores, p.Neurons())
 	eval.ScoreConditions(s, p.Rec.Y.Data, p.Neurons(), p.Test, p.Cond, pc, p.NBins)
+	eval.GateCeilings(nil, s, p.Cfg.Scores.CeilingAlpha)
 	return s
 }
 
@@ -98,5 +128,6 @@ func ScoreCurves(p *Prepared, pc []float64) []eval.Scores {
 func Score(p *Prepared, pred []float64) []eval.Scores {
 	s := make([]eval.Scores, p.Neurons())
 	eval.ScorePopulation(s, p.Rec.Y.Data, p.Neurons(), p.Test, p.Cond, pred, p.NBins)
+	eval.GateCeilings(nil, s, p.Cfg.Scores.CeilingAlpha)
 	return s
 }

@@ -2,7 +2,10 @@ package train
 
 import (
 	"fmt"
+	"strconv"
 	"strings"
+
+	"gopkg.in/yaml.v3"
 
 	"github.com/strialab/stria/nn"
 )
@@ -48,14 +51,65 @@ const (
 type Solver int
 
 const (
+	// SolverAuto is the default: the fastest exact solver the model
+	// allows (SolverProjected where it applies, SolverAdam otherwise).
+	SolverAuto Solver = iota
 	// SolverAdam trains every weight by gradient steps: the reference, and
 	// what every model can use.
-	SolverAdam Solver = iota
+	SolverAdam
 	// SolverProjected computes the readout in closed form and trains the
 	// filters on the projected loss (MSE, identity output, one-hot input,
 	// full batch).
 	SolverProjected
 )
+
+// Penalty is model.readout_l2: the ridge penalty on the readout weights,
+// a number, or the word auto (the default): the filters train at Value
+// (1) and the penalty is then chosen from the data at the final filters
+// (eval/methods.md §12).
+type Penalty struct {
+	// Auto chooses the penalty from the data (projected MSE solver; the
+	// other solvers train and stay at Value).
+	Auto bool
+	// Value is the penalty when it is fixed, and the one the filters
+	// train with when it is chosen.
+	Value float64
+}
+
+// AutoPenalty is the default readout penalty: chosen from the data, with
+// the filters trained at 1 (on z-scored responses, lambda/(2N)
+// sum ||w_n||^2 with lambda = 1).
+var AutoPenalty = Penalty{Auto: true, Value: 1}
+
+// UnmarshalYAML reads auto or a number.
+func (v *Penalty) UnmarshalYAML(n *yaml.Node) error {
+	if n.Kind == yaml.ScalarNode && n.Value == "auto" {
+		*v = AutoPenalty
+		return nil
+	}
+	var f float64
+	if err := n.Decode(&f); err != nil {
+		return fmt.Errorf("line %d: %q: want auto or a number", n.Line, n.Value)
+	}
+	*v = Penalty{Value: f}
+	return nil
+}
+
+// MarshalYAML writes auto or the number.
+func (v Penalty) MarshalYAML() (any, error) {
+	if v.Auto {
+		return "auto", nil
+	}
+	return v.Value, nil
+}
+
+// String returns "auto" or the number.
+func (v Penalty) String() string {
+	if v.Auto {
+		return "auto"
+	}
+	return strconv.FormatFloat(v.Value, 'g', -1, 64)
+}
 
 // LayerBorder is model.layers[].border: one of nn's border modes, or
 // BorderAuto (the config word "auto", or leaving it out): circular on a
@@ -73,7 +127,7 @@ var (
 	lossWords      = []string{"mse", "poisson"}
 	encodingWords  = []string{"onehot", "soft"}
 	optimizerWords = []string{"adam", "adamw"}
-	solverWords    = []string{"adam", "projected"}
+	solverWords    = []string{"auto", "adam", "projected"}
 	borderWords    = []string{"auto", "zero", "circular", "valid"}
 )
 

@@ -12,13 +12,14 @@ import (
 	"golang.org/x/term"
 
 	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/runfolder"
 )
 
 // version is set at build time with -ldflags "-X main.version=...".
 var version = "0.1.0-dev"
 
 func newApp() *cli.App {
-	train.Version = version
+	runfolder.Version = version
 	return &cli.App{
 		Name:    "stria",
 		Usage:   "fit and compare encoding models of a population's responses to a 1D stimulus",
@@ -35,7 +36,7 @@ func newApp() *cli.App {
 			compareCommand(),
 			exportCommand(),
 			reportCommand(),
-			mergeCommand(),
+			gatherCommand(),
 			helpCommand(),
 		},
 	}

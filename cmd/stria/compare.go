@@ -12,6 +12,8 @@ import (
 	"github.com/urfave/cli/v2"
 
 	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/compare"
+	"github.com/strialab/stria/train/runfolder"
 )
 
 func compareCommand() *cli.Command {
@@ -20,9 +22,10 @@ func compareCommand() *cli.Command {
 		Usage:     "cross-validate encoder settings and per-neuron baselines on the same folds",
 		ArgsUsage: " ",
 		Flags: append(dataFlags(),
-			&cli.StringFlag{Name: "shard", Usage: "run only shard `I/N` of the units (1-based), then stop; merge with stria merge"},
+			&cli.IntFlag{Name: "array-task", Usage: "run only array task `I` (1-based) of --array-task-count, then stop; when every task has run: stria gather FOLDER"},
+			&cli.IntFlag{Name: "array-task-count", Usage: "the number `N` of array tasks the units are dealt to (every N-th unit goes to one task)"},
 			&cli.IntFlag{Name: "workers", Usage: "units run at once (0: one per core)"},
-			&cli.IntFlag{Name: "print-array-script", Usage: "print a Slurm job-array script for `N` shards and exit"},
+			&cli.IntFlag{Name: "slurm-script", Usage: "print a Slurm job-array script for `N` array tasks and exit"},
 			&cli.BoolFlag{Name: "quiet", Aliases: []string{"q"}, Usage: "no progress lines"},
 		),
 		Action: func(c *cli.Context) error {
@@ -33,80 +36,106 @@ func compareCommand() *cli.Command {
 			if v := c.String("out"); v != "" {
 				cfg.Compare.Output = cfg.Output
 			}
-			if n := c.Int("print-array-script"); n > 0 {
-				return printArrayScript(c.App.Writer, c.String("config"), cfg.Compare.Output, n)
+			if n := c.Int("slurm-script"); n > 0 {
+				return printSlurmScript(c.App.Writer, c.String("config"), cfg.Compare.Output, n)
+			}
+			o := compareOptions{workers: c.Int("workers"), quiet: c.Bool("quiet")}
+			if o.task, o.tasks, err = arrayTask(c, os.Getenv); err != nil {
+				return err
 			}
 			ctx, stop := signal.NotifyContext(c.Context, os.Interrupt, syscall.SIGTERM)
 			defer stop()
-			o := compareOptions{shard: c.String("shard"), workers: c.Int("workers"), quiet: c.Bool("quiet")}
 			_, err = runCompare(ctx, cfg, c.App.Writer, c.App.ErrWriter, o)
 			return err
 		},
 	}
 }
 
-func mergeCommand() *cli.Command {
+// arrayTask reads --array-task and --array-task-count, or, when neither is
+// given, Slurm's job-array environment (and says so on stderr). 0, 0: run
+// every unit.
+func arrayTask(c *cli.Context, getenv func(string) string) (i, n int, err error) {
+	given, count := c.IsSet("array-task"), c.IsSet("array-task-count")
+	if given != count {
+		return 0, 0, fmt.Errorf("compare: give both --array-task and --array-task-count (or neither)")
+	}
+	if given {
+		i, n = c.Int("array-task"), c.Int("array-task-count")
+		return i, n, compare.CheckArrayTask(i, n)
+	}
+	i, n, ok, err := compare.ArrayTaskFromEnv(getenv)
+	if err != nil || !ok {
+		return 0, 0, err
+	}
+	fmt.Fprintf(c.App.ErrWriter, "compare: array task %d of %d, from %s=%s, %s=%s and %s=%s (give --array-task and --array-task-count to override)\n",
+		i, n, compare.EnvTaskID, getenv(compare.EnvTaskID), compare.EnvTaskMin, getenv(compare.EnvTaskMin), compare.EnvTaskCount, getenv(compare.EnvTaskCount))
+	return i, n, nil
+}
+
+func gatherCommand() *cli.Command {
 	return &cli.Command{
-		Name:      "merge",
-		Usage:     "check that every unit of a sharded comparison is done and write its outputs",
+		Name:      "gather",
+		Usage:     "check that every unit of a comparison run as array tasks is done and write its outputs",
 		ArgsUsage: "COMPARE_FOLDER",
 		Action: func(c *cli.Context) error {
 			if err := oneFolderArg(c); err != nil {
 				return err
 			}
 			dir := c.Args().First()
-			cfg, err := train.LoadConfig(filepath.Join(dir, train.FileConfig))
+			if k, err := runfolder.Kind(dir); err == nil && k == runfolder.KindRun {
+				return fmt.Errorf("gather: %s is a run folder (written by stria fit); gather takes the folder of stria compare", dir)
+			}
+			cfg, err := runfolder.LoadSettings(dir)
 			if err != nil {
-				return fmt.Errorf("merge: %s is not a comparison folder: %w", dir, err)
+				return fmt.Errorf("gather: %s is not a comparison folder: %w", dir, err)
 			}
 			if cfg.Compare.Output, err = filepath.Abs(dir); err != nil {
 				return err
 			}
-			plan, err := train.NewPlan(cfg)
+			plan, err := compare.NewPlan(cfg)
 			if err != nil {
 				return err
 			}
-			return mergePlan(c.App.Writer, plan)
+			return gatherPlan(c.App.Writer, plan)
 		},
 	}
 }
 
 type compareOptions struct {
-	shard   string
-	workers int
-	quiet   bool
+	// task and tasks select array task task of tasks (1-based); 0, 0:
+	// every unit, then gather.
+	task, tasks int
+	workers     int
+	quiet       bool
 }
 
-// runCompare runs the units of a comparison (all of them, or one shard)
-// and, when it ran all of them, merges the results.
-func runCompare(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer, o compareOptions) ([]*train.Comparison, error) {
-	plan, err := train.NewPlan(cfg)
+// runCompare runs the units of a comparison (all of them, or one array
+// task's) and, when it ran all of them, gathers the results.
+func runCompare(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer, o compareOptions) ([]*runfolder.Comparison, error) {
+	plan, err := compare.NewPlan(cfg)
 	if err != nil {
 		return nil, err
 	}
 	units := plan.Units
-	if o.shard != "" {
-		i, n, err := train.ParseShard(o.shard)
-		if err != nil {
-			return nil, err
-		}
-		units = plan.Shard(i, n)
+	if o.tasks > 0 {
+		units = plan.ArrayTask(o.task, o.tasks)
 	}
-	// The resolved config goes into the folder first: shards and merge
-	// read the plan from it.
+	// The resolved settings go into the folder first: array tasks and
+	// gather read the plan from them. An earlier comparison's completion
+	// marker goes: the folder is incomplete until gathered.
 	out := cfg.Compare.Output
-	if err := os.MkdirAll(out, 0o755); err != nil {
+	if err := plan.Begin(); err != nil {
 		return nil, err
 	}
 	b, err := cfg.Marshal()
 	if err != nil {
 		return nil, err
 	}
-	if err := train.WriteAtomic(filepath.Join(out, train.FileConfig), func(w io.Writer) error { _, err := w.Write(b); return err }); err != nil {
+	if err := runfolder.WriteBytes(filepath.Join(out, runfolder.FileSettings), b); err != nil {
 		return nil, err
 	}
 	done := 0
-	progress := func(u train.Unit, skipped bool) {
+	progress := func(u compare.Unit, skipped bool) {
 		done++
 		if o.quiet {
 			return
@@ -120,30 +149,30 @@ func runCompare(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer
 	if err := plan.RunUnits(ctx, units, o.workers, progress); err != nil {
 		return nil, err
 	}
-	if o.shard != "" {
-		fmt.Fprintf(stdout, "shard %s: %d units done in %s; when every shard has run: stria merge %s\n", o.shard, len(units), filepath.Join(out, train.UnitsDir), out)
+	if o.tasks > 0 {
+		fmt.Fprintf(stdout, "array task %d of %d: %d units done in %s; when every task has run: stria gather %s\n", o.task, o.tasks, len(units), filepath.Join(out, runfolder.DirFoldResults), out)
 		return nil, nil
 	}
-	return nil, mergePlan(stdout, plan)
+	return nil, gatherPlan(stdout, plan)
 }
 
-// mergePlan merges the units of a plan and prints the results.
-func mergePlan(w io.Writer, plan *train.Plan) error {
-	cmps, err := plan.Merge()
+// gatherPlan gathers the units of a plan and prints the results.
+func gatherPlan(w io.Writer, plan *compare.Plan) error {
+	cmps, err := plan.Gather()
 	if err != nil {
 		return err
 	}
-	out := plan.Cfg.Compare.Output
+	out := plan.Dir()
 	fmt.Fprintf(w, "comparison folder: %s\n", out)
 	for _, c := range cmps {
 		if c.Recording != "" {
 			fmt.Fprintf(w, "\n-- recording %s (folder %s)\n", c.Recording, filepath.Join(out, c.Recording))
 		}
-		train.PrintComparison(w, c)
+		compare.PrintComparison(w, c)
 	}
 	if len(cmps) > 1 {
-		fmt.Fprintf(w, "\n-- all %d recordings, neurons pooled (also %s: every recording's medians)\n", len(cmps), train.FileRecordings)
-		train.PrintComparison(w, train.Pool(cmps))
+		fmt.Fprintf(w, "\n-- all %d recordings, neurons pooled (also %s: every recording's medians)\n", len(cmps), runfolder.FilePerRecording)
+		compare.PrintComparison(w, compare.Pool(cmps))
 	}
 	for _, c := range train.Cautions {
 		fmt.Fprintln(w, "note:", c)
@@ -151,9 +180,9 @@ func mergePlan(w io.Writer, plan *train.Plan) error {
 	return nil
 }
 
-// printArrayScript prints a Slurm job-array script that runs one shard per
-// array task.
-func printArrayScript(w io.Writer, config, out string, n int) error {
+// printSlurmScript prints a Slurm job-array script that runs one array
+// task of the comparison per Slurm array task.
+func printSlurmScript(w io.Writer, config, out string, n int) error {
 	cfgAbs, err := filepath.Abs(config)
 	if err != nil {
 		return err
@@ -162,14 +191,14 @@ func printArrayScript(w io.Writer, config, out string, n int) error {
 	if err != nil {
 		exe = "stria"
 	}
-	_, err = fmt.Fprintf(w, arrayScript, n, n, exe, cfgAbs, out, n, out)
+	_, err = fmt.Fprintf(w, slurmScript, n, n, exe, cfgAbs, out, n, out)
 	return err
 }
 
-const arrayScript = `#!/bin/bash
-# stria comparison as a Slurm job array: one shard per array task.
+const slurmScript = `#!/bin/bash
+# stria comparison as a Slurm job array: one array task per Slurm task.
 # Submit:  sbatch this-script.sh
-# Then, when every task has finished:  stria merge COMPARE_FOLDER
+# Then, when every task has finished:  stria gather COMPARE_FOLDER
 # A failed or killed task can be rerun alone (sbatch --array=K this-script.sh);
 # units it finished before are not redone.
 #SBATCH --job-name=stria-compare
@@ -177,9 +206,9 @@ const arrayScript = `#!/bin/bash
 #SBATCH --cpus-per-task=2
 #SBATCH --mem=8G
 #SBATCH --time=04:00:00
-#SBATCH --output=stria-shard-%%a-of-%d.log
+#SBATCH --output=stria-task-%%a-of-%d.log
 set -euo pipefail
 STRIA=${STRIA:-%s}
-"$STRIA" compare --config %q --out %q --shard "${SLURM_ARRAY_TASK_ID}/%d" --quiet
-# merge afterwards: "$STRIA" merge %q
+"$STRIA" compare --config %q --out %q --array-task "${SLURM_ARRAY_TASK_ID}" --array-task-count %d --quiet
+# gather afterwards: "$STRIA" gather %q
 `

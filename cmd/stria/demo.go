@@ -14,6 +14,8 @@ import (
 
 	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/export"
+	"github.com/strialab/stria/train/runfolder"
 )
 
 func demoCommand() *cli.Command {
@@ -142,11 +144,11 @@ func writeDemo(o demoOptions) (string, *data.Truth, error) {
 		nt[j] = neuronTruth{Kind: truth.Kind[j], Preferred: num(truth.Preferred[j]), Kappa: num(truth.Kappa[j]),
 			Amp: truth.Amp[j], Base: truth.Base[j], Ratio: truth.Ratio[j]}
 	}
-	if err := train.WriteJSON(path("truth.json"), nt); err != nil {
+	if err := runfolder.WriteJSON(path("truth.json"), nt); err != nil {
 		return "", nil, err
 	}
 	cfgPath := path("demo.yaml")
-	err := train.WriteAtomic(cfgPath, func(w io.Writer) error {
+	err := runfolder.WriteFile(cfgPath, func(w io.Writer) error {
 		_, err := fmt.Fprintf(w, demoConfig, o.seed)
 		return err
 	})
@@ -183,12 +185,12 @@ func runDemo(ctx context.Context, stdout, stderr io.Writer, o demoOptions) error
 		return err
 	}
 	fmt.Fprintf(stdout, "\n== stria report --compare %s %s\n", cfg.Compare.Output, cfg.Output)
-	runReport, err := train.WriteReport(cfg.Output, "", train.ExportOptions{Compare: cfg.Compare.Output})
+	runReport, err := export.WriteReport(cfg.Output, "", export.Options{Compare: cfg.Compare.Output})
 	if err != nil {
 		return err
 	}
 	fmt.Fprintf(stdout, "\n== stria report %s\n", cfg.Compare.Output)
-	cmpReport, err := train.WriteReport(cfg.Compare.Output, "", train.ExportOptions{})
+	cmpReport, err := export.WriteReport(cfg.Compare.Output, "", export.Options{})
 	if err != nil {
 		return err
 	}

@@ -5,7 +5,8 @@ import (
 
 	"github.com/urfave/cli/v2"
 
-	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/export"
+	"github.com/strialab/stria/train/runfolder"
 )
 
 func exportCommand() *cli.Command {
@@ -14,8 +15,8 @@ func exportCommand() *cli.Command {
 		Usage:     "write figures (SVG, PNG) and the arrays they are drawn from, for a run or comparison folder",
 		ArgsUsage: "FOLDER",
 		Flags: []cli.Flag{
-			&cli.StringFlag{Name: "out", Usage: "output `FOLDER` (default: FOLDER/export)"},
-			&cli.StringFlag{Name: "neurons", Usage: "neurons with a tuning figure: indices \"3,17,42\" (0-based), \"best K\", \"worst K\", \"random K\" by test_r2, combined with commas (default \"" + train.DefaultNeurons + "\")"},
+			&cli.StringFlag{Name: "out", Usage: "output `FOLDER` (default: FOLDER/" + runfolder.DirFigures + ")"},
+			&cli.StringFlag{Name: "neurons", Usage: "neurons with a tuning figure: indices \"3,17,42\" (0-based), \"best K\", \"worst K\", \"random K\" by test_r2, combined with commas (default \"" + export.DefaultNeurons + "\")"},
 			&cli.StringFlag{Name: "compare", Usage: "comparison `FOLDER` of the same recording: draw its baselines' curves in the tuning figures"},
 		},
 		Action: func(c *cli.Context) error {
@@ -24,7 +25,7 @@ func exportCommand() *cli.Command {
 			}
 			opt := exportOptions(c)
 			opt.Out = c.String("out")
-			ex, err := train.ExportFolder(c.Args().First(), opt)
+			ex, err := export.Folder(c.Args().First(), opt)
 			if err != nil {
 				return err
 			}
@@ -38,6 +39,6 @@ func exportCommand() *cli.Command {
 }
 
 // exportOptions reads the options shared by export and report.
-func exportOptions(c *cli.Context) train.ExportOptions {
-	return train.ExportOptions{Neurons: c.String("neurons"), Compare: c.String("compare")}
+func exportOptions(c *cli.Context) export.Options {
+	return export.Options{Neurons: c.String("neurons"), Compare: c.String("compare")}
 }

@@ -16,6 +16,7 @@ import (
 
 	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/runfolder"
 )
 
 // copyDir copies a folder tree, leaving out the folder named skip.
@@ -158,20 +159,20 @@ func TestExportAndReport(t *testing.T) {
 	// The demo wrote its reports, exporting with the default neurons; start
 	// from clean folders so that the exports below are checked on their own.
 	for _, d := range []string{run, cmp} {
-		if err := os.RemoveAll(filepath.Join(d, train.DirExport)); err != nil {
+		if err := os.RemoveAll(filepath.Join(d, runfolder.DirFigures)); err != nil {
 			t.Fatal(err)
 		}
 	}
 
 	// Copy the run folder before anything is exported into it.
 	other := filepath.Join(t.TempDir(), "elsewhere", "run-copy")
-	copyDir(t, run, other, train.DirExport)
+	copyDir(t, run, other, runfolder.DirFigures)
 
 	out, err := runCLI(t, "export", "--neurons", "best 2,worst 1,5", "--compare", cmp, run)
 	if err != nil {
 		t.Fatalf("export: %v\n%s", err, out)
 	}
-	exp := filepath.Join(run, train.DirExport)
+	exp := filepath.Join(run, runfolder.DirFigures)
 	tunings, _ := filepath.Glob(filepath.Join(exp, "tuning_n*.svg"))
 	if len(tunings) != 4 {
 		t.Errorf("%d tuning figures, want 4 (best 2, worst 1, neuron 5): %v", len(tunings), tunings)
@@ -186,7 +187,7 @@ func TestExportAndReport(t *testing.T) {
 	// -24..24 deg ((j - 4) * 6, eval/figure.TapOffsets), the weights those of
 	// the run's filters.npy (8 x 9, written by stria fit).
 	fc := readCSVCols(t, filepath.Join(exp, "filters.csv"))
-	m, err := data.ReadNPY(filepath.Join(run, train.FileFilters))
+	m, err := data.ReadNPY(filepath.Join(run, runfolder.FileFilters))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -208,7 +209,7 @@ func TestExportAndReport(t *testing.T) {
 	// The condition means of the tuning figure agree with those stria
 	// compare saved from the same recording and binning (curves/data_mean.npy,
 	// float64 written, float32 read: relative tolerance 1e-6).
-	if dm, err := data.ReadNPY(filepath.Join(cmp, train.DirCurves, "data_mean.npy")); err == nil {
+	if dm, err := data.ReadNPY(filepath.Join(cmp, runfolder.DirCurves, "data_mean.npy")); err == nil {
 		tc := readCSVCols(t, filepath.Join(exp, "tuning_n5.csv"))
 		if len(tc["data_mean"]) != dm.Rows {
 			t.Fatalf("tuning_n5.csv: %d bins, data_mean.npy %d", len(tc["data_mean"]), dm.Rows)
@@ -238,7 +239,7 @@ func TestExportAndReport(t *testing.T) {
 	}
 	for _, p := range svgs {
 		a, _ := os.ReadFile(p)
-		b, err := os.ReadFile(filepath.Join(other, train.DirExport, filepath.Base(p)))
+		b, err := os.ReadFile(filepath.Join(other, runfolder.DirFigures, filepath.Base(p)))
 		if err != nil || !bytes.Equal(a, b) {
 			t.Errorf("%s differs after copying the run folder (%v)", filepath.Base(p), err)
 		}
@@ -248,19 +249,20 @@ func TestExportAndReport(t *testing.T) {
 	if out, err := runCLI(t, "export", cmp); err != nil {
 		t.Fatalf("export comparison: %v\n%s", err, out)
 	}
-	cexp := filepath.Join(cmp, train.DirExport)
+	cexp := filepath.Join(cmp, runfolder.DirFigures)
 	checkFigure(t, filepath.Join(cexp, "scatter_cc_norm_condmean_vs_encoder"), "cc_norm, condmean", "cc_norm, encoder")
 	checkFigure(t, filepath.Join(cexp, "scatter_test_r2_vonmises_vs_encoder"), "test_r2, vonmises")
 	checkFigure(t, filepath.Join(cexp, "hist_cc_norm_models"), "condmean", "smoothlinear")
 	checkFigure(t, filepath.Join(cexp, "noise_ceiling_cc_max"), "cc_max")
-	// Fold-averaged scores recomputed from scores.csv give the medians that
-	// stria compare computed in memory (comparison.json summary, via
-	// train.Summarise); scores.csv keeps 8 significant digits, so 1e-6.
+	// The fold-averaged scores export draws (read back from
+	// fold_averages.csv, which stria compare wrote exactly) give the
+	// medians that stria compare computed in memory (comparison.json
+	// summary, via compare.Summarise); 1e-6 as when export recomputed them.
 	var cj struct {
 		Models  []string
 		Summary map[string]map[string]struct{ Median float64 }
 	}
-	if b, err := os.ReadFile(filepath.Join(cmp, train.FileComparison)); err != nil {
+	if b, err := os.ReadFile(filepath.Join(cmp, runfolder.FileComparison)); err != nil {
 		t.Fatal(err)
 	} else if err := json.Unmarshal(b, &cj); err != nil {
 		t.Fatal(err)
@@ -281,7 +283,7 @@ func TestExportAndReport(t *testing.T) {
 	if err != nil {
 		t.Fatalf("report: %v\n%s", err, out)
 	}
-	rp := filepath.Join(run, train.FileReport)
+	rp := filepath.Join(run, runfolder.FileReport)
 	if strings.TrimSpace(out) != rp {
 		t.Errorf("report printed %q, want its path %s", out, rp)
 	}
@@ -311,7 +313,7 @@ func TestExportAndReport(t *testing.T) {
 
 	// Without the recording, the tuning figures are skipped with a note and
 	// the rest is written.
-	cfgPath := filepath.Join(other, train.FileConfig)
+	cfgPath := filepath.Join(other, runfolder.FileSettings)
 	cfg, _ := os.ReadFile(cfgPath)
 	cfg = bytes.ReplaceAll(cfg, []byte(filepath.Join(dir, "responses.npy")), []byte(filepath.Join(dir, "gone.npy")))
 	os.WriteFile(cfgPath, cfg, 0o644)
@@ -331,6 +333,14 @@ func TestExportAndReport(t *testing.T) {
 	}
 	if _, err := runCLI(t, "export", "--neurons", "400", run); err == nil || !strings.Contains(err.Error(), "out of range") {
 		t.Errorf("neuron out of range: %v", err)
+	}
+	// A run folder whose fit did not finish is refused by every reader.
+	os.Remove(filepath.Join(other, runfolder.FileComplete))
+	const incomplete = "is incomplete: the fit that wrote it did not finish (no complete.json)"
+	for _, args := range [][]string{{"export", other}, {"report", other}, {"predict", "--stimulus", filepath.Join(dir, "heading.npy"), "--out", filepath.Join(t.TempDir(), "p.npy"), other}} {
+		if _, err := runCLI(t, args...); err == nil || !strings.Contains(err.Error(), incomplete) {
+			t.Errorf("%s of an unfinished run: %v, want an error containing %q", args[0], err, incomplete)
+		}
 	}
 	empty := t.TempDir()
 	if _, err := runCLI(t, "report", empty); err == nil || !strings.Contains(err.Error(), "neither a run folder") {

@@ -17,6 +17,7 @@ import (
 
 	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/runfolder"
 )
 
 func fitCommand() *cli.Command {
@@ -51,7 +52,7 @@ type fitOptions struct {
 }
 
 // runFit loads, trains, scores and writes the run folder.
-func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*train.Summary, error) {
+func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*runfolder.Summary, error) {
 	if o.stderr == nil {
 		o.stderr = os.Stderr
 	}
@@ -63,7 +64,7 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*train.Summar
 	}
 	var resume *train.Checkpoint
 	if o.resume {
-		resume, err = train.LoadCheckpoint(dir)
+		resume, err = runfolder.LoadResumeState(dir)
 		if err != nil {
 			return nil, fmt.Errorf("--resume: %w", err)
 		}
@@ -89,13 +90,19 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*train.Summar
 		return nil, err
 	}
 	phase("bin, check, split, normalise")
+	// The data are good: an earlier fit's completion marker goes before
+	// anything is written, so the folder reads as incomplete until this
+	// fit finishes.
+	if err := runfolder.Begin(dir); err != nil {
+		return nil, err
+	}
 	for _, w := range p.Report.Warnings {
 		fmt.Fprintln(o.stderr, "warning:", w)
 	}
 	hooks := train.Hooks{
 		Checkpoint: func(c *train.Checkpoint) error {
 			c.Config = cfgYAML
-			return train.SaveCheckpoint(dir, c)
+			return runfolder.SaveResumeState(dir, c)
 		},
 	}
 	var bar *progressbar.ProgressBar
@@ -120,7 +127,7 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*train.Summar
 		bar.Finish()
 	}
 	if errors.Is(err, train.ErrInterrupted) {
-		return nil, fmt.Errorf("%w; checkpoint saved in %s: continue with --resume", err, filepath.Join(dir, train.FileCheckpoint))
+		return nil, fmt.Errorf("%w; checkpoint saved in %s: continue with --resume", err, filepath.Join(dir, runfolder.FileResume))
 	}
 	if err != nil {
 		return nil, err
@@ -128,34 +135,43 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*train.Summar
 	phase(fmt.Sprintf("fit (%d epochs)", len(fitted.Log)))
 	// The weights are written while the test trials are scored.
 	written := make(chan error, 1)
-	go func() { written <- train.WriteModel(dir, p, fitted) }()
+	go func() { written <- runfolder.WriteModel(dir, p, fitted) }()
 	scores := train.ScoreFitted(p, fitted)
 	phase("score the test trials")
 	if err := <-written; err != nil {
 		return nil, err
 	}
-	sum, err := train.WriteResults(dir, p, fitted, scores, time.Since(start))
+	sum, err := runfolder.WriteResults(dir, p, fitted, scores, time.Since(start))
 	if err != nil {
 		return nil, err
 	}
+	if err := runfolder.RemoveResumeState(dir); err != nil {
+		return nil, err
+	}
+	// Last: the marker that tells readers the run folder is complete.
+	if err := runfolder.Finish(dir, runfolder.FormatRun); err != nil {
+		return nil, err
+	}
 	phase("write the run folder (the rest)")
-	os.Remove(filepath.Join(dir, train.FileCheckpoint))
 	if o.stdout != nil {
 		printSummary(o.stdout, dir, sum)
 	}
 	return sum, nil
 }
 
-func printSummary(w io.Writer, dir string, s *train.Summary) {
+func printSummary(w io.Writer, dir string, s *runfolder.Summary) {
 	fmt.Fprintf(w, "run folder: %s\n", dir)
 	fmt.Fprintf(w, "trained %d epochs (best %d, stopped by %s) in %.1f s\n", s.Epochs, s.BestEpoch, s.Stop, s.WallSeconds)
 	fmt.Fprintf(w, "held-out trials: %d; neurons scored: %d of %d", s.TestTrials, s.Scored, s.Neurons)
 	if s.Excluded > 0 {
-		fmt.Fprintf(w, " (%d excluded, reasons in %s)", s.Excluded, train.FileMetrics)
+		fmt.Fprintf(w, " (%d excluded, reasons in %s)", s.Excluded, runfolder.FileNeuronScores)
 	}
 	fmt.Fprintln(w)
 	if s.NoSignal > 0 {
 		fmt.Fprintf(w, "neurons with signal power <= 0 on the test trials (NaN noise-ceiling ratios): %d\n", s.NoSignal)
+	}
+	if s.Solver != "" {
+		fmt.Fprintf(w, "solver: %s; readout penalty (model.readout_l2: %s): %s\n", s.Solver, s.ReadoutL2.Setting, penaltyText(s.ReadoutL2))
 	}
 	fmt.Fprintln(w, "median over neurons [interquartile range]:")
 	for _, k := range []string{"test_r2", "test_r", "explainable_fraction", "fev", "cc_norm"} {
@@ -165,4 +181,13 @@ func printSummary(w io.Writer, dir string, s *train.Summary) {
 	for _, c := range s.Cautions {
 		fmt.Fprintln(w, "note:", c)
 	}
+}
+
+// penaltyText describes the readout penalty used: one value, or the
+// median and quartiles of the per-neuron choices.
+func penaltyText(p runfolder.PenaltyInfo) string {
+	if p.Q1 == p.Q3 {
+		return fmt.Sprintf("%.3g", float64(p.Chosen))
+	}
+	return fmt.Sprintf("%.3g per neuron (median; quartiles %.3g, %.3g)", float64(p.Chosen), float64(p.Q1), float64(p.Q3))
 }

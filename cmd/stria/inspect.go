@@ -76,7 +76,7 @@ func inspect(w io.Writer, cfg *train.Config, rec *data.Recording) error {
 	for i := range all {
 		all[i] = i
 	}
-	rel := train.SplitHalf(rec.Y, cond, all, nb)
+	rel := eval.SplitHalf(rec.Y.Data, rec.Y.Cols, cond, all, nb)
 	s := eval.Summarize(rel)
 	fmt.Fprintf(w, "split-half reliability per neuron (Spearman-Brown corrected, alternate trials within each condition):\n")
 	fmt.Fprintf(w, "  median %.3f, quartiles %.3f to %.3f", s.Median, s.Q1, s.Q3)

@@ -5,6 +5,7 @@ import (
 	"context"
 	"encoding/csv"
 	"encoding/json"
+	"io/fs"
 	"os"
 	"path/filepath"
 	"strings"
@@ -13,7 +14,7 @@ import (
 
 	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/eval/report/browsertest"
-	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/runfolder"
 )
 
 // runCLI runs the stria command line with args and returns its output.
@@ -40,23 +41,47 @@ func TestDemoEndToEnd(t *testing.T) {
 		}
 	}
 	run := filepath.Join(dir, "run")
-	for _, f := range []string{filepath.Join(run, train.FileReport), filepath.Join(dir, "compare", train.FileReport)} {
+	for _, f := range []string{filepath.Join(run, runfolder.FileReport), filepath.Join(dir, "compare", runfolder.FileReport)} {
 		if st, err := os.Stat(f); err != nil || st.Size() < 10000 {
 			t.Errorf("demo report %s missing or small (%v)", f, err)
 		}
 	}
-	checkInBrowser(t, filepath.Join(run, train.FileReport), "demo-run-report")
-	checkInBrowser(t, filepath.Join(dir, "compare", train.FileReport), "demo-compare-report")
-	for _, f := range []string{train.FileConfig, train.FileManifest, train.FileFilters, train.FileMetrics, train.FileSummary, train.FileLog, train.FileSplit, "weights/readout_weight.npy"} {
+	checkInBrowser(t, filepath.Join(run, runfolder.FileReport), "demo-run-report")
+	checkInBrowser(t, filepath.Join(dir, "compare", runfolder.FileReport), "demo-compare-report")
+	for _, f := range []string{runfolder.FileSettings, runfolder.FileManifest, runfolder.FileFilters, runfolder.FileNeuronScores, runfolder.FileSummary, runfolder.FileHistory, runfolder.FileSplit, "parameters/readout_weight.npy"} {
 		if st, err := os.Stat(filepath.Join(run, f)); err != nil || st.Size() == 0 {
 			t.Errorf("run folder: %s missing or empty (%v)", f, err)
 		}
 	}
-	if _, err := os.Stat(filepath.Join(run, train.FileCheckpoint)); err == nil {
+	if _, err := os.Stat(filepath.Join(run, runfolder.FileResume)); err == nil {
 		t.Error("checkpoint left behind after a finished fit")
 	}
+	// Both folders are marked complete, and every file the demo wrote is
+	// readable by others (0644; folders 0755).
+	for _, d := range []string{run, filepath.Join(dir, "compare")} {
+		if _, err := runfolder.Open(d); err != nil {
+			t.Errorf("%s: %v", d, err)
+		}
+	}
+	filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
+		if err != nil {
+			return err
+		}
+		info, err := d.Info()
+		if err != nil {
+			return err
+		}
+		want := fs.FileMode(0o644)
+		if d.IsDir() {
+			want = 0o755 | fs.ModeDir
+		}
+		if p != dir && info.Mode() != want {
+			t.Errorf("%s has mode %v, want %v", p, info.Mode(), want)
+		}
+		return nil
+	})
 	// metrics.csv: one row per neuron with the documented columns.
-	f, err := os.Open(filepath.Join(run, train.FileMetrics))
+	f, err := os.Open(filepath.Join(run, runfolder.FileNeuronScores))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -74,27 +99,27 @@ func TestDemoEndToEnd(t *testing.T) {
 			t.Errorf("metrics.csv header %q lacks %s", head, c)
 		}
 	}
-	var sum train.Summary
-	b, _ := os.ReadFile(filepath.Join(run, train.FileSummary))
+	var sum runfolder.Summary
+	b, _ := os.ReadFile(filepath.Join(run, runfolder.FileSummary))
 	if err := json.Unmarshal(b, &sum); err != nil {
 		t.Fatal(err)
 	}
 	if sum.WallSeconds <= 0 || sum.Neurons != 60 || len(sum.Cautions) == 0 {
 		t.Errorf("summary.json: %+v", sum)
 	}
-	filters, err := data.ReadNPY(filepath.Join(run, train.FileFilters))
+	filters, err := data.ReadNPY(filepath.Join(run, runfolder.FileFilters))
 	if err != nil || filters.Rows != 8 || filters.Cols != 9 {
 		t.Errorf("filters.npy: %v, %+v", err, filters)
 	}
 
 	// The comparison folder.
 	cmpDir := filepath.Join(dir, "compare")
-	for _, f := range []string{train.FileScores, train.FileCmpSummary, train.FilePairs, train.FileComparison, train.FileDescriptors, "curves/condmean.npy"} {
+	for _, f := range []string{runfolder.FileFoldScores, runfolder.FileModelSummary, runfolder.FileModelPairs, runfolder.FileComparison, runfolder.FileDescriptors, "tuning_curves/condmean.npy"} {
 		if st, err := os.Stat(filepath.Join(cmpDir, f)); err != nil || st.Size() == 0 {
 			t.Errorf("comparison folder: %s missing or empty (%v)", f, err)
 		}
 	}
-	sc, _ := os.ReadFile(filepath.Join(cmpDir, train.FileScores))
+	sc, _ := os.ReadFile(filepath.Join(cmpDir, runfolder.FileFoldScores))
 	if !strings.HasPrefix(string(sc), "model,fold,neuron,test_r2,test_r,explainable_fraction,fev,") || !strings.Contains(string(sc), "cc_norm") {
 		t.Errorf("scores.csv header: %.100s", sc)
 	}
@@ -107,12 +132,12 @@ func TestDemoEndToEnd(t *testing.T) {
 	}
 
 	// The resolved config in the run folder refits to the same numbers.
-	out, err = runCLI(t, "fit", "--config", filepath.Join(run, train.FileConfig), "--out", filepath.Join(dir, "again"), "--quiet")
+	out, err = runCLI(t, "fit", "--config", filepath.Join(run, runfolder.FileSettings), "--out", filepath.Join(dir, "again"), "--quiet")
 	if err != nil {
 		t.Fatalf("refit from the resolved config: %v\n%s", err, out)
 	}
-	m1, _ := os.ReadFile(filepath.Join(run, train.FileMetrics))
-	m2, _ := os.ReadFile(filepath.Join(dir, "again", train.FileMetrics))
+	m1, _ := os.ReadFile(filepath.Join(run, runfolder.FileNeuronScores))
+	m2, _ := os.ReadFile(filepath.Join(dir, "again", runfolder.FileNeuronScores))
 	if !bytes.Equal(m1, m2) {
 		t.Error("refitting the resolved config gave other metrics")
 	}
@@ -196,10 +221,10 @@ func TestInterruptAndResume(t *testing.T) {
 	if !strings.Contains(stderr.String(), "--resume") || !strings.Contains(stderr.String(), "checkpoint") {
 		t.Errorf("interrupted fit said:\n%s", stderr.String())
 	}
-	if _, err := os.Stat(filepath.Join(dir, "cut", train.FileCheckpoint)); err != nil {
+	if _, err := os.Stat(filepath.Join(dir, "cut", runfolder.FileResume)); err != nil {
 		t.Fatalf("no checkpoint after the interrupt: %v", err)
 	}
-	if _, err := os.Stat(filepath.Join(dir, "cut", train.FileMetrics)); err == nil {
+	if _, err := os.Stat(filepath.Join(dir, "cut", runfolder.FileNeuronScores)); err == nil {
 		t.Error("an interrupted fit wrote metrics.csv")
 	}
 	if out, err := runCLI(t, "fit", "--config", cfgPath, "--out", filepath.Join(dir, "cut"), "--resume", "--quiet"); err != nil {
@@ -208,8 +233,8 @@ func TestInterruptAndResume(t *testing.T) {
 	if out, err := runCLI(t, "fit", "--config", cfgPath, "--out", filepath.Join(dir, "whole"), "--quiet"); err != nil {
 		t.Fatalf("uninterrupted: %v\n%s", err, out)
 	}
-	m1, _ := os.ReadFile(filepath.Join(dir, "cut", train.FileMetrics))
-	m2, _ := os.ReadFile(filepath.Join(dir, "whole", train.FileMetrics))
+	m1, _ := os.ReadFile(filepath.Join(dir, "cut", runfolder.FileNeuronScores))
+	m2, _ := os.ReadFile(filepath.Join(dir, "whole", runfolder.FileNeuronScores))
 	if len(m1) == 0 || !bytes.Equal(m1, m2) {
 		t.Error("the resumed fit's metrics differ from an uninterrupted fit's")
 	}

@@ -6,7 +6,7 @@ import (
 	"github.com/urfave/cli/v2"
 
 	"github.com/strialab/stria/data"
-	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/runfolder"
 )
 
 func predictCommand() *cli.Command {
@@ -23,7 +23,7 @@ func predictCommand() *cli.Command {
 			if err := oneFolderArg(c); err != nil {
 				return err
 			}
-			m, err := train.LoadModel(c.Args().First())
+			m, err := runfolder.LoadModel(c.Args().First())
 			if err != nil {
 				return err
 			}

@@ -5,7 +5,8 @@ import (
 
 	"github.com/urfave/cli/v2"
 
-	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/export"
+	"github.com/strialab/stria/train/runfolder"
 )
 
 func reportCommand() *cli.Command {
@@ -14,15 +15,15 @@ func reportCommand() *cli.Command {
 		Usage:     "write one self-contained HTML report of a run or comparison folder (runs export first)",
 		ArgsUsage: "FOLDER",
 		Flags: []cli.Flag{
-			&cli.StringFlag{Name: "out", Usage: "report `FILE` (default: FOLDER/" + train.FileReport + ")"},
-			&cli.StringFlag{Name: "neurons", Usage: "run folders: neurons with a tuning figure, as for stria export (default \"" + train.DefaultNeurons + "\")"},
+			&cli.StringFlag{Name: "out", Usage: "report `FILE` (default: FOLDER/" + runfolder.FileReport + ")"},
+			&cli.StringFlag{Name: "neurons", Usage: "run folders: neurons with a tuning figure, as for stria export (default \"" + export.DefaultNeurons + "\")"},
 			&cli.StringFlag{Name: "compare", Usage: "run folders: comparison `FOLDER` whose baselines are drawn in the tuning figures"},
 		},
 		Action: func(c *cli.Context) error {
 			if err := oneFolderArg(c); err != nil {
 				return err
 			}
-			path, err := train.WriteReport(c.Args().First(), c.String("out"), exportOptions(c))
+			path, err := export.WriteReport(c.Args().First(), c.String("out"), exportOptions(c))
 			if err != nil {
 				return err
 			}

@@ -28,7 +28,7 @@ import (
 	"time"
 
 	"github.com/strialab/stria/data"
-	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/runfolder"
 )
 
 type options struct {
@@ -416,12 +416,8 @@ func timeFit(o options, r rec, solver, tag string, repeats int) (fitResult, erro
 			fmt.Printf("  %s run %d: %.2f s wall, peak RSS %.0f MB\n", tag, i+1, wall, maxRSS/1e6)
 		}
 	}
-	var sum train.Summary
-	b, err := os.ReadFile(filepath.Join(out, train.FileSummary))
+	sum, err := runfolder.ReadSummary(out)
 	if err != nil {
-		return res, err
-	}
-	if err := json.Unmarshal(b, &sum); err != nil {
 		return res, err
 	}
 	res.r2 = float64(sum.Medians["test_r2"])
@@ -502,15 +498,8 @@ func timeCompare(o options, r rec) error {
 	}
 	matMB := float64(r.neurons) * float64(r.trials) * 4 / 1e6
 	fmt.Printf("  wall %.1f s (target <= 60), peak resident memory %.0f MB = %.2f x the float32 matrix\n", cr.Wall, cr.MaxRSS/1e6, cr.MaxRSS/1e6/matMB)
-	var cj struct {
-		Models  []string                           `json:"models"`
-		Summary map[string]map[string]train.Spread `json:"summary"`
-	}
-	jb, err := os.ReadFile(filepath.Join(out, train.FileComparison))
+	cj, err := runfolder.ReadComparisonInfo(out)
 	if err != nil {
-		return err
-	}
-	if err := json.Unmarshal(jb, &cj); err != nil {
 		return err
 	}
 	for _, m := range cj.Models {

@@ -16,7 +16,7 @@ func BenchmarkScatter(b *testing.B) {
 		b.Run(fmt.Sprintf("neurons=%d", n), func(b *testing.B) {
 			b.ReportAllocs()
 			for b.Loop() {
-				if err := Scatter(filepath.Join(dir, "s"), x, y, "A", "B", "CC_norm"); err != nil {
+				if err := toFiles(filepath.Join(dir, "s"))(Scatter(x, y, "A", "B", "CC_norm")); err != nil {
 					b.Fatal(err)
 				}
 			}
@@ -32,7 +32,7 @@ func BenchmarkHistogram(b *testing.B) {
 		b.Run(fmt.Sprintf("neurons=%d", n), func(b *testing.B) {
 			b.ReportAllocs()
 			for b.Loop() {
-				if err := Histogram(filepath.Join(dir, "h"), x, "CC_norm", 30); err != nil {
+				if err := toFiles(filepath.Join(dir, "h"))(Histogram(x, "CC_norm", 30)); err != nil {
 					b.Fatal(err)
 				}
 			}

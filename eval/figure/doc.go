@@ -2,9 +2,9 @@
 //
 // Conventions, stated once:
 //
-//   - Every figure is written twice, base+".svg" and base+".png", each atomically
-//     (a temporary file in the same folder, then a rename), so a reader never sees
-//     half a file. Existing files are replaced.
+//   - Every figure is rendered twice, as SVG and as PNG, and returned as an Image
+//     holding both files' bytes. The package never touches the file system: the
+//     caller (train/export) writes the files and embeds the SVG in the report.
 //   - Sizes are for print. Most figures are single-column, Width x Height =
 //     3.5 x 2.6 in (252 x 187.2 pt); the scatter is 3.5 x 3.3 in so that its data
 //     area is close to square. The SVG carries width and height in pt and a
@@ -24,5 +24,5 @@
 //
 // Inputs are computed arrays, so mismatched lengths are programmer errors and
 // panic with a "figure: ..." message. Values (NaN, empty, constant) never panic.
-// Errors returned are file-system errors and name the file.
+// Errors returned are rendering errors.
 package figure

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"image/color"
 	"math"
+	"strings"
 
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/plotter"
@@ -83,7 +84,7 @@ func addLines(p *plot.Plot, x, y []float64, st draw.LineStyle) *plotter.Line {
 // "ch 1" ... "ch C". The x axis is labelled "offset (unit)".
 //
 // Panics if channels < 1, k < 1 or len(filters) != channels*k.
-func Filters(base string, filters []float64, channels, k int, binWidth float64, ax AxisInfo) error {
+func Filters(filters []float64, channels, k int, binWidth float64, ax AxisInfo) (*Image, error) {
 	if channels < 1 || k < 1 {
 		panic(fmt.Sprintf("figure: Filters with %d channels and %d taps", channels, k))
 	}
@@ -122,7 +123,7 @@ func Filters(base string, filters []float64, channels, k int, binWidth float64, 
 	}
 	emptyRanges(p)
 	headroom(p, 0.12*float64(min(channels, 8)))
-	return save(base, p, Width, Height)
+	return finish(p, Width, Height)
 }
 
 // TapOffsets returns the offsets, in axis units, that Filters draws taps
@@ -143,7 +144,7 @@ func TapOffsets(k int, binWidth float64) []float64 {
 // quarter periods. yLabel should carry the unit, e.g. "rate (spikes/s)".
 //
 // Panics if len(mean) or len(sem) != len(centers), or a curve's len(X) != len(Y).
-func Tuning(base string, centers, mean, sem []float64, curves []Curve, ax AxisInfo, yLabel string) error {
+func Tuning(centers, mean, sem []float64, curves []Curve, ax AxisInfo, yLabel string) (*Image, error) {
 	if len(mean) != len(centers) || len(sem) != len(centers) {
 		panic(fmt.Sprintf("figure: Tuning lengths centers %d, mean %d, sem %d", len(centers), len(mean), len(sem)))
 	}
@@ -196,7 +197,7 @@ func Tuning(base string, centers, mean, sem []float64, curves []Curve, ax AxisIn
 	}
 	emptyRanges(p)
 	headroom(p, 0.12*float64(min(len(curves)+1, 8)))
-	return save(base, p, Width, Height)
+	return finish(p, Width, Height)
 }
 
 // plotterErrs is the XYer and YErrorer given to plotter.NewYErrorBars.
@@ -281,24 +282,108 @@ func countNote(n, bad int) string {
 // Histogram draws the distribution of one per-neuron score over bins equal
 // bins spanning its finite values. NaN and ±Inf are excluded and counted in
 // the legend ("n = 480 (12 NaN excluded)"). The x axis is label, the y axis
-// "neurons". bins < 1 is taken as 20.
-func Histogram(base string, values []float64, label string, bins int) error {
+// "neurons". bins < 1 is taken as 20. A few extreme values stretch the axis
+// and squeeze the bulk into one or two bars: for scores with a known useful
+// span use HistogramIn.
+func Histogram(values []float64, label string, bins int) (*Image, error) {
 	if bins < 1 {
 		bins = 20
 	}
-	lo, hi, n := binRange(values)
-	c, bad := counts(values, lo, hi, bins)
+	lo, hi, _ := binRange(values)
+	return histogramOver(values, label, bins, Range{lo, hi}, false)
+}
+
+// Range is a fixed x range [Lo, Hi] for a score histogram.
+type Range struct{ Lo, Hi float64 }
+
+// RatioRange is the fixed x range for the noise-ceiling ratio scores (FEV,
+// cc_norm, SPE) and for R^2: [-1, 1.5]. 1 is a perfect model; finite samples
+// put noisy neurons a little above 1 (eval/methods.md §2: not clipped), and
+// rarely beyond 1.5; below -1 a model misses by more than twice what it could
+// explain, and where exactly does not matter for a population figure. With
+// the default 25 bins the bars are 0.1 wide and 0 and 1 fall on bar edges.
+var RatioRange = Range{Lo: -1, Hi: 1.5}
+
+// HistogramIn is Histogram over the fixed range r (bins equal bins, 25 when
+// bins < 1). Finite values outside r are not drawn; they are counted in the
+// legend, e.g. "outside the axis: 12 below -1, 3 above 1.5", so the axis does
+// not stretch to a few extreme neurons and none goes unreported. It panics if
+// r is not a finite range with Lo < Hi.
+func HistogramIn(values []float64, label string, bins int, r Range) (*Image, error) {
+	checkRange(r)
+	if bins < 1 {
+		bins = 25
+	}
+	return histogramOver(values, label, bins, r, true)
+}
+
+func checkRange(r Range) {
+	if !finite(r.Lo) || !finite(r.Hi) || !(r.Lo < r.Hi) {
+		panic(fmt.Sprintf("figure: histogram range [%v, %v]", r.Lo, r.Hi))
+	}
+}
+
+func histogramOver(values []float64, label string, bins int, r Range, fixed bool) (*Image, error) {
+	c, bad, below, above := countsIn(values, r.Lo, r.Hi, bins)
+	n := len(values) - bad
 	p := newPlot(label, "neurons")
-	h := histogram(p, c, lo, hi, Palette[0])
+	h := histogram(p, c, r.Lo, r.Hi, Palette[0])
 	if n > 0 {
 		p.Legend.Add(countNote(n, bad), h)
+		if out := outsideNote(below, above, r); out != "" {
+			p.Legend.Add("outside the axis: " + out)
+		}
 	} else {
 		p.Legend.Add(fmt.Sprintf("no finite values (%d NaN)", bad))
 	}
 	p.Y.Min = 0
+	if fixed {
+		p.X.Min, p.X.Max = r.Lo, r.Hi
+	}
 	emptyRanges(p)
-	headroom(p, 0.18)
-	return save(base, p, Width, Height)
+	headroom(p, 0.18+0.1*b2f(below+above > 0))
+	return finish(p, Width, Height)
+}
+
+func b2f(b bool) float64 {
+	if b {
+		return 1
+	}
+	return 0
+}
+
+// countsIn bins the finite values of v in [lo, hi] into bins equal bins (the
+// last bin includes hi) and returns the counts, the number of non-finite
+// values and the numbers of finite values below lo and above hi.
+func countsIn(v []float64, lo, hi float64, bins int) (c []float64, bad, below, above int) {
+	c = make([]float64, bins)
+	w := (hi - lo) / float64(bins)
+	for _, x := range v {
+		switch {
+		case !finite(x):
+			bad++
+		case x < lo:
+			below++
+		case x > hi:
+			above++
+		default:
+			i := int(math.Floor((x - lo) / w))
+			c[max(0, min(bins-1, i))]++
+		}
+	}
+	return c, bad, below, above
+}
+
+// outsideNote returns "12 below -1, 3 above 1.5" (only the non-zero parts).
+func outsideNote(below, above int, r Range) string {
+	var parts []string
+	if below > 0 {
+		parts = append(parts, fmt.Sprintf("%d below %g", below, r.Lo))
+	}
+	if above > 0 {
+		parts = append(parts, fmt.Sprintf("%d above %g", above, r.Hi))
+	}
+	return strings.Join(parts, ", ")
 }
 
 // Histograms overlays the distributions of several series (e.g. one score
@@ -306,7 +391,8 @@ func Histogram(base string, values []float64, label string, bins int) error {
 // spanning the finite values of all series. Series are drawn in the order of
 // order (names missing from series are skipped), in SeriesStyle(i); each
 // legend entry is "name, n = ..." with its NaN count. bins < 1 is taken as 20.
-func Histograms(base string, series map[string][]float64, order []string, label string, bins int) error {
+// For scores with a known useful span use HistogramsIn.
+func Histograms(series map[string][]float64, order []string, label string, bins int) (*Image, error) {
 	if bins < 1 {
 		bins = 20
 	}
@@ -317,6 +403,22 @@ func Histograms(base string, series map[string][]float64, order []string, label 
 		}
 	}
 	lo, hi, _ := binRange(all...)
+	return histogramsOver(series, order, label, bins, Range{lo, hi}, false)
+}
+
+// HistogramsIn is Histograms over the fixed range r (bins equal bins, 25 when
+// bins < 1). Each series' finite values outside r are not drawn and are
+// counted in its legend entry: "encoder, n = 480 (2 NaN excluded; 12 below
+// -1, 3 above 1.5)". It panics if r is not a finite range with Lo < Hi.
+func HistogramsIn(series map[string][]float64, order []string, label string, bins int, r Range) (*Image, error) {
+	checkRange(r)
+	if bins < 1 {
+		bins = 25
+	}
+	return histogramsOver(series, order, label, bins, r, true)
+}
+
+func histogramsOver(series map[string][]float64, order []string, label string, bins int, r Range, fixed bool) (*Image, error) {
 	p := newPlot(label, "neurons")
 	i := 0
 	for _, name := range order {
@@ -324,18 +426,29 @@ func Histograms(base string, series map[string][]float64, order []string, label 
 		if !ok {
 			continue
 		}
-		c, bad := counts(s, lo, hi, bins)
-		l, _ := plotter.NewLine(step(c, lo, hi))
+		c, bad, below, above := countsIn(s, r.Lo, r.Hi, bins)
+		l, _ := plotter.NewLine(step(c, r.Lo, r.Hi))
 		l.LineStyle = SeriesStyle(i)
 		l.LineStyle.Width = vg.Points(1.4)
 		p.Add(l)
-		p.Legend.Add(name+", "+countNote(len(s)-bad, bad), l)
+		note := countNote(len(s)-bad, bad)
+		if out := outsideNote(below, above, r); out != "" {
+			if bad > 0 {
+				note = strings.TrimSuffix(note, ")") + "; " + out + ")"
+			} else {
+				note += " (" + out + ")"
+			}
+		}
+		p.Legend.Add(name+", "+note, l)
 		i++
 	}
 	p.Y.Min = 0
+	if fixed {
+		p.X.Min, p.X.Max = r.Lo, r.Hi
+	}
 	emptyRanges(p)
 	headroom(p, 0.12*float64(min(i, 8))+0.04)
-	return save(base, p, Width, Height)
+	return finish(p, Width, Height)
 }
 
 // Scatter plots per-neuron scores of model A (x) against model B (y), with
@@ -346,7 +459,7 @@ func Histograms(base string, series map[string][]float64, order []string, label 
 // and "label, nameB".
 //
 // Panics if len(a) != len(b).
-func Scatter(base string, a, b []float64, nameA, nameB, label string) error {
+func Scatter(a, b []float64, nameA, nameB, label string) (*Image, error) {
 	if len(a) != len(b) {
 		panic(fmt.Sprintf("figure: Scatter len(a) = %d, len(b) = %d", len(a), len(b)))
 	}
@@ -391,7 +504,7 @@ func Scatter(base string, a, b []float64, nameA, nameB, label string) error {
 	}
 	p.X.Min, p.X.Max = lo, hi
 	p.Y.Min, p.Y.Max = lo, hi
-	return save(base, p, Width, ScatterHeight)
+	return finish(p, Width, ScatterHeight)
 }
 
 // crowd counts the points in the top-left (or bottom-right) corner box of
@@ -429,7 +542,7 @@ func ys(p plotter.XYs) []float64 {
 // [0, Period) and the bins span exactly 0..Period (ticks at quarter periods);
 // otherwise they span the finite values. Non-finite values are excluded and
 // counted in the legend. bins < 1 is taken as 24.
-func Preferred(base string, preferred []float64, ax AxisInfo, bins int) error {
+func Preferred(preferred []float64, ax AxisInfo, bins int) (*Image, error) {
 	if bins < 1 {
 		bins = 24
 	}
@@ -464,5 +577,5 @@ func Preferred(base string, preferred []float64, ax AxisInfo, bins int) error {
 	}
 	emptyRanges(p)
 	headroom(p, 0.18)
-	return save(base, p, Width, Height)
+	return finish(p, Width, Height)
 }

@@ -4,8 +4,6 @@ import (
 	"bytes"
 	"fmt"
 	"math"
-	"os"
-	"path/filepath"
 	"strconv"
 
 	"gonum.org/v1/plot"
@@ -177,52 +175,16 @@ func render(p *plot.Plot, w, h vg.Length) (svg, png []byte, err error) {
 	return svg, pb.Bytes(), nil
 }
 
-// save renders p and writes base+".svg" and base+".png" atomically.
-func save(base string, p *plot.Plot, w, h vg.Length) error {
-	svg, png, err := render(p, w, h)
-	if err != nil {
-		return fmt.Errorf("figure: render %s: %w", base, err)
-	}
-	if err := WriteFileAtomic(base+".svg", svg); err != nil {
-		return err
-	}
-	return WriteFileAtomic(base+".png", png)
+// Image is a rendered figure: the bytes of its SVG and PNG files.
+type Image struct {
+	SVG, PNG []byte
 }
 
-// WriteFileAtomic writes data to path through a temporary file in the same
-// folder, synced and then renamed over path, so that path holds either its old
-// content or all of data. The file gets mode 0644. Errors name the file.
-func WriteFileAtomic(path string, data []byte) error {
-	dir, name := filepath.Split(path)
-	if dir == "" {
-		dir = "."
-	}
-	f, err := os.CreateTemp(dir, "."+name+".tmp*")
+// finish renders p at size w x h.
+func finish(p *plot.Plot, w, h vg.Length) (*Image, error) {
+	svg, png, err := render(p, w, h)
 	if err != nil {
-		return fmt.Errorf("figure: write %s: %w", path, err)
+		return nil, fmt.Errorf("figure: render: %w", err)
 	}
-	tmp := f.Name()
-	fail := func(err error) error {
-		f.Close()
-		os.Remove(tmp)
-		return fmt.Errorf("figure: write %s: %w", path, err)
-	}
-	if _, err := f.Write(data); err != nil {
-		return fail(err)
-	}
-	if err := f.Chmod(0o644); err != nil {
-		return fail(err)
-	}
-	if err := f.Sync(); err != nil {
-		return fail(err)
-	}
-	if err := f.Close(); err != nil {
-		os.Remove(tmp)
-		return fmt.Errorf("figure: write %s: %w", path, err)
-	}
-	if err := os.Rename(tmp, path); err != nil {
-		os.Remove(tmp)
-		return fmt.Errorf("figure: write %s: %w", path, err)
-	}
-	return nil
+	return &Image{SVG: svg, PNG: png}, nil
 }

@@ -35,7 +35,7 @@ func TestBrowser(t *testing.T) {
 	dir := t.TempDir()
 	r, nFig := sampleReport(t, dir)
 	path := filepath.Join(dir, "report.html")
-	if err := Write(path, r); err != nil {
+	if err := writeFile(path, r); err != nil {
 		t.Fatal(err)
 	}
 	page, err := browsertest.Open(path, t.TempDir(), 60*time.Second)

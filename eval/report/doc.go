@@ -14,5 +14,6 @@
 // cannot collide. A PNG figure is inlined as a data: URI in an <img>.
 //
 // All text from the caller (title, headings, paragraphs, captions, table
-// cells, code) is HTML-escaped. Write replaces the file atomically.
+// cells, code) is HTML-escaped. The package never touches the file system:
+// Write renders to an io.Writer (train/export writes the file).
 package report

@@ -5,8 +5,7 @@ import (
 	"encoding/base64"
 	"fmt"
 	"html/template"
-	"os"
-	"path/filepath"
+	"io"
 	"strings"
 )
 
@@ -183,40 +182,17 @@ func Render(r *Report) ([]byte, error) {
 	return b.Bytes(), nil
 }
 
-// Write writes the report to path as one self-contained HTML file (see the
-// package documentation), atomically: through a temporary file in the same
-// folder that is then renamed over path. Errors name the file, or the figure
-// whose SVG or PNG could not be used.
-func Write(path string, r *Report) error {
+// Write renders the report and writes it to w as one self-contained HTML
+// file (see the package documentation). Nothing is written when the report
+// cannot be rendered. Errors name the figure whose SVG or PNG could not be
+// used, or say that w failed.
+func Write(w io.Writer, r *Report) error {
 	b, err := Render(r)
 	if err != nil {
 		return err
 	}
-	dir, name := filepath.Split(path)
-	if dir == "" {
-		dir = "."
-	}
-	f, err := os.CreateTemp(dir, "."+name+".tmp*")
-	if err != nil {
-		return fmt.Errorf("report: write %s: %w", path, err)
-	}
-	tmp := f.Name()
-	_, err = f.Write(b)
-	if err == nil {
-		err = f.Chmod(0o644)
-	}
-	if err == nil {
-		err = f.Sync()
-	}
-	if cerr := f.Close(); err == nil {
-		err = cerr
-	}
-	if err == nil {
-		err = os.Rename(tmp, path)
-	}
-	if err != nil {
-		os.Remove(tmp)
-		return fmt.Errorf("report: write %s: %w", path, err)
+	if _, err := w.Write(b); err != nil {
+		return fmt.Errorf("report: write: %w", err)
 	}
 	return nil
 }

@@ -3,6 +3,7 @@ package report
 import (
 	"bytes"
 	"encoding/xml"
+	"errors"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -26,13 +27,24 @@ func sampleReport(t testing.TB, dir string) (r *Report, nFig int) {
 	for i := range filt {
 		filt[i] = rng.NormFloat64() * math.Exp(-math.Pow(float64(i%K-4), 2)/8)
 	}
+	toFiles := func(base string) func(*figure.Image, error) error {
+		return func(im *figure.Image, err error) error {
+			if err != nil {
+				return err
+			}
+			if err := os.WriteFile(base+".svg", im.SVG, 0o644); err != nil {
+				return err
+			}
+			return os.WriteFile(base+".png", im.PNG, 0o644)
+		}
+	}
 	must := func(err error) {
 		t.Helper()
 		if err != nil {
 			t.Fatal(err)
 		}
 	}
-	must(figure.Filters(filepath.Join(dir, "filters"), filt, C, K, 6, ax))
+	must(toFiles(filepath.Join(dir, "filters"))(figure.Filters(filt, C, K, 6, ax)))
 	var cen, mean, sem, fx, fy []float64
 	vm := func(d float64) float64 { return 3 + 15*math.Exp(1.5*(math.Cos((d-200)*math.Pi/180)-1)) }
 	for b := range 60 {
@@ -42,8 +54,8 @@ func sampleReport(t testing.TB, dir string) (r *Report, nFig int) {
 	for i := 0; i <= 360; i += 2 {
 		fx, fy = append(fx, float64(i)), append(fy, vm(float64(i)))
 	}
-	must(figure.Tuning(filepath.Join(dir, "tuning"), cen, mean, sem,
-		[]figure.Curve{{Name: "encoder", X: cen, Y: mean}, {Name: "von Mises", X: fx, Y: fy}}, ax, "rate (spikes/s)"))
+	must(toFiles(filepath.Join(dir, "tuning"))(figure.Tuning(cen, mean, sem,
+		[]figure.Curve{{Name: "encoder", X: cen, Y: mean}, {Name: "von Mises", X: fx, Y: fy}}, ax, "rate (spikes/s)")))
 	a, b := make([]float64, 800), make([]float64, 800)
 	pref := make([]float64, 800)
 	for i := range a {
@@ -52,9 +64,9 @@ func sampleReport(t testing.TB, dir string) (r *Report, nFig int) {
 		pref[i] = 360 * rng.Float64()
 	}
 	a[5] = math.NaN()
-	must(figure.Histograms(filepath.Join(dir, "hists"), map[string][]float64{"von Mises": a, "encoder": b}, []string{"von Mises", "encoder"}, "CC_norm", 30))
-	must(figure.Scatter(filepath.Join(dir, "scatter"), a, b, "von Mises", "encoder", "CC_norm"))
-	must(figure.Preferred(filepath.Join(dir, "preferred"), pref, ax, 24))
+	must(toFiles(filepath.Join(dir, "hists"))(figure.Histograms(map[string][]float64{"von Mises": a, "encoder": b}, []string{"von Mises", "encoder"}, "CC_norm", 30)))
+	must(toFiles(filepath.Join(dir, "scatter"))(figure.Scatter(a, b, "von Mises", "encoder", "CC_norm")))
+	must(toFiles(filepath.Join(dir, "preferred"))(figure.Preferred(pref, ax, 24)))
 	read := func(name string) []byte {
 		t.Helper()
 		data, err := os.ReadFile(filepath.Join(dir, name))
@@ -88,7 +100,7 @@ func TestWrite(t *testing.T) {
 	dir := t.TempDir()
 	r, nFig := sampleReport(t, dir)
 	path := filepath.Join(dir, "report.html")
-	if err := Write(path, r); err != nil {
+	if err := writeFile(path, r); err != nil {
 		t.Fatal(err)
 	}
 	b, err := os.ReadFile(path)
@@ -215,7 +227,6 @@ func TestCleanSVG(t *testing.T) {
 }
 
 func TestWriteErrors(t *testing.T) {
-	dir := t.TempDir()
 	for name, tc := range map[string]struct {
 		fig  Figure
 		want string
@@ -226,16 +237,37 @@ func TestWriteErrors(t *testing.T) {
 		"no image": {Figure{Caption: "empty"}, "neither SVG nor PNG"},
 	} {
 		t.Run(name, func(t *testing.T) {
-			err := Write(filepath.Join(dir, "r.html"), &Report{Sections: []Section{{Heading: "A", Figures: []Figure{tc.fig}}}})
+			var out bytes.Buffer
+			err := Write(&out, &Report{Sections: []Section{{Heading: "A", Figures: []Figure{tc.fig}}}})
 			if err == nil || !strings.Contains(err.Error(), tc.want) || !strings.HasPrefix(err.Error(), "report: ") {
 				t.Errorf("err = %v, want a report: error containing %q", err, tc.want)
 			}
+			if out.Len() != 0 {
+				t.Errorf("a refused report wrote %d bytes", out.Len())
+			}
 		})
 	}
-	err := Write(filepath.Join(dir, "missing", "r.html"), &Report{})
-	if err == nil || !strings.Contains(err.Error(), filepath.Join(dir, "missing", "r.html")) {
-		t.Errorf("err = %v, want one naming the file", err)
+	boom := errors.New("disk full")
+	if err := Write(failWriter{boom}, &Report{}); !errors.Is(err, boom) || !strings.HasPrefix(err.Error(), "report: ") {
+		t.Errorf("err = %v, want a report: error wrapping the writer's", err)
 	}
+}
+
+type failWriter struct{ err error }
+
+func (f failWriter) Write([]byte) (int, error) { return 0, f.err }
+
+// writeFile writes the report to path, as train/export does.
+func writeFile(path string, r *Report) error {
+	f, err := os.Create(path)
+	if err != nil {
+		return err
+	}
+	if err := Write(f, r); err != nil {
+		f.Close()
+		return err
+	}
+	return f.Close()
 }
 
 func TestDeterministic(t *testing.T) {

@@ -26,6 +26,19 @@ import "math"
 // R_pref is the largest response (at Peak). Responses are used as given, not
 // rectified: the vector forms assume non-negative responses and are NaN when
 // sum_k r_k <= 0; the peak indices are NaN when their denominator is 0.
+//
+// Untuned curves get no preferred stimulus. A curve is flat when
+// max_k r_k - min_k r_k <= FlatTol * max_k |r_k| (all zero included): its
+// Preferred and Peak are NaN (the argmax of a flat curve is the first bin, and
+// the vector sum is rounding noise: a constant curve used to come out
+// "preferring" an arbitrary angle such as 34.9 deg). On a periodic axis
+// Preferred is also NaN when the vector sum is zero to the same relative
+// precision, |sum_k r_k exp(i phi_k)| <= FlatTol * sum_k |r_k|, as for a
+// curve with two equal peaks half a period apart on a direction axis (Peak is
+// then still the larger bin). The other descriptors of a flat curve are
+// computed as usual (OSI, DSI, 1 - CV and the direction vector are 0 for a
+// constant positive curve on evenly spaced conditions, NaN for an all-zero
+// curve).
 type Descriptors struct {
 	Preferred  float64 // vector-average preferred stimulus (axis units); argmax for a non-periodic axis
 	Peak       float64 // centre of the bin with the largest response
@@ -34,10 +47,20 @@ type Descriptors struct {
 	OSI, DSI   float64 // peak forms from the nearest bins
 }
 
-// Describe returns the descriptors of the tuning curve r at the bin centres
-// (axis units, ascending) of an axis with the given period (0: non-periodic).
-// It panics if len(r) != len(centers) or r is empty. NaN entries of r make the
-// affected descriptors NaN.
+// FlatTol is the relative spread below which Describe treats a curve as flat:
+// 1e-6, above the rounding of curves computed in float32 (relative 6e-8 per
+// operation) and far below any tuning a recording can resolve.
+const FlatTol = 1e-6
+
+// Describe returns the descriptors of the tuning curve r at the condition
+// values centers (axis units, ascending) of an axis with the given period (0:
+// non-periodic). centers should be the stimulus values of the conditions:
+// the bin centres when the axis is centred on the stimulus values
+// (data.Axis.CenterOn), otherwise the mean stimulus value of each bin
+// (data.ConditionValues); bin centres half a bin away from every stimulus
+// value shift every preferred stimulus by half a bin. It panics if len(r) !=
+// len(centers) or r is empty. NaN entries of r make the affected descriptors
+// NaN.
 func Describe(r, centers []float64, period float64) Descriptors {
 	if len(r) != len(centers) || len(r) == 0 {
 		panic("tuning: Describe: r and centers must have the same, non-zero length")
@@ -51,19 +74,31 @@ func Describe(r, centers []float64, period float64) Descriptors {
 	}
 	d := Descriptors{Peak: centers[kmax], Preferred: centers[kmax],
 		OneMinusCV: nan, DirVector: nan, OSI: nan, DSI: nan}
+	lo, hi, big := math.Inf(1), math.Inf(-1), 0.0
+	for _, v := range r {
+		lo, hi, big = math.Min(lo, v), math.Max(hi, v), math.Max(big, math.Abs(v))
+	}
+	flat := hi-lo <= FlatTol*big // false when r holds a NaN
+	if flat {
+		d.Peak, d.Preferred = nan, nan
+	}
 	if !(period > 0) {
 		return d
 	}
-	var sum, c1, s1, c2, s2 float64
+	var sum, abs, c1, s1, c2, s2 float64
 	for k, v := range r {
 		phi := 2 * math.Pi * centers[k] / period
 		sum += v
+		abs += math.Abs(v)
 		c1 += v * math.Cos(phi)
 		s1 += v * math.Sin(phi)
 		c2 += v * math.Cos(2*phi)
 		s2 += v * math.Sin(2*phi)
 	}
 	d.Preferred = math.Mod(math.Atan2(s1, c1)*period/(2*math.Pi)+period, period)
+	if flat || !(math.Hypot(c1, s1) > FlatTol*abs) {
+		d.Preferred = nan
+	}
 	if sum > 0 {
 		if period == 360 {
 			d.OneMinusCV = math.Hypot(c2, s2) / sum
@@ -75,6 +110,7 @@ func Describe(r, centers []float64, period float64) Descriptors {
 		d.Preferred = nan
 	}
 	rp := r[kmax]
+	peak := centers[kmax]
 	idx := func(x float64) float64 { return r[nearestCircular(centers, x, period)] }
 	ratio := func(a, b float64) float64 {
 		if a+b == 0 {
@@ -83,11 +119,11 @@ func Describe(r, centers []float64, period float64) Descriptors {
 		return (a - b) / (a + b)
 	}
 	if period == 360 {
-		orth := (idx(d.Peak+90) + idx(d.Peak-90)) / 2
+		orth := (idx(peak+90) + idx(peak-90)) / 2
 		d.OSI = ratio(rp, orth)
-		d.DSI = ratio(rp, idx(d.Peak+180))
+		d.DSI = ratio(rp, idx(peak+180))
 	} else {
-		d.OSI = ratio(rp, idx(d.Peak+period/2))
+		d.OSI = ratio(rp, idx(peak+period/2))
 	}
 	return d
 }

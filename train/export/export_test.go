@@ -1,4 +1,4 @@
-package train
+package export
 
 import (
 	"math"
@@ -7,6 +7,8 @@ import (
 	"slices"
 	"strings"
 	"testing"
+
+	"github.com/strialab/stria/train/runfolder"
 )
 
 func TestSelectNeurons(t *testing.T) {
@@ -60,23 +62,27 @@ func TestSelectNeurons(t *testing.T) {
 	}
 }
 
-func TestFolderKind(t *testing.T) {
+func TestFolderRefused(t *testing.T) {
 	dir := t.TempDir()
-	if _, err := FolderKind(dir); err == nil || !strings.Contains(err.Error(), "neither a run folder") {
-		t.Errorf("empty folder: %v", err)
+	if _, err := Folder(dir, Options{}); err == nil || !strings.Contains(err.Error(), "neither a run folder") {
+		t.Errorf("export of an empty folder: %v", err)
 	}
-	if _, err := ExportFolder(dir, ExportOptions{}); err == nil {
-		t.Error("export of an empty folder succeeded")
+	if _, err := os.Stat(filepath.Join(dir, runfolder.DirFigures)); err == nil {
+		t.Error("a refused export left a figures folder")
 	}
-	if _, err := os.Stat(filepath.Join(dir, DirExport)); err == nil {
-		t.Error("a refused export left an export folder")
+	// A run folder whose fit did not finish.
+	os.WriteFile(filepath.Join(dir, runfolder.FileManifest), []byte("{}"), 0o644)
+	const want = "is incomplete: the fit that wrote it did not finish (no complete.json)"
+	if _, err := Folder(dir, Options{}); err == nil || !strings.Contains(err.Error(), want) {
+		t.Errorf("export of an unfinished run: %v, want %q", err, want)
 	}
-	os.WriteFile(filepath.Join(dir, FileManifest), []byte("{}"), 0o644)
-	if k, err := FolderKind(dir); k != KindRun || err != nil {
-		t.Errorf("with model.json: %q %v", k, err)
+	if _, err := WriteReport(dir, "", Options{}); err == nil || !strings.Contains(err.Error(), want) {
+		t.Errorf("report of an unfinished run: %v, want %q", err, want)
 	}
-	os.WriteFile(filepath.Join(dir, FileComparison), []byte("{}"), 0o644)
-	if k, err := FolderKind(dir); k != KindComparison || err != nil {
-		t.Errorf("with comparison.json: %q %v", k, err)
+	if _, err := os.Stat(filepath.Join(dir, runfolder.DirFigures)); err == nil {
+		t.Error("a refused export left a figures folder")
+	}
+	if _, err := os.Stat(filepath.Join(dir, runfolder.FileReport)); err == nil {
+		t.Error("a refused report left a report")
 	}
 }

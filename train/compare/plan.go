@@ -1,13 +1,9 @@
-package train
+package compare
 
 import (
-	"bufio"
 	"context"
-	"encoding/gob"
 	"errors"
 	"fmt"
-	"io"
-	"os"
 	"path/filepath"
 	"runtime"
 	"slices"
@@ -15,28 +11,18 @@ import (
 	"strings"
 	"sync"
 
-	"github.com/strialab/stria/eval"
+	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/runfolder"
 )
-
-// RecordingConfig is one entry of the recordings list of a comparison.
-// Its data paths other than responses are relative to the folder of the
-// responses file; responses may be a glob, which expands into one
-// recording per match.
-type RecordingConfig struct {
-	Name       string `yaml:"name"`
-	DataConfig `yaml:",inline"`
-	// Axis replaces the top-level axis for this recording when given.
-	Axis *AxisConfig `yaml:"axis"`
-}
 
 // Recording is one recording of a comparison plan with its own config.
 type Recording struct {
 	// Name is empty for the single recording of a config without a
 	// recordings list.
 	Name string
-	Cfg  *Config
+	Cfg  *train.Config
 	// Specs are the models compared on it.
-	Specs []ModelSpec
+	Specs []train.ModelSpec
 }
 
 // Unit is one piece of work: a model on a fold of a recording.
@@ -47,31 +33,21 @@ type Unit struct {
 }
 
 // Plan is the whole comparison: recordings, models and folds, and the
-// units they make.
+// units they make. Its folder is Cfg.Compare.Output.
 type Plan struct {
-	Cfg        *Config
+	Cfg        *train.Config
 	Recordings []Recording
 	Units      []Unit
 }
 
-// UnitResult is what a unit writes under the units folder.
-type UnitResult struct {
-	ID     string
-	Model  string
-	Fold   int
-	Scores []eval.Scores
-	Curves []float64
-	Epochs int
-}
-
 // NewPlan expands the config's recordings, model specs and folds into
 // units, in a fixed order.
-func NewPlan(c *Config) (*Plan, error) {
+func NewPlan(c *train.Config) (*Plan, error) {
 	p := &Plan{Cfg: c}
 	if len(c.Recordings) == 0 {
 		p.Recordings = []Recording{{Cfg: c}}
 	} else {
-		recs, err := c.expandRecordings()
+		recs, err := expandRecordings(c)
 		if err != nil {
 			return nil, err
 		}
@@ -79,7 +55,7 @@ func NewPlan(c *Config) (*Plan, error) {
 	}
 	for ri := range p.Recordings {
 		r := &p.Recordings[ri]
-		specs, err := r.Cfg.Specs()
+		specs, err := Specs(r.Cfg)
 		if err != nil {
 			if r.Name != "" {
 				return nil, fmt.Errorf("recording %s: %w", r.Name, err)
@@ -89,7 +65,7 @@ func NewPlan(c *Config) (*Plan, error) {
 		r.Specs = specs
 		for si, s := range specs {
 			for f := 0; f < r.Cfg.Split.Folds; f++ {
-				id := FileName(s.Name) + "/fold" + strconv.Itoa(f+1)
+				id := runfolder.FileName(s.Name) + "/fold" + strconv.Itoa(f+1)
 				if r.Name != "" {
 					id = r.Name + "/" + id
 				}
@@ -102,7 +78,7 @@ func NewPlan(c *Config) (*Plan, error) {
 
 // expandRecordings turns the recordings list into recordings with their
 // own configs, expanding globs.
-func (c *Config) expandRecordings() ([]Recording, error) {
+func expandRecordings(c *train.Config) ([]Recording, error) {
 	var out []Recording
 	seen := map[string]bool{}
 	for i, rc := range c.Recordings {
@@ -134,7 +110,7 @@ func (c *Config) expandRecordings() ([]Recording, error) {
 				stem := strings.TrimSuffix(filepath.Base(m), filepath.Ext(m))
 				name = filepath.Base(filepath.Dir(m)) + "-" + stem
 			}
-			name = FileName(name)
+			name = runfolder.FileName(name)
 			if seen[name] {
 				return nil, fmt.Errorf("%s: two recordings are called %q; give them names", field, name)
 			}
@@ -165,22 +141,19 @@ func (c *Config) expandRecordings() ([]Recording, error) {
 	return out, nil
 }
 
-// UnitsDir is the folder of unit results inside a comparison folder.
-const UnitsDir = "units"
-
-func (p *Plan) unitPath(u Unit) string {
-	return filepath.Join(p.Cfg.Compare.Output, UnitsDir, filepath.FromSlash(u.ID)+".gob")
-}
+// Dir is the comparison folder.
+func (p *Plan) Dir() string { return p.Cfg.Compare.Output }
 
 // Done reports whether a unit's result is already on disk.
-func (p *Plan) Done(u Unit) bool {
-	_, err := os.Stat(p.unitPath(u))
-	return err == nil
-}
+func (p *Plan) Done(u Unit) bool { return runfolder.HasFoldResult(p.Dir(), u.ID) }
 
-// Shard returns the units of shard i of n (1-based): every n-th unit,
-// starting at the i-th.
-func (p *Plan) Shard(i, n int) []Unit {
+// ArrayTask returns the units of array task i of n (1-based): every n-th
+// unit, starting at the i-th. It panics unless 1 <= i <= n; check the
+// numbers with CheckArrayTask first.
+func (p *Plan) ArrayTask(i, n int) []Unit {
+	if err := CheckArrayTask(i, n); err != nil {
+		panic("compare: " + err.Error())
+	}
 	var out []Unit
 	for k, u := range p.Units {
 		if k%n == i-1 {
@@ -188,21 +161,6 @@ func (p *Plan) Shard(i, n int) []Unit {
 		}
 	}
 	return out
-}
-
-// ParseShard reads "I/N".
-func ParseShard(s string) (i, n int, err error) {
-	a, b, ok := strings.Cut(s, "/")
-	if ok {
-		i, err = strconv.Atoi(a)
-		if err == nil {
-			n, err = strconv.Atoi(b)
-		}
-	}
-	if !ok || err != nil || n < 1 || i < 1 || i > n {
-		return 0, 0, fmt.Errorf("--shard %q: want I/N with 1 <= I <= N, e.g. 3/10", s)
-	}
-	return i, n, nil
 }
 
 // Progress receives a line per finished unit.
@@ -232,11 +190,11 @@ func (p *Plan) RunUnits(ctx context.Context, units []Unit, workers int, progress
 	}
 	for _, ri := range order {
 		rec := p.Recordings[ri]
-		prep, err := Prepare(rec.Cfg)
+		prep, err := train.Prepare(rec.Cfg)
 		if err != nil {
 			return p.recErr(rec, err)
 		}
-		folds, err := Folds(prep)
+		folds, err := train.Folds(prep)
 		if err != nil {
 			return p.recErr(rec, err)
 		}
@@ -288,17 +246,12 @@ func (p *Plan) recErr(rec Recording, err error) error {
 	return fmt.Errorf("recording %s: %w", rec.Name, err)
 }
 
-func (p *Plan) runOne(ctx context.Context, prep *Prepared, rec Recording, u Unit, sets [3][]int) error {
-	r, err := RunUnit(ctx, prep, rec.Specs[u.Spec], u.Fold, sets)
+func (p *Plan) runOne(ctx context.Context, prep *train.Prepared, rec Recording, u Unit, sets [3][]int) error {
+	r, err := train.RunUnit(ctx, prep, rec.Specs[u.Spec], u.Fold, sets)
 	if err != nil {
 		return p.recErr(rec, err)
 	}
-	path := p.unitPath(u)
-	if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
-		return err
-	}
-	ur := UnitResult{ID: u.ID, Model: r.Model, Fold: r.Fold, Scores: r.Scores, Curves: r.Curves, Epochs: r.Epochs}
-	return WriteAtomic(path, func(w io.Writer) error { return gob.NewEncoder(w).Encode(&ur) })
+	return runfolder.WriteFoldResult(p.Dir(), &runfolder.FoldResult{ID: u.ID, Model: r.Model, Fold: r.Fold, Scores: r.Scores, Curves: r.Curves, Epochs: r.Epochs})
 }
 
 // Missing lists the ids of the units without a result.
@@ -312,77 +265,24 @@ func (p *Plan) Missing() []string {
 	return m
 }
 
-// ErrMissingUnits is returned (wrapped) by Merge when units are missing.
+// ErrMissingUnits is returned (wrapped) by Gather when units are missing.
 var ErrMissingUnits = errors.New("units missing")
 
-// Merge checks that every unit is done and writes the comparison outputs:
-// for one recording into the comparison folder, for several into a folder
-// per recording plus the tables across recordings. It returns the
-// comparison of each recording, in plan order.
-func (p *Plan) Merge() ([]*Comparison, error) {
-	if miss := p.Missing(); len(miss) > 0 {
-		show := miss
-		if len(show) > 20 {
-			show = append(slices.Clone(show[:20]), fmt.Sprintf("... and %d more", len(miss)-20))
-		}
-		return nil, fmt.Errorf("%w: %d of %d not done: %s", ErrMissingUnits, len(miss), len(p.Units), strings.Join(show, ", "))
+// Begin prepares the comparison folder for a run: it creates it and removes
+// the completion markers of an earlier comparison (of the folder and of
+// every recording's folder), so that readers refuse the folder until
+// Gather has written everything again.
+func (p *Plan) Begin() error {
+	if err := runfolder.Begin(p.Dir()); err != nil {
+		return err
 	}
-	out := p.Cfg.Compare.Output
-	var cmps []*Comparison
-	for ri, rec := range p.Recordings {
-		prep, err := Prepare(rec.Cfg)
-		if err != nil {
-			return nil, p.recErr(rec, err)
+	for _, r := range p.Recordings {
+		if r.Name == "" {
+			continue
 		}
-		if _, err := Folds(prep); err != nil { // for the coverage warnings
-			return nil, p.recErr(rec, err)
-		}
-		var results []*FoldResult
-		for _, u := range p.Units {
-			if u.Rec != ri {
-				continue
-			}
-			ur, err := readUnit(p.unitPath(u))
-			if err != nil {
-				return nil, err
-			}
-			if len(ur.Scores) != prep.Neurons() {
-				return nil, fmt.Errorf("unit %s has %d neurons, the recording has %d: was the data changed?", u.ID, len(ur.Scores), prep.Neurons())
-			}
-			results = append(results, &FoldResult{Model: ur.Model, Fold: ur.Fold, Scores: ur.Scores, Curves: ur.Curves, Epochs: ur.Epochs})
-		}
-		names := make([]string, len(rec.Specs))
-		for i, s := range rec.Specs {
-			names[i] = s.Name
-		}
-		cmp := Summarise(names, rec.Cfg.Split.Folds, prep.Neurons(), results, ExcludedNeurons(prep))
-		cmp.Recording = rec.Name
-		dir := out
-		if rec.Name != "" {
-			dir = filepath.Join(out, rec.Name)
-		}
-		if err := WriteComparison(dir, prep, rec.Specs, results, cmp); err != nil {
-			return nil, err
-		}
-		cmps = append(cmps, cmp)
-	}
-	if len(p.Recordings) > 1 {
-		if err := writeAcross(out, cmps); err != nil {
-			return nil, err
+		if err := runfolder.Begin(filepath.Join(p.Dir(), r.Name)); err != nil {
+			return err
 		}
 	}
-	return cmps, nil
-}
-
-func readUnit(path string) (*UnitResult, error) {
-	f, err := os.Open(path)
-	if err != nil {
-		return nil, err
-	}
-	defer f.Close()
-	var ur UnitResult
-	if err := gob.NewDecoder(bufio.NewReader(f)).Decode(&ur); err != nil {
-		return nil, fmt.Errorf("%s: %w (delete it and run its shard again)", path, err)
-	}
-	return &ur, nil
+	return nil
 }

@@ -7,12 +7,13 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
 
 	"github.com/strialab/stria/data"
-	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/runfolder"
 )
 
 // TestMain lets the tests run the stria command in child processes: the
@@ -72,7 +73,8 @@ compare:
 }
 
 // outputs reads every output file of a comparison folder except the
-// units, the configs (which hold the folder's own path) and exports.
+// fold results, the settings (which hold the folder's own path), the
+// completion markers (which hold a time) and exports.
 func outputs(t *testing.T, dir string) map[string][]byte {
 	t.Helper()
 	m := map[string][]byte{}
@@ -82,12 +84,13 @@ func outputs(t *testing.T, dir string) map[string][]byte {
 		}
 		rel, _ := filepath.Rel(dir, p)
 		if d.IsDir() {
-			if d.Name() == train.UnitsDir || d.Name() == train.DirExport {
+			if d.Name() == runfolder.DirFoldResults || d.Name() == runfolder.DirFigures {
 				return filepath.SkipDir
 			}
 			return nil
 		}
-		if filepath.Base(p) == train.FileConfig || filepath.Base(p) == train.FileReport {
+		// complete.json holds the time the folder was finished.
+		if filepath.Base(p) == runfolder.FileSettings || filepath.Base(p) == runfolder.FileReport || filepath.Base(p) == runfolder.FileComplete {
 			return nil
 		}
 		b, _ := os.ReadFile(p)
@@ -104,12 +107,12 @@ func sameOutputs(t *testing.T, want, got map[string][]byte, what string) {
 	}
 	for name, b := range want {
 		if !bytes.Equal(b, got[name]) {
-			t.Errorf("%s: %s differs from the unsharded run", what, name)
+			t.Errorf("%s: %s differs from the run in one process", what, name)
 		}
 	}
 }
 
-func TestShardsMergeLikeOneRun(t *testing.T) {
+func TestArrayTasksGatherLikeOneRun(t *testing.T) {
 	if testing.Short() {
 		t.Skip("runs several processes")
 	}
@@ -117,7 +120,7 @@ func TestShardsMergeLikeOneRun(t *testing.T) {
 	cfg := writeSessions(t, dir, 40)
 	out, err := runCLI(t, "compare", "--config", cfg, "--quiet")
 	if err != nil {
-		t.Fatalf("unsharded: %v\n%s", err, out)
+		t.Fatalf("in one process: %v\n%s", err, out)
 	}
 	if !strings.Contains(out, "all 3 recordings, neurons pooled") {
 		t.Errorf("no pooled table in:\n%s", out)
@@ -135,78 +138,99 @@ func TestShardsMergeLikeOneRun(t *testing.T) {
 		}
 	}
 	full := outputs(t, filepath.Join(dir, "full"))
-	for _, f := range []string{"m1-resp/scores.csv", "m3-resp/comparison.json", train.FileRecordings, train.FilePooled, train.FilePooledPairs} {
+	for _, f := range []string{"m1-resp/fold_scores.csv", "m3-resp/comparison.json", runfolder.FilePerRecording, runfolder.FilePooledSummary, runfolder.FilePooledPairs} {
 		if _, ok := full[f]; !ok {
-			t.Errorf("unsharded run lacks %s", f)
+			t.Errorf("the run in one process lacks %s", f)
 		}
 	}
 
-	// Three shards in three processes, then merge.
-	sharded := filepath.Join(dir, "sharded")
+	// Three array tasks in three processes, then gather. The third task
+	// finds its number in Slurm's environment: SLURM_ARRAY_TASK_ID 7 of
+	// an array 5-7 is task 7-5+1 = 3 of 3.
+	tasks := filepath.Join(dir, "tasks")
 	for i := 1; i <= 3; i++ {
-		b, err := child("compare", "--config", cfg, "--out", sharded, "--shard", fmt.Sprintf("%d/3", i), "--quiet").CombinedOutput()
+		cmd := child("compare", "--config", cfg, "--out", tasks, "--array-task", strconv.Itoa(i), "--array-task-count", "3", "--quiet")
+		if i == 3 {
+			cmd = child("compare", "--config", cfg, "--out", tasks, "--quiet")
+			cmd.Env = append(cmd.Env, "SLURM_ARRAY_TASK_ID=7", "SLURM_ARRAY_TASK_MIN=5", "SLURM_ARRAY_TASK_COUNT=3")
+		}
+		b, err := cmd.CombinedOutput()
 		if err != nil {
-			t.Fatalf("shard %d: %v\n%s", i, err, b)
+			t.Fatalf("array task %d: %v\n%s", i, err, b)
+		}
+		if !strings.Contains(string(b), fmt.Sprintf("array task %d of 3", i)) {
+			t.Errorf("array task %d does not say which task it ran:\n%s", i, b)
+		}
+		if i == 3 && !strings.Contains(string(b), "SLURM_ARRAY_TASK_ID=7") {
+			t.Errorf("the task taken from Slurm's environment does not say so:\n%s", b)
 		}
 	}
-	if b, err := child("merge", sharded).CombinedOutput(); err != nil {
-		t.Fatalf("merge: %v\n%s", err, b)
+	if b, err := child("gather", tasks).CombinedOutput(); err != nil {
+		t.Fatalf("gather: %v\n%s", err, b)
 	}
-	sameOutputs(t, full, outputs(t, sharded), "sharded")
+	if _, err := os.Stat(filepath.Join(tasks, runfolder.FileComplete)); err != nil {
+		t.Errorf("gather wrote no %s: %v", runfolder.FileComplete, err)
+	}
+	sameOutputs(t, full, outputs(t, tasks), "array tasks")
 }
 
-func TestKilledShardReruns(t *testing.T) {
+func TestKilledArrayTaskReruns(t *testing.T) {
 	if testing.Short() {
 		t.Skip("runs several processes")
 	}
 	dir := t.TempDir()
-	// Long enough units (no early stop) that the shard is still running
+	// Long enough units (no early stop) that the array task is still running
 	// when its first unit lands.
 	cfg := writeSessions(t, dir, 2000)
 	if out, err := runCLI(t, "compare", "--config", cfg, "--quiet"); err != nil {
-		t.Fatalf("unsharded: %v\n%s", err, out)
+		t.Fatalf("in one process: %v\n%s", err, out)
 	}
 	full := outputs(t, filepath.Join(dir, "full"))
 
 	killed := filepath.Join(dir, "killed")
-	units := filepath.Join(killed, train.UnitsDir)
-	cmd := child("compare", "--config", cfg, "--out", killed, "--shard", "1/2", "--workers", "1", "--quiet")
+	units := filepath.Join(killed, runfolder.DirFoldResults)
+	cmd := child("compare", "--config", cfg, "--out", killed, "--array-task", "1", "--array-task-count", "2", "--workers", "1", "--quiet")
 	if err := cmd.Start(); err != nil {
 		t.Fatal(err)
 	}
-	// Kill the shard once its first unit is on disk.
+	// Kill the array task once its first unit is on disk.
 	deadline := time.Now().Add(60 * time.Second)
 	for countUnits(units) == 0 && time.Now().Before(deadline) {
 		time.Sleep(5 * time.Millisecond)
 	}
 	cmd.Process.Kill()
 	if err := cmd.Wait(); err == nil {
-		t.Fatal("the shard finished before it could be killed: make its units slower")
+		t.Fatal("the array task finished before it could be killed: make its units slower")
 	}
 	before := countUnits(units)
-	t.Logf("killed the shard after %d units", before)
+	t.Logf("killed the array task after %d units", before)
 	if before == 0 {
-		t.Fatal("the shard wrote no unit before the deadline")
+		t.Fatal("the array task wrote no unit before the deadline")
 	}
-	// No half-written unit: every file there decodes (merge checks that too).
-	b, err := child("merge", killed).CombinedOutput()
+	// No half-written unit: every file there decodes (gather checks that too).
+	b, err := child("gather", killed).CombinedOutput()
 	if err == nil || !strings.Contains(string(b), "units missing") {
-		t.Fatalf("merge of an unfinished comparison: %v\n%s", err, b)
+		t.Fatalf("gather of an unfinished comparison: %v\n%s", err, b)
 	}
 	if !strings.Contains(string(b), "fold") {
-		t.Errorf("merge error does not name the missing units:\n%s", b)
+		t.Errorf("gather error does not name the missing units:\n%s", b)
 	}
-	for _, shard := range []string{"1/2", "2/2"} {
-		b, err := child("compare", "--config", cfg, "--out", killed, "--shard", shard).CombinedOutput()
+	// Readers refuse the unfinished folder.
+	b, err = child("report", killed).CombinedOutput()
+	if want := "is incomplete: the comparison that wrote it did not finish (no complete.json)"; err == nil || !strings.Contains(string(b), want) {
+		t.Errorf("report of an unfinished comparison: %v, want an error containing %q\n%s", err, want, b)
+	}
+	for _, task := range []string{"1", "2"} {
+		b, err := child("compare", "--config", cfg, "--out", killed, "--array-task", task, "--array-task-count", "2").CombinedOutput()
 		if err != nil {
-			t.Fatalf("shard %s: %v\n%s", shard, err, b)
+			t.Fatalf("array task %s: %v\n%s", task, err, b)
 		}
-		if shard == "1/2" && before > 0 && !strings.Contains(string(b), "already done") {
-			t.Errorf("rerun of the killed shard redid its finished units:\n%s", b)
+		if task == "1" && before > 0 && !strings.Contains(string(b), "already done") {
+			t.Errorf("rerun of the killed array task redid its finished units:\n%s", b)
 		}
 	}
-	if b, err := child("merge", killed).CombinedOutput(); err != nil {
-		t.Fatalf("merge: %v\n%s", err, b)
+	if b, err := child("gather", killed).CombinedOutput(); err != nil {
+		t.Fatalf("gather: %v\n%s", err, b)
 	}
 	sameOutputs(t, full, outputs(t, killed), "killed and rerun")
 }
@@ -222,14 +246,14 @@ func countUnits(dir string) int {
 	return n
 }
 
-func TestPrintArrayScript(t *testing.T) {
+func TestSlurmScript(t *testing.T) {
 	dir := t.TempDir()
 	cfg := writeSessions(t, dir, 40)
-	out, err := runCLI(t, "compare", "--config", cfg, "--print-array-script", "4")
+	out, err := runCLI(t, "compare", "--config", cfg, "--slurm-script", "4")
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, want := range []string{"#SBATCH --array=1-4", `--shard "${SLURM_ARRAY_TASK_ID}/4"`, "merge"} {
+	for _, want := range []string{"#SBATCH --array=1-4", `--array-task "${SLURM_ARRAY_TASK_ID}" --array-task-count 4`, "gather"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("array script lacks %q:\n%s", want, out)
 		}

@@ -1,0 +1,14 @@
+// Package compare plans and runs cross-validated comparisons of encoders
+// and per-neuron baselines: it expands the compare section of a config
+// (encoder grids, the recordings list) into units — one model on one fold
+// of one recording, each with a stable id recording/model/fold<k> — runs
+// them with a pool of workers, alone or as one task of a job array, and
+// gathers the finished units into the comparison folder that
+// train/runfolder writes.
+//
+// Conventions: models are listed encoders first, baselines last; folds are
+// numbered from 0 in code and from 1 in ids and files; array tasks are
+// numbered from 1 (task I of N runs every N-th unit, starting at the I-th).
+// Results do not depend on the number of workers or array tasks: each unit
+// is seeded by the config, not by the order it runs in.
+package compare

@@ -1,0 +1,188 @@
+package compare
+
+import (
+	"fmt"
+	"math"
+	"path/filepath"
+	"slices"
+	"strconv"
+	"strings"
+
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
+	"github.com/strialab/stria/eval/tuning"
+	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/runfolder"
+)
+
+// Gather checks that every unit is done and writes the comparison
+// outputs: for one recording into the comparison folder, for several into
+// a folder per recording plus the tables across recordings. complete.json
+// is written last (into every recording's folder after its files, and
+// into the comparison folder after everything). It returns the comparison
+// of each recording, in plan order.
+func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
+	if miss := p.Missing(); len(miss) > 0 {
+		show := miss
+		if len(show) > 20 {
+			show = append(slices.Clone(show[:20]), fmt.Sprintf("... and %d more", len(miss)-20))
+		}
+		return nil, fmt.Errorf("%w: %d of %d not done: %s", ErrMissingUnits, len(miss), len(p.Units), strings.Join(show, ", "))
+	}
+	out := p.Dir()
+	if err := p.Begin(); err != nil {
+		return nil, err
+	}
+	var cmps []*runfolder.Comparison
+	for ri, rec := range p.Recordings {
+		prep, err := train.Prepare(rec.Cfg)
+		if err != nil {
+			return nil, p.recErr(rec, err)
+		}
+		if _, err := train.Folds(prep); err != nil { // for the coverage warnings
+			return nil, p.recErr(rec, err)
+		}
+		var results []*runfolder.FoldResult
+		for _, u := range p.Units {
+			if u.Rec != ri {
+				continue
+			}
+			r, err := runfolder.ReadFoldResult(out, u.ID)
+			if err != nil {
+				return nil, err
+			}
+			if len(r.Scores) != prep.Neurons() {
+				return nil, fmt.Errorf("unit %s has %d neurons, the recording has %d: was the data changed?", u.ID, len(r.Scores), prep.Neurons())
+			}
+			if want := prep.NBins * prep.Neurons(); len(r.Curves) != want {
+				return nil, fmt.Errorf("unit %s has %d curve values, want %d (bins x neurons): was the data changed?", u.ID, len(r.Curves), want)
+			}
+			results = append(results, r)
+		}
+		folder, err := newFolder(prep, rec.Specs, results)
+		if err != nil {
+			return nil, err
+		}
+		folder.Result.Recording = rec.Name
+		dir := out
+		if rec.Name != "" {
+			dir = filepath.Join(out, rec.Name)
+		}
+		if err := runfolder.WriteComparison(dir, folder); err != nil {
+			return nil, err
+		}
+		if rec.Name != "" {
+			if err := runfolder.Finish(dir, runfolder.FormatComparison); err != nil {
+				return nil, err
+			}
+		}
+		cmps = append(cmps, folder.Result)
+	}
+	if len(p.Recordings) > 1 {
+		if err := runfolder.WriteAcross(out, runfolder.NewAcross(cmps, Pool(cmps))); err != nil {
+			return nil, err
+		}
+	}
+	if err := runfolder.Finish(out, runfolder.FormatComparison); err != nil {
+		return nil, err
+	}
+	return cmps, nil
+}
+
+// newFolder computes everything the comparison folder of one recording
+// holds from the units' results (in plan order).
+func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.FoldResult) (*runfolder.ComparisonFolder, error) {
+	names := make([]string, len(specs))
+	var encoders []string
+	for i, s := range specs {
+		names[i] = s.Name
+		if s.Baseline == "" {
+			encoders = append(encoders, s.Name)
+		}
+	}
+	nb, n := p.NBins, p.Neurons()
+	ex := train.ExcludedNeurons(p)
+	excluded := make([]bool, n)
+	reasons := make([]string, n)
+	for j, why := range ex {
+		excluded[j], reasons[j] = true, why
+	}
+	perFold := map[string][][]eval.Scores{}
+	for _, r := range results {
+		perFold[r.Model] = append(perFold[r.Model], r.Scores)
+	}
+	c := Summarise(names, p.Cfg.Split.Folds, n, perFold, excluded)
+	settings, err := p.Cfg.Marshal()
+	if err != nil {
+		return nil, err
+	}
+	f := &runfolder.ComparisonFolder{Settings: settings, Result: c, Excluded: reasons, Curves: map[string][]float64{}}
+	for _, r := range results {
+		f.FoldScores = append(f.FoldScores, runfolder.NewFoldScores(r.Model, r.Fold, r.Scores, ex))
+	}
+	// Fold-averaged curves per model.
+	for _, m := range names {
+		a := make([]float64, nb*n)
+		k := 0
+		for _, r := range results {
+			if r.Model == m && r.Curves != nil {
+				for i, v := range r.Curves {
+					a[i] += v
+				}
+				k++
+			}
+		}
+		for i := range a {
+			a[i] /= float64(max(k, 1))
+		}
+		f.Curves[m] = a
+	}
+	// The data: condition means and their standard errors over all trials.
+	all := make([]int, p.Rec.Y.Rows)
+	for i := range all {
+		all[i] = i
+	}
+	st := data.NewCondStats(p.Rec.Y, p.Cond, all, nb)
+	means := st.Mean(nil)
+	sem := st.Var(nil)
+	for b := 0; b < nb; b++ {
+		for j := 0; j < n; j++ {
+			sem[b*n+j] = math.Sqrt(sem[b*n+j] / float64(st.Count[b]))
+		}
+	}
+	f.Curves[runfolder.CurveDataMean], f.Curves[runfolder.CurveDataSEM] = means, sem
+	// Tuning descriptors of the data's and every model's curves.
+	centers := p.Axis.Centers()
+	period := 0.0
+	if p.Axis.Periodic {
+		period = p.Axis.Max - p.Axis.Min
+	}
+	r := make([]float64, nb)
+	for _, src := range append([]string{"data"}, names...) {
+		curve := means
+		if src != "data" {
+			curve = f.Curves[src]
+		}
+		for j := 0; j < n; j++ {
+			for b := 0; b < nb; b++ {
+				r[b] = curve[b*n+j]
+			}
+			f.Descriptors = append(f.Descriptors, runfolder.Descriptor{Source: src, Neuron: j, Descriptors: tuning.Describe(r, centers, period)})
+		}
+	}
+	info := runfolder.ComparisonInfo{Models: names, Encoders: encoders, Folds: c.Folds, Neurons: n, Excluded: map[string]string{},
+		Summary: c.Summary, Winner: c.Winner, Pairs: runfolder.NewPairInfo(c.Pairs), PValues: runfolder.WilcoxonNote,
+		Cautions: train.Cautions, Warnings: p.Report.Warnings,
+		Axis:   runfolder.AxisOf(p),
+		Epochs: map[string][]int{}, Recordings: []string{p.Rec.Source.Responses}}
+	for j, why := range ex {
+		info.Excluded[strconv.Itoa(j)] = why
+	}
+	for _, r := range results {
+		if r.Epochs > 0 {
+			info.Epochs[r.Model] = append(info.Epochs[r.Model], r.Epochs)
+		}
+	}
+	f.Info = info
+	return f, nil
+}

@@ -1,0 +1,226 @@
+package runfolder
+
+import (
+	"bufio"
+	"encoding/csv"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"strconv"
+)
+
+// Modes of the files and folders runfolder writes.
+const (
+	FileMode   os.FileMode = 0o644
+	FolderMode os.FileMode = 0o755
+)
+
+// WriteFile writes path atomically: write fills a temporary file in the
+// same folder (through a buffer), which is synced, given mode 0644 and
+// renamed over path. On any error the temporary file is removed and path
+// is left as it was. Errors name path.
+func WriteFile(path string, write func(w io.Writer) error) error {
+	dir, base := filepath.Split(path)
+	if dir == "" {
+		dir = "."
+	}
+	f, err := os.CreateTemp(dir, "."+base+".tmp*")
+	if err != nil {
+		return fmt.Errorf("writing %s: %w", path, err)
+	}
+	tmp := f.Name()
+	bw := bufio.NewWriterSize(f, 1<<20)
+	err = write(bw)
+	if err == nil {
+		err = bw.Flush()
+	}
+	if err == nil {
+		err = f.Chmod(FileMode)
+	}
+	if err == nil {
+		err = f.Sync()
+	}
+	if cerr := f.Close(); err == nil {
+		err = cerr
+	}
+	if err == nil {
+		err = os.Rename(tmp, path)
+	}
+	if err != nil {
+		os.Remove(tmp)
+		return fmt.Errorf("writing %s: %w", path, err)
+	}
+	return nil
+}
+
+// WriteBytes writes b to path atomically (see WriteFile).
+func WriteBytes(path string, b []byte) error {
+	return WriteFile(path, func(w io.Writer) error { _, err := w.Write(b); return err })
+}
+
+// WriteJSON writes v as JSON indented by two spaces, with a final newline,
+// atomically.
+func WriteJSON(path string, v any) error {
+	b, err := json.MarshalIndent(v, "", "  ")
+	if err != nil {
+		return fmt.Errorf("writing %s: %w", path, err)
+	}
+	return WriteBytes(path, append(b, '\n'))
+}
+
+// readJSON reads a JSON file into v; errors name the file.
+func readJSON(path string, v any) error {
+	b, err := os.ReadFile(path)
+	if err != nil {
+		return err
+	}
+	if err := json.Unmarshal(b, v); err != nil {
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	return nil
+}
+
+// mkdir creates dir and its parents with mode 0755.
+func mkdir(dir string) error { return os.MkdirAll(dir, FolderMode) }
+
+// WriteTable writes a CSV table (header and rows) atomically through
+// encoding/csv.
+func WriteTable(path string, header []string, rows [][]string) error {
+	return writeCSV(path, header, func(cw *csv.Writer) error {
+		for _, r := range rows {
+			if err := cw.Write(r); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+}
+
+// writeCSV writes a header and the rows that emit writes, atomically.
+func writeCSV(path string, header []string, emit func(cw *csv.Writer) error) error {
+	return WriteFile(path, func(w io.Writer) error {
+		cw := csv.NewWriter(w)
+		if err := cw.Write(header); err != nil {
+			return err
+		}
+		if err := emit(cw); err != nil {
+			return err
+		}
+		cw.Flush()
+		return cw.Error()
+	})
+}
+
+// ReadTable reads a CSV file with a header row through encoding/csv;
+// every row must have as many fields as the header. Errors name the file.
+func ReadTable(path string) (header []string, rows [][]string, err error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, nil, err
+	}
+	defer f.Close()
+	all, err := csv.NewReader(bufio.NewReader(f)).ReadAll()
+	if err != nil {
+		return nil, nil, fmt.Errorf("%s: %w", path, err)
+	}
+	if len(all) == 0 {
+		return nil, nil, fmt.Errorf("%s: empty file", path)
+	}
+	return all[0], all[1:], nil
+}
+
+// table is a CSV table read back, with its columns found by name.
+type table struct {
+	path   string
+	header []string
+	rows   [][]string
+}
+
+func readTable(path string) (*table, error) {
+	h, rows, err := ReadTable(path)
+	if err != nil {
+		return nil, err
+	}
+	return &table{path: path, header: h, rows: rows}, nil
+}
+
+// col returns the index of a column; the error names the file.
+func (t *table) col(name string) (int, error) {
+	for i, h := range t.header {
+		if h == name {
+			return i, nil
+		}
+	}
+	return 0, fmt.Errorf("%s: no column %q", t.path, name)
+}
+
+// cols returns the indices of several columns.
+func (t *table) cols(names ...string) ([]int, error) {
+	out := make([]int, len(names))
+	for i, n := range names {
+		k, err := t.col(n)
+		if err != nil {
+			return nil, err
+		}
+		out[i] = k
+	}
+	return out, nil
+}
+
+// float parses row i's column k; the error names file, line and column.
+func (t *table) float(i, k int) (float64, error) {
+	v, err := strconv.ParseFloat(t.rows[i][k], 64)
+	if err != nil {
+		return 0, fmt.Errorf("%s: line %d, column %s: %q is not a number", t.path, i+2, t.header[k], t.rows[i][k])
+	}
+	return v, nil
+}
+
+// int parses row i's column k as a whole number.
+func (t *table) int(i, k int) (int, error) {
+	v, err := strconv.Atoi(t.rows[i][k])
+	if err != nil {
+		return 0, fmt.Errorf("%s: line %d, column %s: %q is not a whole number", t.path, i+2, t.header[k], t.rows[i][k])
+	}
+	return v, nil
+}
+
+// g8 formats a score with 8 significant digits (NaN as NaN).
+func g8(v float64) string { return strconv.FormatFloat(v, 'g', 8, 64) }
+
+// exact formats v in the shortest form that reads back to the same
+// float64.
+func exact(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
+
+// Num is a float64 that writes NaN and infinities as JSON null.
+type Num float64
+
+// MarshalJSON implements json.Marshaler.
+func (v Num) MarshalJSON() ([]byte, error) {
+	f := float64(v)
+	if math.IsNaN(f) || math.IsInf(f, 0) {
+		return []byte("null"), nil
+	}
+	return strconv.AppendFloat(nil, f, 'g', -1, 64), nil
+}
+
+// UnmarshalJSON implements json.Unmarshaler (null reads as NaN).
+func (v *Num) UnmarshalJSON(b []byte) error {
+	if string(b) == "null" {
+		*v = Num(math.NaN())
+		return nil
+	}
+	f, err := strconv.ParseFloat(string(b), 64)
+	*v = Num(f)
+	return err
+}
+
+// errNotExist reports whether err says a file is missing.
+func errNotExist(err error) bool { return errors.Is(err, os.ErrNotExist) }
+
+// MakeFolder creates dir and its parents with mode 0755.
+func MakeFolder(dir string) error { return mkdir(dir) }

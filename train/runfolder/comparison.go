@@ -1,0 +1,716 @@
+package runfolder
+
+import (
+	"encoding/csv"
+	"encoding/gob"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"sort"
+	"strconv"
+	"strings"
+
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
+	"github.com/strialab/stria/eval/tuning"
+)
+
+// Comparison folder file names (settings.yaml, figures/, report.html and
+// complete.json as in run folders).
+const (
+	FileFoldScores    = "fold_scores.csv"        // model, fold, neuron: scores on the fold's test trials
+	FileFoldAverages  = "fold_averages.csv"      // model, neuron: scores averaged over folds
+	FileModelSummary  = "model_summary.csv"      // model, metric: median and quartiles over neurons
+	FileModelPairs    = "model_pairs.csv"        // metric, model pair: share and Wilcoxon test
+	FileComparison    = "comparison.json"        // ComparisonInfo
+	FileDescriptors   = "tuning_descriptors.csv" // source, neuron: tuning descriptors
+	DirCurves         = "tuning_curves"          // <model>.npy, data_mean.npy, data_sem.npy: bins x neurons
+	DirFoldResults    = "fold_results"           // <recording>/<model>/fold<k>.gob: one unit's FoldResult
+	FilePerRecording  = "per_recording.csv"      // several recordings: every recording's medians
+	FilePooledSummary = "pooled_summary.csv"     // several recordings: neurons pooled
+	FilePooledPairs   = "pooled_pairs.csv"       // several recordings: pairs on pooled neurons
+)
+
+// Curve names of the data in tuning_curves/ beside the models' curves.
+const (
+	CurveDataMean = "data_mean"
+	CurveDataSEM  = "data_sem"
+)
+
+// CompareMetrics are the metrics summarised and tested in a comparison.
+var CompareMetrics = []string{"test_r2", "test_r", "fev", "cc_norm"}
+
+// WilcoxonNote states how the p-values of model_pairs.csv are computed.
+const WilcoxonNote = "Wilcoxon signed-rank test, two-sided, across neurons on fold-averaged scores; zero differences dropped; exact null distribution for n <= 50 without ties or zeros, otherwise the normal approximation with tie correction and no continuity correction (as scipy 1.10's defaults). Not corrected for multiple comparisons."
+
+// FileName turns a model name into a file name.
+func FileName(model string) string {
+	r := strings.NewReplacer("[", "_", "]", "", ",", "_", "=", "-", "/", "_", " ", "_")
+	return r.Replace(model)
+}
+
+// PairTest is the comparison of two models on one metric across neurons.
+type PairTest struct {
+	Metric string
+	A, B   string
+	// ShareA is the share of neurons (with both scores defined) where A
+	// scores higher than B.
+	ShareA float64
+	eval.Wilcoxon
+}
+
+// Comparison is the outcome of a cross-validated comparison of models on
+// one recording (or on the neurons of several, pooled).
+type Comparison struct {
+	// Recording names the recording ("" for a single one, "pooled" for
+	// neurons pooled across recordings).
+	Recording string
+	Models    []string
+	Folds     int
+	Neurons   int
+	// Excluded counts the neurons left out (constant responses).
+	Excluded int
+	// PerNeuron[model][column] is each neuron's score averaged over the
+	// folds, for every column of ScoreColumns (NaN folds left out; NaN for
+	// excluded neurons).
+	PerNeuron map[string]map[string][]float64
+	// Summary[model][metric] over neurons, for CompareMetrics.
+	Summary map[string]map[string]Spread
+	Pairs   []PairTest
+	// Winner is the model with the highest median, per metric.
+	Winner map[string]string
+}
+
+// ComparisonInfo is comparison.json.
+type ComparisonInfo struct {
+	Models []string `json:"models"`
+	// Encoders are the models that are encoders (the others are
+	// per-neuron baselines).
+	Encoders   []string                     `json:"encoders"`
+	Folds      int                          `json:"folds"`
+	Neurons    int                          `json:"neurons"`
+	Excluded   map[string]string            `json:"excluded_neurons"`
+	Summary    map[string]map[string]Spread `json:"summary"`
+	Winner     map[string]string            `json:"winner"`
+	Pairs      []PairInfo                   `json:"pairs"`
+	PValues    string                       `json:"p_value_method"`
+	Cautions   []string                     `json:"cautions"`
+	Warnings   []string                     `json:"warnings"`
+	Axis       AxisInfo                     `json:"axis"`
+	Epochs     map[string][]int             `json:"encoder_epochs,omitempty"`
+	Recordings []string                     `json:"recordings"`
+}
+
+// PairInfo is one pairwise test in comparison.json.
+type PairInfo struct {
+	Metric  string `json:"metric"`
+	A       string `json:"model_a"`
+	B       string `json:"model_b"`
+	ShareA  Num    `json:"share_a_higher"`
+	W       Num    `json:"w"`
+	P       Num    `json:"p"`
+	N       int    `json:"n"`
+	Dropped int    `json:"dropped"`
+	Method  string `json:"method"`
+}
+
+// FoldScores is one model's scores on one fold, as in fold_scores.csv:
+// Cols[k][j] is column ScoreColumns[k] of neuron j (NaN for an excluded
+// neuron).
+type FoldScores struct {
+	Model string
+	Fold  int // 0-based; written 1-based
+	Cols  [][]float64
+}
+
+// Descriptor is one row of tuning_descriptors.csv: the descriptors of the
+// data's or a model's curve of one neuron.
+type Descriptor struct {
+	Source string // "data" or a model
+	Neuron int
+	tuning.Descriptors
+}
+
+// ComparisonFolder is everything a comparison folder of one recording
+// holds, as written by WriteComparison and read by ReadComparison.
+type ComparisonFolder struct {
+	Settings []byte
+	Info     ComparisonInfo
+	// Result gives the fold averages (fold_averages.csv) and is the
+	// source of model_summary.csv and model_pairs.csv.
+	Result     *Comparison
+	FoldScores []FoldScores
+	// Excluded[j] is why neuron j is excluded ("" when scored).
+	Excluded []string
+	// Curves are the arrays of tuning_curves/ (bins x neurons) by name:
+	// each model's (under its name) and CurveDataMean, CurveDataSEM.
+	Curves      map[string][]float64
+	Descriptors []Descriptor
+}
+
+// NewFoldScores builds the table of one model's scores on one fold.
+func NewFoldScores(model string, fold int, scores []eval.Scores, excluded map[int]string) FoldScores {
+	t := NewNeuronScores(nil, scores, excluded)
+	return FoldScores{Model: model, Fold: fold, Cols: t.Cols}
+}
+
+// NewPairInfo converts the pairwise tests of a comparison for
+// comparison.json.
+func NewPairInfo(pairs []PairTest) []PairInfo {
+	out := make([]PairInfo, len(pairs))
+	for i, pt := range pairs {
+		out[i] = PairInfo{Metric: pt.Metric, A: pt.A, B: pt.B, ShareA: Num(pt.ShareA), W: Num(pt.W), P: Num(pt.P), N: pt.N, Dropped: pt.Dropped, Method: pt.Method}
+	}
+	return out
+}
+
+// WriteComparison writes the comparison folder of one recording (not
+// complete.json: call Finish after it).
+func WriteComparison(dir string, c *ComparisonFolder) error {
+	if err := mkdir(filepath.Join(dir, DirCurves)); err != nil {
+		return err
+	}
+	n := c.Info.Neurons
+	header := append(append([]string{"model", "fold", "neuron"}, ScoreColumns...), "excluded")
+	err := writeCSV(filepath.Join(dir, FileFoldScores), header, func(cw *csv.Writer) error {
+		row := make([]string, len(header))
+		for _, fs := range c.FoldScores {
+			for j := 0; j < n; j++ {
+				row[0], row[1], row[2] = fs.Model, strconv.Itoa(fs.Fold+1), strconv.Itoa(j)
+				for k := range ScoreColumns {
+					row[3+k] = g8(fs.Cols[k][j])
+				}
+				row[len(row)-1] = c.Excluded[j]
+				if err := cw.Write(row); err != nil {
+					return err
+				}
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		return err
+	}
+	if err := writeFoldAverages(filepath.Join(dir, FileFoldAverages), c.Result); err != nil {
+		return err
+	}
+	if err := WriteSpreadTable(filepath.Join(dir, FileModelSummary), summaryRows(c.Result), false); err != nil {
+		return err
+	}
+	if err := WritePairsTable(filepath.Join(dir, FileModelPairs), c.Result.Pairs); err != nil {
+		return err
+	}
+	nb := c.Info.Axis.Bins
+	for _, name := range curveNames(c.Info.Models) {
+		v, ok := c.Curves[name]
+		if !ok {
+			return fmt.Errorf("%s: no curves of %s", dir, name)
+		}
+		if err := data.WriteNPY64(filepath.Join(dir, DirCurves, FileName(name)+".npy"), []int{nb, n}, v); err != nil {
+			return err
+		}
+	}
+	err = writeCSV(filepath.Join(dir, FileDescriptors), descriptorHeader, func(cw *csv.Writer) error {
+		for _, d := range c.Descriptors {
+			if err := cw.Write([]string{d.Source, strconv.Itoa(d.Neuron), g8(d.Preferred), g8(d.Peak), g8(d.OneMinusCV), g8(d.DirVector), g8(d.OSI), g8(d.DSI)}); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		return err
+	}
+	if err := WriteBytes(filepath.Join(dir, FileSettings), c.Settings); err != nil {
+		return err
+	}
+	return WriteJSON(filepath.Join(dir, FileComparison), c.Info)
+}
+
+var descriptorHeader = []string{"source", "neuron", "preferred", "peak", "one_minus_cv", "direction_vector", "osi", "dsi"}
+
+// curveNames are the arrays of tuning_curves/: the models', then the
+// data's.
+func curveNames(models []string) []string {
+	return append(append([]string(nil), models...), CurveDataMean, CurveDataSEM)
+}
+
+// writeFoldAverages writes fold_averages.csv: one row per model and
+// neuron, every score column, exact to the last bit.
+func writeFoldAverages(path string, c *Comparison) error {
+	header := append([]string{"model", "neuron"}, ScoreColumns...)
+	return writeCSV(path, header, func(cw *csv.Writer) error {
+		row := make([]string, len(header))
+		for _, m := range c.Models {
+			for j := 0; j < c.Neurons; j++ {
+				row[0], row[1] = m, strconv.Itoa(j)
+				for k, col := range ScoreColumns {
+					row[2+k] = exact(c.PerNeuron[m][col][j])
+				}
+				if err := cw.Write(row); err != nil {
+					return err
+				}
+			}
+		}
+		return nil
+	})
+}
+
+// ReadFoldAverages reads fold_averages.csv of a comparison folder of
+// models with n neurons: avg[model][column][neuron].
+func ReadFoldAverages(dir string, models []string, n int) (map[string]map[string][]float64, error) {
+	path := filepath.Join(dir, FileFoldAverages)
+	tb, err := readTable(path)
+	if err != nil {
+		return nil, err
+	}
+	fixed, err := tb.cols("model", "neuron")
+	if err != nil {
+		return nil, err
+	}
+	kc, err := tb.cols(ScoreColumns...)
+	if err != nil {
+		return nil, err
+	}
+	out := map[string]map[string][]float64{}
+	seen := map[string][]bool{}
+	for _, m := range models {
+		out[m] = map[string][]float64{}
+		for _, c := range ScoreColumns {
+			out[m][c] = make([]float64, n)
+		}
+		seen[m] = make([]bool, n)
+	}
+	for i, r := range tb.rows {
+		m := r[fixed[0]]
+		if _, ok := out[m]; !ok {
+			return nil, fmt.Errorf("%s: line %d: model %q is not in %s", path, i+2, m, FileComparison)
+		}
+		j, err := tb.int(i, fixed[1])
+		if err != nil {
+			return nil, err
+		}
+		if j < 0 || j >= n {
+			return nil, fmt.Errorf("%s: line %d: neuron %d out of range (0..%d)", path, i+2, j, n-1)
+		}
+		if seen[m][j] {
+			return nil, fmt.Errorf("%s: line %d: model %q, neuron %d a second time", path, i+2, m, j)
+		}
+		seen[m][j] = true
+		for q, k := range kc {
+			if out[m][ScoreColumns[q]][j], err = tb.float(i, k); err != nil {
+				return nil, err
+			}
+		}
+	}
+	for _, m := range models {
+		for j, ok := range seen[m] {
+			if !ok {
+				return nil, fmt.Errorf("%s: no row for model %q, neuron %d", path, m, j)
+			}
+		}
+	}
+	return out, nil
+}
+
+// SpreadRow is one row of model_summary.csv, pooled_summary.csv or
+// per_recording.csv: the spread over neurons of one model's fold-averaged
+// metric (Recording is empty outside per_recording.csv).
+type SpreadRow struct {
+	Recording, Model, Metric string
+	Spread
+}
+
+// summaryRows lists the spreads of a comparison, models in order, metrics
+// in the order of CompareMetrics.
+func summaryRows(c *Comparison) []SpreadRow {
+	var rows []SpreadRow
+	for _, m := range c.Models {
+		for _, k := range CompareMetrics {
+			rows = append(rows, SpreadRow{Model: m, Metric: k, Spread: c.Summary[m][k]})
+		}
+	}
+	return rows
+}
+
+var (
+	spreadHeader   = []string{"model", "metric", "median", "q1", "q3", "neurons", "nan"}
+	perRecHeader   = append([]string{"recording"}, spreadHeader...)
+	pairsHeader    = []string{"metric", "model_a", "model_b", "share_a_higher", "w", "p", "n", "dropped", "method"}
+	recordingsRows = "median of recordings"
+)
+
+// WriteSpreadTable writes rows as model_summary.csv or pooled_summary.csv,
+// or, withRecording, as per_recording.csv.
+func WriteSpreadTable(path string, rows []SpreadRow, withRecording bool) error {
+	header := spreadHeader
+	if withRecording {
+		header = perRecHeader
+	}
+	return writeCSV(path, header, func(cw *csv.Writer) error {
+		for _, r := range rows {
+			lead := []string{r.Model, r.Metric}
+			if withRecording {
+				lead = []string{r.Recording, r.Model, r.Metric}
+			}
+			s := r.Spread
+			if err := cw.Write(append(lead, g8(float64(s.Median)), g8(float64(s.Q1)), g8(float64(s.Q3)), strconv.Itoa(s.N), strconv.Itoa(s.NaN))); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+}
+
+// ReadSpreadTable reads model_summary.csv, pooled_summary.csv or
+// per_recording.csv (which has a recording column).
+func ReadSpreadTable(path string) ([]SpreadRow, error) {
+	tb, err := readTable(path)
+	if err != nil {
+		return nil, err
+	}
+	k, err := tb.cols(spreadHeader...)
+	if err != nil {
+		return nil, err
+	}
+	kr, errRec := tb.col("recording")
+	rows := make([]SpreadRow, len(tb.rows))
+	for i, r := range tb.rows {
+		row := SpreadRow{Model: r[k[0]], Metric: r[k[1]]}
+		if errRec == nil {
+			row.Recording = r[kr]
+		}
+		for q, dst := range []*Num{&row.Median, &row.Q1, &row.Q3} {
+			v, err := tb.float(i, k[2+q])
+			if err != nil {
+				return nil, err
+			}
+			*dst = Num(v)
+		}
+		if row.N, err = tb.int(i, k[5]); err != nil {
+			return nil, err
+		}
+		if row.NaN, err = tb.int(i, k[6]); err != nil {
+			return nil, err
+		}
+		rows[i] = row
+	}
+	return rows, nil
+}
+
+// WritePairsTable writes pairwise tests as model_pairs.csv or
+// pooled_pairs.csv.
+func WritePairsTable(path string, pairs []PairTest) error {
+	return writeCSV(path, pairsHeader, func(cw *csv.Writer) error {
+		for _, pt := range pairs {
+			if err := cw.Write([]string{pt.Metric, pt.A, pt.B, g8(pt.ShareA), g8(pt.W), g8(pt.P), strconv.Itoa(pt.N), strconv.Itoa(pt.Dropped), pt.Method}); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+}
+
+// ReadPairsTable reads model_pairs.csv or pooled_pairs.csv.
+func ReadPairsTable(path string) ([]PairTest, error) {
+	tb, err := readTable(path)
+	if err != nil {
+		return nil, err
+	}
+	k, err := tb.cols(pairsHeader...)
+	if err != nil {
+		return nil, err
+	}
+	out := make([]PairTest, len(tb.rows))
+	for i, r := range tb.rows {
+		pt := PairTest{Metric: r[k[0]], A: r[k[1]], B: r[k[2]]}
+		pt.Method = r[k[8]]
+		for q, dst := range []*float64{&pt.ShareA, &pt.W, &pt.P} {
+			if *dst, err = tb.float(i, k[3+q]); err != nil {
+				return nil, err
+			}
+		}
+		if pt.N, err = tb.int(i, k[6]); err != nil {
+			return nil, err
+		}
+		if pt.Dropped, err = tb.int(i, k[7]); err != nil {
+			return nil, err
+		}
+		out[i] = pt
+	}
+	return out, nil
+}
+
+// ReadComparisonInfo reads comparison.json.
+func ReadComparisonInfo(dir string) (*ComparisonInfo, error) {
+	path := filepath.Join(dir, FileComparison)
+	var ci ComparisonInfo
+	if err := readJSON(path, &ci); err != nil {
+		return nil, err
+	}
+	if len(ci.Models) == 0 {
+		return nil, fmt.Errorf("%s: no models", path)
+	}
+	if ci.Neurons < 1 {
+		return nil, fmt.Errorf("%s: neurons %d", path, ci.Neurons)
+	}
+	return &ci, nil
+}
+
+// ReadCurves reads one array of tuning_curves/ (a model's fold-averaged
+// curves, or CurveDataMean, CurveDataSEM): bins x neurons.
+func ReadCurves(dir, name string, nb, n int) ([]float64, error) {
+	path := filepath.Join(dir, DirCurves, FileName(name)+".npy")
+	shape, v, err := data.ReadArray(path)
+	if err != nil {
+		return nil, err
+	}
+	if len(shape) != 2 || shape[0] != nb || shape[1] != n {
+		return nil, fmt.Errorf("%s: shape %v, want [%d %d] (bins x neurons)", path, shape, nb, n)
+	}
+	return v, nil
+}
+
+// ReadComparison reads the whole comparison folder of one recording.
+func ReadComparison(dir string) (*ComparisonFolder, error) {
+	ci, err := ReadComparisonInfo(dir)
+	if err != nil {
+		return nil, err
+	}
+	n, nb := ci.Neurons, ci.Axis.Bins
+	c := &ComparisonFolder{Info: *ci, Curves: map[string][]float64{}}
+	if c.Settings, err = ReadSettings(dir); err != nil {
+		return nil, err
+	}
+	avg, err := ReadFoldAverages(dir, ci.Models, n)
+	if err != nil {
+		return nil, err
+	}
+	c.Result = &Comparison{Models: ci.Models, Folds: ci.Folds, Neurons: n, Excluded: len(ci.Excluded), PerNeuron: avg, Summary: ci.Summary, Winner: ci.Winner}
+	for _, p := range ci.Pairs {
+		c.Result.Pairs = append(c.Result.Pairs, PairTest{Metric: p.Metric, A: p.A, B: p.B, ShareA: float64(p.ShareA),
+			Wilcoxon: eval.Wilcoxon{W: float64(p.W), P: float64(p.P), N: p.N, Dropped: p.Dropped, Method: p.Method}})
+	}
+	if c.FoldScores, c.Excluded, err = readFoldScores(filepath.Join(dir, FileFoldScores), n); err != nil {
+		return nil, err
+	}
+	for _, name := range curveNames(ci.Models) {
+		if c.Curves[name], err = ReadCurves(dir, name, nb, n); err != nil {
+			return nil, err
+		}
+	}
+	if c.Descriptors, err = readDescriptors(filepath.Join(dir, FileDescriptors)); err != nil {
+		return nil, err
+	}
+	return c, nil
+}
+
+// readFoldScores reads fold_scores.csv: the tables in file order and
+// every neuron's exclusion reason.
+func readFoldScores(path string, n int) ([]FoldScores, []string, error) {
+	tb, err := readTable(path)
+	if err != nil {
+		return nil, nil, err
+	}
+	fixed, err := tb.cols("model", "fold", "neuron", "excluded")
+	if err != nil {
+		return nil, nil, err
+	}
+	kc, err := tb.cols(ScoreColumns...)
+	if err != nil {
+		return nil, nil, err
+	}
+	if len(tb.rows)%n != 0 {
+		return nil, nil, fmt.Errorf("%s: %d rows, not a whole number of folds of %d neurons", path, len(tb.rows), n)
+	}
+	excluded := make([]string, n)
+	var out []FoldScores
+	for i, r := range tb.rows {
+		j := i % n
+		if j == 0 {
+			fold, err := tb.int(i, fixed[1])
+			if err != nil {
+				return nil, nil, err
+			}
+			fs := FoldScores{Model: r[fixed[0]], Fold: fold - 1, Cols: make([][]float64, len(ScoreColumns))}
+			for k := range fs.Cols {
+				fs.Cols[k] = make([]float64, n)
+			}
+			out = append(out, fs)
+		}
+		fs := &out[len(out)-1]
+		nj, err := tb.int(i, fixed[2])
+		if err != nil {
+			return nil, nil, err
+		}
+		if nj != j || r[fixed[0]] != fs.Model || r[fixed[1]] != strconv.Itoa(fs.Fold+1) {
+			return nil, nil, fmt.Errorf("%s: line %d: want model %q, fold %d, neuron %d (rows grouped by model and fold, neurons in order)", path, i+2, fs.Model, fs.Fold+1, j)
+		}
+		excluded[j] = r[fixed[3]]
+		for q, k := range kc {
+			if fs.Cols[q][j], err = tb.float(i, k); err != nil {
+				return nil, nil, err
+			}
+		}
+	}
+	return out, excluded, nil
+}
+
+func readDescriptors(path string) ([]Descriptor, error) {
+	tb, err := readTable(path)
+	if err != nil {
+		return nil, err
+	}
+	k, err := tb.cols(descriptorHeader...)
+	if err != nil {
+		return nil, err
+	}
+	out := make([]Descriptor, len(tb.rows))
+	for i, r := range tb.rows {
+		d := Descriptor{Source: r[k[0]]}
+		if d.Neuron, err = tb.int(i, k[1]); err != nil {
+			return nil, err
+		}
+		for q, dst := range []*float64{&d.Preferred, &d.Peak, &d.OneMinusCV, &d.DirVector, &d.OSI, &d.DSI} {
+			if *dst, err = tb.float(i, k[2+q]); err != nil {
+				return nil, err
+			}
+		}
+		out[i] = d
+	}
+	return out, nil
+}
+
+// Across is what the top of a comparison over several recordings holds
+// beside the recordings' folders.
+type Across struct {
+	// PerRecording (per_recording.csv) has every recording's spreads, then
+	// rows "median of recordings": per model and metric the median and
+	// quartiles over recordings of the recordings' medians (each recording
+	// counts once).
+	PerRecording []SpreadRow
+	// Pooled (pooled_summary.csv) and PooledPairs (pooled_pairs.csv) are
+	// the spreads and pairwise tests of the neurons of all recordings
+	// pooled.
+	Pooled      []SpreadRow
+	PooledPairs []PairTest
+}
+
+// NewAcross builds the tables across recordings from every recording's
+// comparison and the pooled one.
+func NewAcross(cmps []*Comparison, pooled *Comparison) *Across {
+	a := &Across{Pooled: summaryRows(pooled), PooledPairs: pooled.Pairs}
+	for _, c := range cmps {
+		for _, r := range summaryRows(c) {
+			r.Recording = c.Recording
+			a.PerRecording = append(a.PerRecording, r)
+		}
+	}
+	for _, m := range pooled.Models {
+		for _, k := range CompareMetrics {
+			med := make([]float64, len(cmps))
+			for i, c := range cmps {
+				med[i] = float64(c.Summary[m][k].Median)
+			}
+			a.PerRecording = append(a.PerRecording, SpreadRow{Recording: recordingsRows, Model: m, Metric: k, Spread: spreadOf(eval.Summarize(med), 0)})
+		}
+	}
+	return a
+}
+
+// WriteAcross writes the tables across recordings into dir.
+func WriteAcross(dir string, a *Across) error {
+	if err := WriteSpreadTable(filepath.Join(dir, FilePerRecording), a.PerRecording, true); err != nil {
+		return err
+	}
+	if err := WriteSpreadTable(filepath.Join(dir, FilePooledSummary), a.Pooled, false); err != nil {
+		return err
+	}
+	return WritePairsTable(filepath.Join(dir, FilePooledPairs), a.PooledPairs)
+}
+
+// ReadAcross reads the tables across recordings of dir.
+func ReadAcross(dir string) (*Across, error) {
+	var a Across
+	var err error
+	if a.PerRecording, err = ReadSpreadTable(filepath.Join(dir, FilePerRecording)); err != nil {
+		return nil, err
+	}
+	if a.Pooled, err = ReadSpreadTable(filepath.Join(dir, FilePooledSummary)); err != nil {
+		return nil, err
+	}
+	if a.PooledPairs, err = ReadPairsTable(filepath.Join(dir, FilePooledPairs)); err != nil {
+		return nil, err
+	}
+	return &a, nil
+}
+
+// RecordingFolders lists the per-recording comparison folders of a
+// comparison over several recordings, in name order.
+func RecordingFolders(dir string) ([]string, error) {
+	ents, err := os.ReadDir(dir)
+	if err != nil {
+		return nil, err
+	}
+	var out []string
+	for _, e := range ents {
+		if e.IsDir() && e.Name() != DirFoldResults && e.Name() != DirFigures {
+			if _, err := os.Stat(filepath.Join(dir, e.Name(), FileComparison)); err == nil {
+				out = append(out, filepath.Join(dir, e.Name()))
+			}
+		}
+	}
+	sort.Strings(out)
+	if len(out) == 0 {
+		return nil, fmt.Errorf("%s: %s is there but no recording folder with %s", dir, FilePerRecording, FileComparison)
+	}
+	return out, nil
+}
+
+// FoldResult is what one unit of a comparison (a model on a fold of a
+// recording) writes under fold_results/.
+type FoldResult struct {
+	ID     string
+	Model  string
+	Fold   int
+	Scores []eval.Scores
+	Curves []float64
+	Epochs int
+}
+
+// FoldResultPath is where the unit with the given id (recording/model/
+// fold<k>, slash-separated) keeps its result.
+func FoldResultPath(dir, id string) string {
+	return filepath.Join(dir, DirFoldResults, filepath.FromSlash(id)+".gob")
+}
+
+// HasFoldResult reports whether a unit's result is on disk.
+func HasFoldResult(dir, id string) bool {
+	_, err := os.Stat(FoldResultPath(dir, id))
+	return err == nil
+}
+
+// WriteFoldResult writes a unit's result atomically.
+func WriteFoldResult(dir string, r *FoldResult) error {
+	path := FoldResultPath(dir, r.ID)
+	if err := mkdir(filepath.Dir(path)); err != nil {
+		return err
+	}
+	return WriteFile(path, func(w io.Writer) error { return gob.NewEncoder(w).Encode(r) })
+}
+
+// ReadFoldResult reads a unit's result.
+func ReadFoldResult(dir, id string) (*FoldResult, error) {
+	path := FoldResultPath(dir, id)
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	var r FoldResult
+	if err := gob.NewDecoder(f).Decode(&r); err != nil {
+		return nil, fmt.Errorf("%s: %w (delete it and run its array task again)", path, err)
+	}
+	return &r, nil
+}

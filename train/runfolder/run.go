@@ -1,0 +1,598 @@
+package runfolder
+
+import (
+	"encoding/csv"
+	"encoding/gob"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"runtime"
+	"strconv"
+	"time"
+
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
+	"github.com/strialab/stria/nn"
+	"github.com/strialab/stria/train"
+)
+
+// Run folder file names.
+const (
+	FileSettings     = "settings.yaml"        // the resolved settings (also in comparison folders)
+	FileManifest     = "model.json"           // Manifest
+	FileFilters      = "filters.npy"          // first-layer filters, channels x taps
+	FileNeuronScores = "neuron_scores.csv"    // one row per neuron
+	FileSummary      = "summary.json"         // Summary
+	FileHistory      = "training_history.csv" // one row per epoch
+	FileSplit        = "split.json"           // SplitInfo
+	FileResume       = "resume_state.gob"     // train.Checkpoint of an unfinished fit
+	DirParameters    = "parameters"           // one .npy per parameter array
+	DirFigures       = "figures"              // figures and their arrays (stria export)
+	FileReport       = "report.html"          // stria report
+)
+
+// Array names an .npy file of the run folder and its shape.
+type Array struct {
+	File  string `json:"file"`
+	Shape []int  `json:"shape"`
+}
+
+// LayerInfo describes one conv layer in the manifest.
+type LayerInfo struct {
+	Channels int       `json:"channels"`
+	Kernel   int       `json:"kernel"`
+	Stride   int       `json:"stride"`
+	Border   nn.Border `json:"border"`
+	OutLen   int       `json:"out_len"`
+}
+
+// Manifest is model.json: what is needed to rebuild the model and read its
+// arrays. Created is the only time field.
+type Manifest struct {
+	Format   string            `json:"format"`
+	Stria    string            `json:"stria_version"`
+	Go       string            `json:"go_version"`
+	Created  string            `json:"created"`
+	Seed     uint64            `json:"seed"`
+	Axis     AxisInfo          `json:"axis"`
+	Layers   []LayerInfo       `json:"layers"`
+	Output   nn.Activation     `json:"output"`
+	Loss     train.Loss        `json:"loss"`
+	Neurons  int               `json:"neurons"`
+	Features int               `json:"features"`
+	Arrays   map[string]Array  `json:"arrays"`
+	ZScore   bool              `json:"zscore"`
+	Names    []string          `json:"neuron_names,omitempty"`
+	Trials   map[string]int    `json:"trials"`
+	Sources  map[string]string `json:"sources"`
+}
+
+// AxisInfo is the stimulus axis as recorded in a run or comparison.
+type AxisInfo struct {
+	Name     string         `json:"name"`
+	Unit     string         `json:"unit"`
+	Min      float64        `json:"min"`
+	Max      float64        `json:"max"`
+	Periodic bool           `json:"periodic"`
+	Bins     int            `json:"bins"`
+	Encoding train.Encoding `json:"encoding"`
+	Edges    []float64      `json:"bin_edges"`
+	Centers  []float64      `json:"bin_centers"`
+}
+
+// DataAxis is the axis as a data.Axis.
+func (a AxisInfo) DataAxis() data.Axis {
+	return data.Axis{Name: a.Name, Unit: a.Unit, Min: a.Min, Max: a.Max, Periodic: a.Periodic, Bins: a.Bins}
+}
+
+// AxisOf records the axis of a prepared recording.
+func AxisOf(p *train.Prepared) AxisInfo {
+	return AxisInfo{Name: p.Axis.Name, Unit: p.Axis.Unit, Min: p.Axis.Min, Max: p.Axis.Max, Periodic: p.Axis.Periodic,
+		Bins: p.NBins, Encoding: p.Cfg.Axis.Encoding, Edges: p.Axis.Edges(), Centers: p.Axis.Centers()}
+}
+
+// SplitInfo is split.json: the trial indices (0-based) of each part and
+// every trial's condition (bin).
+type SplitInfo struct {
+	Train []int `json:"train"`
+	Val   []int `json:"validation"`
+	Test  []int `json:"test"`
+	Cond  []int `json:"condition"`
+}
+
+// Spread is the median and quartiles of a per-neuron column over the
+// scored neurons; NaN counts the neurons where the column is undefined.
+type Spread struct {
+	Median Num `json:"median"`
+	Q1     Num `json:"q1"`
+	Q3     Num `json:"q3"`
+	N      int `json:"n"`
+	NaN    int `json:"nan"`
+}
+
+// spreadOf converts eval's summary; nanOffset is subtracted from its NaN
+// count (neurons excluded from every score are not undefined scores).
+func spreadOf(s eval.Summary, nanOffset int) Spread {
+	return Spread{Median: Num(s.Median), Q1: Num(s.Q1), Q3: Num(s.Q3), N: s.N, NaN: s.NaN - nanOffset}
+}
+
+// Summary is summary.json.
+type Summary struct {
+	Neurons     int               `json:"neurons"`
+	Scored      int               `json:"neurons_scored"`
+	Excluded    int               `json:"neurons_excluded"`
+	NoSignal    int               `json:"neurons_no_signal_power"`
+	Medians     map[string]Num    `json:"medians"`
+	Spread      map[string]Spread `json:"spread"`
+	TestTrials  int               `json:"test_trials"`
+	BestEpoch   int               `json:"best_epoch"`
+	Epochs      int               `json:"epochs"`
+	Stop        string            `json:"stop"`
+	WallSeconds float64           `json:"wall_seconds"`
+	// Solver is the solver that ran (auto resolved).
+	Solver string `json:"solver"`
+	// ReadoutL2 is the readout penalty: the config's number, or the one
+	// chosen from the data (its spread over neurons when chosen per
+	// neuron; the values are in parameters/readout_l2.npy).
+	ReadoutL2 PenaltyInfo `json:"readout_l2"`
+	Cautions  []string    `json:"cautions"`
+	Warnings    []string          `json:"warnings"`
+}
+
+// ScoreColumns are the per-neuron score columns of neuron_scores.csv and
+// fold_scores.csv, in order.
+var ScoreColumns = []string{"test_r2", "test_r", "explainable_fraction", "fev", "cc_abs", "cc_max", "cc_norm", "spe", "split_half"}
+
+// ScoreValues returns s's values in the order of ScoreColumns.
+func ScoreValues(s eval.Scores) []float64 {
+	return []float64{s.TestR2, s.TestR, s.ExplainableFraction, s.FEV, s.CCAbs, s.CCMax, s.CCNorm, s.SPE, s.SplitHalf}
+}
+
+// Summarize builds the summary of per-neuron scores; excluded neurons are
+// left out of the medians.
+func Summarize(scores []eval.Scores, excluded map[int]string) Summary {
+	s := Summary{Neurons: len(scores), Excluded: len(excluded), Medians: map[string]Num{}, Spread: map[string]Spread{}}
+	cols := make([][]float64, len(ScoreColumns))
+	for j, sc := range scores {
+		if _, ok := excluded[j]; ok {
+			continue
+		}
+		s.Scored++
+		if !(sc.SP > 0) {
+			s.NoSignal++
+		}
+		for k, v := range ScoreValues(sc) {
+			cols[k] = append(cols[k], v)
+		}
+	}
+	for k, name := range ScoreColumns {
+		sm := eval.Summarize(cols[k])
+		s.Medians[name] = Num(sm.Median)
+		s.Spread[name] = spreadOf(sm, 0)
+	}
+	s.Cautions = train.Cautions
+	return s
+}
+
+// NeuronScores is neuron_scores.csv: one row per neuron with its name
+// (empty when the recording names none), its scores (NaN for an excluded
+// neuron) and the reason it was excluded (empty when scored).
+type NeuronScores struct {
+	Names []string
+	// Cols[k][j] is column ScoreColumns[k] of neuron j.
+	Cols     [][]float64
+	Excluded []string
+}
+
+// Col returns the column called name, or nil.
+func (t *NeuronScores) Col(name string) []float64 {
+	for k, c := range ScoreColumns {
+		if c == name {
+			return t.Cols[k]
+		}
+	}
+	return nil
+}
+
+// NewNeuronScores builds the table of a fit's scores.
+func NewNeuronScores(names []string, scores []eval.Scores, excluded map[int]string) *NeuronScores {
+	n := len(scores)
+	t := &NeuronScores{Names: make([]string, n), Cols: make([][]float64, len(ScoreColumns)), Excluded: make([]string, n)}
+	for k := range t.Cols {
+		t.Cols[k] = make([]float64, n)
+	}
+	for j, sc := range scores {
+		if names != nil {
+			t.Names[j] = names[j]
+		}
+		why, ex := excluded[j]
+		t.Excluded[j] = why
+		for k, v := range ScoreValues(sc) {
+			if ex {
+				v = math.NaN()
+			}
+			t.Cols[k][j] = v
+		}
+	}
+	return t
+}
+
+// WriteNeuronScores writes neuron_scores.csv into dir.
+func WriteNeuronScores(dir string, t *NeuronScores) error {
+	path := filepath.Join(dir, FileNeuronScores)
+	header := append(append([]string{"neuron", "name"}, ScoreColumns...), "excluded")
+	return writeCSV(path, header, func(cw *csv.Writer) error {
+		row := make([]string, len(header))
+		for j := range t.Names {
+			row[0], row[1] = strconv.Itoa(j), t.Names[j]
+			for k := range ScoreColumns {
+				row[2+k] = g8(t.Cols[k][j])
+			}
+			row[len(row)-1] = t.Excluded[j]
+			if err := cw.Write(row); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+}
+
+// ReadNeuronScores reads neuron_scores.csv of dir; n is the number of
+// neurons expected (from model.json), or -1 for any.
+func ReadNeuronScores(dir string, n int) (*NeuronScores, error) {
+	path := filepath.Join(dir, FileNeuronScores)
+	tb, err := readTable(path)
+	if err != nil {
+		return nil, err
+	}
+	if n >= 0 && len(tb.rows) != n {
+		return nil, fmt.Errorf("%s: %d neuron rows, want %d (%s)", path, len(tb.rows), n, FileManifest)
+	}
+	n = len(tb.rows)
+	kc, err := tb.cols(ScoreColumns...)
+	if err != nil {
+		return nil, err
+	}
+	fixed, err := tb.cols("neuron", "name", "excluded")
+	if err != nil {
+		return nil, err
+	}
+	t := &NeuronScores{Names: make([]string, n), Cols: make([][]float64, len(ScoreColumns)), Excluded: make([]string, n)}
+	for k := range t.Cols {
+		t.Cols[k] = make([]float64, n)
+	}
+	for i, r := range tb.rows {
+		j, err := tb.int(i, fixed[0])
+		if err != nil {
+			return nil, err
+		}
+		if j != i {
+			return nil, fmt.Errorf("%s: line %d: neuron %d, want %d (rows in neuron order)", path, i+2, j, i)
+		}
+		t.Names[i], t.Excluded[i] = r[fixed[1]], r[fixed[2]]
+		for q, k := range kc {
+			if t.Cols[q][i], err = tb.float(i, k); err != nil {
+				return nil, err
+			}
+		}
+	}
+	return t, nil
+}
+
+// historyHeader is the header of training_history.csv.
+var historyHeader = []string{"epoch", "train_loss", "val_loss", "val_r2", "seconds"}
+
+// WriteHistory writes training_history.csv into dir, one row per epoch.
+func WriteHistory(dir string, log []train.EpochLog) error {
+	path := filepath.Join(dir, FileHistory)
+	return writeCSV(path, historyHeader, func(cw *csv.Writer) error {
+		for _, e := range log {
+			err := cw.Write([]string{strconv.Itoa(e.Epoch), strconv.FormatFloat(e.TrainLoss, 'g', 10, 64), strconv.FormatFloat(e.ValLoss, 'g', 10, 64),
+				strconv.FormatFloat(e.ValR2, 'g', 6, 64), strconv.FormatFloat(e.Seconds, 'f', 4, 64)})
+			if err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+}
+
+// ReadHistory reads training_history.csv of dir.
+func ReadHistory(dir string) ([]train.EpochLog, error) {
+	path := filepath.Join(dir, FileHistory)
+	tb, err := readTable(path)
+	if err != nil {
+		return nil, err
+	}
+	k, err := tb.cols(historyHeader...)
+	if err != nil {
+		return nil, err
+	}
+	log := make([]train.EpochLog, len(tb.rows))
+	for i := range tb.rows {
+		var v [5]float64
+		for q := 1; q < 5; q++ {
+			if v[q], err = tb.float(i, k[q]); err != nil {
+				return nil, err
+			}
+		}
+		ep, err := tb.int(i, k[0])
+		if err != nil {
+			return nil, err
+		}
+		log[i] = train.EpochLog{Epoch: ep, TrainLoss: v[1], ValLoss: v[2], ValR2: v[3], Seconds: v[4]}
+	}
+	return log, nil
+}
+
+// WriteModel writes the part of the run folder that does not depend on the
+// scores: the resolved settings, the manifest, the parameters, the
+// filters, the split and the training history. It reads nothing the
+// scoring changes, so it may run while the test trials are scored.
+func WriteModel(dir string, p *train.Prepared, f *train.Fitted) error {
+	if err := mkdir(filepath.Join(dir, DirParameters)); err != nil {
+		return err
+	}
+	cfgYAML, err := p.Cfg.Marshal()
+	if err != nil {
+		return err
+	}
+	if err := WriteBytes(filepath.Join(dir, FileSettings), cfgYAML); err != nil {
+		return err
+	}
+	net := f.Net
+	m := Manifest{
+		Format: FormatRun, Stria: Version, Go: runtime.Version(), Created: time.Now().UTC().Format(time.RFC3339),
+		Seed: p.Cfg.Seed, Output: p.Cfg.Model.Output, Loss: p.Cfg.Model.Loss,
+		Neurons: net.Neurons, Features: net.Features(), Arrays: map[string]Array{}, ZScore: p.Norm != nil,
+		Names:   p.Rec.Neurons,
+		Trials:  map[string]int{"train": len(p.Train), "validation": len(p.Val), "test": len(p.Test)},
+		Sources: map[string]string{"responses": p.Rec.Source.Responses, "stimulus": p.Rec.Source.Stimulus},
+		Axis:    AxisOf(p),
+	}
+	in := net.In
+	for i, c := range net.Convs {
+		m.Layers = append(m.Layers, LayerInfo{Channels: c.Out, Kernel: c.K, Stride: c.Stride, Border: c.Border, OutLen: net.OutLen(i)})
+		if err := saveArray(dir, &m, fmt.Sprintf("conv%d_weight", i), []int{c.Out, in, c.K}, net.ConvW(i)); err != nil {
+			return err
+		}
+		if err := saveArray(dir, &m, fmt.Sprintf("conv%d_bias", i), []int{c.Out}, net.ConvB(i)); err != nil {
+			return err
+		}
+		in = c.Out
+	}
+	if err := saveArray(dir, &m, "readout_weight", []int{net.Neurons, net.Features()}, net.ReadW()); err != nil {
+		return err
+	}
+	if err := saveArray(dir, &m, "readout_bias", []int{net.Neurons}, net.ReadB()); err != nil {
+		return err
+	}
+	if p.Norm != nil {
+		if err := saveArray(dir, &m, "norm_mean", []int{net.Neurons}, p.Norm.Mean); err != nil {
+			return err
+		}
+		if err := saveArray(dir, &m, "norm_scale", []int{net.Neurons}, p.Norm.Scale); err != nil {
+			return err
+		}
+	}
+	if f.ReadoutL2 != nil {
+		if err := saveArray(dir, &m, "readout_l2", []int{net.Neurons}, f.ReadoutL2); err != nil {
+			return err
+		}
+	}
+	c0 := net.Convs[0]
+	if err := data.WriteNPY64(filepath.Join(dir, FileFilters), []int{c0.Out * net.In, c0.K}, net.ConvW(0)); err != nil {
+		return err
+	}
+	if err := WriteJSON(filepath.Join(dir, FileManifest), m); err != nil {
+		return err
+	}
+	if err := WriteJSON(filepath.Join(dir, FileSplit), SplitInfo{Train: p.Train, Val: p.Val, Test: p.Test, Cond: p.Cond}); err != nil {
+		return err
+	}
+	return WriteHistory(dir, f.Log)
+}
+
+// WriteResults writes neuron_scores.csv and summary.json from the scores of
+// the test trials; wall is the time the fit took up to the scores. It
+// does not finish the folder: call Finish after it.
+func WriteResults(dir string, p *train.Prepared, f *train.Fitted, scores []eval.Scores, wall time.Duration) (*Summary, error) {
+	ex := train.ExcludedNeurons(p)
+	if err := WriteNeuronScores(dir, NewNeuronScores(p.Rec.Neurons, scores, ex)); err != nil {
+		return nil, err
+	}
+	sum := Summarize(scores, ex)
+	sum.TestTrials = len(p.Test)
+	sum.BestEpoch, sum.Epochs, sum.Stop = f.BestEpoch, len(f.Log), f.Stop
+	sum.WallSeconds = wall.Seconds()
+	sum.Solver = f.Solver.String()
+	sum.ReadoutL2 = penaltyInfo(p.Cfg.Model.ReadoutL2, f.ReadoutL2)
+	sum.Warnings = p.Report.Warnings
+	if err := WriteJSON(filepath.Join(dir, FileSummary), sum); err != nil {
+		return nil, err
+	}
+	return &sum, nil
+}
+
+// PenaltyInfo records the readout penalty of a fit in summary.json.
+type PenaltyInfo struct {
+	// Setting is the config's model.readout_l2: auto or a number.
+	Setting string `json:"setting"`
+	// Chosen is the penalty used (the median over neurons when chosen per
+	// neuron); Q1 and Q3 its quartiles over neurons.
+	Chosen Num `json:"chosen"`
+	Q1     Num `json:"q1"`
+	Q3     Num `json:"q3"`
+}
+
+func penaltyInfo(setting train.Penalty, chosen []float64) PenaltyInfo {
+	pi := PenaltyInfo{Setting: setting.String(), Chosen: Num(setting.Value), Q1: Num(setting.Value), Q3: Num(setting.Value)}
+	if chosen != nil {
+		s := eval.Summarize(chosen)
+		pi.Chosen, pi.Q1, pi.Q3 = Num(s.Median), Num(s.Q1), Num(s.Q3)
+	}
+	return pi
+}
+
+func saveArray(dir string, m *Manifest, name string, shape []int, v []float64) error {
+	rel := filepath.Join(DirParameters, name+".npy")
+	m.Arrays[name] = Array{File: filepath.ToSlash(rel), Shape: shape}
+	return data.WriteNPY64(filepath.Join(dir, rel), shape, v)
+}
+
+// ReadManifest reads model.json.
+func ReadManifest(dir string) (*Manifest, error) {
+	path := filepath.Join(dir, FileManifest)
+	var m Manifest
+	if err := readJSON(path, &m); err != nil {
+		if errNotExist(err) {
+			return nil, fmt.Errorf("%s is not a stria run folder: %w", dir, err)
+		}
+		return nil, err
+	}
+	if m.Format != FormatRun {
+		return nil, fmt.Errorf("%s: format %q, want %s", path, m.Format, FormatRun)
+	}
+	return &m, nil
+}
+
+// ReadSummary reads summary.json.
+func ReadSummary(dir string) (*Summary, error) {
+	var s Summary
+	if err := readJSON(filepath.Join(dir, FileSummary), &s); err != nil {
+		return nil, err
+	}
+	return &s, nil
+}
+
+// ReadSplit reads split.json.
+func ReadSplit(dir string) (*SplitInfo, error) {
+	var s SplitInfo
+	if err := readJSON(filepath.Join(dir, FileSplit), &s); err != nil {
+		return nil, err
+	}
+	return &s, nil
+}
+
+// ReadSettings returns the bytes of settings.yaml.
+func ReadSettings(dir string) ([]byte, error) {
+	return os.ReadFile(filepath.Join(dir, FileSettings))
+}
+
+// LoadSettings reads and checks settings.yaml of a run or comparison
+// folder; relative data paths in it are relative to the folder.
+func LoadSettings(dir string) (*train.Config, error) {
+	return train.LoadConfig(filepath.Join(dir, FileSettings))
+}
+
+// Model is a trained encoder loaded back from a run folder, with its
+// manifest.
+type Model struct {
+	Dir      string
+	Manifest Manifest
+	*train.Model
+}
+
+// LoadModel reads model.json and the parameters of a finished run folder.
+// It refuses a folder without complete.json.
+func LoadModel(dir string) (*Model, error) {
+	mf, err := ReadManifest(dir)
+	if err != nil {
+		return nil, err
+	}
+	if err := CheckComplete(dir, KindRun); err != nil {
+		return nil, err
+	}
+	path := filepath.Join(dir, FileManifest)
+	shape := nn.Shape{In: 1, Length: mf.Axis.Bins, Neurons: mf.Neurons}
+	// The words of borders, output and encoding were checked when
+	// model.json was read (their UnmarshalText).
+	for i, l := range mf.Layers {
+		if l.Channels < 1 || l.Kernel < 1 || l.Stride < 1 {
+			return nil, fmt.Errorf("%s: layers[%d] has a bad shape", path, i)
+		}
+		shape.Convs = append(shape.Convs, nn.ConvSpec{Out: l.Channels, K: l.Kernel, Stride: l.Stride, Border: l.Border})
+	}
+	shape.Output = mf.Output
+	if len(shape.Convs) == 0 || mf.Axis.Bins < 1 || mf.Neurons < 1 {
+		return nil, fmt.Errorf("%s: no layers, bins or neurons", path)
+	}
+	net := nn.NewNet(shape)
+	m := &Model{Dir: dir, Manifest: *mf, Model: &train.Model{Net: net, Axis: mf.Axis.DataAxis(), Soft: mf.Axis.Encoding == train.Soft}}
+	read := func(name string, want int) ([]float64, error) {
+		a, ok := mf.Arrays[name]
+		if !ok {
+			return nil, fmt.Errorf("%s: no array %q", path, name)
+		}
+		file := filepath.Join(dir, filepath.FromSlash(a.File))
+		_, v, err := data.ReadArray(file)
+		if err != nil {
+			return nil, err
+		}
+		if len(v) != want {
+			return nil, fmt.Errorf("%s: %d values, want %d", file, len(v), want)
+		}
+		return v, nil
+	}
+	// The parameters, layer by layer, into nn's flat layout.
+	type part struct {
+		name string
+		dst  []float64
+	}
+	var parts []part
+	for i := range net.Convs {
+		parts = append(parts, part{fmt.Sprintf("conv%d_weight", i), net.ConvW(i)}, part{fmt.Sprintf("conv%d_bias", i), net.ConvB(i)})
+	}
+	parts = append(parts, part{"readout_weight", net.ReadW()}, part{"readout_bias", net.ReadB()})
+	for _, pt := range parts {
+		v, err := read(pt.name, len(pt.dst))
+		if err != nil {
+			return nil, err
+		}
+		copy(pt.dst, v)
+	}
+	if mf.ZScore {
+		if m.Mean, err = read("norm_mean", mf.Neurons); err != nil {
+			return nil, err
+		}
+		if m.Scale, err = read("norm_scale", mf.Neurons); err != nil {
+			return nil, err
+		}
+	}
+	return m, nil
+}
+
+// SaveResumeState writes the training state of an unfinished fit into the
+// run folder (resume_state.gob).
+func SaveResumeState(dir string, c *train.Checkpoint) error {
+	if err := mkdir(dir); err != nil {
+		return err
+	}
+	return WriteFile(filepath.Join(dir, FileResume), func(w io.Writer) error { return gob.NewEncoder(w).Encode(c) })
+}
+
+// LoadResumeState reads resume_state.gob of a run folder.
+func LoadResumeState(dir string) (*train.Checkpoint, error) {
+	path := filepath.Join(dir, FileResume)
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	var c train.Checkpoint
+	if err := gob.NewDecoder(f).Decode(&c); err != nil {
+		return nil, fmt.Errorf("%s: %w", path, err)
+	}
+	return &c, nil
+}
+
+// RemoveResumeState deletes resume_state.gob once the fit has finished.
+func RemoveResumeState(dir string) error {
+	err := os.Remove(filepath.Join(dir, FileResume))
+	if err != nil && !errNotExist(err) {
+		return err
+	}
+	return nil
+}

@@ -1,0 +1,607 @@
+package runfolder
+
+import (
+	"bytes"
+	"context"
+	"encoding/csv"
+	"encoding/json"
+	"errors"
+	"io"
+	"io/fs"
+	"math"
+	"os"
+	"path/filepath"
+	"slices"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
+	"github.com/strialab/stria/eval/tuning"
+	"github.com/strialab/stria/train"
+)
+
+// oddNames are neuron and model names that a hand-made CSV writer gets
+// wrong: commas, quotes, newlines, a leading space and non-ASCII text.
+var oddNames = []string{`cell "A"`, "a,b", "line\nbreak", " lead", "Zelle ü", "細胞", `"`, "", "tab\there", "crlf\r\nend", "plain"}
+
+// fileModes returns the mode of every file and folder under dir.
+func fileModes(t *testing.T, dir string) map[string]fs.FileMode {
+	t.Helper()
+	m := map[string]fs.FileMode{}
+	filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
+		if err != nil {
+			t.Fatal(err)
+		}
+		info, err := d.Info()
+		if err != nil {
+			t.Fatal(err)
+		}
+		rel, _ := filepath.Rel(dir, p)
+		m[rel] = info.Mode()
+		return nil
+	})
+	return m
+}
+
+// checkFolder checks modes (files 0644, folders 0755) and that no
+// temporary file is left.
+func checkFolder(t *testing.T, dir string) {
+	t.Helper()
+	for rel, mode := range fileModes(t, dir) {
+		if strings.Contains(rel, ".tmp") {
+			t.Errorf("temporary file %s left", rel)
+		}
+		want := FileMode
+		if mode.IsDir() {
+			want = FolderMode | fs.ModeDir
+		}
+		if rel != "." && mode != want {
+			t.Errorf("%s has mode %v, want %v", rel, mode, want)
+		}
+	}
+}
+
+// sameFolders compares every file of a and b byte for byte; complete.json
+// is compared without its time.
+func sameFolders(t *testing.T, a, b string) {
+	t.Helper()
+	files := func(dir string) []string {
+		var out []string
+		filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
+			if err == nil && !d.IsDir() {
+				rel, _ := filepath.Rel(dir, p)
+				out = append(out, rel)
+			}
+			return nil
+		})
+		return out
+	}
+	fa, fb := files(a), files(b)
+	if !slices.Equal(fa, fb) {
+		t.Fatalf("files differ:\n%v\n%v", fa, fb)
+	}
+	for _, rel := range fa {
+		x, _ := os.ReadFile(filepath.Join(a, rel))
+		y, _ := os.ReadFile(filepath.Join(b, rel))
+		if filepath.Base(rel) == FileComplete {
+			x, y = withoutTime(t, x), withoutTime(t, y)
+		}
+		if !bytes.Equal(x, y) {
+			t.Errorf("%s differs after reading back and writing again:\n%.300s\n---\n%.300s", rel, x, y)
+		}
+	}
+}
+
+func withoutTime(t *testing.T, b []byte) []byte {
+	var c Complete
+	if err := json.Unmarshal(b, &c); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := time.Parse(time.RFC3339, c.Finished); err != nil {
+		t.Errorf("complete.json finished %q: %v", c.Finished, err)
+	}
+	c.Finished = ""
+	out, _ := json.Marshal(c)
+	return out
+}
+
+// readAllCSV parses a file with encoding/csv, failing the test if it does
+// not parse.
+func readAllCSV(t *testing.T, path string) [][]string {
+	t.Helper()
+	f, err := os.Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	rows, err := csv.NewReader(f).ReadAll()
+	if err != nil {
+		t.Fatalf("%s does not parse as CSV: %v", path, err)
+	}
+	return rows
+}
+
+func TestWriteFile(t *testing.T) {
+	dir := t.TempDir()
+	path := filepath.Join(dir, "x.txt")
+	if err := WriteBytes(path, []byte("one")); err != nil {
+		t.Fatal(err)
+	}
+	// A failed write leaves the old content and no temporary file.
+	boom := errors.New("boom")
+	err := WriteFile(path, func(w io.Writer) error {
+		w.Write([]byte("half"))
+		return boom
+	})
+	if !errors.Is(err, boom) || !strings.Contains(err.Error(), path) {
+		t.Errorf("failed write: %v, want boom naming %s", err, path)
+	}
+	if b, _ := os.ReadFile(path); string(b) != "one" {
+		t.Errorf("after a failed write the file holds %q, want %q", b, "one")
+	}
+	// Mode 0644 whatever the umask lets os.CreateTemp choose (0600).
+	if err := MakeFolder(filepath.Join(dir, "sub", "deeper")); err != nil {
+		t.Fatal(err)
+	}
+	if err := WriteJSON(filepath.Join(dir, "sub", "deeper", "v.json"), map[string]Num{"nan": Num(math.NaN()), "one": 1}); err != nil {
+		t.Fatal(err)
+	}
+	checkFolder(t, dir)
+	b, _ := os.ReadFile(filepath.Join(dir, "sub", "deeper", "v.json"))
+	if want := "{\n  \"nan\": null,\n  \"one\": 1\n}\n"; string(b) != want {
+		t.Errorf("JSON %q, want %q", b, want)
+	}
+	// An error opening the folder names the file.
+	bad := filepath.Join(dir, "no-such-folder", "y.csv")
+	if err := WriteTable(bad, []string{"a"}, nil); err == nil || !strings.Contains(err.Error(), bad) {
+		t.Errorf("write into a missing folder: %v, want an error naming %s", err, bad)
+	}
+}
+
+func TestNeuronScoresOddNames(t *testing.T) {
+	n := len(oddNames)
+	scores := make([]eval.Scores, n)
+	for j := range scores {
+		scores[j] = eval.Scores{TestR2: float64(j) / 7, TestR: -1e-9 * float64(j), ExplainableFraction: math.NaN(), FEV: math.Inf(1),
+			CCAbs: 0.5, CCMax: 1.0 / 3, CCNorm: math.Inf(-1), SPE: 12345.678901234, SplitHalf: 1e300}
+	}
+	ex := map[int]string{2: "constant response over all trials", 4: `odd, "why"` + "\n"}
+	dir := t.TempDir()
+	path := filepath.Join(dir, FileNeuronScores)
+	want := NewNeuronScores(oddNames, scores, ex)
+	if err := WriteNeuronScores(dir, want); err != nil {
+		t.Fatal(err)
+	}
+	// encoding/csv reads every row with the names intact.
+	rows := readAllCSV(t, path)
+	if len(rows) != n+1 {
+		t.Fatalf("%d rows, want %d", len(rows), n+1)
+	}
+	for j, name := range oddNames {
+		if rows[j+1][1] != strings.ReplaceAll(name, "\r\n", "\n") {
+			t.Errorf("row %d name %q, want %q", j, rows[j+1][1], name)
+		}
+	}
+	got, err := ReadNeuronScores(dir, n)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// encoding/csv turns \r\n inside a quoted field into \n (RFC 4180
+	// readers differ here); every other name reads back unchanged.
+	for j := range oddNames {
+		if w := strings.ReplaceAll(want.Names[j], "\r\n", "\n"); got.Names[j] != w || got.Excluded[j] != want.Excluded[j] {
+			t.Errorf("neuron %d: name %q excluded %q, want %q %q", j, got.Names[j], got.Excluded[j], w, want.Excluded[j])
+		}
+	}
+	// Scores read back to 8 significant digits; an excluded neuron is NaN.
+	for k, c := range ScoreColumns {
+		for j := 0; j < n; j++ {
+			g, w := got.Cols[k][j], want.Cols[k][j]
+			if _, isEx := ex[j]; isEx && !math.IsNaN(g) {
+				t.Errorf("%s of excluded neuron %d = %v, want NaN", c, j, g)
+			}
+			if !(g == w || math.IsNaN(g) && math.IsNaN(w) || math.Abs(g-w) <= 5e-8*math.Abs(w)) {
+				t.Errorf("%s neuron %d: got %v want %v", c, j, g, w)
+			}
+		}
+	}
+	// Written again from what was read: the same bytes.
+	againDir := t.TempDir()
+	again := filepath.Join(againDir, FileNeuronScores)
+	got.Names = want.Names // the \r\n case: keep the writer's input
+	if err := WriteNeuronScores(againDir, got); err != nil {
+		t.Fatal(err)
+	}
+	a, _ := os.ReadFile(path)
+	b, _ := os.ReadFile(again)
+	if !bytes.Equal(a, b) {
+		t.Errorf("neuron_scores.csv differs after a round trip:\n%s\n---\n%s", a, b)
+	}
+	if _, err := ReadNeuronScores(dir, n+1); err == nil || !strings.Contains(err.Error(), "want 12") {
+		t.Errorf("wrong neuron count: %v", err)
+	}
+}
+
+// smallFit fits a tiny encoder for a few epochs on a synthetic recording
+// whose neurons have odd names; neuron 0 is constant (excluded).
+func smallFit(t *testing.T) (*train.Prepared, *train.Fitted, []eval.Scores) {
+	t.Helper()
+	n := len(oddNames)
+	rec, _, _ := data.Synth(data.SynthConfig{Neurons: n, Trials: 360, Bins: 12, TwoPeakFrac: 0.25, GainSD: 0.1, NoiseSD: 0.5, Seed: 3})
+	rec.Neurons = slices.Clone(oddNames)
+	for i := 0; i < rec.Y.Rows; i++ {
+		rec.Y.Row(i)[0] = 2
+	}
+	cfg := train.Defaults()
+	cfg.Data.Responses = "synthetic"
+	cfg.Axis = train.AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 30, Encoding: train.OneHot}
+	cfg.Split.KeepBlocks = false
+	cfg.Model.Layers = []train.LayerConfig{{Channels: 2, Kernel: 3, Stride: 1}}
+	cfg.Train.MaxEpochs, cfg.Train.Patience = 4, 4
+	if err := cfg.Validate(); err != nil {
+		t.Fatal(err)
+	}
+	p, err := train.PrepareRecording(&cfg, rec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	f, err := train.Fit(context.Background(), p, train.Hooks{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return p, f, train.ScoreFitted(p, f)
+}
+
+func TestRunRoundTrip(t *testing.T) {
+	p, f, scores := smallFit(t)
+	dir := filepath.Join(t.TempDir(), "run")
+	if err := Begin(dir); err != nil {
+		t.Fatal(err)
+	}
+	if err := WriteModel(dir, p, f); err != nil {
+		t.Fatal(err)
+	}
+	sum, err := WriteResults(dir, p, f, scores, 1500*time.Millisecond)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// Readers refuse the folder until complete.json is written.
+	const incomplete = "is incomplete: the fit that wrote it did not finish (no complete.json)"
+	if _, err := LoadModel(dir); err == nil || !strings.Contains(err.Error(), dir+" "+incomplete) {
+		t.Errorf("LoadModel before Finish: %v, want %q", err, incomplete)
+	}
+	if _, err := Open(dir); err == nil || !strings.Contains(err.Error(), incomplete) {
+		t.Errorf("Open before Finish: %v", err)
+	}
+	if _, err := ReadRun(dir); err == nil || !strings.Contains(err.Error(), incomplete) {
+		t.Errorf("ReadRun before Finish: %v", err)
+	}
+	if err := Finish(dir, FormatRun); err != nil {
+		t.Fatal(err)
+	}
+	checkFolder(t, dir)
+	if k, err := Open(dir); k != KindRun || err != nil {
+		t.Errorf("Open: %q %v, want %q", k, err, KindRun)
+	}
+	if sum.Excluded != 1 || sum.Scored != len(oddNames)-1 || sum.WallSeconds != 1.5 {
+		t.Errorf("summary: excluded %d scored %d wall %v", sum.Excluded, sum.Scored, sum.WallSeconds)
+	}
+
+	// Every file reads back, and written again gives the same bytes.
+	r, err := ReadRun(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !slices.Equal(r.Manifest.Names, oddNames) {
+		t.Errorf("manifest names %q, want %q", r.Manifest.Names, oddNames)
+	}
+	if r.NeuronScores.Excluded[0] == "" || r.NeuronScores.Names[1] != "a,b" || r.NeuronScores.Names[0] != `cell "A"` {
+		t.Errorf("neuron_scores.csv read back: names %q excluded %q", r.NeuronScores.Names[:2], r.NeuronScores.Excluded[0])
+	}
+	if len(r.History) != len(f.Log) || r.History[0].Epoch != 1 {
+		t.Errorf("history: %d epochs read, %d written", len(r.History), len(f.Log))
+	}
+	if !slices.Equal(r.Split.Test, p.Test) || !slices.Equal(r.Split.Cond, p.Cond) {
+		t.Error("split.json does not read back")
+	}
+	copyDir := filepath.Join(t.TempDir(), "copy")
+	if err := WriteRun(copyDir, r); err != nil {
+		t.Fatal(err)
+	}
+	if err := Finish(copyDir, FormatRun); err != nil {
+		t.Fatal(err)
+	}
+	sameFolders(t, dir, copyDir)
+	// Settings reload into a config.
+	if _, err := LoadSettings(dir); err != nil {
+		t.Errorf("settings.yaml: %v", err)
+	}
+
+	// The loaded model predicts what the fitted net predicts, in
+	// recording units (the z-scoring undone).
+	m, err := LoadModel(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	pred, err := m.Predict(m.Manifest.Axis.Centers)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := train.PredictConditions(f.Net, p.NBins)
+	n := p.Neurons()
+	for b := 0; b < p.NBins; b++ {
+		for j := 0; j < n; j++ {
+			w := want[b*n+j]
+			if p.Norm != nil {
+				w = w*p.Norm.Scale[j] + p.Norm.Mean[j]
+			}
+			if g := float64(pred.Data[b*n+j]); math.Abs(g-w) > 1e-5*math.Max(1, math.Abs(w)) {
+				t.Fatalf("bin %d neuron %d: loaded model predicts %v, fitted net %v", b, j, g, w)
+			}
+		}
+	}
+
+	// Begin removes the marker of a finished run.
+	if err := Begin(dir); err != nil {
+		t.Fatal(err)
+	}
+	if err := CheckComplete(dir, KindRun); err == nil {
+		t.Error("Begin left complete.json")
+	}
+}
+
+func TestResumeState(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "run")
+	c := &train.Checkpoint{Epoch: 3, Params: []float64{1, math.NaN(), 3}, RNG: []byte{1, 2}, Log: []train.EpochLog{{Epoch: 1, TrainLoss: 0.5}}, Config: []byte("seed: 1\n")}
+	if err := SaveResumeState(dir, c); err != nil {
+		t.Fatal(err)
+	}
+	if k, err := Kind(dir); k != KindRun || err != nil {
+		t.Errorf("Kind of an interrupted run: %q %v", k, err)
+	}
+	back, err := LoadResumeState(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if back.Epoch != 3 || len(back.Params) != 3 || !math.IsNaN(back.Params[1]) || string(back.Config) != "seed: 1\n" || back.Log[0].TrainLoss != 0.5 {
+		t.Errorf("resume state read back as %+v", back)
+	}
+	checkFolder(t, dir)
+	if err := RemoveResumeState(dir); err != nil {
+		t.Fatal(err)
+	}
+	if err := RemoveResumeState(dir); err != nil {
+		t.Errorf("removing a missing resume state: %v", err)
+	}
+}
+
+// sampleComparison builds the comparison folder of two models with odd
+// names on n neurons, neuron 1 excluded.
+func sampleComparison(n, nb int) *ComparisonFolder {
+	models := []string{`enc[channels=2,readout_l2=0.1]`, `base "q"`}
+	excluded := make([]string, n)
+	excluded[1] = "constant response over all trials"
+	c := &ComparisonFolder{Settings: []byte("seed: 1\n"), Excluded: excluded, Curves: map[string][]float64{}}
+	c.Result = &Comparison{Models: models, Folds: 2, Neurons: n, Excluded: 1, PerNeuron: map[string]map[string][]float64{},
+		Summary: map[string]map[string]Spread{}, Winner: map[string]string{}}
+	for mi, m := range models {
+		c.Result.PerNeuron[m] = map[string][]float64{}
+		c.Result.Summary[m] = map[string]Spread{}
+		for k, col := range ScoreColumns {
+			v := make([]float64, n)
+			for j := range v {
+				v[j] = math.Sin(float64(1+j*(k+1)+mi)) / 3 // not short in decimal
+			}
+			v[1] = math.NaN()
+			c.Result.PerNeuron[m][col] = v
+		}
+		for _, k := range CompareMetrics {
+			c.Result.Summary[m][k] = spreadOf(eval.Summarize(c.Result.PerNeuron[m][k]), 1)
+		}
+		for f := 0; f < 2; f++ {
+			fs := FoldScores{Model: m, Fold: f, Cols: make([][]float64, len(ScoreColumns))}
+			for k := range fs.Cols {
+				fs.Cols[k] = make([]float64, n)
+				for j := range fs.Cols[k] {
+					fs.Cols[k][j] = math.Cos(float64(j+k+f+mi)) * 0.123456789123
+				}
+				fs.Cols[k][1] = math.NaN()
+			}
+			c.FoldScores = append(c.FoldScores, fs)
+		}
+	}
+	for _, k := range CompareMetrics {
+		c.Result.Winner[k] = models[0]
+		w := eval.WilcoxonSignedRank(c.Result.PerNeuron[models[0]][k], c.Result.PerNeuron[models[1]][k])
+		c.Result.Pairs = append(c.Result.Pairs, PairTest{Metric: k, A: models[0], B: models[1], ShareA: 2.0 / 3, Wilcoxon: w})
+	}
+	centers := make([]float64, nb)
+	for b := range centers {
+		centers[b] = 15 + 30*float64(b)
+	}
+	for _, name := range curveNames(models) {
+		v := make([]float64, nb*n)
+		for i := range v {
+			v[i] = math.Exp(math.Sin(float64(i + len(name))))
+		}
+		c.Curves[name] = v
+	}
+	for _, src := range append([]string{"data"}, models...) {
+		for j := 0; j < n; j++ {
+			r := make([]float64, nb)
+			for b := range r {
+				r[b] = c.Curves[CurveDataMean][b*n+j]
+			}
+			c.Descriptors = append(c.Descriptors, Descriptor{Source: src, Neuron: j, Descriptors: tuning.Describe(r, centers, 360)})
+		}
+	}
+	c.Info = ComparisonInfo{Models: models, Encoders: models[:1], Folds: 2, Neurons: n, Excluded: map[string]string{"1": excluded[1]},
+		Summary: c.Result.Summary, Winner: c.Result.Winner, Pairs: NewPairInfo(c.Result.Pairs), PValues: WilcoxonNote,
+		Cautions: []string{"c"}, Warnings: []string{"w, \"quoted\""}, Axis: AxisInfo{Name: "heading", Unit: "deg", Max: 360, Periodic: true, Bins: nb, Encoding: train.OneHot, Centers: centers},
+		Epochs: map[string][]int{models[0]: {3, 4}}, Recordings: []string{"/data/r.npy"}}
+	return c
+}
+
+func TestComparisonRoundTrip(t *testing.T) {
+	const n, nb = 7, 12
+	c := sampleComparison(n, nb)
+	dir := filepath.Join(t.TempDir(), "cmp")
+	if err := Begin(dir); err != nil {
+		t.Fatal(err)
+	}
+	if err := WriteComparison(dir, c); err != nil {
+		t.Fatal(err)
+	}
+	const incomplete = "is incomplete: the comparison that wrote it did not finish (no complete.json)"
+	if _, err := Open(dir); err == nil || !strings.Contains(err.Error(), incomplete) {
+		t.Errorf("Open before Finish: %v, want %q", err, incomplete)
+	}
+	if err := Finish(dir, FormatComparison); err != nil {
+		t.Fatal(err)
+	}
+	checkFolder(t, dir)
+	if k, err := Open(dir); k != KindComparison || err != nil {
+		t.Errorf("Open: %q %v", k, err)
+	}
+	for _, f := range []string{FileFoldScores, FileFoldAverages, FileModelSummary, FileModelPairs, FileDescriptors} {
+		rows := readAllCSV(t, filepath.Join(dir, f))
+		if len(rows) < 2 {
+			t.Errorf("%s: %d rows", f, len(rows))
+		}
+	}
+	back, err := ReadComparison(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// model_summary.csv and model_pairs.csv hold comparison.json's
+	// numbers to 8 significant digits.
+	spreads, err := ReadSpreadTable(filepath.Join(dir, FileModelSummary))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(spreads) != 2*len(CompareMetrics) {
+		t.Fatalf("%d summary rows", len(spreads))
+	}
+	close8 := func(g, w float64) bool {
+		return g == w || math.IsNaN(g) && math.IsNaN(w) || math.Abs(g-w) <= 5e-8*math.Abs(w)
+	}
+	for _, r := range spreads {
+		w := c.Result.Summary[r.Model][r.Metric]
+		if !close8(float64(r.Median), float64(w.Median)) || !close8(float64(r.Q3), float64(w.Q3)) || r.N != w.N || r.NaN != w.NaN {
+			t.Errorf("model_summary.csv %s %s: %+v, want %+v", r.Model, r.Metric, r.Spread, w)
+		}
+	}
+	pairs, err := ReadPairsTable(filepath.Join(dir, FileModelPairs))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i, pt := range pairs {
+		w := c.Result.Pairs[i]
+		if pt.A != w.A || pt.B != w.B || pt.Metric != w.Metric || !close8(pt.P, w.P) || !close8(pt.ShareA, w.ShareA) || pt.N != w.N || pt.Method != w.Method {
+			t.Errorf("model_pairs.csv row %d: %+v, want %+v", i, pt, w)
+		}
+	}
+	// The fold averages read back exactly.
+	for _, m := range c.Info.Models {
+		for _, col := range ScoreColumns {
+			g, w := back.Result.PerNeuron[m][col], c.Result.PerNeuron[m][col]
+			for j := range w {
+				if g[j] != w[j] && !(math.IsNaN(g[j]) && math.IsNaN(w[j])) {
+					t.Fatalf("%s %s neuron %d: read back %v, wrote %v", m, col, j, g[j], w[j])
+				}
+			}
+		}
+	}
+	if len(back.FoldScores) != 4 || back.FoldScores[3].Model != `base "q"` || back.FoldScores[3].Fold != 1 || back.Excluded[1] == "" {
+		t.Errorf("fold scores read back: %d tables, last %q fold %d", len(back.FoldScores), back.FoldScores[3].Model, back.FoldScores[3].Fold)
+	}
+	again := filepath.Join(t.TempDir(), "again")
+	if err := WriteComparison(again, back); err != nil {
+		t.Fatal(err)
+	}
+	if err := Finish(again, FormatComparison); err != nil {
+		t.Fatal(err)
+	}
+	sameFolders(t, dir, again)
+}
+
+func TestAcrossAndFoldResults(t *testing.T) {
+	dir := t.TempDir()
+	a, b := sampleComparison(5, 4).Result, sampleComparison(6, 4).Result
+	a.Recording, b.Recording = "m1,left", "m2"
+	if err := WriteAcross(dir, NewAcross([]*Comparison{a, b}, a)); err != nil {
+		t.Fatal(err)
+	}
+	rows := readAllCSV(t, filepath.Join(dir, FilePerRecording))
+	// 2 recordings x 2 models x 4 metrics, then 2 models x 4 metrics of
+	// the median over recordings.
+	if len(rows) != 1+16+8 || rows[1][0] != "m1,left" || rows[17][0] != "median of recordings" {
+		t.Errorf("per_recording.csv: %d rows, first %q", len(rows), rows[1])
+	}
+	// Read back and written again: the same bytes.
+	across, err := ReadAcross(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r := across.PerRecording[0]; r.Recording != "m1,left" || r.Model != a.Models[0] || r.Metric != CompareMetrics[0] || r.N != a.Summary[a.Models[0]][CompareMetrics[0]].N {
+		t.Errorf("per_recording.csv row 1 read back as %+v", r)
+	}
+	again := t.TempDir()
+	if err := WriteAcross(again, across); err != nil {
+		t.Fatal(err)
+	}
+	for _, f := range []string{FilePerRecording, FilePooledSummary, FilePooledPairs} {
+		x, _ := os.ReadFile(filepath.Join(dir, f))
+		y, _ := os.ReadFile(filepath.Join(again, f))
+		if !bytes.Equal(x, y) {
+			t.Errorf("%s differs after reading back and writing again", f)
+		}
+	}
+	if k, err := Kind(dir); k != KindMany || err != nil {
+		t.Errorf("Kind: %q %v", k, err)
+	}
+	r := &FoldResult{ID: "m1/enc/fold2", Model: "enc", Fold: 1, Scores: []eval.Scores{{TestR2: 0.5, CCNorm: math.NaN()}}, Curves: []float64{1, 2}, Epochs: 7}
+	if HasFoldResult(dir, r.ID) {
+		t.Error("a result before it was written")
+	}
+	if err := WriteFoldResult(dir, r); err != nil {
+		t.Fatal(err)
+	}
+	got, err := ReadFoldResult(dir, r.ID)
+	if err != nil || !HasFoldResult(dir, r.ID) {
+		t.Fatal(err)
+	}
+	if got.ID != r.ID || got.Epochs != 7 || got.Scores[0].TestR2 != 0.5 || !math.IsNaN(got.Scores[0].CCNorm) || !slices.Equal(got.Curves, r.Curves) {
+		t.Errorf("fold result read back as %+v", got)
+	}
+	os.WriteFile(FoldResultPath(dir, "bad"), []byte("not gob"), 0o644)
+	if _, err := ReadFoldResult(dir, "bad"); err == nil || !strings.Contains(err.Error(), "run its array task again") {
+		t.Errorf("a broken fold result: %v", err)
+	}
+	checkFolder(t, filepath.Join(dir, DirFoldResults, "m1"))
+}
+
+func TestKind(t *testing.T) {
+	dir := t.TempDir()
+	if _, err := Kind(dir); err == nil || !strings.Contains(err.Error(), "neither a run folder") {
+		t.Errorf("empty folder: %v", err)
+	}
+	os.WriteFile(filepath.Join(dir, FileManifest), []byte("{}"), 0o644)
+	if k, err := Kind(dir); k != KindRun || err != nil {
+		t.Errorf("with model.json: %q %v", k, err)
+	}
+	os.WriteFile(filepath.Join(dir, FileComparison), []byte("{}"), 0o644)
+	if k, err := Kind(dir); k != KindComparison || err != nil {
+		t.Errorf("with comparison.json: %q %v", k, err)
+	}
+	if _, err := Kind(filepath.Join(dir, FileManifest)); err == nil || !strings.Contains(err.Error(), "not a folder") {
+		t.Errorf("a file: %v", err)
+	}
+	// A folder of an older stria: named as such, not as unfinished.
+	os.WriteFile(filepath.Join(dir, "config.yaml"), []byte("seed: 1\n"), 0o644)
+	if _, err := Open(dir); err == nil || !strings.Contains(err.Error(), "written by an older stria") {
+		t.Errorf("an old folder: %v", err)
+	}
+}
