@@ -4,6 +4,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"path/filepath"
+	"reflect"
 	"testing"
 
 	"github.com/strialab/stria/data"
@@ -71,11 +72,11 @@ func TestStreamedScoresMatchInMemory(t *testing.T) {
 	want := make([]eval.Scores, N)
 	eval.ScoreConditions(want, y.Data, N, test, cond, pred, B)
 	for j := range want {
-		g := []float64{got[j].TestR2, got[j].TestR, got[j].EVScore, got[j].ExplainableFraction, got[j].FEV, got[j].SP, got[j].CCAbs, got[j].CCMax, got[j].CCNorm, got[j].SPE, got[j].SplitHalf}
-		w := []float64{want[j].TestR2, want[j].TestR, want[j].EVScore, want[j].ExplainableFraction, want[j].FEV, want[j].SP, want[j].CCAbs, want[j].CCMax, want[j].CCNorm, want[j].SPE, want[j].SplitHalf}
-		for k := range g {
-			if math.IsNaN(g[k]) != math.IsNaN(w[k]) || math.Abs(g[k]-w[k]) > 1e-12*math.Abs(w[k]) {
-				t.Fatalf("neuron %d score %d: streamed %v, in memory %v", j, k, g[k], w[k])
+		g, w := reflect.ValueOf(got[j]), reflect.ValueOf(want[j])
+		for k := 0; k < g.NumField(); k++ { // every field of Scores
+			gk, wk := g.Field(k).Float(), w.Field(k).Float()
+			if math.IsNaN(gk) != math.IsNaN(wk) || math.Abs(gk-wk) > 1e-12*math.Abs(wk) {
+				t.Fatalf("neuron %d %s: streamed %v, in memory %v", j, g.Type().Field(k).Name, gk, wk)
 			}
 		}
 	}

@@ -26,11 +26,12 @@ import (
 // the values of the first one, these are exactly the sums ScoreConditions
 // forms, and ScoreSums returns its scores.
 //
-// The per-condition sums of squares are needed (not only their total over
-// conditions): the noise variance is the unweighted mean over conditions
-// of the ddof-1 variances s2_b = (SumSq_b - Sum_b^2/N_b)/(N_b - 1), and
-// SignalPower weights each s2_b by 1/N_b (eval/methods.md §1, §4); with unequal
-// counts neither follows from sum_b SumSq_b.
+// The per-condition sums of squares are needed, not only their total over
+// conditions: the pooled noise variance and the F test need only the
+// within-condition sum of squares sum_b (SumSq_b - Sum_b^2/N_b) and so
+// the total, but SignalPower weights each condition's ddof-1 variance
+// s2_b = (SumSq_b - Sum_b^2/N_b)/(N_b - 1) by 1/N_b (eval/methods.md §1),
+// which with unequal counts does not follow from the total.
 //
 // data.PartStats, accumulated with CondSquares and Halves, has these
 // fields under the same names (and RefCond).
@@ -129,8 +130,7 @@ type condSummary struct {
 	// (sse) and of the centred residual (sseC).
 	M                           float64
 	ssTot, ssP, cYP, sse, sseC  float64
-	noise                       float64 // mean of vars over the conditions with N_b >= 2 (0 if none)
-	nNoise                      int
+	ssw, dfw                    float64   // within-condition sum of squares and its degrees of freedom
 	scratchY, scratchP, scratch []float64 // per condition
 }
 
@@ -198,8 +198,8 @@ func (cs *condSummary) fromSums(h *HeldOutSums, pred []float64, j int) {
 		v := math.NaN()
 		if k >= 2 {
 			v = ssw[c] / float64(k-1)
-			cs.noise += v
-			cs.nNoise++
+			cs.ssw += ssw[c]
+			cs.dfw += float64(k - 1)
 			na := h.CountA[c]
 			sa := h.SumA[c*N+j]
 			cs.hA[cs.kh] = sa / float64(na)
@@ -212,7 +212,7 @@ func (cs *condSummary) fromSums(h *HeldOutSums, pred []float64, j int) {
 }
 
 // scores computes every field of Scores from the summary, as
-// scorer.finish does (eval/methods.md §1-§5).
+// scorer.finish does (eval/methods.md §1-§5; the F test of CheckCeiling).
 func (cs *condSummary) scores() Scores {
 	nan := math.NaN()
 	var out Scores
@@ -228,10 +228,15 @@ func (cs *condSummary) scores() Scores {
 		out.TestR = nan
 	}
 	trialVar := cs.ssTot / cs.M
-	if cs.nNoise > 0 {
-		noise := cs.noise / float64(cs.nNoise)
+	out.SignalF = nan
+	if cs.dfw > 0 {
+		noise := cs.ssw / cs.dfw // PooledNoiseVariance from the sums of squares
 		out.ExplainableFraction = ExplainableFraction(trialVar, noise)
 		out.FEV = FEV(cs.sse/cs.M, trialVar, noise)
+		if cs.k >= 2 {
+			out.SignalF = anovaF(cs.ssTot, cs.ssw, cs.k, cs.dfw)
+			out.SignalDF1, out.SignalDF2 = float64(cs.k-1), cs.dfw
+		}
 	} else {
 		out.ExplainableFraction, out.FEV = nan, nan
 	}
