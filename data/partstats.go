@@ -140,6 +140,23 @@ func (ps *PartStats) Means(dst []float64) []float64 {
 	return dst
 }
 
+// Sums writes the absolute per-condition sums S_bn = Sum_bn + N_b r_n
+// (CondStats.Sum; what the Poisson fast path needs) into dst (B x N;
+// allocated if nil) and returns it; empty conditions give 0. dst may be
+// ps.Sum. It panics like Means.
+func (ps *PartStats) Sums(dst []float64) []float64 {
+	dst = ps.dstBN(dst, "Sums")
+	N := ps.N
+	for b, k := range ps.Count {
+		d := dst[b*N : (b+1)*N]
+		c := float64(k)
+		for n, s := range ps.Sum[b*N : (b+1)*N] {
+			d[n] = s + c*ps.Ref[n]
+		}
+	}
+	return dst
+}
+
 // grandRel writes sum_b Sum_bn / Trials (the grand mean minus Ref) into
 // dst, summing over conditions in ascending order.
 func (ps *PartStats) grandRel(dst []float64) {

@@ -152,6 +152,12 @@ func testAccumulateParts(t *testing.T, T, N int) {
 				if ps.Trials != len(set) {
 					t.Fatalf("part %d Trials = %d, want %d", i, ps.Trials, len(set))
 				}
+				sums := ps.Sums(nil)
+				for k := range sums {
+					if !relClose(sums[k], want.Sum[k], 1e-12) {
+						t.Fatalf("part %d Sums[%d] = %v, want %v", i, k, sums[k], want.Sum[k])
+					}
+				}
 				mean := ps.Means(nil)
 				wmean := want.Mean(nil)
 				for k := range mean {
