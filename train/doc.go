@@ -4,7 +4,9 @@
 // into, the two solvers, and the glue that scores a fit on its test
 // trials; Acuity runs stria acuity's analysis (eval/acuity) on compare's
 // folds. It reads recordings through package data and writes no files;
-// the on-disk format of run and comparison folders lives in
+// the projected solvers live in train/projection (they read condition
+// statistics, not a prepared recording, and plug into this package's
+// epoch loop), the on-disk format of run and comparison folders in
 // train/runfolder, comparisons in train/compare, figures and reports in
 // train/export.
 //
