@@ -25,6 +25,9 @@ func reportCommand() *cli.Command {
 			}
 			dir := c.Args().First()
 			if runfolder.IsAcuity(dir) {
+				if c.String("neurons") != "" || c.String("compare") != "" {
+					return fmt.Errorf("report: %s is an acuity folder; --neurons and --compare apply to run folders only", dir)
+				}
 				path, err := export.WriteAcuityReport(dir, c.String("out"))
 				if err != nil {
 					return err
