@@ -146,7 +146,9 @@ func Acuity(ctx context.Context, p *Prepared, enc *AcuityEncoder, progress Acuit
 		if hi < 2 {
 			return nil, fmt.Errorf("acuity: too few trials for information against population size: the smallest pair of neighbouring conditions allows %d neurons (fewer than TA+TB-3), and half of it is below 2; use wider bins", limit)
 		}
-		sizes = GeometricSizes(5, hi, ac.SizeCount)
+		// From 5 neurons, or from a quarter of the largest size when that
+		// is small, so that the saturation fit sees a range of sizes.
+		sizes = GeometricSizes(min(5, max(1, hi/4)), hi, ac.SizeCount)
 	} else if last := sizes[len(sizes)-1]; last > n || last > limit {
 		return nil, fmt.Errorf("acuity.sizes: the largest size %d is above the %d neurons of the recording or the %d the bias correction allows for the pair with the fewest trials (fewer than TA+TB-3 neurons)", last, n, limit)
 	}
