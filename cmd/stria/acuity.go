@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"os/signal"
 	"syscall"
@@ -110,9 +111,13 @@ func printAcuity(w io.Writer, dir string, f *runfolder.AcuityFolder) {
 			lo.Size, info.Repeats, len(f.Pairs), mean, unit, hi.Info, hi.Stim, unit, hi.Threshold, unit, lo.Info, lo.Stim, unit)
 	}
 	s := info.Saturation
-	if s.Error != "" {
+	switch {
+	case s.Error != "":
 		fmt.Fprintf(w, "saturation fit: none (%s)\n", s.Error)
-	} else {
+	case math.IsInf(float64(s.Asymptote), 1):
+		fmt.Fprintf(w, "saturation fit: a = %.4g per neuron, eps = 0: no saturation detected within the sizes measured (1/eps infinite; 95%% bootstrap interval %.4g to %.4g)\n",
+			float64(s.A), float64(s.Lo), float64(s.Hi))
+	default:
 		fmt.Fprintf(w, "saturation fit: a = %.4g per neuron, eps = %.4g; 1/eps = %.4g /%s^2 (extrapolation; 95%% bootstrap interval %.4g to %.4g)\n",
 			float64(s.A), float64(s.Eps), float64(s.Asymptote), unit, float64(s.Lo), float64(s.Hi))
 	}

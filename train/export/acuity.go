@@ -194,7 +194,10 @@ func AcuitySections(ex *Exported, f *runfolder.AcuityFolder) []report.Section {
 	}
 	sat := info.Saturation
 	satText := "The saturation model could not be fitted: " + sat.Error
-	if sat.Error == "" {
+	if sat.Error == "" && math.IsInf(float64(sat.Asymptote), 1) {
+		satText = fmt.Sprintf("Saturation fit I(N) = a N/(1 + eps a N): a = %s %s per neuron, eps = 0: no saturation detected within the sizes measured, so the asymptotic information 1/eps is infinite (95%% bootstrap interval over the subsets %s to %s, %d resamples); more neurons per subset, which needs more trials per condition, would be needed to see one.",
+			g4(float64(sat.A)), infoUnit, g4(float64(sat.Lo)), g4(float64(sat.Hi)), sat.Boot)
+	} else if sat.Error == "" {
 		satText = fmt.Sprintf("Saturation fit I(N) = a N/(1 + eps a N): a = %s %s per neuron, eps = %s %s²; asymptotic information 1/eps = %s %s (EXTRAPOLATION; 95%% bootstrap interval over the subsets %s to %s, %d resamples), so a threshold of an infinite population of %s %s; rms residual %s %s.",
 			g4(float64(sat.A)), infoUnit, g4(float64(sat.Eps)), unit, g4(float64(sat.Asymptote)), infoUnit, g4(float64(sat.Lo)), g4(float64(sat.Hi)), sat.Boot, g4(1/math.Sqrt(float64(sat.Asymptote))), unit, g4(float64(sat.RMS)), infoUnit)
 	}
