@@ -6,8 +6,8 @@
 //     holding both files' bytes. The package never touches the file system: the
 //     caller (train/export) writes the files and embeds the SVG in the report.
 //   - Sizes are for print. Most figures are single-column, Width x Height =
-//     3.5 x 2.6 in (252 x 187.2 pt); the scatter is 3.5 x 3.3 in so that its data
-//     area is close to square. The SVG carries width and height in pt and a
+//     3.5 x 2.6 in (252 x 187.2 pt); the scatter and the confusion heat map
+//     (acuity.go) are 3.5 x 3.3 in so that their data area is close to square. The SVG carries width and height in pt and a
 //     matching viewBox. The PNG is rendered at DPI = 300 dots per inch, so a
 //     3.5 x 2.6 in figure is 1050 x 780 pixels.
 //   - Text is Liberation Sans (bundled with gonum/plot, metric-compatible with
