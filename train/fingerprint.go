@@ -18,6 +18,7 @@ func (c *Config) NumericSettings() ([]byte, error) {
 	d := *c
 	d.Output = ""
 	d.Compare.Output = ""
+	d.Acuity.Output = ""
 	d.Train.Threads = 0
 	return d.Marshal()
 }
