@@ -677,6 +677,9 @@ type FoldResult struct {
 	Scores []eval.Scores
 	Curves []float64
 	Epochs int
+	// Fingerprint is what the numbers depend on (empty in results of an
+	// older stria).
+	Fingerprint Fingerprint
 }
 
 // FoldResultPath is where the unit with the given id (recording/model/
