@@ -174,9 +174,7 @@ func CheckWritable(dir string) error {
 			}
 			break
 		}
-		if !errNotExist(err) {
-			return fmt.Errorf("output folder %s: %w", dir, err)
-		}
+		// Missing, or under a file (not a directory): look further up.
 		parent := filepath.Dir(d)
 		if parent == d {
 			return fmt.Errorf("output folder %s: no existing parent folder", dir)
