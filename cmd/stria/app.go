@@ -112,6 +112,6 @@ func noArgs(c *cli.Context) error {
 	if c.NArg() == 0 {
 		return nil
 	}
-	return fmt.Errorf("%s takes no arguments, only options (got %q): e.g. stria %s --config FILE; an option after a stray word is not read either",
+	return fmt.Errorf("%s takes no arguments, only options (got %q; an option after it is not read either): see stria %s --help",
 		c.Command.Name, strings.Join(c.Args().Slice(), " "), c.Command.Name)
 }

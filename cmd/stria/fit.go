@@ -57,10 +57,10 @@ type fitOptions struct {
 	// overwrite empties a folder holding an earlier run before the fit
 	// writes into it; without it such a folder is refused.
 	overwrite bool
-	quiet   bool
-	timings bool
-	stdout  io.Writer
-	stderr  io.Writer
+	quiet     bool
+	timings   bool
+	stdout    io.Writer
+	stderr    io.Writer
 }
 
 // runFit loads, trains, scores and writes the run folder.
@@ -89,6 +89,9 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*runfolder.Su
 	var resume *train.Checkpoint
 	if o.resume {
 		resume, err = runfolder.LoadResumeState(dir)
+		if os.IsNotExist(err) {
+			return nil, fmt.Errorf("--resume: %s holds no checkpoint (%s) to continue from", dir, runfolder.FileResume)
+		}
 		if err != nil {
 			return nil, fmt.Errorf("--resume: %w", err)
 		}

@@ -215,7 +215,7 @@ func Holds(dir string) (string, error) {
 	if k, err := Kind(dir); err == nil {
 		return "a " + k + " folder", nil
 	}
-	return fmt.Sprintf("%d files or folders that stria did not write", n), nil
+	return fmt.Sprintf("%d file(s) or folder(s) that stria did not write", n), nil
 }
 
 // Empty removes everything in dir except its lock file (for an explicit

@@ -1,0 +1,124 @@
+package main
+
+import (
+	"encoding/csv"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"testing"
+
+	"github.com/strialab/stria/train/runfolder"
+)
+
+// TestFitOverwrite: --overwrite empties the folder of an earlier run
+// before the fit writes (no conv1 of a 2-layer run beside a 1-layer run,
+// no old figures or report); a stale lock of an ended process is taken
+// over with a note; temporary files of a killed write are removed; the
+// lock is gone afterwards.
+func TestFitOverwrite(t *testing.T) {
+	f := newFixture(t)
+	f.edit(t, "layers: [{channels: 2, kernel: 3}]", "layers: [{channels: 2, kernel: 3}, {channels: 2, kernel: 3}]")
+	f.run(t, fitArgs(f)...)
+	conv1 := filepath.Join(f.out, runfolder.DirParameters, "conv1_weight.npy")
+	if _, err := os.Stat(conv1); err != nil {
+		t.Fatalf("the 2-layer run has no conv1: %v", err)
+	}
+	os.MkdirAll(filepath.Join(f.out, runfolder.DirFigures), 0o755)
+	old := []string{filepath.Join(f.out, runfolder.DirFigures, "filters.svg"), filepath.Join(f.out, runfolder.FileReport), filepath.Join(f.out, ".resume_state.gob.tmp123")}
+	for _, p := range old {
+		os.WriteFile(p, []byte("old"), 0o644)
+	}
+	cmd := exec.Command("true")
+	if err := cmd.Run(); err != nil {
+		t.Skip(err)
+	}
+	host, _ := os.Hostname()
+	writeLockFile(t, f.out, runfolder.LockInfo{PID: cmd.Process.Pid, Host: host, Started: "2026-12-03T10:00:00Z", Command: "stria fit (killed)"})
+
+	f.config(t, 1, 1) // one layer
+	out, err := runCLI(t, fitArgs(f, "--overwrite")...)
+	if err != nil {
+		t.Fatalf("fit --overwrite: %v\n%s", err, out)
+	}
+	if !strings.Contains(out, "took over the lock") || !strings.Contains(out, "pid "+strconv.Itoa(cmd.Process.Pid)) {
+		t.Errorf("no note about the stale lock in:\n%s", out)
+	}
+	for _, p := range append(old, conv1, filepath.Join(f.out, runfolder.FileLock)) {
+		if _, err := os.Stat(p); err == nil {
+			t.Errorf("%s left after fit --overwrite", p)
+		}
+	}
+	if _, err := runfolder.Open(f.out); err != nil {
+		t.Errorf("the new run: %v", err)
+	}
+}
+
+// TestStaleTempsRemovedOnResume: a resumed fit removes the temporary
+// files a killed checkpoint write left.
+func TestStaleTempsRemovedOnResume(t *testing.T) {
+	f := newFixture(t)
+	fakeCheckpoint(t, f)
+	tmp := filepath.Join(f.out, ".resume_state.gob.tmp99")
+	os.WriteFile(tmp, []byte("half"), 0o644)
+	// The fake checkpoint has no training state: the resumed fit may
+	// fail, but only after the folder was cleaned.
+	runCLI(t, fitArgs(f, "--resume")...)
+	if _, err := os.Stat(tmp); err == nil {
+		t.Error("stale temporary file left after --resume")
+	}
+}
+
+// TestCompareReusesMatchingUnits: a comparison run again with the same
+// settings and data reuses its finished units; with --overwrite it starts
+// afresh after a change.
+func TestCompareReusesMatchingUnits(t *testing.T) {
+	f := newFixture(t)
+	f.run(t, compareArgs(f)...)
+	first, _ := os.ReadFile(filepath.Join(f.cmp, runfolder.FileFoldScores))
+	out, err := runCLI(t, "compare", "--config", f.cfg)
+	if err != nil || !strings.Contains(out, "already done") {
+		t.Fatalf("second run: %v\n%s", err, out)
+	}
+	again, _ := os.ReadFile(filepath.Join(f.cmp, runfolder.FileFoldScores))
+	if string(first) != string(again) {
+		t.Error("reusing the units changed the scores")
+	}
+	f.config(t, 2, 1)
+	if out, err := runCLI(t, compareArgs(f, "--overwrite")...); err != nil {
+		t.Fatalf("compare --overwrite after a change: %v\n%s", err, out)
+	}
+	if _, err := runfolder.Open(f.cmp); err != nil {
+		t.Error(err)
+	}
+}
+
+// TestPredictCSV: --out FILE.csv writes CSV with the neuron names, not
+// .npy bytes under a .csv name.
+func TestPredictCSV(t *testing.T) {
+	f := newFixture(t)
+	f.run(t, fitArgs(f)...)
+	pred := filepath.Join(f.dir, "pred.csv")
+	f.run(t, "predict", "--stimulus", f.stim, "--out", pred, f.out)
+	fh, err := os.Open(pred)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer fh.Close()
+	rows, err := csv.NewReader(fh).ReadAll()
+	if err != nil {
+		t.Fatalf("pred.csv is not CSV: %v", err)
+	}
+	if len(rows) != 241 || len(rows[0]) != 25 || rows[0][0] != "stimulus" || rows[0][1] == "" {
+		t.Fatalf("pred.csv: %d rows, header %v; want header + 240 rows of stimulus and 24 neurons", len(rows), rows[0])
+	}
+	if rows[1][0] != "0" || rows[2][0] != "45" {
+		t.Errorf("stimulus column starts %q, %q; want 0, 45", rows[1][0], rows[2][0])
+	}
+	for _, v := range rows[1][1:] {
+		if _, err := strconv.ParseFloat(v, 64); err != nil {
+			t.Errorf("prediction %q is not a number", v)
+		}
+	}
+}
