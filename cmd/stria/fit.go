@@ -61,6 +61,9 @@ type fitOptions struct {
 	timings   bool
 	stdout    io.Writer
 	stderr    io.Writer
+	// afterFit, when set, runs after training and before scoring (tests
+	// change the data there).
+	afterFit func()
 }
 
 // runFit loads, trains, scores and writes the run folder.
@@ -190,6 +193,9 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*runfolder.Su
 		return nil, err
 	}
 	phase(fmt.Sprintf("fit (%d epochs)", len(fitted.Log)))
+	if o.afterFit != nil {
+		o.afterFit()
+	}
 	// The weights are written while the test trials are scored.
 	written := make(chan error, 1)
 	go func() { written <- runfolder.WriteModel(dir, p, fitted) }()

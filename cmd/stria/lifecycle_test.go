@@ -1,7 +1,10 @@
 package main
 
 import (
+	"bytes"
+	"context"
 	"encoding/csv"
+	"errors"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -9,6 +12,8 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
 )
 
@@ -120,5 +125,30 @@ func TestPredictCSV(t *testing.T) {
 		if _, err := strconv.ParseFloat(v, 64); err != nil {
 			t.Errorf("prediction %q is not a number", v)
 		}
+	}
+}
+
+// TestFitRefusesChangedData: a data file rewritten while the fit runs
+// (here between training and scoring) is refused, naming it, and the run
+// folder is left without complete.json.
+func TestFitRefusesChangedData(t *testing.T) {
+	f := newFixture(t)
+	cfg, err := train.LoadConfig(f.cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := cfg.Validate(); err != nil {
+		t.Fatal(err)
+	}
+	var out bytes.Buffer
+	_, err = runFit(context.Background(), cfg, fitOptions{quiet: true, stdout: &out, stderr: &out, afterFit: func() { f.shuffleTrials(t) }})
+	if !errors.Is(err, data.ErrChanged) || !strings.Contains(err.Error(), f.resp) {
+		t.Fatalf("got %v, want an error naming %s that wraps data.ErrChanged", err, f.resp)
+	}
+	if _, err := os.Stat(filepath.Join(f.out, runfolder.FileComplete)); err == nil {
+		t.Error("complete.json written for a fit on changed data")
+	}
+	if _, err := os.Stat(filepath.Join(f.out, runfolder.FileLock)); err == nil {
+		t.Error("the lock was not released")
 	}
 }
