@@ -266,6 +266,9 @@ func printSummary(w io.Writer, dir string, s *runfolder.Summary) {
 	if s.NoSignal > 0 {
 		fmt.Fprintf(w, "neurons with signal power <= 0 on the test trials (NaN noise-ceiling ratios): %d\n", s.NoSignal)
 	}
+	if s.Solver != "" {
+		fmt.Fprintf(w, "solver: %s; readout penalty (model.readout_l2: %s): %s\n", s.Solver, s.ReadoutL2.Setting, penaltyText(s.ReadoutL2))
+	}
 	fmt.Fprintln(w, "median over neurons [interquartile range]:")
 	for _, k := range []string{"test_r2", "test_r", "explainable_fraction", "fev", "cc_norm"} {
 		sp := s.Spread[k]
@@ -274,4 +277,13 @@ func printSummary(w io.Writer, dir string, s *runfolder.Summary) {
 	for _, c := range s.Cautions {
 		fmt.Fprintln(w, "note:", c)
 	}
+}
+
+// penaltyText describes the readout penalty used: one value, or the
+// median and quartiles of the per-neuron choices.
+func penaltyText(p runfolder.PenaltyInfo) string {
+	if p.Q1 == p.Q3 {
+		return fmt.Sprintf("%.3g", float64(p.Chosen))
+	}
+	return fmt.Sprintf("%.3g per neuron (median; quartiles %.3g, %.3g)", float64(p.Chosen), float64(p.Q1), float64(p.Q3))
 }
