@@ -257,7 +257,7 @@ func checkCompareFolder(out string, cfg *train.Config, o compareOptions) error {
 	}
 	if string(a) != string(b) {
 		diff, _ := train.DiffSettings(a, b)
-		return fmt.Errorf("%s: an array task of another comparison wrote %s with other settings; the array tasks of one comparison must share them:\n  %s\nuse a new output folder for these settings",
+		return fmt.Errorf("%s: its %s (written by an earlier comparison or array task) holds other settings; the array tasks of one comparison must share them:\n  %s\nuse a new output folder for these settings",
 			out, runfolder.FileSettings, strings.Join(diff, "\n  "))
 	}
 	return nil
