@@ -454,3 +454,43 @@ func copyTree(t *testing.T, src, dst string) {
 		t.Fatal(err)
 	}
 }
+
+// TestBadInputCLIExit runs a few rows of the catalogue as a user does, in
+// a child process: stria must exit with status 1 and print one "stria:"
+// message, no Go trace.
+func TestBadInputCLIExit(t *testing.T) {
+	if testing.Short() {
+		t.Skip("runs child processes")
+	}
+	for _, name := range []string{"fit: a stray argument", "compare: a NaN response", "fit while another process writes the folder", "compare: another seed"} {
+		t.Run(name, func(t *testing.T) {
+			var row *badRow
+			for i := range badRows {
+				if badRows[i].name == name {
+					row = &badRows[i]
+				}
+			}
+			if row == nil {
+				t.Fatalf("no row %q", name)
+			}
+			f := newFixture(t)
+			args := row.setup(t, f)
+			cmd := child(args...)
+			var stdout, stderr strings.Builder
+			cmd.Stdout, cmd.Stderr = &stdout, &stderr
+			err := cmd.Run()
+			if cmd.ProcessState == nil || cmd.ProcessState.ExitCode() != 1 {
+				t.Fatalf("exit: %v, want status 1\n%s", err, stderr.String())
+			}
+			msg := stderr.String()
+			if !strings.HasPrefix(msg, "stria: ") || strings.Contains(msg, "goroutine ") || strings.Contains(msg, "panic") {
+				t.Errorf("stderr:\n%s", msg)
+			}
+			for _, w := range row.want {
+				if !strings.Contains(msg, w) {
+					t.Errorf("stderr does not mention %q:\n%s", w, msg)
+				}
+			}
+		})
+	}
+}
