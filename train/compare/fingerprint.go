@@ -16,11 +16,14 @@ import (
 //
 //   - an encoder: its whole config (grid values applied) except the
 //     compare section (the other models), the recordings list, the
-//     checkpoint interval and the data file paths;
-//   - a baseline: the data, axis, split, scores settings and seed, and of
-//     the compare section only the curve fit's own setting (starts for the
-//     von Mises and Gaussian fits, smooth_lambda for smoothlinear): not
-//     the encoder's model or training settings.
+//     checkpoint interval, split.test_fraction (units run on folds) and
+//     the data file paths;
+//   - a baseline: the data, axis, split (without test_fraction and
+//     validation_fraction: it fits the fold's training and validation
+//     trials together), scores settings and seed, and of the compare
+//     section only the curve fit's own setting (starts for the von Mises
+//     and Gaussian fits, smooth_lambda for smoothlinear): not the
+//     encoder's model or training settings.
 //
 // The data files' paths are left out: the files' identity (size and
 // content hash) stands for them, so a recording moved or copied elsewhere
@@ -42,6 +45,14 @@ func unitSettings(rec *train.Config, spec train.ModelSpec) ([]byte, error) {
 			c.Compare.SmoothLambda = rec.Compare.SmoothLambda
 		}
 	}
+	if spec.Baseline != "" {
+		// A baseline fits the fold's training and validation trials
+		// together: how they are divided does not matter to it.
+		c.Split.ValidationFraction = 0
+	}
+	// Units run on k folds; the single held-out split of a fit is not
+	// used.
+	c.Split.TestFraction = 0
 	c.Recordings = nil
 	c.Train.CheckpointEvery = 0
 	c.Data.Responses, c.Data.Stimulus, c.Data.Condition, c.Data.Block = "", "", "", ""

@@ -17,7 +17,7 @@ import (
 const fpConfig = `seed: 1
 data: {responses: r.npy}
 axis: {min: 0, max: 360, periodic: true, bin_width: 45}
-split: {folds: 2}
+split: {folds: 2, validation_fraction: 0.2, test_fraction: 0.2}
 model: {readout_l2: 1, layers: [{channels: 2, kernel: 3}]}
 train: {max_epochs: 3, patience: 3, checkpoint_every: 10}
 compare: {baselines: [condmean, vonmises], starts: 2}
@@ -61,6 +61,8 @@ func TestUnitSettings(t *testing.T) {
 		{"folds: 2=>folds: 3", [3]bool{true, true, true}},
 		{"bin_width: 45=>bin_width: 30", [3]bool{true, true, true}},
 		{"checkpoint_every: 10=>checkpoint_every: 20", [3]bool{false, false, false}},
+		{"validation_fraction: 0.2=>validation_fraction: 0.3", [3]bool{true, false, false}},
+		{"test_fraction: 0.2=>test_fraction: 0.3", [3]bool{false, false, false}},
 		{"compare: {=>output: elsewhere\ncompare: {", [3]bool{false, false, false}},
 		{"train: {=>train: {threads: 1, ", [3]bool{false, false, false}},
 		{"data: {responses: r.npy}=>data: {responses: moved/r.npy}", [3]bool{false, false, false}},
@@ -91,7 +93,7 @@ func TestChangedDataRefused(t *testing.T) {
 		t.Fatal(err)
 	}
 	src := strings.Replace(fpConfig, "data: {responses: r.npy}", "data: {responses: r.npy, stimulus: s.npy}", 1)
-	src = strings.Replace(src, "split: {folds: 2}", "split: {folds: 2, keep_blocks: false}", 1)
+	src = strings.Replace(src, "split: {folds: 2, validation_fraction: 0.2, test_fraction: 0.2}", "split: {folds: 2, keep_blocks: false}", 1)
 	cfgPath := filepath.Join(dir, "c.yaml")
 	os.WriteFile(cfgPath, []byte(src+"output: run\n"), 0o644)
 	cfg, err := train.LoadConfig(cfgPath)
