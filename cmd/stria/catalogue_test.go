@@ -216,6 +216,17 @@ var badRows = []badRow{
 		os.WriteFile(filepath.Join(f.out, "notes.txt"), []byte("mine"), 0o644)
 		return fitArgs(f, "--overwrite")
 	}, []string{"out", "did not write", "empty or new output folder"}},
+	{"fit --overwrite into a folder with a settings.yaml beside other files", func(t *testing.T, f *fixture) []string {
+		os.MkdirAll(f.out, 0o755)
+		os.WriteFile(filepath.Join(f.out, runfolder.FileSettings), []byte("seed: 1\n"), 0o644)
+		os.WriteFile(filepath.Join(f.out, "my_recording.npy"), []byte("mine"), 0o644)
+		return fitArgs(f, "--overwrite")
+	}, []string{"out", "did not write (my_recording.npy)", "refusing to delete"}},
+	{"compare --overwrite into a folder with other files", func(t *testing.T, f *fixture) []string {
+		f.run(t, compareArgs(f)...)
+		os.WriteFile(filepath.Join(f.cmp, "analysis.ipynb"), []byte("{}"), 0o644)
+		return compareArgs(f, "--overwrite")
+	}, []string{"cmp", "did not write (analysis.ipynb)"}},
 	{"fit while another process writes the folder", func(t *testing.T, f *fixture) []string {
 		host, _ := os.Hostname()
 		writeLockFile(t, f.out, runfolder.LockInfo{PID: os.Getpid(), Host: host, Started: "2026-12-03T10:00:00Z", Command: "stria fit --config other.yaml"})

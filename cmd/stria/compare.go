@@ -234,6 +234,9 @@ func checkCompareFolder(out string, cfg *train.Config, o compareOptions) error {
 	if kind == runfolder.KindRun {
 		return fmt.Errorf("output folder %s holds a run folder (written by stria fit); a comparison needs its own folder (--out)", out)
 	}
+	if o.overwrite {
+		return runfolder.CheckEmptiable(out)
+	}
 	if o.tasks == 0 {
 		return nil
 	}

@@ -245,7 +245,7 @@ func checkFitFolder(dir string, o fitOptions) error {
 		return fmt.Errorf("output folder %s holds %s; choose an empty or new output folder (--out)", dir, what)
 	}
 	if o.overwrite {
-		return nil
+		return runfolder.CheckEmptiable(dir)
 	}
 	return fmt.Errorf("output folder %s holds %s: give --overwrite to replace it (its files are deleted first), --resume to continue an interrupted fit, or another --out", dir, what)
 }

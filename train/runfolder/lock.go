@@ -218,20 +218,55 @@ func Holds(dir string) (string, error) {
 	return fmt.Sprintf("%d file(s) or folder(s) that stria did not write", n), nil
 }
 
-// Empty removes everything in dir except its lock file (for an explicit
-// overwrite). It refuses a folder that is neither a run nor a comparison
-// folder of stria, so that a mistyped output path cannot delete someone's
-// data.
-func Empty(dir string) error {
-	what, err := Holds(dir)
-	if err != nil || what == "" {
-		return err
+// striaNames are the names stria writes at the top of run and comparison
+// folders (folders among them are taken whole). Keep it in step with the
+// File and Dir constants: Empty refuses to delete anything else.
+var striaNames = map[string]bool{
+	FileSettings: true, FileManifest: true, FileFilters: true, FileNeuronScores: true, FileSummary: true,
+	FileHistory: true, FileSplit: true, FileResume: true, DirParameters: true, DirFigures: true, FileReport: true,
+	FileComplete: true, FileLock: true, oldSettings: true,
+	FileFoldScores: true, FileFoldAverages: true, FileModelSummary: true, FileModelPairs: true, FileComparison: true,
+	FileDescriptors: true, DirCurves: true, DirFoldResults: true, FilePerRecording: true, FilePooledSummary: true,
+	FilePooledPairs: true,
+}
+
+// foreign lists the entries of dir that stria did not write: any name
+// but striaNames and temporary files, except folders (a recording's
+// comparison folder) whose own entries are all stria's.
+func foreign(dir string) ([]string, error) {
+	ents, err := os.ReadDir(dir)
+	if err != nil {
+		return nil, err
 	}
-	if _, err := Kind(dir); err != nil && !exists(filepath.Join(dir, FileSettings)) {
-		return fmt.Errorf("%s holds %s; refusing to delete them: choose an empty or new output folder", dir, what)
+	var out []string
+	for _, e := range ents {
+		name := e.Name()
+		if striaNames[name] || strings.HasPrefix(name, ".") && strings.Contains(name, ".tmp") {
+			continue
+		}
+		if e.IsDir() {
+			if sub, err := foreign(filepath.Join(dir, name)); err == nil && len(sub) == 0 {
+				continue
+			}
+		}
+		out = append(out, name)
+	}
+	return out, nil
+}
+
+// Empty removes everything in dir except its lock file (for an explicit
+// overwrite). It deletes only what stria writes: a folder holding any
+// other file is refused, naming it, so that a mistyped output path cannot
+// delete someone's data.
+func Empty(dir string) error {
+	if err := CheckEmptiable(dir); err != nil {
+		return err
 	}
 	ents, err := os.ReadDir(dir)
 	if err != nil {
+		if errNotExist(err) {
+			return nil
+		}
 		return err
 	}
 	for _, e := range ents {
@@ -241,6 +276,28 @@ func Empty(dir string) error {
 		if err := os.RemoveAll(filepath.Join(dir, e.Name())); err != nil {
 			return err
 		}
+	}
+	return nil
+}
+
+// CheckEmptiable returns the error Empty would give for dir, without
+// deleting anything: call it before long work.
+func CheckEmptiable(dir string) error {
+	what, err := Holds(dir)
+	if err != nil || what == "" {
+		return err
+	}
+	other, err := foreign(dir)
+	if err != nil {
+		return err
+	}
+	if len(other) > 0 {
+		show := other
+		if len(show) > 3 {
+			show = append(show[:3:3], fmt.Sprintf("and %d more", len(other)-3))
+		}
+		return fmt.Errorf("%s holds files stria did not write (%s); refusing to delete them: choose an empty or new output folder, or move them away",
+			dir, strings.Join(show, ", "))
 	}
 	return nil
 }

@@ -148,8 +148,21 @@ func TestEmpty(t *testing.T) {
 	if _, err := os.Stat(filepath.Join(dir, "my_data.npy")); err != nil {
 		t.Error("Empty deleted a file of a foreign folder")
 	}
+	// Nor a folder that looks like a run but holds other files too (a
+	// config called settings.yaml beside the data).
+	mixed := t.TempDir()
+	for _, f := range []string{FileSettings, "resp.npy", "sub/notes.txt"} {
+		os.MkdirAll(filepath.Dir(filepath.Join(mixed, f)), 0o755)
+		os.WriteFile(filepath.Join(mixed, f), []byte("x"), 0o644)
+	}
+	if err := Empty(mixed); err == nil || !strings.Contains(err.Error(), "resp.npy, sub") {
+		t.Errorf("mixed folder: got %v, want a refusal naming resp.npy and sub", err)
+	}
+	if _, err := os.Stat(filepath.Join(mixed, "resp.npy")); err != nil {
+		t.Error("Empty deleted a file of a mixed folder")
+	}
 	run := t.TempDir()
-	for _, f := range []string{FileManifest, FileLock, "parameters/conv1_weight.npy", "figures/a.svg"} {
+	for _, f := range []string{FileManifest, FileLock, "parameters/conv1_weight.npy", "figures/a.svg", ".summary.json.tmp42", "m1-resp/comparison.json", "m2-resp/tuning_curves/a.npy"} {
 		os.MkdirAll(filepath.Dir(filepath.Join(run, f)), 0o755)
 		os.WriteFile(filepath.Join(run, f), []byte("x"), 0o644)
 	}
