@@ -329,6 +329,9 @@ func (p *Plan) recErr(rec Recording, err error) error {
 }
 
 func (p *Plan) runOne(ctx context.Context, prep *train.Prepared, rec Recording, u Unit, sets [3][]int, files []data.FileID) error {
+	if err := runfolder.RemoveFoldResultTemps(p.Dir(), u.ID); err != nil {
+		return err
+	}
 	r, err := train.RunUnit(ctx, prep, rec.Specs[u.Spec], u.Fold, sets)
 	if err != nil {
 		return p.recErr(rec, err)
