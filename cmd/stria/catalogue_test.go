@@ -31,6 +31,9 @@ import (
 // A truncated mapped file (a memory fault) is in train.TestFitTruncatedMapping,
 // a file changed during a comparison in compare.TestChangedDataRefused.
 //
+// The lock rows name the test's parent process (alive, and not this
+// process, whose own lock a check lets pass) as the other writer.
+//
 // To add a row: give it a name, write what it needs in setup (the fixture
 // has a good recording and configs; setup may run stria first to make a
 // folder to spoil) and return the arguments; want holds the substrings.
@@ -229,18 +232,18 @@ var badRows = []badRow{
 	}, []string{"cmp", "did not write (analysis.ipynb)"}},
 	{"fit while another process writes the folder", func(t *testing.T, f *fixture) []string {
 		host, _ := os.Hostname()
-		writeLockFile(t, f.out, runfolder.LockInfo{PID: os.Getpid(), Host: host, Started: "2026-12-03T10:00:00Z", Command: "stria fit --config other.yaml"})
+		writeLockFile(t, f.out, runfolder.LockInfo{PID: os.Getppid(), Host: host, Started: "2026-12-03T10:00:00Z", Command: "stria fit --config other.yaml"})
 		return fitArgs(f)
-	}, []string{"another stria process", fmt.Sprintf("pid %d", os.Getpid()), "other.yaml"}},
+	}, []string{"another stria process", fmt.Sprintf("pid %d", os.Getppid()), "other.yaml"}},
 	{"compare while another process writes the folder", func(t *testing.T, f *fixture) []string {
 		host, _ := os.Hostname()
-		writeLockFile(t, f.cmp, runfolder.LockInfo{PID: os.Getpid(), Host: host, Started: "2026-12-03T10:00:00Z", Command: "stria compare"})
+		writeLockFile(t, f.cmp, runfolder.LockInfo{PID: os.Getppid(), Host: host, Started: "2026-12-03T10:00:00Z", Command: "stria compare"})
 		return compareArgs(f)
-	}, []string{"another stria process", fmt.Sprintf("pid %d", os.Getpid())}},
+	}, []string{"another stria process", fmt.Sprintf("pid %d", os.Getppid())}},
 	{"array task while a whole comparison writes the folder", func(t *testing.T, f *fixture) []string {
 		host, _ := os.Hostname()
 		f.run(t, compareArgs(f, "--array-task", "1", "--array-task-count", "2")...)
-		writeLockFile(t, f.cmp, runfolder.LockInfo{PID: os.Getpid(), Host: host, Started: "2026-12-03T10:00:00Z", Command: "stria compare"})
+		writeLockFile(t, f.cmp, runfolder.LockInfo{PID: os.Getppid(), Host: host, Started: "2026-12-03T10:00:00Z", Command: "stria compare"})
 		return compareArgs(f, "--array-task", "2", "--array-task-count", "2")
 	}, []string{"another stria process"}},
 	{"compare --overwrite with array tasks", func(t *testing.T, f *fixture) []string {

@@ -223,6 +223,9 @@ func checkCompareFolder(out string, cfg *train.Config, o compareOptions) error {
 	if err := runfolder.CheckWritable(out); err != nil {
 		return err
 	}
+	if err := runfolder.CheckUnlocked(out); err != nil {
+		return err
+	}
 	what, err := runfolder.Holds(out)
 	if err != nil || what == "" {
 		return err
@@ -239,9 +242,6 @@ func checkCompareFolder(out string, cfg *train.Config, o compareOptions) error {
 	}
 	if o.tasks == 0 {
 		return nil
-	}
-	if err := runfolder.CheckUnlocked(out); err != nil {
-		return err
 	}
 	if !fileExists(filepath.Join(out, runfolder.FileSettings)) {
 		return nil

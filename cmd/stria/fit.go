@@ -234,6 +234,10 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*runfolder.Su
 // anything else) unless the fit resumes it or overwrites it; overwrite
 // empties only a folder stria wrote.
 func checkFitFolder(dir string, o fitOptions) error {
+	// Another stria writing the folder is the first thing to say.
+	if err := runfolder.CheckUnlocked(dir); err != nil {
+		return err
+	}
 	if o.resume {
 		return nil
 	}

@@ -152,3 +152,41 @@ func TestFitRefusesChangedData(t *testing.T) {
 		t.Error("the lock was not released")
 	}
 }
+
+// TestTwoFitsOneFolder starts two fits into one folder at once: exactly
+// one may write it; the other refuses (naming the first while it runs,
+// or the run it left), and the folder holds one complete run.
+func TestTwoFitsOneFolder(t *testing.T) {
+	if testing.Short() {
+		t.Skip("runs child processes")
+	}
+	f := newFixture(t)
+	f.edit(t, "max_epochs: 4, patience: 4", "max_epochs: 300, patience: 300")
+	var cmds [2]*exec.Cmd
+	var errs [2]strings.Builder
+	for i := range cmds {
+		cmds[i] = child(fitArgs(f)...)
+		cmds[i].Stderr = &errs[i]
+		if err := cmds[i].Start(); err != nil {
+			t.Fatal(err)
+		}
+	}
+	ok := 0
+	for i, c := range cmds {
+		if err := c.Wait(); err == nil {
+			ok++
+		} else if t.Logf("fit %d refused: %s", i+1, strings.TrimSpace(errs[i].String())); false {
+		} else if msg := errs[i].String(); !strings.Contains(msg, "another stria process") && !strings.Contains(msg, "holds a run folder") {
+			t.Errorf("fit %d failed with:\n%s", i+1, msg)
+		}
+	}
+	if ok != 1 {
+		t.Fatalf("%d fits succeeded, want exactly 1\n%s\n%s", ok, errs[0].String(), errs[1].String())
+	}
+	if _, err := runfolder.Open(f.out); err != nil {
+		t.Error(err)
+	}
+	if _, err := os.Stat(filepath.Join(f.out, runfolder.FileLock)); err == nil {
+		t.Error("lock left behind")
+	}
+}

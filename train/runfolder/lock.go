@@ -24,6 +24,9 @@ type LockInfo struct {
 }
 
 func (l LockInfo) String() string {
+	if l.PID <= 0 {
+		return "a process unknown: the lock file cannot be read"
+	}
 	return fmt.Sprintf("pid %d on %s, started %s: %s", l.PID, l.Host, l.Started, l.Command)
 }
 
@@ -55,16 +58,8 @@ func AcquireLock(dir, command string) (l *Lock, note string, err error) {
 	}
 	path := filepath.Join(dir, FileLock)
 	for try := 0; try < 2; try++ {
-		f, err := os.OpenFile(path, os.O_WRONLY|os.O_CREATE|os.O_EXCL, FileMode)
+		err := createWith(path, append(b, '\n'))
 		if err == nil {
-			_, err = f.Write(append(b, '\n'))
-			if cerr := f.Close(); err == nil {
-				err = cerr
-			}
-			if err != nil {
-				os.Remove(path)
-				return nil, "", fmt.Errorf("writing %s: %w", path, err)
-			}
 			return &Lock{path: path}, note, nil
 		}
 		if !errors.Is(err, fs.ErrExist) {
@@ -86,6 +81,47 @@ func AcquireLock(dir, command string) (l *Lock, note string, err error) {
 	return nil, "", fmt.Errorf("%s: %w (the lock file %s came back while being taken over)", dir, ErrLocked, path)
 }
 
+// createWith creates path holding b, failing with an error wrapping
+// fs.ErrExist when path exists. The content is written to a private file
+// first and hard-linked to path, so nobody reads path half-written; where
+// hard links are not supported the file is created exclusively and
+// written.
+func createWith(path string, b []byte) error {
+	f, err := os.CreateTemp(filepath.Dir(path), FileLock+"-new*")
+	if err != nil {
+		return err
+	}
+	tmp := f.Name()
+	defer os.Remove(tmp)
+	_, err = f.Write(b)
+	if cerr := f.Close(); err == nil {
+		err = cerr
+	}
+	if err == nil {
+		err = os.Chmod(tmp, FileMode)
+	}
+	if err != nil {
+		return err
+	}
+	err = os.Link(tmp, path)
+	if err == nil || errors.Is(err, fs.ErrExist) {
+		return err
+	}
+	// No hard links here: create exclusively.
+	g, err := os.OpenFile(path, os.O_WRONLY|os.O_CREATE|os.O_EXCL, FileMode)
+	if err != nil {
+		return err
+	}
+	_, err = g.Write(b)
+	if cerr := g.Close(); err == nil {
+		err = cerr
+	}
+	if err != nil {
+		os.Remove(path)
+	}
+	return err
+}
+
 // readLock reads a lock file and says whether its process may still run:
 // false only for a process on this host that has ended.
 func readLock(path string) (LockInfo, bool, error) {
@@ -98,8 +134,8 @@ func readLock(path string) (LockInfo, bool, error) {
 		return l, false, err
 	}
 	if err := json.Unmarshal(b, &l); err != nil || l.PID <= 0 {
-		// A lock being written this instant, or damaged: treat as held.
-		return LockInfo{Host: "?", Started: "?", Command: strings.TrimSpace(string(b))}, true, nil
+		// Damaged (or written by hand): treat as held.
+		return LockInfo{}, true, nil
 	}
 	host, _ := os.Hostname()
 	if l.Host != host {
@@ -108,14 +144,17 @@ func readLock(path string) (LockInfo, bool, error) {
 	return l, processAlive(l.PID), nil
 }
 
-// CheckUnlocked returns an error wrapping ErrLocked when a running process
-// holds dir's lock (array tasks, which write one folder together, take no
+// CheckUnlocked returns an error wrapping ErrLocked when another running
+// process holds dir's lock (array tasks, which write one folder together, take no
 // lock but refuse a folder that a single writer holds).
 func CheckUnlocked(dir string) error {
 	path := filepath.Join(dir, FileLock)
 	l, alive, err := readLock(path)
 	if err != nil || !alive {
 		return err
+	}
+	if host, _ := os.Hostname(); l.PID == os.Getpid() && l.Host == host {
+		return nil // this process's own lock
 	}
 	return fmt.Errorf("%s: %w (%s); wait for it to finish (if that process is no longer running, delete %s)", dir, ErrLocked, l, path)
 }
@@ -205,7 +244,7 @@ func Holds(dir string) (string, error) {
 	}
 	n := 0
 	for _, e := range ents {
-		if e.Name() != FileLock {
+		if !strings.HasPrefix(e.Name(), FileLock) { // the lock, or one being made
 			n++
 		}
 	}
@@ -241,7 +280,7 @@ func foreign(dir string) ([]string, error) {
 	var out []string
 	for _, e := range ents {
 		name := e.Name()
-		if striaNames[name] || strings.HasPrefix(name, ".") && strings.Contains(name, ".tmp") {
+		if striaNames[name] || strings.HasPrefix(name, FileLock) || strings.HasPrefix(name, ".") && strings.Contains(name, ".tmp") {
 			continue
 		}
 		if e.IsDir() {

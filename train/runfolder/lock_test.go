@@ -45,6 +45,9 @@ func TestLock(t *testing.T) {
 		if err := json.Unmarshal(b, &info); err != nil || info.PID != os.Getpid() || info.Host != host || info.Command != "stria fit --config a.yaml" || info.Started == "" {
 			t.Errorf("lock file holds %s (%v)", b, err)
 		}
+		if err := CheckUnlocked(dir); err != nil {
+			t.Errorf("CheckUnlocked of the holder's own lock: %v", err)
+		}
 		// A second writer is refused, naming the first.
 		_, _, err = AcquireLock(dir, "stria fit --config b.yaml")
 		if !errors.Is(err, ErrLocked) || !strings.Contains(err.Error(), "pid "+strconv.Itoa(os.Getpid())) || !strings.Contains(err.Error(), "a.yaml") {
