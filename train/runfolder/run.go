@@ -138,7 +138,7 @@ type Summary struct {
 	// neuron; the values are in parameters/readout_l2.npy).
 	ReadoutL2 PenaltyInfo `json:"readout_l2"`
 	Cautions  []string    `json:"cautions"`
-	Warnings    []string          `json:"warnings"`
+	Warnings  []string    `json:"warnings"`
 }
 
 // ScoreColumns are the per-neuron score columns of neuron_scores.csv and
