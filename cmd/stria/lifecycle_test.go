@@ -190,3 +190,18 @@ func TestTwoFitsOneFolder(t *testing.T) {
 		t.Error("lock left behind")
 	}
 }
+
+// TestGatherRemovesStaleTemps: once every unit is done, gather removes
+// the temporary files that killed writes of units left.
+func TestGatherRemovesStaleTemps(t *testing.T) {
+	f := newFixture(t)
+	f.run(t, compareArgs(f, "--array-task", "1", "--array-task-count", "1")...)
+	tmp := filepath.Join(f.cmp, runfolder.DirFoldResults, "encoder", ".fold1.gob.tmp777")
+	if err := os.WriteFile(tmp, []byte("half"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	f.run(t, "gather", f.cmp)
+	if _, err := os.Stat(tmp); err == nil {
+		t.Error("gather left a stale temporary file")
+	}
+}

@@ -34,6 +34,11 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 		return nil, fmt.Errorf("%w: %d of %d not done: %s", ErrMissingUnits, len(miss), len(p.Units), strings.Join(show, ", "))
 	}
 	out := p.Dir()
+	// Every unit is done, so no array task writes one any more: the
+	// temporary files of killed writes can go.
+	if _, err := runfolder.RemoveStaleTemps(filepath.Join(out, runfolder.DirFoldResults)); err != nil {
+		return nil, err
+	}
 	// Everything is read and checked before anything is written.
 	folders := make([]*runfolder.ComparisonFolder, len(p.Recordings))
 	for ri, rec := range p.Recordings {
