@@ -126,7 +126,7 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*runfolder.Su
 		return nil, fmt.Errorf("--resume: the checkpoint in %s does not record the data it was written on, so it cannot be checked; fit again without --resume (with --overwrite)", dir)
 	}
 	if resume != nil {
-		if diff := (runfolder.Fingerprint{Files: files}).Mismatch(runfolder.Fingerprint{Settings: []byte{}, Files: resume.Files}, train.DiffSettings); len(diff) > 0 {
+		if diff := runfolder.FilesMismatch(resume.Files, files); len(diff) > 0 {
 			return nil, fmt.Errorf("--resume: the checkpoint in %s was written on other data; refusing to mix them:\n  %s\nfit again without --resume (with --overwrite)", dir, strings.Join(diff, "\n  "))
 		}
 	}

@@ -36,14 +36,22 @@ func (want Fingerprint) Mismatch(have Fingerprint, diff func(old, new []byte) ([
 		}
 		out = append(out, lines...)
 	}
-	for i := range max(len(have.Files), len(want.Files)) {
+	return append(out, FilesMismatch(have.Files, want.Files)...)
+}
+
+// FilesMismatch lists how the data files have (recorded with a result)
+// differ from want (used now), one line per file that differs, as in
+// Fingerprint.Mismatch; nil when they match.
+func FilesMismatch(have, want []data.FileID) []string {
+	var out []string
+	for i := range max(len(have), len(want)) {
 		switch {
-		case i >= len(have.Files):
-			out = append(out, fmt.Sprintf("data file %s: not used by the result", want.Files[i].Path))
-		case i >= len(want.Files):
-			out = append(out, fmt.Sprintf("data file %s: not used now", have.Files[i].Path))
+		case i >= len(have):
+			out = append(out, fmt.Sprintf("data file %s: not used by the result", want[i].Path))
+		case i >= len(want):
+			out = append(out, fmt.Sprintf("data file %s: not used now", have[i].Path))
 		default:
-			a, b := have.Files[i], want.Files[i]
+			a, b := have[i], want[i]
 			if a.Hash != "" && b.Hash != "" && a.Size == b.Size && a.Hash == b.Hash {
 				continue
 			}
