@@ -3,6 +3,7 @@ package eval
 import (
 	"math"
 	"runtime"
+	"runtime/debug"
 	"sync"
 	"sync/atomic"
 
@@ -146,16 +147,36 @@ func newShared(fn string, y []float32, n int, trials, cond []int, pred []float64
 // out to one worker per core, each with its own scratch space. Each
 // neuron is scored by one goroutine in a fixed order, so the result does
 // not depend on scheduling.
+//
+// The responses may be a mapped file: a worker that panics (a memory
+// fault when the file is truncated, which debug.SetPanicOnFault turns
+// into a panic in each worker) stops, and the first panic value is raised
+// again on the caller's goroutine after every worker has ended, where the
+// caller's data.Guard turns a fault into an error naming the file.
 func eachBlock(dst []Scores, sh *shared, score func(sc *scorer, dst []Scores, n0, w int)) {
 	n := sh.n
 	nblocks := (n + scoreBlock - 1) / scoreBlock
 	workers := min(runtime.GOMAXPROCS(0), nblocks)
 	var next atomic.Int64
 	var wg sync.WaitGroup
+	var saved struct {
+		sync.Mutex
+		v any
+	}
 	for w := 0; w < workers; w++ {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
+			defer func() {
+				if r := recover(); r != nil {
+					saved.Lock()
+					if saved.v == nil {
+						saved.v = r
+					}
+					saved.Unlock()
+				}
+			}()
+			debug.SetPanicOnFault(true)
 			sc := newScorer(sh.nbins)
 			for {
 				blk := int(next.Add(1) - 1)
@@ -169,6 +190,9 @@ func eachBlock(dst []Scores, sh *shared, score func(sc *scorer, dst []Scores, n0
 		}()
 	}
 	wg.Wait()
+	if saved.v != nil {
+		panic(saved.v)
+	}
 }
 
 // shared holds the per-call data common to all neurons.

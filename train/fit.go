@@ -49,6 +49,9 @@ type Checkpoint struct {
 	// Config is the resolved config the fit was started with; the caller
 	// sets it and checks it on resume.
 	Config []byte
+	// Files are the recording's files the fit was started on (with their
+	// content hashes); the caller sets them and checks them on resume.
+	Files []data.FileID
 }
 
 // ErrInterrupted is returned (wrapped) when the context is cancelled; a
@@ -410,7 +413,18 @@ func (tr *trainer) Epoch(opt *nn.Adam) float64 {
 // With resume not nil, training continues from that checkpoint. The context
 // stops training between epochs; then a checkpoint is handed to hooks and
 // ErrInterrupted is returned.
-func Fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
+//
+// Every read of the recording runs under data.Guard: a mapped responses
+// file truncated during the fit gives a *data.FaultError naming it, not a
+// crash.
+func Fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (f *Fitted, err error) {
+	if gerr := data.Guard(func() { f, err = fit(ctx, p, hooks, resume) }); gerr != nil {
+		return nil, gerr
+	}
+	return f, err
+}
+
+func fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
 	cfg := p.Cfg
 	if cfg.SolverToRun() == SolverProjected {
 		if cfg.Model.Loss == Poisson {

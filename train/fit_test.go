@@ -49,8 +49,9 @@ func synthPrepared(t testing.TB, neurons, trials int, edit func(*Config)) (*Prep
 func TestConditionSumIdentity(t *testing.T) {
 	for _, loss := range []Loss{MSE, Poisson} {
 		t.Run(loss.String(), func(t *testing.T) {
+			// The loss is set after preparing: the identity holds for any
+			// targets >= 0, and Prepare refuses non-counts for poisson.
 			p, _ := synthPrepared(t, 30, 300, func(c *Config) {
-				c.Model.Loss = loss
 				if loss == Poisson {
 					c.Model.Output = nn.Softplus
 					c.Split.ZScore = false
@@ -58,6 +59,7 @@ func TestConditionSumIdentity(t *testing.T) {
 				c.Model.Layers = []LayerConfig{{Channels: 3, Kernel: 5, Stride: 2, Border: BorderCircular}}
 				c.Axis.BinWidth = 12
 			})
+			p.Cfg.Model.Loss = loss
 			if loss == Poisson {
 				// Poisson needs non-negative targets: shift every response.
 				for i, v := range p.Rec.Y.Data {

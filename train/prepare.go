@@ -45,7 +45,18 @@ func Prepare(cfg *Config) (*Prepared, error) {
 }
 
 // PrepareRecording bins, checks and splits a recording already in memory.
-func PrepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
+// The check computes the content hashes of the recording's files
+// (Recording.Files, for fingerprints) and, with a count loss (poisson),
+// requires whole numbers >= 0. Every read of the responses runs under
+// data.Guard (a truncated mapped file gives a *data.FaultError).
+func PrepareRecording(cfg *Config, rec *data.Recording) (p *Prepared, err error) {
+	if gerr := data.Guard(func() { p, err = prepareRecording(cfg, rec) }); gerr != nil {
+		return nil, gerr
+	}
+	return p, err
+}
+
+func prepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
 	ax := cfg.DataAxis()
 	if err := ax.Validate(); err != nil {
 		return nil, err
@@ -79,7 +90,7 @@ func PrepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
 	if err := checkConditionIDs(rec, cond, ax); err != nil {
 		return nil, err
 	}
-	rep, err := data.CheckWith(rec, cond, data.CheckOptions{NBins: p.NBins, Axis: &p.Axis})
+	rep, err := data.CheckWith(rec, cond, data.CheckOptions{NBins: p.NBins, Axis: &p.Axis, Counts: cfg.Model.Loss == Poisson, Hash: true})
 	if err != nil {
 		return nil, err
 	}

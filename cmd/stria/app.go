@@ -106,3 +106,13 @@ func oneFolderArg(c *cli.Context) error {
 	}
 	return nil
 }
+
+// noArgs refuses positional arguments for commands that take none (fit,
+// compare, inspect, demo): they would be silently ignored otherwise.
+func noArgs(c *cli.Context) error {
+	if c.NArg() == 0 {
+		return nil
+	}
+	return fmt.Errorf("%s takes no arguments, only options (got %q; an option after it is not read either): see stria %s --help",
+		c.Command.Name, strings.Join(c.Args().Slice(), " "), c.Command.Name)
+}

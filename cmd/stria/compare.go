@@ -7,6 +7,7 @@ import (
 	"os"
 	"os/signal"
 	"path/filepath"
+	"strings"
 	"syscall"
 
 	"github.com/urfave/cli/v2"
@@ -26,9 +27,13 @@ func compareCommand() *cli.Command {
 			&cli.IntFlag{Name: "array-task-count", Usage: "the number `N` of array tasks the units are dealt to (every N-th unit goes to one task)"},
 			&cli.IntFlag{Name: "workers", Usage: "units run at once (0: one per core)"},
 			&cli.IntFlag{Name: "slurm-script", Usage: "print a Slurm job-array script for `N` array tasks and exit"},
+			&cli.BoolFlag{Name: "overwrite", Usage: "start the comparison folder afresh: its files, finished units included, are deleted first"},
 			&cli.BoolFlag{Name: "quiet", Aliases: []string{"q"}, Usage: "no progress lines"},
 		),
 		Action: func(c *cli.Context) error {
+			if err := noArgs(c); err != nil {
+				return err
+			}
 			cfg, err := loadConfig(c)
 			if err != nil {
 				return err
@@ -39,9 +44,12 @@ func compareCommand() *cli.Command {
 			if n := c.Int("slurm-script"); n > 0 {
 				return printSlurmScript(c.App.Writer, c.String("config"), cfg.Compare.Output, n)
 			}
-			o := compareOptions{workers: c.Int("workers"), quiet: c.Bool("quiet")}
+			o := compareOptions{workers: c.Int("workers"), quiet: c.Bool("quiet"), overwrite: c.Bool("overwrite")}
 			if o.task, o.tasks, err = arrayTask(c, os.Getenv); err != nil {
 				return err
+			}
+			if o.overwrite && o.tasks > 0 {
+				return fmt.Errorf("compare: --overwrite would delete the other array tasks' results: empty the folder once before the array runs (or use a new --out)")
 			}
 			ctx, stop := signal.NotifyContext(c.Context, os.Interrupt, syscall.SIGTERM)
 			defer stop()
@@ -96,6 +104,14 @@ func gatherCommand() *cli.Command {
 			if err != nil {
 				return err
 			}
+			lock, note, err := runfolder.AcquireLock(dir, strings.Join(os.Args, " "))
+			if err != nil {
+				return err
+			}
+			defer lock.Release()
+			if note != "" {
+				fmt.Fprintln(c.App.ErrWriter, "note:", note)
+			}
 			return gatherPlan(c.App.Writer, plan)
 		},
 	}
@@ -107,12 +123,29 @@ type compareOptions struct {
 	task, tasks int
 	workers     int
 	quiet       bool
+	// overwrite empties the comparison folder first (not with array
+	// tasks); without it finished units are reused when their
+	// fingerprints match.
+	overwrite bool
 }
 
 // runCompare runs the units of a comparison (all of them, or one array
 // task's) and, when it ran all of them, gathers the results.
+//
+// Everything that can fail is checked before anything is written: the
+// config, the output folder, every recording's data and folds, and the
+// fingerprints of the units already finished (a unit computed with other
+// settings or data is refused, not reused). An array task also refuses a
+// folder whose settings.yaml holds other settings. The whole comparison
+// (not an array task, which shares the folder with the others) locks the
+// folder.
 func runCompare(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer, o compareOptions) ([]*runfolder.Comparison, error) {
 	plan, err := compare.NewPlan(cfg)
+	if err != nil {
+		return nil, err
+	}
+	// The settings as given, before preparing the data resolves the axis.
+	settings, err := cfg.Marshal()
 	if err != nil {
 		return nil, err
 	}
@@ -120,18 +153,44 @@ func runCompare(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer
 	if o.tasks > 0 {
 		units = plan.ArrayTask(o.task, o.tasks)
 	}
+	out := cfg.Compare.Output
+	if err := checkCompareFolder(out, cfg, o); err != nil {
+		return nil, err
+	}
+	check := func() error {
+		if o.overwrite {
+			return plan.CheckData(units)
+		}
+		return plan.Check(units)
+	}
+	if err := check(); err != nil {
+		return nil, err
+	}
+	if o.tasks == 0 {
+		lock, note, err := runfolder.AcquireLock(out, strings.Join(os.Args, " "))
+		if err != nil {
+			return nil, err
+		}
+		defer lock.Release()
+		if note != "" {
+			fmt.Fprintln(stderr, "note:", note)
+		}
+		if o.overwrite {
+			if err := runfolder.Empty(out); err != nil {
+				return nil, err
+			}
+		}
+		if _, err := runfolder.RemoveStaleTemps(out); err != nil {
+			return nil, err
+		}
+	}
 	// The resolved settings go into the folder first: array tasks and
 	// gather read the plan from them. An earlier comparison's completion
 	// marker goes: the folder is incomplete until gathered.
-	out := cfg.Compare.Output
 	if err := plan.Begin(); err != nil {
 		return nil, err
 	}
-	b, err := cfg.Marshal()
-	if err != nil {
-		return nil, err
-	}
-	if err := runfolder.WriteBytes(filepath.Join(out, runfolder.FileSettings), b); err != nil {
+	if err := runfolder.WriteBytes(filepath.Join(out, runfolder.FileSettings), settings); err != nil {
 		return nil, err
 	}
 	done := 0
@@ -154,6 +213,57 @@ func runCompare(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer
 		return nil, nil
 	}
 	return nil, gatherPlan(stdout, plan)
+}
+
+// checkCompareFolder refuses an output path that cannot be written, a run
+// folder or a folder of other files; for an array task, a folder locked by
+// a whole comparison or one whose settings.yaml holds other settings than
+// cfg (the array tasks of one comparison must share them).
+func checkCompareFolder(out string, cfg *train.Config, o compareOptions) error {
+	if err := runfolder.CheckWritable(out); err != nil {
+		return err
+	}
+	if err := runfolder.CheckUnlocked(out); err != nil {
+		return err
+	}
+	what, err := runfolder.Holds(out)
+	if err != nil || what == "" {
+		return err
+	}
+	kind, kerr := runfolder.Kind(out)
+	if kerr != nil && !fileExists(filepath.Join(out, runfolder.FileSettings)) {
+		return fmt.Errorf("output folder %s holds %s; choose an empty or new output folder (--out)", out, what)
+	}
+	if kind == runfolder.KindRun {
+		return fmt.Errorf("output folder %s holds a run folder (written by stria fit); a comparison needs its own folder (--out)", out)
+	}
+	if o.overwrite {
+		return runfolder.CheckEmptiable(out)
+	}
+	if o.tasks == 0 {
+		return nil
+	}
+	if !fileExists(filepath.Join(out, runfolder.FileSettings)) {
+		return nil
+	}
+	oldCfg, err := runfolder.LoadSettings(out)
+	if err != nil {
+		return err
+	}
+	a, err := oldCfg.NumericSettings()
+	if err != nil {
+		return err
+	}
+	b, err := cfg.NumericSettings()
+	if err != nil {
+		return err
+	}
+	if string(a) != string(b) {
+		diff, _ := train.DiffSettings(a, b)
+		return fmt.Errorf("%s: its %s (written by an earlier comparison or array task) holds other settings; the array tasks of one comparison must share them:\n  %s\nuse a new output folder for these settings",
+			out, runfolder.FileSettings, strings.Join(diff, "\n  "))
+	}
+	return nil
 }
 
 // gatherPlan gathers the units of a plan and prints the results.

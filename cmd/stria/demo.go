@@ -34,6 +34,9 @@ func demoCommand() *cli.Command {
 			&cli.BoolFlag{Name: "quiet", Aliases: []string{"q"}, Usage: "no progress display"},
 		},
 		Action: func(c *cli.Context) error {
+			if err := noArgs(c); err != nil {
+				return err
+			}
 			ctx, stop := signal.NotifyContext(c.Context, os.Interrupt, syscall.SIGTERM)
 			defer stop()
 			return runDemo(ctx, c.App.Writer, c.App.ErrWriter, demoOptions{
@@ -186,11 +189,11 @@ func runDemo(ctx context.Context, stdout, stderr io.Writer, o demoOptions) error
 		return err
 	}
 	fmt.Fprintf(stdout, "\n== stria fit --config %s\n", cfgPath)
-	if _, err := runFit(ctx, cfg, fitOptions{quiet: o.quiet, stdout: stdout, stderr: stderr}); err != nil {
+	if _, err := runFit(ctx, cfg, fitOptions{overwrite: true, quiet: o.quiet, stdout: stdout, stderr: stderr}); err != nil {
 		return err
 	}
 	fmt.Fprintf(stdout, "\n== stria compare --config %s\n", cfgPath)
-	if _, err := runCompare(ctx, cfg, stdout, stderr, compareOptions{quiet: o.quiet}); err != nil {
+	if _, err := runCompare(ctx, cfg, stdout, stderr, compareOptions{overwrite: true, quiet: o.quiet}); err != nil {
 		return err
 	}
 	fmt.Fprintf(stdout, "\n== stria report --compare %s %s\n", cfg.Compare.Output, cfg.Output)

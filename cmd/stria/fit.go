@@ -9,6 +9,7 @@ import (
 	"os"
 	"os/signal"
 	"path/filepath"
+	"strings"
 	"syscall"
 	"time"
 
@@ -16,6 +17,7 @@ import (
 	"github.com/urfave/cli/v2"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
 )
@@ -27,31 +29,50 @@ func fitCommand() *cli.Command {
 		ArgsUsage: " ",
 		Flags: append(dataFlags(),
 			&cli.BoolFlag{Name: "resume", Usage: "continue from the checkpoint in the run folder"},
+			&cli.BoolFlag{Name: "overwrite", Usage: "replace the run folder of an earlier fit: its files are deleted first"},
 			&cli.BoolFlag{Name: "quiet", Aliases: []string{"q"}, Usage: "no progress display"},
 			&cli.BoolFlag{Name: "timings", Usage: "print the wall time of each phase to stderr"},
 		),
 		Action: func(c *cli.Context) error {
+			if err := noArgs(c); err != nil {
+				return err
+			}
 			cfg, err := loadConfig(c)
 			if err != nil {
 				return err
 			}
+			if c.Bool("resume") && c.Bool("overwrite") {
+				return fmt.Errorf("fit: --resume continues the fit in the folder and --overwrite deletes it: give one of them")
+			}
 			ctx, stop := signal.NotifyContext(c.Context, os.Interrupt, syscall.SIGTERM)
 			defer stop()
-			_, err = runFit(ctx, cfg, fitOptions{resume: c.Bool("resume"), quiet: c.Bool("quiet"), timings: c.Bool("timings"), stdout: c.App.Writer, stderr: c.App.ErrWriter})
+			_, err = runFit(ctx, cfg, fitOptions{resume: c.Bool("resume"), overwrite: c.Bool("overwrite"), quiet: c.Bool("quiet"), timings: c.Bool("timings"), stdout: c.App.Writer, stderr: c.App.ErrWriter})
 			return err
 		},
 	}
 }
 
 type fitOptions struct {
-	resume  bool
-	quiet   bool
-	timings bool
-	stdout  io.Writer
-	stderr  io.Writer
+	resume bool
+	// overwrite empties a folder holding an earlier run before the fit
+	// writes into it; without it such a folder is refused.
+	overwrite bool
+	quiet     bool
+	timings   bool
+	stdout    io.Writer
+	stderr    io.Writer
+	// afterFit, when set, runs after training and before scoring (tests
+	// change the data there).
+	afterFit func()
 }
 
 // runFit loads, trains, scores and writes the run folder.
+//
+// Nothing is written until the config, the output folder and the data
+// have been checked. The folder is then locked (one writer at a time; see
+// runfolder.AcquireLock), emptied with overwrite, cleared of temporary
+// files a killed fit left, and its completion marker removed; the marker
+// is written again last.
 func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*runfolder.Summary, error) {
 	if o.stderr == nil {
 		o.stderr = os.Stderr
@@ -62,14 +83,24 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*runfolder.Su
 	if err != nil {
 		return nil, err
 	}
+	if err := runfolder.CheckWritable(dir); err != nil {
+		return nil, err
+	}
+	if err := checkFitFolder(dir, o); err != nil {
+		return nil, err
+	}
 	var resume *train.Checkpoint
 	if o.resume {
 		resume, err = runfolder.LoadResumeState(dir)
+		if os.IsNotExist(err) {
+			return nil, fmt.Errorf("--resume: %s holds no checkpoint (%s) to continue from", dir, runfolder.FileResume)
+		}
 		if err != nil {
 			return nil, fmt.Errorf("--resume: %w", err)
 		}
 		if !bytes.Equal(resume.Config, cfgYAML) {
-			return nil, fmt.Errorf("--resume: the checkpoint in %s was written with another config; refusing to mix them", dir)
+			diff, _ := train.DiffSettings(resume.Config, cfgYAML)
+			return nil, fmt.Errorf("--resume: the checkpoint in %s was written with another config; refusing to mix them:\n  %s", dir, strings.Join(diff, "\n  "))
 		}
 	}
 	last := start
@@ -90,9 +121,37 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*runfolder.Su
 		return nil, err
 	}
 	phase("bin, check, split, normalise")
-	// The data are good: an earlier fit's completion marker goes before
-	// anything is written, so the folder reads as incomplete until this
-	// fit finishes.
+	files := rec.Files()
+	if resume != nil && resume.Files == nil {
+		return nil, fmt.Errorf("--resume: the checkpoint in %s does not record the data it was written on, so it cannot be checked; fit again without --resume (with --overwrite)", dir)
+	}
+	if resume != nil {
+		if diff := runfolder.FilesMismatch(resume.Files, files); len(diff) > 0 {
+			return nil, fmt.Errorf("--resume: the checkpoint in %s was written on other data; refusing to mix them:\n  %s\nfit again without --resume (with --overwrite)", dir, strings.Join(diff, "\n  "))
+		}
+	}
+	// The data are good: lock the folder, then clear what an earlier fit
+	// left; an earlier fit's completion marker goes before anything is
+	// written, so the folder reads as incomplete until this fit finishes.
+	lock, note, err := runfolder.AcquireLock(dir, strings.Join(os.Args, " "))
+	if err != nil {
+		return nil, err
+	}
+	defer lock.Release()
+	if note != "" {
+		fmt.Fprintln(o.stderr, "note:", note)
+	}
+	if err := checkFitFolder(dir, o); err != nil { // again, under the lock
+		return nil, err
+	}
+	if o.overwrite {
+		if err := runfolder.Empty(dir); err != nil {
+			return nil, err
+		}
+	}
+	if _, err := runfolder.RemoveStaleTemps(dir); err != nil {
+		return nil, err
+	}
 	if err := runfolder.Begin(dir); err != nil {
 		return nil, err
 	}
@@ -102,6 +161,7 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*runfolder.Su
 	hooks := train.Hooks{
 		Checkpoint: func(c *train.Checkpoint) error {
 			c.Config = cfgYAML
+			c.Files = files
 			return runfolder.SaveResumeState(dir, c)
 		},
 	}
@@ -133,12 +193,23 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*runfolder.Su
 		return nil, err
 	}
 	phase(fmt.Sprintf("fit (%d epochs)", len(fitted.Log)))
+	if o.afterFit != nil {
+		o.afterFit()
+	}
 	// The weights are written while the test trials are scored.
 	written := make(chan error, 1)
 	go func() { written <- runfolder.WriteModel(dir, p, fitted) }()
-	scores := train.ScoreFitted(p, fitted)
+	var scores []eval.Scores
+	gerr := data.Guard(func() { scores = train.ScoreFitted(p, fitted) })
 	phase("score the test trials")
 	if err := <-written; err != nil {
+		return nil, err
+	}
+	if gerr != nil {
+		return nil, gerr
+	}
+	// The data must not have changed while the fit read them.
+	if err := rec.Unchanged(); err != nil {
 		return nil, err
 	}
 	sum, err := runfolder.WriteResults(dir, p, fitted, scores, time.Since(start))
@@ -157,6 +228,35 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*runfolder.Su
 		printSummary(o.stdout, dir, sum)
 	}
 	return sum, nil
+}
+
+// checkFitFolder refuses an output folder that holds an earlier run (or
+// anything else) unless the fit resumes it or overwrites it; overwrite
+// empties only a folder stria wrote.
+func checkFitFolder(dir string, o fitOptions) error {
+	// Another stria writing the folder is the first thing to say.
+	if err := runfolder.CheckUnlocked(dir); err != nil {
+		return err
+	}
+	if o.resume {
+		return nil
+	}
+	what, err := runfolder.Holds(dir)
+	if err != nil || what == "" {
+		return err
+	}
+	if _, kerr := runfolder.Kind(dir); kerr != nil && !fileExists(filepath.Join(dir, runfolder.FileSettings)) {
+		return fmt.Errorf("output folder %s holds %s; choose an empty or new output folder (--out)", dir, what)
+	}
+	if o.overwrite {
+		return runfolder.CheckEmptiable(dir)
+	}
+	return fmt.Errorf("output folder %s holds %s: give --overwrite to replace it (its files are deleted first), --resume to continue an interrupted fit, or another --out", dir, what)
+}
+
+func fileExists(path string) bool {
+	_, err := os.Stat(path)
+	return err == nil
 }
 
 func printSummary(w io.Writer, dir string, s *runfolder.Summary) {

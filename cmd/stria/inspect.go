@@ -20,6 +20,9 @@ func inspectCommand() *cli.Command {
 		ArgsUsage: " ",
 		Flags:     dataFlags()[:3],
 		Action: func(c *cli.Context) error {
+			if err := noArgs(c); err != nil {
+				return err
+			}
 			cfg, err := loadConfig(c)
 			if err != nil {
 				return err
@@ -28,7 +31,11 @@ func inspectCommand() *cli.Command {
 			if err != nil {
 				return err
 			}
-			return inspect(c.App.Writer, cfg, rec)
+			// A mapped recording truncated meanwhile: an error naming it.
+			if gerr := data.Guard(func() { err = inspect(c.App.Writer, cfg, rec) }); gerr != nil {
+				return gerr
+			}
+			return err
 		},
 	}
 }
@@ -42,7 +49,7 @@ func inspect(w io.Writer, cfg *train.Config, rec *data.Recording) error {
 	if err != nil {
 		return fmt.Errorf("stimulus %s: %w", rec.Source.Stimulus, err)
 	}
-	rep, err := data.CheckWith(rec, cond, data.CheckOptions{NBins: nb, Axis: &ax})
+	rep, err := data.CheckWith(rec, cond, data.CheckOptions{NBins: nb, Axis: &ax, Counts: cfg.Model.Loss == train.Poisson})
 	if err != nil {
 		return err
 	}

@@ -165,10 +165,10 @@ func TestDemoEndToEnd(t *testing.T) {
 	if err := data.WriteNPY64(stim, []int{2}, []float64{10, nanValue()}); err != nil {
 		t.Fatal(err)
 	}
-	if _, err := runCLI(t, "predict", "--stimulus", stim, "--out", pred+"2", run); err == nil || !strings.Contains(err.Error(), "1 (0-based)") {
+	if _, err := runCLI(t, "predict", "--stimulus", stim, "--out", filepath.Join(dir, "pred2.npy"), run); err == nil || !strings.Contains(err.Error(), "1 (0-based)") {
 		t.Errorf("predict with NaN stimulus: %v", err)
 	}
-	if _, err := os.Stat(pred + "2"); err == nil {
+	if _, err := os.Stat(filepath.Join(dir, "pred2.npy")); err == nil {
 		t.Error("a failed predict left an output file")
 	}
 }

@@ -453,6 +453,8 @@ func phases(o options, r rec) error {
 	if err := os.WriteFile(cfgPath, []byte(cfgText), 0o644); err != nil {
 		return err
 	}
+	// stria fit refuses a folder that holds an earlier run.
+	os.RemoveAll(out)
 	cmd := exec.Command(o.stria, "fit", "--quiet", "--timings", "--config", cfgPath)
 	cmd.Env = os.Environ()
 	if o.cpuprofile != "" {

@@ -11,4 +11,12 @@
 // numbered from 1 (task I of N runs every N-th unit, starting at the I-th).
 // Results do not depend on the number of workers or array tasks: each unit
 // is seeded by the config, not by the order it runs in.
+//
+// Every unit's result records its fingerprint (the settings it depends on,
+// see unitSettings, and the recording's file identities with content
+// hashes). A finished unit is reused only when its fingerprint matches;
+// Check, RunUnits and Gather refuse one that does not with a *StaleError
+// naming each difference. Every pass over a recording runs under the data
+// package's fault guard, and each result is written only after the
+// recording's files are found unchanged.
 package compare

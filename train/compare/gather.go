@@ -21,6 +21,10 @@ import (
 // is written last (into every recording's folder after its files, and
 // into the comparison folder after everything). It returns the comparison
 // of each recording, in plan order.
+//
+// Every unit's fingerprint must match the plan's (settings and data
+// files; otherwise a *StaleError), and the recordings must not have
+// changed while being read: both are checked before anything is written.
 func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 	if miss := p.Missing(); len(miss) > 0 {
 		show := miss
@@ -30,24 +34,25 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 		return nil, fmt.Errorf("%w: %d of %d not done: %s", ErrMissingUnits, len(miss), len(p.Units), strings.Join(show, ", "))
 	}
 	out := p.Dir()
-	if err := p.Begin(); err != nil {
+	// Every unit is done, so no array task writes one any more: the
+	// temporary files of killed writes can go.
+	if _, err := runfolder.RemoveStaleTemps(filepath.Join(out, runfolder.DirFoldResults)); err != nil {
 		return nil, err
 	}
-	var cmps []*runfolder.Comparison
+	// Everything is read and checked before anything is written.
+	folders := make([]*runfolder.ComparisonFolder, len(p.Recordings))
 	for ri, rec := range p.Recordings {
-		prep, err := train.Prepare(rec.Cfg)
+		prep, _, err := p.prepare(ri) // the folds for the coverage warnings
 		if err != nil {
-			return nil, p.recErr(rec, err)
+			return nil, err
 		}
-		if _, err := train.Folds(prep); err != nil { // for the coverage warnings
-			return nil, p.recErr(rec, err)
-		}
+		files := prep.Rec.Files()
 		var results []*runfolder.FoldResult
 		for _, u := range p.Units {
 			if u.Rec != ri {
 				continue
 			}
-			r, err := runfolder.ReadFoldResult(out, u.ID)
+			r, err := p.checkDone(u, files)
 			if err != nil {
 				return nil, err
 			}
@@ -59,11 +64,25 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 			}
 			results = append(results, r)
 		}
-		folder, err := newFolder(prep, rec.Specs, results)
+		var folder *runfolder.ComparisonFolder
+		if gerr := data.Guard(func() { folder, err = newFolder(prep, rec.Specs, results) }); gerr != nil {
+			return nil, p.recErr(rec, gerr)
+		}
 		if err != nil {
 			return nil, err
 		}
+		if err := prep.Rec.Unchanged(); err != nil {
+			return nil, p.recErr(rec, err)
+		}
 		folder.Result.Recording = rec.Name
+		folders[ri] = folder
+	}
+	if err := p.Begin(); err != nil {
+		return nil, err
+	}
+	var cmps []*runfolder.Comparison
+	for ri, rec := range p.Recordings {
+		folder := folders[ri]
 		dir := out
 		if rec.Name != "" {
 			dir = filepath.Join(out, rec.Name)

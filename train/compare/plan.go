@@ -11,6 +11,7 @@ import (
 	"strings"
 	"sync"
 
+	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
 )
@@ -38,6 +39,11 @@ type Plan struct {
 	Cfg        *train.Config
 	Recordings []Recording
 	Units      []Unit
+
+	// settings[r][s] is what the units of spec s on recording r depend
+	// on (see unitSettings), fixed when the plan is made: preparing a
+	// recording may resolve its axis in its config.
+	settings [][][]byte
 }
 
 // NewPlan expands the config's recordings, model specs and folds into
@@ -63,6 +69,13 @@ func NewPlan(c *train.Config) (*Plan, error) {
 			return nil, err
 		}
 		r.Specs = specs
+		us := make([][]byte, len(specs))
+		for si, s := range specs {
+			if us[si], err = unitSettings(r.Cfg, s); err != nil {
+				return nil, err
+			}
+		}
+		p.settings = append(p.settings, us)
 		for si, s := range specs {
 			for f := 0; f < r.Cfg.Split.Folds; f++ {
 				id := runfolder.FileName(s.Name) + "/fold" + strconv.Itoa(f+1)
@@ -166,47 +179,114 @@ func (p *Plan) ArrayTask(i, n int) []Unit {
 // Progress receives a line per finished unit.
 type Progress func(u Unit, skipped bool)
 
+// byRecording groups units by recording, in order of first appearance.
+func byRecording(units []Unit) (order []int, by map[int][]Unit) {
+	by = map[int][]Unit{}
+	for _, u := range units {
+		if _, ok := by[u.Rec]; !ok {
+			order = append(order, u.Rec)
+		}
+		by[u.Rec] = append(by[u.Rec], u)
+	}
+	return order, by
+}
+
+// prepare loads, checks (with the files' content hashes) and splits a
+// recording into its folds.
+func (p *Plan) prepare(ri int) (*train.Prepared, [][3][]int, error) {
+	rec := p.Recordings[ri]
+	prep, err := train.Prepare(rec.Cfg)
+	if err != nil {
+		return nil, nil, p.recErr(rec, err)
+	}
+	var folds [][3][]int
+	if err := data.Guard(func() { folds, err = train.Folds(prep) }); err != nil {
+		return nil, nil, p.recErr(rec, err)
+	}
+	if err != nil {
+		return nil, nil, p.recErr(rec, err)
+	}
+	return prep, folds, nil
+}
+
+// Check does everything that can fail before a comparison writes
+// anything: it loads and checks every recording the units belong to,
+// makes its folds, and reads the result of every finished unit of those
+// recordings (any array task's), refusing one whose fingerprint differs
+// (a *StaleError). Call it before creating the comparison folder.
+func (p *Plan) Check(units []Unit) error {
+	order, _ := byRecording(units)
+	for _, ri := range order {
+		prep, _, err := p.prepare(ri)
+		if err != nil {
+			return err
+		}
+		files := prep.Rec.Files()
+		for _, u := range p.Units {
+			if u.Rec == ri && p.Done(u) {
+				if _, err := p.checkDone(u, files); err != nil {
+					return err
+				}
+			}
+		}
+	}
+	return nil
+}
+
+// CheckData is Check without the finished units (for a comparison that
+// starts afresh): every recording the units belong to is loaded, checked
+// and split into its folds.
+func (p *Plan) CheckData(units []Unit) error {
+	order, _ := byRecording(units)
+	for _, ri := range order {
+		if _, _, err := p.prepare(ri); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
 // RunUnits runs the given units that are not done yet and writes their
-// results. Units of one recording share its loaded data; up to workers
-// units run at once (0: all cores). Results do not depend on the order or
-// the number of workers.
+// results with their fingerprints; a finished unit is reused only when
+// its fingerprint matches (otherwise a *StaleError). Units of one
+// recording share its loaded data; up to workers units run at once (0: all
+// cores). Results do not depend on the order or the number of workers.
+// Before each result is written the recording's files are checked to be
+// unchanged since they were loaded.
 func (p *Plan) RunUnits(ctx context.Context, units []Unit, workers int, progress Progress) error {
 	if workers <= 0 {
 		workers = runtime.GOMAXPROCS(0)
 	}
-	byRec := map[int][]Unit{}
-	var order []int
-	for _, u := range units {
-		if p.Done(u) {
-			if progress != nil {
-				progress(u, true)
-			}
-			continue
-		}
-		if _, ok := byRec[u.Rec]; !ok {
-			order = append(order, u.Rec)
-		}
-		byRec[u.Rec] = append(byRec[u.Rec], u)
-	}
+	order, byRec := byRecording(units)
 	for _, ri := range order {
 		rec := p.Recordings[ri]
-		prep, err := train.Prepare(rec.Cfg)
-		if err != nil {
-			return p.recErr(rec, err)
+		var todo []Unit
+		for _, u := range byRec[ri] {
+			if !p.Done(u) {
+				todo = append(todo, u)
+			}
 		}
-		folds, err := train.Folds(prep)
+		prep, folds, err := p.prepare(ri)
 		if err != nil {
-			return p.recErr(rec, err)
+			return err
 		}
-		todo := byRec[ri]
+		files := prep.Rec.Files()
+		for _, u := range byRec[ri] {
+			if p.Done(u) {
+				if _, err := p.checkDone(u, files); err != nil {
+					return err
+				}
+				if progress != nil {
+					progress(u, true)
+				}
+			}
+		}
 		var mu sync.Mutex
 		var firstErr error
 		next := 0
-		var wg sync.WaitGroup
+		var g data.GuardGroup
 		for w := 0; w < min(workers, len(todo)); w++ {
-			wg.Add(1)
-			go func() {
-				defer wg.Done()
+			g.Go(func() {
 				for {
 					mu.Lock()
 					if next >= len(todo) || firstErr != nil || ctx.Err() != nil {
@@ -216,7 +296,7 @@ func (p *Plan) RunUnits(ctx context.Context, units []Unit, workers int, progress
 					u := todo[next]
 					next++
 					mu.Unlock()
-					err := p.runOne(ctx, prep, rec, u, folds[u.Fold])
+					err := p.runOne(ctx, prep, rec, u, folds[u.Fold], files)
 					mu.Lock()
 					if err != nil && firstErr == nil {
 						firstErr = err
@@ -226,9 +306,11 @@ func (p *Plan) RunUnits(ctx context.Context, units []Unit, workers int, progress
 					}
 					mu.Unlock()
 				}
-			}()
+			})
 		}
-		wg.Wait()
+		if err := g.Wait(); err != nil {
+			return p.recErr(rec, err)
+		}
 		if firstErr != nil {
 			return firstErr
 		}
@@ -246,12 +328,21 @@ func (p *Plan) recErr(rec Recording, err error) error {
 	return fmt.Errorf("recording %s: %w", rec.Name, err)
 }
 
-func (p *Plan) runOne(ctx context.Context, prep *train.Prepared, rec Recording, u Unit, sets [3][]int) error {
+func (p *Plan) runOne(ctx context.Context, prep *train.Prepared, rec Recording, u Unit, sets [3][]int, files []data.FileID) error {
+	if err := runfolder.RemoveFoldResultTemps(p.Dir(), u.ID); err != nil {
+		return err
+	}
 	r, err := train.RunUnit(ctx, prep, rec.Specs[u.Spec], u.Fold, sets)
 	if err != nil {
 		return p.recErr(rec, err)
 	}
-	return runfolder.WriteFoldResult(p.Dir(), &runfolder.FoldResult{ID: u.ID, Model: r.Model, Fold: r.Fold, Scores: r.Scores, Curves: r.Curves, Epochs: r.Epochs})
+	// The data must not have changed under the unit (a mapped file
+	// rewritten in place would mix two versions of it).
+	if err := prep.Rec.Unchanged(); err != nil {
+		return p.recErr(rec, err)
+	}
+	return runfolder.WriteFoldResult(p.Dir(), &runfolder.FoldResult{ID: u.ID, Model: r.Model, Fold: r.Fold, Scores: r.Scores, Curves: r.Curves, Epochs: r.Epochs,
+		Fingerprint: p.fingerprint(u, files)})
 }
 
 // Missing lists the ids of the units without a result.

@@ -136,7 +136,12 @@ func loadCondData(dir string, m *runfolder.Manifest) (*condData, error) {
 	for i := range all {
 		all[i] = i
 	}
-	st := data.NewCondStats(rec.Y, sp.Cond, all, nb)
+	// Under the fault guard: a mapped recording truncated meanwhile gives
+	// an error naming it.
+	var st *data.CondStats
+	if err := data.Guard(func() { st = data.NewCondStats(rec.Y, sp.Cond, all, nb) }); err != nil {
+		return nil, err
+	}
 	cd := &condData{Mean: st.Mean(nil), SEM: st.Var(nil), Trials: rec.Y.Rows}
 	for c := 0; c < nb; c++ {
 		for j := 0; j < n; j++ {

@@ -677,6 +677,9 @@ type FoldResult struct {
 	Scores []eval.Scores
 	Curves []float64
 	Epochs int
+	// Fingerprint is what the numbers depend on (empty in results of an
+	// older stria).
+	Fingerprint Fingerprint
 }
 
 // FoldResultPath is where the unit with the given id (recording/model/
@@ -698,6 +701,23 @@ func WriteFoldResult(dir string, r *FoldResult) error {
 		return err
 	}
 	return WriteFile(path, func(w io.Writer) error { return gob.NewEncoder(w).Encode(r) })
+}
+
+// RemoveFoldResultTemps removes the temporary files a killed write of
+// this unit's result left (only the process running a unit writes it, so
+// an array task may call this for its own units while other tasks run).
+func RemoveFoldResultTemps(dir, id string) error {
+	path := FoldResultPath(dir, id)
+	tmps, err := filepath.Glob(filepath.Join(filepath.Dir(path), "."+filepath.Base(path)+".tmp*"))
+	if err != nil {
+		return err
+	}
+	for _, t := range tmps {
+		if err := os.Remove(t); err != nil && !errNotExist(err) {
+			return err
+		}
+	}
+	return nil
 }
 
 // ReadFoldResult reads a unit's result.

@@ -20,6 +20,19 @@
 //     finished folder (LoadModel, Open) refuse a folder without it, naming
 //     the folder. Starting a fit or a comparison (Begin) removes an old
 //     marker first.
+//   - One writer per folder: AcquireLock creates .stria-lock (pid, host,
+//     start time, command) with O_EXCL before anything is written; a
+//     second writer gets ErrLocked naming the first; a lock of a process
+//     that has ended on this host is taken over with a note. Output is
+//     written in place (no staging folder): resume_state.gob must stay
+//     where an interrupted fit left it, and complete.json tells a
+//     finished folder from an unfinished one. RemoveStaleTemps clears the
+//     temporary files of a killed write; CheckWritable probes an output
+//     path before long work; Empty (an explicit overwrite) deletes only
+//     names stria writes.
+//   - A comparison unit's result (FoldResult) carries a Fingerprint: the
+//     settings its numbers depend on and the data files' identity;
+//     Fingerprint.Mismatch says what differs.
 //   - Times (model.json's created, complete.json's finished) are the only
 //     fields that differ between two writes of the same results; the
 //     round-trip tests compare everything else byte for byte.
