@@ -54,6 +54,10 @@ func unitSettings(rec *train.Config, spec train.ModelSpec) ([]byte, error) {
 	// used.
 	c.Split.TestFraction = 0
 	c.Recordings = nil
+	// Acuity and which neurons the summaries keep are decided after the
+	// units, from their scores.
+	c.Acuity = train.AcuityConfig{}
+	c.Scores.MinReliability = 0
 	c.Train.CheckpointEvery = 0
 	c.Data.Responses, c.Data.Stimulus, c.Data.Condition, c.Data.Block = "", "", "", ""
 	return c.NumericSettings()
