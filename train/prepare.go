@@ -14,6 +14,10 @@ type Prepared struct {
 	NBins int
 	// Cond is the bin of each trial.
 	Cond []int
+	// Values is the stimulus value of each condition (bin): the mean
+	// stimulus value of its trials, the bin centre for an empty bin. Tuning
+	// descriptors and figures place the conditions there.
+	Values []float64
 	// Blocks is the block of each trial that splits keep together (nil when
 	// blocks are not kept): the recording's block ids, or runs of
 	// split.block_trials consecutive trials.
@@ -84,6 +88,11 @@ func PrepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
 		return nil, err
 	}
 	p.Report = rep
+	var offNote string
+	p.Values, offNote = p.conditionValues()
+	if offNote != "" {
+		notes = append(notes, offNote)
+	}
 	rep.Warnings = append(notes, rep.Warnings...)
 	if cfg.Split.KeepBlocks {
 		p.Blocks = rec.Block

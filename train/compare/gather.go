@@ -39,7 +39,8 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 		if err != nil {
 			return nil, p.recErr(rec, err)
 		}
-		if _, err := train.Folds(prep); err != nil { // for the coverage warnings
+		folds, err := train.Folds(prep) // also for the coverage warnings
+		if err != nil {
 			return nil, p.recErr(rec, err)
 		}
 		var results []*runfolder.FoldResult
@@ -59,7 +60,7 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 			}
 			results = append(results, r)
 		}
-		folder, err := newFolder(prep, rec.Specs, results)
+		folder, err := newFolder(prep, rec.Specs, results, folds)
 		if err != nil {
 			return nil, err
 		}
@@ -90,8 +91,8 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 }
 
 // newFolder computes everything the comparison folder of one recording
-// holds from the units' results (in plan order).
-func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.FoldResult) (*runfolder.ComparisonFolder, error) {
+// holds from the units' results (in plan order) on the given folds.
+func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.FoldResult, folds [][3][]int) (*runfolder.ComparisonFolder, error) {
 	names := make([]string, len(specs))
 	var encoders []string
 	for i, s := range specs {
@@ -109,16 +110,24 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.
 	}
 	perFold := map[string][][]eval.Scores{}
 	for _, r := range results {
+		if r.Fold != len(perFold[r.Model]) {
+			return nil, fmt.Errorf("unit %s: fold %d where fold %d was expected", r.ID, r.Fold+1, len(perFold[r.Model])+1)
+		}
 		perFold[r.Model] = append(perFold[r.Model], r.Scores)
 	}
-	c := Summarise(names, p.Cfg.Split.Folds, n, perFold, excluded)
+	rel := train.Reliability(p)
+	for j := range ex {
+		rel[j] = math.NaN()
+	}
+	c, verdicts := Summarise(names, p.Cfg.Split.Folds, n, perFold, excluded,
+		Scoring{Alpha: p.Cfg.Scores.CeilingAlpha, SplitHalfAll: rel, MinReliability: p.Cfg.Scores.MinReliability})
 	settings, err := p.Cfg.Marshal()
 	if err != nil {
 		return nil, err
 	}
 	f := &runfolder.ComparisonFolder{Settings: settings, Result: c, Excluded: reasons, Curves: map[string][]float64{}}
 	for _, r := range results {
-		f.FoldScores = append(f.FoldScores, runfolder.NewFoldScores(r.Model, r.Fold, r.Scores, ex))
+		f.FoldScores = append(f.FoldScores, runfolder.NewFoldScores(r.Model, r.Fold, r.Scores, ex, verdicts[r.Fold]))
 	}
 	// Fold-averaged curves per model.
 	for _, m := range names {
@@ -151,8 +160,9 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.
 		}
 	}
 	f.Curves[runfolder.CurveDataMean], f.Curves[runfolder.CurveDataSEM] = means, sem
-	// Tuning descriptors of the data's and every model's curves.
-	centers := p.Axis.Centers()
+	// Tuning descriptors of the data's and every model's curves, at the
+	// conditions' stimulus values; NaN throughout for an excluded neuron.
+	values := p.Values
 	period := 0.0
 	if p.Axis.Periodic {
 		period = p.Axis.Max - p.Axis.Min
@@ -164,15 +174,21 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.
 			curve = f.Curves[src]
 		}
 		for j := 0; j < n; j++ {
+			if excluded[j] {
+				f.Descriptors = append(f.Descriptors, runfolder.Descriptor{Source: src, Neuron: j, Descriptors: NaNDescriptors()})
+				continue
+			}
 			for b := 0; b < nb; b++ {
 				r[b] = curve[b*n+j]
 			}
-			f.Descriptors = append(f.Descriptors, runfolder.Descriptor{Source: src, Neuron: j, Descriptors: tuning.Describe(r, centers, period)})
+			f.Descriptors = append(f.Descriptors, runfolder.Descriptor{Source: src, Neuron: j, Descriptors: tuning.Describe(r, values, period)})
 		}
 	}
 	info := runfolder.ComparisonInfo{Models: names, Encoders: encoders, Folds: c.Folds, Neurons: n, Excluded: map[string]string{},
-		Summary: c.Summary, Winner: c.Winner, Pairs: runfolder.NewPairInfo(c.Pairs), PValues: runfolder.WilcoxonNote,
-		Cautions: train.Cautions, Warnings: p.Report.Warnings,
+		Ceilings: runfolder.CeilingCounts(ceilingVerdicts(c.Ceiling), func(j int) bool { return excluded[j] }), FoldCeilings: c.FoldCeilings,
+		Reliable: Reliable(c), MinReliability: c.MinReliability,
+		Summary:  c.Summary, Winner: c.Winner, Pairs: runfolder.NewPairInfo(c.Pairs), PValues: runfolder.WilcoxonNote,
+		Cautions: FoldCautions(p, folds), Warnings: Dedup(p.Report.Warnings),
 		Axis:   runfolder.AxisOf(p),
 		Epochs: map[string][]int{}, Recordings: []string{p.Rec.Source.Responses}}
 	for j, why := range ex {
@@ -184,5 +200,53 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.
 		}
 	}
 	f.Info = info
+	c.Cautions, c.Warnings = info.Cautions, info.Warnings
 	return f, nil
+}
+
+// NaNDescriptors are the descriptors of a neuron excluded from scoring:
+// NaN throughout (its reason is in the excluded column of the score
+// tables and in comparison.json).
+func NaNDescriptors() tuning.Descriptors {
+	nan := math.NaN()
+	return tuning.Descriptors{Preferred: nan, Peak: nan, OneMinusCV: nan, DirVector: nan, OSI: nan, DSI: nan}
+}
+
+// ceilingVerdicts parses verdict codes ("" for an excluded neuron, which
+// the caller leaves out of any count).
+func ceilingVerdicts(codes []string) []eval.Ceiling {
+	out := make([]eval.Ceiling, len(codes))
+	for j, s := range codes {
+		for c := eval.CeilingUsable; c <= eval.CeilingNotSignificant; c++ {
+			if s == c.String() {
+				out[j] = c
+			}
+		}
+	}
+	return out
+}
+
+// FoldCautions returns the cautions for a comparison on the given folds
+// (train.CautionsFor over the test trials of every fold): the few-trials
+// caution when a condition has fewer than train.FewTrials test trials in
+// some fold.
+func FoldCautions(p *train.Prepared, folds [][3][]int) []string {
+	var k []int
+	for _, f := range folds {
+		k = append(k, p.TrialsPerCondition(f[2])...)
+	}
+	return train.CautionsFor(k)
+}
+
+// Dedup returns the messages without repeats, in first-seen order.
+func Dedup(msgs []string) []string {
+	seen := map[string]bool{}
+	var out []string
+	for _, m := range msgs {
+		if !seen[m] {
+			seen[m] = true
+			out = append(out, m)
+		}
+	}
+	return out
 }
