@@ -187,7 +187,7 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.
 	info := runfolder.ComparisonInfo{Models: names, Encoders: encoders, Folds: c.Folds, Neurons: n, Excluded: map[string]string{},
 		Ceilings: runfolder.CeilingCounts(ceilingVerdicts(c.Ceiling), func(j int) bool { return excluded[j] }), FoldCeilings: c.FoldCeilings,
 		Reliable: Reliable(c), MinReliability: c.MinReliability,
-		Summary:  c.Summary, Winner: c.Winner, Pairs: runfolder.NewPairInfo(c.Pairs), PValues: runfolder.WilcoxonNote,
+		Summary: c.Summary, Winner: c.Winner, Pairs: runfolder.NewPairInfo(c.Pairs), PValues: runfolder.WilcoxonNote,
 		Cautions: FoldCautions(p, folds), Warnings: Dedup(p.Report.Warnings),
 		Axis:   runfolder.AxisOf(p),
 		Epochs: map[string][]int{}, Recordings: []string{p.Rec.Source.Responses}}

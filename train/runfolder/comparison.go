@@ -111,10 +111,10 @@ type ComparisonInfo struct {
 	Models []string `json:"models"`
 	// Encoders are the models that are encoders (the others are
 	// per-neuron baselines).
-	Encoders   []string                     `json:"encoders"`
-	Folds      int                          `json:"folds"`
-	Neurons    int                          `json:"neurons"`
-	Excluded   map[string]string            `json:"excluded_neurons"`
+	Encoders []string          `json:"encoders"`
+	Folds    int               `json:"folds"`
+	Neurons  int               `json:"neurons"`
+	Excluded map[string]string `json:"excluded_neurons"`
 	// Ceilings counts the scored neurons by their verdict over the folds
 	// (Comparison.Ceiling); FoldCeilings by verdict on each fold.
 	Ceilings     map[string]int   `json:"ceiling_verdicts"`
@@ -125,14 +125,14 @@ type ComparisonInfo struct {
 	Reliable       int                          `json:"neurons_reliable"`
 	MinReliability float64                      `json:"min_reliability"`
 	Summary        map[string]map[string]Spread `json:"summary"`
-	Winner     map[string]string            `json:"winner"`
-	Pairs      []PairInfo                   `json:"pairs"`
-	PValues    string                       `json:"p_value_method"`
-	Cautions   []string                     `json:"cautions"`
-	Warnings   []string                     `json:"warnings"`
-	Axis       AxisInfo                     `json:"axis"`
-	Epochs     map[string][]int             `json:"encoder_epochs,omitempty"`
-	Recordings []string                     `json:"recordings"`
+	Winner         map[string]string            `json:"winner"`
+	Pairs          []PairInfo                   `json:"pairs"`
+	PValues        string                       `json:"p_value_method"`
+	Cautions       []string                     `json:"cautions"`
+	Warnings       []string                     `json:"warnings"`
+	Axis           AxisInfo                     `json:"axis"`
+	Epochs         map[string][]int             `json:"encoder_epochs,omitempty"`
+	Recordings     []string                     `json:"recordings"`
 }
 
 // PairInfo is one pairwise test in comparison.json.
