@@ -57,9 +57,7 @@ func inspect(w io.Writer, cfg *train.Config, rec *data.Recording) error {
 		ax = centred
 		fmt.Fprintln(w, "bins: centred on the stimulus values, as stria fit will centre them:", note)
 	}
-	if hint := ax.RadiansHint(rec.Stim); hint != "" {
-		fmt.Fprintln(w, "hint:", hint)
-	}
+	hint := ax.RadiansHint(rec.Stim)
 	nb := ax.NumBins()
 	unit := ax.Unit
 	period := ""
@@ -71,7 +69,7 @@ func inspect(w io.Writer, cfg *train.Config, rec *data.Recording) error {
 	cond, err := ax.BinTrials(rec.Stim)
 	if err != nil {
 		problems = append(problems, fmt.Sprintf("stimulus %s: %v", rec.Source.Stimulus, err))
-		return inspectProblems(w, problems)
+		return inspectProblems(w, problems, hint)
 	}
 	rep, err := data.CheckWith(rec, cond, data.CheckOptions{NBins: nb, Axis: &ax})
 	if err != nil {
@@ -117,12 +115,16 @@ func inspect(w io.Writer, cfg *train.Config, rec *data.Recording) error {
 	if lo < train.FewTrials {
 		fmt.Fprintf(w, "note: some conditions have fewer than %d trials (all trials; a test split or fold holds a fraction of them): reliability and noise-ceiling estimates are biased and noisy with few trials per condition (stria help metrics).\n", train.FewTrials)
 	}
-	return inspectProblems(w, problems)
+	return inspectProblems(w, problems, hint)
 }
 
-// inspectProblems prints the problems that would stop stria fit and
-// returns an error when there are any.
-func inspectProblems(w io.Writer, problems []string) error {
+// inspectProblems prints the radians hint (unless a problem says it
+// already) and the problems that would stop stria fit, and returns an
+// error when there are any.
+func inspectProblems(w io.Writer, problems []string, hint string) error {
+	if hint != "" && !slices.ContainsFunc(problems, func(p string) bool { return strings.Contains(p, "look like radians") }) {
+		fmt.Fprintln(w, "hint:", hint)
+	}
 	for _, p := range problems {
 		fmt.Fprintln(w, "problem:", p)
 	}
@@ -152,7 +154,7 @@ func printStimulus(w io.Writer, ax data.Axis, rec *data.Recording) {
 		fmt.Fprintf(w, "stimulus (%s): no finite value\n", ax.Name)
 		return
 	}
-	fmt.Fprintf(w, "stimulus (%s): values from %g to %g%s", ax.Name, lo, hi, unit)
+	fmt.Fprintf(w, "stimulus (%s): values from %.6g to %.6g%s", ax.Name, lo, hi, unit)
 	if bad > 0 {
 		fmt.Fprintf(w, ", %d not finite", bad)
 	}
@@ -163,7 +165,7 @@ func printStimulus(w io.Writer, ax data.Axis, rec *data.Recording) {
 	if len(vals) <= few {
 		parts := make([]string, len(vals))
 		for i, v := range vals {
-			parts[i] = fmt.Sprintf("%g", v)
+			parts[i] = fmt.Sprintf("%.6g", v)
 		}
 		fmt.Fprintf(w, "; %d distinct: %s", len(vals), strings.Join(parts, ", "))
 	} else {

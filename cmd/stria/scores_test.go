@@ -7,6 +7,7 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 
 	"github.com/strialab/stria/data"
@@ -20,8 +21,9 @@ import (
 // baseline, kappa 1-4); 12 directions 30 deg apart (on the bin centres of
 // 0..360 in 30-deg bins when centred), perCond trials each, shuffled; one
 // constant cell (neuron 0) to check exclusions. It returns the config path
-// and which neurons are tuned.
-func writeUntunedHeavy(t *testing.T, dir string, n, perCond int, extra string) (string, []bool) {
+// and which neurons are tuned. split is added to the split section, extra
+// to the config.
+func writeUntunedHeavy(t *testing.T, dir string, n, perCond int, split, extra string) (string, []bool) {
 	t.Helper()
 	rng := rand.New(rand.NewPCG(12, 70))
 	const nb = 12
@@ -73,13 +75,13 @@ func writeUntunedHeavy(t *testing.T, dir string, n, perCond int, extra string) (
 	cfg := fmt.Sprintf(`seed: 3
 data: {responses: resp.npy, stimulus: dir.npy}
 axis: {name: direction, unit: deg, min: 0, max: 360, periodic: true, bin_width: 30}
-split: {test_fraction: 0.2, validation_fraction: 0.1, folds: 5, keep_blocks: false, zscore: true}
+split: {test_fraction: 0.2, validation_fraction: 0.1, folds: 5, keep_blocks: false, zscore: true%s}
 model:
   layers: [{channels: 4, kernel: 5, stride: 1, border: circular}]
 compare:
   baselines: [condmean, vonmises]
 output: %s
-%s`, filepath.Join(dir, "fit"), extra)
+%s`, split, filepath.Join(dir, "fit"), extra)
 	path := filepath.Join(dir, "cfg.yaml")
 	if err := os.WriteFile(path, []byte(cfg), 0o644); err != nil {
 		t.Fatal(err)
@@ -120,7 +122,7 @@ func TestUntunedHeavyRatios(t *testing.T) {
 	}
 	run := func(extra string) outcome {
 		dir := t.TempDir()
-		cfg, tuned := writeUntunedHeavy(t, dir, 300, 8, extra)
+		cfg, tuned := writeUntunedHeavy(t, dir, 300, 8, "", extra)
 		cmp := filepath.Join(dir, "cmp")
 		if out, err := runCLI(t, "fit", "--config", cfg, "--quiet"); err != nil {
 			t.Fatalf("fit: %v\n%s", err, out)
@@ -240,5 +242,47 @@ func TestUntunedHeavyRatios(t *testing.T) {
 	}{{"before (alpha 1)", before}, {"after (alpha 0.05)", after}} {
 		t.Logf("%s: fit ratios [%.3g, %.3g], NaN fev %d; compare folds [%.3g, %.3g], fold averages [%.3g, %.3g], NaN fev %d",
 			o.name, o.o.fitLo, o.o.fitHi, o.o.fitNaN, o.o.cmpLo, o.o.cmpHi, o.o.sumLo, o.o.sumHi, o.o.cmpNaN)
+	}
+}
+
+// TestInspectSummarises checks that stria inspect shows the stimulus
+// range, the distinct values and the blocks, names the split-half
+// reliability over all trials, and, on a config that stria fit refuses
+// (radian values on a degree axis: 11 of 12 bins empty), still prints the
+// summary, then the problem, and fails.
+func TestInspectSummarises(t *testing.T) {
+	dir := t.TempDir()
+	cfg, _ := writeUntunedHeavy(t, dir, 20, 6, ", block_trials: 8", "")
+	out, err := runCLI(t, "inspect", "--config", cfg)
+	if err != nil {
+		t.Fatalf("inspect: %v\n%s", err, out)
+	}
+	for _, want := range []string{
+		"stimulus (direction): values from 0 to 330 deg; 12 distinct: 0, 30, 60",
+		"blocks: 9 (runs of split.block_trials = 8 consecutive trials), trials per block min 8, median 8, max 8",
+		"split-half reliability (all trials)",
+		"neurons at or above scores.min_reliability = 0.3",
+		"fewer than 10 trials",
+	} {
+		if !strings.Contains(out, want) {
+			t.Errorf("inspect output lacks %q:\n%s", want, out)
+		}
+	}
+	// The same directions in radians on the degree axis.
+	stim := make([]float64, 72)
+	for i := range stim {
+		stim[i] = float64(i%12) * 30 * math.Pi / 180
+	}
+	if err := data.WriteNPY64(filepath.Join(dir, "dir.npy"), []int{72}, stim); err != nil {
+		t.Fatal(err)
+	}
+	out, err = runCLI(t, "inspect", "--config", cfg)
+	if err == nil || !strings.Contains(err.Error(), "problem") {
+		t.Errorf("inspect of radians on a degree axis: err %v, want a failure naming the problems", err)
+	}
+	for _, want := range []string{"trials: 72   neurons: 20", "values from 0 to 5.75959 deg", "blocks: 9", "look like radians", "problem:"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("inspect of a refused config lacks %q:\n%s", want, out)
+		}
 	}
 }
