@@ -98,7 +98,11 @@ type ModelConfig struct {
 	Layers    []LayerConfig `yaml:"layers"`
 	Output    nn.Activation `yaml:"output"`
 	Loss      Loss          `yaml:"loss"`
-	ReadoutL2 float64       `yaml:"readout_l2"`
+	ReadoutL2 Penalty       `yaml:"readout_l2"`
+	// ReadoutL2PerNeuron, with readout_l2 auto, chooses one penalty per
+	// neuron (by its own C_p, eval/methods.md §12) instead of one for all
+	// (default true; a fixed number is one penalty for all neurons).
+	ReadoutL2PerNeuron bool `yaml:"readout_l2_per_neuron"`
 }
 
 // TrainConfig is the optimiser and the stopping rule.
@@ -119,9 +123,11 @@ type TrainConfig struct {
 	Threads int `yaml:"threads"`
 	// Solver is auto (the default: projected wherever the model allows
 	// it, adam otherwise), adam (gradient steps on all weights, the
-	// reference) or projected (closed-form ridge readout, filters
-	// optimised on the projected loss; MSE, identity output, one-hot
-	// input, full batch).
+	// reference) or projected (for fixed filters the best readout of every
+	// neuron, the filters optimised on the resulting projected loss;
+	// one-hot input, full batch; MSE with identity output: closed-form
+	// ridge readout; Poisson with softplus or exp output, on request only:
+	// per-neuron Newton readout).
 	Solver Solver `yaml:"solver"`
 }
 
@@ -152,10 +158,11 @@ func Defaults() Config {
 			ZScore:             true,
 		},
 		Model: ModelConfig{
-			Layers:    []LayerConfig{{Channels: 8, Kernel: 9, Stride: 1}},
-			Output:    nn.Identity,
-			Loss:      MSE,
-			ReadoutL2: 1,
+			Layers:             []LayerConfig{{Channels: 8, Kernel: 9, Stride: 1}},
+			Output:             nn.Identity,
+			Loss:               MSE,
+			ReadoutL2:          AutoPenalty,
+			ReadoutL2PerNeuron: true,
 		},
 		Train: TrainConfig{
 			Optimizer:       OptimizerAdam,
@@ -282,9 +289,10 @@ func (c *Config) Validate() error {
 			bad("model.loss poisson needs the raw non-negative counts: set split.zscore: false")
 		}
 	}
-	if !(m.ReadoutL2 >= 0) || math.IsInf(m.ReadoutL2, 0) {
-		bad("model.readout_l2 %v: want a finite value >= 0", m.ReadoutL2)
+	if !(m.ReadoutL2.Value >= 0) || math.IsInf(m.ReadoutL2.Value, 0) {
+		bad("model.readout_l2 %v: want auto or a finite value >= 0", m.ReadoutL2)
 	}
+
 	t := c.Train
 	if !(t.LearningRate > 0) || math.IsInf(t.LearningRate, 0) {
 		bad("train.learning_rate %v: want a finite value > 0", t.LearningRate)
@@ -313,8 +321,8 @@ func (c *Config) Validate() error {
 	if t.CheckpointEvery < 1 {
 		bad("train.checkpoint_every %d: want at least 1", t.CheckpointEvery)
 	}
-	if t.Solver == SolverProjected && !c.projectable() {
-		bad("train.solver projected needs model.loss mse, model.output identity, axis.encoding onehot and train.batch_size 0")
+	if t.Solver == SolverProjected && !c.projectable() && !c.poissonProjectable() {
+		bad("train.solver projected needs axis.encoding onehot, train.batch_size 0 and either model.loss mse with model.output identity or model.loss poisson with model.output softplus or exp")
 	}
 	if t.Threads < 0 {
 		bad("train.threads %d: want 0 (all cores) or more", t.Threads)
@@ -344,6 +352,15 @@ func (c *Config) Validate() error {
 func (c *Config) projectable() bool {
 	m, t := c.Model, c.Train
 	return m.Loss == MSE && m.Output == nn.Identity && c.Axis.Encoding == OneHot && t.BatchSize == 0
+}
+
+// poissonProjectable reports whether train.solver projected can fit the
+// model with the Poisson fast path: Poisson loss with a softplus or exp
+// output on one-hot input, full batch. Solver auto does not choose it
+// (an epoch costs O(N B^3), more than an adam epoch at the usual sizes).
+func (c *Config) poissonProjectable() bool {
+	m, t := c.Model, c.Train
+	return m.Loss == Poisson && (m.Output == nn.Softplus || m.Output == nn.Exp) && c.Axis.Encoding == OneHot && t.BatchSize == 0
 }
 
 // SolverToRun is the solver a fit of this config runs: train.solver, with

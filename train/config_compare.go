@@ -22,7 +22,7 @@ type CompareConfig struct {
 type EncoderSpec struct {
 	Name         string               `yaml:"name"`
 	Layers       []LayerConfig        `yaml:"layers"`
-	ReadoutL2    *float64             `yaml:"readout_l2"`
+	ReadoutL2    *Penalty             `yaml:"readout_l2"`
 	LearningRate *float64             `yaml:"learning_rate"`
 	WeightDecay  *float64             `yaml:"weight_decay"`
 	Solver       *Solver              `yaml:"solver"`

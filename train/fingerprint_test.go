@@ -21,7 +21,7 @@ func TestNumericSettings(t *testing.T) {
 	if SettingsHash(sa) != SettingsHash(sb) {
 		t.Error("output folders or the thread count changed the settings hash")
 	}
-	b.Model.ReadoutL2 = 100
+	b.Model.ReadoutL2 = Penalty{Value: 100}
 	b.Seed = 2
 	b.Model.Layers = append(b.Model.Layers, LayerConfig{Channels: 2, Kernel: 3, Stride: 1})
 	sb, _ = b.NumericSettings()
@@ -33,7 +33,7 @@ func TestNumericSettings(t *testing.T) {
 		t.Fatal(err)
 	}
 	got := strings.Join(diff, "\n")
-	for _, want := range []string{"model.readout_l2: 1 -> 100", "seed: 1 -> 2", "model.layers[1].channels: (none) -> 2"} {
+	for _, want := range []string{"model.readout_l2: auto -> 100", "seed: 1 -> 2", "model.layers[1].channels: (none) -> 2"} {
 		if !strings.Contains(got, want) {
 			t.Errorf("diff\n%s\ndoes not say %q", got, want)
 		}

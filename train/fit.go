@@ -58,7 +58,11 @@ var ErrInterrupted = errors.New("training interrupted")
 type Fitted struct {
 	Net *nn.Net
 	// Solver is the solver that ran (never SolverAuto).
-	Solver    Solver
+	Solver Solver
+	// ReadoutL2 is the readout penalty of each neuron when it was chosen
+	// from the data (model.readout_l2: auto on the projected solver); nil
+	// when the config's number was used throughout.
+	ReadoutL2 []float64
 	Log       []EpochLog
 	BestEpoch int
 	// Stop says why training ended: "patience" or "max_epochs".
@@ -210,7 +214,7 @@ func newTrainer(p *Prepared, net *nn.Net) *trainer {
 	// are added (Adam's epsilon would otherwise make them matter).
 	trained := p.Neurons() - len(tr.excluded)
 	tr.gradScale = float64(p.Neurons()) / float64(max(trained, 1))
-	tr.l2 = cfg.Model.ReadoutL2 / float64(max(trained, 1))
+	tr.l2 = cfg.Model.ReadoutL2.Value / float64(max(trained, 1))
 	tc := cfg.Train
 	tr.pcg = rand.NewPCG(cfg.Seed, 0x5eed)
 	tr.rng = rand.New(tr.pcg)
@@ -408,6 +412,9 @@ func (tr *trainer) epoch(opt *nn.Adam) float64 {
 func Fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
 	cfg := p.Cfg
 	if cfg.SolverToRun() == SolverProjected {
+		if cfg.Model.Loss == Poisson {
+			return fitPoissonProjected(ctx, p, hooks, resume)
+		}
 		return fitProjected(ctx, p, hooks, resume)
 	}
 	net := nn.NewNet(cfg.Shape(p.NBins, p.Neurons()))

@@ -260,7 +260,7 @@ func TestDemoRecovery(t *testing.T) {
 	p, truth := synthPrepared(t, 200, 1200, func(c *Config) {
 		c.Train.MaxEpochs = 3000
 		c.Train.Patience = 100
-		c.Model.ReadoutL2 = demoL2
+		c.Model.ReadoutL2 = Penalty{Value: demoL2}
 		c.Split.ZScore = false
 	})
 	f, err := Fit(context.Background(), p, Hooks{}, nil)

@@ -116,7 +116,7 @@ func runEpochs(ctx context.Context, s solver, tc TrainConfig, hooks Hooks, resum
 		if st.Epoch == 1 {
 			first = loss
 		}
-		if math.IsNaN(loss) || math.IsInf(loss, 0) || loss > 1e6*(first+1e-12) {
+		if math.IsNaN(loss) || math.IsInf(loss, 0) || loss > 1e6*(math.Abs(first)+1e-12) {
 			return nil, fmt.Errorf("training diverged at epoch %d (loss %g, first epoch %g): try a smaller train.learning_rate (now %g)",
 				st.Epoch, loss, first, tc.LearningRate)
 		}

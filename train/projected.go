@@ -111,7 +111,7 @@ const (
 
 func newProjector(p *Prepared, net *nn.Net) (*projector, error) {
 	cfg := p.Cfg
-	if !(cfg.Model.ReadoutL2 > 0) {
+	if !(cfg.Model.ReadoutL2.Value > 0) {
 		return nil, fmt.Errorf("train.solver projected needs model.readout_l2 > 0 (it is %v): without a penalty the closed-form readout interpolates the condition means", cfg.Model.ReadoutL2)
 	}
 	B, N, F := p.NBins, p.Neurons(), net.Features()
@@ -128,7 +128,7 @@ func newProjector(p *Prepared, net *nn.Net) (*projector, error) {
 	}
 	pj.Bt = Bt
 	pj.W = float64(len(p.Train))
-	pj.mu = cfg.Model.ReadoutL2 * pj.W / 2
+	pj.mu = cfg.Model.ReadoutL2.Value * pj.W / 2
 	pj.sq, pj.pw = make([]float64, Bt), make([]float64, Bt)
 	for r, b := range pj.rows {
 		c := float64(st.Count[b])
@@ -567,10 +567,20 @@ func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpo
 			e.ValR2 = pj.vr2
 		}
 	}
+	f := &Fitted{Net: net, Solver: SolverProjected, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}
+	if cfg.Model.ReadoutL2.Auto {
+		curves, l2, err := pj.autoReadout(p, net, cfg.Model.ReadoutL2PerNeuron)
+		if err != nil {
+			return nil, err
+		}
+		f.Curves, f.ReadoutL2 = curves, l2
+		return f, nil
+	}
 	if err := pj.readout(net); err != nil {
 		return nil, err
 	}
-	return &Fitted{Net: net, Solver: SolverProjected, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop, Curves: pj.curves()}, nil
+	f.Curves = pj.curves()
+	return f, nil
 }
 
 // projectedSolver plugs the projector into the epoch loop: the optimiser

@@ -21,7 +21,7 @@ func projectedCase(t *testing.T, border LayerBorder, l2 float64) (*Prepared, *nn
 	p, _ := synthPrepared(t, 40, 400, func(c *Config) {
 		c.Model.Layers = []LayerConfig{{Channels: 3, Kernel: 5, Stride: 2, Border: border}}
 		c.Axis.BinWidth = 12
-		c.Model.ReadoutL2 = l2
+		c.Model.ReadoutL2 = Penalty{Value: l2}
 		c.Train.Solver = SolverProjected
 	})
 	net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))

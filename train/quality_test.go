@@ -180,3 +180,72 @@ func BenchmarkQuality(b *testing.B) {
 		})
 	}
 }
+
+// BenchmarkCompareQuality runs the comparison of stria compare (the default
+// encoder and the per-neuron baselines on the same five folds) on the
+// benchmark population and reports each model's mean over neurons of the
+// fold-averaged test R^2 (r2_<model>) and the share of neurons on which the
+// encoder's is higher than each von Mises baseline's (wins_<model>). It
+// fails unless the encoder has the highest mean and beats each von Mises
+// baseline on more than half of the neurons.
+func BenchmarkCompareQuality(b *testing.B) {
+	p, _ := qualityPrepared(b, qualityScenario)
+	folds, err := Folds(p)
+	if err != nil {
+		b.Fatal(err)
+	}
+	global := *p.Cfg
+	global.Model.ReadoutL2PerNeuron = false
+	specs := []ModelSpec{{Name: "encoder", Cfg: p.Cfg}, {Name: "encoder-global", Cfg: &global}}
+	for _, k := range []string{"condmean", "vonmises", "vonmises2", "smoothlinear"} {
+		specs = append(specs, ModelSpec{Name: k, Baseline: k})
+	}
+	N := p.Neurons()
+	for i := 0; i < b.N; i++ {
+		avg := map[string][]float64{}
+		for _, s := range specs {
+			sum := make([]float64, N)
+			for f, sets := range folds {
+				r, err := RunUnit(context.Background(), p, s, f, sets)
+				if err != nil {
+					b.Fatal(err)
+				}
+				for j, sc := range r.Scores {
+					sum[j] += sc.TestR2 / float64(len(folds))
+				}
+			}
+			avg[s.Name] = sum
+		}
+		best, bestV := "", math.Inf(-1)
+		for _, s := range specs {
+			var m float64
+			for _, v := range avg[s.Name] {
+				m += v / float64(N)
+			}
+			b.ReportMetric(m, "r2_"+s.Name)
+			b.Logf("%-12s mean fold-averaged test R2 %.5f", s.Name, m)
+			if m > bestV {
+				best, bestV = s.Name, m
+			}
+		}
+		if best != "encoder" {
+			b.Errorf("highest mean test R2: %s, want the encoder", best)
+		}
+		for _, e := range []string{"encoder", "encoder-global"} {
+			for _, k := range []string{"vonmises", "vonmises2"} {
+				wins := 0
+				for j := range avg[k] {
+					if avg[e][j] > avg[k][j] {
+						wins++
+					}
+				}
+				share := float64(wins) / float64(N)
+				b.ReportMetric(share, "wins_"+e+"_"+k)
+				b.Logf("%s beats %s on %.1f %% of the neurons", e, k, 100*share)
+				if e == "encoder" && share <= 0.5 {
+					b.Errorf("the encoder beats %s on %.1f %% of the neurons, want more than half", k, 100*share)
+				}
+			}
+		}
+	}
+}

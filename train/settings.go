@@ -2,7 +2,10 @@ package train
 
 import (
 	"fmt"
+	"strconv"
 	"strings"
+
+	"gopkg.in/yaml.v3"
 
 	"github.com/strialab/stria/nn"
 )
@@ -59,6 +62,54 @@ const (
 	// full batch).
 	SolverProjected
 )
+
+// Penalty is model.readout_l2: the ridge penalty on the readout weights,
+// a number, or the word auto (the default): the filters train at Value
+// (1) and the penalty is then chosen from the data at the final filters
+// (eval/methods.md §12).
+type Penalty struct {
+	// Auto chooses the penalty from the data (projected MSE solver; the
+	// other solvers train and stay at Value).
+	Auto bool
+	// Value is the penalty when it is fixed, and the one the filters
+	// train with when it is chosen.
+	Value float64
+}
+
+// AutoPenalty is the default readout penalty: chosen from the data, with
+// the filters trained at 1 (on z-scored responses, lambda/(2N)
+// sum ||w_n||^2 with lambda = 1).
+var AutoPenalty = Penalty{Auto: true, Value: 1}
+
+// UnmarshalYAML reads auto or a number.
+func (v *Penalty) UnmarshalYAML(n *yaml.Node) error {
+	if n.Kind == yaml.ScalarNode && n.Value == "auto" {
+		*v = AutoPenalty
+		return nil
+	}
+	var f float64
+	if err := n.Decode(&f); err != nil {
+		return fmt.Errorf("line %d: %q: want auto or a number", n.Line, n.Value)
+	}
+	*v = Penalty{Value: f}
+	return nil
+}
+
+// MarshalYAML writes auto or the number.
+func (v Penalty) MarshalYAML() (any, error) {
+	if v.Auto {
+		return "auto", nil
+	}
+	return v.Value, nil
+}
+
+// String returns "auto" or the number.
+func (v Penalty) String() string {
+	if v.Auto {
+		return "auto"
+	}
+	return strconv.FormatFloat(v.Value, 'g', -1, 64)
+}
 
 // LayerBorder is model.layers[].border: one of nn's border modes, or
 // BorderAuto (the config word "auto", or leaving it out): circular on a

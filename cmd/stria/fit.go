@@ -173,6 +173,9 @@ func printSummary(w io.Writer, dir string, s *runfolder.Summary) {
 		fmt.Fprintf(w, "noise ceilings on the test trials: %s\n", ceilingCounts(s.Ceilings))
 	}
 	fmt.Fprintf(w, "neurons with split-half reliability (all trials) >= %g: %d of %d scored\n", s.MinReliability, s.Reliable, s.Scored)
+	if s.Solver != "" {
+		fmt.Fprintf(w, "solver: %s; readout penalty (model.readout_l2: %s): %s\n", s.Solver, s.ReadoutL2.Setting, penaltyText(s.ReadoutL2))
+	}
 	fmt.Fprintln(w, "median over neurons [interquartile range]:")
 	for _, k := range []string{"test_r2", "test_r", "explainable_fraction", "fev", "cc_norm"} {
 		sp := s.Spread[k]
@@ -203,4 +206,13 @@ func ceilingCounts(m map[string]int) string {
 		s += " (where not usable, fev, cc_norm and spe are NaN; reasons: stria help metrics)"
 	}
 	return s
+}
+
+// penaltyText describes the readout penalty used: one value, or the
+// median and quartiles of the per-neuron choices.
+func penaltyText(p runfolder.PenaltyInfo) string {
+	if p.Q1 == p.Q3 {
+		return fmt.Sprintf("%.3g", float64(p.Chosen))
+	}
+	return fmt.Sprintf("%.3g per neuron (median; quartiles %.3g, %.3g)", float64(p.Chosen), float64(p.Q1), float64(p.Q3))
 }

@@ -43,7 +43,7 @@ compare:
 	if strings.Join(names, " ") != strings.Join(want, " ") {
 		t.Fatalf("specs %v, want %v", names, want)
 	}
-	if specs[2].Cfg.Model.Layers[0].Channels != 4 || specs[2].Cfg.Model.ReadoutL2 != 0.1 || specs[4].Cfg.Model.Layers[0].Kernel != 3 {
+	if specs[2].Cfg.Model.Layers[0].Channels != 4 || specs[2].Cfg.Model.ReadoutL2 != (train.Penalty{Value: 0.1}) || specs[4].Cfg.Model.Layers[0].Kernel != 3 {
 		t.Errorf("grid values not applied: %+v / %+v", specs[2].Cfg.Model, specs[4].Cfg.Model)
 	}
 	if cfg.Model.Layers[0].Channels != 8 {

@@ -99,7 +99,7 @@ func Specs(c *train.Config) ([]train.ModelSpec, error) {
 				parts = append(parts, k+"="+strconv.FormatFloat(v, 'g', -1, 64))
 				switch k {
 				case "readout_l2":
-					cfg.Model.ReadoutL2 = v
+					cfg.Model.ReadoutL2 = train.Penalty{Value: v}
 				case "learning_rate":
 					cfg.Train.LearningRate = v
 				case "weight_decay":

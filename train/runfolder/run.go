@@ -201,8 +201,14 @@ type Summary struct {
 	Epochs         int               `json:"epochs"`
 	Stop           string            `json:"stop"`
 	WallSeconds    float64           `json:"wall_seconds"`
-	Cautions       []string          `json:"cautions"`
-	Warnings       []string          `json:"warnings"`
+	// Solver is the solver that ran (auto resolved).
+	Solver string `json:"solver"`
+	// ReadoutL2 is the readout penalty: the config's number, or the one
+	// chosen from the data (its spread over neurons when chosen per
+	// neuron; the values are in parameters/readout_l2.npy).
+	ReadoutL2 PenaltyInfo `json:"readout_l2"`
+	Cautions  []string    `json:"cautions"`
+	Warnings  []string    `json:"warnings"`
 }
 
 // ScoreColumns are the per-neuron score columns of neuron_scores.csv and
@@ -525,6 +531,11 @@ func WriteModel(dir string, p *train.Prepared, f *train.Fitted) error {
 			return err
 		}
 	}
+	if f.ReadoutL2 != nil {
+		if err := saveArray(dir, &m, "readout_l2", []int{net.Neurons}, f.ReadoutL2); err != nil {
+			return err
+		}
+	}
 	c0 := net.Convs[0]
 	if err := data.WriteNPY64(filepath.Join(dir, FileFilters), []int{c0.Out * net.In, c0.K}, net.ConvW(0)); err != nil {
 		return err
@@ -554,11 +565,33 @@ func WriteResults(dir string, p *train.Prepared, f *train.Fitted, scores []eval.
 	sum.TestTrials = len(p.Test)
 	sum.BestEpoch, sum.Epochs, sum.Stop = f.BestEpoch, len(f.Log), f.Stop
 	sum.WallSeconds = wall.Seconds()
+	sum.Solver = f.Solver.String()
+	sum.ReadoutL2 = penaltyInfo(p.Cfg.Model.ReadoutL2, f.ReadoutL2)
 	sum.Warnings = p.Report.Warnings
 	if err := WriteJSON(filepath.Join(dir, FileSummary), sum); err != nil {
 		return nil, err
 	}
 	return &sum, nil
+}
+
+// PenaltyInfo records the readout penalty of a fit in summary.json.
+type PenaltyInfo struct {
+	// Setting is the config's model.readout_l2: auto or a number.
+	Setting string `json:"setting"`
+	// Chosen is the penalty used (the median over neurons when chosen per
+	// neuron); Q1 and Q3 its quartiles over neurons.
+	Chosen Num `json:"chosen"`
+	Q1     Num `json:"q1"`
+	Q3     Num `json:"q3"`
+}
+
+func penaltyInfo(setting train.Penalty, chosen []float64) PenaltyInfo {
+	pi := PenaltyInfo{Setting: setting.String(), Chosen: Num(setting.Value), Q1: Num(setting.Value), Q3: Num(setting.Value)}
+	if chosen != nil {
+		s := eval.Summarize(chosen)
+		pi.Chosen, pi.Q1, pi.Q3 = Num(s.Median), Num(s.Q1), Num(s.Q3)
+	}
+	return pi
 }
 
 func saveArray(dir string, m *Manifest, name string, shape []int, v []float64) error {
