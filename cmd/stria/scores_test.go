@@ -119,6 +119,7 @@ func TestUntunedHeavyRatios(t *testing.T) {
 		fitLo, fitHi, cmpLo, cmpHi, sumLo, sumHi float64
 		fitNaN, fitUnusable, cmpNaN, cmpNoFold   int
 		reliable, scored, reliableTuned, tuned   int
+		foldUnusable                             []int
 	}
 	run := func(extra string) outcome {
 		dir := t.TempDir()
@@ -215,6 +216,9 @@ func TestUntunedHeavyRatios(t *testing.T) {
 				}
 			}
 		}
+		for _, fc := range cf.Info.FoldCeilings {
+			o.foldUnusable = append(o.foldUnusable, o.scored-fc["usable"])
+		}
 		if cf.Info.Reliable != o.reliable {
 			t.Errorf("reliable neurons: compare %d, fit %d (both over all trials)", cf.Info.Reliable, o.reliable)
 		}
@@ -240,8 +244,8 @@ func TestUntunedHeavyRatios(t *testing.T) {
 		name string
 		o    outcome
 	}{{"before (alpha 1)", before}, {"after (alpha 0.05)", after}} {
-		t.Logf("%s: fit ratios [%.3g, %.3g], NaN fev %d; compare folds [%.3g, %.3g], fold averages [%.3g, %.3g], NaN fev %d",
-			o.name, o.o.fitLo, o.o.fitHi, o.o.fitNaN, o.o.cmpLo, o.o.cmpHi, o.o.sumLo, o.o.sumHi, o.o.cmpNaN)
+		t.Logf("%s: fit ratios [%.3g, %.3g], NaN fev %d; compare folds [%.3g, %.3g] (not usable per fold %v), fold averages [%.3g, %.3g], NaN fev %d",
+			o.name, o.o.fitLo, o.o.fitHi, o.o.fitNaN, o.o.cmpLo, o.o.cmpHi, o.o.foldUnusable, o.o.sumLo, o.o.sumHi, o.o.cmpNaN)
 	}
 }
 

@@ -263,11 +263,17 @@ func Summarize(scores []eval.Scores, excluded map[int]string, verdicts []eval.Ce
 			s.Reliable++
 		}
 	}
-	vals := make([]float64, n)
-	for k, name := range ScoreColumns {
-		for j, sc := range scores {
-			vals[j] = ScoreValues(sc)[k]
+	cols := make([][]float64, len(ScoreColumns))
+	for k := range cols {
+		cols[k] = make([]float64, n)
+	}
+	for j, sc := range scores {
+		for k, v := range ScoreValues(sc) {
+			cols[k][j] = v
 		}
+	}
+	for k, name := range ScoreColumns {
+		vals := cols[k]
 		sp := SpreadOver(vals, scored, KeptScored)
 		if IsRatio(name) {
 			sp = SpreadOver(vals, reliable, ReliableRule(minRel))
