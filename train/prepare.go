@@ -109,7 +109,7 @@ func PrepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
 		return nil, fmt.Errorf("test split: %w", err)
 	}
 	p.Test = sp.Test
-	coverageWarnings(rep, sp, cond, &p.Axis, "the test split")
+	coverageWarnings(rep, sp, cond, &p.Axis, TestSplitLabel)
 	p.Train, p.Val, err = carve(cond, blocks, sp.Train, p.NBins, cfg.Split.ValidationFraction, cfg.Seed+1)
 	if err != nil {
 		return nil, fmt.Errorf("validation split: %w", err)
@@ -219,6 +219,11 @@ func checkConditionIDs(rec *data.Recording, cond []int, ax data.Axis) error {
 	}
 	return nil
 }
+
+// TestSplitLabel starts the coverage warnings of the hold-out test split
+// ("the test split: bin 3 ... has no test trials"). stria compare, which
+// does not use that split, leaves them out of its warnings.
+const TestSplitLabel = "the test split"
 
 // coverageWarnings warns about conditions that a blocked split left on one
 // side only: they cannot be trained on, or are missing from the scores.

@@ -132,6 +132,14 @@ func TestUntunedHeavyRatios(t *testing.T) {
 		if err != nil {
 			t.Fatalf("compare: %v\n%s", err, out)
 		}
+		// compare prints the data warnings, each once, and the neurons
+		// each summary kept.
+		if k := strings.Count(out, "warning: 1 neuron(s) have the same value on every trial"); k != 1 {
+			t.Errorf("compare printed the constant-neuron warning %d times, want once:\n%s", k, out)
+		}
+		if !strings.Contains(out, "(reliable)") || !strings.Contains(out, "usable on some fold") {
+			t.Errorf("compare output lacks the kept neurons or the verdicts:\n%s", out)
+		}
 		var o outcome
 		// Fit: neuron_scores.csv.
 		ns, err := runfolder.ReadNeuronScores(filepath.Join(dir, "fit"), 300)
@@ -193,6 +201,13 @@ func TestUntunedHeavyRatios(t *testing.T) {
 				if math.IsNaN(v) && fs.Ceiling[j] == "usable" {
 					t.Errorf("compare %s fold %d: neuron %d has NaN fev with a usable ceiling", fs.Model, fs.Fold+1, j)
 				}
+			}
+		}
+		// The constant neuron has no descriptor from any source; a tuned
+		// one has a preferred direction.
+		for _, d := range cf.Descriptors {
+			if d.Neuron == 0 && !(math.IsNaN(d.Preferred) && math.IsNaN(d.Peak) && math.IsNaN(d.OneMinusCV) && math.IsNaN(d.OSI) && math.IsNaN(d.DSI) && math.IsNaN(d.DirVector)) {
+				t.Errorf("descriptors of the constant neuron 0 (%s): %+v, want NaN throughout", d.Source, d.Descriptors)
 			}
 		}
 		res := cf.Result

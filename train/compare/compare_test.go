@@ -268,3 +268,11 @@ func TestSummariseGates(t *testing.T) {
 		t.Errorf("reliable %d, want 2", Reliable(c))
 	}
 }
+
+func TestCompareWarnings(t *testing.T) {
+	got := compareWarnings([]string{"fold 1: bin 3 has no training trials", "the test split: bin 2 has no test trials", "fold 1: bin 3 has no training trials", "constant neuron 4"})
+	want := []string{"fold 1: bin 3 has no training trials", "constant neuron 4"}
+	if !slices.Equal(got, want) {
+		t.Errorf("got %q, want %q", got, want)
+	}
+}

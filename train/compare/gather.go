@@ -188,7 +188,7 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.
 		Ceilings: runfolder.CeilingCounts(ceilingVerdicts(c.Ceiling), func(j int) bool { return excluded[j] }), FoldCeilings: c.FoldCeilings,
 		Reliable: Reliable(c), MinReliability: c.MinReliability,
 		Summary: c.Summary, Winner: c.Winner, Pairs: runfolder.NewPairInfo(c.Pairs), PValues: runfolder.WilcoxonNote,
-		Cautions: FoldCautions(p, folds), Warnings: Dedup(p.Report.Warnings),
+		Cautions: FoldCautions(p, folds), Warnings: compareWarnings(p.Report.Warnings),
 		Axis:   runfolder.AxisOf(p),
 		Epochs: map[string][]int{}, Recordings: []string{p.Rec.Source.Responses}}
 	for j, why := range ex {
@@ -245,6 +245,19 @@ func Dedup(msgs []string) []string {
 	for _, m := range msgs {
 		if !seen[m] {
 			seen[m] = true
+			out = append(out, m)
+		}
+	}
+	return out
+}
+
+// compareWarnings are the data warnings of a comparison: without repeats,
+// and without those about the hold-out test split of stria fit, which a
+// comparison does not use (its folds have their own).
+func compareWarnings(w []string) []string {
+	var out []string
+	for _, m := range Dedup(w) {
+		if !strings.HasPrefix(m, train.TestSplitLabel+":") {
 			out = append(out, m)
 		}
 	}
