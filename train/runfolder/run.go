@@ -286,7 +286,6 @@ func Summarize(scores []eval.Scores, excluded map[int]string, verdicts []eval.Ce
 		s.Medians[ColSplitHalfAll] = sp.Median
 		s.Spread[ColSplitHalfAll] = sp
 	}
-	s.Cautions = train.Cautions
 	return s
 }
 
