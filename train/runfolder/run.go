@@ -242,7 +242,8 @@ func CeilingCounts(verdicts []eval.Ceiling, excluded func(j int) bool) map[strin
 // summarised over the scored neurons with reliability >= minRel only, the
 // other columns over every scored neuron. verdicts (the ceilings of
 // scores) and reliability (split_half_all) have one value per neuron;
-// reliability nil keeps every scored neuron.
+// reliability nil keeps every scored neuron. The caller sets Cautions
+// (train.CautionsFor of the scored trials) and the fit's fields.
 func Summarize(scores []eval.Scores, excluded map[int]string, verdicts []eval.Ceiling, reliability []float64, minRel float64) Summary {
 	n := len(scores)
 	s := Summary{Neurons: n, Excluded: len(excluded), Medians: map[string]Num{}, Spread: map[string]Spread{}, MinReliability: minRel}
