@@ -11,4 +11,11 @@
 // numbered from 1 (task I of N runs every N-th unit, starting at the I-th).
 // Results do not depend on the number of workers or array tasks: each unit
 // is seeded by the config, not by the order it runs in.
+//
+// Scores are judged as in a fit: every fold's noise ceilings are gated at
+// scores.ceiling_alpha (Summarise), the ratio scores average over the folds
+// where a neuron's ceiling is usable, and their summaries and pair tests
+// use the neurons with split-half reliability over all trials >=
+// scores.min_reliability (Kept); every summary records the neurons it
+// kept.
 package compare
