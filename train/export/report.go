@@ -275,7 +275,7 @@ func csvTable(path, caption string, keep func(row []string) bool) (report.Table,
 	}
 	t := report.Table{Caption: caption, Header: head, Numeric: make([]bool, len(head))}
 	for i, h := range head {
-		t.Numeric[i] = slices.Contains([]string{"median", "q1", "q3", "neurons", "nan", "share_a_higher", "w", "p", "n", "dropped"}, h)
+		t.Numeric[i] = slices.Contains([]string{"median", "q1", "q3", "neurons", "nan", "neurons_kept", "share_a_higher", "w", "p", "n", "dropped"}, h)
 	}
 	for _, r := range rows {
 		if keep != nil && !keep(r) {
@@ -333,7 +333,7 @@ func manyReport(dir string) (*report.Report, error) {
 	if err != nil {
 		return nil, err
 	}
-	pairs, err := csvTable(filepath.Join(dir, runfolder.FilePooledPairs), "Pooled neurons, cc_norm: share of neurons where model A scores higher, and the Wilcoxon test ("+runfolder.FilePooledPairs+" has every metric).",
+	pairs, err := csvTable(filepath.Join(dir, runfolder.FilePooledPairs), "Pooled neurons, cc_norm, over the reliable neurons (kept_by): share of neurons where model A scores higher, and the Wilcoxon test ("+runfolder.FilePooledPairs+" has every metric).",
 		func(row []string) bool { return row[0] == "cc_norm" })
 	if err != nil {
 		return nil, err
