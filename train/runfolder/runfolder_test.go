@@ -645,3 +645,33 @@ func TestKind(t *testing.T) {
 		t.Errorf("an old folder: %v", err)
 	}
 }
+
+// TestSummarizeKeeps checks the neurons each summary keeps (numbers by
+// hand): ratio columns over the reliable scored neurons, the rest over the
+// scored ones, verdicts counted over the scored neurons.
+func TestSummarizeKeeps(t *testing.T) {
+	nan := math.NaN()
+	scores := []eval.Scores{
+		{TestR2: 0.1, FEV: 0.5, CCNorm: 0.9, SPE: 0.4},
+		{TestR2: 0.2, FEV: nan, CCNorm: nan, SPE: nan}, // ceiling not usable
+		{TestR2: 0.3, FEV: -40, CCNorm: 7, SPE: -40},   // unreliable: left out of the ratio summaries
+		{TestR2: 0.4, FEV: 0.7, CCNorm: 1.0, SPE: 0.6},
+		{TestR2: 9, FEV: 9, CCNorm: 9, SPE: 9}, // excluded
+	}
+	verdicts := []eval.Ceiling{eval.CeilingUsable, eval.CeilingNotSignificant, eval.CeilingUsable, eval.CeilingUsable, eval.CeilingNoSignal}
+	rel := []float64{0.8, 0.5, 0.1, 0.9, nan}
+	s := Summarize(scores, map[int]string{4: "constant"}, verdicts, rel, 0.3)
+	if s.Scored != 4 || s.Reliable != 3 || s.Ceilings["usable"] != 3 || s.Ceilings["signal_not_significant"] != 1 || s.Ceilings["no_signal_power"] != 0 {
+		t.Errorf("scored %d reliable %d verdicts %v, want 4, 3, usable 3 and signal_not_significant 1", s.Scored, s.Reliable, s.Ceilings)
+	}
+	// fev over neurons 0, 1, 3: values 0.5, NaN, 0.7.
+	if f := s.Spread["fev"]; float64(f.Median) != 0.6 || f.N != 2 || f.NaN != 1 || f.Kept != 3 || f.KeptBy != "split_half_all >= 0.3" {
+		t.Errorf("fev spread %+v, want median 0.6, n 2, nan 1, kept 3 by split_half_all >= 0.3", f)
+	}
+	if r := s.Spread["test_r2"]; float64(r.Median) != 0.25 || r.Kept != 4 || r.KeptBy != KeptScored {
+		t.Errorf("test_r2 spread %+v, want median 0.25 over the 4 scored", r)
+	}
+	if a := s.Spread[ColSplitHalfAll]; float64(a.Median) != 0.65 || a.Kept != 4 {
+		t.Errorf("split_half_all spread %+v, want median 0.65 over 4", a)
+	}
+}
