@@ -3,7 +3,9 @@
 // checks, the split, z-scoring), the epoch loop that every solver plugs
 // into, the two solvers, and the glue that scores a fit on its test
 // trials. It reads recordings through package data and writes no files;
-// the on-disk format of run and comparison folders lives in
+// the projected solvers live in train/projection (they read condition
+// statistics, not a prepared recording, and plug into this package's
+// epoch loop), the on-disk format of run and comparison folders in
 // train/runfolder, comparisons in train/compare, figures and reports in
 // train/export.
 //

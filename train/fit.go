@@ -8,6 +8,7 @@ import (
 	"slices"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/nn"
 )
 
@@ -364,19 +365,19 @@ func (tr *trainer) evalVal() (float64, float64) {
 	return loss, median(tr.r2[:k])
 }
 
-func (tr *trainer) name() string         { return "adam" }
-func (tr *trainer) trainable() []float64 { return tr.net.Params }
-func (tr *trainer) begin() error         { return nil }
-func (tr *trainer) random() *rand.PCG    { return tr.pcg }
+func (tr *trainer) Name() string         { return "adam" }
+func (tr *trainer) Trainable() []float64 { return tr.net.Params }
+func (tr *trainer) Begin() error         { return nil }
+func (tr *trainer) Random() *rand.PCG    { return tr.pcg }
 
-func (tr *trainer) validate(int) (float64, float64, error) {
+func (tr *trainer) Validate(int) (float64, float64, error) {
 	l, r2 := tr.evalVal()
 	return l, r2, nil
 }
 
 // epoch runs one epoch of training (one full-batch step, or one step per
 // mini-batch) and returns the training loss.
-func (tr *trainer) epoch(opt *nn.Adam) float64 {
+func (tr *trainer) Epoch(opt *nn.Adam) float64 {
 	p, tc := tr.p, tr.cfg.Train
 	n := float64(p.Neurons())
 	if tc.BatchSize == 0 {
@@ -461,14 +462,4 @@ func initReadout(p *Prepared, net *nn.Net) {
 }
 
 // median returns the median of x (x is reordered); NaN if empty.
-func median(x []float64) float64 {
-	if len(x) == 0 {
-		return math.NaN()
-	}
-	slices.Sort(x)
-	k := len(x) / 2
-	if len(x)%2 == 1 {
-		return x[k]
-	}
-	return 0.5 * (x[k-1] + x[k])
-}
+func median(x []float64) float64 { return eval.Median(x) }

@@ -200,16 +200,16 @@ type fakeSolver struct {
 	k      int
 }
 
-func (f *fakeSolver) name() string         { return "fake" }
-func (f *fakeSolver) trainable() []float64 { return f.params }
-func (f *fakeSolver) begin() error         { return nil }
-func (f *fakeSolver) random() *rand.PCG    { return nil }
-func (f *fakeSolver) epoch(*nn.Adam) float64 {
+func (f *fakeSolver) Name() string         { return "fake" }
+func (f *fakeSolver) Trainable() []float64 { return f.params }
+func (f *fakeSolver) Begin() error         { return nil }
+func (f *fakeSolver) Random() *rand.PCG    { return nil }
+func (f *fakeSolver) Epoch(*nn.Adam) float64 {
 	l := f.losses[min(f.k, len(f.losses)-1)]
 	f.k++
 	return l
 }
-func (f *fakeSolver) validate(int) (float64, float64, error) { return 1, 0, nil }
+func (f *fakeSolver) Validate(int) (float64, float64, error) { return 1, 0, nil }
 
 // TestDivergenceRule checks the loop's divergence rule itself: a loss that
 // is not finite, or more than a million times the first epoch's, stops

@@ -11,29 +11,31 @@ import (
 	"github.com/strialab/stria/nn"
 )
 
-// solver is one training method's side of the epoch loop (runEpochs):
+// solver is one training method's side of the epoch loop (runEpochs;
+// the methods are exported so that train/projection's solvers can plug
+// in):
 // what an epoch does and how the fit is judged after it. The loop owns
 // everything else: the optimiser state, early stopping on the validation
 // loss, divergence, checkpoints, interruption and resume.
 type solver interface {
 	// name is the solver's config name, for messages.
-	name() string
+	Name() string
 	// trainable returns the parameters the optimiser updates (a view into
 	// the net's buffer).
-	trainable() []float64
+	Trainable() []float64
 	// begin prepares the first epoch once the parameters are set (from
 	// the initialisation or a checkpoint).
-	begin() error
+	Begin() error
 	// epoch runs one epoch of optimiser steps and returns the training
 	// data loss it measured before updating (EpochLog.TrainLoss).
-	epoch(opt *nn.Adam) float64
+	Epoch(opt *nn.Adam) float64
 	// validate judges the parameters after an epoch: the validation loss
 	// that early stopping watches and the median validation R^2 (NaN on
 	// epochs the solver skips it).
-	validate(epoch int) (loss, r2 float64, err error)
+	Validate(epoch int) (loss, r2 float64, err error)
 	// random returns the solver's random source, saved in checkpoints
 	// (nil if it draws nothing while training).
-	random() *rand.PCG
+	Random() *rand.PCG
 }
 
 // newOptimizer returns the Adam optimiser the train settings describe for
@@ -61,23 +63,23 @@ type loopResult struct {
 // finite or grows a millionfold over the first epoch's stops training with
 // an error that suggests a smaller learning rate.
 func runEpochs(ctx context.Context, s solver, tc TrainConfig, hooks Hooks, resume *Checkpoint) (*loopResult, error) {
-	params := s.trainable()
+	params := s.Trainable()
 	opt := newOptimizer(tc, len(params))
 	st := Checkpoint{BestVal: math.Inf(1)}
 	if resume != nil {
 		if len(resume.Params) != len(params) || len(resume.M) != len(params) || len(resume.V) != len(params) {
-			return nil, fmt.Errorf("checkpoint has %d parameters, the %s solver of this config trains %d: was the config changed?", len(resume.Params), s.name(), len(params))
+			return nil, fmt.Errorf("checkpoint has %d parameters, the %s solver of this config trains %d: was the config changed?", len(resume.Params), s.Name(), len(params))
 		}
 		st = *resume
 		copy(params, st.Params)
 		opt.M, opt.V, opt.T = slices.Clone(st.M), slices.Clone(st.V), st.T
-		if pcg := s.random(); pcg != nil {
+		if pcg := s.Random(); pcg != nil {
 			if err := pcg.UnmarshalBinary(st.RNG); err != nil {
 				return nil, fmt.Errorf("checkpoint: random state: %w", err)
 			}
 		}
 	}
-	if err := s.begin(); err != nil {
+	if err := s.Begin(); err != nil {
 		return nil, err
 	}
 	start := time.Now()
@@ -92,7 +94,7 @@ func runEpochs(ctx context.Context, s solver, tc TrainConfig, hooks Hooks, resum
 		c.Params = params
 		c.M, c.V, c.T = opt.M, opt.V, opt.T
 		c.RNG = nil
-		if pcg := s.random(); pcg != nil {
+		if pcg := s.Random(); pcg != nil {
 			c.RNG, _ = pcg.MarshalBinary()
 		}
 		return &c
@@ -111,7 +113,7 @@ func runEpochs(ctx context.Context, s solver, tc TrainConfig, hooks Hooks, resum
 			}
 			return nil, fmt.Errorf("%w after epoch %d", ErrInterrupted, st.Epoch)
 		}
-		loss := s.epoch(opt)
+		loss := s.Epoch(opt)
 		st.Epoch++
 		if st.Epoch == 1 {
 			first = loss
@@ -120,7 +122,7 @@ func runEpochs(ctx context.Context, s solver, tc TrainConfig, hooks Hooks, resum
 			return nil, fmt.Errorf("training diverged at epoch %d (loss %g, first epoch %g): try a smaller train.learning_rate (now %g)",
 				st.Epoch, loss, first, tc.LearningRate)
 		}
-		vl, vr2, err := s.validate(st.Epoch)
+		vl, vr2, err := s.Validate(st.Epoch)
 		if err != nil {
 			return nil, fmt.Errorf("%w at epoch %d: try a smaller train.learning_rate (now %g)", err, st.Epoch, tc.LearningRate)
 		}

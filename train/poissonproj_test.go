@@ -11,10 +11,9 @@ import (
 	"time"
 
 	"gonum.org/v1/gonum/diff/fd"
-	"gonum.org/v1/gonum/mat"
-	"gonum.org/v1/gonum/optimize"
 
 	"github.com/strialab/stria/nn"
+	"github.com/strialab/stria/train/projection"
 )
 
 // poissonCase is a small spike-count recording (30 conditions, 3 channels,
@@ -32,165 +31,50 @@ func poissonCase(t *testing.T, output nn.Activation, l2 float64) (*Prepared, *nn
 	return p, net
 }
 
-// TestPoissonReadoutBFGS checks the per-neuron Newton solve in the
-// representer basis against gonum's BFGS on the full (F+1)-dimensional
-// problem of each neuron (an optimiser that knows nothing of the
-// reduction), and the projected objective against the adam path's own loss
-// and penalty (trainer.lossGrad, trainer.penalty) with the readout plugged
-// in: the objectives must agree to 1e-10 and the adam path's readout
-// gradient must vanish.
-func TestPoissonReadoutBFGS(t *testing.T) {
+// TestPoissonObjectiveMatchesAdam checks the projected Poisson objective
+// against the adam path's own loss and penalty (trainer.lossGrad,
+// trainer.penalty) with the fast path's readout plugged in: the objectives
+// must agree to 1e-10, the adam path's readout gradient must vanish and
+// the validation losses must agree.
+func TestPoissonObjectiveMatchesAdam(t *testing.T) {
 	for _, tc := range []struct {
 		output nn.Activation
 		l2     float64
 	}{{nn.Softplus, 0.05}, {nn.Exp, 0.05}, {nn.Softplus, 2}} {
 		t.Run(tc.output.String(), func(t *testing.T) {
 			p, net := poissonCase(t, tc.output, tc.l2)
-			pp, err := newPoissonProj(p, net)
+			pp, err := projection.NewPoisson(p.problem(), net)
 			if err != nil {
 				t.Fatal(err)
 			}
-			if err := pp.eval(net, false, false); err != nil {
+			ev, err := pp.Evaluate(false, false)
+			if err != nil {
 				t.Fatal(err)
 			}
-			pp.readout(net)
-			F, Bt := pp.F, pp.Bt
-			for n := 0; n < pp.N; n++ {
-				sum := pp.sum[n*Bt : (n+1)*Bt]
-				obj := func(x []float64) float64 {
-					var s float64
-					for i, b := range pp.rows {
-						u := x[F]
-						for f, v := range pp.h[b*F : (b+1)*F] {
-							u += v * x[f]
-						}
-						fu, _, _ := linkTerms(pp.act, u)
-						s += pp.cnt[i]*fu - sum[i]*math.Log(fu+nn.PoissonEps)
-					}
-					for _, v := range x[:F] {
-						s += pp.mu * v * v
-					}
-					return s
-				}
-				grad := func(g, x []float64) {
-					clear(g)
-					for i, b := range pp.rows {
-						h := pp.h[b*F : (b+1)*F]
-						u := x[F]
-						for f, v := range h {
-							u += v * x[f]
-						}
-						fu, d1, _ := linkTerms(pp.act, u)
-						gi := d1 * (pp.cnt[i] - sum[i]/(fu+nn.PoissonEps))
-						for f, v := range h {
-							g[f] += gi * v
-						}
-						g[F] += gi
-					}
-					for f, v := range x[:F] {
-						g[f] += 2 * pp.mu * v
-					}
-				}
-				x0 := make([]float64, F+1)
-				x0[F] = invLink(pp.act, 1)
-				hess := func(hm *mat.SymDense, x []float64) {
-					for i := 0; i <= F; i++ {
-						for j := i; j <= F; j++ {
-							hm.SetSym(i, j, 0)
-						}
-					}
-					row := make([]float64, F+1)
-					for i, b := range pp.rows {
-						copy(row, pp.h[b*F:(b+1)*F])
-						row[F] = 1
-						u := x[F]
-						for f, v := range row[:F] {
-							u += v * x[f]
-						}
-						fu, d1, d2 := linkTerms(pp.act, u)
-						fe := fu + nn.PoissonEps
-						om := d2*(pp.cnt[i]-sum[i]/fe) + sum[i]*d1*d1/(fe*fe)
-						for a := 0; a <= F; a++ {
-							for c := a; c <= F; c++ {
-								hm.SetSym(a, c, hm.At(a, c)+om*row[a]*row[c])
-							}
-						}
-					}
-					for f := 0; f < F; f++ {
-						hm.SetSym(f, f, hm.At(f, f)+2*pp.mu)
-					}
-				}
-				// BFGS from the mean-rate start; it stalls at a gradient of
-				// ~1e-6 (its line search cannot resolve smaller decreases of
-				// an objective of ~600 in float64), so full Newton steps on
-				// the (F+1)-dimensional problem, with the Hessian written out
-				// above and no line search, finish from there (quadratic
-				// convergence: two steps reach rounding).
-				prob := optimize.Problem{Func: obj, Grad: grad}
-				res, err := optimize.Minimize(prob, x0, &optimize.Settings{GradientThreshold: 1e-10}, &optimize.BFGS{})
-				if res == nil {
-					t.Fatalf("neuron %d: BFGS: %v", n, err)
-				}
-				x := res.X
-				g := make([]float64, F+1)
-				hm := mat.NewSymDense(F+1, nil)
-				for range 3 {
-					grad(g, x)
-					hess(hm, x)
-					var ch mat.Cholesky
-					if !ch.Factorize(hm) {
-						t.Fatalf("neuron %d: the full Hessian is not positive definite", n)
-					}
-					var d mat.VecDense
-					if err := ch.SolveVecTo(&d, mat.NewVecDense(F+1, slices.Clone(g))); err != nil {
-						t.Fatal(err)
-					}
-					for i := range x {
-						x[i] -= d.AtVec(i)
-					}
-				}
-				grad(g, x)
-				if maxAbs(g) > 1e-9 {
-					t.Fatalf("neuron %d: the direct optimisers stop at gradient %g", n, maxAbs(g))
-				}
-				got := append(slices.Clone(net.ReadW()[n*F:(n+1)*F]), net.ReadB()[n])
-				var scale, diff float64
-				for i, v := range x {
-					scale = math.Max(scale, math.Abs(v))
-					diff = math.Max(diff, math.Abs(v-got[i]))
-				}
-				// Tolerance 1e-8 relative (the task's bar; measured: <= 3e-14):
-				// both solutions have a full-space gradient ~1e-12 or below.
-				if diff > 1e-8*math.Max(1, scale) {
-					t.Errorf("neuron %d: readout differs from BFGS's by %g (largest parameter %g)", n, diff, scale)
-				}
-				if o := obj(got); math.Abs(o-pp.objN[n]) > 1e-10*math.Abs(o) {
-					t.Errorf("neuron %d: objective %.15g, direct evaluation %.15g", n, pp.objN[n], o)
-				}
-			}
-
+			pp.WriteReadout()
+			nconv := len(pp.Trainable())
 			// The adam path's objective and gradients at this readout.
 			tr := newTrainer(p, net)
 			net.ZeroGrad()
 			N := float64(p.Neurons())
 			full := tr.lossGrad(tr.trainC, true, 1, nil)/(float64(len(p.Train))*N) + tr.penalty(true)
-			if math.Abs(full-pp.obj) > 1e-10*math.Abs(full) {
-				t.Errorf("objective: fast path %.15g, adam path %.15g", pp.obj, full)
+			if math.Abs(full-ev.Objective) > 1e-10*math.Abs(full) {
+				t.Errorf("objective: fast path %.15g, adam path %.15g", ev.Objective, full)
 			}
 			var maxr float64
-			for _, g := range net.Grads[pp.nconv:] {
+			for _, g := range net.Grads[nconv:] {
 				maxr = math.Max(maxr, math.Abs(g))
 			}
 			var maxc float64
-			for _, g := range net.Grads[:pp.nconv] {
+			for _, g := range net.Grads[:nconv] {
 				maxc = math.Max(maxc, math.Abs(g))
 			}
 			if maxr > 1e-9*maxc {
 				t.Errorf("adam path readout gradient at the fast path's readout is %g, want ~0 (filter gradient scale %g)", maxr, maxc)
 			}
 			vl, _ := tr.evalVal()
-			if math.Abs(vl-pp.val) > 1e-10*math.Abs(vl) {
-				t.Errorf("validation loss: fast path %.15g, adam path %.15g", pp.val, vl)
+			if math.Abs(vl-ev.ValLoss) > 1e-10*math.Abs(vl) {
+				t.Errorf("validation loss: fast path %.15g, adam path %.15g", ev.ValLoss, vl)
 			}
 		})
 	}
@@ -205,22 +89,23 @@ func TestPoissonProjGradient(t *testing.T) {
 	for _, output := range []nn.Activation{nn.Softplus, nn.Exp} {
 		t.Run(output.String(), func(t *testing.T) {
 			p, net := poissonCase(t, output, 0.05)
-			pp, err := newPoissonProj(p, net)
+			pp, err := projection.NewPoisson(p.problem(), net)
 			if err != nil {
 				t.Fatal(err)
 			}
-			if err := pp.eval(net, true, false); err != nil {
+			if _, err := pp.Evaluate(true, false); err != nil {
 				t.Fatal(err)
 			}
-			nc := pp.nconv
+			nc := len(pp.Trainable())
 			grad := slices.Clone(net.Grads[:nc])
 			x0 := slices.Clone(net.Params[:nc])
 			f := func(x []float64) float64 {
 				copy(net.Params[:nc], x)
-				if err := pp.eval(net, false, false); err != nil {
+				ev, err := pp.Evaluate(false, false)
+				if err != nil {
 					t.Fatal(err)
 				}
-				return pp.obj
+				return ev.Objective
 			}
 			// Step 1e-5 on parameters of size ~0.3: truncation O(h^2) ~ 1e-10
 			// relative, rounding ~1e-16/1e-5 relative to J; the readout is
@@ -235,10 +120,10 @@ func TestPoissonProjGradient(t *testing.T) {
 			if maxd > 1e-6*maxg {
 				t.Errorf("finite differences differ from the envelope gradient by %g (largest component %g)", maxd, maxg)
 			}
-			if err := pp.eval(net, false, false); err != nil {
+			if _, err := pp.Evaluate(false, false); err != nil {
 				t.Fatal(err)
 			}
-			pp.readout(net)
+			pp.WriteReadout()
 			tr := newTrainer(p, net)
 			net.ZeroGrad()
 			tr.lossGrad(tr.trainC, true, 1, nil)
@@ -252,14 +137,6 @@ func TestPoissonProjGradient(t *testing.T) {
 			}
 		})
 	}
-}
-
-func maxAbs(x []float64) float64 {
-	var m float64
-	for _, v := range x {
-		m = math.Max(m, math.Abs(v))
-	}
-	return m
 }
 
 // fitPoissonFast fits with train.solver projected (Fit dispatches Poisson
@@ -310,37 +187,6 @@ func TestPoissonFastVsAdam(t *testing.T) {
 	}
 }
 
-// TestPoissonCores checks that the readouts and the gradient do not depend
-// on how many goroutines share the neurons (bit for bit).
-func TestPoissonCores(t *testing.T) {
-	var ref []float64
-	for _, workers := range []int{1, 2, 5} {
-		p, net := poissonCase(t, nn.Softplus, 0.05)
-		pp, err := newPoissonProj(p, net)
-		if err != nil {
-			t.Fatal(err)
-		}
-		pp.workers = pp.workers[:0]
-		for range workers {
-			pp.workers = append(pp.workers, newPSWorker(pp.Bt))
-		}
-		for range 3 { // the later evals start from the earlier readouts
-			if err := pp.eval(net, true, false); err != nil {
-				t.Fatal(err)
-			}
-			pp.chord = true
-			net.Params[0] += 0.01
-		}
-		pp.readout(net)
-		got := append(slices.Clone(net.Params), net.Grads[:pp.nconv]...)
-		if ref == nil {
-			ref = got
-		} else if !slices.Equal(got, ref) {
-			t.Errorf("%d goroutines: parameters or gradient differ from one goroutine's", workers)
-		}
-	}
-}
-
 // TestPoissonEdgeCases: a silent neuron (all counts 0) gets a finite
 // readout with a rate near 0 and a finite gradient; a negative response
 // is refused with an error naming the neuron.
@@ -366,19 +212,19 @@ func TestPoissonEdgeCases(t *testing.T) {
 	}
 	net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
 	net.InitConvs(rand.New(rand.NewPCG(1, 2)))
-	pp, err := newPoissonProj(p, net)
+	pp, err := projection.NewPoisson(p.problem(), net)
 	if err != nil {
 		t.Fatal(err)
 	}
-	if err := pp.eval(net, true, true); err != nil {
+	if _, err := pp.Evaluate(true, true); err != nil {
 		t.Fatal(err)
 	}
-	for i, g := range net.Grads[:pp.nconv] {
+	for i, g := range net.Grads[:len(pp.Trainable())] {
 		if math.IsNaN(g) || math.IsInf(g, 0) {
 			t.Fatalf("gradient %d is %v", i, g)
 		}
 	}
-	curves := pp.curves()
+	curves := pp.WriteReadout()
 	for b := 0; b < p.NBins; b++ {
 		if r := curves[b*p.Neurons()+2]; !(r >= 0 && r < 1e-6) {
 			t.Errorf("silent neuron, bin %d: rate %g, want ~0", b, r)
@@ -390,7 +236,7 @@ func TestPoissonEdgeCases(t *testing.T) {
 		t.Fatal(err)
 	}
 	net = nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
-	_, err = newPoissonProj(p, net)
+	_, err = projection.NewPoisson(p.problem(), net)
 	if err == nil || !strings.Contains(err.Error(), "neuron 4") {
 		t.Errorf("negative counts: got %v, want an error naming neuron 4", err)
 	}
@@ -437,14 +283,14 @@ func TestPoissonResumeState(t *testing.T) {
 			c.Train.Patience = 1000
 			c.Model.Layers = []LayerConfig{{Channels: 3, Kernel: 5, Stride: 2}}
 		})
-	newSolver := func() *poissonSolver {
+	newSolver := func() *projection.Poisson {
 		net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
 		net.InitConvs(rand.New(rand.NewPCG(p.Cfg.Seed, 0x1417)))
-		pp, err := newPoissonProj(p, net)
+		pp, err := projection.NewPoisson(p.problem(), net)
 		if err != nil {
 			t.Fatal(err)
 		}
-		return &poissonSolver{pp: pp, net: net}
+		return pp
 	}
 	whole := newSolver()
 	if _, err := runEpochs(context.Background(), whole, p.Cfg.Train, Hooks{}, nil); err != nil {
@@ -464,7 +310,7 @@ func TestPoissonResumeState(t *testing.T) {
 			cp := *c
 			cp.Params, cp.M, cp.V = slices.Clone(c.Params), slices.Clone(c.M), slices.Clone(c.V)
 			cp.Best, cp.Log = slices.Clone(c.Best), slices.Clone(c.Log)
-			saved, state = &cp, first.saveState()
+			saved, state = &cp, first.SaveState()
 			return nil
 		},
 	}
@@ -472,16 +318,16 @@ func TestPoissonResumeState(t *testing.T) {
 		t.Fatalf("interrupted fit returned %v", err)
 	}
 	again := newSolver()
-	if err := again.loadState(state); err != nil {
+	if err := again.LoadState(state); err != nil {
 		t.Fatal(err)
 	}
 	if _, err := runEpochs(context.Background(), again, p.Cfg.Train, Hooks{}, saved); err != nil {
 		t.Fatal(err)
 	}
-	if !slices.Equal(whole.net.Params[:whole.pp.nconv], again.net.Params[:again.pp.nconv]) {
+	if !slices.Equal(whole.Trainable(), again.Trainable()) {
 		t.Error("resumed filters differ from the uninterrupted fit's")
 	}
-	if err := again.loadState(state[:len(state)-1]); err == nil {
+	if err := again.LoadState(state[:len(state)-1]); err == nil {
 		t.Error("a truncated state was accepted")
 	}
 }

@@ -225,38 +225,3 @@ func condPred(net *nn.Net, p *Prepared) []float64 {
 	p.Norm.InvertRows(out)
 	return out
 }
-
-// trainFilters is the test harness's training loop for a filter solver:
-// full-batch Adam on the conv parameters with the config's train settings,
-// early stopping on the validation loss with the config's patience, as
-// fitProjected does. eval(grad) evaluates the solver at the net's filters
-// (writing the conv gradient when grad) and returns the validation loss.
-// The best filters are left in the net; it returns the epochs run.
-func trainFilters(t testing.TB, p *Prepared, net *nn.Net, nc int, eval func(grad bool) (float64, error)) int {
-	t.Helper()
-	tc := p.Cfg.Train
-	params, grads := net.Params[:nc], net.Grads[:nc]
-	opt := nn.NewAdam(nc)
-	opt.LR, opt.Beta1, opt.Beta2, opt.Eps = tc.LearningRate, tc.Beta1, tc.Beta2, tc.Epsilon
-	if _, err := eval(true); err != nil {
-		t.Fatal(err)
-	}
-	best, since, epoch := math.Inf(1), 0, 0
-	bestP := slices.Clone(params)
-	for epoch < tc.MaxEpochs {
-		opt.Step(params, grads)
-		epoch++
-		v, err := eval(true)
-		if err != nil {
-			t.Fatal(err)
-		}
-		if v < best {
-			best, since = v, 0
-			copy(bestP, params)
-		} else if since++; since >= tc.Patience {
-			break
-		}
-	}
-	copy(params, bestP)
-	return epoch
-}

@@ -645,7 +645,7 @@ func (c *classifier) predict(dst []int, y []float32, n int, test, cols []int, co
 			if counts {
 				for j, v := range xr {
 					if v < 0 {
-						return fmt.Errorf("Poisson decoder: response of trial %d, neuron %d is negative (%v)", t, cols[j], v)
+						return fmt.Errorf("acuity: Poisson decoder: response of trial %d, neuron %d is negative (%v)", t, cols[j], v)
 					}
 				}
 				continue

@@ -1,4 +1,4 @@
-package train
+package projection
 
 import "github.com/strialab/stria/nn"
 

@@ -1,7 +1,6 @@
-package train
+package projection
 
 import (
-	"context"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -122,20 +121,19 @@ const (
 // newPoissonProj reduces a prepared recording to the per-condition spike
 // sums of the Poisson fast path. The config must ask for loss poisson with
 // a softplus or exp output on raw (not z-scored) one-hot data.
-func newPoissonProj(p *Prepared, net *nn.Net) (*poissonProj, error) {
-	cfg := p.Cfg
-	if cfg.Model.Loss != Poisson || p.Norm != nil || p.Soft() {
+func newPoissonProj(pr *Problem, net *nn.Net) (*poissonProj, error) {
+	if pr.Norm != nil {
 		return nil, fmt.Errorf("train: the Poisson fast path needs model.loss poisson, split.zscore false and axis.encoding onehot")
 	}
 	if net.Output != nn.Softplus && net.Output != nn.Exp {
 		return nil, fmt.Errorf("train: the Poisson fast path needs model.output softplus or exp")
 	}
-	if !(cfg.Model.ReadoutL2.Value > 0) {
-		return nil, fmt.Errorf("train: the Poisson fast path needs model.readout_l2 > 0 (it is %v)", cfg.Model.ReadoutL2)
+	if !(pr.Penalty > 0) {
+		return nil, fmt.Errorf("train: the Poisson fast path needs model.readout_l2 > 0 (it is %v)", pr.Penalty)
 	}
-	B, N, F := p.NBins, p.Neurons(), net.Features()
+	B, N, F := pr.Train.B, pr.Train.N, net.Features()
 	pp := &poissonProj{B: B, N: N, F: F, act: net.Output}
-	st := p.TrainStats()
+	st := pr.Train
 	for b, c := range st.Count {
 		if c > 0 {
 			pp.rows = append(pp.rows, b)
@@ -146,21 +144,21 @@ func newPoissonProj(p *Prepared, net *nn.Net) (*poissonProj, error) {
 		return nil, fmt.Errorf("train: no training trials")
 	}
 	pp.Bt = Bt
-	pp.W = float64(len(p.Train))
-	pp.mu = cfg.Model.ReadoutL2.Value * pp.W / 2
+	pp.W = float64(trials(pr.Train))
+	pp.mu = pr.Penalty * pp.W / 2
 	pp.cnt = make([]float64, Bt)
 	pp.sum = make([]float64, N*Bt)
 	for r, b := range pp.rows {
 		pp.cnt[r] = float64(st.Count[b])
 		for n, s := range st.Sum[b*N : (b+1)*N] {
 			if s < 0 || math.IsNaN(s) {
-				return nil, fmt.Errorf("train: %s has a negative response sum in %s: the Poisson loss needs counts >= 0", p.Rec.NeuronName(n), p.Axis.BinLabel(b))
+				return nil, fmt.Errorf("train: %s has a negative response sum in %s: the Poisson loss needs counts >= 0", pr.neuronName(n), pr.binLabel(b))
 			}
 			pp.sum[n*Bt+r] = s
 		}
 	}
-	if len(p.Val) > 0 {
-		sv := p.ValStats()
+	if pr.hasVal() {
+		sv := pr.Val
 		for b, c := range sv.Count {
 			if c > 0 {
 				pp.vrows = append(pp.vrows, b)
@@ -168,7 +166,7 @@ func newPoissonProj(p *Prepared, net *nn.Net) (*poissonProj, error) {
 		}
 		Bv := len(pp.vrows)
 		pp.Bv = Bv
-		pp.Wv = float64(len(p.Val))
+		pp.Wv = float64(trials(pr.Val))
 		pp.vcnt = make([]float64, Bv)
 		pp.vsum = make([]float64, N*Bv)
 		pp.vsq = make([]float64, N)
@@ -686,60 +684,76 @@ func (pp *poissonProj) curves() []float64 {
 	return out
 }
 
-// fitPoissonProjected trains with the Poisson fast path: the epoch loop
-// (runEpochs) moves the filters with Adam along the envelope gradient of
-// the projected Poisson objective; early stopping watches the validation
-// loss of the per-neuron optimal readouts. The first evaluation solves
-// every readout exactly; later training epochs factor each neuron's
-// Hessian once (poissonProj.chord). At the end the readouts of the best
-// filters are solved exactly and written into the net.
-//
-// A checkpoint holds the conv parameters only: a resumed fit re-solves the
-// readouts from the mean-rate start, so it agrees with an uninterrupted
-// one to about 1e-10 (measured), not bit for bit; poissonSolver.saveState
-// and loadState carry the rest once checkpoints have room for it.
-func fitPoissonProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
-	cfg := p.Cfg
-	net := nn.NewNet(cfg.Shape(p.NBins, p.Neurons()))
-	net.InitConvs(rand.New(rand.NewPCG(cfg.Seed, 0x1417)))
-	pp, err := newPoissonProj(p, net)
+// NewPoisson reduces a problem (raw counts, no z-scoring) to the
+// per-condition spike sums of the Poisson fast path for the filters of
+// net, whose output must be softplus or exp.
+func NewPoisson(pr Problem, net *nn.Net) (*Poisson, error) {
+	pp, err := newPoissonProj(&pr, net)
 	if err != nil {
 		return nil, err
 	}
-	s := &poissonSolver{pp: pp, net: net}
-	res, err := runEpochs(ctx, s, cfg.Train, hooks, resume)
-	if err != nil {
-		return nil, err
-	}
-	pp.chord = false
-	if err := pp.eval(net, false, pp.Bv > 0); err != nil {
-		return nil, err
-	}
-	for i := range res.log {
-		if e := &res.log[i]; e.Epoch == res.bestEpoch && math.IsNaN(e.ValR2) {
-			e.ValR2 = pp.vr2
-		}
-	}
-	pp.readout(net)
-	return &Fitted{Net: net, Solver: SolverProjected, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop, Curves: pp.curves()}, nil
+	return &Poisson{pp: pp, net: net}, nil
 }
 
-// poissonSolver plugs the Poisson fast path into the epoch loop, as
-// projectedSolver does the MSE one.
-type poissonSolver struct {
+// Readout solves the readouts of the net's current filters exactly,
+// writes them into the net and returns the predictions of every bin (B x
+// N, counts) and the median validation R^2 (NaN without validation
+// trials).
+func (s *Poisson) Readout() (curves []float64, valR2 float64, err error) {
+	s.pp.chord = false
+	if err := s.pp.eval(s.net, false, s.pp.Bv > 0); err != nil {
+		return nil, 0, err
+	}
+	valR2 = math.NaN()
+	if s.pp.Bv > 0 {
+		valR2 = s.pp.vr2
+	}
+	s.pp.readout(s.net)
+	return s.pp.curves(), valR2, nil
+}
+
+// Evaluate solves every neuron's readout exactly at the net's current
+// filters and returns the projected objective (as MSE.Evaluate); with
+// grad it writes the filter gradient into the conv part of net.Grads. For
+// checks against other paths to the same numbers.
+func (s *Poisson) Evaluate(grad, r2 bool) (Eval, error) {
+	prev := s.pp.chord
+	s.pp.chord = false
+	err := s.pp.eval(s.net, grad, r2)
+	s.pp.chord = prev
+	if err != nil {
+		return Eval{}, err
+	}
+	return Eval{Objective: s.pp.obj, Loss: s.pp.loss, ValLoss: s.pp.val, ValR2: s.pp.vr2}, nil
+}
+
+// WriteReadout writes the readouts of the last Evaluate into the net and
+// returns the predictions of every bin (B x N, counts).
+func (s *Poisson) WriteReadout() []float64 {
+	s.pp.readout(s.net)
+	return s.pp.curves()
+}
+
+// Poisson is the projected solver for the Poisson loss with a softplus or
+// exp output: each neuron's readout is solved by Newton's method on the
+// condition rows for the current filters, and the filters follow Adam on
+// the resulting loss (eval/methods.md §13). Its loop methods are those of
+// MSE. After training, ValR2 re-solves the readouts exactly and Readout
+// writes them into the net.
+type Poisson struct {
 	pp     *poissonProj
 	net    *nn.Net
-	loaded bool // loadState ran: begin keeps the restored state
+	loaded bool // LoadState ran: begin keeps the restored state
 }
 
-func (s *poissonSolver) name() string         { return "projected" }
-func (s *poissonSolver) trainable() []float64 { return s.net.Params[:s.pp.nconv] }
-func (s *poissonSolver) random() *rand.PCG    { return nil }
+func (s *Poisson) Name() string         { return "projected" }
+func (s *Poisson) Trainable() []float64 { return s.net.Params[:s.pp.nconv] }
+func (s *Poisson) Random() *rand.PCG    { return nil }
 
 // begin solves the readouts of the starting filters exactly; their loss
-// and gradient feed the first step. After loadState it restores them
+// and gradient feed the first step. After LoadState it restores them
 // instead, so that a resumed fit continues bit for bit.
-func (s *poissonSolver) begin() error {
+func (s *Poisson) Begin() error {
 	if s.loaded {
 		s.loaded = false
 		return nil
@@ -750,14 +764,14 @@ func (s *poissonSolver) begin() error {
 	return err
 }
 
-// saveState returns what a resumed fit needs besides the filters and the
+// SaveState returns what a resumed fit needs besides the filters and the
 // optimiser to continue bit for bit: the last training loss and filter
 // gradient and the readouts the next epoch's solves start from (beta in
 // the basis Qt). Layout: loss, obj, r, the nconv filter gradients, c (N),
 // beta (N x r), Qt (r x F): 3 + nconv + N (r+1) + r F values, about 12 MB
 // at 24,000 neurons and 60 bins. (Not yet stored in checkpoints: the epoch
 // loop has no place for it; see the report of this solver.)
-func (s *poissonSolver) saveState() []float64 {
+func (s *Poisson) SaveState() []float64 {
 	pp := s.pp
 	r, Bt, F, N := pp.r, pp.Bt, pp.F, pp.N
 	out := make([]float64, 0, 3+pp.nconv+N*(r+1)+r*F)
@@ -770,9 +784,9 @@ func (s *poissonSolver) saveState() []float64 {
 	return append(out, pp.qt[:r*F]...)
 }
 
-// loadState restores a saveState taken from a fit of the same config and
+// LoadState restores a SaveState taken from a fit of the same config and
 // data; the next begin keeps it.
-func (s *poissonSolver) loadState(v []float64) error {
+func (s *Poisson) LoadState(v []float64) error {
 	pp := s.pp
 	Bt, F, N := pp.Bt, pp.F, pp.N
 	if len(v) < 3 {
@@ -797,13 +811,13 @@ func (s *poissonSolver) loadState(v []float64) error {
 	return nil
 }
 
-func (s *poissonSolver) epoch(opt *nn.Adam) float64 {
+func (s *Poisson) Epoch(opt *nn.Adam) float64 {
 	loss := s.pp.loss
 	opt.Step(s.net.Params[:s.pp.nconv], s.net.Grads[:s.pp.nconv])
 	return loss
 }
 
-func (s *poissonSolver) validate(epoch int) (float64, float64, error) {
+func (s *Poisson) Validate(epoch int) (float64, float64, error) {
 	pp := s.pp
 	r2 := epoch == 1 || (pp.r2Every > 0 && epoch%pp.r2Every == 0)
 	if err := pp.eval(s.net, true, r2); err != nil {

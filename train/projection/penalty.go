@@ -1,4 +1,4 @@
-package train
+package projection
 
 import (
 	"fmt"
@@ -351,9 +351,9 @@ func (pj *projector) readoutL2(mu float64) float64 { return 2 * mu / pj.W }
 
 // trainWithinN returns each neuron's within-condition sum of squares over
 // the training trials, in the trainer's units (for perNeuronSURE).
-func trainWithinN(p *Prepared) []float64 {
-	st := p.TrainStats()
-	N := p.Neurons()
+func trainWithinN(pr *Problem) []float64 {
+	st := pr.Train
+	N := st.N
 	out := make([]float64, N)
 	for b, c := range st.Count {
 		if c == 0 {
@@ -366,7 +366,7 @@ func trainWithinN(p *Prepared) []float64 {
 		}
 	}
 	for n := range out {
-		_, inv := p.Norm.Affine(n)
+		_, inv := pr.Norm.Affine(n)
 		out[n] *= inv * inv
 	}
 	return out
@@ -381,7 +381,7 @@ func trainWithinN(p *Prepared) []float64 {
 // per-bin predictions (B x N, trained units) and the chosen
 // model.readout_l2 of every neuron (all equal unless perNeuron), and
 // leaves pj.mu at the global choice.
-func (pj *projector) autoReadout(p *Prepared, net *nn.Net, perNeuron bool) (curves, l2 []float64, err error) {
+func (pj *projector) autoReadout(pr *Problem, net *nn.Net, perNeuron bool) (curves, l2 []float64, err error) {
 	rp := newRidgePath(pj, nil)
 	if err := rp.decompose(pj, net); err != nil {
 		return nil, nil, err
@@ -396,7 +396,7 @@ func (pj *projector) autoReadout(p *Prepared, net *nn.Net, perNeuron bool) (curv
 	pj.mu = rp.mu[g]
 	var pick []int
 	if perNeuron {
-		pick = rp.perNeuronSURE(pj, trainWithinN(p))
+		pick = rp.perNeuronSURE(pj, trainWithinN(pr))
 	} else {
 		pick = make([]int, pj.N)
 		for n := range pick {

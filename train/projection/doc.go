@@ -1,0 +1,27 @@
+// Package projection holds stria's projected solvers: fits of the
+// shared-filter encoder on one-hot input in which, for fixed filters, every
+// neuron's readout is solved exactly on the condition rows and only the
+// filters are trained, on the resulting (projected) loss.
+//
+//   - MSE with an identity output: the readout is a weighted ridge solution
+//     in closed form (variable projection, eval/methods.md §8), so an epoch
+//     costs O(B^2 F + B^3) whatever the number of neurons; the penalty can
+//     be chosen from the data at the final filters, for all neurons or per
+//     neuron (eval/methods.md §12).
+//   - Poisson with a softplus or exp output: each neuron's readout by
+//     Newton's method in the span of the condition rows (eval/methods.md
+//     §13), O(N B^3) per epoch.
+//
+// A solver reads a Problem (per-condition statistics of the training and
+// validation trials, the z-scoring, the penalty) and a net whose conv
+// layers it trains. Its methods Name, Trainable, Begin, Epoch, Validate and
+// Random are driven by train's epoch loop, which owns early stopping,
+// checkpoints and divergence; Readout (and AutoReadout) write the final
+// readout into the net and return the per-bin predictions (B x N, in the
+// units of the Problem: z-scored when Problem.Norm is set).
+//
+// Letters: B bins (conditions), Bt and Bv those with training and with
+// validation trials, F features of the last conv layer, N neurons, W and
+// Wv the numbers of training and validation trials. Matrices are row-major
+// flat slices. Results do not depend on the number of goroutines.
+package projection

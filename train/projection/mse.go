@@ -1,0 +1,639 @@
+package projection
+
+import (
+	"fmt"
+	"math"
+	"math/rand/v2"
+
+	"gonum.org/v1/gonum/blas"
+	"gonum.org/v1/gonum/blas/blas64"
+	"gonum.org/v1/gonum/floats"
+	"gonum.org/v1/gonum/lapack/lapack64"
+
+	"github.com/strialab/stria/nn"
+)
+
+// The projected solver (train.solver: projected) minimises exactly the
+// objective of the adam path on one-hot input with MSE and identity output,
+//
+//	J = 1/(W N) sum_b N_b sum_n (ybar_bn - f_bn)^2 + lambda/(2N) sum_n ||w_n||^2
+//	    (+ the within-condition constant, METHODS.md §8),
+//	f_bn = h_b . w_n + c_n,
+//
+// but by variable projection (Golub & Pereyra 1973, METHODS.md §8 [mem]):
+// for fixed filters the best readout is a weighted ridge solution in closed
+// form, so only the filters are optimised, on the projected loss.
+//
+// Letters: B bins (all conditions), Bt and Bv the bins present among the
+// training and the validation trials, F features, N neurons, W and Wv the
+// numbers of training and validation trials. p_b = N_b/W, D = diag(N_b).
+// For fixed features H (B x F) of the training rows [derived]:
+//
+//	hbar = sum_b p_b h_b,  A = D^1/2 (H - 1 hbar^T)              Bt x F
+//	mu = lambda W / 2,     K = A A^T + mu I                       Bt x Bt
+//	Yc = Ybar - 1 ybar^T   (ybar_n = sum_b p_b ybar_bn)           Bt x N
+//	S  = D^1/2 Yc Yc^T D^1/2                                      Bt x Bt
+//	w_n = A^T K^-1 D^1/2 yc_n,  c_n = ybar_n - hbar . w_n
+//	J  = (within + mu tr(K^-1 S)) / (W N)
+//	data part = (within + mu^2 tr(M)) / (W N),  M = K^-1 S K^-1
+//	dJ/dH_b = -(2 mu / (W N)) sqrt(N_b) (M A)_b   (envelope theorem)
+//
+// (A^T D^1/2 1 = 0, so K^-1 D^1/2 1 = D^1/2 1 / mu and the readout does not
+// change if Ybar is used uncentred.) S is computed once; every step then
+// costs O(Bt^2 F + Bt^3) and nothing per neuron. The validation loss of the
+// closed-form readout is also a B x B computation: with
+// Rk = (Hv - 1 hbar^T) A^T K^-1 (Bv x Bt) the centred validation prediction
+// is Rk D^1/2 Yc, so
+//
+//	sum_b Nv_b ||yvc_b - Rk_b D^1/2 Yc||^2
+//	  = sum_b Nv_b (||yvc_b||^2 - 2 Rk_b . (D^1/2 Yc yvc_b) + Rk_b S Rk_b^T),
+//
+// yvc_b the validation mean of bin b minus ybar. Only the median validation
+// R^2 needs a pass over the neurons (O(Bv Bt N)); see projector.r2Every.
+
+// projector holds the data of a projected fit reduced to B x B form, and
+// the scratch space of one evaluation. Shapes as in the comment above.
+type projector struct {
+	B, Bt, Bv, F, N int
+	rows, vrows     []int     // bins of the training and the validation rows
+	sq, pw          []float64 // Bt: sqrt(N_b), N_b / W
+	nv              []float64 // Bv: validation trials of each row
+	W, Wv, mu       float64
+	within, withinV float64 // within-condition sums of squares (all neurons)
+
+	yc    []float64 // Bt x N, centred training condition means
+	ymean []float64 // N, training mean of each neuron
+	S     []float64 // Bt x Bt
+	cvt   []float64 // Bv x Bt, row b: D^1/2 Yc yvc_b
+	yyv   []float64 // Bv, ||yvc_b||^2
+
+	// Validation R^2, per neuron (nil when there are no validation rows).
+	dv     []float64 // Bv x N, yvc
+	withN  []float64 // N, within-condition sum of squares on the validation trials
+	valTot []float64 // N, total sum of squares on the validation trials
+	// r2Every: the median validation R^2 is computed on every r2Every-th
+	// epoch (and on the first and the best); other epochs log NaN. It is 1
+	// unless the recording is so large that the pass over the neurons
+	// would dominate a step.
+	r2Every int
+
+	work *nn.Work
+	eye  []float64 // B x B one-hot input
+	// oneHot evaluates a one-layer encoder on the one-hot rows directly
+	// (nil for deeper encoders, which go through nn with eye).
+	oneHot *oneHotConv
+
+	// Scratch.
+	h                   []float64 // B x F, features of the last call to features
+	hbar, hv            []float64 // F, Bv x F
+	a, ga, qt           []float64 // Bt x F
+	k, l, x, m          []float64 // Bt x Bt
+	rk, t               []float64 // Bv x Bt
+	dH                  []float64 // B x F
+	g                   []float64 // Bv x N
+	ssRes, r2           []float64 // N
+	nconv               int       // number of conv parameters (a prefix of Params)
+	obj, loss, val, vr2 float64   // results of the last eval
+}
+
+// The median validation R^2 costs Bv Bt N multiply-adds each time it is
+// computed. Up to projectedR2Every of them it is computed every epoch (at
+// 60 bins: up to about 1,100 neurons); above, every k-th epoch with k
+// chosen so that it costs on average projectedR2Budget per epoch, about a
+// quarter of a training step at the full-size shape (B 60, F 480): every
+// 173rd epoch at 24,000 neurons. It only feeds the log; the stop uses the
+// validation loss, computed every epoch.
+const (
+	projectedR2Every  = 4e6
+	projectedR2Budget = 5e5
+)
+
+func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
+	if !(pr.Penalty > 0) {
+		return nil, fmt.Errorf("train.solver projected needs model.readout_l2 > 0 (it is %v): without a penalty the closed-form readout interpolates the condition means", pr.Penalty)
+	}
+	B, N, F := pr.Train.B, pr.Train.N, net.Features()
+	pj := &projector{B: B, N: N, F: F}
+	st := pr.Train
+	for b, c := range st.Count {
+		if c > 0 {
+			pj.rows = append(pj.rows, b)
+		}
+	}
+	Bt := len(pj.rows)
+	if Bt == 0 {
+		return nil, fmt.Errorf("train: no training trials")
+	}
+	pj.Bt = Bt
+	pj.W = float64(trials(pr.Train))
+	pj.mu = pr.Penalty * pj.W / 2
+	pj.sq, pj.pw = make([]float64, Bt), make([]float64, Bt)
+	for r, b := range pj.rows {
+		c := float64(st.Count[b])
+		pj.sq[r], pj.pw[r] = math.Sqrt(c), c/pj.W
+	}
+	// Training means, their weighted mean and the within sum of squares,
+	// in the trainer's (possibly z-scored) units z = (y - mu) * inv: a
+	// centred mean scales by inv, a sum of squared deviations by inv^2.
+	mu, inv := make([]float64, N), make([]float64, N)
+	for n := range mu {
+		mu[n], inv[n] = pr.Norm.Affine(n)
+	}
+	pj.ymean = make([]float64, N)
+	pj.yc = make([]float64, Bt*N)
+	for r, b := range pj.rows {
+		c := float64(st.Count[b])
+		sum, sq := st.Sum[b*N:(b+1)*N], st.SumSq[b*N:(b+1)*N]
+		yc := pj.yc[r*N : (r+1)*N]
+		for n, s := range sum {
+			m := s / c
+			yc[n] = m
+			pj.within += (sq[n] - s*m) * inv[n] * inv[n]
+			pj.ymean[n] += s
+		}
+	}
+	for n := range pj.ymean {
+		pj.ymean[n] /= pj.W
+	}
+	for r := 0; r < Bt; r++ {
+		yc := pj.yc[r*N : (r+1)*N]
+		for n, m := range pj.ymean {
+			yc[n] = (yc[n] - m) * inv[n]
+		}
+	}
+	st = nil
+	pj.S = make([]float64, Bt*Bt)
+	blas64.Gemm(blas.NoTrans, blas.Trans, 1, gen(pj.yc, Bt, N), gen(pj.yc, Bt, N), 0, gen(pj.S, Bt, Bt))
+	for i := 0; i < Bt; i++ {
+		for j := 0; j < Bt; j++ {
+			pj.S[i*Bt+j] *= pj.sq[i] * pj.sq[j]
+		}
+	}
+
+	if pr.hasVal() {
+		sv := pr.Val
+		for b, c := range sv.Count {
+			if c > 0 {
+				pj.vrows = append(pj.vrows, b)
+			}
+		}
+		Bv := len(pj.vrows)
+		pj.Bv = Bv
+		pj.Wv = float64(trials(pr.Val))
+		pj.nv = make([]float64, Bv)
+		pj.dv = make([]float64, Bv*N)
+		pj.withN = make([]float64, N)
+		pj.valTot = make([]float64, N)
+		grand := make([]float64, N)
+		for r, b := range pj.vrows {
+			c := float64(sv.Count[b])
+			pj.nv[r] = c
+			sum, sq := sv.Sum[b*N:(b+1)*N], sv.SumSq[b*N:(b+1)*N]
+			d := pj.dv[r*N : (r+1)*N]
+			for n, s := range sum {
+				m := s / c
+				d[n] = (m - pj.ymean[n]) * inv[n]
+				pj.withN[n] += sq[n] - s*m
+				pj.valTot[n] += sq[n]
+				grand[n] += s
+			}
+		}
+		for n, w := range pj.withN {
+			i2 := inv[n] * inv[n]
+			pj.withN[n] = w * i2
+			pj.withinV += w * i2
+			pj.valTot[n] = (pj.valTot[n] - grand[n]*grand[n]/pj.Wv) * i2
+		}
+		pj.yyv = make([]float64, Bv)
+		for r := range pj.yyv {
+			d := pj.dv[r*N : (r+1)*N]
+			var s float64
+			for _, v := range d {
+				s += v * v
+			}
+			pj.yyv[r] = s
+		}
+		pj.cvt = make([]float64, Bv*Bt)
+		blas64.Gemm(blas.NoTrans, blas.Trans, 1, gen(pj.dv, Bv, N), gen(pj.yc, Bt, N), 0, gen(pj.cvt, Bv, Bt))
+		for r := 0; r < Bv; r++ {
+			for c := 0; c < Bt; c++ {
+				pj.cvt[r*Bt+c] *= pj.sq[c]
+			}
+		}
+		pj.r2Every = 1
+		if cost := float64(Bv) * float64(Bt) * float64(N); cost > projectedR2Every {
+			pj.r2Every = int(math.Ceil(cost / projectedR2Budget))
+		}
+		pj.g = make([]float64, Bv*N)
+		pj.ssRes = make([]float64, N)
+		pj.r2 = make([]float64, N)
+		pj.hv = make([]float64, Bv*F)
+		pj.rk = make([]float64, Bv*Bt)
+		pj.t = make([]float64, Bv*Bt)
+	}
+
+	for n, m := range pj.ymean {
+		pj.ymean[n] = (m - mu[n]) * inv[n]
+	}
+	pj.work = net.NewWork(B)
+	pj.eye = make([]float64, B*B)
+	for b := 0; b < B; b++ {
+		pj.eye[b*B+b] = 1
+	}
+	if usableOneHot(net) {
+		pj.oneHot = newOneHotConv(net)
+	}
+	pj.hbar = make([]float64, F)
+	pj.a = make([]float64, Bt*F)
+	pj.ga = make([]float64, Bt*F)
+	pj.qt = make([]float64, Bt*F)
+	pj.k = make([]float64, Bt*Bt)
+	pj.l = make([]float64, Bt*Bt)
+	pj.x = make([]float64, Bt*Bt)
+	pj.m = make([]float64, Bt*Bt)
+	pj.dH = make([]float64, B*F)
+	pj.nconv = len(net.Params) - N*F - N
+	return pj, nil
+}
+
+// gen wraps a row-major r x c slice as a blas64.General.
+func gen(v []float64, r, c int) blas64.General {
+	return blas64.General{Rows: r, Cols: c, Stride: c, Data: v[:r*c]}
+}
+
+// features runs the conv stack on every bin and forms hbar and A.
+func (pj *projector) features(net *nn.Net) []float64 {
+	F := pj.F
+	var h []float64
+	if pj.oneHot != nil {
+		h = pj.oneHot.forward(net)
+	} else {
+		h = net.ForwardFeatures(pj.work, pj.eye, pj.B)
+	}
+	pj.h = h
+	clear(pj.hbar)
+	for r, b := range pj.rows {
+		w := pj.pw[r]
+		for f, v := range h[b*F : (b+1)*F] {
+			pj.hbar[f] += w * v
+		}
+	}
+	for r, b := range pj.rows {
+		s := pj.sq[r]
+		a := pj.a[r*F : (r+1)*F]
+		for f, v := range h[b*F : (b+1)*F] {
+			a[f] = s * (v - pj.hbar[f])
+		}
+	}
+	return h
+}
+
+// factor forms K = A A^T + mu I and its Cholesky factor. It returns false
+// if K is not numerically positive definite (only possible with NaN or Inf
+// features).
+func (pj *projector) factor() (blas64.Triangular, bool) {
+	Bt, F := pj.Bt, pj.F
+	mulABt(pj.k, pj.a, pj.a, Bt, Bt, F, true)
+	for i := 0; i < Bt; i++ {
+		pj.k[i*Bt+i] += pj.mu
+	}
+	copy(pj.l, pj.k)
+	return lapack64.Potrf(blas64.Symmetric{Uplo: blas.Lower, N: Bt, Stride: Bt, Data: pj.l})
+}
+
+// mulABt writes dst = a b^T, with a [m][k], b [n][k], dst [m][n]. With
+// sym (a == b, m == n) only the lower triangle is computed and mirrored.
+// Serial: at the sizes of a step (m, n <= B, k = F) a parallel Gemm costs
+// more in goroutines and allocations than it saves.
+func mulABt(dst, a, b []float64, m, n, k int, sym bool) {
+	for i := 0; i < m; i++ {
+		ai := a[i*k : (i+1)*k]
+		jn := n
+		if sym {
+			jn = i + 1
+		}
+		for j := 0; j < jn; j++ {
+			v := floats.Dot(ai, b[j*k:(j+1)*k])
+			dst[i*n+j] = v
+			if sym {
+				dst[j*n+i] = v
+			}
+		}
+	}
+}
+
+// mulAB writes dst = a b, with a [m][k], b [k][n], dst [m][n], serially.
+func mulAB(dst, a, b []float64, m, k, n int) {
+	for i := 0; i < m; i++ {
+		d := dst[i*n : (i+1)*n]
+		clear(d)
+		for c, v := range a[i*k : (i+1)*k] {
+			if v != 0 {
+				floats.AddScaled(d, v, b[c*n:(c+1)*n])
+			}
+		}
+	}
+}
+
+// solveLeft overwrites b (Bt x cols) with K^-1 b.
+func solveLeft(l blas64.Triangular, b blas64.General) {
+	blas64.Trsm(blas.Left, blas.NoTrans, 1, l, b)
+	blas64.Trsm(blas.Left, blas.Trans, 1, l, b)
+}
+
+// solveRight overwrites b (rows x Bt) with b K^-1.
+func solveRight(l blas64.Triangular, b blas64.General) {
+	blas64.Trsm(blas.Right, blas.Trans, 1, l, b)
+	blas64.Trsm(blas.Right, blas.NoTrans, 1, l, b)
+}
+
+// eval computes, at the net's current filters, the projected objective
+// (pj.obj, penalty included), the training data loss (pj.loss), the
+// validation loss (pj.val) and, if r2, the median validation R^2 (pj.vr2,
+// NaN otherwise), all in the units of EpochLog. With grad it also
+// overwrites the conv gradients in net.Grads with dJ/dtheta (the readout
+// part of net.Grads is not touched). It allocates nothing.
+func (pj *projector) eval(net *nn.Net, grad, r2 bool) error {
+	Bt, F, N := pj.Bt, pj.F, float64(pj.N)
+	h := pj.features(net)
+	l, ok := pj.factor()
+	if !ok {
+		return fmt.Errorf("train: projected solver: the features are not finite")
+	}
+	// X = K^-1 S, M = X K^-1.
+	copy(pj.x, pj.S)
+	solveLeft(l, gen(pj.x, Bt, Bt))
+	copy(pj.m, pj.x)
+	solveRight(l, gen(pj.m, Bt, Bt))
+	var trX, trM float64
+	for i := 0; i < Bt; i++ {
+		trX += pj.x[i*Bt+i]
+		trM += pj.m[i*Bt+i]
+	}
+	scale := 1 / (pj.W * N)
+	pj.obj = (pj.within + pj.mu*trX) * scale
+	pj.loss = (pj.within + pj.mu*pj.mu*trM) * scale
+	if grad {
+		mulAB(pj.ga, pj.m, pj.a, Bt, Bt, F)
+		clear(pj.dH)
+		c := -2 * pj.mu * scale
+		for r, b := range pj.rows {
+			s := c * pj.sq[r]
+			d := pj.dH[b*F : (b+1)*F]
+			for f, v := range pj.ga[r*F : (r+1)*F] {
+				d[f] = s * v
+			}
+		}
+		clear(net.Grads[:pj.nconv])
+		if pj.oneHot != nil {
+			pj.oneHot.backward(net, pj.dH)
+		} else {
+			net.BackwardFeatures(pj.work, pj.dH, pj.B)
+		}
+	}
+	pj.val, pj.vr2 = math.NaN(), math.NaN()
+	if pj.Bv == 0 {
+		return nil
+	}
+	Bv := pj.Bv
+	for r, b := range pj.vrows {
+		hv := pj.hv[r*F : (r+1)*F]
+		for f, v := range h[b*F : (b+1)*F] {
+			hv[f] = v - pj.hbar[f]
+		}
+	}
+	rk := gen(pj.rk, Bv, Bt)
+	mulABt(pj.rk, pj.hv, pj.a, Bv, Bt, F, false)
+	solveRight(l, rk)
+	mulAB(pj.t, pj.rk, pj.S, Bv, Bt, Bt)
+	sum := pj.withinV
+	for r := 0; r < Bv; r++ {
+		rr := pj.rk[r*Bt : (r+1)*Bt]
+		var cross, quad float64
+		for c, v := range rr {
+			cross += v * pj.cvt[r*Bt+c]
+			quad += v * pj.t[r*Bt+c]
+		}
+		sum += pj.nv[r] * (pj.yyv[r] - 2*cross + quad)
+	}
+	pj.val = sum / (pj.Wv * N)
+	if r2 {
+		pj.vr2 = pj.valR2()
+	}
+	return nil
+}
+
+// valR2 returns the median over neurons of the validation R^2 of the
+// closed-form readout, from pj.rk of the last eval: the centred
+// validation prediction is G = Rk D^1/2 Yc (Bv x N) and the residual sum of
+// squares of neuron n is within_n + sum_b Nv_b (yvc_bn - G_bn)^2.
+func (pj *projector) valR2() float64 {
+	Bv, Bt, N := pj.Bv, pj.Bt, pj.N
+	for r := 0; r < Bv; r++ {
+		for c := 0; c < Bt; c++ {
+			pj.t[r*Bt+c] = pj.rk[r*Bt+c] * pj.sq[c]
+		}
+	}
+	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(pj.t, Bv, Bt), gen(pj.yc, Bt, N), 0, gen(pj.g, Bv, N))
+	copy(pj.ssRes, pj.withN)
+	for r := 0; r < Bv; r++ {
+		w := pj.nv[r]
+		g, d := pj.g[r*N:(r+1)*N], pj.dv[r*N:(r+1)*N]
+		ss := pj.ssRes[:len(g)]
+		for n, v := range g {
+			e := d[n] - v
+			ss[n] += w * e * e
+		}
+	}
+	k := 0
+	for n, ss := range pj.ssRes {
+		if pj.valTot[n] > 0 {
+			pj.r2[k] = 1 - ss/pj.valTot[n]
+			k++
+		}
+	}
+	return median(pj.r2[:k])
+}
+
+// readout writes the closed-form readout of the net's current filters into
+// the net: w_n = A^T K^-1 D^1/2 yc_n (all N x F weights in one matrix
+// product, parallel and deterministic in gonum's Gemm), c_n = ybar_n -
+// hbar . w_n.
+func (pj *projector) readout(net *nn.Net) error {
+	Bt, F, N := pj.Bt, pj.F, pj.N
+	pj.features(net)
+	l, ok := pj.factor()
+	if !ok {
+		return fmt.Errorf("train: projected solver: the features are not finite")
+	}
+	copy(pj.qt, pj.a)
+	solveLeft(l, gen(pj.qt, Bt, F))
+	for r := 0; r < Bt; r++ {
+		s := pj.sq[r]
+		q := pj.qt[r*F : (r+1)*F]
+		for f := range q {
+			q[f] *= s
+		}
+	}
+	w := net.ReadW()
+	// W = yc^T qt. Transposing yc first (Bt x N, a small copy) lets the
+	// product run as NoTrans x NoTrans, which gonum's kernel does about
+	// three times faster than the transposed form at these shapes.
+	yt := make([]float64, N*Bt)
+	for b := 0; b < Bt; b++ {
+		for n, v := range pj.yc[b*N : (b+1)*N] {
+			yt[n*Bt+b] = v
+		}
+	}
+	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(yt, N, Bt), gen(pj.qt, Bt, F), 0, gen(w, N, F))
+	v := make([]float64, Bt)
+	blas64.Gemv(blas.NoTrans, 1, gen(pj.qt, Bt, F), blas64.Vector{N: F, Inc: 1, Data: pj.hbar}, 0, blas64.Vector{N: Bt, Inc: 1, Data: v})
+	c := net.ReadB()
+	copy(c, pj.ymean)
+	blas64.Gemv(blas.Trans, -1, gen(pj.yc, Bt, N), blas64.Vector{N: Bt, Inc: 1, Data: v}, 1, blas64.Vector{N: N, Inc: 1, Data: c})
+	return nil
+}
+
+// curves returns the prediction of every bin (B x N, trained units) for the
+// features and the readout of the last call to readout, in factored form:
+// f_bn = (h_b - hbar) . w_n + ybar_n and w_n = qt^T yc_n, so the B x N
+// predictions are ((H - 1 hbar^T) qt^T) Yc, a B x Bt x N product instead
+// of the B x F x N one of a forward pass through the readout.
+func (pj *projector) curves() []float64 {
+	B, Bt, F, N := pj.B, pj.Bt, pj.F, pj.N
+	h := pj.h
+	g := make([]float64, B*Bt)
+	hc := make([]float64, F)
+	for b := 0; b < B; b++ {
+		for f, v := range h[b*F : (b+1)*F] {
+			hc[f] = v - pj.hbar[f]
+		}
+		for r := 0; r < Bt; r++ {
+			var s float64
+			for f, q := range pj.qt[r*F : (r+1)*F] {
+				s += hc[f] * q
+			}
+			g[b*Bt+r] = s
+		}
+	}
+	out := make([]float64, B*N)
+	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(g, B, Bt), gen(pj.yc, Bt, N), 0, gen(out, B, N))
+	for b := 0; b < B; b++ {
+		row := out[b*N : (b+1)*N]
+		for n, m := range pj.ymean {
+			row[n] += m
+		}
+	}
+	return out
+}
+
+// MSE is the projected solver for the squared error with an identity
+// output (see the comment at the top of this file): the filters (conv
+// weights and biases) follow Adam on the projected objective, each epoch
+// one full-batch step, and the readout of all neurons is computed once at
+// the end (Readout or AutoReadout). Its methods Name, Trainable, Begin,
+// Epoch, Validate and Random are what train's epoch loop drives.
+//
+// The loss an epoch reports is the training data loss before its step;
+// Validate gives the validation loss and median R^2 after it (R^2 NaN on
+// epochs skipped by r2Every, never the first).
+type MSE struct {
+	pj  *projector
+	net *nn.Net
+	pr  Problem
+}
+
+// NewMSE reduces a problem to its B x B form for the filters of net (one
+// conv stack; the readout part of net is overwritten at the end).
+func NewMSE(pr Problem, net *nn.Net) (*MSE, error) {
+	pj, err := newProjector(&pr, net)
+	if err != nil {
+		return nil, err
+	}
+	return &MSE{pj: pj, net: net, pr: pr}, nil
+}
+
+// Name is the solver's config word.
+func (s *MSE) Name() string { return "projected" }
+
+// Trainable returns the conv parameters, a prefix of the net's Params.
+func (s *MSE) Trainable() []float64 { return s.net.Params[:s.pj.nconv] }
+
+// Random returns nil: the solver draws nothing while training.
+func (s *MSE) Random() *rand.PCG { return nil }
+
+// Begin evaluates the starting filters: their loss and gradient feed the
+// first step.
+func (s *MSE) Begin() error { return s.pj.eval(s.net, true, false) }
+
+// Epoch takes one optimiser step on the filters and returns the training
+// data loss before it.
+func (s *MSE) Epoch(opt *nn.Adam) float64 {
+	loss := s.pj.loss
+	opt.Step(s.net.Params[:s.pj.nconv], s.net.Grads[:s.pj.nconv])
+	return loss
+}
+
+// Validate evaluates the filters after an epoch: the validation loss of
+// the closed-form readout (the training objective when there are no
+// validation trials) and the median validation R^2.
+func (s *MSE) Validate(epoch int) (float64, float64, error) {
+	pj := s.pj
+	r2 := epoch == 1 || (pj.r2Every > 0 && epoch%pj.r2Every == 0)
+	if err := pj.eval(s.net, true, r2); err != nil {
+		return 0, 0, err
+	}
+	if pj.Bv == 0 {
+		return pj.obj, pj.vr2, nil
+	}
+	return pj.val, pj.vr2, nil
+}
+
+// ValR2 returns the median validation R^2 at the net's current filters
+// (NaN without validation trials).
+func (s *MSE) ValR2() (float64, error) {
+	if s.pj.Bv == 0 {
+		return math.NaN(), nil
+	}
+	if err := s.pj.eval(s.net, false, true); err != nil {
+		return 0, err
+	}
+	return s.pj.vr2, nil
+}
+
+// Readout writes the closed-form readout at the problem's penalty into
+// the net and returns the predictions of every bin (B x N, in the units
+// the solver was given: z-scored when Problem.Norm is set).
+func (s *MSE) Readout() ([]float64, error) {
+	if err := s.pj.readout(s.net); err != nil {
+		return nil, err
+	}
+	return s.pj.curves(), nil
+}
+
+// AutoReadout chooses the readout penalty at the net's current filters
+// (eval/methods.md §12), writes that readout into the net and returns the
+// predictions of every bin (as Readout) and each neuron's penalty in
+// model.readout_l2 units.
+func (s *MSE) AutoReadout(perNeuron bool) (curves, l2 []float64, err error) {
+	return s.pj.autoReadout(&s.pr, s.net, perNeuron)
+}
+
+// Eval is the state of the projected objective at some filters.
+type Eval struct {
+	Objective float64 // training objective, penalty included (EpochLog units)
+	Loss      float64 // training data loss
+	ValLoss   float64 // validation loss (NaN without validation trials)
+	ValR2     float64 // median validation R^2 (NaN unless asked for)
+}
+
+// Evaluate computes the projected objective at the net's current filters
+// and, with grad, writes its gradient into the conv part of net.Grads; for
+// checks against other paths to the same numbers.
+func (s *MSE) Evaluate(grad, r2 bool) (Eval, error) {
+	pj := s.pj
+	if err := pj.eval(s.net, grad, r2); err != nil {
+		return Eval{}, err
+	}
+	return Eval{Objective: pj.obj, Loss: pj.loss, ValLoss: pj.val, ValR2: pj.vr2}, nil
+}

@@ -1,0 +1,88 @@
+package projection
+
+import (
+	"math"
+	"slices"
+	"testing"
+
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/nn"
+)
+
+// synthCase is a small recording of data.Synth's scenario (40 cells, 400
+// trials, 30 bins) with 3 channels and stride 2 (F 45 > Bt 30, the
+// full-size situation) and random filters.
+func synthCase(t *testing.T, border nn.Border, l2 float64) (*testCase, *nn.Net) {
+	t.Helper()
+	rec, _, _ := data.Synth(data.SynthConfig{Neurons: 40, Trials: 400, Bins: 30, TwoPeakFrac: 0.25, UntunedFrac: 0.1, GainSD: 0.15, NoiseSD: 0.5, Seed: 11})
+	c := newCase(t, rec, 30, false, caseOptions{penalty: l2, convs: []nn.ConvSpec{{Out: 3, K: 5, Stride: 2, Border: border}}})
+	return c, c.net(3, 4)
+}
+
+// TestRidgePath checks the eigen-basis penalty path against the projector's
+// own B x B formulas (which TestProjectedGradient checks against the adam
+// path): for several grid values, the path's validation loss must equal
+// projector.eval's at that penalty, the C_p residual term must equal the
+// projector's training loss minus the within-condition part, and the
+// readout with one penalty for all neurons must equal projector.readout's
+// weights, bias and curves.
+func TestRidgePath(t *testing.T) {
+	c, net := synthCase(t, nn.Circular, 1)
+	pj, err := newProjector(&c.pr, net)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rp := newRidgePath(pj, []float64{1e-4, 1e-2, 0.3, 10})
+	if err := rp.decompose(pj, net); err != nil {
+		t.Fatal(err)
+	}
+	val := make([]float64, len(rp.mu))
+	rp.valLoss(val, pj)
+	cp := make([]float64, len(rp.mu))
+	rp.sure(cp, nil, pj)
+	sigma2 := pj.within / (pj.W - float64(pj.Bt))
+	for g, mu := range rp.mu {
+		pj.mu = mu
+		if err := pj.eval(net, false, false); err != nil {
+			t.Fatal(err)
+		}
+		// Tolerance: the two evaluate the same sums through a Cholesky
+		// solve and an eigendecomposition (condition number of K <~ 1e5).
+		if math.Abs(val[g]-pj.val) > 1e-9*pj.val {
+			t.Errorf("tau %g: path validation loss %.15g, projector %.15g", rp.tau[g], val[g], pj.val)
+		}
+		// df by its definition: 1 + tr(G (G + mu I)^-1) from the projector's K.
+		res := pj.loss*pj.W*float64(pj.N) - pj.within
+		var df float64
+		for _, s := range rp.s {
+			df += s / (s + mu)
+		}
+		want := res + 2*sigma2*(df+1)
+		if math.Abs(cp[g]-want) > 1e-8*math.Abs(want) {
+			t.Errorf("tau %g: C_p %.15g, from the projector's loss %.15g", rp.tau[g], cp[g], want)
+		}
+		pj.features(net)
+		if err := pj.readout(net); err != nil {
+			t.Fatal(err)
+		}
+		wantW, wantC, wantCurves := slices.Clone(net.ReadW()), slices.Clone(net.ReadB()), pj.curves()
+		pick := make([]int, pj.N)
+		for n := range pick {
+			pick[n] = g
+		}
+		got := rp.readout(pj, net, pick)
+		for _, c := range []struct {
+			name      string
+			got, want []float64
+		}{{"weights", net.ReadW(), wantW}, {"bias", net.ReadB(), wantC}, {"curves", got, wantCurves}} {
+			var d, m float64
+			for i := range c.want {
+				d = math.Max(d, math.Abs(c.got[i]-c.want[i]))
+				m = math.Max(m, math.Abs(c.want[i]))
+			}
+			if d > 1e-8*math.Max(m, 1) {
+				t.Errorf("tau %g: %s differ by %g (largest %g)", rp.tau[g], c.name, d, m)
+			}
+		}
+	}
+}

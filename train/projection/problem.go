@@ -1,0 +1,56 @@
+package projection
+
+import (
+	"fmt"
+
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
+)
+
+// Problem is a one-hot, full-batch fit reduced to what the projected
+// solvers read: the per-condition statistics of the training and the
+// validation trials and how the responses are scaled.
+type Problem struct {
+	// Train and Val are the per-condition statistics (B conditions, N
+	// neurons) of the training and validation trials, in the recording's
+	// units; Val may be nil or hold no trials (no validation).
+	Train, Val *data.CondStats
+	// Norm z-scores the responses (nil: none); the solvers work in the
+	// z-scored units and return predictions in them.
+	Norm *data.Normalizer
+	// Penalty is model.readout_l2, the ridge penalty the filters train
+	// with (> 0).
+	Penalty float64
+	// NeuronName and BinLabel name a neuron and a condition in errors
+	// (nil: by index).
+	NeuronName func(n int) string
+	BinLabel   func(b int) string
+}
+
+func (pr *Problem) hasVal() bool { return pr.Val != nil && trials(pr.Val) > 0 }
+
+func (pr *Problem) neuronName(n int) string {
+	if pr.NeuronName != nil {
+		return pr.NeuronName(n)
+	}
+	return fmt.Sprintf("neuron %d", n)
+}
+
+func (pr *Problem) binLabel(b int) string {
+	if pr.BinLabel != nil {
+		return pr.BinLabel(b)
+	}
+	return fmt.Sprintf("bin %d", b)
+}
+
+// trials is the number of trials behind st.
+func trials(st *data.CondStats) int {
+	n := 0
+	for _, k := range st.Count {
+		n += k
+	}
+	return n
+}
+
+// median returns the median of x (x is reordered); NaN if empty.
+func median(x []float64) float64 { return eval.Median(x) }
