@@ -12,6 +12,7 @@ import (
 	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/runfolder"
 )
 
 func inspectCommand() *cli.Command {
@@ -105,7 +106,12 @@ func inspect(w io.Writer, cfg *train.Config, rec *data.Recording) error {
 	}
 	fmt.Fprintln(w)
 	fmt.Fprintf(w, "  %s\n", histLine(rel, []float64{-1, 0, 0.25, 0.5, 0.75, 0.9, 1.0001}))
-	_, kept := eval.ReliableMask(nil, rel, cfg.Scores.MinReliability)
+	kept := 0
+	for _, r := range rel {
+		if runfolder.IsReliable(r, cfg.Scores.MinReliability) {
+			kept++
+		}
+	}
 	fmt.Fprintf(w, "  %d of %d neurons at or above scores.min_reliability = %g: the neurons of the fev, cc_norm and spe summaries\n", kept, rec.Y.Cols, cfg.Scores.MinReliability)
 	if rep != nil {
 		for _, m := range rep.Warnings {

@@ -120,6 +120,7 @@ func TestUntunedHeavyRatios(t *testing.T) {
 		fitNaN, fitUnusable, cmpNaN, cmpNoFold   int
 		reliable, scored, reliableTuned, tuned   int
 		foldUnusable                             []int
+		fevSummary                               runfolder.Spread
 	}
 	run := func(extra string) outcome {
 		dir := t.TempDir()
@@ -211,6 +212,7 @@ func TestUntunedHeavyRatios(t *testing.T) {
 			}
 		}
 		res := cf.Result
+		o.fevSummary = res.Summary["encoder"]["fev"]
 		o.sumLo, o.sumHi = math.Inf(1), math.Inf(-1)
 		for _, m := range res.Models {
 			lo, hi := ratioRange(res.PerNeuron[m], nil)
@@ -259,8 +261,9 @@ func TestUntunedHeavyRatios(t *testing.T) {
 		name string
 		o    outcome
 	}{{"before (alpha 1)", before}, {"after (alpha 0.05)", after}} {
-		t.Logf("%s: fit ratios [%.3g, %.3g], NaN fev %d; compare folds [%.3g, %.3g] (not usable per fold %v), fold averages [%.3g, %.3g], NaN fev %d",
-			o.name, o.o.fitLo, o.o.fitHi, o.o.fitNaN, o.o.cmpLo, o.o.cmpHi, o.o.foldUnusable, o.o.sumLo, o.o.sumHi, o.o.cmpNaN)
+		f := o.o.fevSummary
+		t.Logf("%s: fit ratios [%.3g, %.3g], NaN fev %d; compare folds [%.3g, %.3g] (not usable per fold %v), fold averages [%.3g, %.3g], NaN fev %d; encoder fev median %.3g [%.3g, %.3g] over %d kept (%s, %d NaN)",
+			o.name, o.o.fitLo, o.o.fitHi, o.o.fitNaN, o.o.cmpLo, o.o.cmpHi, o.o.foldUnusable, o.o.sumLo, o.o.sumHi, o.o.cmpNaN, float64(f.Median), float64(f.Q1), float64(f.Q3), f.Kept, f.KeptBy, f.NaN)
 	}
 }
 

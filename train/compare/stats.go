@@ -157,7 +157,7 @@ func Kept(c *runfolder.Comparison, metric string) ([]bool, string) {
 	ratio := runfolder.IsRatio(metric)
 	for j := range keep {
 		scored := c.Ceiling == nil || c.Ceiling[j] != ""
-		keep[j] = scored && (!ratio || c.SplitHalfAll == nil || c.SplitHalfAll[j] >= c.MinReliability)
+		keep[j] = scored && (!ratio || c.SplitHalfAll == nil || runfolder.IsReliable(c.SplitHalfAll[j], c.MinReliability))
 	}
 	if ratio {
 		return keep, runfolder.ReliableRule(c.MinReliability)

@@ -8,7 +8,6 @@ import (
 	"strings"
 
 	"github.com/strialab/stria/data"
-	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/eval/figure"
 	"github.com/strialab/stria/eval/report"
 	"github.com/strialab/stria/eval/tuning"
@@ -403,7 +402,13 @@ func exportComparison(dir, out string) (*Exported, error) {
 	}
 	avg := fa.Scores
 	// The ratio metrics' figures show the reliable neurons only.
-	keep, kept := eval.ReliableMask(nil, fa.SplitHalfAll, ci.MinReliability)
+	keep, kept := make([]bool, n), 0
+	for j, r := range fa.SplitHalfAll {
+		keep[j] = fa.Ceiling[j] != "" && runfolder.IsReliable(r, ci.MinReliability)
+		if keep[j] {
+			kept++
+		}
+	}
 	shown := func(m, met string) []float64 {
 		if runfolder.IsRatio(met) {
 			return masked(avg[m][met], keep)

@@ -136,10 +136,20 @@ const KeptScored = "scored"
 
 // ReliableRule is Spread.KeptBy of a summary over the neurons whose
 // split-half reliability over all trials is at least min:
-// "split_half_all >= 0.3".
+// "split_half_all >= 0.3"; KeptScored when min <= -1 (see IsReliable).
 func ReliableRule(min float64) string {
+	if min <= -1 {
+		return KeptScored
+	}
 	return "split_half_all >= " + strconv.FormatFloat(min, 'g', -1, 64)
 }
+
+// IsReliable reports whether a neuron with split-half reliability r (over
+// all trials) enters the ratio summaries at threshold min: r >= min, and
+// every neuron, NaN included, when min <= -1 (scores.min_reliability: -1
+// keeps every neuron; Spearman-Brown steps a negative correlation below -1,
+// so r >= -1 alone would not).
+func IsReliable(r, min float64) bool { return min <= -1 || r >= min }
 
 // RatioColumns are the score columns divided by a noise-ceiling estimate.
 // Their summaries, pair tests and figures use only the reliable neurons
@@ -259,7 +269,7 @@ func Summarize(scores []eval.Scores, excluded map[int]string, verdicts []eval.Ce
 		}
 		scored[j] = true
 		s.Scored++
-		reliable[j] = reliability == nil || reliability[j] >= minRel
+		reliable[j] = reliability == nil || IsReliable(reliability[j], minRel)
 		if reliable[j] {
 			s.Reliable++
 		}
@@ -328,14 +338,15 @@ func (t *NeuronScores) Col(name string) []float64 {
 	return nil
 }
 
-// Reliable marks the neurons with SplitHalfAll >= min (never an excluded
-// one) and returns how many.
+// Reliable marks the scored neurons that IsReliable at min and returns
+// how many.
 func (t *NeuronScores) Reliable(min float64) ([]bool, int) {
-	keep, n := eval.ReliableMask(nil, t.SplitHalfAll, min)
-	for j, why := range t.Excluded {
-		if why != "" && keep[j] {
-			keep[j] = false
-			n--
+	keep := make([]bool, len(t.SplitHalfAll))
+	n := 0
+	for j, r := range t.SplitHalfAll {
+		keep[j] = t.Excluded[j] == "" && IsReliable(r, min)
+		if keep[j] {
+			n++
 		}
 	}
 	return keep, n

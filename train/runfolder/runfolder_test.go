@@ -674,4 +674,11 @@ func TestSummarizeKeeps(t *testing.T) {
 	if a := s.Spread[ColSplitHalfAll]; float64(a.Median) != 0.65 || a.Kept != 4 {
 		t.Errorf("split_half_all spread %+v, want median 0.65 over 4", a)
 	}
+	// -1 keeps every scored neuron, even one whose Spearman-Brown
+	// reliability is below -1 or NaN.
+	rel[0], rel[1] = -3, nan
+	s = Summarize(scores, map[int]string{4: "constant"}, verdicts, rel, -1)
+	if f := s.Spread["fev"]; f.Kept != 4 || f.KeptBy != KeptScored || s.Reliable != 4 {
+		t.Errorf("min_reliability -1: fev spread %+v, reliable %d, want all 4 scored kept", f, s.Reliable)
+	}
 }
