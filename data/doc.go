@@ -25,6 +25,11 @@
 //     (CheckWith, NewCondStats, the hashing) do so already. Recording.Files
 //     records the inputs as Load found them (FileID), and Recording.Unchanged
 //     refuses, at the end of a fit, a file modified while stria read it.
+//   - A recording too large for memory is passed over by blocks of rows
+//     (NPYStream, AccumulateParts), keeping only per-part sufficient
+//     statistics (PartStats, B x N), summed in ascending trial order
+//     relative to each part's first trial; AccumulatePartsMatrix gives the
+//     same numbers from a matrix in memory.
 //   - Randomness comes from a seed (uint64) turned into a PCG source of
 //     math/rand/v2; no global random source is used, so results are the same
 //     for the same seed on every machine.

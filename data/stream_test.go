@@ -1,0 +1,436 @@
+package data
+
+import (
+	"bytes"
+	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// streamCase is a small recording with unequal condition counts, an empty
+// condition (3) and a constant neuron (2), stored as float32.
+func streamCase(t *testing.T, T, N, B int) (*Matrix, []int, string) {
+	t.Helper()
+	rng := rand.New(rand.NewPCG(7, 8))
+	y := NewMatrix(T, N)
+	cond := make([]int, T)
+	for r := 0; r < T; r++ {
+		c := rng.IntN(B)
+		if c == 3 {
+			c = (r % 2) * 5 // skew counts towards 0 and 5, leave 3 empty
+		}
+		cond[r] = c
+		for n := 0; n < N; n++ {
+			v := 100 + float64(c) + 2*rng.NormFloat64() // offset far from 0
+			if n == 2 {
+				v = 7.25
+			}
+			y.Data[r*N+n] = float32(v)
+		}
+	}
+	p := filepath.Join(t.TempDir(), "y.npy")
+	if err := WriteNPY(p, []int{T, N}, y.Data); err != nil {
+		t.Fatal(err)
+	}
+	return y, cond, p
+}
+
+func relClose(got, want, tol float64) bool {
+	if math.IsNaN(want) {
+		return math.IsNaN(got)
+	}
+	return math.Abs(got-want) <= tol*math.Max(1, math.Abs(want))
+}
+
+// TestAccumulatePartsMatchesCondStats checks the streamed statistics of
+// three parts (and unused trials) against NewCondStats and two-pass sums
+// over the matrix in memory, and that the sums are bitwise the same for
+// any number of workers and block size. The second size (skipped with
+// -short) has blocks of many rows and two workers with wide column ranges.
+func TestAccumulatePartsMatchesCondStats(t *testing.T) {
+	sizes := []struct{ T, N int }{{301, 700}, {1500, 3000}}
+	if testing.Short() {
+		sizes = sizes[:1]
+	}
+	for _, sz := range sizes {
+		t.Run(fmt.Sprintf("%dx%d", sz.T, sz.N), func(t *testing.T) { testAccumulateParts(t, sz.T, sz.N) })
+	}
+}
+
+func testAccumulateParts(t *testing.T, T, N int) {
+	const B = 8
+	y, cond, path := streamCase(t, T, N, B)
+	rng := rand.New(rand.NewPCG(3, 4))
+	var train, val, test, unused []int
+	for r := 0; r < T; r++ {
+		switch k := rng.IntN(10); {
+		case k < 6:
+			train = append(train, r)
+		case k < 7:
+			val = append(val, r)
+		case k < 9:
+			test = append(test, r)
+		default:
+			unused = append(unused, r)
+		}
+	}
+	part, err := PartOf(T, train, val, test)
+	if err != nil {
+		t.Fatal(err)
+	}
+	plan := StreamPlan{NBins: B, Cond: cond, Part: part,
+		Specs: []PartSpec{{}, {}, {Halves: true, CondSquares: true}}}
+	s, err := OpenNPYStream(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+
+	var ref []*PartStats
+	for _, o := range []struct {
+		name string
+		opt  StreamOptions
+	}{
+		{"one worker, spans of 256 neurons", StreamOptions{Workers: 1, BlockBytes: 1}},
+		{"two workers, 7 rows per block", StreamOptions{Workers: 2, BlockBytes: 7 * 4 * N}},
+		{"three workers, default blocks", StreamOptions{Workers: 3}},
+	} {
+		t.Run(o.name, func(t *testing.T) {
+			got, err := AccumulateParts(s, plan, o.opt)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if ref == nil {
+				ref = got
+				// The in-memory pass gives the same numbers bitwise.
+				mem, err := AccumulatePartsMatrix(y, plan, StreamOptions{})
+				if err != nil {
+					t.Fatal(err)
+				}
+				for i := range got {
+					for k, arr := range [][2][]float64{{mem[i].Sum, got[i].Sum}, {mem[i].TotSq, got[i].TotSq}, {mem[i].SumSq, got[i].SumSq}, {mem[i].SumA, got[i].SumA}, {mem[i].Ref, got[i].Ref}} {
+						if len(arr[0]) != len(arr[1]) {
+							t.Fatalf("part %d array %d: in memory %d values, streamed %d", i, k, len(arr[0]), len(arr[1]))
+						}
+						for e := range arr[0] {
+							if arr[0][e] != arr[1][e] {
+								t.Fatalf("part %d array %d element %d: in memory %v, streamed %v", i, k, e, arr[0][e], arr[1][e])
+							}
+						}
+					}
+				}
+			} else {
+				// Same summation order for every element: bitwise equal.
+				for i := range got {
+					for k, v := range got[i].Sum {
+						if v != ref[i].Sum[k] {
+							t.Fatalf("part %d Sum[%d] = %v with these options, %v with one worker", i, k, v, ref[i].Sum[k])
+						}
+					}
+					for k, v := range got[i].TotSq {
+						if v != ref[i].TotSq[k] {
+							t.Fatalf("part %d TotSq[%d] = %v with these options, %v with one worker", i, k, v, ref[i].TotSq[k])
+						}
+					}
+				}
+			}
+			// Reference: the in-memory statistics of data.NewCondStats,
+			// summed without the shift (so equal up to rounding).
+			for i, set := range [][]int{train, val, test} {
+				want := NewCondStats(y, cond, set, B)
+				ps := got[i]
+				for b := 0; b < B; b++ {
+					if ps.Count[b] != want.Count[b] {
+						t.Fatalf("part %d Count[%d] = %d, want %d", i, b, ps.Count[b], want.Count[b])
+					}
+				}
+				if ps.Trials != len(set) {
+					t.Fatalf("part %d Trials = %d, want %d", i, ps.Trials, len(set))
+				}
+				sums := ps.Sums(nil)
+				for k := range sums {
+					if !relClose(sums[k], want.Sum[k], 1e-12) {
+						t.Fatalf("part %d Sums[%d] = %v, want %v", i, k, sums[k], want.Sum[k])
+					}
+				}
+				mean := ps.Means(nil)
+				wmean := want.Mean(nil)
+				for k := range mean {
+					if !relClose(mean[k], wmean[k], 1e-12) {
+						t.Fatalf("part %d mean[%d] = %v, want %v", i, k, mean[k], wmean[k])
+					}
+				}
+				// WithinSS and TotalSS against two-pass sums over the trials.
+				within, total := ps.WithinSS(nil), ps.TotalSS(nil)
+				grand := ps.GrandMean(nil)
+				cm := ps.CentredMeans(nil)
+				for n := 0; n < N; n++ {
+					var g float64
+					for _, r := range set {
+						g += float64(y.Data[r*N+n])
+					}
+					g /= float64(len(set))
+					var w2, t2 float64
+					for _, r := range set {
+						v := float64(y.Data[r*N+n])
+						d := v - wmean[cond[r]*N+n]
+						w2 += d * d
+						t2 += (v - g) * (v - g)
+					}
+					if !relClose(grand[n], g, 1e-12) {
+						t.Fatalf("part %d grand mean of neuron %d = %v, want %v", i, n, grand[n], g)
+					}
+					// Tolerance relative to the total: one-pass sums of
+					// squares of values within a few s.d. of Ref.
+					if math.Abs(within[n]-w2) > 1e-10*math.Max(1, t2) || math.Abs(total[n]-t2) > 1e-10*math.Max(1, t2) {
+						t.Fatalf("part %d neuron %d: within %v total %v, want %v %v", i, n, within[n], total[n], w2, t2)
+					}
+					if n == 2 && (within[n] != 0 || total[n] != 0) {
+						t.Fatalf("constant neuron: within %v total %v, want exactly 0", within[n], total[n])
+					}
+					for b := 0; b < B; b++ {
+						wc := wmean[b*N+n] - g
+						if !relClose(cm[b*N+n], wc, 1e-10) {
+							t.Fatalf("part %d centred mean (%d, %d) = %v, want %v", i, b, n, cm[b*N+n], wc)
+						}
+					}
+				}
+			}
+			// The test part's per-condition squares through CondStats.
+			cs := got[2].CondStats()
+			want := NewCondStats(y, cond, test, B)
+			wv, gv := want.Var(nil), cs.Var(nil)
+			for k := range wv {
+				if math.IsNaN(wv[k]) != math.IsNaN(gv[k]) || (!math.IsNaN(wv[k]) && math.Abs(wv[k]-gv[k]) > 1e-9*math.Max(1, wv[k])) {
+					t.Fatalf("test part Var[%d] = %v, want %v", k, gv[k], wv[k])
+				}
+			}
+			// Split halves: dealt alternately within each condition in
+			// ascending trial order.
+			seen := make([]int, B)
+			sumA := make([]float64, B*N)
+			cntA := make([]int, B)
+			for _, r := range test {
+				c := cond[r]
+				if seen[c]%2 == 0 {
+					cntA[c]++
+					for n := 0; n < N; n++ {
+						sumA[c*N+n] += float64(y.Data[r*N+n]) - got[2].Ref[n]
+					}
+				}
+				seen[c]++
+			}
+			for b := 0; b < B; b++ {
+				if got[2].CountA[b] != cntA[b] {
+					t.Fatalf("CountA[%d] = %d, want %d", b, got[2].CountA[b], cntA[b])
+				}
+			}
+			for k := range sumA {
+				if got[2].SumA[k] != sumA[k] { // same order, same shift
+					t.Fatalf("SumA[%d] = %v, want %v", k, got[2].SumA[k], sumA[k])
+				}
+			}
+			if c := ConstantNeurons(got...); len(c) != 1 || c[0] != 2 {
+				t.Fatalf("ConstantNeurons = %v, want [2]", c)
+			}
+			if got[0].SumSq != nil || got[0].SumA != nil {
+				t.Fatal("training part kept SumSq or SumA without asking")
+			}
+			// Normalizer from the parts equals the one from CondStats.
+			zp := NormalizerFromParts(got[0], got[1])
+			zs := NormalizerFromStats(NewCondStats(y, cond, train, B), NewCondStats(y, cond, val, B))
+			for n := 0; n < N; n++ {
+				if !relClose(zp.Mean[n], zs.Mean[n], 1e-12) || !relClose(zp.Scale[n], zs.Scale[n], 1e-9) {
+					t.Fatalf("normalizer of neuron %d = (%v, %v), want (%v, %v)", n, zp.Mean[n], zp.Scale[n], zs.Mean[n], zs.Scale[n])
+				}
+			}
+		})
+	}
+}
+
+func TestAccumulatePartsErrors(t *testing.T) {
+	const T, N, B = 40, 300, 8
+	y, cond, path := streamCase(t, T, N, B)
+	all := make([]int, T)
+	for i := range all {
+		all[i] = i
+	}
+	part, _ := PartOf(T, all)
+	s, err := OpenNPYStream(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	cases := []struct {
+		name string
+		plan StreamPlan
+		want string
+	}{
+		{"short plan", StreamPlan{NBins: B, Cond: cond[:T-1], Part: part, Specs: []PartSpec{{}}}, "has 40 trials"},
+		{"bad condition", StreamPlan{NBins: 2, Cond: cond, Part: part, Specs: []PartSpec{{}}}, "outside [0, 2)"},
+		{"bad part", StreamPlan{NBins: B, Cond: cond, Part: part, Specs: nil}, "has part 0"},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			_, err := AccumulateParts(s, c.plan, StreamOptions{})
+			if err == nil || !strings.Contains(err.Error(), c.want) {
+				t.Fatalf("got error %v, want one containing %q", err, c.want)
+			}
+		})
+	}
+	t.Run("non-finite value", func(t *testing.T) {
+		y.Data[17*N+123] = float32(math.NaN())
+		p := filepath.Join(t.TempDir(), "nan.npy")
+		if err := WriteNPY(p, []int{T, N}, y.Data); err != nil {
+			t.Fatal(err)
+		}
+		s2, err := OpenNPYStream(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer s2.Close()
+		_, err = AccumulateParts(s2, StreamPlan{NBins: B, Cond: cond, Part: part, Specs: []PartSpec{{}}}, StreamOptions{})
+		if err == nil || !strings.Contains(err.Error(), "neuron 123") || !strings.Contains(err.Error(), "trial 17") {
+			t.Fatalf("got error %v, want one naming neuron 123 and trial 17", err)
+		}
+		_, err = AccumulatePartsMatrix(y, StreamPlan{NBins: B, Cond: cond, Part: part, Specs: []PartSpec{{}}}, StreamOptions{})
+		if err == nil || !strings.Contains(err.Error(), "neuron 123") || !strings.Contains(err.Error(), "trial 17") {
+			t.Fatalf("in memory: got error %v, want one naming neuron 123 and trial 17", err)
+		}
+	})
+	t.Run("duplicate trial", func(t *testing.T) {
+		if _, err := PartOf(T, []int{1, 2}, []int{2}); err == nil || !strings.Contains(err.Error(), "trial 2") {
+			t.Fatalf("got error %v, want one naming trial 2", err)
+		}
+	})
+}
+
+func TestNPYStreamRead(t *testing.T) {
+	const T, N = 13, 9
+	rng := rand.New(rand.NewPCG(1, 2))
+	v := make([]float64, T*N)
+	for i := range v {
+		v[i] = rng.NormFloat64()
+	}
+	dir := t.TempDir()
+	p64 := filepath.Join(dir, "y64.npy")
+	if err := WriteNPY64(p64, []int{T, N}, v); err != nil {
+		t.Fatal(err)
+	}
+	want, err := ReadNPY(p64) // the whole-file reader
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := OpenNPYStream(p64)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	if s.Rows() != T || s.Cols() != N || s.ElemType() != "float64" {
+		t.Fatalf("got %d x %d %s, want %d x %d float64", s.Rows(), s.Cols(), s.ElemType(), T, N)
+	}
+	buf := make([]float32, 5*N)
+	for lo := 0; lo < T; lo += 5 {
+		hi := min(lo+5, T)
+		got, err := s.ReadRows32(buf, lo, hi)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for i, x := range got {
+			if x != want.Data[lo*N+i] {
+				t.Fatalf("rows [%d, %d) element %d = %v, want %v", lo, hi, i, x, want.Data[lo*N+i])
+			}
+		}
+	}
+	b64 := make([]float64, 4*N)
+	got64, err := s.ReadRows64(b64, 9, 13)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i, x := range got64 {
+		if x != v[9*N+i] {
+			t.Fatalf("ReadRows64 element %d = %v, want %v", i, x, v[9*N+i])
+		}
+	}
+
+	t.Run("fortran order refused", func(t *testing.T) {
+		h := npyHeaderBytes("<f4", []int{3, 2})
+		h = bytes.Replace(h, []byte("'fortran_order': False"), []byte("'fortran_order': True "), 1)
+		p := filepath.Join(dir, "f.npy")
+		if err := os.WriteFile(p, append(h, make([]byte, 24)...), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		_, err := OpenNPYStream(p)
+		if !errors.Is(err, ErrFormat) || !strings.Contains(err.Error(), "Fortran") {
+			t.Fatalf("got error %v, want a format error about Fortran order", err)
+		}
+	})
+	t.Run("truncated refused", func(t *testing.T) {
+		b, _ := os.ReadFile(p64)
+		p := filepath.Join(dir, "short.npy")
+		if err := os.WriteFile(p, b[:len(b)-8], 0o644); err != nil {
+			t.Fatal(err)
+		}
+		if _, err := OpenNPYStream(p); !errors.Is(err, ErrFormat) {
+			t.Fatalf("got error %v, want a format error", err)
+		}
+	})
+}
+
+func TestWriteSynthNPY(t *testing.T) {
+	dir := t.TempDir()
+	cfg := SynthStreamConfig{Neurons: 333, Trials: 57, UntunedFrac: 0.1, GainSD: 0.15, NoiseSD: 0.5, Seed: 9, BlockRows: 5}
+	p1 := filepath.Join(dir, "a.npy")
+	stim1, err := WriteSynthNPY(p1, cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	cfg.BlockRows = 0
+	p2 := filepath.Join(dir, "b.npy")
+	stim2, err := WriteSynthNPY(p2, cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b1, _ := os.ReadFile(p1)
+	b2, _ := os.ReadFile(p2)
+	if !bytes.Equal(b1, b2) {
+		t.Fatal("files differ between block sizes, want identical bytes")
+	}
+	for i := range stim1 {
+		if stim1[i] != stim2[i] || !(stim1[i] >= 0 && stim1[i] < 360) {
+			t.Fatalf("stimulus %d = %v and %v, want equal values in [0, 360)", i, stim1[i], stim2[i])
+		}
+	}
+	m, err := ReadNPY(p1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if m.Rows != 57 || m.Cols != 333 {
+		t.Fatalf("got %d x %d, want 57 x 333", m.Rows, m.Cols)
+	}
+	// The noise s.d. of untuned... any cell: a trial's deviation from the
+	// cell's noise-free value is N(0, 0.5^2); check the overall spread is
+	// in a plausible range (a simulation sanity check, not a tight test).
+	var s, s2 float64
+	for _, v := range m.Data {
+		s += float64(v)
+		s2 += float64(v) * float64(v)
+	}
+	k := float64(len(m.Data))
+	sd := math.Sqrt(s2/k - (s/k)*(s/k))
+	if !(sd > 0.5 && sd < 2) {
+		t.Fatalf("overall s.d. %v, want between the noise s.d. 0.5 and 2", sd)
+	}
+	if err := (SynthStreamConfig{Neurons: 0, Trials: 3}).Validate(); err == nil || !strings.Contains(err.Error(), "neurons") {
+		t.Fatalf("got %v, want an error naming neurons", err)
+	}
+	entries, _ := os.ReadDir(dir)
+	if len(entries) != 2 {
+		t.Fatalf("%d files in the folder, want 2 (no temporary files left)", len(entries))
+	}
+}
