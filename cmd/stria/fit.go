@@ -172,7 +172,9 @@ func printSummary(w io.Writer, dir string, s *runfolder.Summary) {
 	if s.Ceilings != nil {
 		fmt.Fprintf(w, "noise ceilings on the test trials: %s\n", ceilingCounts(s.Ceilings))
 	}
-	fmt.Fprintf(w, "neurons with split-half reliability (all trials) >= %g: %d of %d scored\n", s.MinReliability, s.Reliable, s.Scored)
+	if s.MinReliability > -1 {
+		fmt.Fprintf(w, "neurons with split-half reliability (all trials) >= %g: %d of %d scored\n", s.MinReliability, s.Reliable, s.Scored)
+	}
 	if s.Solver != "" {
 		fmt.Fprintf(w, "solver: %s; readout penalty (model.readout_l2: %s): %s\n", s.Solver, s.ReadoutL2.Setting, penaltyText(s.ReadoutL2))
 	}

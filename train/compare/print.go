@@ -45,8 +45,11 @@ func PrintComparison(w io.Writer, c *runfolder.Comparison) {
 		fmt.Fprintf(w, "  %-22s", cell)
 	}
 	fmt.Fprintln(w)
-	fmt.Fprintf(w, "fev and cc_norm: over the %d neurons with split-half reliability (all trials) >= %g, each averaged over the folds where its noise ceiling is usable (%s)\n",
-		Reliable(c), c.MinReliability, verdictLine(c))
+	who := fmt.Sprintf("the %d neurons with split-half reliability (all trials) >= %g", Reliable(c), c.MinReliability)
+	if c.MinReliability <= -1 {
+		who = fmt.Sprintf("every scored neuron (%d; scores.min_reliability -1)", Reliable(c))
+	}
+	fmt.Fprintf(w, "fev and cc_norm: over %s, each averaged over the folds where its noise ceiling is usable (%s)\n", who, verdictLine(c))
 	for _, k := range runfolder.CompareMetrics {
 		fmt.Fprintf(w, "best median %s: %s\n", k, c.Winner[k])
 	}
