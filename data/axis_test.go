@@ -7,7 +7,7 @@ import (
 )
 
 // direction is the motion-direction axis 0..360 deg in 6-degree bins:
-// 60 bins (METHODS.md §0 [practice]).
+// 60 bins (eval/methods.md §0 [practice]).
 var direction = Axis{Name: "direction", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 6}
 
 // TestAxisBinDirection: hand-worked cases. Bin i is [6i, 6i+6) after taking

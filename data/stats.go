@@ -7,7 +7,7 @@ import (
 )
 
 // CondStats holds per-condition sufficient statistics of a set of trials
-// (METHODS.md §8): for condition b and neuron n,
+// (eval/methods.md §8): for condition b and neuron n,
 //
 //	Count[b]      = N_b, the number of trials of condition b
 //	Sum[b*N+n]    = S_bn = sum over those trials of y_tn
@@ -127,7 +127,7 @@ func (s *CondStats) Mean(dst []float64) []float64 {
 	return dst
 }
 
-// Var writes the within-condition variances with ddof 1 (METHODS.md §0),
+// Var writes the within-condition variances with ddof 1 (eval/methods.md §0),
 //
 //	s2_bn = (SumSq_bn - S_bn^2 / N_b) / (N_b - 1),
 //

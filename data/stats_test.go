@@ -15,7 +15,7 @@ func randomMatrix(rows, cols int, seed uint64) *Matrix {
 	return m
 }
 
-// TestCondStatsE3 uses METHODS.md §9 E3 [computed]: four repeats x five
+// TestCondStatsE3 uses eval/methods.md §9 E3 [computed]: four repeats x five
 // conditions, rows are repeats: ybar = [15/2, 13/4, 6, 3, 31/4] and the
 // mean within-condition variance (ddof 1) sigma2_noise = 19/10. Trials are
 // laid out repeat by repeat, one neuron. Tolerance 1e-12: sums of small

@@ -88,7 +88,7 @@ func TestSynthRecovery(t *testing.T) {
 	}
 }
 
-// TestSynthTruthTuning: E6 of METHODS.md §9 [computed]: a von Mises bump with
+// TestSynthTruthTuning: E6 of eval/methods.md §9 [computed]: a von Mises bump with
 // A = 1, kappa = 1 is e^-2 = 0.1353352832 half a period from its peak.
 func TestSynthTruthTuning(t *testing.T) {
 	tr := &Truth{Kind: []string{"single", "double"}, Preferred: []float64{30, 30}, Kappa: []float64{1, 1},

@@ -2,7 +2,7 @@
 // explained variance, condition-level noise-ceiling metrics, population
 // summaries and a paired signed-rank test.
 //
-// Conventions (METHODS.md §0), stated once for the whole package:
+// Conventions (eval/methods.md §0), stated once for the whole package:
 //
 //   - All metrics are float64. Responses loaded from disk arrive as float32 and
 //     are widened before any arithmetic.
@@ -29,6 +29,6 @@
 //     errors and panic with a message starting "eval: ". Values that come from
 //     recordings (NaN, constant responses, empty conditions) never panic.
 //
-// Sources are named on each function; the worked check values of METHODS.md §9
+// Sources are named on each function; the worked check values of eval/methods.md §9
 // are tested in metrics_test.go.
 package eval

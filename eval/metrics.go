@@ -85,7 +85,7 @@ func residualMoments(y, p []float64) (vy, ve, mse float64) {
 //
 // R2 is negative when yhat is worse than the constant mean(y), and NaN when y
 // is constant or empty. It penalises a constant offset between y and yhat
-// (compare ExplainedVarianceScore). Source: METHODS.md §5, the scikit-learn
+// (compare ExplainedVarianceScore). Source: eval/methods.md §5, the scikit-learn
 // user guide entry for r2_score. R2 panics if len(y) != len(yhat).
 func R2(y, yhat []float64) float64 {
 	checkLen(len(y), len(yhat), "R2")
@@ -104,7 +104,7 @@ func R2(y, yhat []float64) float64 {
 //	EV = 1 - Var(y - yhat) / Var(y),
 //
 // which, unlike R2, ignores a constant offset between y and yhat. It is NaN
-// when y is constant or empty. Source: METHODS.md §5, the scikit-learn user
+// when y is constant or empty. Source: eval/methods.md §5, the scikit-learn user
 // guide entry for explained_variance_score. It panics if len(y) != len(yhat).
 func ExplainedVarianceScore(y, yhat []float64) float64 {
 	checkLen(len(y), len(yhat), "ExplainedVarianceScore")
@@ -229,7 +229,7 @@ func PooledNoiseVariance(counts []int, vars []float64) float64 {
 
 // SignalPowerEqual returns the signal power of one neuron recorded with an
 // equal number N of repeats of every condition, trials[n][b] being repeat n
-// of condition b (Sahani & Linden 2003; METHODS.md §1 [pub]):
+// of condition b (Sahani & Linden 2003; eval/methods.md §1 [pub]):
 //
 //	SP = (Var_b(sum_n R_n) - sum_n Var_b(R_n)) / (N (N - 1)),
 //
@@ -255,7 +255,7 @@ func SignalPowerEqual(trials [][]float64) float64 {
 }
 
 // CCAbs returns the correlation across conditions between the condition means
-// ybar and the predictions yhat (Schoppe et al. 2016; METHODS.md §2):
+// ybar and the predictions yhat (Schoppe et al. 2016; eval/methods.md §2):
 //
 //	CC_abs = Cov_b(ybar, yhat) / sqrt(Var_b(ybar) Var_b(yhat)).
 //
@@ -265,7 +265,7 @@ func CCAbs(ybar, yhat []float64) float64 {
 	return Pearson(ybar, yhat)
 }
 
-// CCMax returns the noise ceiling of CC_abs (Schoppe et al. 2016; METHODS.md
+// CCMax returns the noise ceiling of CC_abs (Schoppe et al. 2016; eval/methods.md
 // §2),
 //
 //	CC_max = sqrt(SP / Var_b(ybar)),
@@ -285,7 +285,7 @@ func CCMax(sp float64, ybar []float64) float64 {
 }
 
 // CCNorm returns the normalised correlation coefficient in its direct form
-// (Schoppe et al. 2016, METHODS.md §2 [pub]):
+// (Schoppe et al. 2016, eval/methods.md §2 [pub]):
 //
 //	CC_norm = Cov_b(ybar, yhat) / sqrt(SP Var_b(yhat)) = CC_abs / CC_max.
 //
@@ -304,7 +304,7 @@ func CCNorm(ybar, yhat []float64, sp float64) float64 {
 }
 
 // SPE returns the signal power explained (Sahani & Linden 2003; Schoppe et al.
-// 2016; METHODS.md §2):
+// 2016; eval/methods.md §2):
 //
 //	SPE = (Var_b(ybar) - Var_b(ybar - yhat)) / SP.
 //
@@ -321,7 +321,7 @@ func SPE(ybar, yhat []float64, sp float64) float64 {
 }
 
 // SpearmanBrown returns the reliability of a measurement lengthened n-fold
-// from one with reliability r (Spearman 1910; Brown 1910; METHODS.md §3):
+// from one with reliability r (Spearman 1910; Brown 1910; eval/methods.md §3):
 //
 //	rho* = n r / (1 + (n - 1) r).
 //
@@ -336,7 +336,7 @@ func SpearmanBrown(r, n float64) float64 {
 
 // CCMaxSplitHalf returns the noise ceiling of CC_abs estimated from the
 // correlation ccHalf between the condition means of two halves of the trials
-// (METHODS.md §2 [derived]):
+// (eval/methods.md §2 [derived]):
 //
 //	CC_max = sqrt(2 ccHalf / (1 + ccHalf)),
 //
@@ -351,7 +351,7 @@ func CCMaxSplitHalf(ccHalf float64) float64 {
 
 // ExplainableFraction returns the fraction of single-trial variance that any
 // model of the stimulus condition could explain (Cadena et al. 2019;
-// METHODS.md §4):
+// eval/methods.md §4):
 //
 //	(Var[r] - sigma2_noise) / Var[r],
 //
@@ -367,7 +367,7 @@ func ExplainableFraction(trialVar, noiseVar float64) float64 {
 }
 
 // FEV returns the fraction of explainable variance explained (Cadena et al.
-// 2019; METHODS.md §4):
+// 2019; eval/methods.md §4):
 //
 //	FEV = 1 - (MSE - sigma2_noise) / (Var[r] - sigma2_noise),
 //

@@ -12,7 +12,7 @@ func near(got, want, tol float64) bool {
 	return math.Abs(got-want) <= tol
 }
 
-// E3 of METHODS.md §9: four repeats (rows) x five conditions.
+// E3 of eval/methods.md §9: four repeats (rows) x five conditions.
 var (
 	e3Trials = [][]float64{
 		{9, 5, 4, 2, 7},
@@ -21,7 +21,7 @@ var (
 		{6, 3, 7, 3, 7},
 	}
 	e3Yhat = []float64{6, 5, 7, 3, 7}
-	e3Ybar = []float64{15.0 / 2, 13.0 / 4, 6, 3, 31.0 / 4} // METHODS.md §9 E3 [computed]
+	e3Ybar = []float64{15.0 / 2, 13.0 / 4, 6, 3, 31.0 / 4} // eval/methods.md §9 E3 [computed]
 )
 
 // e3Stats returns counts, condition means and ddof-1 variances of E3.
@@ -70,15 +70,15 @@ func TestWorkedValues(t *testing.T) {
 		got, want float64
 		tol       float64
 	}{
-		// METHODS.md §9 E1 [computed]: exact fractions.
+		// eval/methods.md §9 E1 [computed]: exact fractions.
 		{"E1 SB(0.5,2)", SpearmanBrown(0.5, 2), 2.0 / 3, exactTol},
 		{"E1 SB(0.6,2)", SpearmanBrown(0.6, 2), 3.0 / 4, exactTol},
 		{"E1 SB(0.25,4)", SpearmanBrown(0.25, 4), 4.0 / 7, exactTol},
-		// METHODS.md §9 E2 [computed]: sqrt(2/3), sqrt(8/9).
+		// eval/methods.md §9 E2 [computed]: sqrt(2/3), sqrt(8/9).
 		{"E2 CCmax(0.5)", CCMaxSplitHalf(0.5), math.Sqrt(2.0 / 3), exactTol},
 		{"E2 CCmax(0.8)", CCMaxSplitHalf(0.8), math.Sqrt(8.0 / 9), exactTol},
 		{"E2 CCmax(0.8) printed", CCMaxSplitHalf(0.8), 0.9428090416, 1e-10}, // 10 printed digits
-		// METHODS.md §9 E3 [computed].
+		// eval/methods.md §9 E3 [computed].
 		{"E3 SP equal-repeat", spEq, 11.0 / 3, exactTol},
 		// eval/methods.md §9 E3 gives the ANOVA form without the (B-1)/B
 		// factor, 73/20 = Var(ybar) - mean(s2)/N = 33/8 - 19/40. SignalPower
@@ -104,7 +104,7 @@ func TestWorkedValues(t *testing.T) {
 		{"E3 Var[r]", trialVar, 111.0 / 20, exactTol},
 		{"E3 FEV", FEV(mean(mse), trialVar, noiseVar), 55.0 / 73, exactTol},
 		{"E3 explainable fraction", ExplainableFraction(trialVar, noiseVar), 73.0 / 111, exactTol},
-		// METHODS.md §9 E4 [pub: scikit-learn user guide]: 443/467 and 447/467.
+		// eval/methods.md §9 E4 [pub: scikit-learn user guide]: 443/467 and 447/467.
 		{"E4 R2", R2([]float64{3, -0.5, 2, 7}, []float64{2.5, 0, 2, 8}), 443.0 / 467, exactTol},
 		{"E4 EV score", ExplainedVarianceScore([]float64{3, -0.5, 2, 7}, []float64{2.5, 0, 2, 8}), 447.0 / 467, exactTol},
 		{"E4 R2 printed", R2([]float64{3, -0.5, 2, 7}, []float64{2.5, 0, 2, 8}), 0.9486081370, 1e-10},

@@ -11,15 +11,15 @@ import (
 
 // Scores holds the held-out scores of one neuron.
 //
-// Trial level (single held-out trials, METHODS.md §5):
+// Trial level (single held-out trials, eval/methods.md §5):
 //   - TestR2: 1 - SSres/SStot, penalises offsets; may be negative.
 //   - TestR: Pearson correlation of responses and predictions.
 //   - EVScore: explained variance score 1 - Var(y-yhat)/Var(y), offset-blind.
 //   - ExplainableFraction: (Var[r] - sigma2_noise)/Var[r], the ceiling of
-//     TestR2 for any model of the condition (METHODS.md §4).
-//   - FEV: fraction of explainable variance explained (METHODS.md §4).
+//     TestR2 for any model of the condition (eval/methods.md §4).
+//   - FEV: fraction of explainable variance explained (eval/methods.md §4).
 //
-// Condition level (held-out condition means, METHODS.md §1, §2):
+// Condition level (held-out condition means, eval/methods.md §1, §2):
 //   - SP: signal power, ANOVA form (see SignalPower).
 //   - CCAbs, CCMax, CCNorm, SPE: see the functions of the same names.
 //   - SplitHalf: Spearman-Brown corrected split-half reliability 2r/(1+r) of

@@ -172,7 +172,7 @@ func TestNoiseCeilingFewTrials(t *testing.T) {
 // Noise sd 0.01 against a curve with Var_b(s) ~ 0.3: the relative noise in
 // the condition means is ~1e-4, so |CC_norm - 1| < 1e-3 is a loose bound.
 // A constant prediction equal to the held-out grand mean gives FEV = 0 and
-// R2 = 0 exactly (METHODS.md §4 [derived]: MSE = Var[r]).
+// R2 = 0 exactly (eval/methods.md §4 [derived]: MSE = Var[r]).
 func TestCondMeanCCNorm(t *testing.T) {
 	const B, N, R = 36, 8, 3
 	rng := rand.New(rand.NewPCG(21, 22))

@@ -5,7 +5,7 @@ import (
 	"math"
 )
 
-// Adam is the Adam optimiser (Kingma & Ba 2015, arXiv:1412.6980; METHODS.md
+// Adam is the Adam optimiser (Kingma & Ba 2015, arXiv:1412.6980; eval/methods.md
 // §6), with optional weight decay. One Step with gradient g does, for every
 // parameter theta:
 //

@@ -2,7 +2,7 @@ package nn
 
 import "testing"
 
-// METHODS.md §9 E7 [computed]: Adam with defaults from theta0 = 1.
+// eval/methods.md §9 E7 [computed]: Adam with defaults from theta0 = 1.
 // Tolerance 1e-12 absolute: the values are exact to ~1e-16 in float64.
 func TestAdamMethodsE7(t *testing.T) {
 	run := func(wd float64, decoupled bool, grads ...float64) float64 {

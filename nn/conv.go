@@ -92,7 +92,7 @@ func (c Conv1D) Check() {
 
 // OutLen returns the output length M: floor((L-1)/S)+1 for Zero and
 // Circular, floor((L-K)/S)+1 for Valid. It is floor((L+2P-K)/S)+1 with the
-// padding of the border mode (METHODS.md §0).
+// padding of the border mode (eval/methods.md §0).
 func (c Conv1D) OutLen() int {
 	if c.Border == Valid {
 		return (c.Length-c.K)/c.Stride + 1

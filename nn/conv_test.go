@@ -7,7 +7,7 @@ import (
 	"testing"
 )
 
-// METHODS.md §0 [practice]: L = 60, K = 9, "same" padding -> 60 outputs;
+// eval/methods.md §0 [practice]: L = 60, K = 9, "same" padding -> 60 outputs;
 // stride 10 -> 6. Exact integers.
 func TestConvOutLenMethods0(t *testing.T) {
 	for _, tc := range []struct {
@@ -18,7 +18,7 @@ func TestConvOutLenMethods0(t *testing.T) {
 		{Conv1D{In: 1, Out: 8, K: 9, Stride: 1, Length: 60, Border: Circular}, 60},
 		{Conv1D{In: 1, Out: 8, K: 9, Stride: 10, Length: 60, Border: Zero}, 6},
 		{Conv1D{In: 1, Out: 8, K: 9, Stride: 10, Length: 60, Border: Circular}, 6},
-		// floor((L-K)/S)+1, the formula of METHODS.md §0 with P = 0 [pub].
+		// floor((L-K)/S)+1, the formula of eval/methods.md §0 with P = 0 [pub].
 		{Conv1D{In: 1, Out: 8, K: 9, Stride: 1, Length: 60, Border: Valid}, 52},
 		{Conv1D{In: 1, Out: 8, K: 9, Stride: 10, Length: 60, Border: Valid}, 6},
 	} {

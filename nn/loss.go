@@ -47,7 +47,7 @@ func lossArgs(name string, dst, pred, target, weight []float64, rows, cols int) 
 // With weight w_b = N_b, the trial count of condition b, and target = the
 // condition mean, L equals the mean loss over the N_b single trials of each
 // condition up to an additive constant that does not depend on the model
-// (METHODS.md §8), so training on condition means is exact.
+// (eval/methods.md §8), so training on condition means is exact.
 //
 // It panics on short slices, rows or cols < 1, a negative or NaN weight, or
 // weights that do not sum to a positive finite number.
@@ -93,7 +93,7 @@ func MSE(dst, pred, target, weight []float64, rows, cols int) float64 {
 // With weight w_b = N_b and target = the condition mean (so that
 // w_b*target = S_b, the condition's spike sum), L equals the mean loss over
 // single trials up to a constant that does not depend on the model
-// (METHODS.md §8).
+// (eval/methods.md §8).
 //
 // pred must be >= 0 (a Softplus or Exp output); a negative pred below -eps
 // gives NaN, which is returned, not a panic. It panics as MSE does.

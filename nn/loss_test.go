@@ -49,7 +49,7 @@ func TestLossValues(t *testing.T) {
 	}
 }
 
-// METHODS.md §8 [derived]: with weights N_b and condition-mean targets the
+// eval/methods.md §8 [derived]: with weights N_b and condition-mean targets the
 // MSE and Poisson losses differ from the trial-level losses only by a
 // model-independent constant, so their gradients are equal. Checked here on
 // synthetic trials: 3 conditions with 2, 3 and 1 trials, 2 neurons.

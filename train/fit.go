@@ -84,7 +84,7 @@ type rowSet struct {
 	rows   int
 	// within is sum over trials of (y - ybar_b)^2 summed over neurons: added
 	// to the weighted condition-level MSE it gives the trial-level sum
-	// (METHODS.md §8).
+	// (eval/methods.md §8).
 	within float64
 	// trials is the number of trials the rows stand for.
 	trials int

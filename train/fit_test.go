@@ -43,7 +43,7 @@ func synthPrepared(t testing.TB, neurons, trials int, edit func(*Config)) (*Prep
 	return p, truth
 }
 
-// TestConditionSumIdentity checks METHODS.md §8 [derived]: full-batch loss
+// TestConditionSumIdentity checks eval/methods.md §8 [derived]: full-batch loss
 // and gradients on per-condition rows (weight N_b, target the condition
 // mean) equal the trial-level ones, for MSE and Poisson.
 func TestConditionSumIdentity(t *testing.T) {

@@ -37,7 +37,7 @@ func projectedCase(t *testing.T, border LayerBorder, l2 float64) (*Prepared, *nn
 //     trainer.penalty, explicit N x F readout) with the closed-form readout
 //     plugged in: the objectives must agree, the readout gradient must
 //     vanish (the readout is optimal) and the filter gradient must equal
-//     the projected one (envelope theorem, METHODS.md §8 [derived]). The
+//     the projected one (envelope theorem, eval/methods.md §8 [derived]). The
 //     validation loss and median R^2 must equal trainer.evalVal's.
 func TestProjectedGradient(t *testing.T) {
 	for _, tc := range []struct {

@@ -212,7 +212,7 @@ func TestTapOffsets(t *testing.T) {
 	}
 }
 
-// tuningData is a synthetic direction-tuned neuron (von Mises, METHODS.md §7).
+// tuningData is a synthetic direction-tuned neuron (von Mises, eval/methods.md §7).
 func tuningData(r *rand.Rand) (centers, mean, sem, fx, fy []float64) {
 	vm := func(deg float64) float64 {
 		return 4 + 18*math.Exp(2*(math.Cos((deg-135)*math.Pi/180)-1))

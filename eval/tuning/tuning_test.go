@@ -22,7 +22,7 @@ func grid(n int, step, offset float64) []float64 {
 }
 
 func TestDescribeE5(t *testing.T) {
-	// METHODS.md §9 E5 [computed]: directions 0..315 by 45, r = [8,3,2,3,4,3,2,3].
+	// eval/methods.md §9 E5 [computed]: directions 0..315 by 45, r = [8,3,2,3,4,3,2,3].
 	r := []float64{8, 3, 2, 3, 4, 3, 2, 3}
 	d := Describe(r, grid(8, 45, 0), 360)
 	// 1e-12: sums of eight small integers times cos/sin of multiples of 45 deg.
@@ -76,7 +76,7 @@ func TestDescribeOrientation(t *testing.T) {
 }
 
 func TestVonMisesE6(t *testing.T) {
-	// METHODS.md §9 E6 [computed]: b=0, A=1, kappa=1: R(mu + half period) = e^-2.
+	// eval/methods.md §9 E6 [computed]: b=0, A=1, kappa=1: R(mu + half period) = e^-2.
 	m := NewVonMises(grid(60, 6, 0), 360, 1, rand.New(rand.NewPCG(1, 2))).(*Curve)
 	copy(m.Params(), []float64{0, 1, 1, 30})
 	dst := make([]float64, 2)

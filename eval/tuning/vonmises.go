@@ -33,7 +33,7 @@ type Curve struct {
 }
 
 // NewVonMises returns a single-peak von Mises tuning curve for a periodic axis
-// (METHODS.md §7):
+// (eval/methods.md §7):
 //
 //	f(x) = b + A exp(kappa (cos(2 pi (x - mu) / P) - 1)),
 //

@@ -17,10 +17,10 @@ import (
 // objective of the adam path on one-hot input with MSE and identity output,
 //
 //	J = 1/(W N) sum_b N_b sum_n (ybar_bn - f_bn)^2 + lambda/(2N) sum_n ||w_n||^2
-//	    (+ the within-condition constant, METHODS.md §8),
+//	    (+ the within-condition constant, eval/methods.md §8),
 //	f_bn = h_b . w_n + c_n,
 //
-// but by variable projection (Golub & Pereyra 1973, METHODS.md §8 [mem]):
+// but by variable projection (Golub & Pereyra 1973, eval/methods.md §8 [mem]):
 // for fixed filters the best readout is a weighted ridge solution in closed
 // form, so only the filters are optimised, on the projected loss.
 //

@@ -2,9 +2,7 @@ package runfolder
 
 import (
 	"encoding/csv"
-	"encoding/gob"
 	"fmt"
-	"io"
 	"math"
 	"os"
 	"path/filepath"
@@ -737,30 +735,6 @@ func LoadModel(dir string) (*Model, error) {
 		}
 	}
 	return m, nil
-}
-
-// SaveResumeState writes the training state of an unfinished fit into the
-// run folder (resume_state.gob).
-func SaveResumeState(dir string, c *train.Checkpoint) error {
-	if err := mkdir(dir); err != nil {
-		return err
-	}
-	return WriteFile(filepath.Join(dir, FileResume), func(w io.Writer) error { return gob.NewEncoder(w).Encode(c) })
-}
-
-// LoadResumeState reads resume_state.gob of a run folder.
-func LoadResumeState(dir string) (*train.Checkpoint, error) {
-	path := filepath.Join(dir, FileResume)
-	f, err := os.Open(path)
-	if err != nil {
-		return nil, err
-	}
-	defer f.Close()
-	var c train.Checkpoint
-	if err := gob.NewDecoder(f).Decode(&c); err != nil {
-		return nil, fmt.Errorf("%s: %w", path, err)
-	}
-	return &c, nil
 }
 
 // RemoveResumeState deletes resume_state.gob once the fit has finished.
