@@ -55,7 +55,7 @@ func Folds(p *Prepared) ([][3][]int, error) {
 }
 
 // RunUnit fits one model on one fold and scores it on the fold's test
-// trials.
+// trials, with the noise ceilings gated as in a fit (Ceilings).
 func RunUnit(ctx context.Context, p *Prepared, spec ModelSpec, fold int, sets [3][]int) (*FoldResult, error) {
 	res := &FoldResult{Model: spec.Name, Fold: fold}
 	var pred []float64
@@ -90,6 +90,9 @@ func RunUnit(ctx context.Context, p *Prepared, spec ModelSpec, fold int, sets [3
 	} else {
 		eval.ScoreConditions(res.Scores, p.Rec.Y.Data, p.Neurons(), sets[2], p.Cond, res.Curves, p.NBins)
 	}
+	// The same gate as a fit's scores (scores.ceiling_alpha of the
+	// recording's config: baselines have no config of their own).
+	Ceilings(p, res.Scores)
 	return res, nil
 }
 

@@ -14,6 +14,10 @@ type Prepared struct {
 	NBins int
 	// Cond is the bin of each trial.
 	Cond []int
+	// Values is the stimulus value of each condition (bin): the mean
+	// stimulus value of its trials, the bin centre for an empty bin. Tuning
+	// descriptors and figures place the conditions there.
+	Values []float64
 	// Blocks is the block of each trial that splits keep together (nil when
 	// blocks are not kept): the recording's block ids, or runs of
 	// split.block_trials consecutive trials.
@@ -95,6 +99,11 @@ func prepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
 		return nil, err
 	}
 	p.Report = rep
+	var offNote string
+	p.Values, offNote = p.conditionValues()
+	if offNote != "" {
+		notes = append(notes, offNote)
+	}
 	rep.Warnings = append(notes, rep.Warnings...)
 	if cfg.Split.KeepBlocks {
 		p.Blocks = rec.Block
@@ -111,7 +120,7 @@ func prepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
 		return nil, fmt.Errorf("test split: %w", err)
 	}
 	p.Test = sp.Test
-	coverageWarnings(rep, sp, cond, &p.Axis, "the test split")
+	coverageWarnings(rep, sp, cond, &p.Axis, TestSplitLabel)
 	p.Train, p.Val, err = carve(cond, blocks, sp.Train, p.NBins, cfg.Split.ValidationFraction, cfg.Seed+1)
 	if err != nil {
 		return nil, fmt.Errorf("validation split: %w", err)
@@ -221,6 +230,11 @@ func checkConditionIDs(rec *data.Recording, cond []int, ax data.Axis) error {
 	}
 	return nil
 }
+
+// TestSplitLabel starts the coverage warnings of the hold-out test split
+// ("the test split: bin 3 ... has no test trials"). stria compare, which
+// does not use that split, leaves them out of its warnings.
+const TestSplitLabel = "the test split"
 
 // coverageWarnings warns about conditions that a blocked split left on one
 // side only: they cannot be trained on, or are missing from the scores.

@@ -131,3 +131,30 @@ func Score(p *Prepared, pred []float64) []eval.Scores {
 	eval.GateCeilings(nil, s, p.Cfg.Scores.CeilingAlpha)
 	return s
 }
+
+// Ceilings returns every neuron's noise-ceiling verdict on the scored
+// trials (eval.CheckCeiling at the config's scores.ceiling_alpha) and
+// gates the scores: where the ceiling is not usable, FEV, CCNorm and SPE
+// become NaN. The verdict depends only on the held-out responses, so
+// gating scores that are already gated changes nothing: fit and compare
+// call it on whatever Score, ScoreCurves or RunUnit returned, and every
+// model scored on the same trials gets the same verdicts.
+func Ceilings(p *Prepared, scores []eval.Scores) []eval.Ceiling {
+	c, _ := eval.GateCeilings(nil, scores, p.Cfg.Scores.CeilingAlpha)
+	return c
+}
+
+// Reliability returns every neuron's split-half reliability over all trials
+// of the recording (eval.SplitHalf, Spearman-Brown stepped up; trials in
+// recording order dealt alternately to the halves within each condition).
+// It is a property of the data, not of a model or a split: the threshold
+// scores.min_reliability selects the neurons of the ratio summaries with
+// it. NaN where eval.SplitHalf is undefined (a constant neuron, fewer than
+// three conditions with two trials).
+func Reliability(p *Prepared) []float64 {
+	all := make([]int, p.Rec.Y.Rows)
+	for i := range all {
+		all[i] = i
+	}
+	return eval.SplitHalf(p.Rec.Y.Data, p.Neurons(), p.Cond, all, p.NBins)
+}

@@ -274,17 +274,22 @@ func gatherPlan(w io.Writer, plan *compare.Plan) error {
 	}
 	out := plan.Dir()
 	fmt.Fprintf(w, "comparison folder: %s\n", out)
+	var cautions []string
 	for _, c := range cmps {
 		if c.Recording != "" {
 			fmt.Fprintf(w, "\n-- recording %s (folder %s)\n", c.Recording, filepath.Join(out, c.Recording))
 		}
+		for _, m := range c.Warnings {
+			fmt.Fprintln(w, "warning:", m)
+		}
 		compare.PrintComparison(w, c)
+		cautions = append(cautions, c.Cautions...)
 	}
 	if len(cmps) > 1 {
 		fmt.Fprintf(w, "\n-- all %d recordings, neurons pooled (also %s: every recording's medians)\n", len(cmps), runfolder.FilePerRecording)
 		compare.PrintComparison(w, compare.Pool(cmps))
 	}
-	for _, c := range train.Cautions {
+	for _, c := range compare.Dedup(cautions) {
 		fmt.Fprintln(w, "note:", c)
 	}
 	return nil

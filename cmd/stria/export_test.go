@@ -269,7 +269,13 @@ func TestExportAndReport(t *testing.T) {
 	}
 	fa := readCSVCols(t, filepath.Join(cexp, "foldavg_cc_norm.csv"))
 	for _, m := range cj.Models {
-		if got, want := median(fa[m]), cj.Summary[m]["cc_norm"].Median; math.Abs(got-want) > 1e-6 {
+		var kept []float64 // the reliable neurons, those of the summary
+		for j, v := range fa[m] {
+			if fa["kept"][j] == 1 {
+				kept = append(kept, v)
+			}
+		}
+		if got, want := median(kept), cj.Summary[m]["cc_norm"].Median; math.Abs(got-want) > 1e-6 {
 			t.Errorf("%s: median fold-averaged cc_norm %v, comparison.json %v", m, got, want)
 		}
 	}
@@ -287,9 +293,9 @@ func TestExportAndReport(t *testing.T) {
 	if strings.TrimSpace(out) != rp {
 		t.Errorf("report printed %q, want its path %s", out, rp)
 	}
-	// Default selection (best 3, worst 1): filters, 4 tuning, 2 histograms,
-	// preferred, and the loss curve.
-	checkSelfContained(t, rp, 1+4+2+1+1)
+	// Default selection (best 3, worst 1): filters, 4 tuning, 3 histograms
+	// (fev, cc_norm, spe), preferred, and the loss curve.
+	checkSelfContained(t, rp, 1+4+3+1+1)
 	html, _ := os.ReadFile(rp)
 	for _, want := range []string{"Resolved config", "signal power", train.Cautions[0][:40], "train_loss", "test_r2"} {
 		if !bytes.Contains(html, []byte(want)) {

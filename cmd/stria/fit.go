@@ -267,8 +267,11 @@ func printSummary(w io.Writer, dir string, s *runfolder.Summary) {
 		fmt.Fprintf(w, " (%d excluded, reasons in %s)", s.Excluded, runfolder.FileNeuronScores)
 	}
 	fmt.Fprintln(w)
-	if s.NoSignal > 0 {
-		fmt.Fprintf(w, "neurons with signal power <= 0 on the test trials (NaN noise-ceiling ratios): %d\n", s.NoSignal)
+	if s.Ceilings != nil {
+		fmt.Fprintf(w, "noise ceilings on the test trials: %s\n", ceilingCounts(s.Ceilings))
+	}
+	if s.MinReliability > -1 {
+		fmt.Fprintf(w, "neurons with split-half reliability (all trials) >= %g: %d of %d scored\n", s.MinReliability, s.Reliable, s.Scored)
 	}
 	if s.Solver != "" {
 		fmt.Fprintf(w, "solver: %s; readout penalty (model.readout_l2: %s): %s\n", s.Solver, s.ReadoutL2.Setting, penaltyText(s.ReadoutL2))
@@ -276,11 +279,33 @@ func printSummary(w io.Writer, dir string, s *runfolder.Summary) {
 	fmt.Fprintln(w, "median over neurons [interquartile range]:")
 	for _, k := range []string{"test_r2", "test_r", "explainable_fraction", "fev", "cc_norm"} {
 		sp := s.Spread[k]
-		fmt.Fprintf(w, "  %-21s %7.3f  [%.3f, %.3f]\n", k, sp.Median, sp.Q1, sp.Q3)
+		fmt.Fprintf(w, "  %-21s %7.3f  [%.3f, %.3f]  %d neurons (%s", k, sp.Median, sp.Q1, sp.Q3, sp.Kept, sp.KeptBy)
+		if sp.NaN > 0 {
+			fmt.Fprintf(w, "; %d NaN", sp.NaN)
+		}
+		fmt.Fprintln(w, ")")
 	}
 	for _, c := range s.Cautions {
 		fmt.Fprintln(w, "note:", c)
 	}
+}
+
+// ceilingCounts lists the verdict counts of summary.json in code order:
+// "450 usable, 38 signal_not_significant (fev, cc_norm and spe NaN)".
+func ceilingCounts(m map[string]int) string {
+	var parts []string
+	bad := false
+	for c := eval.CeilingUsable; c <= eval.CeilingNotSignificant; c++ {
+		if k := m[c.String()]; k > 0 || c == eval.CeilingUsable {
+			parts = append(parts, fmt.Sprintf("%d %s", k, c))
+			bad = bad || (k > 0 && c != eval.CeilingUsable)
+		}
+	}
+	s := strings.Join(parts, ", ")
+	if bad {
+		s += " (where not usable, fev, cc_norm and spe are NaN; reasons: stria help metrics)"
+	}
+	return s
 }
 
 // penaltyText describes the readout penalty used: one value, or the

@@ -61,6 +61,10 @@ func predictCommand() *cli.Command {
 				return err
 			}
 			fmt.Fprintf(c.App.Writer, "wrote %s: %d stimulus values x %d neurons\n", out, pred.Rows, pred.Cols)
+			if !m.Soft {
+				fmt.Fprintf(c.App.Writer, "note: this model was trained with one-hot input (axis.encoding: onehot), so it predicts one value per bin: as a function of the stimulus its prediction is a staircase that steps at the bin edges (%d bins of %g %s), the same for every value inside a bin. For predictions that vary smoothly between bin centres, fit with axis.encoding: soft (stria help config; slower: the fast projected solver needs one-hot input).\n",
+					m.Manifest.Axis.Bins, (m.Manifest.Axis.Max-m.Manifest.Axis.Min)/float64(m.Manifest.Axis.Bins), m.Manifest.Axis.Unit)
+			}
 			return nil
 		},
 	}

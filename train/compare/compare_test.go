@@ -2,6 +2,7 @@ package compare
 
 import (
 	"fmt"
+	"math"
 	"slices"
 	"strings"
 	"testing"
@@ -164,7 +165,8 @@ func TestSummarise(t *testing.T) {
 	sc := func(r2 ...float64) []eval.Scores {
 		out := make([]eval.Scores, len(r2))
 		for j, v := range r2 {
-			out[j] = eval.Scores{TestR2: v, TestR: v, FEV: v, CCNorm: v}
+			// A usable noise ceiling: positive signal and a significant F.
+			out[j] = eval.Scores{TestR2: v, TestR: v, FEV: v, CCNorm: v, SP: 1, ExplainableFraction: 0.5, SignalF: math.Inf(1), SignalDF1: 3, SignalDF2: 20}
 		}
 		return out
 	}
@@ -175,7 +177,7 @@ func TestSummarise(t *testing.T) {
 		// Model b: 0.1, -, 0.7, 0.9.
 		"b": {sc(0.1, 9, 0.7, 0.9), sc(0.1, 9, 0.7, 0.9)},
 	}
-	c := Summarise([]string{"a", "b"}, 2, 4, perFold, []bool{false, true, false, false})
+	c, _ := Summarise([]string{"a", "b"}, 2, 4, perFold, []bool{false, true, false, false}, Scoring{Alpha: 0.05})
 	if got := c.PerNeuron["a"]["test_r2"]; fmt.Sprint(got) != "[0.30000000000000004 NaN 0.6 0.8]" {
 		t.Errorf("fold averages of a: %v, want [0.3 NaN 0.6 0.8]", got)
 	}
@@ -203,5 +205,74 @@ func TestSummarise(t *testing.T) {
 	}
 	if s := p.Summary["a"]["test_r2"]; s.N != 6 || s.NaN != 0 {
 		t.Errorf("pooled spread %+v, want n 6, nan 0", s)
+	}
+}
+
+// TestSummariseGates checks that compare gates every fold's ceilings as a
+// fit does, averages the ratio scores over the usable folds only, gives a
+// neuron without a usable fold NaN with its verdict, and summarises and
+// tests the ratio metrics over the reliable neurons only (numbers by
+// hand).
+func TestSummariseGates(t *testing.T) {
+	usable := eval.Scores{SP: 1, ExplainableFraction: 0.5, SignalF: 50, SignalDF1: 11, SignalDF2: 36}
+	chance := eval.Scores{SP: 0.01, ExplainableFraction: 0.01, SignalF: 1.1, SignalDF1: 11, SignalDF2: 36} // p about 0.39
+	none := eval.Scores{SP: -0.2, ExplainableFraction: -0.1, SignalF: 0.8, SignalDF1: 11, SignalDF2: 36}
+	with := func(s eval.Scores, v float64) eval.Scores {
+		s.TestR2, s.TestR, s.FEV, s.CCNorm, s.SPE = v, v, v, v, v
+		return s
+	}
+	// Neuron 0: usable on both folds (FEV 0.5, 0.7). Neuron 1: usable on
+	// fold 1 only (0.4; fold 2's -700 comes from a chance ceiling). Neuron
+	// 2: never usable (fold 1 chance, fold 2 no signal power; FEV 3 and
+	// -50). Neuron 3: usable, but unreliable (split-half 0.1).
+	perFold := map[string][][]eval.Scores{
+		"a": {
+			{with(usable, 0.5), with(usable, 0.4), with(chance, 3), with(usable, 0.9)},
+			{with(usable, 0.7), with(chance, -700), with(none, -50), with(usable, 0.9)},
+		},
+	}
+	rel := []float64{0.8, 0.6, 0.05, 0.1}
+	c, verdicts := Summarise([]string{"a"}, 2, 4, perFold, nil, Scoring{Alpha: 0.05, SplitHalfAll: rel, MinReliability: 0.3})
+	fev := c.PerNeuron["a"]["fev"]
+	if math.Abs(fev[0]-0.6) > 1e-15 || fev[1] != 0.4 || !math.IsNaN(fev[2]) || fev[3] != 0.9 {
+		t.Errorf("fold-averaged fev %v, want [0.6 0.4 NaN 0.9]", fev)
+	}
+	// test_r2 is not gated: neuron 1 averages (0.4 - 700)/2.
+	if got := c.PerNeuron["a"]["test_r2"][1]; got != (0.4-700)/2 {
+		t.Errorf("test_r2 of neuron 1 = %v, want %v", got, (0.4-700)/2)
+	}
+	if want := []int{2, 1, 0, 2}; !slices.Equal(c.UsableFolds, want) {
+		t.Errorf("usable folds %v, want %v", c.UsableFolds, want)
+	}
+	// Neuron 2: one fold signal_not_significant, one no_signal_power: a
+	// tie, the first in code order.
+	if want := []string{"usable", "usable", "no_signal_power", "usable"}; !slices.Equal(c.Ceiling, want) {
+		t.Errorf("verdicts %v, want %v", c.Ceiling, want)
+	}
+	if verdicts[1][1] != eval.CeilingNotSignificant || verdicts[1][2] != eval.CeilingNoSignal {
+		t.Errorf("fold 2 verdicts %v", verdicts[1])
+	}
+	if c.FoldCeilings[1]["usable"] != 2 || c.FoldCeilings[1]["signal_not_significant"] != 1 || c.FoldCeilings[1]["no_signal_power"] != 1 {
+		t.Errorf("fold 2 counts %v", c.FoldCeilings[1])
+	}
+	// fev over the reliable neurons 0, 1 (2 is reliable-less too):
+	// median of 0.6 and 0.4; test_r2 over all four.
+	s := c.Summary["a"]["fev"]
+	if math.Abs(float64(s.Median)-0.5) > 1e-15 || s.N != 2 || s.NaN != 0 || s.Kept != 2 || s.KeptBy != "split_half_all >= 0.3" {
+		t.Errorf("fev spread %+v, want median 0.5 over 2 kept neurons", s)
+	}
+	if s := c.Summary["a"]["test_r2"]; s.Kept != 4 || s.KeptBy != "scored" {
+		t.Errorf("test_r2 spread %+v, want 4 kept, scored", s)
+	}
+	if Reliable(c) != 2 {
+		t.Errorf("reliable %d, want 2", Reliable(c))
+	}
+}
+
+func TestCompareWarnings(t *testing.T) {
+	got := compareWarnings([]string{"fold 1: bin 3 has no training trials", "the test split: bin 2 has no test trials", "fold 1: bin 3 has no training trials", "constant neuron 4"})
+	want := []string{"fold 1: bin 3 has no training trials", "constant neuron 4"}
+	if !slices.Equal(got, want) {
+		t.Errorf("got %q, want %q", got, want)
 	}
 }

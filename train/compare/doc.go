@@ -19,4 +19,11 @@
 // naming each difference. Every pass over a recording runs under the data
 // package's fault guard, and each result is written only after the
 // recording's files are found unchanged.
+//
+// Scores are judged as in a fit: every fold's noise ceilings are gated at
+// scores.ceiling_alpha (Summarise), the ratio scores average over the folds
+// where a neuron's ceiling is usable, and their summaries and pair tests
+// use the neurons with split-half reliability over all trials >=
+// scores.min_reliability (Kept); every summary records the neurons it
+// kept.
 package compare

@@ -42,7 +42,7 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 	// Everything is read and checked before anything is written.
 	folders := make([]*runfolder.ComparisonFolder, len(p.Recordings))
 	for ri, rec := range p.Recordings {
-		prep, _, err := p.prepare(ri) // the folds for the coverage warnings
+		prep, folds, err := p.prepare(ri) // the folds also for the coverage warnings
 		if err != nil {
 			return nil, err
 		}
@@ -65,7 +65,7 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 			results = append(results, r)
 		}
 		var folder *runfolder.ComparisonFolder
-		if gerr := data.Guard(func() { folder, err = newFolder(prep, rec.Specs, results) }); gerr != nil {
+		if gerr := data.Guard(func() { folder, err = newFolder(prep, rec.Specs, results, folds) }); gerr != nil {
 			return nil, p.recErr(rec, gerr)
 		}
 		if err != nil {
@@ -109,8 +109,8 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 }
 
 // newFolder computes everything the comparison folder of one recording
-// holds from the units' results (in plan order).
-func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.FoldResult) (*runfolder.ComparisonFolder, error) {
+// holds from the units' results (in plan order) on the given folds.
+func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.FoldResult, folds [][3][]int) (*runfolder.ComparisonFolder, error) {
 	names := make([]string, len(specs))
 	var encoders []string
 	for i, s := range specs {
@@ -128,16 +128,24 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.
 	}
 	perFold := map[string][][]eval.Scores{}
 	for _, r := range results {
+		if r.Fold != len(perFold[r.Model]) {
+			return nil, fmt.Errorf("unit %s: fold %d where fold %d was expected", r.ID, r.Fold+1, len(perFold[r.Model])+1)
+		}
 		perFold[r.Model] = append(perFold[r.Model], r.Scores)
 	}
-	c := Summarise(names, p.Cfg.Split.Folds, n, perFold, excluded)
+	rel := train.Reliability(p)
+	for j := range ex {
+		rel[j] = math.NaN()
+	}
+	c, verdicts := Summarise(names, p.Cfg.Split.Folds, n, perFold, excluded,
+		Scoring{Alpha: p.Cfg.Scores.CeilingAlpha, SplitHalfAll: rel, MinReliability: p.Cfg.Scores.MinReliability})
 	settings, err := p.Cfg.Marshal()
 	if err != nil {
 		return nil, err
 	}
 	f := &runfolder.ComparisonFolder{Settings: settings, Result: c, Excluded: reasons, Curves: map[string][]float64{}}
 	for _, r := range results {
-		f.FoldScores = append(f.FoldScores, runfolder.NewFoldScores(r.Model, r.Fold, r.Scores, ex))
+		f.FoldScores = append(f.FoldScores, runfolder.NewFoldScores(r.Model, r.Fold, r.Scores, ex, verdicts[r.Fold]))
 	}
 	// Fold-averaged curves per model.
 	for _, m := range names {
@@ -170,8 +178,9 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.
 		}
 	}
 	f.Curves[runfolder.CurveDataMean], f.Curves[runfolder.CurveDataSEM] = means, sem
-	// Tuning descriptors of the data's and every model's curves.
-	centers := p.Axis.Centers()
+	// Tuning descriptors of the data's and every model's curves, at the
+	// conditions' stimulus values; NaN throughout for an excluded neuron.
+	values := p.Values
 	period := 0.0
 	if p.Axis.Periodic {
 		period = p.Axis.Max - p.Axis.Min
@@ -183,15 +192,21 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.
 			curve = f.Curves[src]
 		}
 		for j := 0; j < n; j++ {
+			if excluded[j] {
+				f.Descriptors = append(f.Descriptors, runfolder.Descriptor{Source: src, Neuron: j, Descriptors: NaNDescriptors()})
+				continue
+			}
 			for b := 0; b < nb; b++ {
 				r[b] = curve[b*n+j]
 			}
-			f.Descriptors = append(f.Descriptors, runfolder.Descriptor{Source: src, Neuron: j, Descriptors: tuning.Describe(r, centers, period)})
+			f.Descriptors = append(f.Descriptors, runfolder.Descriptor{Source: src, Neuron: j, Descriptors: tuning.Describe(r, values, period)})
 		}
 	}
 	info := runfolder.ComparisonInfo{Models: names, Encoders: encoders, Folds: c.Folds, Neurons: n, Excluded: map[string]string{},
+		Ceilings: runfolder.CeilingCounts(ceilingVerdicts(c.Ceiling), func(j int) bool { return excluded[j] }), FoldCeilings: c.FoldCeilings,
+		Reliable: Reliable(c), MinReliability: c.MinReliability,
 		Summary: c.Summary, Winner: c.Winner, Pairs: runfolder.NewPairInfo(c.Pairs), PValues: runfolder.WilcoxonNote,
-		Cautions: train.Cautions, Warnings: p.Report.Warnings,
+		Cautions: FoldCautions(p, folds), Warnings: compareWarnings(p.Report.Warnings),
 		Axis:   runfolder.AxisOf(p),
 		Epochs: map[string][]int{}, Recordings: []string{p.Rec.Source.Responses}}
 	for j, why := range ex {
@@ -203,5 +218,66 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.
 		}
 	}
 	f.Info = info
+	c.Cautions, c.Warnings = info.Cautions, info.Warnings
 	return f, nil
+}
+
+// NaNDescriptors are the descriptors of a neuron excluded from scoring:
+// NaN throughout (its reason is in the excluded column of the score
+// tables and in comparison.json).
+func NaNDescriptors() tuning.Descriptors {
+	nan := math.NaN()
+	return tuning.Descriptors{Preferred: nan, Peak: nan, OneMinusCV: nan, DirVector: nan, OSI: nan, DSI: nan}
+}
+
+// ceilingVerdicts parses verdict codes ("" for an excluded neuron, which
+// the caller leaves out of any count).
+func ceilingVerdicts(codes []string) []eval.Ceiling {
+	out := make([]eval.Ceiling, len(codes))
+	for j, s := range codes {
+		for c := eval.CeilingUsable; c <= eval.CeilingNotSignificant; c++ {
+			if s == c.String() {
+				out[j] = c
+			}
+		}
+	}
+	return out
+}
+
+// FoldCautions returns the cautions for a comparison on the given folds
+// (train.CautionsFor over the test trials of every fold): the few-trials
+// caution when a condition has fewer than train.FewTrials test trials in
+// some fold.
+func FoldCautions(p *train.Prepared, folds [][3][]int) []string {
+	var k []int
+	for _, f := range folds {
+		k = append(k, p.TrialsPerCondition(f[2])...)
+	}
+	return train.CautionsFor(k)
+}
+
+// Dedup returns the messages without repeats, in first-seen order.
+func Dedup(msgs []string) []string {
+	seen := map[string]bool{}
+	var out []string
+	for _, m := range msgs {
+		if !seen[m] {
+			seen[m] = true
+			out = append(out, m)
+		}
+	}
+	return out
+}
+
+// compareWarnings are the data warnings of a comparison: without repeats,
+// and without those about the hold-out test split of stria fit, which a
+// comparison does not use (its folds have their own).
+func compareWarnings(w []string) []string {
+	var out []string
+	for _, m := range Dedup(w) {
+		if !strings.HasPrefix(m, train.TestSplitLabel+":") {
+			out = append(out, m)
+		}
+	}
+	return out
 }

@@ -11,5 +11,8 @@
 // exactly, NaN as NaN) or .npy; everything is read and checked before the
 // first file is written, so a refused folder leaves no output; drawing is
 // deterministic, so the same folder gives byte-identical SVG files
-// wherever it lies.
+// wherever it lies. Tuning figures and descriptors place conditions at
+// their stimulus values (runfolder.AxisInfo.ConditionValues); figures of
+// the ratio scores (fev, cc_norm, spe) draw the reliable neurons only, on
+// the fixed range figure.RatioRange, and their captions say how many.
 package export

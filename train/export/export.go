@@ -206,6 +206,11 @@ func exportRun(dir, out string, opt Options) (*Exported, error) {
 	if err != nil {
 		return nil, err
 	}
+	sum, err := runfolder.ReadSummary(dir)
+	if err != nil {
+		return nil, err
+	}
+	values := mf.Axis.ConditionValues()
 	sel := opt.Neurons
 	if sel == "" {
 		sel = DefaultNeurons
@@ -227,9 +232,9 @@ func exportRun(dir, out string, opt Options) (*Exported, error) {
 		ex.Notes = append(ex.Notes, fmt.Sprintf("Tuning figures skipped: the recording could not be read (%v). Filters, score histograms and preferred stimuli do not need it.", err))
 		cd = nil
 	}
-	pm, err := mod.Predict(mf.Axis.Centers)
+	pm, err := mod.Predict(values)
 	if err != nil {
-		return nil, fmt.Errorf("%s: predicting at the bin centres: %w", dir, err)
+		return nil, fmt.Errorf("%s: predicting at the condition values: %w", dir, err)
 	}
 	pred := make([]float64, len(pm.Data)) // B x N, recording units
 	for i, v := range pm.Data {
@@ -279,12 +284,12 @@ func exportRun(dir, out string, opt Options) (*Exported, error) {
 	if cd != nil {
 		for _, j := range chosen {
 			mean, sem, enc := column(cd.Mean, nb, n, j), column(cd.SEM, nb, n, j), column(pred, nb, n, j)
-			curves := []figure.Curve{{Name: "encoder", X: mf.Axis.Centers, Y: enc}}
-			h := []string{"center", "data_mean", "data_sem", "encoder"}
-			cols := [][]float64{mf.Axis.Centers, mean, sem, enc}
+			curves := []figure.Curve{{Name: "encoder", X: values, Y: enc}}
+			h := []string{"value", "data_mean", "data_sem", "encoder"}
+			cols := [][]float64{values, mean, sem, enc}
 			for i, bn := range blNames {
 				y := column(blCurves[i], nb, n, j)
-				curves = append(curves, figure.Curve{Name: bn, X: mf.Axis.Centers, Y: y})
+				curves = append(curves, figure.Curve{Name: bn, X: values, Y: y})
 				h = append(h, bn)
 				cols = append(cols, y)
 			}
@@ -292,11 +297,11 @@ func exportRun(dir, out string, opt Options) (*Exported, error) {
 			if err := writeColumns(filepath.Join(out, name+".csv"), h, cols); err != nil {
 				return nil, err
 			}
-			what := "the encoder's prediction at each bin centre"
+			what := "the encoder's prediction at each condition's stimulus value"
 			if len(blNames) > 0 {
 				what += " and the baselines' fold-averaged curves from " + opt.Compare
 			}
-			im, err := figure.Tuning(mf.Axis.Centers, mean, sem, curves, ax, "response (recording units)")
+			im, err := figure.Tuning(values, mean, sem, curves, ax, "response (recording units)")
 			err = ex.add(name, im, err, fmt.Sprintf("Neuron %d (0-based; test_r2 %.3f, cc_norm %.3f): condition means of all %d trials ± standard error, with %s. The encoder was trained on most of these trials.",
 				j, met.Col("test_r2")[j], met.Col("cc_norm")[j], cd.Trials, what), name+".csv")
 			if err != nil {
@@ -305,15 +310,18 @@ func exportRun(dir, out string, opt Options) (*Exported, error) {
 		}
 	}
 
-	// Score histograms.
-	for _, col := range []string{"cc_norm", "fev"} {
+	// Histograms of the ratio scores, over the reliable neurons, in a
+	// fixed range.
+	keep, kept := met.Reliable(sum.MinReliability)
+	for _, col := range runfolder.RatioColumns {
 		name := "hist_" + col
 		v := met.Col(col)
-		if err := writeColumns(filepath.Join(out, name+".csv"), []string{"neuron", col}, [][]float64{seq(n), v}); err != nil {
+		if err := writeColumns(filepath.Join(out, name+".csv"), []string{"neuron", col, runfolder.ColSplitHalfAll, "kept"}, [][]float64{seq(n), v, met.SplitHalfAll, boolCol(keep)}); err != nil {
 			return nil, err
 		}
-		im, err := figure.Histogram(v, col, 0)
-		err = ex.add(name, im, err, fmt.Sprintf("Distribution of %s over neurons, on the held-out test trials (%s). Neurons where it is undefined (signal power <= 0, or excluded) are counted in the legend.", col, runfolder.FileNeuronScores), name+".csv")
+		im, err := figure.HistogramIn(selected(v, keep), col, 0, figure.RatioRange)
+		err = ex.add(name, im, err, fmt.Sprintf("Distribution of %s over the %d of %d neurons with split-half reliability (all trials) >= %g, on the held-out test trials (%s; column kept). Neurons where it is undefined (noise ceiling not usable: column ceiling of %s) are counted in the legend, as are values outside %g to %g.",
+			col, kept, n, sum.MinReliability, name+".csv", runfolder.FileNeuronScores, figure.RatioRange.Lo, figure.RatioRange.Hi), name+".csv")
 		if err != nil {
 			return nil, err
 		}
@@ -327,10 +335,14 @@ func exportRun(dir, out string, opt Options) (*Exported, error) {
 	pref := make([]float64, n)
 	r := make([]float64, nb)
 	for j := 0; j < n; j++ {
+		if met.Excluded[j] != "" {
+			pref[j] = math.NaN() // not scored, not described
+			continue
+		}
 		for b := 0; b < nb; b++ {
 			r[b] = pred[b*n+j]
 		}
-		pref[j] = tuning.Describe(r, mf.Axis.Centers, period).Preferred
+		pref[j] = tuning.Describe(r, values, period).Preferred
 	}
 	if err := data.WriteNPY64(filepath.Join(out, "encoder_curves.npy"), []int{nb, n}, pred); err != nil {
 		return nil, err
@@ -338,12 +350,12 @@ func exportRun(dir, out string, opt Options) (*Exported, error) {
 	if err := writeColumns(filepath.Join(out, "preferred.csv"), []string{"neuron", "preferred"}, [][]float64{seq(n), pref}); err != nil {
 		return nil, err
 	}
-	how := "the bin centre of the peak"
+	how := "the condition value of the peak"
 	if period > 0 {
-		how = "the vector average over the bin centres"
+		how = "the vector average over the conditions' stimulus values"
 	}
 	im, err = figure.Preferred(pref, ax, 0)
-	err = ex.add("preferred", im, err, fmt.Sprintf("Preferred stimuli of the population: for each neuron, %s of the encoder's noise-free curve (encoder_curves.npy, bins x neurons).", how),
+	err = ex.add("preferred", im, err, fmt.Sprintf("Preferred stimuli of the population: for each neuron, %s of the encoder's noise-free curve (encoder_curves.npy, conditions x neurons). Excluded neurons and flat curves have none (NaN, counted in the legend).", how),
 		"preferred.csv", "encoder_curves.npy")
 	if err != nil {
 		return nil, err
@@ -389,9 +401,30 @@ func exportComparison(dir, out string) (*Exported, error) {
 	}
 	n := ci.Neurons
 	metrics := []string{"cc_norm", "test_r2", "explainable_fraction", "cc_max"}
-	avg, err := runfolder.ReadFoldAverages(dir, ci.Models, n)
+	fa, err := runfolder.ReadFoldAverages(dir, ci.Models, n)
 	if err != nil {
 		return nil, err
+	}
+	avg := fa.Scores
+	// The ratio metrics' figures show the reliable neurons only.
+	keep, kept := make([]bool, n), 0
+	for j, r := range fa.SplitHalfAll {
+		keep[j] = fa.Ceiling[j] != "" && runfolder.IsReliable(r, ci.MinReliability)
+		if keep[j] {
+			kept++
+		}
+	}
+	shown := func(m, met string) []float64 {
+		if runfolder.IsRatio(met) {
+			return masked(avg[m][met], keep)
+		}
+		return avg[m][met]
+	}
+	whom := func(met string) string {
+		if runfolder.IsRatio(met) {
+			return fmt.Sprintf(" Only the %d of %d neurons with split-half reliability (all trials) >= %g are drawn; each neuron's score averages the folds where its noise ceiling is usable (fold_averages.csv: ceiling, ceiling_folds).", kept, n, ci.MinReliability)
+		}
+		return ""
 	}
 	enc := setOf(ci.Encoders)
 	var encoders, baselines []string
@@ -411,12 +444,25 @@ func exportComparison(dir, out string) (*Exported, error) {
 		return nil, err
 	}
 	// Fold-averaged per-neuron scores, one file per metric.
+	// kept: 1 for the neurons the metric's summary and tests use (the
+	// reliable ones for a ratio metric, the scored ones otherwise).
+	scoredCol := make([]float64, n)
+	for j, v := range fa.Ceiling {
+		if v != "" {
+			scoredCol[j] = 1
+		}
+	}
 	for _, met := range metrics {
 		cols := [][]float64{seq(n)}
 		for _, m := range ci.Models {
 			cols = append(cols, avg[m][met])
 		}
-		if err := writeColumns(filepath.Join(out, "foldavg_"+met+".csv"), append([]string{"neuron"}, ci.Models...), cols); err != nil {
+		k := scoredCol
+		if runfolder.IsRatio(met) {
+			k = boolCol(keep)
+		}
+		cols = append(cols, fa.SplitHalfAll, k)
+		if err := writeColumns(filepath.Join(out, "foldavg_"+met+".csv"), append(append([]string{"neuron"}, ci.Models...), runfolder.ColSplitHalfAll, "kept"), cols); err != nil {
 			return nil, err
 		}
 	}
@@ -424,8 +470,8 @@ func exportComparison(dir, out string) (*Exported, error) {
 		for _, e := range encoders {
 			for _, b := range baselines {
 				name := "scatter_" + met + "_" + runfolder.FileName(b) + "_vs_" + runfolder.FileName(e)
-				im, err := figure.Scatter(avg[b][met], avg[e][met], b, e, met)
-				err = ex.add(name, im, err, fmt.Sprintf("Per-neuron %s averaged over %d folds: %s (x) against %s (y). Points above the diagonal are neurons that %s predicts better.", met, ci.Folds, b, e, e),
+				im, err := figure.Scatter(shown(b, met), shown(e, met), b, e, met)
+				err = ex.add(name, im, err, fmt.Sprintf("Per-neuron %s averaged over %d folds: %s (x) against %s (y). Points above the diagonal are neurons that %s predicts better.%s", met, ci.Folds, b, e, e, whom(met)),
 					"foldavg_"+met+".csv")
 				if err != nil {
 					return nil, err
@@ -435,10 +481,10 @@ func exportComparison(dir, out string) (*Exported, error) {
 	}
 	series := map[string][]float64{}
 	for _, m := range ci.Models {
-		series[m] = avg[m]["cc_norm"]
+		series[m] = selected(avg[m]["cc_norm"], keep)
 	}
-	im, err := figure.Histograms(series, ci.Models, "cc_norm", 0)
-	err = ex.add("hist_cc_norm_models", im, err, fmt.Sprintf("Distribution over neurons of the fold-averaged cc_norm, one outline per model (%d folds).", ci.Folds), "foldavg_cc_norm.csv")
+	im, err := figure.HistogramsIn(series, ci.Models, "cc_norm", 0, figure.RatioRange)
+	err = ex.add("hist_cc_norm_models", im, err, fmt.Sprintf("Distribution over neurons of the fold-averaged cc_norm, one outline per model (%d folds); values outside %g to %g are counted in the legend.%s", ci.Folds, figure.RatioRange.Lo, figure.RatioRange.Hi, whom("cc_norm")), "foldavg_cc_norm.csv")
 	if err != nil {
 		return nil, err
 	}
@@ -453,7 +499,8 @@ func exportComparison(dir, out string) (*Exported, error) {
 		}
 	}
 	// The summary table, wide, as CSV and markdown.
-	tab := report.Table{Caption: fmt.Sprintf("Median over neurons of the fold-averaged score [interquartile range], %d-fold cross-validation, %d neurons.", ci.Folds, n),
+	tab := report.Table{Caption: fmt.Sprintf("Median over neurons of the fold-averaged score [interquartile range], %d-fold cross-validation, %d neurons; test_r2 and test_r over the %d scored neurons, fev and cc_norm over the %d with split-half reliability (all trials) >= %g.",
+		ci.Folds, n, n-len(ci.Excluded), ci.Reliable, ci.MinReliability),
 		Header: []string{"model"}, Numeric: []bool{false}}
 	for _, k := range runfolder.CompareMetrics {
 		tab.Header = append(tab.Header, k)
@@ -462,7 +509,7 @@ func exportComparison(dir, out string) (*Exported, error) {
 	var csvRows [][]string
 	csvHead := []string{"model"}
 	for _, k := range runfolder.CompareMetrics {
-		csvHead = append(csvHead, k+"_median", k+"_q1", k+"_q3", k+"_neurons", k+"_nan")
+		csvHead = append(csvHead, k+"_median", k+"_q1", k+"_q3", k+"_neurons", k+"_nan", k+"_neurons_kept", k+"_kept_by")
 	}
 	for _, m := range ci.Models {
 		row := []string{m}
@@ -470,7 +517,7 @@ func exportComparison(dir, out string) (*Exported, error) {
 		for _, k := range runfolder.CompareMetrics {
 			s := ci.Summary[m][k]
 			row = append(row, fmt.Sprintf("%.3f [%.3f, %.3f]", float64(s.Median), float64(s.Q1), float64(s.Q3)))
-			crow = append(crow, g8(float64(s.Median)), g8(float64(s.Q1)), g8(float64(s.Q3)), strconv.Itoa(s.N), strconv.Itoa(s.NaN))
+			crow = append(crow, g8(float64(s.Median)), g8(float64(s.Q1)), g8(float64(s.Q3)), strconv.Itoa(s.N), strconv.Itoa(s.NaN), strconv.Itoa(s.Kept), s.KeptBy)
 		}
 		tab.Rows = append(tab.Rows, row)
 		csvRows = append(csvRows, crow)
@@ -496,3 +543,38 @@ func exportComparison(dir, out string) (*Exported, error) {
 
 // g8 formats a number with 8 significant digits (NaN as NaN).
 func g8(v float64) string { return strconv.FormatFloat(v, 'g', 8, 64) }
+
+// selected returns the values of v where keep is true.
+func selected(v []float64, keep []bool) []float64 {
+	out := make([]float64, 0, len(v))
+	for j, x := range v {
+		if keep[j] {
+			out = append(out, x)
+		}
+	}
+	return out
+}
+
+// masked returns v with NaN where keep is false (for paired figures,
+// which need the neurons in place).
+func masked(v []float64, keep []bool) []float64 {
+	out := make([]float64, len(v))
+	for j, x := range v {
+		out[j] = math.NaN()
+		if keep[j] {
+			out[j] = x
+		}
+	}
+	return out
+}
+
+// boolCol is keep as 1 and 0, for a CSV column.
+func boolCol(keep []bool) []float64 {
+	out := make([]float64, len(keep))
+	for j, k := range keep {
+		if k {
+			out[j] = 1
+		}
+	}
+	return out
+}

@@ -9,6 +9,7 @@ import (
 	"strings"
 	"time"
 
+	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/eval/figure"
 	"github.com/strialab/stria/eval/report"
 	"github.com/strialab/stria/train"
@@ -98,24 +99,22 @@ func runReport(ex *Exported) (*report.Report, error) {
 		return nil, err
 	}
 	cautions := sum.Cautions
-	if len(cautions) == 0 {
-		cautions = train.Cautions
-	}
 	r := &report.Report{Title: "stria run " + filepath.Base(filepath.Clean(dir)), Subtitle: subtitle(dir), Cautions: cautions}
 
 	// Scores.
-	scores := report.Table{Caption: fmt.Sprintf("Per-neuron scores on the %d held-out test trials: median and quartiles over the %d scored neurons ("+runfolder.FileNeuronScores+" has every neuron).", sum.TestTrials, sum.Scored),
-		Header: []string{"metric", "median", "q1", "q3", "neurons", "undefined"}, Numeric: []bool{false, true, true, true, true, true}}
-	for _, k := range runfolder.ScoreColumns {
+	scores := report.Table{Caption: fmt.Sprintf("Per-neuron scores on the %d held-out test trials: median and quartiles over the neurons kept for each metric: every scored neuron (%d), or, for the ratios by the noise ceiling (fev, cc_norm, spe), the %d with split-half reliability (all trials) >= %g ("+runfolder.FileNeuronScores+" has every neuron).",
+		sum.TestTrials, sum.Scored, sum.Reliable, sum.MinReliability),
+		Header: []string{"metric", "median", "q1", "q3", "neurons", "undefined", "kept by"}, Numeric: []bool{false, true, true, true, true, true, false}}
+	for _, k := range append(append([]string(nil), runfolder.ScoreColumns...), runfolder.ColSplitHalfAll) {
 		s, ok := sum.Spread[k]
 		if !ok {
 			continue
 		}
-		scores.Rows = append(scores.Rows, []string{k, f3(s.Median), f3(s.Q1), f3(s.Q3), strconv.Itoa(s.N), strconv.Itoa(s.NaN)})
+		scores.Rows = append(scores.Rows, []string{k, f3(s.Median), f3(s.Q1), f3(s.Q3), strconv.Itoa(s.N), strconv.Itoa(s.NaN), s.KeptBy})
 	}
 	r.Sections = append(r.Sections, report.Section{ID: "scores", Heading: "Held-out scores",
 		Paragraphs: []string{fmt.Sprintf("Encoder: %s, output %s, loss %s, %d neurons, seed %d, stria %s, created %s.", layerText(mf.Layers), mf.Output, mf.Loss, mf.Neurons, mf.Seed, mf.Stria, mf.Created)},
-		Notes:      cautions, Tables: []report.Table{scores}})
+		Tables:     []report.Table{scores}})
 
 	// Data.
 	parts := report.Table{Caption: "Trials in each part of the split (split.json).", Header: []string{"part", "trials"}, Numeric: []bool{false, true}}
@@ -126,7 +125,8 @@ func runReport(ex *Exported) (*report.Report, error) {
 		Paragraphs: []string{
 			fmt.Sprintf("Recording: %s (stimulus: %s).", mf.Sources["responses"], mf.Sources["stimulus"]),
 			fmt.Sprintf("Axis: %s in %s, %g to %g%s, %d bins, %s encoding.", mf.Axis.Name, mf.Axis.Unit, mf.Axis.Min, mf.Axis.Max, periodicText(mf.Axis), mf.Axis.Bins, mf.Axis.Encoding),
-			fmt.Sprintf("Neurons: %d in the recording, %d scored, %d excluded; %d scored neurons have signal power <= 0 on the test trials, so their noise-ceiling ratios (fev, cc_norm) are undefined.", sum.Neurons, sum.Scored, sum.Excluded, sum.NoSignal),
+			fmt.Sprintf("Neurons: %d in the recording, %d scored, %d excluded. Noise ceilings on the test trials: %s; where the ceiling is not usable, fev, cc_norm and spe are undefined (column ceiling of %s gives the reason). %d scored neurons have a split-half reliability over all trials of at least %g (scores.min_reliability) and enter the summaries and figures of those ratios.",
+				sum.Neurons, sum.Scored, sum.Excluded, verdictText(sum.Ceilings), runfolder.FileNeuronScores, sum.Reliable, sum.MinReliability),
 		},
 		Tables: []report.Table{parts}}
 	for _, w := range sum.Warnings {
@@ -174,7 +174,7 @@ func runReport(ex *Exported) (*report.Report, error) {
 			Paragraphs: []string{"The readout weights (neurons x channels x positions) are in readout_weights.npy."}},
 		report.Section{ID: "tuning", Heading: "Tuning of selected neurons", Figures: figs(func(n string) bool { return strings.HasPrefix(n, "tuning_") }), Notes: ex.Notes},
 		report.Section{ID: "population", Heading: "Scores and preferred stimuli across neurons",
-			Figures: figs(func(n string) bool { return strings.HasPrefix(n, "hist_") || n == "preferred" }), Notes: cautions[:1]},
+			Figures: figs(func(n string) bool { return strings.HasPrefix(n, "hist_") || n == "preferred" })},
 		report.Section{ID: "config", Heading: "Resolved config", Paragraphs: []string{runfolder.FileSettings + " of the run: refitting it gives the same numbers."}, Code: string(cfgYAML)},
 	)
 	return r, nil
@@ -192,9 +192,6 @@ func comparisonReport(ex *Exported) (*report.Report, error) {
 		return nil, err
 	}
 	cautions := cj.Cautions
-	if len(cautions) == 0 {
-		cautions = train.Cautions
-	}
 	r := &report.Report{Title: "stria comparison " + filepath.Base(filepath.Clean(dir)), Subtitle: subtitle(dir), Cautions: cautions}
 	var win []string
 	for _, k := range runfolder.CompareMetrics {
@@ -202,27 +199,28 @@ func comparisonReport(ex *Exported) (*report.Report, error) {
 	}
 	r.Sections = append(r.Sections, report.Section{ID: "summary", Heading: "Summary",
 		Paragraphs: []string{
-			fmt.Sprintf("%d models, %d-fold cross-validation, %d neurons. Each neuron's score is averaged over the folds; the table gives the median over neurons and the interquartile range.", len(cj.Models), cj.Folds, cj.Neurons),
+			fmt.Sprintf("%d models, %d-fold cross-validation, %d neurons. Each neuron's score is averaged over the folds; fev and cc_norm over the folds where its noise ceiling is usable (by neuron: %s). The table gives the median over neurons and the interquartile range: test_r2 and test_r over the %d scored neurons, fev and cc_norm over the %d with split-half reliability (all trials) >= %g; the pairwise tests use the same neurons.",
+				len(cj.Models), cj.Folds, cj.Neurons, verdictText(cj.Ceilings), cj.Neurons-len(cj.Excluded), cj.Reliable, cj.MinReliability),
 			"Highest median — " + strings.Join(win, "; ") + ".",
 		},
-		Notes: cautions, Tables: ex.Tables})
+		Tables: ex.Tables})
 
-	pairs := report.Table{Caption: "Pairwise comparisons across neurons (" + runfolder.FileModelPairs + "): share of neurons where model A scores higher, Wilcoxon statistic W, p-value, neurons used and zero differences dropped.",
-		Header: []string{"metric", "model A", "model B", "A higher", "W", "p", "n", "dropped", "method"}, Numeric: []bool{false, false, false, true, true, true, true, true, false}}
+	pairs := report.Table{Caption: "Pairwise comparisons across neurons (" + runfolder.FileModelPairs + "): share of neurons where model A scores higher, Wilcoxon statistic W, p-value, neurons used and zero differences dropped, of the neurons kept for the metric.",
+		Header: []string{"metric", "model A", "model B", "A higher", "W", "p", "n", "dropped", "method", "kept", "kept by"}, Numeric: []bool{false, false, false, true, true, true, true, true, false, true, false}}
 	for _, p := range cj.Pairs {
-		pairs.Rows = append(pairs.Rows, []string{p.Metric, p.A, p.B, fmt.Sprintf("%.1f %%", 100*float64(p.ShareA)), g4(float64(p.W)), fmt.Sprintf("%.3g", float64(p.P)), strconv.Itoa(p.N), strconv.Itoa(p.Dropped), p.Method})
+		pairs.Rows = append(pairs.Rows, []string{p.Metric, p.A, p.B, fmt.Sprintf("%.1f %%", 100*float64(p.ShareA)), g4(float64(p.W)), fmt.Sprintf("%.3g", float64(p.P)), strconv.Itoa(p.N), strconv.Itoa(p.Dropped), p.Method, strconv.Itoa(p.Kept), p.KeptBy})
 	}
 	method := cj.PValues
 	if method == "" {
 		method = runfolder.WilcoxonNote
 	}
 	r.Sections = append(r.Sections, report.Section{ID: "pairs", Heading: "Pairwise tests",
-		Paragraphs: []string{"p-values: " + method}, Notes: cautions[1:], Tables: []report.Table{pairs}})
+		Paragraphs: []string{"p-values: " + method}, Tables: []report.Table{pairs}})
 
 	figs := reportFigures(ex, func(n string) bool { return strings.HasPrefix(n, "scatter_") })
 	r.Sections = append(r.Sections, report.Section{ID: "scatter", Heading: "Model against model, per neuron", Figures: figs})
 	figs = reportFigures(ex, func(n string) bool { return n == "hist_cc_norm_models" || strings.HasPrefix(n, "noise_ceiling_") })
-	r.Sections = append(r.Sections, report.Section{ID: "distributions", Heading: "Distributions and noise ceiling", Figures: figs, Notes: cautions[:1]})
+	r.Sections = append(r.Sections, report.Section{ID: "distributions", Heading: "Distributions and noise ceiling", Figures: figs})
 
 	dataSec := report.Section{ID: "data", Heading: "Data",
 		Paragraphs: []string{fmt.Sprintf("Recordings: %s.", strings.Join(cj.Recordings, ", ")),
@@ -277,7 +275,7 @@ func csvTable(path, caption string, keep func(row []string) bool) (report.Table,
 	}
 	t := report.Table{Caption: caption, Header: head, Numeric: make([]bool, len(head))}
 	for i, h := range head {
-		t.Numeric[i] = slices.Contains([]string{"median", "q1", "q3", "neurons", "nan", "share_a_higher", "w", "p", "n", "dropped"}, h)
+		t.Numeric[i] = slices.Contains([]string{"median", "q1", "q3", "neurons", "nan", "neurons_kept", "share_a_higher", "w", "p", "n", "dropped"}, h)
 	}
 	for _, r := range rows {
 		if keep != nil && !keep(r) {
@@ -310,7 +308,22 @@ func manyReport(dir string) (*report.Report, error) {
 	if err != nil {
 		return nil, err
 	}
-	r := &report.Report{Title: "stria comparison over " + fmt.Sprint(len(subs)) + " recordings", Subtitle: subtitle(dir), Cautions: train.Cautions}
+	// The cautions of every recording, once each.
+	seen := map[string]bool{}
+	var cautions []string
+	for _, sub := range subs {
+		ci, err := runfolder.ReadComparisonInfo(sub)
+		if err != nil {
+			return nil, err
+		}
+		for _, c := range ci.Cautions {
+			if !seen[c] {
+				seen[c] = true
+				cautions = append(cautions, c)
+			}
+		}
+	}
+	r := &report.Report{Title: "stria comparison over " + fmt.Sprint(len(subs)) + " recordings", Subtitle: subtitle(dir), Cautions: cautions}
 	byRec, err := csvTable(filepath.Join(dir, runfolder.FilePerRecording),
 		"Every recording's median and quartiles over its neurons ("+runfolder.FilePerRecording+"); the last rows give the median over recordings of the recording medians.", nil)
 	if err != nil {
@@ -320,7 +333,7 @@ func manyReport(dir string) (*report.Report, error) {
 	if err != nil {
 		return nil, err
 	}
-	pairs, err := csvTable(filepath.Join(dir, runfolder.FilePooledPairs), "Pooled neurons, cc_norm: share of neurons where model A scores higher, and the Wilcoxon test ("+runfolder.FilePooledPairs+" has every metric).",
+	pairs, err := csvTable(filepath.Join(dir, runfolder.FilePooledPairs), "Pooled neurons, cc_norm, over the reliable neurons (kept_by): share of neurons where model A scores higher, and the Wilcoxon test ("+runfolder.FilePooledPairs+" has every metric).",
 		func(row []string) bool { return row[0] == "cc_norm" })
 	if err != nil {
 		return nil, err
@@ -329,7 +342,7 @@ func manyReport(dir string) (*report.Report, error) {
 		report.Section{ID: "pooled", Heading: "Across recordings",
 			Paragraphs: []string{"Pooled neurons answer \"for a neuron in these data\" (large recordings weigh more); the median of recording medians answers \"for a recording\" (each counts once).",
 				"p-values: " + runfolder.WilcoxonNote},
-			Notes: train.Cautions, Tables: []report.Table{pooled, pairs}},
+			Tables: []report.Table{pooled, pairs}},
 		report.Section{ID: "recordings", Heading: "Recording by recording", Tables: []report.Table{byRec}})
 	for _, sub := range subs {
 		ex, err := Folder(sub, Options{})
@@ -350,4 +363,20 @@ func manyReport(dir string) (*report.Report, error) {
 	}
 	r.Sections = append(r.Sections, report.Section{ID: "config", Heading: "Resolved config", Code: string(cfgYAML)})
 	return r, nil
+}
+
+// verdictText counts noise-ceiling verdicts in words: "usable 412,
+// signal_not_significant 38, no_signal_power 2" (codes with a count of 0
+// left out; "not recorded" for a folder without counts).
+func verdictText(counts map[string]int) string {
+	if counts == nil {
+		return "not recorded"
+	}
+	var parts []string
+	for c := eval.CeilingUsable; c <= eval.CeilingNotSignificant; c++ {
+		if k := counts[c.String()]; k > 0 || c == eval.CeilingUsable {
+			parts = append(parts, fmt.Sprintf("%s %d", c, k))
+		}
+	}
+	return strings.Join(parts, ", ")
 }

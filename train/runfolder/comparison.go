@@ -5,6 +5,7 @@ import (
 	"encoding/gob"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"path/filepath"
 	"sort"
@@ -58,6 +59,10 @@ type PairTest struct {
 	// scores higher than B.
 	ShareA float64
 	eval.Wilcoxon
+	// Kept is the number of neurons the test was taken over (before
+	// dropping NaN pairs), chosen by KeptBy (as in Spread).
+	Kept   int
+	KeptBy string
 }
 
 // Comparison is the outcome of a cross-validated comparison of models on
@@ -73,11 +78,30 @@ type Comparison struct {
 	Excluded int
 	// PerNeuron[model][column] is each neuron's score averaged over the
 	// folds, for every column of ScoreColumns (NaN folds left out; NaN for
-	// excluded neurons).
+	// excluded neurons). The ratio columns are NaN on the folds where the
+	// neuron's noise ceiling is not usable, so they average over the folds
+	// where it is.
 	PerNeuron map[string]map[string][]float64
+	// Ceiling[j] is neuron j's verdict over the folds (an eval.Ceiling
+	// code; "" when excluded): "usable" when the ceiling is usable on at
+	// least one fold, otherwise the verdict of most folds (the first in
+	// code order on a tie). UsableFolds[j] is the number of folds where it
+	// is usable, the folds its ratio scores average over.
+	Ceiling     []string
+	UsableFolds []int
+	// FoldCeilings[f] counts the scored neurons by verdict on fold f.
+	FoldCeilings []map[string]int
+	// SplitHalfAll[j] is neuron j's split-half reliability over all trials;
+	// the ratio metrics are summarised and tested over the neurons with
+	// SplitHalfAll >= MinReliability only. nil: every neuron.
+	SplitHalfAll   []float64
+	MinReliability float64
 	// Summary[model][metric] over neurons, for CompareMetrics.
 	Summary map[string]map[string]Spread
 	Pairs   []PairTest
+	// Cautions and Warnings are those of comparison.json (the data
+	// warnings without repeats).
+	Cautions, Warnings []string
 	// Winner is the model with the highest median, per metric.
 	Winner map[string]string
 }
@@ -87,19 +111,28 @@ type ComparisonInfo struct {
 	Models []string `json:"models"`
 	// Encoders are the models that are encoders (the others are
 	// per-neuron baselines).
-	Encoders   []string                     `json:"encoders"`
-	Folds      int                          `json:"folds"`
-	Neurons    int                          `json:"neurons"`
-	Excluded   map[string]string            `json:"excluded_neurons"`
-	Summary    map[string]map[string]Spread `json:"summary"`
-	Winner     map[string]string            `json:"winner"`
-	Pairs      []PairInfo                   `json:"pairs"`
-	PValues    string                       `json:"p_value_method"`
-	Cautions   []string                     `json:"cautions"`
-	Warnings   []string                     `json:"warnings"`
-	Axis       AxisInfo                     `json:"axis"`
-	Epochs     map[string][]int             `json:"encoder_epochs,omitempty"`
-	Recordings []string                     `json:"recordings"`
+	Encoders []string          `json:"encoders"`
+	Folds    int               `json:"folds"`
+	Neurons  int               `json:"neurons"`
+	Excluded map[string]string `json:"excluded_neurons"`
+	// Ceilings counts the scored neurons by their verdict over the folds
+	// (Comparison.Ceiling); FoldCeilings by verdict on each fold.
+	Ceilings     map[string]int   `json:"ceiling_verdicts"`
+	FoldCeilings []map[string]int `json:"ceiling_verdicts_per_fold"`
+	// Reliable counts the scored neurons with split_half_all >=
+	// MinReliability, the neurons of the ratio metrics' summaries and
+	// tests.
+	Reliable       int                          `json:"neurons_reliable"`
+	MinReliability float64                      `json:"min_reliability"`
+	Summary        map[string]map[string]Spread `json:"summary"`
+	Winner         map[string]string            `json:"winner"`
+	Pairs          []PairInfo                   `json:"pairs"`
+	PValues        string                       `json:"p_value_method"`
+	Cautions       []string                     `json:"cautions"`
+	Warnings       []string                     `json:"warnings"`
+	Axis           AxisInfo                     `json:"axis"`
+	Epochs         map[string][]int             `json:"encoder_epochs,omitempty"`
+	Recordings     []string                     `json:"recordings"`
 }
 
 // PairInfo is one pairwise test in comparison.json.
@@ -113,15 +146,19 @@ type PairInfo struct {
 	N       int    `json:"n"`
 	Dropped int    `json:"dropped"`
 	Method  string `json:"method"`
+	Kept    int    `json:"neurons_kept"`
+	KeptBy  string `json:"kept_by"`
 }
 
 // FoldScores is one model's scores on one fold, as in fold_scores.csv:
 // Cols[k][j] is column ScoreColumns[k] of neuron j (NaN for an excluded
-// neuron).
+// neuron), Ceiling[j] its noise-ceiling verdict on the fold's test trials
+// ("" for an excluded neuron).
 type FoldScores struct {
-	Model string
-	Fold  int // 0-based; written 1-based
-	Cols  [][]float64
+	Model   string
+	Fold    int // 0-based; written 1-based
+	Cols    [][]float64
+	Ceiling []string
 }
 
 // Descriptor is one row of tuning_descriptors.csv: the descriptors of the
@@ -149,10 +186,11 @@ type ComparisonFolder struct {
 	Descriptors []Descriptor
 }
 
-// NewFoldScores builds the table of one model's scores on one fold.
-func NewFoldScores(model string, fold int, scores []eval.Scores, excluded map[int]string) FoldScores {
-	t := NewNeuronScores(nil, scores, excluded)
-	return FoldScores{Model: model, Fold: fold, Cols: t.Cols}
+// NewFoldScores builds the table of one model's scores on one fold, with
+// the verdicts of its noise ceilings.
+func NewFoldScores(model string, fold int, scores []eval.Scores, excluded map[int]string, verdicts []eval.Ceiling) FoldScores {
+	t := NewNeuronScores(nil, scores, excluded, verdicts, nil)
+	return FoldScores{Model: model, Fold: fold, Cols: t.Cols, Ceiling: t.Ceiling}
 }
 
 // NewPairInfo converts the pairwise tests of a comparison for
@@ -160,7 +198,7 @@ func NewFoldScores(model string, fold int, scores []eval.Scores, excluded map[in
 func NewPairInfo(pairs []PairTest) []PairInfo {
 	out := make([]PairInfo, len(pairs))
 	for i, pt := range pairs {
-		out[i] = PairInfo{Metric: pt.Metric, A: pt.A, B: pt.B, ShareA: Num(pt.ShareA), W: Num(pt.W), P: Num(pt.P), N: pt.N, Dropped: pt.Dropped, Method: pt.Method}
+		out[i] = PairInfo{Metric: pt.Metric, A: pt.A, B: pt.B, ShareA: Num(pt.ShareA), W: Num(pt.W), P: Num(pt.P), N: pt.N, Dropped: pt.Dropped, Method: pt.Method, Kept: pt.Kept, KeptBy: pt.KeptBy}
 	}
 	return out
 }
@@ -172,7 +210,7 @@ func WriteComparison(dir string, c *ComparisonFolder) error {
 		return err
 	}
 	n := c.Info.Neurons
-	header := append(append([]string{"model", "fold", "neuron"}, ScoreColumns...), "excluded")
+	header := append(append([]string{"model", "fold", "neuron"}, ScoreColumns...), ColCeiling, "excluded")
 	err := writeCSV(filepath.Join(dir, FileFoldScores), header, func(cw *csv.Writer) error {
 		row := make([]string, len(header))
 		for _, fs := range c.FoldScores {
@@ -181,6 +219,7 @@ func WriteComparison(dir string, c *ComparisonFolder) error {
 				for k := range ScoreColumns {
 					row[3+k] = g8(fs.Cols[k][j])
 				}
+				row[len(row)-2] = fs.Ceiling[j]
 				row[len(row)-1] = c.Excluded[j]
 				if err := cw.Write(row); err != nil {
 					return err
@@ -236,10 +275,20 @@ func curveNames(models []string) []string {
 	return append(append([]string(nil), models...), CurveDataMean, CurveDataSEM)
 }
 
+// Columns of fold_averages.csv beside ScoreColumns and ColCeiling (the
+// verdict over the folds, Comparison.Ceiling) and ColSplitHalfAll.
+const (
+	// ColCeilingFolds is the number of folds where the neuron's noise
+	// ceiling is usable: the folds its ratio scores average over.
+	ColCeilingFolds = "ceiling_folds"
+)
+
 // writeFoldAverages writes fold_averages.csv: one row per model and
-// neuron, every score column, exact to the last bit.
+// neuron, every score column, exact to the last bit, then the neuron's
+// verdict over the folds, its number of usable folds and its reliability
+// over all trials (the same in every model's rows).
 func writeFoldAverages(path string, c *Comparison) error {
-	header := append([]string{"model", "neuron"}, ScoreColumns...)
+	header := append(append([]string{"model", "neuron"}, ScoreColumns...), ColCeiling, ColCeilingFolds, ColSplitHalfAll)
 	return writeCSV(path, header, func(cw *csv.Writer) error {
 		row := make([]string, len(header))
 		for _, m := range c.Models {
@@ -248,6 +297,11 @@ func writeFoldAverages(path string, c *Comparison) error {
 				for k, col := range ScoreColumns {
 					row[2+k] = exact(c.PerNeuron[m][col][j])
 				}
+				rel := math.NaN()
+				if c.SplitHalfAll != nil {
+					rel = c.SplitHalfAll[j]
+				}
+				row[len(row)-3], row[len(row)-2], row[len(row)-1] = c.Ceiling[j], strconv.Itoa(c.UsableFolds[j]), exact(rel)
 				if err := cw.Write(row); err != nil {
 					return err
 				}
@@ -257,15 +311,24 @@ func writeFoldAverages(path string, c *Comparison) error {
 	})
 }
 
+// FoldAverages is fold_averages.csv read back: Scores[model][column]
+// [neuron] and the per-neuron columns (the same in every model's rows).
+type FoldAverages struct {
+	Scores       map[string]map[string][]float64
+	Ceiling      []string
+	UsableFolds  []int
+	SplitHalfAll []float64
+}
+
 // ReadFoldAverages reads fold_averages.csv of a comparison folder of
-// models with n neurons: avg[model][column][neuron].
-func ReadFoldAverages(dir string, models []string, n int) (map[string]map[string][]float64, error) {
+// models with n neurons.
+func ReadFoldAverages(dir string, models []string, n int) (*FoldAverages, error) {
 	path := filepath.Join(dir, FileFoldAverages)
 	tb, err := readTable(path)
 	if err != nil {
 		return nil, err
 	}
-	fixed, err := tb.cols("model", "neuron")
+	fixed, err := tb.cols("model", "neuron", ColCeiling, ColCeilingFolds, ColSplitHalfAll)
 	if err != nil {
 		return nil, err
 	}
@@ -273,7 +336,8 @@ func ReadFoldAverages(dir string, models []string, n int) (map[string]map[string
 	if err != nil {
 		return nil, err
 	}
-	out := map[string]map[string][]float64{}
+	fa := &FoldAverages{Scores: map[string]map[string][]float64{}, Ceiling: make([]string, n), UsableFolds: make([]int, n), SplitHalfAll: make([]float64, n)}
+	out := fa.Scores
 	seen := map[string][]bool{}
 	for _, m := range models {
 		out[m] = map[string][]float64{}
@@ -303,6 +367,15 @@ func ReadFoldAverages(dir string, models []string, n int) (map[string]map[string
 				return nil, err
 			}
 		}
+		if fa.Ceiling[j], err = ceilingCode(tb, i, fixed[2]); err != nil {
+			return nil, err
+		}
+		if fa.UsableFolds[j], err = tb.int(i, fixed[3]); err != nil {
+			return nil, err
+		}
+		if fa.SplitHalfAll[j], err = tb.float(i, fixed[4]); err != nil {
+			return nil, err
+		}
 	}
 	for _, m := range models {
 		for j, ok := range seen[m] {
@@ -311,7 +384,7 @@ func ReadFoldAverages(dir string, models []string, n int) (map[string]map[string
 			}
 		}
 	}
-	return out, nil
+	return fa, nil
 }
 
 // SpreadRow is one row of model_summary.csv, pooled_summary.csv or
@@ -335,9 +408,9 @@ func summaryRows(c *Comparison) []SpreadRow {
 }
 
 var (
-	spreadHeader   = []string{"model", "metric", "median", "q1", "q3", "neurons", "nan"}
+	spreadHeader   = []string{"model", "metric", "median", "q1", "q3", "neurons", "nan", "neurons_kept", "kept_by"}
 	perRecHeader   = append([]string{"recording"}, spreadHeader...)
-	pairsHeader    = []string{"metric", "model_a", "model_b", "share_a_higher", "w", "p", "n", "dropped", "method"}
+	pairsHeader    = []string{"metric", "model_a", "model_b", "share_a_higher", "w", "p", "n", "dropped", "method", "neurons_kept", "kept_by"}
 	recordingsRows = "median of recordings"
 )
 
@@ -355,7 +428,7 @@ func WriteSpreadTable(path string, rows []SpreadRow, withRecording bool) error {
 				lead = []string{r.Recording, r.Model, r.Metric}
 			}
 			s := r.Spread
-			if err := cw.Write(append(lead, g8(float64(s.Median)), g8(float64(s.Q1)), g8(float64(s.Q3)), strconv.Itoa(s.N), strconv.Itoa(s.NaN))); err != nil {
+			if err := cw.Write(append(lead, g8(float64(s.Median)), g8(float64(s.Q1)), g8(float64(s.Q3)), strconv.Itoa(s.N), strconv.Itoa(s.NaN), strconv.Itoa(s.Kept), s.KeptBy)); err != nil {
 				return err
 			}
 		}
@@ -394,6 +467,10 @@ func ReadSpreadTable(path string) ([]SpreadRow, error) {
 		if row.NaN, err = tb.int(i, k[6]); err != nil {
 			return nil, err
 		}
+		if row.Kept, err = tb.int(i, k[7]); err != nil {
+			return nil, err
+		}
+		row.KeptBy = r[k[8]]
 		rows[i] = row
 	}
 	return rows, nil
@@ -404,7 +481,7 @@ func ReadSpreadTable(path string) ([]SpreadRow, error) {
 func WritePairsTable(path string, pairs []PairTest) error {
 	return writeCSV(path, pairsHeader, func(cw *csv.Writer) error {
 		for _, pt := range pairs {
-			if err := cw.Write([]string{pt.Metric, pt.A, pt.B, g8(pt.ShareA), g8(pt.W), g8(pt.P), strconv.Itoa(pt.N), strconv.Itoa(pt.Dropped), pt.Method}); err != nil {
+			if err := cw.Write([]string{pt.Metric, pt.A, pt.B, g8(pt.ShareA), g8(pt.W), g8(pt.P), strconv.Itoa(pt.N), strconv.Itoa(pt.Dropped), pt.Method, strconv.Itoa(pt.Kept), pt.KeptBy}); err != nil {
 				return err
 			}
 		}
@@ -437,6 +514,10 @@ func ReadPairsTable(path string) ([]PairTest, error) {
 		if pt.Dropped, err = tb.int(i, k[7]); err != nil {
 			return nil, err
 		}
+		if pt.Kept, err = tb.int(i, k[9]); err != nil {
+			return nil, err
+		}
+		pt.KeptBy = r[k[10]]
 		out[i] = pt
 	}
 	return out, nil
@@ -487,10 +568,12 @@ func ReadComparison(dir string) (*ComparisonFolder, error) {
 	if err != nil {
 		return nil, err
 	}
-	c.Result = &Comparison{Models: ci.Models, Folds: ci.Folds, Neurons: n, Excluded: len(ci.Excluded), PerNeuron: avg, Summary: ci.Summary, Winner: ci.Winner}
+	c.Result = &Comparison{Models: ci.Models, Folds: ci.Folds, Neurons: n, Excluded: len(ci.Excluded), PerNeuron: avg.Scores, Summary: ci.Summary, Winner: ci.Winner,
+		Ceiling: avg.Ceiling, UsableFolds: avg.UsableFolds, FoldCeilings: ci.FoldCeilings, SplitHalfAll: avg.SplitHalfAll, MinReliability: ci.MinReliability,
+		Cautions: ci.Cautions, Warnings: ci.Warnings}
 	for _, p := range ci.Pairs {
 		c.Result.Pairs = append(c.Result.Pairs, PairTest{Metric: p.Metric, A: p.A, B: p.B, ShareA: float64(p.ShareA),
-			Wilcoxon: eval.Wilcoxon{W: float64(p.W), P: float64(p.P), N: p.N, Dropped: p.Dropped, Method: p.Method}})
+			Wilcoxon: eval.Wilcoxon{W: float64(p.W), P: float64(p.P), N: p.N, Dropped: p.Dropped, Method: p.Method}, Kept: p.Kept, KeptBy: p.KeptBy})
 	}
 	if c.FoldScores, c.Excluded, err = readFoldScores(filepath.Join(dir, FileFoldScores), n); err != nil {
 		return nil, err
@@ -513,7 +596,7 @@ func readFoldScores(path string, n int) ([]FoldScores, []string, error) {
 	if err != nil {
 		return nil, nil, err
 	}
-	fixed, err := tb.cols("model", "fold", "neuron", "excluded")
+	fixed, err := tb.cols("model", "fold", "neuron", "excluded", ColCeiling)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -533,7 +616,7 @@ func readFoldScores(path string, n int) ([]FoldScores, []string, error) {
 			if err != nil {
 				return nil, nil, err
 			}
-			fs := FoldScores{Model: r[fixed[0]], Fold: fold - 1, Cols: make([][]float64, len(ScoreColumns))}
+			fs := FoldScores{Model: r[fixed[0]], Fold: fold - 1, Cols: make([][]float64, len(ScoreColumns)), Ceiling: make([]string, n)}
 			for k := range fs.Cols {
 				fs.Cols[k] = make([]float64, n)
 			}
@@ -548,6 +631,9 @@ func readFoldScores(path string, n int) ([]FoldScores, []string, error) {
 			return nil, nil, fmt.Errorf("%s: line %d: want model %q, fold %d, neuron %d (rows grouped by model and fold, neurons in order)", path, i+2, fs.Model, fs.Fold+1, j)
 		}
 		excluded[j] = r[fixed[3]]
+		if fs.Ceiling[j], err = ceilingCode(tb, i, fixed[4]); err != nil {
+			return nil, nil, err
+		}
 		for q, k := range kc {
 			if fs.Cols[q][j], err = tb.float(i, k); err != nil {
 				return nil, nil, err
@@ -613,7 +699,9 @@ func NewAcross(cmps []*Comparison, pooled *Comparison) *Across {
 			for i, c := range cmps {
 				med[i] = float64(c.Summary[m][k].Median)
 			}
-			a.PerRecording = append(a.PerRecording, SpreadRow{Recording: recordingsRows, Model: m, Metric: k, Spread: spreadOf(eval.Summarize(med), 0)})
+			sp := spreadOf(eval.Summarize(med), 0)
+			sp.KeptBy = "recordings"
+			a.PerRecording = append(a.PerRecording, SpreadRow{Recording: recordingsRows, Model: m, Metric: k, Spread: sp})
 		}
 	}
 	return a

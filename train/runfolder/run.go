@@ -78,6 +78,20 @@ type AxisInfo struct {
 	Encoding train.Encoding `json:"encoding"`
 	Edges    []float64      `json:"bin_edges"`
 	Centers  []float64      `json:"bin_centers"`
+	// Values is the stimulus value of each condition (train.Prepared.Values):
+	// the bin centres on an axis centred on a discrete stimulus, the trials'
+	// mean values where bins pool several values. Absent in folders of
+	// earlier versions: use ConditionValues.
+	Values []float64 `json:"condition_values,omitempty"`
+}
+
+// ConditionValues returns Values, or the bin centres when the folder has
+// none.
+func (a AxisInfo) ConditionValues() []float64 {
+	if len(a.Values) == a.Bins && a.Bins > 0 {
+		return a.Values
+	}
+	return a.Centers
 }
 
 // DataAxis is the axis as a data.Axis.
@@ -88,7 +102,7 @@ func (a AxisInfo) DataAxis() data.Axis {
 // AxisOf records the axis of a prepared recording.
 func AxisOf(p *train.Prepared) AxisInfo {
 	return AxisInfo{Name: p.Axis.Name, Unit: p.Axis.Unit, Min: p.Axis.Min, Max: p.Axis.Max, Periodic: p.Axis.Periodic,
-		Bins: p.NBins, Encoding: p.Cfg.Axis.Encoding, Edges: p.Axis.Edges(), Centers: p.Axis.Centers()}
+		Bins: p.NBins, Encoding: p.Cfg.Axis.Encoding, Edges: p.Axis.Edges(), Centers: p.Axis.Centers(), Values: p.Values}
 }
 
 // SplitInfo is split.json: the trial indices (0-based) of each part and
@@ -101,34 +115,100 @@ type SplitInfo struct {
 }
 
 // Spread is the median and quartiles of a per-neuron column over the
-// scored neurons; NaN counts the neurons where the column is undefined.
+// neurons kept for it; NaN counts the kept neurons where the column is
+// undefined, so N + NaN = Kept. KeptBy says which neurons were kept:
+// KeptScored ("scored": every neuron not excluded) for the trial-level
+// scores and the ceilings, ReliableRule(min) for the ratio scores.
 type Spread struct {
-	Median Num `json:"median"`
-	Q1     Num `json:"q1"`
-	Q3     Num `json:"q3"`
-	N      int `json:"n"`
-	NaN    int `json:"nan"`
+	Median Num    `json:"median"`
+	Q1     Num    `json:"q1"`
+	Q3     Num    `json:"q3"`
+	N      int    `json:"n"`
+	NaN    int    `json:"nan"`
+	Kept   int    `json:"neurons_kept"`
+	KeptBy string `json:"kept_by"`
 }
 
-// spreadOf converts eval's summary; nanOffset is subtracted from its NaN
-// count (neurons excluded from every score are not undefined scores).
+// KeptScored is Spread.KeptBy of a summary over every scored neuron.
+const KeptScored = "scored"
+
+// ReliableRule is Spread.KeptBy of a summary over the neurons whose
+// split-half reliability over all trials is at least min:
+// "split_half_all >= 0.3"; KeptScored when min <= -1 (see IsReliable).
+func ReliableRule(min float64) string {
+	if min <= -1 {
+		return KeptScored
+	}
+	return "split_half_all >= " + strconv.FormatFloat(min, 'g', -1, 64)
+}
+
+// IsReliable reports whether a neuron with split-half reliability r (over
+// all trials) enters the ratio summaries at threshold min: r >= min, and
+// every neuron, NaN included, when min <= -1 (scores.min_reliability: -1
+// keeps every neuron; Spearman-Brown steps a negative correlation below -1,
+// so r >= -1 alone would not).
+func IsReliable(r, min float64) bool { return min <= -1 || r >= min }
+
+// RatioColumns are the score columns divided by a noise-ceiling estimate.
+// Their summaries, pair tests and figures use only the reliable neurons
+// (split_half_all >= scores.min_reliability); the other columns use every
+// scored neuron.
+var RatioColumns = []string{"fev", "cc_norm", "spe"}
+
+// IsRatio reports whether a score column is in RatioColumns.
+func IsRatio(col string) bool {
+	for _, c := range RatioColumns {
+		if c == col {
+			return true
+		}
+	}
+	return false
+}
+
+// spreadOf converts eval's summary of kept neurons; nanOffset is
+// subtracted from its NaN count (neurons excluded from every score are not
+// undefined scores).
 func spreadOf(s eval.Summary, nanOffset int) Spread {
-	return Spread{Median: Num(s.Median), Q1: Num(s.Q1), Q3: Num(s.Q3), N: s.N, NaN: s.NaN - nanOffset}
+	return Spread{Median: Num(s.Median), Q1: Num(s.Q1), Q3: Num(s.Q3), N: s.N, NaN: s.NaN - nanOffset, Kept: s.N + s.NaN - nanOffset}
+}
+
+// SpreadOver summarises v over the neurons where keep is true (all when
+// keep is nil), recording keptBy.
+func SpreadOver(v []float64, keep []bool, keptBy string) Spread {
+	sel := v
+	if keep != nil {
+		sel = make([]float64, 0, len(v))
+		for j, x := range v {
+			if keep[j] {
+				sel = append(sel, x)
+			}
+		}
+	}
+	sp := spreadOf(eval.Summarize(sel), 0)
+	sp.KeptBy = keptBy
+	return sp
 }
 
 // Summary is summary.json.
 type Summary struct {
-	Neurons     int               `json:"neurons"`
-	Scored      int               `json:"neurons_scored"`
-	Excluded    int               `json:"neurons_excluded"`
-	NoSignal    int               `json:"neurons_no_signal_power"`
-	Medians     map[string]Num    `json:"medians"`
-	Spread      map[string]Spread `json:"spread"`
-	TestTrials  int               `json:"test_trials"`
-	BestEpoch   int               `json:"best_epoch"`
-	Epochs      int               `json:"epochs"`
-	Stop        string            `json:"stop"`
-	WallSeconds float64           `json:"wall_seconds"`
+	Neurons  int `json:"neurons"`
+	Scored   int `json:"neurons_scored"`
+	Excluded int `json:"neurons_excluded"`
+	// Ceilings counts the scored neurons by noise-ceiling verdict
+	// (eval.Ceiling codes: usable, no_repeats, no_signal_power,
+	// signal_not_significant); only "usable" ones have ratio scores.
+	Ceilings map[string]int `json:"ceiling_verdicts"`
+	// Reliable counts the scored neurons with split_half_all >=
+	// MinReliability: the neurons of the ratio scores' summaries.
+	Reliable       int               `json:"neurons_reliable"`
+	MinReliability float64           `json:"min_reliability"`
+	Medians        map[string]Num    `json:"medians"`
+	Spread         map[string]Spread `json:"spread"`
+	TestTrials     int               `json:"test_trials"`
+	BestEpoch      int               `json:"best_epoch"`
+	Epochs         int               `json:"epochs"`
+	Stop           string            `json:"stop"`
+	WallSeconds    float64           `json:"wall_seconds"`
 	// Solver is the solver that ran (auto resolved).
 	Solver string `json:"solver"`
 	// ReadoutL2 is the readout penalty: the config's number, or the one
@@ -140,52 +220,114 @@ type Summary struct {
 }
 
 // ScoreColumns are the per-neuron score columns of neuron_scores.csv and
-// fold_scores.csv, in order.
-var ScoreColumns = []string{"test_r2", "test_r", "explainable_fraction", "fev", "cc_abs", "cc_max", "cc_norm", "spe", "split_half"}
+// fold_scores.csv, in order. split_half_test is the split-half reliability
+// of the scored (test) trials; the reliability over all trials is the
+// separate column split_half_all.
+var ScoreColumns = []string{"test_r2", "test_r", "explainable_fraction", "fev", "cc_abs", "cc_max", "cc_norm", "spe", "split_half_test"}
 
 // ScoreValues returns s's values in the order of ScoreColumns.
 func ScoreValues(s eval.Scores) []float64 {
 	return []float64{s.TestR2, s.TestR, s.ExplainableFraction, s.FEV, s.CCAbs, s.CCMax, s.CCNorm, s.SPE, s.SplitHalf}
 }
 
-// Summarize builds the summary of per-neuron scores; excluded neurons are
-// left out of the medians.
-func Summarize(scores []eval.Scores, excluded map[int]string) Summary {
-	s := Summary{Neurons: len(scores), Excluded: len(excluded), Medians: map[string]Num{}, Spread: map[string]Spread{}}
-	cols := make([][]float64, len(ScoreColumns))
-	for j, sc := range scores {
-		if _, ok := excluded[j]; ok {
+// CeilingCounts counts verdicts by code over the neurons not excluded
+// (every code present, 0 when none).
+func CeilingCounts(verdicts []eval.Ceiling, excluded func(j int) bool) map[string]int {
+	m := map[string]int{}
+	for c := eval.CeilingUsable; c <= eval.CeilingNotSignificant; c++ {
+		m[c.String()] = 0
+	}
+	for j, c := range verdicts {
+		if excluded == nil || !excluded(j) {
+			m[c.String()]++
+		}
+	}
+	return m
+}
+
+// Summarize builds the summary of per-neuron scores: excluded neurons are
+// left out of every summary; the ratio columns (RatioColumns) are
+// summarised over the scored neurons with reliability >= minRel only, the
+// other columns over every scored neuron. verdicts (the ceilings of
+// scores) and reliability (split_half_all) have one value per neuron;
+// reliability nil keeps every scored neuron. The caller sets Cautions
+// (train.CautionsFor of the scored trials) and the fit's fields.
+func Summarize(scores []eval.Scores, excluded map[int]string, verdicts []eval.Ceiling, reliability []float64, minRel float64) Summary {
+	n := len(scores)
+	s := Summary{Neurons: n, Excluded: len(excluded), Medians: map[string]Num{}, Spread: map[string]Spread{}, MinReliability: minRel}
+	isEx := func(j int) bool { _, ok := excluded[j]; return ok }
+	if verdicts != nil {
+		s.Ceilings = CeilingCounts(verdicts, isEx)
+	}
+	scored := make([]bool, n)
+	reliable := make([]bool, n)
+	for j := range scores {
+		if isEx(j) {
 			continue
 		}
+		scored[j] = true
 		s.Scored++
-		if !(sc.SP > 0) {
-			s.NoSignal++
+		reliable[j] = reliability == nil || IsReliable(reliability[j], minRel)
+		if reliable[j] {
+			s.Reliable++
 		}
+	}
+	cols := make([][]float64, len(ScoreColumns))
+	for k := range cols {
+		cols[k] = make([]float64, n)
+	}
+	for j, sc := range scores {
 		for k, v := range ScoreValues(sc) {
-			cols[k] = append(cols[k], v)
+			cols[k][j] = v
 		}
 	}
 	for k, name := range ScoreColumns {
-		sm := eval.Summarize(cols[k])
-		s.Medians[name] = Num(sm.Median)
-		s.Spread[name] = spreadOf(sm, 0)
+		vals := cols[k]
+		sp := SpreadOver(vals, scored, KeptScored)
+		if IsRatio(name) {
+			sp = SpreadOver(vals, reliable, ReliableRule(minRel))
+		}
+		s.Medians[name] = sp.Median
+		s.Spread[name] = sp
 	}
-	s.Cautions = train.Cautions
+	if reliability != nil {
+		sp := SpreadOver(reliability, scored, KeptScored)
+		s.Medians[ColSplitHalfAll] = sp.Median
+		s.Spread[ColSplitHalfAll] = sp
+	}
 	return s
 }
 
+// Columns of neuron_scores.csv (and fold tables) beside ScoreColumns.
+const (
+	// ColCeiling is the noise-ceiling verdict on the scored trials, an
+	// eval.Ceiling code ("" for an excluded neuron).
+	ColCeiling = "ceiling"
+	// ColSplitHalfAll is the split-half reliability over all trials of the
+	// recording (train.Reliability).
+	ColSplitHalfAll = "split_half_all"
+)
+
 // NeuronScores is neuron_scores.csv: one row per neuron with its name
 // (empty when the recording names none), its scores (NaN for an excluded
-// neuron) and the reason it was excluded (empty when scored).
+// neuron), its noise-ceiling verdict, its split-half reliability over all
+// trials and the reason it was excluded (empty when scored).
 type NeuronScores struct {
 	Names []string
 	// Cols[k][j] is column ScoreColumns[k] of neuron j.
-	Cols     [][]float64
-	Excluded []string
+	Cols [][]float64
+	// Ceiling[j] is neuron j's eval.Ceiling code ("" when excluded).
+	Ceiling []string
+	// SplitHalfAll[j] is neuron j's reliability over all trials.
+	SplitHalfAll []float64
+	Excluded     []string
 }
 
 // Col returns the column called name, or nil.
 func (t *NeuronScores) Col(name string) []float64 {
+	if name == ColSplitHalfAll {
+		return t.SplitHalfAll
+	}
 	for k, c := range ScoreColumns {
 		if c == name {
 			return t.Cols[k]
@@ -194,10 +336,25 @@ func (t *NeuronScores) Col(name string) []float64 {
 	return nil
 }
 
-// NewNeuronScores builds the table of a fit's scores.
-func NewNeuronScores(names []string, scores []eval.Scores, excluded map[int]string) *NeuronScores {
+// Reliable marks the scored neurons that IsReliable at min and returns
+// how many.
+func (t *NeuronScores) Reliable(min float64) ([]bool, int) {
+	keep := make([]bool, len(t.SplitHalfAll))
+	n := 0
+	for j, r := range t.SplitHalfAll {
+		keep[j] = t.Excluded[j] == "" && IsReliable(r, min)
+		if keep[j] {
+			n++
+		}
+	}
+	return keep, n
+}
+
+// NewNeuronScores builds the table of a fit's scores; verdicts and
+// reliability have one value per neuron (nil: "" and NaN).
+func NewNeuronScores(names []string, scores []eval.Scores, excluded map[int]string, verdicts []eval.Ceiling, reliability []float64) *NeuronScores {
 	n := len(scores)
-	t := &NeuronScores{Names: make([]string, n), Cols: make([][]float64, len(ScoreColumns)), Excluded: make([]string, n)}
+	t := &NeuronScores{Names: make([]string, n), Cols: make([][]float64, len(ScoreColumns)), Ceiling: make([]string, n), SplitHalfAll: make([]float64, n), Excluded: make([]string, n)}
 	for k := range t.Cols {
 		t.Cols[k] = make([]float64, n)
 	}
@@ -213,6 +370,13 @@ func NewNeuronScores(names []string, scores []eval.Scores, excluded map[int]stri
 			}
 			t.Cols[k][j] = v
 		}
+		t.SplitHalfAll[j] = math.NaN()
+		if reliability != nil && !ex {
+			t.SplitHalfAll[j] = reliability[j]
+		}
+		if verdicts != nil && !ex {
+			t.Ceiling[j] = verdicts[j].String()
+		}
 	}
 	return t
 }
@@ -220,7 +384,7 @@ func NewNeuronScores(names []string, scores []eval.Scores, excluded map[int]stri
 // WriteNeuronScores writes neuron_scores.csv into dir.
 func WriteNeuronScores(dir string, t *NeuronScores) error {
 	path := filepath.Join(dir, FileNeuronScores)
-	header := append(append([]string{"neuron", "name"}, ScoreColumns...), "excluded")
+	header := append(append([]string{"neuron", "name"}, ScoreColumns...), ColCeiling, ColSplitHalfAll, "excluded")
 	return writeCSV(path, header, func(cw *csv.Writer) error {
 		row := make([]string, len(header))
 		for j := range t.Names {
@@ -228,6 +392,7 @@ func WriteNeuronScores(dir string, t *NeuronScores) error {
 			for k := range ScoreColumns {
 				row[2+k] = g8(t.Cols[k][j])
 			}
+			row[len(row)-3], row[len(row)-2] = t.Ceiling[j], g8(t.SplitHalfAll[j])
 			row[len(row)-1] = t.Excluded[j]
 			if err := cw.Write(row); err != nil {
 				return err
@@ -253,11 +418,11 @@ func ReadNeuronScores(dir string, n int) (*NeuronScores, error) {
 	if err != nil {
 		return nil, err
 	}
-	fixed, err := tb.cols("neuron", "name", "excluded")
+	fixed, err := tb.cols("neuron", "name", "excluded", ColCeiling, ColSplitHalfAll)
 	if err != nil {
 		return nil, err
 	}
-	t := &NeuronScores{Names: make([]string, n), Cols: make([][]float64, len(ScoreColumns)), Excluded: make([]string, n)}
+	t := &NeuronScores{Names: make([]string, n), Cols: make([][]float64, len(ScoreColumns)), Ceiling: make([]string, n), SplitHalfAll: make([]float64, n), Excluded: make([]string, n)}
 	for k := range t.Cols {
 		t.Cols[k] = make([]float64, n)
 	}
@@ -270,6 +435,12 @@ func ReadNeuronScores(dir string, n int) (*NeuronScores, error) {
 			return nil, fmt.Errorf("%s: line %d: neuron %d, want %d (rows in neuron order)", path, i+2, j, i)
 		}
 		t.Names[i], t.Excluded[i] = r[fixed[1]], r[fixed[2]]
+		if t.Ceiling[i], err = ceilingCode(tb, i, fixed[3]); err != nil {
+			return nil, err
+		}
+		if t.SplitHalfAll[i], err = tb.float(i, fixed[4]); err != nil {
+			return nil, err
+		}
 		for q, k := range kc {
 			if t.Cols[q][i], err = tb.float(i, k); err != nil {
 				return nil, err
@@ -394,14 +565,18 @@ func WriteModel(dir string, p *train.Prepared, f *train.Fitted) error {
 }
 
 // WriteResults writes neuron_scores.csv and summary.json from the scores of
-// the test trials; wall is the time the fit took up to the scores. It
+// the test trials (gated by train.Ceilings, with every neuron's
+// train.Reliability); wall is the time the fit took up to the scores. It
 // does not finish the folder: call Finish after it.
 func WriteResults(dir string, p *train.Prepared, f *train.Fitted, scores []eval.Scores, wall time.Duration) (*Summary, error) {
 	ex := train.ExcludedNeurons(p)
-	if err := WriteNeuronScores(dir, NewNeuronScores(p.Rec.Neurons, scores, ex)); err != nil {
+	verdicts := train.Ceilings(p, scores)
+	rel := train.Reliability(p)
+	if err := WriteNeuronScores(dir, NewNeuronScores(p.Rec.Neurons, scores, ex, verdicts, rel)); err != nil {
 		return nil, err
 	}
-	sum := Summarize(scores, ex)
+	sum := Summarize(scores, ex, verdicts, rel, p.Cfg.Scores.MinReliability)
+	sum.Cautions = train.CautionsFor(p.TrialsPerCondition(p.Test))
 	sum.TestTrials = len(p.Test)
 	sum.BestEpoch, sum.Epochs, sum.Stop = f.BestEpoch, len(f.Log), f.Stop
 	sum.WallSeconds = wall.Seconds()
@@ -569,4 +744,18 @@ func RemoveResumeState(dir string) error {
 		return err
 	}
 	return nil
+}
+
+// ceilingCode reads row i's column k as an eval.Ceiling code, or "".
+func ceilingCode(tb *table, i, k int) (string, error) {
+	v := tb.rows[i][k]
+	if v == "" {
+		return v, nil
+	}
+	for c := eval.CeilingUsable; c <= eval.CeilingNotSignificant; c++ {
+		if v == c.String() {
+			return v, nil
+		}
+	}
+	return "", fmt.Errorf("%s: line %d, column %s: %q is not a noise-ceiling verdict (usable, no_repeats, no_signal_power, signal_not_significant)", tb.path, i+2, tb.header[k], v)
 }

@@ -170,7 +170,13 @@ func TestNeuronScoresOddNames(t *testing.T) {
 	ex := map[int]string{2: "constant response over all trials", 4: `odd, "why"` + "\n"}
 	dir := t.TempDir()
 	path := filepath.Join(dir, FileNeuronScores)
-	want := NewNeuronScores(oddNames, scores, ex)
+	verdicts := make([]eval.Ceiling, n)
+	rel := make([]float64, n)
+	for j := range verdicts {
+		verdicts[j] = eval.Ceiling(j % 4)
+		rel[j] = math.Sqrt(float64(j)) / 3
+	}
+	want := NewNeuronScores(oddNames, scores, ex, verdicts, rel)
 	if err := WriteNeuronScores(dir, want); err != nil {
 		t.Fatal(err)
 	}
@@ -193,6 +199,15 @@ func TestNeuronScoresOddNames(t *testing.T) {
 	for j := range oddNames {
 		if w := strings.ReplaceAll(want.Names[j], "\r\n", "\n"); got.Names[j] != w || got.Excluded[j] != want.Excluded[j] {
 			t.Errorf("neuron %d: name %q excluded %q, want %q %q", j, got.Names[j], got.Excluded[j], w, want.Excluded[j])
+		}
+	}
+	for j := range verdicts {
+		wantCode, wantRel := verdicts[j].String(), rel[j]
+		if _, isEx := ex[j]; isEx {
+			wantCode, wantRel = "", math.NaN()
+		}
+		if got.Ceiling[j] != wantCode || !(math.Abs(got.SplitHalfAll[j]-wantRel) <= 5e-8*wantRel || math.IsNaN(wantRel) && math.IsNaN(got.SplitHalfAll[j])) {
+			t.Errorf("neuron %d: ceiling %q split_half_all %v, want %q %v", j, got.Ceiling[j], got.SplitHalfAll[j], wantCode, wantRel)
 		}
 	}
 	// Scores read back to 8 significant digits; an excluded neuron is NaN.
@@ -385,7 +400,17 @@ func sampleComparison(n, nb int) *ComparisonFolder {
 	excluded[1] = "constant response over all trials"
 	c := &ComparisonFolder{Settings: []byte("seed: 1\n"), Excluded: excluded, Curves: map[string][]float64{}}
 	c.Result = &Comparison{Models: models, Folds: 2, Neurons: n, Excluded: 1, PerNeuron: map[string]map[string][]float64{},
-		Summary: map[string]map[string]Spread{}, Winner: map[string]string{}}
+		Summary: map[string]map[string]Spread{}, Winner: map[string]string{},
+		Ceiling: make([]string, n), UsableFolds: make([]int, n), SplitHalfAll: make([]float64, n), MinReliability: 0.3}
+	for j := 0; j < n; j++ {
+		c.Result.SplitHalfAll[j] = math.Sqrt(float64(j)) / 2.7
+		if j == 1 {
+			c.Result.SplitHalfAll[j] = math.NaN()
+			continue
+		}
+		c.Result.Ceiling[j] = eval.Ceiling(j % 4).String()
+		c.Result.UsableFolds[j] = j % 3
+	}
 	for mi, m := range models {
 		c.Result.PerNeuron[m] = map[string][]float64{}
 		c.Result.Summary[m] = map[string]Spread{}
@@ -399,9 +424,16 @@ func sampleComparison(n, nb int) *ComparisonFolder {
 		}
 		for _, k := range CompareMetrics {
 			c.Result.Summary[m][k] = spreadOf(eval.Summarize(c.Result.PerNeuron[m][k]), 1)
+			c.Result.Summary[m][k] = Spread{Median: c.Result.Summary[m][k].Median, Q1: c.Result.Summary[m][k].Q1, Q3: c.Result.Summary[m][k].Q3,
+				N: c.Result.Summary[m][k].N, NaN: c.Result.Summary[m][k].NaN, Kept: c.Result.Summary[m][k].Kept, KeptBy: ReliableRule(0.3)}
 		}
 		for f := 0; f < 2; f++ {
-			fs := FoldScores{Model: m, Fold: f, Cols: make([][]float64, len(ScoreColumns))}
+			fs := FoldScores{Model: m, Fold: f, Cols: make([][]float64, len(ScoreColumns)), Ceiling: make([]string, n)}
+			for j := range fs.Ceiling {
+				if j != 1 {
+					fs.Ceiling[j] = eval.Ceiling((j + f) % 4).String()
+				}
+			}
 			for k := range fs.Cols {
 				fs.Cols[k] = make([]float64, n)
 				for j := range fs.Cols[k] {
@@ -415,7 +447,7 @@ func sampleComparison(n, nb int) *ComparisonFolder {
 	for _, k := range CompareMetrics {
 		c.Result.Winner[k] = models[0]
 		w := eval.WilcoxonSignedRank(c.Result.PerNeuron[models[0]][k], c.Result.PerNeuron[models[1]][k])
-		c.Result.Pairs = append(c.Result.Pairs, PairTest{Metric: k, A: models[0], B: models[1], ShareA: 2.0 / 3, Wilcoxon: w})
+		c.Result.Pairs = append(c.Result.Pairs, PairTest{Metric: k, A: models[0], B: models[1], ShareA: 2.0 / 3, Wilcoxon: w, Kept: n - 1, KeptBy: KeptScored})
 	}
 	centers := make([]float64, nb)
 	for b := range centers {
@@ -489,7 +521,7 @@ func TestComparisonRoundTrip(t *testing.T) {
 	}
 	for _, r := range spreads {
 		w := c.Result.Summary[r.Model][r.Metric]
-		if !close8(float64(r.Median), float64(w.Median)) || !close8(float64(r.Q3), float64(w.Q3)) || r.N != w.N || r.NaN != w.NaN {
+		if !close8(float64(r.Median), float64(w.Median)) || !close8(float64(r.Q3), float64(w.Q3)) || r.N != w.N || r.NaN != w.NaN || r.Kept != w.Kept || r.KeptBy != w.KeptBy {
 			t.Errorf("model_summary.csv %s %s: %+v, want %+v", r.Model, r.Metric, r.Spread, w)
 		}
 	}
@@ -499,7 +531,7 @@ func TestComparisonRoundTrip(t *testing.T) {
 	}
 	for i, pt := range pairs {
 		w := c.Result.Pairs[i]
-		if pt.A != w.A || pt.B != w.B || pt.Metric != w.Metric || !close8(pt.P, w.P) || !close8(pt.ShareA, w.ShareA) || pt.N != w.N || pt.Method != w.Method {
+		if pt.A != w.A || pt.B != w.B || pt.Metric != w.Metric || !close8(pt.P, w.P) || !close8(pt.ShareA, w.ShareA) || pt.N != w.N || pt.Method != w.Method || pt.Kept != w.Kept || pt.KeptBy != w.KeptBy {
 			t.Errorf("model_pairs.csv row %d: %+v, want %+v", i, pt, w)
 		}
 	}
@@ -512,6 +544,14 @@ func TestComparisonRoundTrip(t *testing.T) {
 					t.Fatalf("%s %s neuron %d: read back %v, wrote %v", m, col, j, g[j], w[j])
 				}
 			}
+		}
+	}
+	if !slices.Equal(back.Result.Ceiling, c.Result.Ceiling) || !slices.Equal(back.Result.UsableFolds, c.Result.UsableFolds) || !slices.Equal(back.FoldScores[2].Ceiling, c.FoldScores[2].Ceiling) {
+		t.Errorf("verdicts read back: %v %v %v, want %v %v %v", back.Result.Ceiling, back.Result.UsableFolds, back.FoldScores[2].Ceiling, c.Result.Ceiling, c.Result.UsableFolds, c.FoldScores[2].Ceiling)
+	}
+	for j, w := range c.Result.SplitHalfAll {
+		if g := back.Result.SplitHalfAll[j]; g != w && !(math.IsNaN(g) && math.IsNaN(w)) {
+			t.Errorf("split_half_all of neuron %d read back %v, wrote %v", j, g, w)
 		}
 	}
 	if len(back.FoldScores) != 4 || back.FoldScores[3].Model != `base "q"` || back.FoldScores[3].Fold != 1 || back.Excluded[1] == "" {
@@ -603,5 +643,42 @@ func TestKind(t *testing.T) {
 	os.WriteFile(filepath.Join(dir, "config.yaml"), []byte("seed: 1\n"), 0o644)
 	if _, err := Open(dir); err == nil || !strings.Contains(err.Error(), "written by an older stria") {
 		t.Errorf("an old folder: %v", err)
+	}
+}
+
+// TestSummarizeKeeps checks the neurons each summary keeps (numbers by
+// hand): ratio columns over the reliable scored neurons, the rest over the
+// scored ones, verdicts counted over the scored neurons.
+func TestSummarizeKeeps(t *testing.T) {
+	nan := math.NaN()
+	scores := []eval.Scores{
+		{TestR2: 0.1, FEV: 0.5, CCNorm: 0.9, SPE: 0.4},
+		{TestR2: 0.2, FEV: nan, CCNorm: nan, SPE: nan}, // ceiling not usable
+		{TestR2: 0.3, FEV: -40, CCNorm: 7, SPE: -40},   // unreliable: left out of the ratio summaries
+		{TestR2: 0.4, FEV: 0.7, CCNorm: 1.0, SPE: 0.6},
+		{TestR2: 9, FEV: 9, CCNorm: 9, SPE: 9}, // excluded
+	}
+	verdicts := []eval.Ceiling{eval.CeilingUsable, eval.CeilingNotSignificant, eval.CeilingUsable, eval.CeilingUsable, eval.CeilingNoSignal}
+	rel := []float64{0.8, 0.5, 0.1, 0.9, nan}
+	s := Summarize(scores, map[int]string{4: "constant"}, verdicts, rel, 0.3)
+	if s.Scored != 4 || s.Reliable != 3 || s.Ceilings["usable"] != 3 || s.Ceilings["signal_not_significant"] != 1 || s.Ceilings["no_signal_power"] != 0 {
+		t.Errorf("scored %d reliable %d verdicts %v, want 4, 3, usable 3 and signal_not_significant 1", s.Scored, s.Reliable, s.Ceilings)
+	}
+	// fev over neurons 0, 1, 3: values 0.5, NaN, 0.7.
+	if f := s.Spread["fev"]; float64(f.Median) != 0.6 || f.N != 2 || f.NaN != 1 || f.Kept != 3 || f.KeptBy != "split_half_all >= 0.3" {
+		t.Errorf("fev spread %+v, want median 0.6, n 2, nan 1, kept 3 by split_half_all >= 0.3", f)
+	}
+	if r := s.Spread["test_r2"]; float64(r.Median) != 0.25 || r.Kept != 4 || r.KeptBy != KeptScored {
+		t.Errorf("test_r2 spread %+v, want median 0.25 over the 4 scored", r)
+	}
+	if a := s.Spread[ColSplitHalfAll]; float64(a.Median) != 0.65 || a.Kept != 4 {
+		t.Errorf("split_half_all spread %+v, want median 0.65 over 4", a)
+	}
+	// -1 keeps every scored neuron, even one whose Spearman-Brown
+	// reliability is below -1 or NaN.
+	rel[0], rel[1] = -3, nan
+	s = Summarize(scores, map[int]string{4: "constant"}, verdicts, rel, -1)
+	if f := s.Spread["fev"]; f.Kept != 4 || f.KeptBy != KeptScored || s.Reliable != 4 {
+		t.Errorf("min_reliability -1: fev spread %+v, reliable %d, want all 4 scored kept", f, s.Reliable)
 	}
 }
