@@ -141,10 +141,15 @@ func inspectProblems(w io.Writer, problems []string, hint string) error {
 	for _, p := range problems {
 		fmt.Fprintln(w, "problem:", p)
 	}
-	if len(problems) > 0 {
-		return fmt.Errorf("inspect: %d problem(s) above would stop stria fit with this config", len(problems))
+	switch len(problems) {
+	case 0:
+		return nil
+	case 1:
+		// The error repeats it: scripts and logs that keep only the
+		// error still see which file, trial or neuron is at fault.
+		return fmt.Errorf("inspect: this would stop stria fit: %s", problems[0])
 	}
-	return nil
+	return fmt.Errorf("inspect: %d problems above would stop stria fit with this config; the first: %s", len(problems), problems[0])
 }
 
 // printStimulus prints the range of the stimulus values and, when they
