@@ -66,7 +66,7 @@ func testAccumulateParts(t *testing.T, T, N int) {
 	const B = 8
 	y, cond, path := streamCase(t, T, N, B)
 	rng := rand.New(rand.NewPCG(3, 4))
-	var train, val, test, unused []int
+	var train, val, test []int
 	for r := 0; r < T; r++ {
 		switch k := rng.IntN(10); {
 		case k < 6:
@@ -75,8 +75,7 @@ func testAccumulateParts(t *testing.T, T, N int) {
 			val = append(val, r)
 		case k < 9:
 			test = append(test, r)
-		default:
-			unused = append(unused, r)
+		default: // in no part: not read
 		}
 	}
 	part, err := PartOf(T, train, val, test)

@@ -341,7 +341,3 @@ func CheckEmptiable(dir string) error {
 	return nil
 }
 
-func exists(path string) bool {
-	_, err := os.Stat(path)
-	return err == nil
-}
