@@ -340,4 +340,3 @@ func CheckEmptiable(dir string) error {
 	}
 	return nil
 }
-
