@@ -82,7 +82,6 @@ model:
       border: circular
   output: identity
   loss: mse
-  readout_l2: 1.0
 train:
   optimizer: adam
   learning_rate: 0.01
