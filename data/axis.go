@@ -5,8 +5,8 @@ import (
 	"math"
 )
 
-// maxBins caps the number of stimulus bins an axis may declare.
-const maxBins = 100000
+// MaxBins caps the number of stimulus bins an axis may declare.
+const MaxBins = 100000
 
 // Axis is the stimulus axis declared in the config, cut into equal bins.
 //
@@ -50,8 +50,8 @@ func (a Axis) Validate() error {
 		return fmt.Errorf("data: set only one of axis.bins (%d) and axis.bin_width (%g)", a.Bins, a.BinWidth)
 	case a.Bins == 0 && a.BinWidth == 0:
 		return fmt.Errorf("data: set one of axis.bins and axis.bin_width")
-	case a.Bins > maxBins:
-		return fmt.Errorf("data: axis.bins %d is more than %d", a.Bins, maxBins)
+	case a.Bins > MaxBins:
+		return fmt.Errorf("data: axis.bins %d is more than %d", a.Bins, MaxBins)
 	case a.BinWidth > 0:
 		r := a.Max - a.Min
 		q := r / a.BinWidth
@@ -59,8 +59,8 @@ func (a Axis) Validate() error {
 		if n < 1 || math.Abs(n*a.BinWidth-r) > 1e-9*r {
 			return fmt.Errorf("data: axis.bin_width %g does not divide the range %g..%g (%.4g bins)", a.BinWidth, a.Min, a.Max, q)
 		}
-		if n > maxBins {
-			return fmt.Errorf("data: axis.bin_width %g gives %g bins, more than %d", a.BinWidth, n, maxBins)
+		if n > MaxBins {
+			return fmt.Errorf("data: axis.bin_width %g gives %g bins, more than %d", a.BinWidth, n, MaxBins)
 		}
 	}
 	return nil

@@ -11,6 +11,8 @@ import (
 	"slices"
 	"strings"
 	"testing"
+
+	"github.com/strialab/stria/data/format"
 )
 
 // The bad-input catalogue: every way a recording can be wrong that stria
@@ -43,12 +45,12 @@ type badInput struct {
 // npyRaw is an .npy file with the header of descr and shape and the given
 // data bytes (which may disagree with the header).
 func npyRaw(descr string, shape []int, data []byte) []byte {
-	return append(npyHeaderBytes(descr, shape), data...)
+	return append(format.NPYHeaderBytes(descr, shape), data...)
 }
 
 // npy32 is a little-endian float32 .npy of the given shape.
 func npy32(shape []int, v ...float32) []byte {
-	b := npyHeaderBytes("<f4", shape)
+	b := format.NPYHeaderBytes("<f4", shape)
 	for _, x := range v {
 		b = binary.LittleEndian.AppendUint32(b, math.Float32bits(x))
 	}
@@ -57,7 +59,7 @@ func npy32(shape []int, v ...float32) []byte {
 
 // npy64 is a little-endian float64 .npy vector.
 func npy64(v ...float64) []byte {
-	b := npyHeaderBytes("<f8", []int{len(v)})
+	b := format.NPYHeaderBytes("<f8", []int{len(v)})
 	for _, x := range v {
 		b = binary.LittleEndian.AppendUint64(b, math.Float64bits(x))
 	}

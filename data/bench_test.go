@@ -2,9 +2,10 @@ package data
 
 import (
 	"fmt"
-	"math/rand/v2"
 	"path/filepath"
 	"testing"
+
+	"github.com/strialab/stria/data/format"
 )
 
 // npySizes is the ladder for the .npy benchmarks, up to a 4600 x 24000
@@ -19,7 +20,7 @@ func benchFile(b *testing.B, rows, cols int, f64 bool) string {
 		for i := range d {
 			d[i] = float64(i % 1000)
 		}
-		if err := WriteNPY64(p, []int{rows, cols}, d); err != nil {
+		if err := format.WriteNPY64(p, []int{rows, cols}, d); err != nil {
 			b.Fatal(err)
 		}
 		return p
@@ -28,7 +29,7 @@ func benchFile(b *testing.B, rows, cols int, f64 bool) string {
 	for i := range d {
 		d[i] = float32(i % 1000)
 	}
-	if err := WriteNPY(p, []int{rows, cols}, d); err != nil {
+	if err := format.WriteNPY(p, []int{rows, cols}, d); err != nil {
 		b.Fatal(err)
 	}
 	return p
@@ -47,7 +48,7 @@ func BenchmarkReadNPY(b *testing.B) {
 			b.ReportAllocs()
 			b.ResetTimer()
 			for i := 0; i < b.N; i++ {
-				if _, err := ReadNPY(p); err != nil {
+				if _, err := format.ReadNPY(p); err != nil {
 					b.Fatal(err)
 				}
 			}
@@ -60,7 +61,7 @@ func BenchmarkReadNPY(b *testing.B) {
 		b.ReportAllocs()
 		b.ResetTimer()
 		for i := 0; i < b.N; i++ {
-			if _, err := ReadNPY(p); err != nil {
+			if _, err := format.ReadNPY(p); err != nil {
 				b.Fatal(err)
 			}
 		}
@@ -75,34 +76,9 @@ func BenchmarkWriteNPY(b *testing.B) {
 			b.SetBytes(int64(4 * len(d)))
 			b.ReportAllocs()
 			for i := 0; i < b.N; i++ {
-				if err := WriteNPY(p, []int{s.rows, s.cols}, d); err != nil {
+				if err := format.WriteNPY(p, []int{s.rows, s.cols}, d); err != nil {
 					b.Fatal(err)
 				}
-			}
-		})
-	}
-}
-
-// BenchmarkCondStats accumulates all trials into 60 conditions.
-func BenchmarkCondStats(b *testing.B) {
-	for _, s := range []struct{ rows, cols int }{{1200, 400}, {4600, 2400}, {4600, 24000}} {
-		b.Run(fmt.Sprintf("%dx%d", s.rows, s.cols), func(b *testing.B) {
-			if testing.Short() && s.rows*s.cols > 1e7 {
-				b.Skip("large size skipped in -short mode")
-			}
-			y := NewMatrix(s.rows, s.cols)
-			rng := rand.New(rand.NewPCG(1, 2))
-			cond := make([]int, s.rows)
-			trials := make([]int, s.rows)
-			for t := range cond {
-				cond[t] = rng.IntN(60)
-				trials[t] = t
-			}
-			b.SetBytes(int64(4 * s.rows * s.cols))
-			b.ReportAllocs()
-			b.ResetTimer()
-			for i := 0; i < b.N; i++ {
-				NewCondStats(y, cond, trials, 60)
 			}
 		})
 	}
@@ -146,12 +122,12 @@ func BenchmarkCheckHash(b *testing.B) {
 		cond[t] = t % 60
 		s[t] = float64(cond[t]) * 6
 	}
-	if err := WriteNPY64(stim, []int{rows}, s); err != nil {
+	if err := format.WriteNPY64(stim, []int{rows}, s); err != nil {
 		b.Fatal(err)
 	}
-	saved := mapThreshold
-	mapThreshold = 0
-	defer func() { mapThreshold = saved }()
+	saved := format.MapThreshold
+	format.MapThreshold = 0
+	defer func() { format.MapThreshold = saved }()
 	src := Source{Responses: resp, Stimulus: stim}
 	opt := CheckOptions{NBins: 60}
 	for _, c := range []struct {
@@ -185,7 +161,7 @@ func BenchmarkCheckHash(b *testing.B) {
 			return err
 		}},
 		{"identify", func() error {
-			_, err := Identify(resp)
+			_, err := format.Identify(resp)
 			return err
 		}},
 	} {

@@ -6,6 +6,8 @@ import (
 	"runtime"
 	"strings"
 	"sync/atomic"
+
+	"github.com/strialab/stria/data/format"
 )
 
 // Report lists the problems Check found that do not stop a fit.
@@ -53,9 +55,9 @@ func Check(rec *Recording, cond []int, nbins int) (*Report, error) {
 //   - condition or block id vectors of the wrong length;
 //   - with Counts, responses that are not whole numbers >= 0 (the count and
 //     the first few, each with its trial and neuron);
-//   - a *FaultError when the responses are mapped and their file is
+//   - a *format.FaultError when the responses are mapped and their file is
 //     truncated during the pass (the pass runs under the fault guard);
-//   - with Hash, a file that changed since Load (wrapping ErrChanged).
+//   - with Hash, a file that changed since Load (wrapping format.ErrChanged).
 //
 // Otherwise the Report holds warnings: neurons constant over all trials
 // (Constant; excluded from metrics because a correlation or explained
@@ -87,7 +89,7 @@ func CheckWith(rec *Recording, cond []int, opt CheckOptions) (*Report, error) {
 	var file []byte
 	var off int
 	if opt.Hash && len(rec.inputs) > 0 && rec.inputs[0].id.Hash == "" {
-		if b, o, path, ok := mappedBytes(y.Data); ok && path == rec.inputs[0].id.Path {
+		if b, o, path, ok := format.MappedBytes(y.Data); ok && path == rec.inputs[0].id.Path {
 			file, off = b, o
 		}
 	}
@@ -121,7 +123,7 @@ func CheckWith(rec *Recording, cond []int, opt CheckOptions) (*Report, error) {
 	}
 	if sc.hash != "" {
 		if in := &rec.inputs[0]; int64(len(file)) != in.id.Size {
-			return rep, changedErr(in.id.Path, fmt.Sprintf("size %d -> %d bytes", in.id.Size, len(file)))
+			return rep, format.ChangedError(in.id.Path, fmt.Sprintf("size %d -> %d bytes", in.id.Size, len(file)))
 		} else {
 			in.id.Hash = sc.hash
 		}
@@ -360,25 +362,25 @@ type scan struct {
 // value is read once, and the result does not depend on the number of
 // cores. With file (the whole mapped file behind y.Data, whose values start
 // at byte off) the pieces are the 4 MiB pieces of the file's content hash
-// (see FileID), each hashed just before its values are scanned, so the
+// (see format.FileID), each hashed just before its values are scanned, so the
 // hash costs no second pass over memory. The workers run under the fault
-// guard: a file truncated meanwhile gives a *FaultError.
+// guard: a file truncated meanwhile gives a *format.FaultError.
 func scanResponses(y *Matrix, show int, counts bool, file []byte, off int) (scan, error) {
 	total, N := len(y.Data), y.Cols
-	var ch *chunkHasher
-	pieces := (total + hashChunk/4 - 1) / (hashChunk / 4)
-	elem := func(k int) int { return min(total, k*(hashChunk/4)) }
+	var ch *format.PieceHasher
+	pieces := (total + format.HashPieceBytes/4 - 1) / (format.HashPieceBytes / 4)
+	elem := func(k int) int { return min(total, k*(format.HashPieceBytes/4)) }
 	if file != nil {
-		ch = newChunkHasher(int64(len(file)))
-		pieces = len(ch.digests)
-		elem = func(k int) int { return max(0, min(total, (k*hashChunk-off)/4)) }
+		ch = format.NewPieceHasher(int64(len(file)))
+		pieces = ch.Pieces()
+		elem = func(k int) int { return max(0, min(total, (k*format.HashPieceBytes-off)/4)) }
 	}
 	workers := max(1, min(runtime.GOMAXPROCS(0), pieces))
 	parts := make([]scan, workers)
 	firsts := make([][]badValue, pieces)
 	firstsNC := make([][]badValue, pieces)
 	var next atomic.Int64
-	var g GuardGroup
+	var g format.GuardGroup
 	for w := range parts {
 		p := &parts[w]
 		p.min = make([]float32, N)
@@ -408,14 +410,7 @@ func scanResponses(y *Matrix, show int, counts bool, file []byte, off int) (scan
 				// Checksum a block, then scan its values while they are
 				// in the cache.
 				at := func(b int64) int { return max(0, min(total, (int(b)-off)/4)) }
-				lo, hi := ch.piece(k)
-				var crc pieceCRC
-				for b := lo; b < hi; b += hashBlock {
-					be := min(b+hashBlock, hi)
-					crc.add(file[b:be])
-					segment(at(b), at(be))
-				}
-				ch.digests[k] = crc.digest()
+				ch.HashPiece(k, file, func(b, be int64) { segment(at(b), at(be)) })
 			}
 		})
 	}
@@ -445,7 +440,7 @@ func scanResponses(y *Matrix, show int, counts bool, file []byte, off int) (scan
 		}
 	}
 	if ch != nil {
-		out.hash = ch.sum()
+		out.hash = ch.Sum()
 	}
 	return out, nil
 }

@@ -7,6 +7,8 @@ import (
 	"slices"
 	"strings"
 	"testing"
+
+	"github.com/strialab/stria/data/format"
 )
 
 func smallRecording() (*Recording, []int) {
@@ -177,7 +179,7 @@ func TestScanPieces(t *testing.T) {
 	for i := range y.Data {
 		y.Data[i] = float32(i % 97)
 	}
-	piece := hashChunk / 4
+	piece := format.HashPieceBytes / 4
 	bad := []int{3, piece - 1, piece, piece + 1, 2*piece - 2, len(y.Data) - 1}
 	for k, i := range bad {
 		y.Data[i] = []float32{float32(math.NaN()), -0.5}[k%2]
@@ -194,12 +196,12 @@ func TestScanPieces(t *testing.T) {
 	}
 	// The file of y as an .npy, for the pass that hashes while it scans:
 	// the header shifts the 4 MiB pieces against the values.
-	file := npyHeaderBytes("<f4", []int{rows, cols})
+	file := format.NPYHeaderBytes("<f4", []int{rows, cols})
 	off := len(file)
 	for _, v := range y.Data {
 		file = binary.LittleEndian.AppendUint32(file, math.Float32bits(v))
 	}
-	wantHash, _ := hashBytes(file)
+	wantHash, _ := format.HashBytes(file)
 	for _, run := range []struct {
 		procs  int
 		hashed bool

@@ -18,18 +18,15 @@
 //     starting "data: ". Anything that comes from outside (files, config
 //     values, stimulus values) gives a returned error naming the file, field,
 //     line, trial or neuron. User data never causes a panic.
-//   - A response matrix of more than 64 MB read from a little-endian float32
-//     .npy is mapped, not copied (ReadNPY). Every pass over recording values
-//     runs under Guard or a GuardGroup, so that a file truncated meanwhile
-//     gives a *FaultError naming it instead of a crash; data's own passes
-//     (CheckWith, NewCondStats, the hashing) do so already. Recording.Files
-//     records the inputs as Load found them (FileID), and Recording.Unchanged
-//     refuses, at the end of a fit, a file modified while stria read it.
-//   - A recording too large for memory is passed over by blocks of rows
-//     (NPYStream, AccumulateParts), keeping only per-part sufficient
-//     statistics (PartStats, B x N), summed in ascending trial order
-//     relative to each part's first trial; AccumulatePartsMatrix gives the
-//     same numbers from a matrix in memory.
+//   - Files are read and written by data/format (.npy, .npz, CSV/TSV);
+//     a large .npy response matrix is mapped (format.ReadNPY). Every pass
+//     over recording values runs under format.Guard or a
+//     format.GuardGroup, so that a file truncated meanwhile gives a
+//     *format.FaultError naming it instead of a crash; data's own passes
+//     (CheckWith, the hashing) do so already, and so do condstats.New and
+//     condstats.AccumulateParts. Recording.Files records the inputs as Load
+//     found them (format.FileID), and Recording.Unchanged refuses, at the
+//     end of a fit, a file modified while stria read it.
 //   - Randomness comes from a seed (uint64) turned into a PCG source of
 //     math/rand/v2; no global random source is used, so results are the same
 //     for the same seed on every machine.
@@ -39,7 +36,11 @@
 // or every condition's value, and so every preferred stimulus, is off by the
 // distance from the values to the bin centres.
 //
-// File formats: .npy (NEP 1, "A Simple File Format for NumPy Arrays",
-// versions 1.0, 2.0 and 3.0), .npz (a zip archive of .npy files) and
-// delimited text with a header row (.csv with commas, .tsv with tabs).
+// Matrix is an alias of format.Matrix: the readers of data/format return
+// it, and every fitting package names it data.Matrix; the alias spares a
+// conversion at each call and a rename in every importer.
+//
+// Related packages: data/format (file formats and access, imported by
+// data), data/condstats (statistics per condition and part, the
+// normaliser) and data/synth (synthetic populations, importing data).
 package data

@@ -6,19 +6,20 @@ import (
 	"path/filepath"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
 )
 
 // The order of calls that keeps a fit from mixing two versions of its input:
 // load, bin, check (with the content hashes), run every pass over the
 // values under Guard, and make sure no input changed before writing
 // anything as final.
-func ExampleGuard() {
+func Example_guard() {
 	dir, _ := os.MkdirTemp("", "example")
 	defer os.RemoveAll(dir)
 	resp := filepath.Join(dir, "resp.npy")
 	stim := filepath.Join(dir, "stim.npy")
-	data.WriteNPY(resp, []int{4, 2}, []float32{0, 1, 2, 3, 4, 5, 6, 7})
-	data.WriteNPY64(stim, []int{4}, []float64{0, 90, 180, 270})
+	format.WriteNPY(resp, []int{4, 2}, []float32{0, 1, 2, 3, 4, 5, 6, 7})
+	format.WriteNPY64(stim, []int{4}, []float64{0, 90, 180, 270})
 
 	rec, err := data.Load(data.Source{Responses: resp, Stimulus: stim})
 	if err != nil {
@@ -36,7 +37,7 @@ func ExampleGuard() {
 		return
 	}
 	var total float64
-	err = data.Guard(func() { // the fit and the scoring
+	err = format.Guard(func() { // the fit and the scoring
 		for _, v := range rec.Y.Data {
 			total += float64(v)
 		}

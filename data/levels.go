@@ -253,7 +253,7 @@ func gapsOf(levels []float64, a Axis) []float64 {
 
 // commonStep returns the largest step s that every gap is a whole multiple
 // of, found among the smallest gap divided by 1..24, and that (on a periodic
-// axis) divides the period and gives at most maxBins bins; 0 if none.
+// axis) divides the period and gives at most MaxBins bins; 0 if none.
 func commonStep(gaps []float64, a Axis, w float64) float64 {
 	if len(gaps) == 0 {
 		return 0
@@ -273,7 +273,7 @@ func commonStep(gaps []float64, a Axis, w float64) float64 {
 	}
 	for k := 1; k <= 24; k++ {
 		s := m / float64(k)
-		if (a.Max-a.Min)/s > maxBins {
+		if (a.Max-a.Min)/s > MaxBins {
 			return 0
 		}
 		ok := !a.Periodic || multiple(a.Max-a.Min, s)

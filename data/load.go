@@ -3,9 +3,12 @@ package data
 import (
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
+
+	"github.com/strialab/stria/data/format"
 )
 
 // Source says where a recording lives. The caller fills it from the config.
@@ -56,13 +59,13 @@ func fileKind(path string) string {
 }
 
 // loader caches tables so that a file used for several columns is read once.
-type loader struct{ tables map[string]*Table }
+type loader struct{ tables map[string]*format.Table }
 
-func (l *loader) table(path string) (*Table, error) {
+func (l *loader) table(path string) (*format.Table, error) {
 	if t, ok := l.tables[path]; ok {
 		return t, nil
 	}
-	t, err := ReadTable(path)
+	t, err := format.ReadTable(path)
 	if err != nil {
 		return nil, err
 	}
@@ -84,12 +87,12 @@ func (l *loader) vector(path, name, what string) ([]float64, error) {
 		if err != nil {
 			return nil, fmt.Errorf("data: %w", err)
 		}
-		return vectorFrom(path)(readNPY64(f, st.Size(), path))
+		return vectorFrom(path)(format.ReadNPY64(f, st.Size(), path))
 	case "npz":
 		var v []float64
-		err := withNPZEntry(path, name, func(r io.Reader, size int64, label string) error {
+		err := format.WithNPZEntry(path, name, func(r io.Reader, size int64, label string) error {
 			var err error
-			v, err = vectorFrom(label)(readNPY64(r, size, label))
+			v, err = vectorFrom(label)(format.ReadNPY64(r, size, label))
 			return err
 		})
 		return v, err
@@ -125,14 +128,14 @@ func vectorFrom(label string) func(rows, cols int, v []float64, err error) ([]fl
 // array called name) or .csv/.tsv (the column called name). Values are
 // float64, so stimulus values keep their full precision.
 func ReadVector(path, name string) ([]float64, error) {
-	l := &loader{tables: map[string]*Table{}}
+	l := &loader{tables: map[string]*format.Table{}}
 	return l.vector(path, name, "vector")
 }
 
 // ReadIntVector is ReadVector for integer ids: every value must be a whole
 // number; the error names the file and the 0-based index of a bad value.
 func ReadIntVector(path, name string) ([]int, error) {
-	l := &loader{tables: map[string]*Table{}}
+	l := &loader{tables: map[string]*format.Table{}}
 	return l.ints(path, name, "vector")
 }
 
@@ -163,7 +166,7 @@ func (l *loader) ints(path, name, what string) ([]int, error) {
 // trial (the error names both files and both lengths). Values are not
 // validated here; use Check for NaN, Inf, empty bins and constant neurons.
 func Load(src Source) (*Recording, error) {
-	l := &loader{tables: map[string]*Table{}}
+	l := &loader{tables: map[string]*format.Table{}}
 	rec := &Recording{Source: src}
 	if src.Responses == "" {
 		return nil, fmt.Errorf("data: no responses file given")
@@ -191,13 +194,13 @@ func Load(src Source) (*Recording, error) {
 
 	switch fileKind(src.Responses) {
 	case "npy":
-		m, err := ReadNPY(src.Responses)
+		m, err := format.ReadNPY(src.Responses)
 		if err != nil {
 			return nil, err
 		}
 		rec.Y = m
 	case "npz":
-		m, err := ReadNPZ(src.Responses, src.ResponsesArray)
+		m, err := format.ReadNPZ(src.Responses, src.ResponsesArray)
 		if err != nil {
 			return nil, err
 		}
@@ -323,4 +326,10 @@ func checkNeuronColumns(src Source, stimFile string, inResponses func(string) bo
 		}
 	}
 	return nil
+}
+
+// isIntValue reports whether x is a whole number that float64 holds
+// exactly.
+func isIntValue(x float64) bool {
+	return x == math.Trunc(x) && math.Abs(x) <= 1<<53
 }

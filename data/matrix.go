@@ -1,29 +1,11 @@
 package data
 
-import "fmt"
+import "github.com/strialab/stria/data/format"
 
-// Matrix is a dense row-major float32 matrix. For responses, Rows = trials
-// and Cols = neurons; element (i, j) is Data[i*Cols+j] and len(Data) is
-// Rows*Cols.
-type Matrix struct {
-	Rows, Cols int
-	Data       []float32
-}
+// Matrix is the response matrix (Rows = trials, Cols = neurons), defined in
+// data/format, which reads and writes it. The alias keeps data.Matrix, the
+// name every fitting package uses, without a conversion at each call.
+type Matrix = format.Matrix
 
-// NewMatrix returns a zeroed rows x cols matrix. It panics if either
-// dimension is negative.
-func NewMatrix(rows, cols int) *Matrix {
-	if rows < 0 || cols < 0 {
-		panic(fmt.Sprintf("data: NewMatrix negative dimension %d x %d", rows, cols))
-	}
-	return &Matrix{Rows: rows, Cols: cols, Data: make([]float32, rows*cols)}
-}
-
-// Row returns row i as a slice sharing m.Data (length Cols, capacity Cols).
-// It panics if i is out of range.
-func (m *Matrix) Row(i int) []float32 {
-	if i < 0 || i >= m.Rows {
-		panic(fmt.Sprintf("data: Row index %d out of range [0, %d)", i, m.Rows))
-	}
-	return m.Data[i*m.Cols : (i+1)*m.Cols : (i+1)*m.Cols]
-}
+// NewMatrix returns a zeroed rows x cols matrix (see format.NewMatrix).
+func NewMatrix(rows, cols int) *Matrix { return format.NewMatrix(rows, cols) }

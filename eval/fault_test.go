@@ -7,7 +7,7 @@ import (
 
 // TestEachBlockForwardsPanics checks that a panic in a scoring worker (a
 // memory fault on a truncated mapped file is one, under
-// debug.SetPanicOnFault) reaches the caller's goroutine, where data.Guard
+// debug.SetPanicOnFault) reaches the caller's goroutine, where format.Guard
 // can turn it into an error, instead of ending the process from the
 // worker.
 func TestEachBlockForwardsPanics(t *testing.T) {

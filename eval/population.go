@@ -152,7 +152,7 @@ func newShared(fn string, y []float32, n int, trials, cond []int, pred []float64
 // fault when the file is truncated, which debug.SetPanicOnFault turns
 // into a panic in each worker) stops, and the first panic value is raised
 // again on the caller's goroutine after every worker has ended, where the
-// caller's data.Guard turns a fault into an error naming the file.
+// caller's format.Guard turns a fault into an error naming the file.
 func eachBlock(dst []Scores, sh *shared, score func(sc *scorer, dst []Scores, n0, w int)) {
 	n := sh.n
 	nblocks := (n + scoreBlock - 1) / scoreBlock

@@ -33,7 +33,7 @@ import (
 // s2_b = (SumSq_b - Sum_b^2/N_b)/(N_b - 1) by 1/N_b (eval/methods.md §1),
 // which with unequal counts does not follow from the total.
 //
-// data.PartStats, accumulated with CondSquares and Halves, has these
+// condstats.PartStats, accumulated with CondSquares and Halves, has these
 // fields under the same names (and RefCond).
 type HeldOutSums struct {
 	B, N    int

@@ -9,7 +9,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/nn"
 )
 
@@ -146,7 +146,7 @@ func TestAcuityUsesCompareFolds(t *testing.T) {
 // than chance (60 bins of 6 deg: a random guess has a mean absolute error
 // of about 90 deg [computed: uniform error on a circle]).
 func TestAcuityPoissonModel(t *testing.T) {
-	rec, _, _ := data.Synth(data.SynthConfig{Neurons: 40, Trials: 1200, Bins: 60, TwoPeakFrac: 0.25, UntunedFrac: 0.1, GainSD: 0.15, Poisson: true, Seed: 5})
+	rec, _, _ := synth.Population(synth.Config{Neurons: 40, Trials: 1200, Bins: 60, TwoPeakFrac: 0.25, UntunedFrac: 0.1, GainSD: 0.15, Poisson: true, Seed: 5})
 	cfg := Defaults()
 	cfg.Data.Responses = "synthetic"
 	cfg.Axis = AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 6, Encoding: OneHot}

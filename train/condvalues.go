@@ -33,7 +33,7 @@ const OffsetWarnFraction = 0.1
 // the B bins with trials). The null is the even spread, whose variance is
 // known, rather than a t test: a t test of a few uniform offsets is
 // anticonservative in the far tail. Measured on uniform headings in 60 bins
-// (data.Synth, 10-50 trials per bin on average): a t test warned in 9 of
+// (synth.Population, 10-50 trials per bin on average): a t test warned in 9 of
 // 185 recordings, this rule in 2 of 574.
 func (p *Prepared) conditionValues() ([]float64, string) {
 	ax := p.Axis

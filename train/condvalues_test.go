@@ -6,6 +6,7 @@ import (
 	"testing"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/synth"
 )
 
 // TestConditionValues checks where conditions are placed and when stria
@@ -39,13 +40,13 @@ func TestConditionValues(t *testing.T) {
 		return false
 	}
 	for _, trials := range []int{600, 1200, 6000} { // 10, 20 and 100 trials per bin on average
-		rec, _, _ := data.Synth(data.SynthConfig{Neurons: 4, Trials: trials, Bins: 60, UntunedFrac: 0.5, NoiseSD: 0.5, Seed: 5})
+		rec, _, _ := synth.Population(synth.Config{Neurons: 4, Trials: trials, Bins: 60, UntunedFrac: 0.5, NoiseSD: 0.5, Seed: 5})
 		if p := prep(rec, 6); warned(p) {
 			t.Errorf("continuous stimulus, %d trials: warned %q", trials, p.Report.Warnings)
 		}
 	}
 	// 24 directions, 10 trials each.
-	rec, _, _ := data.Synth(data.SynthConfig{Neurons: 4, Trials: 240, Bins: 60, UntunedFrac: 0.5, NoiseSD: 0.5, Seed: 5})
+	rec, _, _ := synth.Population(synth.Config{Neurons: 4, Trials: 240, Bins: 60, UntunedFrac: 0.5, NoiseSD: 0.5, Seed: 5})
 	for i := range rec.Stim {
 		rec.Stim[i] = float64(15 * (i % 24))
 	}

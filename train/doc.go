@@ -19,7 +19,7 @@
 //     solver) are typed values (Loss, Encoding, ...); code switches on
 //     them and never compares strings.
 //   - With split.zscore the trainer works in z-scored units
-//     (data.Normalizer, fitted on the training and validation trials);
+//     (condstats.Normalizer, fitted on the training and validation trials);
 //     every prediction handed out of this package is in the recording's
 //     units again (Normalizer.InvertRows).
 //   - One epoch loop (runEpochs) owns early stopping on the validation

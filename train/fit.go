@@ -7,7 +7,8 @@ import (
 	"math/rand/v2"
 	"slices"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/condstats"
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/nn"
 )
@@ -51,7 +52,7 @@ type Checkpoint struct {
 	Config []byte
 	// Files are the recording's files the fit was started on (with their
 	// content hashes); the caller sets them and checks them on resume.
-	Files []data.FileID
+	Files []format.FileID
 }
 
 // ErrInterrupted is returned (wrapped) when the context is cancelled; a
@@ -100,7 +101,7 @@ type rowSet struct {
 
 // condRows builds the condition-level rows of a trial set from its
 // per-condition statistics, in the trainer's (possibly z-scored) units.
-func condRows(p *Prepared, st *data.CondStats) *rowSet {
+func condRows(p *Prepared, st *condstats.Stats) *rowSet {
 	b, n := p.NBins, p.Neurons()
 	ntrials := 0
 	for _, k := range st.Count {
@@ -161,7 +162,7 @@ func trialRows(rs *rowSet, p *Prepared, trials []int) {
 
 // ssTotOf returns per-neuron total sums of squares over trials, in the
 // trainer's units.
-func ssTotOf(p *Prepared, st *data.CondStats) []float64 {
+func ssTotOf(p *Prepared, st *condstats.Stats) []float64 {
 	trials := 0
 	for _, k := range st.Count {
 		trials += k
@@ -414,11 +415,11 @@ func (tr *trainer) Epoch(opt *nn.Adam) float64 {
 // stops training between epochs; then a checkpoint is handed to hooks and
 // ErrInterrupted is returned.
 //
-// Every read of the recording runs under data.Guard: a mapped responses
-// file truncated during the fit gives a *data.FaultError naming it, not a
+// Every read of the recording runs under format.Guard: a mapped responses
+// file truncated during the fit gives a *format.FaultError naming it, not a
 // crash.
 func Fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (f *Fitted, err error) {
-	if gerr := data.Guard(func() { f, err = fit(ctx, p, hooks, resume) }); gerr != nil {
+	if gerr := format.Guard(func() { f, err = fit(ctx, p, hooks, resume) }); gerr != nil {
 		return nil, gerr
 	}
 	return f, err

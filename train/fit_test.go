@@ -12,15 +12,17 @@ import (
 	"testing"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/condstats"
+	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/eval/tuning"
 	"github.com/strialab/stria/nn"
 )
 
 // synthPrepared builds a prepared demo-scenario recording.
-func synthPrepared(t testing.TB, neurons, trials int, edit func(*Config)) (*Prepared, *data.Truth) {
+func synthPrepared(t testing.TB, neurons, trials int, edit func(*Config)) (*Prepared, *synth.Truth) {
 	t.Helper()
-	rec, _, truth := data.Synth(data.SynthConfig{
+	rec, _, truth := synth.Population(synth.Config{
 		Neurons: neurons, Trials: trials, Bins: 60,
 		TwoPeakFrac: 0.25, UntunedFrac: 0.1, GainSD: 0.15, NoiseSD: 0.5, Seed: 11,
 	})
@@ -292,7 +294,7 @@ func TestDemoRecovery(t *testing.T) {
 	// The learned model's noise-free tuning curves against the planted ones.
 	b := p.NBins
 	curves := PredictConditions(f.Net, b)
-	st := data.NewCondStats(p.Rec.Y, p.Cond, p.Train, b)
+	st := condstats.New(p.Rec.Y, p.Cond, p.Train, b)
 	means := st.Mean(nil)
 	var rs []float64
 	var dFit, dMean float64
@@ -319,7 +321,7 @@ func TestDemoRecovery(t *testing.T) {
 }
 
 // TestNormalizerFromStats checks the z-scoring derived from per-condition sums
-// against data.FitNormalizer's two passes over the trials, including a
+// against condstats.FitNormalizer's two passes over the trials, including a
 // constant neuron (Scale 1) and one with a large offset.
 func TestNormalizerFromStats(t *testing.T) {
 	p, _ := synthPrepared(t, 20, 600, func(c *Config) { c.Axis.BinWidth = 12 })
@@ -329,9 +331,9 @@ func TestNormalizerFromStats(t *testing.T) {
 		y.Row(i)[1] = 1000 + y.Row(i)[1] // offset 1000 on a unit-scale signal
 	}
 	all := append(slices.Clone(p.Train), p.Val...)
-	want := data.FitNormalizer(y, all)
+	want := condstats.FitNormalizer(y, all)
 	p.trainSt, p.valSt = nil, nil
-	got := data.NormalizerFromStats(p.TrainStats(), p.ValStats())
+	got := condstats.NormalizerFromStats(p.TrainStats(), p.ValStats())
 	for j := range want.Mean {
 		// Tolerance: float64 sums of ~500 float32 values; the offset neuron
 		// loses about log10(1000^2) digits to cancellation, leaving ~1e-9.
@@ -382,7 +384,7 @@ func TestCoresDoNotChangeResults(t *testing.T) {
 // consecutive trials on one side of the test split, of the validation
 // split and of every fold.
 func TestBlockTrials(t *testing.T) {
-	rec, _, _ := data.Synth(data.SynthConfig{Neurons: 10, Trials: 1200, Bins: 60, TwoPeakFrac: 0.25, UntunedFrac: 0.1, GainSD: 0.15, NoiseSD: 0.5, Seed: 11})
+	rec, _, _ := synth.Population(synth.Config{Neurons: 10, Trials: 1200, Bins: 60, TwoPeakFrac: 0.25, UntunedFrac: 0.1, GainSD: 0.15, NoiseSD: 0.5, Seed: 11})
 	rec.Block = nil // no block ids: blocks come from split.block_trials
 	cfg := Defaults()
 	cfg.Data.Responses = "synthetic"

@@ -8,7 +8,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
+	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/nn"
 )
@@ -26,7 +27,7 @@ func TestPoissonRefusesNonCounts(t *testing.T) {
 		{"negative", -1, "trial 7, neuron 3"},
 	} {
 		t.Run(c.name, func(t *testing.T) {
-			rec, _, _ := data.Synth(data.SynthConfig{Neurons: 6, Trials: 120, Bins: 12, NoiseSD: 0.5, Seed: 3})
+			rec, _, _ := synth.Population(synth.Config{Neurons: 6, Trials: 120, Bins: 12, NoiseSD: 0.5, Seed: 3})
 			for i, v := range rec.Y.Data {
 				rec.Y.Data[i] = float32(int(v*v*4 + 0.5)) // whole numbers >= 0
 			}
@@ -53,9 +54,9 @@ func TestPoissonRefusesNonCounts(t *testing.T) {
 }
 
 // TestFitTruncatedMapping truncates a mapped recording (above the 64 MB
-// mapping threshold of data.ReadNPY) after it was prepared: the fit, the
+// mapping threshold of format.ReadNPY) after it was prepared: the fit, the
 // scoring and the final check each give an error naming the file (wrapping
-// data.ErrChanged) instead of a crash with a goroutine dump.
+// format.ErrChanged) instead of a crash with a goroutine dump.
 func TestFitTruncatedMapping(t *testing.T) {
 	if testing.Short() {
 		t.Skip("writes a 68 MB file")
@@ -71,10 +72,10 @@ func TestFitTruncatedMapping(t *testing.T) {
 			v[t*cols+j] = float32((t*7 + j*3) % 11)
 		}
 	}
-	if err := data.WriteNPY(resp, []int{rows, cols}, v); err != nil {
+	if err := format.WriteNPY(resp, []int{rows, cols}, v); err != nil {
 		t.Fatal(err)
 	}
-	if err := data.WriteNPY64(stim, []int{rows}, s); err != nil {
+	if err := format.WriteNPY64(stim, []int{rows}, s); err != nil {
 		t.Fatal(err)
 	}
 	v = nil
@@ -104,8 +105,8 @@ func TestFitTruncatedMapping(t *testing.T) {
 	}
 	wantChanged := func(what string, err error) {
 		t.Helper()
-		if !errors.Is(err, data.ErrChanged) || !strings.Contains(err.Error(), resp) {
-			t.Errorf("%s: got %v, want an error naming %s that wraps data.ErrChanged", what, err, resp)
+		if !errors.Is(err, format.ErrChanged) || !strings.Contains(err.Error(), resp) {
+			t.Errorf("%s: got %v, want an error naming %s that wraps format.ErrChanged", what, err, resp)
 		}
 	}
 	_, err = Fit(context.Background(), p, Hooks{}, nil)
@@ -113,7 +114,7 @@ func TestFitTruncatedMapping(t *testing.T) {
 	// Scoring in eval's worker goroutines, under the caller's guard.
 	curves := make([]float64, p.NBins*cols)
 	scores := make([]eval.Scores, cols)
-	wantChanged("scoring", data.Guard(func() {
+	wantChanged("scoring", format.Guard(func() {
 		eval.ScoreConditions(scores, p.Rec.Y.Data, cols, p.Test, p.Cond, curves, p.NBins)
 	}))
 	wantChanged("Unchanged", p.Rec.Unchanged())

@@ -10,6 +10,7 @@ import (
 	"gonum.org/v1/gonum/stat/distuv"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/condstats"
 	"github.com/strialab/stria/nn"
 )
 
@@ -140,7 +141,7 @@ func popPrepared(t testing.TB, s popSpec, edit func(*Config)) (*Prepared, []floa
 // test mean (NaN where SST is 0).
 func testR2(p *Prepared, pred []float64) []float64 {
 	N := p.Neurons()
-	st := data.NewCondStats(p.Rec.Y, p.Cond, p.Test, p.NBins)
+	st := condstats.New(p.Rec.Y, p.Cond, p.Test, p.NBins)
 	sse, tot, grand := make([]float64, N), make([]float64, N), make([]float64, N)
 	for b, c := range st.Count {
 		if c == 0 {
@@ -171,7 +172,7 @@ func testR2(p *Prepared, pred []float64) []float64 {
 func condMeanPred(p *Prepared) []float64 {
 	N := p.Neurons()
 	seen := append(slices.Clone(p.Train), p.Val...)
-	st := data.NewCondStats(p.Rec.Y, p.Cond, seen, p.NBins)
+	st := condstats.New(p.Rec.Y, p.Cond, seen, p.NBins)
 	out := make([]float64, p.NBins*N)
 	grand := make([]float64, N)
 	for b, c := range st.Count {

@@ -4,6 +4,8 @@ import (
 	"fmt"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/condstats"
+	"github.com/strialab/stria/data/format"
 )
 
 // Prepared is a recording loaded, binned, checked and split, ready to fit.
@@ -32,10 +34,10 @@ type Prepared struct {
 	// split.zscore is false). Rec.Y stays in the recording's units: the
 	// trainer standardises what it reads, and predictions are returned in
 	// the recording's units.
-	Norm *data.Normalizer
+	Norm *condstats.Normalizer
 
 	// Per-condition statistics of Train and Val, computed on first use.
-	trainSt, valSt *data.CondStats
+	trainSt, valSt *condstats.Stats
 }
 
 // Prepare loads the recording the config names and splits it. The config
@@ -52,9 +54,9 @@ func Prepare(cfg *Config) (*Prepared, error) {
 // The check computes the content hashes of the recording's files
 // (Recording.Files, for fingerprints) and, with a count loss (poisson),
 // requires whole numbers >= 0. Every read of the responses runs under
-// data.Guard (a truncated mapped file gives a *data.FaultError).
+// format.Guard (a truncated mapped file gives a *format.FaultError).
 func PrepareRecording(cfg *Config, rec *data.Recording) (p *Prepared, err error) {
-	if gerr := data.Guard(func() { p, err = prepareRecording(cfg, rec) }); gerr != nil {
+	if gerr := format.Guard(func() { p, err = prepareRecording(cfg, rec) }); gerr != nil {
 		return nil, gerr
 	}
 	return p, err
@@ -126,7 +128,7 @@ func prepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
 		return nil, fmt.Errorf("validation split: %w", err)
 	}
 	if cfg.Split.ZScore {
-		p.Norm = data.NormalizerFromStats(p.TrainStats(), p.ValStats())
+		p.Norm = condstats.NormalizerFromStats(p.TrainStats(), p.ValStats())
 	}
 	return p, nil
 }
@@ -140,23 +142,23 @@ func (p *Prepared) WithSplit(train, val, test []int) *Prepared {
 	q.trainSt, q.valSt = nil, nil
 	q.Norm = nil
 	if p.Cfg.Split.ZScore {
-		q.Norm = data.NormalizerFromStats(q.TrainStats(), q.ValStats())
+		q.Norm = condstats.NormalizerFromStats(q.TrainStats(), q.ValStats())
 	}
 	return &q
 }
 
 // TrainStats returns the per-condition statistics of the training trials.
-func (p *Prepared) TrainStats() *data.CondStats {
+func (p *Prepared) TrainStats() *condstats.Stats {
 	if p.trainSt == nil {
-		p.trainSt = data.NewCondStats(p.Rec.Y, p.Cond, p.Train, p.NBins)
+		p.trainSt = condstats.New(p.Rec.Y, p.Cond, p.Train, p.NBins)
 	}
 	return p.trainSt
 }
 
 // ValStats returns the per-condition statistics of the validation trials.
-func (p *Prepared) ValStats() *data.CondStats {
+func (p *Prepared) ValStats() *condstats.Stats {
 	if p.valSt == nil {
-		p.valSt = data.NewCondStats(p.Rec.Y, p.Cond, p.Val, p.NBins)
+		p.valSt = condstats.New(p.Rec.Y, p.Cond, p.Val, p.NBins)
 	}
 	return p.valSt
 }

@@ -12,10 +12,13 @@ import (
 	"testing"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/condstats"
+	"github.com/strialab/stria/data/format"
+	"github.com/strialab/stria/data/synth"
 )
 
 // The quality benchmark: a population of cells with one to three von
-// Mises bumps at random places (data.SynthBumps), 60 bins, shared gain
+// Mises bumps at random places (synth.Bumps), 60 bins, shared gain
 // noise. Quality is the share of the gap between the training trials'
 // condition means and the oracle (the noise-free bin means) that a model
 // closes on the test trials, on mean held-out R^2 over neurons:
@@ -29,12 +32,12 @@ import (
 // qualityScenario is the benchmark population; its responses' SHA-256 is
 // recorded with the framework's reference so that a changed generator is
 // noticed.
-var qualityScenario = data.BumpsConfig{Neurons: 2000, Trials: 3000, Bins: 60, UntunedFrac: 0.15, GainSD: 0.15, NoiseSD: 1.5, Seed: 42}
+var qualityScenario = synth.BumpsConfig{Neurons: 2000, Trials: 3000, Bins: 60, UntunedFrac: 0.15, GainSD: 0.15, NoiseSD: 1.5, Seed: 42}
 
 // qualityPrepared bins and splits the scenario with the default config.
-func qualityPrepared(tb testing.TB, scen data.BumpsConfig) (*Prepared, []float64) {
+func qualityPrepared(tb testing.TB, scen synth.BumpsConfig) (*Prepared, []float64) {
 	tb.Helper()
-	rec, _, oracle := data.SynthBumps(scen)
+	rec, _, oracle := synth.Bumps(scen)
 	cfg := Defaults()
 	cfg.Data.Responses = "synthetic"
 	cfg.Axis = AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 360 / float64(scen.Bins), Encoding: OneHot}
@@ -66,7 +69,7 @@ func meanR2(p *Prepared, pc []float64) float64 {
 
 // trainingMeans returns the training trials' condition means (B x N).
 func trainingMeans(p *Prepared) []float64 {
-	st := data.NewCondStats(p.Rec.Y, p.Cond, append(append([]int(nil), p.Train...), p.Val...), p.NBins)
+	st := condstats.New(p.Rec.Y, p.Cond, append(append([]int(nil), p.Train...), p.Val...), p.NBins)
 	return st.Mean(nil)
 }
 
@@ -112,15 +115,15 @@ func TestWriteQualityData(t *testing.T) {
 			t.Fatal(err)
 		}
 	}
-	must(data.WriteNPY(filepath.Join(dir, "responses.npy"), []int{y.Rows, y.Cols}, y.Data))
+	must(format.WriteNPY(filepath.Join(dir, "responses.npy"), []int{y.Rows, y.Cols}, y.Data))
 	cond := make([]float64, len(p.Cond))
 	for i, c := range p.Cond {
 		cond[i] = float64(c)
 	}
-	must(data.WriteNPY64(filepath.Join(dir, "condition.npy"), []int{len(cond)}, cond))
-	must(data.WriteNPY64(filepath.Join(dir, "oracle_means.npy"), []int{p.NBins, y.Cols}, oracle))
-	must(data.WriteNPY64(filepath.Join(dir, "norm_mean.npy"), []int{y.Cols}, p.Norm.Mean))
-	must(data.WriteNPY64(filepath.Join(dir, "norm_scale.npy"), []int{y.Cols}, p.Norm.Scale))
+	must(format.WriteNPY64(filepath.Join(dir, "condition.npy"), []int{len(cond)}, cond))
+	must(format.WriteNPY64(filepath.Join(dir, "oracle_means.npy"), []int{p.NBins, y.Cols}, oracle))
+	must(format.WriteNPY64(filepath.Join(dir, "norm_mean.npy"), []int{y.Cols}, p.Norm.Mean))
+	must(format.WriteNPY64(filepath.Join(dir, "norm_scale.npy"), []int{y.Cols}, p.Norm.Scale))
 	b, _ := json.MarshalIndent(map[string]any{
 		"train": p.Train, "validation": p.Val, "test": p.Test,
 		"bins": p.NBins, "responses_sha256": responsesHash(y),

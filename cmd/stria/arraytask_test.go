@@ -12,7 +12,8 @@ import (
 	"testing"
 	"time"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
+	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/train/runfolder"
 )
 
@@ -40,13 +41,13 @@ func writeSessions(t *testing.T, dir string, epochs int) string {
 	for i := 1; i <= 3; i++ {
 		sub := filepath.Join(dir, "sessions", fmt.Sprintf("m%d", i))
 		os.MkdirAll(sub, 0o755)
-		cfg := data.DefaultSynthConfig()
+		cfg := synth.DefaultConfig()
 		cfg.Neurons, cfg.Trials, cfg.Seed = 24+4*i, 480, uint64(100+i)
-		rec, _, _ := data.Synth(cfg)
-		if err := data.WriteNPY(filepath.Join(sub, "resp.npy"), []int{rec.Y.Rows, rec.Y.Cols}, rec.Y.Data); err != nil {
+		rec, _, _ := synth.Population(cfg)
+		if err := format.WriteNPY(filepath.Join(sub, "resp.npy"), []int{rec.Y.Rows, rec.Y.Cols}, rec.Y.Data); err != nil {
 			t.Fatal(err)
 		}
-		if err := data.WriteNPY64(filepath.Join(sub, "heading.npy"), []int{len(rec.Stim)}, rec.Stim); err != nil {
+		if err := format.WriteNPY64(filepath.Join(sub, "heading.npy"), []int{len(rec.Stim)}, rec.Stim); err != nil {
 			t.Fatal(err)
 		}
 	}

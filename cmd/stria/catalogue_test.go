@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
 )
@@ -75,7 +76,7 @@ func newFixture(t *testing.T) *fixture {
 		}
 	}
 	f.writeResp(t, y, rows, cols)
-	if err := data.WriteNPY64(f.stim, []int{rows}, s); err != nil {
+	if err := format.WriteNPY64(f.stim, []int{rows}, s); err != nil {
 		t.Fatal(err)
 	}
 	f.config(t, 1, 1)
@@ -84,7 +85,7 @@ func newFixture(t *testing.T) *fixture {
 
 func (f *fixture) writeResp(t *testing.T, y []float32, rows, cols int) {
 	t.Helper()
-	if err := data.WriteNPY(f.resp, []int{rows, cols}, y); err != nil {
+	if err := format.WriteNPY(f.resp, []int{rows, cols}, y); err != nil {
 		t.Fatal(err)
 	}
 }
@@ -112,7 +113,7 @@ func (f *fixture) edit(t *testing.T, old, new string) {
 // order (the same recording, the same size).
 func (f *fixture) shuffleTrials(t *testing.T) {
 	t.Helper()
-	m, err := data.ReadNPY(f.resp)
+	m, err := format.ReadNPY(f.resp)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -130,7 +131,7 @@ func (f *fixture) shuffleTrials(t *testing.T) {
 	// A distinct modification time even on a coarse clock.
 	time.Sleep(10 * time.Millisecond)
 	f.writeResp(t, y, m.Rows, m.Cols)
-	data.WriteNPY64(f.stim, []int{len(s2)}, s2)
+	format.WriteNPY64(f.stim, []int{len(s2)}, s2)
 }
 
 // run runs stria and fails the test on an error.
@@ -281,7 +282,7 @@ var badRows = []badRow{
 
 	// --- Data checked before anything is written ---
 	{"compare: a NaN response", func(t *testing.T, f *fixture) []string {
-		m, _ := data.ReadNPY(f.resp)
+		m, _ := format.ReadNPY(f.resp)
 		m.Data[5*m.Cols+3] = float32(nanValue())
 		f.writeResp(t, m.Data, m.Rows, m.Cols)
 		return compareArgs(f)
@@ -291,7 +292,7 @@ var badRows = []badRow{
 		return compareArgs(f)
 	}, []string{"folds"}},
 	{"fit: poisson on non-counts", func(t *testing.T, f *fixture) []string {
-		m, _ := data.ReadNPY(f.resp)
+		m, _ := format.ReadNPY(f.resp)
 		m.Data[9*m.Cols+4] = 2.5
 		f.writeResp(t, m.Data, m.Rows, m.Cols)
 		f.edit(t, "  readout_l2:", "  loss: poisson\n  output: softplus\n  readout_l2:")
@@ -299,7 +300,7 @@ var badRows = []badRow{
 		return fitArgs(f)
 	}, []string{"resp.npy", "not counts", "trial 9", "neuron 4"}},
 	{"inspect: poisson on negative values", func(t *testing.T, f *fixture) []string {
-		m, _ := data.ReadNPY(f.resp)
+		m, _ := format.ReadNPY(f.resp)
 		m.Data[2*m.Cols+1] = -1
 		f.writeResp(t, m.Data, m.Rows, m.Cols)
 		f.edit(t, "  readout_l2:", "  loss: poisson\n  output: softplus\n  readout_l2:")

@@ -13,6 +13,8 @@ import (
 	"github.com/urfave/cli/v2"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
+	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/export"
 	"github.com/strialab/stria/train/runfolder"
@@ -110,30 +112,30 @@ output: run
 `
 
 // writeDemo writes the synthetic recording, its ground truth and a config.
-func writeDemo(o demoOptions) (string, *data.Truth, error) {
+func writeDemo(o demoOptions) (string, *synth.Truth, error) {
 	if err := os.MkdirAll(o.dir, 0o755); err != nil {
 		return "", nil, err
 	}
-	rec, ax, truth := data.Synth(data.SynthConfig{
+	rec, ax, truth := synth.Population(synth.Config{
 		Neurons: o.neurons, Trials: o.trials, Bins: 60,
 		TwoPeakFrac: 0.25, UntunedFrac: 0.1, GainSD: 0.15, NoiseSD: 0.5, Seed: o.seed,
 	})
 	_ = ax
 	path := func(name string) string { return filepath.Join(o.dir, name) }
-	if err := data.WriteNPY(path("responses.npy"), []int{rec.Y.Rows, rec.Y.Cols}, rec.Y.Data); err != nil {
+	if err := format.WriteNPY(path("responses.npy"), []int{rec.Y.Rows, rec.Y.Cols}, rec.Y.Data); err != nil {
 		return "", nil, err
 	}
-	if err := data.WriteNPY64(path("heading.npy"), []int{len(rec.Stim)}, rec.Stim); err != nil {
+	if err := format.WriteNPY64(path("heading.npy"), []int{len(rec.Stim)}, rec.Stim); err != nil {
 		return "", nil, err
 	}
 	blocks := make([]float64, len(rec.Block))
 	for i, b := range rec.Block {
 		blocks[i] = float64(b)
 	}
-	if err := data.WriteNPY64(path("blocks.npy"), []int{len(blocks)}, blocks); err != nil {
+	if err := format.WriteNPY64(path("blocks.npy"), []int{len(blocks)}, blocks); err != nil {
 		return "", nil, err
 	}
-	if err := data.WriteNPY64(path("truth_means.npy"), []int{len(truth.Mean) / o.neurons, o.neurons}, truth.Mean); err != nil {
+	if err := format.WriteNPY64(path("truth_means.npy"), []int{len(truth.Mean) / o.neurons, o.neurons}, truth.Mean); err != nil {
 		return "", nil, err
 	}
 	type neuronTruth struct {

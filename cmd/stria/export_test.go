@@ -14,7 +14,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
 )
@@ -187,7 +187,7 @@ func TestExportAndReport(t *testing.T) {
 	// -24..24 deg ((j - 4) * 6, eval/figure.TapOffsets), the weights those of
 	// the run's filters.npy (8 x 9, written by stria fit).
 	fc := readCSVCols(t, filepath.Join(exp, "filters.csv"))
-	m, err := data.ReadNPY(filepath.Join(run, runfolder.FileFilters))
+	m, err := format.ReadNPY(filepath.Join(run, runfolder.FileFilters))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -209,7 +209,7 @@ func TestExportAndReport(t *testing.T) {
 	// The condition means of the tuning figure agree with those stria
 	// compare saved from the same recording and binning (curves/data_mean.npy,
 	// float64 written, float32 read: relative tolerance 1e-6).
-	if dm, err := data.ReadNPY(filepath.Join(cmp, runfolder.DirCurves, "data_mean.npy")); err == nil {
+	if dm, err := format.ReadNPY(filepath.Join(cmp, runfolder.DirCurves, "data_mean.npy")); err == nil {
 		tc := readCSVCols(t, filepath.Join(exp, "tuning_n5.csv"))
 		if len(tc["data_mean"]) != dm.Rows {
 			t.Fatalf("tuning_n5.csv: %d bins, data_mean.npy %d", len(tc["data_mean"]), dm.Rows)

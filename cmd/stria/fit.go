@@ -17,6 +17,7 @@ import (
 	"github.com/urfave/cli/v2"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
@@ -200,7 +201,7 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*runfolder.Su
 	written := make(chan error, 1)
 	go func() { written <- runfolder.WriteModel(dir, p, fitted) }()
 	var scores []eval.Scores
-	gerr := data.Guard(func() { scores = train.ScoreFitted(p, fitted) })
+	gerr := format.Guard(func() { scores = train.ScoreFitted(p, fitted) })
 	phase("score the test trials")
 	if err := <-written; err != nil {
 		return nil, err

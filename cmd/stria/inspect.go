@@ -10,6 +10,7 @@ import (
 	"github.com/urfave/cli/v2"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
@@ -34,7 +35,7 @@ func inspectCommand() *cli.Command {
 				return err
 			}
 			// A mapped recording truncated meanwhile: an error naming it.
-			if gerr := data.Guard(func() { err = inspect(c.App.Writer, cfg, rec) }); gerr != nil {
+			if gerr := format.Guard(func() { err = inspect(c.App.Writer, cfg, rec) }); gerr != nil {
 				return gerr
 			}
 			return err

@@ -12,7 +12,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
 )
@@ -142,8 +142,8 @@ func TestFitRefusesChangedData(t *testing.T) {
 	}
 	var out bytes.Buffer
 	_, err = runFit(context.Background(), cfg, fitOptions{quiet: true, stdout: &out, stderr: &out, afterFit: func() { f.shuffleTrials(t) }})
-	if !errors.Is(err, data.ErrChanged) || !strings.Contains(err.Error(), f.resp) {
-		t.Fatalf("got %v, want an error naming %s that wraps data.ErrChanged", err, f.resp)
+	if !errors.Is(err, format.ErrChanged) || !strings.Contains(err.Error(), f.resp) {
+		t.Fatalf("got %v, want an error naming %s that wraps format.ErrChanged", err, f.resp)
 	}
 	if _, err := os.Stat(filepath.Join(f.out, runfolder.FileComplete)); err == nil {
 		t.Error("complete.json written for a fit on changed data")

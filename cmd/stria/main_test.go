@@ -12,7 +12,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/eval/report/browsertest"
 	"github.com/strialab/stria/train/runfolder"
 )
@@ -107,7 +107,7 @@ func TestDemoEndToEnd(t *testing.T) {
 	if sum.WallSeconds <= 0 || sum.Neurons != 60 || len(sum.Cautions) == 0 {
 		t.Errorf("summary.json: %+v", sum)
 	}
-	filters, err := data.ReadNPY(filepath.Join(run, runfolder.FileFilters))
+	filters, err := format.ReadNPY(filepath.Join(run, runfolder.FileFilters))
 	if err != nil || filters.Rows != 8 || filters.Cols != 9 {
 		t.Errorf("filters.npy: %v, %+v", err, filters)
 	}
@@ -144,14 +144,14 @@ func TestDemoEndToEnd(t *testing.T) {
 
 	// predict: three headings, including the wrap-around value 360.
 	stim := filepath.Join(dir, "new.npy")
-	if err := data.WriteNPY64(stim, []int{3}, []float64{0, 90, 360}); err != nil {
+	if err := format.WriteNPY64(stim, []int{3}, []float64{0, 90, 360}); err != nil {
 		t.Fatal(err)
 	}
 	pred := filepath.Join(dir, "pred.npy")
 	if out, err := runCLI(t, "predict", "--stimulus", stim, "--out", pred, run); err != nil {
 		t.Fatalf("predict: %v\n%s", err, out)
 	}
-	m, err := data.ReadNPY(pred)
+	m, err := format.ReadNPY(pred)
 	if err != nil || m.Rows != 3 || m.Cols != 60 {
 		t.Fatalf("predictions: %v %+v", err, m)
 	}
@@ -162,7 +162,7 @@ func TestDemoEndToEnd(t *testing.T) {
 	}
 	// An out-of-range value is an error naming it (on a periodic axis any value
 	// wraps, so use NaN).
-	if err := data.WriteNPY64(stim, []int{2}, []float64{10, nanValue()}); err != nil {
+	if err := format.WriteNPY64(stim, []int{2}, []float64{10, nanValue()}); err != nil {
 		t.Fatal(err)
 	}
 	if _, err := runCLI(t, "predict", "--stimulus", stim, "--out", filepath.Join(dir, "pred2.npy"), run); err == nil || !strings.Contains(err.Error(), "1 (0-based)") {

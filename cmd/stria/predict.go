@@ -11,6 +11,7 @@ import (
 	"github.com/urfave/cli/v2"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train/runfolder"
 )
 
@@ -55,7 +56,7 @@ func predictCommand() *cli.Command {
 			if ext == ".csv" {
 				err = writePredictionsCSV(out, stim, pred, m.Manifest.Names)
 			} else {
-				err = data.WriteNPY(out, []int{pred.Rows, pred.Cols}, pred.Data)
+				err = format.WriteNPY(out, []int{pred.Rows, pred.Cols}, pred.Data)
 			}
 			if err != nil {
 				return err

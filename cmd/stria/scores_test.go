@@ -10,7 +10,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train/runfolder"
 )
 
@@ -66,10 +66,10 @@ func writeUntunedHeavy(t *testing.T, dir string, n, perCond int, split, extra st
 			y[i*n+j] = poisson(lam)
 		}
 	}
-	if err := data.WriteNPY(filepath.Join(dir, "resp.npy"), []int{T, n}, y); err != nil {
+	if err := format.WriteNPY(filepath.Join(dir, "resp.npy"), []int{T, n}, y); err != nil {
 		t.Fatal(err)
 	}
-	if err := data.WriteNPY64(filepath.Join(dir, "dir.npy"), []int{T}, stim); err != nil {
+	if err := format.WriteNPY64(filepath.Join(dir, "dir.npy"), []int{T}, stim); err != nil {
 		t.Fatal(err)
 	}
 	cfg := fmt.Sprintf(`seed: 3
@@ -295,7 +295,7 @@ func TestInspectSummarises(t *testing.T) {
 	for i := range stim {
 		stim[i] = float64(i%12) * 30 * math.Pi / 180
 	}
-	if err := data.WriteNPY64(filepath.Join(dir, "dir.npy"), []int{72}, stim); err != nil {
+	if err := format.WriteNPY64(filepath.Join(dir, "dir.npy"), []int{72}, stim); err != nil {
 		t.Fatal(err)
 	}
 	out, err = runCLI(t, "inspect", "--config", cfg)

@@ -8,7 +8,7 @@
 //
 //	go run ./cmd/striabench [flags]
 //
-// The recording is made by data.Synth (the demo's heading-tuned population)
+// The recording is made by synth.Population (the demo's heading-tuned population)
 // and cached in -dir; the default size is 24,000 neurons x 4,600 trials,
 // 60 bins of 6 degrees, one conv layer of 8 channels, kernel 9, circular
 // border. Every figure is printed as it is measured.
@@ -28,6 +28,8 @@ import (
 	"time"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
+	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/train/runfolder"
 )
 
@@ -258,14 +260,14 @@ func recording(o options, n, t int) (rec, error) {
 		return r, nil
 	}
 	start := time.Now()
-	cfg := data.DefaultSynthConfig()
+	cfg := synth.DefaultConfig()
 	cfg.Neurons, cfg.Trials, cfg.Seed = n, t, o.seed
 	cfg.Bins = 60
-	recd, _, _ := data.Synth(cfg)
-	if err := data.WriteNPY64(r.stim, []int{t}, recd.Stim); err != nil {
+	recd, _, _ := synth.Population(cfg)
+	if err := format.WriteNPY64(r.stim, []int{t}, recd.Stim); err != nil {
 		return r, err
 	}
-	if err := data.WriteNPY(r.resp, []int{t, n}, recd.Y.Data); err != nil {
+	if err := format.WriteNPY(r.resp, []int{t, n}, recd.Y.Data); err != nil {
 		return r, err
 	}
 	fmt.Printf("(generated %s in %.1f s)\n", filepath.Base(r.resp), time.Since(start).Seconds())
@@ -282,7 +284,7 @@ func subset(o options, full rec, n, t int) (rec, error) {
 	if fileExists(r.resp) && fileExists(r.stim) {
 		return r, nil
 	}
-	m, err := data.ReadNPY(full.resp)
+	m, err := format.ReadNPY(full.resp)
 	if err != nil {
 		return r, err
 	}
@@ -294,10 +296,10 @@ func subset(o options, full rec, n, t int) (rec, error) {
 	for i := 0; i < t; i++ {
 		copy(sub[i*n:(i+1)*n], m.Row(i)[:n])
 	}
-	if err := data.WriteNPY64(r.stim, []int{t}, stim[:t]); err != nil {
+	if err := format.WriteNPY64(r.stim, []int{t}, stim[:t]); err != nil {
 		return r, err
 	}
-	return r, data.WriteNPY(r.resp, []int{t, n}, sub)
+	return r, format.WriteNPY(r.resp, []int{t, n}, sub)
 }
 
 func fileExists(p string) bool {
@@ -305,7 +307,7 @@ func fileExists(p string) bool {
 	return err == nil
 }
 
-// measureLoad times data.ReadNPY of the response file.
+// measureLoad times format.ReadNPY of the response file.
 func measureLoad(path string, repeats int) error {
 	st, err := os.Stat(path)
 	if err != nil {
@@ -322,7 +324,7 @@ func measureLoad(path string, repeats int) error {
 	var rates, calls []float64
 	for i := 0; i < max(1, repeats); i++ {
 		start := time.Now()
-		m, err := data.ReadNPY(path)
+		m, err := format.ReadNPY(path)
 		if err != nil {
 			return err
 		}
@@ -340,7 +342,7 @@ func measureLoad(path string, repeats int) error {
 	}
 	slices.Sort(rates)
 	slices.Sort(calls)
-	fmt.Printf("load (data.ReadNPY and one pass over every value, file in the page cache): median %.2f GB/s, best %.2f GB/s over %d loads of %.0f MB (target >= 1); the ReadNPY call alone: median %.3f s\n",
+	fmt.Printf("load (format.ReadNPY and one pass over every value, file in the page cache): median %.2f GB/s, best %.2f GB/s over %d loads of %.0f MB (target >= 1); the ReadNPY call alone: median %.3f s\n",
 		rates[len(rates)/2], rates[len(rates)-1], len(rates), float64(st.Size())/1e6, calls[len(calls)/2])
 	return nil
 }

@@ -6,7 +6,7 @@ import (
 	"slices"
 	"strings"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
 )
@@ -64,14 +64,14 @@ func unitSettings(rec *train.Config, spec train.ModelSpec) ([]byte, error) {
 }
 
 // fingerprint is the fingerprint of unit u given its recording's files.
-func (p *Plan) fingerprint(u Unit, files []data.FileID) runfolder.Fingerprint {
+func (p *Plan) fingerprint(u Unit, files []format.FileID) runfolder.Fingerprint {
 	return runfolder.Fingerprint{Settings: p.settings[u.Rec][u.Spec], Files: files}
 }
 
 // checkDone reads the result of a finished unit and refuses it when its
 // fingerprint differs from the unit's now. The error names every
 // difference and how to go on.
-func (p *Plan) checkDone(u Unit, files []data.FileID) (*runfolder.FoldResult, error) {
+func (p *Plan) checkDone(u Unit, files []format.FileID) (*runfolder.FoldResult, error) {
 	r, err := runfolder.ReadFoldResult(p.Dir(), u.ID)
 	if err != nil {
 		return nil, err

@@ -9,7 +9,8 @@ import (
 	"testing"
 	"time"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
+	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
 )
@@ -85,11 +86,11 @@ func TestUnitSettings(t *testing.T) {
 func TestChangedDataRefused(t *testing.T) {
 	dir := t.TempDir()
 	resp, stim := filepath.Join(dir, "r.npy"), filepath.Join(dir, "s.npy")
-	rec, _, _ := data.Synth(data.SynthConfig{Neurons: 10, Trials: 160, Bins: 8, NoiseSD: 0.5, Seed: 4})
-	if err := data.WriteNPY(resp, []int{rec.Y.Rows, rec.Y.Cols}, rec.Y.Data); err != nil {
+	rec, _, _ := synth.Population(synth.Config{Neurons: 10, Trials: 160, Bins: 8, NoiseSD: 0.5, Seed: 4})
+	if err := format.WriteNPY(resp, []int{rec.Y.Rows, rec.Y.Cols}, rec.Y.Data); err != nil {
 		t.Fatal(err)
 	}
-	if err := data.WriteNPY64(stim, []int{len(rec.Stim)}, rec.Stim); err != nil {
+	if err := format.WriteNPY64(stim, []int{len(rec.Stim)}, rec.Stim); err != nil {
 		t.Fatal(err)
 	}
 	src := strings.Replace(fpConfig, "data: {responses: r.npy}", "data: {responses: r.npy, stimulus: s.npy}", 1)
@@ -116,8 +117,8 @@ func TestChangedDataRefused(t *testing.T) {
 			os.Chtimes(resp, later, later)
 		}
 	})
-	if !errors.Is(err, data.ErrChanged) || !strings.Contains(err.Error(), resp) {
-		t.Fatalf("got %v, want an error naming %s that wraps data.ErrChanged", err, resp)
+	if !errors.Is(err, format.ErrChanged) || !strings.Contains(err.Error(), resp) {
+		t.Fatalf("got %v, want an error naming %s that wraps format.ErrChanged", err, resp)
 	}
 	n := 0
 	for _, u := range p.Units {

@@ -8,7 +8,8 @@ import (
 	"strconv"
 	"strings"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/condstats"
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/eval/tuning"
 	"github.com/strialab/stria/train"
@@ -65,7 +66,7 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 			results = append(results, r)
 		}
 		var folder *runfolder.ComparisonFolder
-		if gerr := data.Guard(func() { folder, err = newFolder(prep, rec.Specs, results, folds) }); gerr != nil {
+		if gerr := format.Guard(func() { folder, err = newFolder(prep, rec.Specs, results, folds) }); gerr != nil {
 			return nil, p.recErr(rec, gerr)
 		}
 		if err != nil {
@@ -169,7 +170,7 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.
 	for i := range all {
 		all[i] = i
 	}
-	st := data.NewCondStats(p.Rec.Y, p.Cond, all, nb)
+	st := condstats.New(p.Rec.Y, p.Cond, all, nb)
 	means := st.Mean(nil)
 	sem := st.Var(nil)
 	for b := 0; b < nb; b++ {

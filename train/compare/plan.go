@@ -11,7 +11,7 @@ import (
 	"strings"
 	"sync"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
 )
@@ -200,7 +200,7 @@ func (p *Plan) prepare(ri int) (*train.Prepared, [][3][]int, error) {
 		return nil, nil, p.recErr(rec, err)
 	}
 	var folds [][3][]int
-	if err := data.Guard(func() { folds, err = train.Folds(prep) }); err != nil {
+	if err := format.Guard(func() { folds, err = train.Folds(prep) }); err != nil {
 		return nil, nil, p.recErr(rec, err)
 	}
 	if err != nil {
@@ -284,7 +284,7 @@ func (p *Plan) RunUnits(ctx context.Context, units []Unit, workers int, progress
 		var mu sync.Mutex
 		var firstErr error
 		next := 0
-		var g data.GuardGroup
+		var g format.GuardGroup
 		for w := 0; w < min(workers, len(todo)); w++ {
 			g.Go(func() {
 				for {
@@ -328,7 +328,7 @@ func (p *Plan) recErr(rec Recording, err error) error {
 	return fmt.Errorf("recording %s: %w", rec.Name, err)
 }
 
-func (p *Plan) runOne(ctx context.Context, prep *train.Prepared, rec Recording, u Unit, sets [3][]int, files []data.FileID) error {
+func (p *Plan) runOne(ctx context.Context, prep *train.Prepared, rec Recording, u Unit, sets [3][]int, files []format.FileID) error {
 	if err := runfolder.RemoveFoldResultTemps(p.Dir(), u.ID); err != nil {
 		return err
 	}

@@ -8,6 +8,8 @@ import (
 	"strings"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/condstats"
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/eval/figure"
 	"github.com/strialab/stria/eval/report"
 	"github.com/strialab/stria/eval/tuning"
@@ -138,8 +140,8 @@ func loadCondData(dir string, m *runfolder.Manifest) (*condData, error) {
 	}
 	// Under the fault guard: a mapped recording truncated meanwhile gives
 	// an error naming it.
-	var st *data.CondStats
-	if err := data.Guard(func() { st = data.NewCondStats(rec.Y, sp.Cond, all, nb) }); err != nil {
+	var st *condstats.Stats
+	if err := format.Guard(func() { st = condstats.New(rec.Y, sp.Cond, all, nb) }); err != nil {
 		return nil, err
 	}
 	cd := &condData{Mean: st.Mean(nil), SEM: st.Var(nil), Trials: rec.Y.Rows}
@@ -265,7 +267,7 @@ func exportRun(dir, out string, opt Options) (*Exported, error) {
 	if err := writeColumns(filepath.Join(out, "filters.csv"), hdr, cols); err != nil {
 		return nil, err
 	}
-	if err := data.WriteNPY64(filepath.Join(out, "filters.npy"), []int{chans, k}, filt); err != nil {
+	if err := format.WriteNPY64(filepath.Join(out, "filters.npy"), []int{chans, k}, filt); err != nil {
 		return nil, err
 	}
 	im, err := figure.Filters(filt, chans, k, binW, ax)
@@ -276,7 +278,7 @@ func exportRun(dir, out string, opt Options) (*Exported, error) {
 
 	last := len(net.Convs) - 1
 	lc, lp := net.Convs[last].Out, net.OutLen(last)
-	if err := data.WriteNPY64(filepath.Join(out, "readout_weights.npy"), []int{n, lc, lp}, net.ReadW()); err != nil {
+	if err := format.WriteNPY64(filepath.Join(out, "readout_weights.npy"), []int{n, lc, lp}, net.ReadW()); err != nil {
 		return nil, err
 	}
 
@@ -344,7 +346,7 @@ func exportRun(dir, out string, opt Options) (*Exported, error) {
 		}
 		pref[j] = tuning.Describe(r, values, period).Preferred
 	}
-	if err := data.WriteNPY64(filepath.Join(out, "encoder_curves.npy"), []int{nb, n}, pred); err != nil {
+	if err := format.WriteNPY64(filepath.Join(out, "encoder_curves.npy"), []int{nb, n}, pred); err != nil {
 		return nil, err
 	}
 	if err := writeColumns(filepath.Join(out, "preferred.csv"), []string{"neuron", "preferred"}, [][]float64{seq(n), pref}); err != nil {

@@ -10,6 +10,7 @@ import (
 	"gonum.org/v1/gonum/stat/distuv"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/condstats"
 	"github.com/strialab/stria/nn"
 )
 
@@ -180,11 +181,11 @@ func newCase(tb testing.TB, rec *data.Recording, bins int, poisson bool, o caseO
 	if o.penalty == 0 {
 		o.penalty = 1
 	}
-	st := data.NewCondStats(rec.Y, cond, c.train, bins)
-	sv := data.NewCondStats(rec.Y, cond, c.val, bins)
+	st := condstats.New(rec.Y, cond, c.train, bins)
+	sv := condstats.New(rec.Y, cond, c.val, bins)
 	c.pr = Problem{Train: st, Val: sv, Penalty: o.penalty}
 	if !poisson {
-		c.pr.Norm = data.NormalizerFromStats(st, sv)
+		c.pr.Norm = condstats.NormalizerFromStats(st, sv)
 	}
 	return c
 }
@@ -213,7 +214,7 @@ func (c *testCase) net(seed, stream uint64) *nn.Net {
 // test mean (NaN where SST is 0).
 func (c *testCase) testR2(pred []float64) []float64 {
 	N := c.N
-	st := data.NewCondStats(c.y, c.cond, c.test, c.B)
+	st := condstats.New(c.y, c.cond, c.test, c.B)
 	sse, tot, grand := make([]float64, N), make([]float64, N), make([]float64, N)
 	for b, k := range st.Count {
 		if k == 0 {
@@ -243,7 +244,7 @@ func (c *testCase) testR2(pred []float64) []float64 {
 func (c *testCase) condMeanPred() []float64 {
 	N := c.N
 	seen := append(slices.Clone(c.train), c.val...)
-	st := data.NewCondStats(c.y, c.cond, seen, c.B)
+	st := condstats.New(c.y, c.cond, seen, c.B)
 	out := make([]float64, c.B*N)
 	grand := make([]float64, N)
 	for b, k := range st.Count {

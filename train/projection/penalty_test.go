@@ -5,16 +5,16 @@ import (
 	"slices"
 	"testing"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/nn"
 )
 
-// synthCase is a small recording of data.Synth's scenario (40 cells, 400
+// synthCase is a small recording of synth.Population's scenario (40 cells, 400
 // trials, 30 bins) with 3 channels and stride 2 (F 45 > Bt 30, the
 // full-size situation) and random filters.
 func synthCase(t *testing.T, border nn.Border, l2 float64) (*testCase, *nn.Net) {
 	t.Helper()
-	rec, _, _ := data.Synth(data.SynthConfig{Neurons: 40, Trials: 400, Bins: 30, TwoPeakFrac: 0.25, UntunedFrac: 0.1, GainSD: 0.15, NoiseSD: 0.5, Seed: 11})
+	rec, _, _ := synth.Population(synth.Config{Neurons: 40, Trials: 400, Bins: 30, TwoPeakFrac: 0.25, UntunedFrac: 0.1, GainSD: 0.15, NoiseSD: 0.5, Seed: 11})
 	c := newCase(t, rec, 30, false, caseOptions{penalty: l2, convs: []nn.ConvSpec{{Out: 3, K: 5, Stride: 2, Border: border}}})
 	return c, c.net(3, 4)
 }

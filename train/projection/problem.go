@@ -3,7 +3,7 @@ package projection
 import (
 	"fmt"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/condstats"
 	"github.com/strialab/stria/eval"
 )
 
@@ -14,10 +14,10 @@ type Problem struct {
 	// Train and Val are the per-condition statistics (B conditions, N
 	// neurons) of the training and validation trials, in the recording's
 	// units; Val may be nil or hold no trials (no validation).
-	Train, Val *data.CondStats
+	Train, Val *condstats.Stats
 	// Norm z-scores the responses (nil: none); the solvers work in the
 	// z-scored units and return predictions in them.
-	Norm *data.Normalizer
+	Norm *condstats.Normalizer
 	// Penalty is model.readout_l2, the ridge penalty the filters train
 	// with (> 0).
 	Penalty float64
@@ -44,7 +44,7 @@ func (pr *Problem) binLabel(b int) string {
 }
 
 // trials is the number of trials behind st.
-func trials(st *data.CondStats) int {
+func trials(st *condstats.Stats) int {
 	n := 0
 	for _, k := range st.Count {
 		n += k

@@ -12,7 +12,7 @@ import (
 	"strconv"
 	"strings"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/eval/tuning"
 )
@@ -246,7 +246,7 @@ func WriteComparison(dir string, c *ComparisonFolder) error {
 		if !ok {
 			return fmt.Errorf("%s: no curves of %s", dir, name)
 		}
-		if err := data.WriteNPY64(filepath.Join(dir, DirCurves, FileName(name)+".npy"), []int{nb, n}, v); err != nil {
+		if err := format.WriteNPY64(filepath.Join(dir, DirCurves, FileName(name)+".npy"), []int{nb, n}, v); err != nil {
 			return err
 		}
 	}
@@ -543,7 +543,7 @@ func ReadComparisonInfo(dir string) (*ComparisonInfo, error) {
 // curves, or CurveDataMean, CurveDataSEM): bins x neurons.
 func ReadCurves(dir, name string, nb, n int) ([]float64, error) {
 	path := filepath.Join(dir, DirCurves, FileName(name)+".npy")
-	shape, v, err := data.ReadArray(path)
+	shape, v, err := format.ReadArray(path)
 	if err != nil {
 		return nil, err
 	}

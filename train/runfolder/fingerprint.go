@@ -3,7 +3,7 @@ package runfolder
 import (
 	"fmt"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
 )
 
 // Fingerprint is what the numbers of one comparison unit depend on: the
@@ -13,7 +13,7 @@ import (
 // fingerprint for it is the same.
 type Fingerprint struct {
 	Settings []byte
-	Files    []data.FileID
+	Files    []format.FileID
 }
 
 // Mismatch lists how the fingerprint have (of a result on disk) differs
@@ -42,7 +42,7 @@ func (want Fingerprint) Mismatch(have Fingerprint, diff func(old, new []byte) ([
 // FilesMismatch lists how the data files have (recorded with a result)
 // differ from want (used now), one line per file that differs, as in
 // Fingerprint.Mismatch; nil when they match.
-func FilesMismatch(have, want []data.FileID) []string {
+func FilesMismatch(have, want []format.FileID) []string {
 	var out []string
 	for i := range max(len(have), len(want)) {
 		switch {

@@ -10,7 +10,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
 )
 
 func writeLock(t *testing.T, dir string, l LockInfo) {
@@ -179,7 +179,7 @@ func TestEmpty(t *testing.T) {
 }
 
 func TestFingerprintMismatch(t *testing.T) {
-	a := data.FileID{Path: "/d/resp.npy", Size: 100, Hash: "crc32pair-4MiB:aa"}
+	a := format.FileID{Path: "/d/resp.npy", Size: 100, Hash: "crc32pair-4MiB:aa"}
 	moved := a
 	moved.Path = "/e/resp.npy"
 	changed := a
@@ -190,11 +190,11 @@ func TestFingerprintMismatch(t *testing.T) {
 		have, now Fingerprint
 		want      string // "" : match
 	}{
-		{"same", Fingerprint{[]byte("1"), []data.FileID{a}}, Fingerprint{[]byte("1"), []data.FileID{a}}, ""},
-		{"moved copy", Fingerprint{[]byte("1"), []data.FileID{a}}, Fingerprint{[]byte("1"), []data.FileID{moved}}, ""},
-		{"settings", Fingerprint{[]byte("1"), []data.FileID{a}}, Fingerprint{[]byte("2"), []data.FileID{a}}, "seed: 1 -> 2"},
-		{"content", Fingerprint{[]byte("1"), []data.FileID{a}}, Fingerprint{[]byte("1"), []data.FileID{changed}}, "resp.npy: content differs"},
-		{"none", Fingerprint{}, Fingerprint{[]byte("1"), []data.FileID{a}}, "no fingerprint"},
+		{"same", Fingerprint{[]byte("1"), []format.FileID{a}}, Fingerprint{[]byte("1"), []format.FileID{a}}, ""},
+		{"moved copy", Fingerprint{[]byte("1"), []format.FileID{a}}, Fingerprint{[]byte("1"), []format.FileID{moved}}, ""},
+		{"settings", Fingerprint{[]byte("1"), []format.FileID{a}}, Fingerprint{[]byte("2"), []format.FileID{a}}, "seed: 1 -> 2"},
+		{"content", Fingerprint{[]byte("1"), []format.FileID{a}}, Fingerprint{[]byte("1"), []format.FileID{changed}}, "resp.npy: content differs"},
+		{"none", Fingerprint{}, Fingerprint{[]byte("1"), []format.FileID{a}}, "no fingerprint"},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			got := strings.Join(c.now.Mismatch(c.have, diff), "; ")

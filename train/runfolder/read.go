@@ -5,7 +5,7 @@ import (
 	"path/filepath"
 	"strings"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train"
 )
 
@@ -41,7 +41,7 @@ func ReadRun(dir string) (*Run, error) {
 	}
 	for name, a := range mf.Arrays {
 		path := filepath.Join(dir, filepath.FromSlash(a.File))
-		shape, v, err := data.ReadArray(path)
+		shape, v, err := format.ReadArray(path)
 		if err != nil {
 			return nil, err
 		}
@@ -50,7 +50,7 @@ func ReadRun(dir string) (*Run, error) {
 		}
 		r.Parameters[name] = v
 	}
-	if r.FilterShape, r.Filters, err = data.ReadArray(filepath.Join(dir, FileFilters)); err != nil {
+	if r.FilterShape, r.Filters, err = format.ReadArray(filepath.Join(dir, FileFilters)); err != nil {
 		return nil, err
 	}
 	sp, err := ReadSplit(dir)
@@ -108,11 +108,11 @@ func WriteRun(dir string, r *Run) error {
 		if !ok {
 			return fmt.Errorf("%s: no values for array %s", dir, name)
 		}
-		if err := data.WriteNPY64(filepath.Join(dir, filepath.FromSlash(a.File)), a.Shape, v); err != nil {
+		if err := format.WriteNPY64(filepath.Join(dir, filepath.FromSlash(a.File)), a.Shape, v); err != nil {
 			return err
 		}
 	}
-	if err := data.WriteNPY64(filepath.Join(dir, FileFilters), r.FilterShape, r.Filters); err != nil {
+	if err := format.WriteNPY64(filepath.Join(dir, FileFilters), r.FilterShape, r.Filters); err != nil {
 		return err
 	}
 	if err := WriteJSON(filepath.Join(dir, FileManifest), r.Manifest); err != nil {

@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/nn"
 	"github.com/strialab/stria/train"
@@ -552,7 +553,7 @@ func WriteModel(dir string, p *train.Prepared, f *train.Fitted) error {
 		}
 	}
 	c0 := net.Convs[0]
-	if err := data.WriteNPY64(filepath.Join(dir, FileFilters), []int{c0.Out * net.In, c0.K}, net.ConvW(0)); err != nil {
+	if err := format.WriteNPY64(filepath.Join(dir, FileFilters), []int{c0.Out * net.In, c0.K}, net.ConvW(0)); err != nil {
 		return err
 	}
 	if err := WriteJSON(filepath.Join(dir, FileManifest), m); err != nil {
@@ -612,7 +613,7 @@ func penaltyInfo(setting train.Penalty, chosen []float64) PenaltyInfo {
 func saveArray(dir string, m *Manifest, name string, shape []int, v []float64) error {
 	rel := filepath.Join(DirParameters, name+".npy")
 	m.Arrays[name] = Array{File: filepath.ToSlash(rel), Shape: shape}
-	return data.WriteNPY64(filepath.Join(dir, rel), shape, v)
+	return format.WriteNPY64(filepath.Join(dir, rel), shape, v)
 }
 
 // ReadManifest reads model.json.
@@ -700,7 +701,7 @@ func LoadModel(dir string) (*Model, error) {
 			return nil, fmt.Errorf("%s: no array %q", path, name)
 		}
 		file := filepath.Join(dir, filepath.FromSlash(a.File))
-		_, v, err := data.ReadArray(file)
+		_, v, err := format.ReadArray(file)
 		if err != nil {
 			return nil, err
 		}

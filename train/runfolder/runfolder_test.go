@@ -16,7 +16,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/eval/tuning"
 	"github.com/strialab/stria/train"
@@ -244,7 +244,7 @@ func TestNeuronScoresOddNames(t *testing.T) {
 func smallFit(t *testing.T) (*train.Prepared, *train.Fitted, []eval.Scores) {
 	t.Helper()
 	n := len(oddNames)
-	rec, _, _ := data.Synth(data.SynthConfig{Neurons: n, Trials: 360, Bins: 12, TwoPeakFrac: 0.25, GainSD: 0.1, NoiseSD: 0.5, Seed: 3})
+	rec, _, _ := synth.Population(synth.Config{Neurons: n, Trials: 360, Bins: 12, TwoPeakFrac: 0.25, GainSD: 0.1, NoiseSD: 0.5, Seed: 3})
 	rec.Neurons = slices.Clone(oddNames)
 	for i := 0; i < rec.Y.Rows; i++ {
 		rec.Y.Row(i)[0] = 2

@@ -1,4 +1,4 @@
-package data
+package synth
 
 import (
 	"bufio"
@@ -10,10 +10,12 @@ import (
 	"runtime"
 	"sync"
 	"unsafe"
+
+	"github.com/strialab/stria/data/format"
 )
 
-// SynthStreamConfig describes a large synthetic recording written straight
-// to disk by WriteSynthNPY: a population of cells tuned to a periodic
+// StreamConfig describes a large synthetic recording written straight
+// to disk by WriteNPY: a population of cells tuned to a periodic
 // stimulus (0..360 deg), for tests and benchmarks of the streaming path at
 // sizes that do not fit in memory. Model, for neuron n and trial t with
 // stimulus th_t:
@@ -28,7 +30,7 @@ import (
 // log-normal around 1 and b_n uniform on [0.2, 0.5]. e and z are standard
 // normal. Stimulus values are uniform on [0, 360). Cells share shapes so
 // that drawing a million of them costs O(N) memory and O(1) per value.
-type SynthStreamConfig struct {
+type StreamConfig struct {
 	Neurons, Trials int
 	UntunedFrac     float64 // share of untuned cells
 	GainSD          float64 // shared gain fluctuation across trials, e.g. 0.15
@@ -40,7 +42,7 @@ type SynthStreamConfig struct {
 }
 
 // Validate checks the configuration; errors name the field.
-func (c SynthStreamConfig) Validate() error {
+func (c StreamConfig) Validate() error {
 	bad := func(f string, v any, want string) error {
 		return fmt.Errorf("data: synthetic stream %s = %v: %s", f, v, want)
 	}
@@ -66,8 +68,8 @@ const (
 	synthGrid   = 360
 )
 
-// synthCells holds the per-cell parameters of a SynthStreamConfig draw.
-type synthCells struct {
+// cells holds the per-cell parameters of a StreamConfig draw.
+type cells struct {
 	bank  []float64 // synthShapes x (synthGrid+1), the last column repeating the first
 	shape []int32   // per cell; -1 untuned
 	shift []int32   // per cell, grid steps
@@ -75,10 +77,10 @@ type synthCells struct {
 	base  []float32
 }
 
-func newSynthCells(cfg SynthStreamConfig) *synthCells {
+func newCells(cfg StreamConfig) *cells {
 	rng := rand.New(rand.NewPCG(cfg.Seed, 0x73747269615f7374)) // second word: "stria_st"
 	const G = synthGrid
-	sc := &synthCells{bank: make([]float64, synthShapes*(G+1))}
+	sc := &cells{bank: make([]float64, synthShapes*(G+1))}
 	for k := 0; k < synthShapes; k++ {
 		row := sc.bank[k*(G+1) : (k+1)*(G+1)]
 		nb := 1 + rng.IntN(3)
@@ -110,7 +112,7 @@ func newSynthCells(cfg SynthStreamConfig) *synthCells {
 // row writes trial t's responses into dst, with stimulus th (deg) and
 // gain g, noise from its own generator seeded by (seed, t) so that rows
 // can be drawn in any order.
-func (sc *synthCells) row(dst []float32, th, g, noise float64, seed uint64, t int) {
+func (sc *cells) row(dst []float32, th, g, noise float64, seed uint64, t int) {
 	const G = synthGrid
 	rng := rand.New(rand.NewPCG(seed^0x6e6f697365, uint64(t))) // "noise"
 	x := th * G / 360
@@ -133,22 +135,22 @@ func (sc *synthCells) row(dst []float32, th, g, noise float64, seed uint64, t in
 	}
 }
 
-// WriteSynthNPY writes the recording of cfg to path as a little-endian
+// WriteNPY writes the recording of cfg to path as a little-endian
 // float32 .npy (Trials x Neurons, C order), BlockRows rows at a time, and
 // returns the stimulus value of each trial (deg). Memory is one block of
 // rows and O(Neurons) parameters, whatever the size of the file. The same
 // config gives the same file on every machine and for any BlockRows or
 // number of cores: each trial's noise has its own generator. Writing is
-// atomic as for WriteNPY (a temporary file renamed over path).
-func WriteSynthNPY(path string, cfg SynthStreamConfig) (stim []float64, err error) {
+// atomic as for format.WriteNPY (a temporary file renamed over path).
+func WriteNPY(path string, cfg StreamConfig) (stim []float64, err error) {
 	if err := cfg.Validate(); err != nil {
 		return nil, err
 	}
-	if !hostLittle {
-		return nil, fmt.Errorf("data: WriteSynthNPY needs a little-endian machine")
+	if !format.HostLittle {
+		return nil, fmt.Errorf("data: WriteNPY needs a little-endian machine")
 	}
 	N, T := cfg.Neurons, cfg.Trials
-	sc := newSynthCells(cfg)
+	sc := newCells(cfg)
 	rng := rand.New(rand.NewPCG(cfg.Seed, 0x73747269615f7374^1))
 	stim = make([]float64, T)
 	gain := make([]float64, T)
@@ -182,7 +184,7 @@ func WriteSynthNPY(path string, cfg SynthStreamConfig) (stim []float64, err erro
 		}
 	}()
 	w := bufio.NewWriterSize(f, 1<<20)
-	if _, err = w.Write(npyHeaderBytes("<f4", []int{T, N})); err != nil {
+	if _, err = w.Write(format.NPYHeaderBytes("<f4", []int{T, N})); err != nil {
 		return nil, fmt.Errorf("data: writing %s: %w", path, err)
 	}
 	buf := make([]float32, R*N)

@@ -1,4 +1,4 @@
-package data
+package condstats
 
 import (
 	"syscall"

@@ -1,4 +1,4 @@
-package data
+package synth
 
 import (
 	"fmt"
@@ -6,6 +6,8 @@ import (
 	"math/rand/v2"
 
 	"gonum.org/v1/gonum/stat/distuv"
+
+	"github.com/strialab/stria/data"
 )
 
 // BumpsConfig describes a synthetic population of cells with one to three
@@ -31,14 +33,14 @@ type BumpsConfig struct {
 	Seed            uint64
 }
 
-// SynthBumps draws a recording of the BumpsConfig scenario. It returns the
+// Bumps draws a recording of the BumpsConfig scenario. It returns the
 // recording, its axis and the noise-free bin means (Bins x N, the mean of
 // mu over the bin and over the gain, i.e. b_n + E[g] f_n averaged over the
 // bin), the oracle that no stimulus model can beat in expectation. It
 // panics on a config with sizes < 1.
-func SynthBumps(cfg BumpsConfig) (*Recording, *Axis, []float64) {
+func Bumps(cfg BumpsConfig) (*data.Recording, *data.Axis, []float64) {
 	if cfg.Neurons < 1 || cfg.Trials < 1 || cfg.Bins < 1 {
-		panic(fmt.Sprintf("data: SynthBumps with %d neurons, %d trials, %d bins", cfg.Neurons, cfg.Trials, cfg.Bins))
+		panic(fmt.Sprintf("data: Bumps with %d neurons, %d trials, %d bins", cfg.Neurons, cfg.Trials, cfg.Bins))
 	}
 	if cfg.Scale == 0 {
 		cfg.Scale = 3
@@ -89,9 +91,9 @@ func SynthBumps(cfg BumpsConfig) (*Recording, *Axis, []float64) {
 			means[b*N+n] = m
 		}
 	}
-	rec := &Recording{
-		Y: NewMatrix(T, N), Stim: make([]float64, T), Neurons: make([]string, N),
-		Source: Source{Responses: fmt.Sprintf("synthetic-bumps(seed=%d)", cfg.Seed)},
+	rec := &data.Recording{
+		Y: data.NewMatrix(T, N), Stim: make([]float64, T), Neurons: make([]string, N),
+		Source: data.Source{Responses: fmt.Sprintf("synthetic-bumps(seed=%d)", cfg.Seed)},
 	}
 	for n := range rec.Neurons {
 		rec.Neurons[n] = fmt.Sprintf("cell%04d", n)
@@ -115,6 +117,6 @@ func SynthBumps(cfg BumpsConfig) (*Recording, *Axis, []float64) {
 			row[n] = float32(mu + cfg.NoiseSD*rng.NormFloat64())
 		}
 	}
-	ax := &Axis{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, Bins: B}
+	ax := &data.Axis{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, Bins: B}
 	return rec, ax, means
 }

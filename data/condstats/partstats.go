@@ -1,9 +1,11 @@
-package data
+package condstats
 
 import (
 	"fmt"
 	"math"
 	"runtime"
+
+	"github.com/strialab/stria/data/format"
 )
 
 // NoPart marks a trial that belongs to no part of a StreamPlan.
@@ -141,7 +143,7 @@ func (ps *PartStats) Means(dst []float64) []float64 {
 }
 
 // Sums writes the absolute per-condition sums S_bn = Sum_bn + N_b r_n
-// (CondStats.Sum; what the Poisson fast path needs) into dst (B x N;
+// (Stats.Sum; what the Poisson fast path needs) into dst (B x N;
 // allocated if nil) and returns it; empty conditions give 0. dst may be
 // ps.Sum. It panics like Means.
 func (ps *PartStats) Sums(dst []float64) []float64 {
@@ -267,16 +269,16 @@ func (ps *PartStats) TotalSS(dst []float64) []float64 {
 	return dst
 }
 
-// CondStats converts the statistics of a part kept with CondSquares to a
-// CondStats (absolute sums, Sum_b + N_b r and SumSq_b + 2 r Sum_b + N_b
-// r^2), for code written against CondStats. It panics if the part was
+// Stats converts the statistics of a part kept with CondSquares to a
+// Stats (absolute sums, Sum_b + N_b r and SumSq_b + 2 r Sum_b + N_b
+// r^2), for code written against Stats. It panics if the part was
 // accumulated without CondSquares.
-func (ps *PartStats) CondStats() *CondStats {
+func (ps *PartStats) Stats() *Stats {
 	if ps.SumSq == nil {
-		panic("data: PartStats.CondStats needs a part accumulated with CondSquares")
+		panic("data: PartStats.Stats needs a part accumulated with CondSquares")
 	}
 	N := ps.N
-	cs := &CondStats{B: ps.B, N: N, Count: append([]int(nil), ps.Count...),
+	cs := &Stats{B: ps.B, N: N, Count: append([]int(nil), ps.Count...),
 		Sum: make([]float64, ps.B*N), SumSq: make([]float64, ps.B*N)}
 	for b, k := range ps.Count {
 		if k == 0 {
@@ -380,7 +382,7 @@ type StreamOptions struct {
 // non-finite response in a trial of a part (the neuron and trial are
 // named; found after the pass from the sums, then located with one small
 // read per trial).
-func AccumulateParts(s *NPYStream, plan StreamPlan, opt StreamOptions) ([]*PartStats, error) {
+func AccumulateParts(s *format.NPYStream, plan StreamPlan, opt StreamOptions) ([]*PartStats, error) {
 	T, N := s.Rows(), s.Cols()
 	acc, first, err := newAccumulator(&plan, T, N, s.Name())
 	if err != nil {
@@ -436,7 +438,7 @@ func AccumulateParts(s *NPYStream, plan StreamPlan, opt StreamOptions) ([]*PartS
 				case <-done:
 					return
 				}
-				err := s.readSpan32(bufs[i][:(hi-lo)*(c1-c0)], lo, c0)
+				err := s.ReadSpan32(bufs[i][:(hi-lo)*(c1-c0)], lo, c0)
 				full <- block{lo, hi, c0, c1, i, err}
 				if err != nil {
 					return
@@ -471,13 +473,13 @@ func AccumulateParts(s *NPYStream, plan StreamPlan, opt StreamOptions) ([]*PartS
 // reference trials, so bitwise equal to those of the file y was read from.
 // It lets an in-memory fit use the numbers a streamed fit of the same file
 // uses. Errors as for AccumulateParts (the file named "responses"), and
-// the *FaultError of a mapped y whose file is truncated during the pass.
-func AccumulatePartsMatrix(y *Matrix, plan StreamPlan, opt StreamOptions) ([]*PartStats, error) {
+// the *format.FaultError of a mapped y whose file is truncated during the pass.
+func AccumulatePartsMatrix(y *format.Matrix, plan StreamPlan, opt StreamOptions) ([]*PartStats, error) {
 	acc, first, err := newAccumulator(&plan, y.Rows, y.Cols, "responses")
 	if err != nil {
 		return nil, err
 	}
-	if err := Guard(func() {
+	if err := format.Guard(func() {
 		for i, t := range first {
 			if t >= 0 {
 				acc.setRef(i, y.Row(t))
@@ -575,8 +577,8 @@ func (a *accumulator) setRef(i int, row []float32) {
 // addParallel adds the values held in y, rows [lo, hi) x neurons
 // [y0, y1) (element (t, n) at (t-lo)*(y1-y0) + n-y0), over workers
 // goroutines (0: GOMAXPROCS, at most one per 256 neurons), each owning a
-// range of neurons. The goroutines run under Guard: a mapped y whose file
-// is truncated during the pass gives a *FaultError, not a crash.
+// range of neurons. The goroutines run under format.Guard: a mapped y whose file
+// is truncated during the pass gives a *format.FaultError, not a crash.
 func (a *accumulator) addParallel(y []float32, lo, hi, y0, y1, workers int) error {
 	w := y1 - y0
 	if workers <= 0 {
@@ -584,7 +586,7 @@ func (a *accumulator) addParallel(y []float32, lo, hi, y0, y1, workers int) erro
 	}
 	workers = max(1, min(workers, w/256))
 	chunk := (w + workers - 1) / workers
-	var g GuardGroup
+	var g format.GuardGroup
 	for c0 := y0; c0 < y1; c0 += chunk {
 		c1 := min(c0+chunk, y1)
 		g.Go(func() { a.add(y, lo, hi, y0, y1, c0, c1) })
@@ -615,12 +617,12 @@ func (a *accumulator) finish() (part, neuron int) {
 
 // nonFiniteErr names the first trial of part p whose response of neuron n
 // is not finite.
-func nonFiniteErr(s *NPYStream, part []int, p, n int) error {
+func nonFiniteErr(s *format.NPYStream, part []int, p, n int) error {
 	for t, q := range part {
 		if q != p {
 			continue
 		}
-		v, err := s.readElem(t, n)
+		v, err := s.ReadElem(t, n)
 		if err != nil {
 			return err
 		}
@@ -629,16 +631,6 @@ func nonFiniteErr(s *NPYStream, part []int, p, n int) error {
 		}
 	}
 	return fmt.Errorf("data: %s: neuron %d (0-based) has sums of squares too large for float64", s.Name(), n)
-}
-
-// readElem reads element (t, n) as float32.
-func (s *NPYStream) readElem(t, n int) (float32, error) {
-	size := s.h.size
-	b := make([]byte, size)
-	if _, err := s.f.ReadAt(b, s.off+int64(t)*s.rowBytes+int64(n)*int64(size)); err != nil {
-		return 0, fmt.Errorf("data: %s: reading trial %d, neuron %d: %w", s.name, t, n, err)
-	}
-	return float32(s.h.getter()(b)), nil
 }
 
 // accumulator sums row blocks into parts.
@@ -756,3 +748,6 @@ func ConstantNeurons(parts ...*PartStats) []int {
 	}
 	return out
 }
+
+// isFinite32 reports whether v is neither NaN nor infinite.
+func isFinite32(v float32) bool { return !math.IsNaN(float64(v)) && !math.IsInf(float64(v), 0) }

@@ -1,4 +1,4 @@
-package data
+package format
 
 import (
 	"errors"
@@ -67,10 +67,10 @@ func mappingAt(a uintptr) (mapping, bool) {
 	return mapping{}, false
 }
 
-// mappedBytes returns the whole mapped file behind v (a slice of mapped
+// MappedBytes returns the whole mapped file behind v (a slice of mapped
 // float32 values) and the byte offset of v[0] in it; ok is false when v is
 // not mapped.
-func mappedBytes(v []float32) (file []byte, off int, path string, ok bool) {
+func MappedBytes(v []float32) (file []byte, off int, path string, ok bool) {
 	if len(v) == 0 {
 		return nil, 0, "", false
 	}
@@ -164,7 +164,7 @@ func Guard(fn func()) (err error) {
 // reports the first fault. The zero value is ready to use; a GuardGroup
 // must not be copied after first use.
 //
-//	var g data.GuardGroup
+//	var g format.GuardGroup
 //	for w := range workers {
 //		g.Go(func() { ... read rows ... })
 //	}

@@ -1,4 +1,4 @@
-package data
+package condstats
 
 import (
 	"flag"
@@ -8,6 +8,9 @@ import (
 	"strings"
 	"syscall"
 	"testing"
+
+	"github.com/strialab/stria/data/format"
+	"github.com/strialab/stria/data/synth"
 )
 
 var (
@@ -73,11 +76,11 @@ func BenchmarkStream(b *testing.B) {
 		b.Run(name, func(b *testing.B) {
 			if path == "" {
 				path = filepath.Join(b.TempDir(), "stream.npy")
-				if _, err := WriteSynthNPY(path, SynthStreamConfig{Neurons: sz.cols, Trials: sz.rows, GainSD: 0.15, NoiseSD: 0.5, Seed: 1}); err != nil {
+				if _, err := synth.WriteNPY(path, synth.StreamConfig{Neurons: sz.cols, Trials: sz.rows, GainSD: 0.15, NoiseSD: 0.5, Seed: 1}); err != nil {
 					b.Fatal(err)
 				}
 			}
-			s, err := OpenNPYStream(path)
+			s, err := format.OpenNPYStream(path)
 			if err != nil {
 				b.Fatal(err)
 			}

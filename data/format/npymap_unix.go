@@ -1,6 +1,6 @@
 //go:build linux || darwin || freebsd
 
-package data
+package format
 
 import (
 	"os"
@@ -8,9 +8,9 @@ import (
 	"unsafe"
 )
 
-// mapThreshold is the data size above which the fast layout is mapped
+// MapThreshold is the data size above which the fast layout is mapped
 // rather than read: below it a read is as quick and keeps no mapping.
-var mapThreshold int64 = 64 << 20
+var MapThreshold int64 = 64 << 20
 
 // mapFloat32 maps the float32 data of the .npy file f (called name) that
 // start at offset off and hold n values, copy-on-write: the values come
@@ -24,7 +24,7 @@ var mapThreshold int64 = 64 << 20
 // the size the header announced once mapped (it changed between the size
 // check and the mapping); the caller then reads it, which reports the size.
 func mapFloat32(f *os.File, off int64, n int, name string) []float32 {
-	if n == 0 || off%4 != 0 || int64(n)*4 < mapThreshold {
+	if n == 0 || off%4 != 0 || int64(n)*4 < MapThreshold {
 		return nil
 	}
 	size := off + int64(n)*4

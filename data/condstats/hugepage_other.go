@@ -1,6 +1,6 @@
 //go:build !linux
 
-package data
+package condstats
 
 // adviseHuge is a no-op outside Linux.
 func adviseHuge(v []float64) {}

@@ -1,9 +1,10 @@
-package data
+package format
 
 import (
 	"bytes"
 	"encoding/json"
 	"errors"
+	"io"
 	"math"
 	"os"
 	"path/filepath"
@@ -13,7 +14,7 @@ import (
 )
 
 // fixtureDir holds the files written by testdata/data/gen_npy.py (numpy).
-const fixtureDir = "../testdata/data"
+const fixtureDir = "../../testdata/data"
 
 func fixture(name string) string { return filepath.Join(fixtureDir, name) }
 
@@ -81,13 +82,13 @@ func TestReadNPYFixtures(t *testing.T) {
 			}
 			if rows > 0 && (cols == 1 || rows == 1) {
 				// float64 path: exact float64 values.
-				v, err := ReadVector(fixture(name), "")
+				v, err := readNPY64File(fixture(name))
 				if err != nil {
 					t.Fatal(err)
 				}
 				for i := range v {
 					if v[i] != want.Values[i] {
-						t.Fatalf("ReadVector value %d = %v, want %v (numpy)", i, v[i], want.Values[i])
+						t.Fatalf("ReadNPY64 value %d = %v, want %v (numpy)", i, v[i], want.Values[i])
 					}
 				}
 			}
@@ -159,13 +160,18 @@ func TestReadNPZ(t *testing.T) {
 					}
 				}
 				if len(want.Shape) == 1 {
-					v, err := ReadVector(fixture(file), name)
+					var v []float64
+					err := WithNPZEntry(fixture(file), name, func(r io.Reader, size int64, label string) error {
+						var err error
+						_, _, v, err = ReadNPY64(r, size, label)
+						return err
+					})
 					if err != nil {
 						t.Fatal(err)
 					}
 					for i := range v {
 						if v[i] != want.Values[i] {
-							t.Fatalf("ReadVector value %d = %v, want %v", i, v[i], want.Values[i])
+							t.Fatalf("ReadNPY64 value %d = %v, want %v", i, v[i], want.Values[i])
 						}
 					}
 				}
@@ -342,4 +348,20 @@ func TestReadArray(t *testing.T) {
 	if _, _, err := ReadArray(filepath.Join(fixtureDir, "broken_truncated.npy")); err == nil {
 		t.Error("truncated file accepted")
 	}
+}
+
+// readNPY64File reads a whole .npy file through ReadNPY64 (the float64 path
+// of data.ReadVector).
+func readNPY64File(path string) ([]float64, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	st, err := f.Stat()
+	if err != nil {
+		return nil, err
+	}
+	_, _, v, err := ReadNPY64(f, st.Size(), path)
+	return v, err
 }

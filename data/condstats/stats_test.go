@@ -1,14 +1,16 @@
-package data
+package condstats
 
 import (
 	"math"
 	"math/rand/v2"
 	"testing"
+
+	"github.com/strialab/stria/data/format"
 )
 
-func randomMatrix(rows, cols int, seed uint64) *Matrix {
+func randomMatrix(rows, cols int, seed uint64) *format.Matrix {
 	rng := rand.New(rand.NewPCG(seed, 2))
-	m := NewMatrix(rows, cols)
+	m := format.NewMatrix(rows, cols)
 	for i := range m.Data {
 		m.Data[i] = float32(3 + rng.NormFloat64())
 	}
@@ -22,7 +24,7 @@ func randomMatrix(rows, cols int, seed uint64) *Matrix {
 // integers are exact in float64, one division each.
 func TestCondStatsE3(t *testing.T) {
 	reps := [][]float32{{9, 5, 4, 2, 7}, {7, 2, 7, 2, 10}, {8, 3, 6, 5, 7}, {6, 3, 7, 3, 7}}
-	y := NewMatrix(20, 1)
+	y := format.NewMatrix(20, 1)
 	cond := make([]int, 20)
 	trials := make([]int, 20)
 	for r, row := range reps {
@@ -33,7 +35,7 @@ func TestCondStatsE3(t *testing.T) {
 			trials[t] = t
 		}
 	}
-	s := NewCondStats(y, cond, trials, 5)
+	s := New(y, cond, trials, 5)
 	mean := s.Mean(nil)
 	want := []float64{15.0 / 2, 13.0 / 4, 6, 3, 31.0 / 4}
 	for b := range want {
@@ -63,8 +65,8 @@ func TestCondStatsDirect(t *testing.T) {
 	for i := 0; i < T; i += 2 {
 		trials = append(trials, i)
 	}
-	cond[5] = B - 1                         // an odd trial: must not count
-	s := NewCondStats(y, cond, trials, B+1) // condition B is empty
+	cond[5] = B - 1                // an odd trial: must not count
+	s := New(y, cond, trials, B+1) // condition B is empty
 	mean, vr := s.Mean(nil), s.Var(make([]float64, (B+1)*N))
 	for b := 0; b <= B; b++ {
 		var idx []int
@@ -100,7 +102,7 @@ func TestCondStatsDirect(t *testing.T) {
 		}
 	}
 	// Same result with one goroutine (the serial path on a small slice of neurons).
-	one := &CondStats{B: B + 1, N: N, Count: s.Count, Sum: make([]float64, (B+1)*N), SumSq: make([]float64, (B+1)*N)}
+	one := &Stats{B: B + 1, N: N, Count: s.Count, Sum: make([]float64, (B+1)*N), SumSq: make([]float64, (B+1)*N)}
 	one.accumulate(y, cond, trials, 0, N)
 	for i := range one.Sum {
 		if one.Sum[i] != s.Sum[i] || one.SumSq[i] != s.SumSq[i] {
@@ -158,14 +160,14 @@ func TestNormalizerTrainOnly(t *testing.T) {
 }
 
 func TestStatsPanics(t *testing.T) {
-	y := NewMatrix(3, 2)
+	y := format.NewMatrix(3, 2)
 	for name, f := range map[string]func(){
-		"bad trial":     func() { NewCondStats(y, []int{0, 0, 0}, []int{3}, 1) },
-		"bad cond":      func() { NewCondStats(y, []int{0, 2, 0}, []int{1}, 2) },
-		"cond length":   func() { NewCondStats(y, []int{0}, nil, 1) },
-		"dst length":    func() { NewCondStats(y, []int{0, 0, 0}, nil, 1).Mean(make([]float64, 3)) },
+		"bad trial":     func() { New(y, []int{0, 0, 0}, []int{3}, 1) },
+		"bad cond":      func() { New(y, []int{0, 2, 0}, []int{1}, 2) },
+		"cond length":   func() { New(y, []int{0}, nil, 1) },
+		"dst length":    func() { New(y, []int{0, 0, 0}, nil, 1).Mean(make([]float64, 3)) },
 		"no trials":     func() { FitNormalizer(y, nil) },
-		"apply columns": func() { FitNormalizer(y, []int{0}).Apply(NewMatrix(1, 3)) },
+		"apply columns": func() { FitNormalizer(y, []int{0}).Apply(format.NewMatrix(1, 3)) },
 	} {
 		func() {
 			defer func() {

@@ -1,4 +1,4 @@
-package data_test
+package condstats_test
 
 import (
 	"math"
@@ -7,12 +7,14 @@ import (
 	"reflect"
 	"testing"
 
-	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/condstats"
+	"github.com/strialab/stria/data/format"
+	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/eval"
 )
 
 // TestStreamedScoresMatchInMemory runs the streaming path end to end: a
-// file written by WriteSynthNPY, its test part accumulated by
+// file written by synth.WriteNPY, its test part accumulated by
 // AccumulateParts, scored by eval.ScoreSums, against eval.ScoreConditions
 // on the whole matrix read by ReadNPY (the in-memory reference). The
 // sums are formed in the same order and with the same reference trial, so
@@ -21,7 +23,7 @@ import (
 func TestStreamedScoresMatchInMemory(t *testing.T) {
 	const T, N, B = 240, 530, 12
 	path := filepath.Join(t.TempDir(), "y.npy")
-	stim, err := data.WriteSynthNPY(path, data.SynthStreamConfig{Neurons: N, Trials: T, UntunedFrac: 0.2, GainSD: 0.15, NoiseSD: 0.5, Seed: 3, BlockRows: 7})
+	stim, err := synth.WriteNPY(path, synth.StreamConfig{Neurons: N, Trials: T, UntunedFrac: 0.2, GainSD: 0.15, NoiseSD: 0.5, Seed: 3, BlockRows: 7})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -38,17 +40,17 @@ func TestStreamedScoresMatchInMemory(t *testing.T) {
 			train = append(train, r)
 		}
 	}
-	part, err := data.PartOf(T, train, test)
+	part, err := condstats.PartOf(T, train, test)
 	if err != nil {
 		t.Fatal(err)
 	}
-	s, err := data.OpenNPYStream(path)
+	s, err := format.OpenNPYStream(path)
 	if err != nil {
 		t.Fatal(err)
 	}
 	defer s.Close()
-	parts, err := data.AccumulateParts(s, data.StreamPlan{NBins: B, Cond: cond, Part: part,
-		Specs: []data.PartSpec{{}, {Halves: true, CondSquares: true}}}, data.StreamOptions{Workers: 2, BlockBytes: 1 << 16})
+	parts, err := condstats.AccumulateParts(s, condstats.StreamPlan{NBins: B, Cond: cond, Part: part,
+		Specs: []condstats.PartSpec{{}, {Halves: true, CondSquares: true}}}, condstats.StreamOptions{Workers: 2, BlockBytes: 1 << 16})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -65,7 +67,7 @@ func TestStreamedScoresMatchInMemory(t *testing.T) {
 	got := make([]eval.Scores, N)
 	eval.ScoreSums(got, h, pred)
 
-	y, err := data.ReadNPY(path)
+	y, err := format.ReadNPY(path)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -1,23 +1,22 @@
-package data
+package condstats
 
 import (
-	"bytes"
-	"errors"
 	"fmt"
 	"math"
 	"math/rand/v2"
-	"os"
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"github.com/strialab/stria/data/format"
 )
 
 // streamCase is a small recording with unequal condition counts, an empty
 // condition (3) and a constant neuron (2), stored as float32.
-func streamCase(t *testing.T, T, N, B int) (*Matrix, []int, string) {
+func streamCase(t *testing.T, T, N, B int) (*format.Matrix, []int, string) {
 	t.Helper()
 	rng := rand.New(rand.NewPCG(7, 8))
-	y := NewMatrix(T, N)
+	y := format.NewMatrix(T, N)
 	cond := make([]int, T)
 	for r := 0; r < T; r++ {
 		c := rng.IntN(B)
@@ -34,7 +33,7 @@ func streamCase(t *testing.T, T, N, B int) (*Matrix, []int, string) {
 		}
 	}
 	p := filepath.Join(t.TempDir(), "y.npy")
-	if err := WriteNPY(p, []int{T, N}, y.Data); err != nil {
+	if err := format.WriteNPY(p, []int{T, N}, y.Data); err != nil {
 		t.Fatal(err)
 	}
 	return y, cond, p
@@ -48,7 +47,7 @@ func relClose(got, want, tol float64) bool {
 }
 
 // TestAccumulatePartsMatchesCondStats checks the streamed statistics of
-// three parts (and unused trials) against NewCondStats and two-pass sums
+// three parts (and unused trials) against New and two-pass sums
 // over the matrix in memory, and that the sums are bitwise the same for
 // any number of workers and block size. The second size (skipped with
 // -short) has blocks of many rows and two workers with wide column ranges.
@@ -84,7 +83,7 @@ func testAccumulateParts(t *testing.T, T, N int) {
 	}
 	plan := StreamPlan{NBins: B, Cond: cond, Part: part,
 		Specs: []PartSpec{{}, {}, {Halves: true, CondSquares: true}}}
-	s, err := OpenNPYStream(path)
+	s, err := format.OpenNPYStream(path)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -138,10 +137,10 @@ func testAccumulateParts(t *testing.T, T, N int) {
 					}
 				}
 			}
-			// Reference: the in-memory statistics of data.NewCondStats,
+			// Reference: the in-memory statistics of data.New,
 			// summed without the shift (so equal up to rounding).
 			for i, set := range [][]int{train, val, test} {
-				want := NewCondStats(y, cond, set, B)
+				want := New(y, cond, set, B)
 				ps := got[i]
 				for b := 0; b < B; b++ {
 					if ps.Count[b] != want.Count[b] {
@@ -200,9 +199,9 @@ func testAccumulateParts(t *testing.T, T, N int) {
 					}
 				}
 			}
-			// The test part's per-condition squares through CondStats.
-			cs := got[2].CondStats()
-			want := NewCondStats(y, cond, test, B)
+			// The test part's per-condition squares through Stats.
+			cs := got[2].Stats()
+			want := New(y, cond, test, B)
 			wv, gv := want.Var(nil), cs.Var(nil)
 			for k := range wv {
 				if math.IsNaN(wv[k]) != math.IsNaN(gv[k]) || (!math.IsNaN(wv[k]) && math.Abs(wv[k]-gv[k]) > 1e-9*math.Max(1, wv[k])) {
@@ -240,9 +239,9 @@ func testAccumulateParts(t *testing.T, T, N int) {
 			if got[0].SumSq != nil || got[0].SumA != nil {
 				t.Fatal("training part kept SumSq or SumA without asking")
 			}
-			// Normalizer from the parts equals the one from CondStats.
+			// Normalizer from the parts equals the one from Stats.
 			zp := NormalizerFromParts(got[0], got[1])
-			zs := NormalizerFromStats(NewCondStats(y, cond, train, B), NewCondStats(y, cond, val, B))
+			zs := NormalizerFromStats(New(y, cond, train, B), New(y, cond, val, B))
 			for n := 0; n < N; n++ {
 				if !relClose(zp.Mean[n], zs.Mean[n], 1e-12) || !relClose(zp.Scale[n], zs.Scale[n], 1e-9) {
 					t.Fatalf("normalizer of neuron %d = (%v, %v), want (%v, %v)", n, zp.Mean[n], zp.Scale[n], zs.Mean[n], zs.Scale[n])
@@ -260,7 +259,7 @@ func TestAccumulatePartsErrors(t *testing.T) {
 		all[i] = i
 	}
 	part, _ := PartOf(T, all)
-	s, err := OpenNPYStream(path)
+	s, err := format.OpenNPYStream(path)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -285,10 +284,10 @@ func TestAccumulatePartsErrors(t *testing.T) {
 	t.Run("non-finite value", func(t *testing.T) {
 		y.Data[17*N+123] = float32(math.NaN())
 		p := filepath.Join(t.TempDir(), "nan.npy")
-		if err := WriteNPY(p, []int{T, N}, y.Data); err != nil {
+		if err := format.WriteNPY(p, []int{T, N}, y.Data); err != nil {
 			t.Fatal(err)
 		}
-		s2, err := OpenNPYStream(p)
+		s2, err := format.OpenNPYStream(p)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -307,129 +306,4 @@ func TestAccumulatePartsErrors(t *testing.T) {
 			t.Fatalf("got error %v, want one naming trial 2", err)
 		}
 	})
-}
-
-func TestNPYStreamRead(t *testing.T) {
-	const T, N = 13, 9
-	rng := rand.New(rand.NewPCG(1, 2))
-	v := make([]float64, T*N)
-	for i := range v {
-		v[i] = rng.NormFloat64()
-	}
-	dir := t.TempDir()
-	p64 := filepath.Join(dir, "y64.npy")
-	if err := WriteNPY64(p64, []int{T, N}, v); err != nil {
-		t.Fatal(err)
-	}
-	want, err := ReadNPY(p64) // the whole-file reader
-	if err != nil {
-		t.Fatal(err)
-	}
-	s, err := OpenNPYStream(p64)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer s.Close()
-	if s.Rows() != T || s.Cols() != N || s.ElemType() != "float64" {
-		t.Fatalf("got %d x %d %s, want %d x %d float64", s.Rows(), s.Cols(), s.ElemType(), T, N)
-	}
-	buf := make([]float32, 5*N)
-	for lo := 0; lo < T; lo += 5 {
-		hi := min(lo+5, T)
-		got, err := s.ReadRows32(buf, lo, hi)
-		if err != nil {
-			t.Fatal(err)
-		}
-		for i, x := range got {
-			if x != want.Data[lo*N+i] {
-				t.Fatalf("rows [%d, %d) element %d = %v, want %v", lo, hi, i, x, want.Data[lo*N+i])
-			}
-		}
-	}
-	b64 := make([]float64, 4*N)
-	got64, err := s.ReadRows64(b64, 9, 13)
-	if err != nil {
-		t.Fatal(err)
-	}
-	for i, x := range got64 {
-		if x != v[9*N+i] {
-			t.Fatalf("ReadRows64 element %d = %v, want %v", i, x, v[9*N+i])
-		}
-	}
-
-	t.Run("fortran order refused", func(t *testing.T) {
-		h := npyHeaderBytes("<f4", []int{3, 2})
-		h = bytes.Replace(h, []byte("'fortran_order': False"), []byte("'fortran_order': True "), 1)
-		p := filepath.Join(dir, "f.npy")
-		if err := os.WriteFile(p, append(h, make([]byte, 24)...), 0o644); err != nil {
-			t.Fatal(err)
-		}
-		_, err := OpenNPYStream(p)
-		if !errors.Is(err, ErrFormat) || !strings.Contains(err.Error(), "Fortran") {
-			t.Fatalf("got error %v, want a format error about Fortran order", err)
-		}
-	})
-	t.Run("truncated refused", func(t *testing.T) {
-		b, _ := os.ReadFile(p64)
-		p := filepath.Join(dir, "short.npy")
-		if err := os.WriteFile(p, b[:len(b)-8], 0o644); err != nil {
-			t.Fatal(err)
-		}
-		if _, err := OpenNPYStream(p); !errors.Is(err, ErrFormat) {
-			t.Fatalf("got error %v, want a format error", err)
-		}
-	})
-}
-
-func TestWriteSynthNPY(t *testing.T) {
-	dir := t.TempDir()
-	cfg := SynthStreamConfig{Neurons: 333, Trials: 57, UntunedFrac: 0.1, GainSD: 0.15, NoiseSD: 0.5, Seed: 9, BlockRows: 5}
-	p1 := filepath.Join(dir, "a.npy")
-	stim1, err := WriteSynthNPY(p1, cfg)
-	if err != nil {
-		t.Fatal(err)
-	}
-	cfg.BlockRows = 0
-	p2 := filepath.Join(dir, "b.npy")
-	stim2, err := WriteSynthNPY(p2, cfg)
-	if err != nil {
-		t.Fatal(err)
-	}
-	b1, _ := os.ReadFile(p1)
-	b2, _ := os.ReadFile(p2)
-	if !bytes.Equal(b1, b2) {
-		t.Fatal("files differ between block sizes, want identical bytes")
-	}
-	for i := range stim1 {
-		if stim1[i] != stim2[i] || !(stim1[i] >= 0 && stim1[i] < 360) {
-			t.Fatalf("stimulus %d = %v and %v, want equal values in [0, 360)", i, stim1[i], stim2[i])
-		}
-	}
-	m, err := ReadNPY(p1)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if m.Rows != 57 || m.Cols != 333 {
-		t.Fatalf("got %d x %d, want 57 x 333", m.Rows, m.Cols)
-	}
-	// The noise s.d. of untuned... any cell: a trial's deviation from the
-	// cell's noise-free value is N(0, 0.5^2); check the overall spread is
-	// in a plausible range (a simulation sanity check, not a tight test).
-	var s, s2 float64
-	for _, v := range m.Data {
-		s += float64(v)
-		s2 += float64(v) * float64(v)
-	}
-	k := float64(len(m.Data))
-	sd := math.Sqrt(s2/k - (s/k)*(s/k))
-	if !(sd > 0.5 && sd < 2) {
-		t.Fatalf("overall s.d. %v, want between the noise s.d. 0.5 and 2", sd)
-	}
-	if err := (SynthStreamConfig{Neurons: 0, Trials: 3}).Validate(); err == nil || !strings.Contains(err.Error(), "neurons") {
-		t.Fatalf("got %v, want an error naming neurons", err)
-	}
-	entries, _ := os.ReadDir(dir)
-	if len(entries) != 2 {
-		t.Fatalf("%d files in the folder, want 2 (no temporary files left)", len(entries))
-	}
 }

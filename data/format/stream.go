@@ -1,11 +1,10 @@
-package data
+package format
 
 import (
 	"bufio"
 	"encoding/binary"
 	"fmt"
 	"io"
-	"math"
 	"os"
 	"unsafe"
 )
@@ -93,7 +92,7 @@ func (s *NPYStream) Close() error { return s.f.Close() }
 // direct reports whether the file bytes are the host representation of
 // float32 (size 4) or float64 (size 8) values.
 func (s *NPYStream) direct(size int) bool {
-	return s.h.kind == npyFloat && s.h.size == size && hostLittle && s.h.order == binary.LittleEndian
+	return s.h.kind == npyFloat && s.h.size == size && HostLittle && s.h.order == binary.LittleEndian
 }
 
 func (s *NPYStream) checkRange(fn string, n, lo, hi int) {
@@ -128,12 +127,12 @@ func (s *NPYStream) readErr(err error, t, c int) error {
 func (s *NPYStream) ReadRows32(dst []float32, lo, hi int) ([]float32, error) {
 	s.checkRange("ReadRows32", len(dst), lo, hi)
 	out := dst[:(hi-lo)*s.cols]
-	return out, s.readSpan32(out, lo, 0)
+	return out, s.ReadSpan32(out, lo, 0)
 }
 
-// readSpan32 reads len(dst) consecutive elements starting at element
+// ReadSpan32 reads len(dst) consecutive elements starting at element
 // (t, c) (continuing into the next rows) into dst as float32.
-func (s *NPYStream) readSpan32(dst []float32, t, c int) error {
+func (s *NPYStream) ReadSpan32(dst []float32, t, c int) error {
 	if len(dst) == 0 {
 		return nil
 	}
@@ -190,5 +189,12 @@ func (s *NPYStream) convert(n, t, c int, set func(i int, b []byte)) error {
 	return nil
 }
 
-// isFinite32 reports whether v is neither NaN nor infinite.
-func isFinite32(v float32) bool { return !math.IsNaN(float64(v)) && !math.IsInf(float64(v), 0) }
+// ReadElem reads element (t, n) as float32.
+func (s *NPYStream) ReadElem(t, n int) (float32, error) {
+	size := s.h.size
+	b := make([]byte, size)
+	if _, err := s.f.ReadAt(b, s.off+int64(t)*s.rowBytes+int64(n)*int64(size)); err != nil {
+		return 0, fmt.Errorf("data: %s: reading trial %d, neuron %d: %w", s.name, t, n, err)
+	}
+	return float32(s.h.getter()(b)), nil
+}

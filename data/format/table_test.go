@@ -1,4 +1,4 @@
-package data
+package format
 
 import (
 	"math"

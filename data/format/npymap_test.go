@@ -1,11 +1,10 @@
 //go:build linux || darwin || freebsd
 
-package data
+package format
 
 import (
 	"path/filepath"
 	"slices"
-	"syscall"
 	"testing"
 )
 
@@ -14,13 +13,13 @@ import (
 // into a mapped matrix to check that the file is left alone (copy-on-write).
 func TestMappedEqualsRead(t *testing.T) {
 	files, _ := filepath.Glob(filepath.Join(fixtureDir, "*.npy"))
-	saved := mapThreshold
-	defer func() { mapThreshold = saved }()
+	saved := MapThreshold
+	defer func() { MapThreshold = saved }()
 	mapped := 0
 	for _, f := range files {
-		mapThreshold = 1 << 62
+		MapThreshold = 1 << 62
 		want, errRead := ReadNPY(f)
-		mapThreshold = 0
+		MapThreshold = 0
 		got, errMap := ReadNPY(f)
 		if (errRead == nil) != (errMap == nil) {
 			t.Errorf("%s: read error %v, mapped error %v", f, errRead, errMap)
@@ -42,13 +41,13 @@ func TestMappedEqualsRead(t *testing.T) {
 	if err := WriteNPY(p, []int{2, 2}, []float32{1, 2, 3, 4}); err != nil {
 		t.Fatal(err)
 	}
-	mapThreshold = 0
+	MapThreshold = 0
 	m, err := ReadNPY(p)
 	if err != nil {
 		t.Fatal(err)
 	}
 	m.Data[0] = 99
-	mapThreshold = 1 << 62
+	MapThreshold = 1 << 62
 	back, err := ReadNPY(p)
 	if err != nil || back.Data[0] != 1 {
 		t.Errorf("writing into a mapped matrix changed the file: %v %v", back, err)
@@ -65,14 +64,4 @@ func allNaNEqual(a, b []float32) bool {
 		}
 	}
 	return true
-}
-
-// cpuSeconds is the processor time this process has used (user + system),
-// for benchmarks that report it beside the wall time.
-func cpuSeconds() float64 {
-	var ru syscall.Rusage
-	if syscall.Getrusage(syscall.RUSAGE_SELF, &ru) != nil {
-		return 0
-	}
-	return float64(ru.Utime.Nano()+ru.Stime.Nano()) / 1e9
 }

@@ -1,12 +1,14 @@
-package data
+package condstats
 
 import (
 	"fmt"
 	"math"
 	"runtime"
+
+	"github.com/strialab/stria/data/format"
 )
 
-// CondStats holds per-condition sufficient statistics of a set of trials
+// Stats holds per-condition sufficient statistics of a set of trials
 // (eval/methods.md §8): for condition b and neuron n,
 //
 //	Count[b]      = N_b, the number of trials of condition b
@@ -15,39 +17,39 @@ import (
 //
 // B is the number of conditions and N the number of neurons; Sum and SumSq
 // are B x N, accumulated in float64 in ascending trial order.
-type CondStats struct {
+type Stats struct {
 	B, N  int
 	Count []int
 	Sum   []float64
 	SumSq []float64
 }
 
-// NewCondStats accumulates the statistics of the listed trials (rows of y)
+// New accumulates the statistics of the listed trials (rows of y)
 // with cond[t] in [0, nbins) the condition of trial t. Large inputs are
 // split over neuron column ranges and run in parallel; every element is
 // still summed in trial order, so the result does not depend on the number
 // of goroutines. It panics if a trial index or a condition id of a listed
 // trial is out of range, or len(cond) != y.Rows.
 //
-// When y is mapped (see ReadNPY) and its file is truncated during the
-// pass, NewCondStats panics with a *FaultError naming the file; run it
-// under Guard, which returns that error.
-func NewCondStats(y *Matrix, cond []int, trials []int, nbins int) *CondStats {
+// When y is mapped (see format.ReadNPY) and its file is truncated during the
+// pass, New panics with a *format.FaultError naming the file; run it
+// under format.Guard, which returns that error.
+func New(y *format.Matrix, cond []int, trials []int, nbins int) *Stats {
 	if len(cond) != y.Rows {
-		panic(fmt.Sprintf("data: NewCondStats %d condition ids for %d trials", len(cond), y.Rows))
+		panic(fmt.Sprintf("data: New %d condition ids for %d trials", len(cond), y.Rows))
 	}
 	if nbins < 0 {
-		panic("data: NewCondStats negative number of conditions")
+		panic("data: New negative number of conditions")
 	}
 	N := y.Cols
-	s := &CondStats{B: nbins, N: N, Count: make([]int, nbins), Sum: make([]float64, nbins*N), SumSq: make([]float64, nbins*N)}
+	s := &Stats{B: nbins, N: N, Count: make([]int, nbins), Sum: make([]float64, nbins*N), SumSq: make([]float64, nbins*N)}
 	for _, t := range trials {
 		if t < 0 || t >= y.Rows {
-			panic(fmt.Sprintf("data: NewCondStats trial %d out of range [0, %d)", t, y.Rows))
+			panic(fmt.Sprintf("data: New trial %d out of range [0, %d)", t, y.Rows))
 		}
 		b := cond[t]
 		if b < 0 || b >= nbins {
-			panic(fmt.Sprintf("data: NewCondStats trial %d has condition %d outside [0, %d)", t, b, nbins))
+			panic(fmt.Sprintf("data: New trial %d has condition %d outside [0, %d)", t, b, nbins))
 		}
 		s.Count[b]++
 	}
@@ -69,19 +71,19 @@ func NewCondStats(y *Matrix, cond []int, trials []int, nbins int) *CondStats {
 		workers = 1
 	}
 	chunk := (N + workers - 1) / workers
-	var g GuardGroup
+	var g format.GuardGroup
 	for lo := 0; lo < N; lo += chunk {
 		hi := min(lo+chunk, N)
 		g.Go(func() { s.accumulate(y, cond, trials, lo, hi) })
 	}
 	if err := g.Wait(); err != nil {
-		panic(err) // a *FaultError: the mapped file was truncated; Guard returns it
+		panic(err) // a *format.FaultError: the mapped file was truncated; format.Guard returns it
 	}
 	return s
 }
 
 // accumulate adds the trials' values of neurons [lo, hi).
-func (s *CondStats) accumulate(y *Matrix, cond, trials []int, lo, hi int) {
+func (s *Stats) accumulate(y *format.Matrix, cond, trials []int, lo, hi int) {
 	N := s.N
 	for _, t := range trials {
 		b := cond[t]
@@ -96,12 +98,12 @@ func (s *CondStats) accumulate(y *Matrix, cond, trials []int, lo, hi int) {
 	}
 }
 
-func (s *CondStats) dst(dst []float64, fn string) []float64 {
+func (s *Stats) dst(dst []float64, fn string) []float64 {
 	if dst == nil {
 		return make([]float64, s.B*s.N)
 	}
 	if len(dst) != s.B*s.N {
-		panic(fmt.Sprintf("data: CondStats.%s dst length %d, want B*N = %d", fn, len(dst), s.B*s.N))
+		panic(fmt.Sprintf("data: Stats.%s dst length %d, want B*N = %d", fn, len(dst), s.B*s.N))
 	}
 	return dst
 }
@@ -109,7 +111,7 @@ func (s *CondStats) dst(dst []float64, fn string) []float64 {
 // Mean writes the condition means ybar_bn = S_bn / N_b into dst (B x N;
 // allocated if nil) and returns it. Empty conditions give NaN. It panics if
 // dst is not nil and not of length B*N.
-func (s *CondStats) Mean(dst []float64) []float64 {
+func (s *Stats) Mean(dst []float64) []float64 {
 	dst = s.dst(dst, "Mean")
 	for b := 0; b < s.B; b++ {
 		d := dst[b*s.N : (b+1)*s.N]
@@ -137,7 +139,7 @@ func (s *CondStats) Mean(dst []float64) []float64 {
 // larger than its spread (relative error about 1e-16 mean^2/s2); for
 // responses as float32 this is far below the input's own precision unless
 // mean/spread exceeds about 1e4. It panics like Mean.
-func (s *CondStats) Var(dst []float64) []float64 {
+func (s *Stats) Var(dst []float64) []float64 {
 	dst = s.dst(dst, "Var")
 	for b := 0; b < s.B; b++ {
 		d := dst[b*s.N : (b+1)*s.N]
@@ -174,7 +176,7 @@ type Normalizer struct {
 // two passes in float64) over the listed trials. A neuron that is constant
 // over them gets Scale 1, so Apply only removes its mean; Check reports
 // such neurons. It panics if trials is empty or holds an index out of range.
-func FitNormalizer(y *Matrix, trials []int) *Normalizer {
+func FitNormalizer(y *format.Matrix, trials []int) *Normalizer {
 	if len(trials) == 0 {
 		panic("data: FitNormalizer with no trials")
 	}
@@ -207,7 +209,7 @@ func FitNormalizer(y *Matrix, trials []int) *Normalizer {
 
 // Apply z-scores y in place. It panics if y.Cols differs from the number of
 // neurons the Normalizer was fitted on.
-func (z *Normalizer) Apply(y *Matrix) {
+func (z *Normalizer) Apply(y *format.Matrix) {
 	if y.Cols != len(z.Mean) {
 		panic(fmt.Sprintf("data: Normalizer fitted on %d neurons, matrix has %d", len(z.Mean), y.Cols))
 	}
@@ -230,7 +232,7 @@ func (z *Normalizer) Apply(y *Matrix) {
 // standard deviation is below 1e-6 of its mean magnitude (a few float32
 // rounding steps) or not positive counts as constant and gets Scale 1, as
 // FitNormalizer gives an exactly constant neuron.
-func NormalizerFromStats(parts ...*CondStats) *Normalizer {
+func NormalizerFromStats(parts ...*Stats) *Normalizer {
 	n := parts[0].N
 	z := &Normalizer{Mean: make([]float64, n), Scale: make([]float64, n)}
 	var total float64

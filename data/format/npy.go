@@ -1,4 +1,4 @@
-package data
+package format
 
 import (
 	"bufio"
@@ -32,9 +32,9 @@ const (
 	npyMaxHeaderLen = 1 << 20 // refuse headers above 1 MiB (numpy's own default cap is 10000 bytes)
 )
 
-// hostLittle reports whether this machine stores numbers little-endian, in
+// HostLittle reports whether this machine stores numbers little-endian, in
 // which case little-endian array bytes can be read straight into a slice.
-var hostLittle = func() bool {
+var HostLittle = func() bool {
 	x := uint16(1)
 	return *(*byte)(unsafe.Pointer(&x)) == 1
 }()
@@ -274,7 +274,7 @@ func (h *npyHeader) setType() error {
 	case '>':
 		h.order = binary.BigEndian
 	case '=':
-		if hostLittle {
+		if HostLittle {
 			h.order = binary.LittleEndian
 		} else {
 			h.order = binary.BigEndian
@@ -476,8 +476,8 @@ func readNPYMatrix(r io.Reader, total int64, name string) (*Matrix, error) {
 	return m, nil
 }
 
-// readNPY64 reads a 1-D or 2-D .npy stream as float64 values in C order.
-func readNPY64(r io.Reader, total int64, name string) (rows, cols int, v []float64, err error) {
+// ReadNPY64 reads a 1-D or 2-D .npy stream as float64 values in C order.
+func ReadNPY64(r io.Reader, total int64, name string) (rows, cols int, v []float64, err error) {
 	h, used, err := readNPYHeader(r, total, name)
 	if err != nil {
 		return 0, 0, nil, err
@@ -517,7 +517,7 @@ func (h *npyHeader) checkSize(have int64, name string) error {
 // fastLayout reports whether the file bytes are already the C-order,
 // host-order representation of the requested type.
 func (h *npyHeader) fastLayout(rows, cols, size int) bool {
-	return h.kind == npyFloat && h.size == size && hostLittle && h.order == binary.LittleEndian &&
+	return h.kind == npyFloat && h.size == size && HostLittle && h.order == binary.LittleEndian &&
 		(!h.fortran || rows <= 1 || cols <= 1)
 }
 

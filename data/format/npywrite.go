@@ -1,4 +1,4 @@
-package data
+package format
 
 import (
 	"bufio"
@@ -23,7 +23,7 @@ import (
 func WriteNPY(path string, shape []int, data []float32) error {
 	checkShape("WriteNPY", shape, len(data))
 	var raw []byte
-	if len(data) > 0 && hostLittle {
+	if len(data) > 0 && HostLittle {
 		raw = unsafe.Slice((*byte)(unsafe.Pointer(&data[0])), 4*len(data))
 	}
 	return writeNPY(path, "<f4", shape, raw, len(data), func(b []byte, i int) {
@@ -35,7 +35,7 @@ func WriteNPY(path string, shape []int, data []float32) error {
 func WriteNPY64(path string, shape []int, data []float64) error {
 	checkShape("WriteNPY64", shape, len(data))
 	var raw []byte
-	if len(data) > 0 && hostLittle {
+	if len(data) > 0 && HostLittle {
 		raw = unsafe.Slice((*byte)(unsafe.Pointer(&data[0])), 8*len(data))
 	}
 	return writeNPY(path, "<f8", shape, raw, len(data), func(b []byte, i int) {
@@ -56,8 +56,8 @@ func checkShape(fn string, shape []int, n int) {
 	}
 }
 
-// npyHeaderBytes returns the magic, version, length and padded header dict.
-func npyHeaderBytes(descr string, shape []int) []byte {
+// NPYHeaderBytes returns the magic, version, length and padded header dict.
+func NPYHeaderBytes(descr string, shape []int) []byte {
 	var sb strings.Builder
 	sb.WriteString("{'descr': '")
 	sb.WriteString(descr)
@@ -115,7 +115,7 @@ func writeNPY(path, descr string, shape []int, raw []byte, n int, put func(b []b
 		}
 	}()
 	w := bufio.NewWriterSize(f, 1<<16)
-	if _, err = w.Write(npyHeaderBytes(descr, shape)); err != nil {
+	if _, err = w.Write(NPYHeaderBytes(descr, shape)); err != nil {
 		return fmt.Errorf("data: writing %s: %w", path, err)
 	}
 	// The values may be mapped from a file (a recording written back out):

@@ -1,4 +1,4 @@
-package data
+package format
 
 import (
 	"archive/zip"
@@ -16,7 +16,7 @@ import (
 // archive to hold exactly one array. The array rules are those of ReadNPY.
 func ReadNPZ(path, name string) (*Matrix, error) {
 	var m *Matrix
-	err := withNPZEntry(path, name, func(r io.Reader, size int64, label string) error {
+	err := WithNPZEntry(path, name, func(r io.Reader, size int64, label string) error {
 		var err error
 		m, err = readNPYMatrix(r, size, label)
 		return err
@@ -53,9 +53,9 @@ func npzNames(files []*zip.File) []string {
 	return names
 }
 
-// withNPZEntry opens the entry for name and calls fn with its reader, its
+// WithNPZEntry opens the entry for name and calls fn with its reader, its
 // uncompressed size and a label "path[name]" for messages.
-func withNPZEntry(path, name string, fn func(r io.Reader, size int64, label string) error) error {
+func WithNPZEntry(path, name string, fn func(r io.Reader, size int64, label string) error) error {
 	st, err := os.Stat(path)
 	if err != nil {
 		return fmt.Errorf("data: %w", err)

@@ -1,13 +1,15 @@
-package data
+package synth
 
 import (
 	"math"
 	"slices"
 	"testing"
+
+	"github.com/strialab/stria/data/condstats"
 )
 
-func smallSynth() SynthConfig {
-	c := DefaultSynthConfig()
+func smallSynth() Config {
+	c := DefaultConfig()
 	c.Neurons, c.Trials, c.Bins, c.Seed = 200, 3000, 24, 7
 	return c
 }
@@ -15,19 +17,19 @@ func smallSynth() SynthConfig {
 func TestSynthDeterministic(t *testing.T) {
 	c := smallSynth()
 	c.Neurons, c.Trials = 50, 300
-	r1, _, t1 := Synth(c)
-	r2, _, t2 := Synth(c)
+	r1, _, t1 := Population(c)
+	r2, _, t2 := Population(c)
 	if !slices.Equal(r1.Y.Data, r2.Y.Data) || !slices.Equal(r1.Stim, r2.Stim) || !slices.Equal(t1.Mean, t2.Mean) {
 		t.Error("same seed gave different data")
 	}
 	c.Seed++
-	r3, _, _ := Synth(c)
+	r3, _, _ := Population(c)
 	if slices.Equal(r1.Y.Data, r3.Y.Data) {
 		t.Error("different seeds gave the same data")
 	}
 	c.Poisson = true
-	p1, _, _ := Synth(c)
-	p2, _, _ := Synth(c)
+	p1, _, _ := Population(c)
+	p2, _, _ := Population(c)
 	if !slices.Equal(p1.Y.Data, p2.Y.Data) {
 		t.Error("Poisson mode not deterministic")
 	}
@@ -52,7 +54,7 @@ func TestSynthRecovery(t *testing.T) {
 	for _, poisson := range []bool{false, true} {
 		c := smallSynth()
 		c.Poisson = poisson
-		rec, ax, tr := Synth(c)
+		rec, ax, tr := Population(c)
 		if ax.NumBins() != 24 || !ax.Periodic || rec.Block[0] != 0 || rec.Block[c.Trials-1] != 9 {
 			t.Fatalf("axis %+v blocks %d..%d", ax, rec.Block[0], rec.Block[c.Trials-1])
 		}
@@ -64,7 +66,7 @@ func TestSynthRecovery(t *testing.T) {
 		for i := range all {
 			all[i] = i
 		}
-		s := NewCondStats(rec.Y, cond, all, ax.NumBins())
+		s := condstats.New(rec.Y, cond, all, ax.NumBins())
 		mean, vr := s.Mean(nil), s.Var(nil)
 		var z2 float64
 		var maxZ float64
@@ -103,13 +105,13 @@ func TestSynthTruthTuning(t *testing.T) {
 }
 
 func TestSynthValidate(t *testing.T) {
-	for _, c := range []SynthConfig{{}, {Neurons: 1, Trials: 10, Bins: 0}, {Neurons: 1, Trials: 10, Bins: 4, UntunedFrac: 0.6, TwoPeakFrac: 0.6},
+	for _, c := range []Config{{}, {Neurons: 1, Trials: 10, Bins: 0}, {Neurons: 1, Trials: 10, Bins: 4, UntunedFrac: 0.6, TwoPeakFrac: 0.6},
 		{Neurons: 1, Trials: 10, Bins: 4, NoiseSD: math.NaN()}, {Neurons: 1, Trials: 10, Bins: 4, Blocks: 11}} {
 		if c.Validate() == nil {
 			t.Errorf("%+v: no error", c)
 		}
 	}
-	if err := DefaultSynthConfig().Validate(); err != nil {
+	if err := DefaultConfig().Validate(); err != nil {
 		t.Error(err)
 	}
 }

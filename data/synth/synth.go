@@ -1,4 +1,4 @@
-package data
+package synth
 
 import (
 	"fmt"
@@ -6,9 +6,11 @@ import (
 	"math/rand/v2"
 
 	"gonum.org/v1/gonum/stat/distuv"
+
+	"github.com/strialab/stria/data"
 )
 
-// SynthConfig describes a synthetic heading-tuned population: cells of a
+// Config describes a synthetic heading-tuned population: cells of a
 // rodent exploring a virtual arena, each firing for some heading directions
 // (0..360 deg, periodic). It is the demo scenario and the ground truth for
 // recovery tests.
@@ -28,7 +30,7 @@ import (
 // max(0, mu_tn) when Poisson is set. Headings are drawn uniformly and
 // continuously on [0, 360); trials are in time order and cut into Blocks
 // consecutive blocks.
-type SynthConfig struct {
+type Config struct {
 	Neurons, Trials int
 	Bins            int     // heading bins of the returned axis, e.g. 60 (6 deg)
 	TwoPeakFrac     float64 // share of two-peaked cells, e.g. 0.25
@@ -41,15 +43,15 @@ type SynthConfig struct {
 	Seed            uint64
 }
 
-// DefaultSynthConfig returns the demo scenario: 400 cells, 1200 trials,
+// DefaultConfig returns the demo scenario: 400 cells, 1200 trials,
 // 60 bins of 6 deg, 25% two-peaked and 10% untuned cells.
-func DefaultSynthConfig() SynthConfig {
-	return SynthConfig{Neurons: 400, Trials: 1200, Bins: 60, TwoPeakFrac: 0.25, UntunedFrac: 0.1,
+func DefaultConfig() Config {
+	return Config{Neurons: 400, Trials: 1200, Bins: 60, TwoPeakFrac: 0.25, UntunedFrac: 0.1,
 		GainSD: 0.15, NoiseSD: 0.5, DriftSD: 0.05, Blocks: 10, Seed: 1}
 }
 
 // Validate checks the configuration; errors name the field.
-func (c SynthConfig) Validate() error {
+func (c Config) Validate() error {
 	bad := func(f string, v any, want string) error {
 		return fmt.Errorf("data: synthetic %s = %v: %s", f, v, want)
 	}
@@ -61,8 +63,8 @@ func (c SynthConfig) Validate() error {
 		return bad("trials", c.Trials, "must be between 2 and 4194304")
 	case c.Neurons*c.Trials > 1<<31:
 		return bad("neurons x trials", c.Neurons*c.Trials, "is too large")
-	case c.Bins < 1 || c.Bins > maxBins:
-		return bad("bins", c.Bins, fmt.Sprintf("must be between 1 and %d", maxBins))
+	case c.Bins < 1 || c.Bins > data.MaxBins:
+		return bad("bins", c.Bins, fmt.Sprintf("must be between 1 and %d", data.MaxBins))
 	case !fin(c.TwoPeakFrac) || !fin(c.UntunedFrac) || c.TwoPeakFrac < 0 || c.UntunedFrac < 0 || c.TwoPeakFrac+c.UntunedFrac > 1:
 		return bad("two_peak_frac + untuned_frac", c.TwoPeakFrac+c.UntunedFrac, "both must be >= 0 with a sum <= 1")
 	case !fin(c.GainSD) || c.GainSD < 0:
@@ -125,7 +127,7 @@ func (tr *Truth) bump(n int, th float64) float64 {
 // on [0, 360); kappa_n log-uniform on [1, 8]; a_n log-normal with median 1
 // (median 5 for Poisson); A_n = a_n for tuned cells; b_n uniform on
 // [0.05, 0.3] (x5 for Poisson); r_n uniform on [0.4, 0.8].
-func Synth(cfg SynthConfig) (*Recording, *Axis, *Truth) {
+func Population(cfg Config) (*data.Recording, *data.Axis, *Truth) {
 	if err := cfg.Validate(); err != nil {
 		panic(err.Error())
 	}
@@ -197,12 +199,12 @@ func Synth(cfg SynthConfig) (*Recording, *Axis, *Truth) {
 		}
 	}
 
-	rec := &Recording{
-		Y:       NewMatrix(T, N),
+	rec := &data.Recording{
+		Y:       data.NewMatrix(T, N),
 		Stim:    make([]float64, T),
 		Block:   make([]int, T),
 		Neurons: make([]string, N),
-		Source:  Source{Responses: fmt.Sprintf("synthetic(seed=%d)", cfg.Seed)},
+		Source:  data.Source{Responses: fmt.Sprintf("synthetic(seed=%d)", cfg.Seed)},
 	}
 	for n := range rec.Neurons {
 		rec.Neurons[n] = fmt.Sprintf("hd%03d", n)
@@ -231,6 +233,6 @@ func Synth(cfg SynthConfig) (*Recording, *Axis, *Truth) {
 			}
 		}
 	}
-	ax := &Axis{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, Bins: B}
+	ax := &data.Axis{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, Bins: B}
 	return rec, ax, tr
 }
