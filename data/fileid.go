@@ -108,7 +108,7 @@ func (r *Recording) hashInput(i int, mapped []byte) error {
 // modified while stria read it (a mapped .npy changes under the matrix)
 // would make the results mix two versions of the data. The error names the
 // file and says what changed, and wraps format.ErrChanged. A recording not made
-// by Load (Synth, one built in memory) has no files and always passes.
+// by Load (synth.Population, one built in memory) has no files and always passes.
 func (r *Recording) Unchanged() error {
 	for _, in := range r.inputs {
 		st, err := os.Stat(in.id.Path)

@@ -98,7 +98,7 @@ func (m *Matrix) MappedFile() string {
 
 // faultOf turns a recovered panic value into a *FaultError when it is one:
 // either a *FaultError raised again by a function that has no error result
-// (NewCondStats), or the runtime's fault on an address inside a mapped file
+// (condstats.New), or the runtime's fault on an address inside a mapped file
 // (with debug.SetPanicOnFault on, as Guard sets it). It returns nil for any
 // other value, which the caller panics with again.
 func faultOf(r any) *FaultError {
@@ -126,7 +126,7 @@ func faultOf(r any) *FaultError {
 // changed or was truncated while being read; ...").
 //
 // Guard also returns a *FaultError that fn (or a function it calls) raised
-// with panic, which is how NewCondStats and the GuardGroup users without an
+// with panic, which is how condstats.New and the GuardGroup users without an
 // error result pass a fault up; and a runtime fault that a worker goroutine
 // recovered and raised again on this goroutine (the pattern for packages
 // that cannot import data, such as eval):

@@ -115,7 +115,7 @@ func (tr *Truth) bump(n int, th float64) float64 {
 	return tr.Amp[n] * f
 }
 
-// Synth generates a synthetic recording with its heading axis (0..360 deg,
+// Population generates a synthetic recording with its heading axis (0..360 deg,
 // periodic, cfg.Bins bins) and ground truth. The same config gives the same
 // result on every machine. Neuron names are "hd000", "hd001", ...; Cond is
 // nil (bin Stim with the axis); Block holds the time-order block of each
