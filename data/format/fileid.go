@@ -87,6 +87,8 @@ type FileID struct {
 	Hash    string    `json:"hash,omitempty"`
 }
 
+// StatID is the identity of path from its file info st, without the
+// content hash (filled by Identify or the recording's hashing).
 func StatID(path string, st os.FileInfo) FileID {
 	return FileID{Path: path, Size: st.Size(), ModTime: st.ModTime().UTC().Round(0)}
 }
@@ -160,6 +162,8 @@ func Identify(path string) (FileID, error) {
 	return id, nil
 }
 
+// ChangedError is the error for a file whose identity changed (diff says
+// how) while stria read it; it names the file and wraps ErrChanged.
 func ChangedError(path, diff string) error {
 	return fmt.Errorf("data: %s: %w (%s); the results would mix two versions of it: run again on a copy that nothing writes to",
 		path, ErrChanged, diff)

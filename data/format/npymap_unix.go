@@ -10,6 +10,7 @@ import (
 
 // MapThreshold is the data size above which the fast layout is mapped
 // rather than read: below it a read is as quick and keeps no mapping.
+// Tests (here and in package data) lower it to map small files.
 var MapThreshold int64 = 64 << 20
 
 // mapFloat32 maps the float32 data of the .npy file f (called name) that
