@@ -257,7 +257,7 @@ func TestExportAndReport(t *testing.T) {
 	// The fold-averaged scores export draws (read back from
 	// fold_averages.csv, which stria compare wrote exactly) give the
 	// medians that stria compare computed in memory (comparison.json
-	// summary, via compare.Summarise); 1e-6 as when export recomputed them.
+	// summary, via compare.AcrossFolds); 1e-6 as when export recomputed them.
 	var cj struct {
 		Models  []string
 		Summary map[string]map[string]struct{ Median float64 }

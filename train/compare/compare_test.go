@@ -159,9 +159,9 @@ func TestArrayTaskFromEnv(t *testing.T) {
 	}
 }
 
-// TestSummarise checks the fold averages, spreads, winners and pairs on
+// TestAcrossFolds checks the fold averages, spreads, winners and pairs on
 // numbers worked by hand.
-func TestSummarise(t *testing.T) {
+func TestAcrossFolds(t *testing.T) {
 	sc := func(r2 ...float64) []eval.Scores {
 		out := make([]eval.Scores, len(r2))
 		for j, v := range r2 {
@@ -177,7 +177,7 @@ func TestSummarise(t *testing.T) {
 		// Model b: 0.1, -, 0.7, 0.9.
 		"b": {sc(0.1, 9, 0.7, 0.9), sc(0.1, 9, 0.7, 0.9)},
 	}
-	c, _ := Summarise([]string{"a", "b"}, 2, 4, perFold, []bool{false, true, false, false}, Scoring{Alpha: 0.05})
+	c, _ := AcrossFolds([]string{"a", "b"}, 2, 4, perFold, []bool{false, true, false, false}, Scoring{Alpha: 0.05})
 	if got := c.PerNeuron["a"]["test_r2"]; fmt.Sprint(got) != "[0.30000000000000004 NaN 0.6 0.8]" {
 		t.Errorf("fold averages of a: %v, want [0.3 NaN 0.6 0.8]", got)
 	}
@@ -232,7 +232,7 @@ func TestSummariseGates(t *testing.T) {
 		},
 	}
 	rel := []float64{0.8, 0.6, 0.05, 0.1}
-	c, verdicts := Summarise([]string{"a"}, 2, 4, perFold, nil, Scoring{Alpha: 0.05, SplitHalfAll: rel, MinReliability: 0.3})
+	c, verdicts := AcrossFolds([]string{"a"}, 2, 4, perFold, nil, Scoring{Alpha: 0.05, SplitHalfAll: rel, MinReliability: 0.3})
 	fev := c.PerNeuron["a"]["fev"]
 	if math.Abs(fev[0]-0.6) > 1e-15 || fev[1] != 0.4 || !math.IsNaN(fev[2]) || fev[3] != 0.9 {
 		t.Errorf("fold-averaged fev %v, want [0.6 0.4 NaN 0.9]", fev)

@@ -21,7 +21,7 @@
 // recording's files are found unchanged.
 //
 // Scores are judged as in a fit: every fold's noise ceilings are gated at
-// scores.ceiling_alpha (Summarise), the ratio scores average over the folds
+// scores.ceiling_alpha (AcrossFolds), the ratio scores average over the folds
 // where a neuron's ceiling is usable, and their summaries and pair tests
 // use the neurons with split-half reliability over all trials >=
 // scores.min_reliability (Kept); every summary records the neurons it

@@ -138,7 +138,7 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.
 	for j := range ex {
 		rel[j] = math.NaN()
 	}
-	c, verdicts := Summarise(names, p.Cfg.Split.Folds, n, perFold, excluded,
+	c, verdicts := AcrossFolds(names, p.Cfg.Split.Folds, n, perFold, excluded,
 		Scoring{Alpha: p.Cfg.Scores.CeilingAlpha, SplitHalfAll: rel, MinReliability: p.Cfg.Scores.MinReliability})
 	settings, err := p.Cfg.Marshal()
 	if err != nil {

@@ -16,8 +16,9 @@ import (
 	"github.com/strialab/stria/train/runfolder"
 )
 
-// Recording is one recording of a comparison plan with its own config.
-type Recording struct {
+// RecordingPlan is one recording of a comparison plan with its own config
+// (data.Recording is the recording itself, once loaded).
+type RecordingPlan struct {
 	// Name is empty for the single recording of a config without a
 	// recordings list.
 	Name string
@@ -37,7 +38,7 @@ type Unit struct {
 // units they make. Its folder is Cfg.Compare.Output.
 type Plan struct {
 	Cfg        *train.Config
-	Recordings []Recording
+	Recordings []RecordingPlan
 	Units      []Unit
 
 	// settings[r][s] is what the units of spec s on recording r depend
@@ -51,7 +52,7 @@ type Plan struct {
 func NewPlan(c *train.Config) (*Plan, error) {
 	p := &Plan{Cfg: c}
 	if len(c.Recordings) == 0 {
-		p.Recordings = []Recording{{Cfg: c}}
+		p.Recordings = []RecordingPlan{{Cfg: c}}
 	} else {
 		recs, err := expandRecordings(c)
 		if err != nil {
@@ -91,8 +92,8 @@ func NewPlan(c *train.Config) (*Plan, error) {
 
 // expandRecordings turns the recordings list into recordings with their
 // own configs, expanding globs.
-func expandRecordings(c *train.Config) ([]Recording, error) {
-	var out []Recording
+func expandRecordings(c *train.Config) ([]RecordingPlan, error) {
+	var out []RecordingPlan
 	seen := map[string]bool{}
 	for i, rc := range c.Recordings {
 		field := fmt.Sprintf("recordings[%d]", i)
@@ -148,7 +149,7 @@ func expandRecordings(c *train.Config) ([]Recording, error) {
 			if err := cfg.Validate(); err != nil {
 				return nil, fmt.Errorf("recording %s (%s): %w", name, field, err)
 			}
-			out = append(out, Recording{Name: name, Cfg: &cfg})
+			out = append(out, RecordingPlan{Name: name, Cfg: &cfg})
 		}
 	}
 	return out, nil
@@ -321,14 +322,14 @@ func (p *Plan) RunUnits(ctx context.Context, units []Unit, workers int, progress
 	return nil
 }
 
-func (p *Plan) recErr(rec Recording, err error) error {
+func (p *Plan) recErr(rec RecordingPlan, err error) error {
 	if rec.Name == "" {
 		return err
 	}
 	return fmt.Errorf("recording %s: %w", rec.Name, err)
 }
 
-func (p *Plan) runOne(ctx context.Context, prep *train.Prepared, rec Recording, u Unit, sets [3][]int, files []format.FileID) error {
+func (p *Plan) runOne(ctx context.Context, prep *train.Prepared, rec RecordingPlan, u Unit, sets [3][]int, files []format.FileID) error {
 	if err := runfolder.RemoveFoldResultTemps(p.Dir(), u.ID); err != nil {
 		return err
 	}

@@ -5,7 +5,7 @@ import (
 	"github.com/strialab/stria/train/runfolder"
 )
 
-// Scoring is how Summarise judges the scores: the level of the F test that
+// Scoring is how AcrossFolds judges the scores: the level of the F test that
 // makes a noise ceiling usable (scores.ceiling_alpha) and the neurons'
 // split-half reliability over all trials (one per neuron; nil keeps every
 // neuron) with its threshold (scores.min_reliability).
@@ -15,7 +15,7 @@ type Scoring struct {
 	MinReliability float64
 }
 
-// Summarise averages each neuron's scores over folds (eval.FoldAverage;
+// AcrossFolds averages each neuron's scores over folds (eval.FoldAverage;
 // perFold[model][f] holds the model's scores on fold f) and compares the
 // models on the averages. excluded[j] marks the neurons left out of every
 // score.
@@ -27,7 +27,7 @@ type Scoring struct {
 // a usable fold. The verdicts depend only on each fold's test trials, so
 // they are taken from the first model; the per-fold verdicts are returned
 // (verdicts[f][j]) for fold_scores.csv.
-func Summarise(models []string, folds, neurons int, perFold map[string][][]eval.Scores, excluded []bool, sc Scoring) (*runfolder.Comparison, [][]eval.Ceiling) {
+func AcrossFolds(models []string, folds, neurons int, perFold map[string][][]eval.Scores, excluded []bool, sc Scoring) (*runfolder.Comparison, [][]eval.Ceiling) {
 	c := &runfolder.Comparison{Models: models, Folds: folds, Neurons: neurons, PerNeuron: map[string]map[string][]float64{},
 		SplitHalfAll: sc.SplitHalfAll, MinReliability: sc.MinReliability}
 	for _, ex := range excluded {

@@ -246,14 +246,14 @@ func CeilingCounts(verdicts []eval.Ceiling, excluded func(j int) bool) map[strin
 	return m
 }
 
-// Summarize builds the summary of per-neuron scores: excluded neurons are
+// NewSummary builds the summary of per-neuron scores: excluded neurons are
 // left out of every summary; the ratio columns (RatioColumns) are
 // summarised over the scored neurons with reliability >= minRel only, the
 // other columns over every scored neuron. verdicts (the ceilings of
 // scores) and reliability (split_half_all) have one value per neuron;
 // reliability nil keeps every scored neuron. The caller sets Cautions
 // (train.CautionsFor of the scored trials) and the fit's fields.
-func Summarize(scores []eval.Scores, excluded map[int]string, verdicts []eval.Ceiling, reliability []float64, minRel float64) Summary {
+func NewSummary(scores []eval.Scores, excluded map[int]string, verdicts []eval.Ceiling, reliability []float64, minRel float64) Summary {
 	n := len(scores)
 	s := Summary{Neurons: n, Excluded: len(excluded), Medians: map[string]Num{}, Spread: map[string]Spread{}, MinReliability: minRel}
 	isEx := func(j int) bool { _, ok := excluded[j]; return ok }
@@ -576,7 +576,7 @@ func WriteResults(dir string, p *train.Prepared, f *train.Fitted, scores []eval.
 	if err := WriteNeuronScores(dir, NewNeuronScores(p.Rec.Neurons, scores, ex, verdicts, rel)); err != nil {
 		return nil, err
 	}
-	sum := Summarize(scores, ex, verdicts, rel, p.Cfg.Scores.MinReliability)
+	sum := NewSummary(scores, ex, verdicts, rel, p.Cfg.Scores.MinReliability)
 	sum.Cautions = train.CautionsFor(p.TrialsPerCondition(p.Test))
 	sum.TestTrials = len(p.Test)
 	sum.BestEpoch, sum.Epochs, sum.Stop = f.BestEpoch, len(f.Log), f.Stop

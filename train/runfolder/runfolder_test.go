@@ -660,7 +660,7 @@ func TestSummarizeKeeps(t *testing.T) {
 	}
 	verdicts := []eval.Ceiling{eval.CeilingUsable, eval.CeilingNotSignificant, eval.CeilingUsable, eval.CeilingUsable, eval.CeilingNoSignal}
 	rel := []float64{0.8, 0.5, 0.1, 0.9, nan}
-	s := Summarize(scores, map[int]string{4: "constant"}, verdicts, rel, 0.3)
+	s := NewSummary(scores, map[int]string{4: "constant"}, verdicts, rel, 0.3)
 	if s.Scored != 4 || s.Reliable != 3 || s.Ceilings["usable"] != 3 || s.Ceilings["signal_not_significant"] != 1 || s.Ceilings["no_signal_power"] != 0 {
 		t.Errorf("scored %d reliable %d verdicts %v, want 4, 3, usable 3 and signal_not_significant 1", s.Scored, s.Reliable, s.Ceilings)
 	}
@@ -677,7 +677,7 @@ func TestSummarizeKeeps(t *testing.T) {
 	// -1 keeps every scored neuron, even one whose Spearman-Brown
 	// reliability is below -1 or NaN.
 	rel[0], rel[1] = -3, nan
-	s = Summarize(scores, map[int]string{4: "constant"}, verdicts, rel, -1)
+	s = NewSummary(scores, map[int]string{4: "constant"}, verdicts, rel, -1)
 	if f := s.Spread["fev"]; f.Kept != 4 || f.KeptBy != KeptScored || s.Reliable != 4 {
 		t.Errorf("min_reliability -1: fev spread %+v, reliable %d, want all 4 scored kept", f, s.Reliable)
 	}
