@@ -12,6 +12,7 @@ import (
 
 	"gonum.org/v1/gonum/diff/fd"
 
+	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/nn"
 	"github.com/strialab/stria/train/projection"
 )
@@ -20,7 +21,7 @@ import (
 // stride 2: F 45 > Bt 30, the full-size situation) with random filters.
 func poissonCase(t *testing.T, output nn.Activation, l2 float64) (*Prepared, *nn.Net) {
 	t.Helper()
-	p, _ := popPrepared(t, popSpec{Neurons: 9, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, RareBins: 3, Seed: 5},
+	p, _ := popPrepared(t, synth.DiscreteConfig{Neurons: 9, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, RareBins: 3, Seed: 5},
 		func(c *Config) {
 			c.Model.Output = output
 			c.Model.ReadoutL2 = Penalty{Value: l2}
@@ -165,7 +166,7 @@ func TestPoissonFastVsAdam(t *testing.T) {
 	if testing.Short() {
 		t.Skip("fits two models on 200 neurons")
 	}
-	spec := popSpec{Neurons: 200, Trials: 2400, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 21}
+	spec := synth.DiscreteConfig{Neurons: 200, Trials: 2400, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 21}
 	edit := func(c *Config) { c.Model.ReadoutL2 = Penalty{Value: 0.01}; c.Train.Patience = 50 }
 	p, truth := popPrepared(t, spec, edit)
 	t0 := time.Now()
@@ -192,7 +193,7 @@ func TestPoissonFastVsAdam(t *testing.T) {
 // is refused with an error naming the neuron.
 func TestPoissonEdgeCases(t *testing.T) {
 	prep := func(edit func(y []float32)) (*Prepared, error) {
-		rec, _ := makePopulation(popSpec{Neurons: 6, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, Seed: 5})
+		rec, _ := synth.Discrete(synth.DiscreteConfig{Neurons: 6, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, Seed: 5})
 		for tr := 0; tr < rec.Y.Rows; tr++ {
 			edit(rec.Y.Row(tr))
 		}
@@ -247,7 +248,7 @@ func TestPoissonEdgeCases(t *testing.T) {
 // projected and wants the same weights and a net whose forward pass gives
 // the returned curves.
 func TestPoissonFitDeterministic(t *testing.T) {
-	p, _ := popPrepared(t, popSpec{Neurons: 20, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, Seed: 9},
+	p, _ := popPrepared(t, synth.DiscreteConfig{Neurons: 20, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, Seed: 9},
 		func(c *Config) {
 			c.Train.Solver = SolverProjected
 			c.Train.MaxEpochs = 30
@@ -277,7 +278,7 @@ func TestPoissonFitDeterministic(t *testing.T) {
 // loadState): the weights must equal those of an uninterrupted fit bit
 // for bit.
 func TestPoissonResumeState(t *testing.T) {
-	p, _ := popPrepared(t, popSpec{Neurons: 20, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, Seed: 9},
+	p, _ := popPrepared(t, synth.DiscreteConfig{Neurons: 20, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, Seed: 9},
 		func(c *Config) {
 			c.Train.Solver = SolverProjected
 			c.Train.MaxEpochs = 40

@@ -7,6 +7,7 @@ import (
 	"testing"
 	"time"
 
+	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/nn"
 	"github.com/strialab/stria/train/projection"
 )
@@ -20,7 +21,7 @@ func BenchmarkPoissonFastVsAdam(b *testing.B) {
 	for _, l2 := range []float64{0.01, 1} {
 		n := 1000
 		b.Run(fmt.Sprintf("neurons=%d/readout_l2=%g", n, l2), func(b *testing.B) {
-			p, truth := popPrepared(b, popSpec{Neurons: n, Trials: 3000, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 41},
+			p, truth := popPrepared(b, synth.DiscreteConfig{Neurons: n, Trials: 3000, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 41},
 				func(c *Config) { c.Model.ReadoutL2 = Penalty{Value: l2}; c.Train.Patience = 100 })
 			cm, or := testR2(p, condMeanPred(p)), testR2(p, truth)
 			for range b.N {
@@ -57,7 +58,7 @@ func BenchmarkPoissonFastVsAdam(b *testing.B) {
 func BenchmarkPoissonEpoch(b *testing.B) {
 	for _, n := range []int{1000, 6000, 24000} {
 		b.Run(fmt.Sprintf("neurons=%d", n), func(b *testing.B) {
-			p, _ := popPrepared(b, popSpec{Neurons: n, Trials: 1200, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, Seed: 41}, nil)
+			p, _ := popPrepared(b, synth.DiscreteConfig{Neurons: n, Trials: 1200, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, Seed: 41}, nil)
 			net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
 			net.InitConvs(rand.New(rand.NewPCG(1, 2)))
 			pp, err := projection.NewPoisson(p.problem(), net)

@@ -6,6 +6,7 @@ import (
 	"testing"
 	"time"
 
+	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/nn"
 )
 
@@ -14,7 +15,7 @@ import (
 // times a cell's amplitude and a 20 % shared gain, z-scored MSE with the default
 // encoder.
 func penaltyPopulation(b *testing.B, noise float64) (*testCase, []float64) {
-	return popCase(b, popSpec{Neurons: 2000, Trials: 3000, Bins: 60, GainSD: 0.2, NoiseSD: noise, UntunedFrac: 0.1, RareBins: 6, Seed: 31},
+	return popCase(b, synth.DiscreteConfig{Neurons: 2000, Trials: 3000, Bins: 60, GainSD: 0.2, NoiseSD: noise, UntunedFrac: 0.1, RareBins: 6, Seed: 31},
 		caseOptions{maxEpochs: 3000, patience: 100})
 }
 
@@ -189,7 +190,7 @@ func quantile(x []float64, f float64) float64 {
 func BenchmarkPoissonPenalty(b *testing.B) {
 	for _, l2 := range []float64{1, 0.01} {
 		b.Run(fmt.Sprintf("readout_l2=%g", l2), func(b *testing.B) {
-			p, truth := popCase(b, popSpec{Neurons: 1000, Trials: 3000, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 41},
+			p, truth := popCase(b, synth.DiscreteConfig{Neurons: 1000, Trials: 3000, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 41},
 				caseOptions{penalty: l2, patience: 100})
 			cm, or := p.testR2(p.condMeanPred()), p.testR2(truth)
 			for range b.N {

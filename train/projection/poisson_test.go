@@ -8,6 +8,7 @@ import (
 	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/optimize"
 
+	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/nn"
 )
 
@@ -15,7 +16,7 @@ import (
 // stride 2: F 45 > Bt 30, the full-size situation) with random filters.
 func poissonCase(t *testing.T, output nn.Activation, l2 float64) (*testCase, *nn.Net) {
 	t.Helper()
-	c, _ := popCase(t, popSpec{Neurons: 9, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, RareBins: 3, Seed: 5},
+	c, _ := popCase(t, synth.DiscreteConfig{Neurons: 9, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, RareBins: 3, Seed: 5},
 		caseOptions{output: output, penalty: l2, convs: []nn.ConvSpec{{Out: 3, K: 5, Stride: 2, Border: nn.Circular}}})
 	return c, c.net(3, 4)
 }
