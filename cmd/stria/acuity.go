@@ -13,7 +13,7 @@ import (
 	"github.com/urfave/cli/v2"
 
 	"github.com/strialab/stria/train"
-	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/acuityfolder"
 )
 
 func acuityCommand() *cli.Command {
@@ -48,7 +48,7 @@ func acuityCommand() *cli.Command {
 
 // runAcuity prepares the recording, computes everything, writes the
 // acuity folder (complete.json last) and prints the results and cautions.
-func runAcuity(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer, quiet bool) (*runfolder.AcuityFolder, error) {
+func runAcuity(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer, quiet bool) (*acuityfolder.AcuityFolder, error) {
 	start := time.Now()
 	p, err := train.Prepare(cfg)
 	if err != nil {
@@ -56,7 +56,7 @@ func runAcuity(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer,
 	}
 	var enc *train.AcuityEncoder
 	if dir := cfg.Acuity.Encoder; dir != "" {
-		if enc, err = runfolder.AcuityEncoder(dir, p); err != nil {
+		if enc, err = acuityfolder.AcuityEncoder(dir, p); err != nil {
 			return nil, err
 		}
 	}
@@ -65,7 +65,7 @@ func runAcuity(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer,
 		return nil, err
 	}
 	out := cfg.Acuity.Output
-	if err := runfolder.BeginAcuity(out, settings); err != nil {
+	if err := acuityfolder.BeginAcuity(out, settings); err != nil {
 		return nil, err
 	}
 	progress := func(s string) {
@@ -80,9 +80,9 @@ func runAcuity(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer,
 	if err != nil {
 		return nil, err
 	}
-	f := runfolder.NewAcuityFolder(p, r)
+	f := acuityfolder.NewAcuityFolder(p, r)
 	f.Info.Seconds["total"] = time.Since(start).Seconds()
-	if err := runfolder.WriteAcuity(out, f); err != nil {
+	if err := acuityfolder.WriteAcuity(out, f); err != nil {
 		return nil, err
 	}
 	printAcuity(stdout, out, f)
@@ -91,7 +91,7 @@ func runAcuity(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer,
 
 // printAcuity prints the headline numbers of an acuity folder and its
 // cautions.
-func printAcuity(w io.Writer, dir string, f *runfolder.AcuityFolder) {
+func printAcuity(w io.Writer, dir string, f *acuityfolder.AcuityFolder) {
 	info := f.Info
 	unit := info.Axis.Unit
 	fmt.Fprintf(w, "acuity folder: %s\n", dir)

@@ -7,6 +7,7 @@ import (
 	"testing"
 
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/acuityfolder"
 )
 
 // TestAcuityEndToEnd runs stria acuity on a small synthetic recording
@@ -30,13 +31,13 @@ func TestAcuityEndToEnd(t *testing.T) {
 			t.Errorf("stria acuity output lacks %q:\n%s", want, got)
 		}
 	}
-	for _, f := range []string{runfolder.FileSettings, runfolder.FileAcuity, runfolder.FileInfoPairs, runfolder.FileInfoVsSize, runfolder.FileInfoSubsets,
-		runfolder.FileDecodingSummary, runfolder.FileDecodingVsSize, runfolder.FileConfusion, runfolder.FileComplete} {
+	for _, f := range []string{runfolder.FileSettings, acuityfolder.FileAcuity, acuityfolder.FileInfoPairs, acuityfolder.FileInfoVsSize, acuityfolder.FileInfoSubsets,
+		acuityfolder.FileDecodingSummary, acuityfolder.FileDecodingVsSize, acuityfolder.FileConfusion, runfolder.FileComplete} {
 		if st, err := os.Stat(filepath.Join(out, f)); err != nil || st.Size() == 0 {
 			t.Errorf("acuity folder: %s missing or empty (%v)", f, err)
 		}
 	}
-	f, err := runfolder.ReadAcuity(out)
+	f, err := acuityfolder.ReadAcuity(out)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -45,7 +46,7 @@ func TestAcuityEndToEnd(t *testing.T) {
 			len(f.Pairs), f.Info.Folds, len(f.Info.Decoders), f.Info.Decoders[0].Trials)
 	}
 	if len(f.Info.Cautions) != 3 {
-		t.Errorf("%s holds %d cautions, want 3", runfolder.FileAcuity, len(f.Info.Cautions))
+		t.Errorf("%s holds %d cautions, want 3", acuityfolder.FileAcuity, len(f.Info.Cautions))
 	}
 
 	got, err = runCLI(t, "report", out)
@@ -144,7 +145,7 @@ func TestAcuityRunEncoder(t *testing.T) {
 	if got, err := runCLI(t, "acuity", "--config", withEncoder("enc.yaml", "run"), "--out", out, "--quiet"); err != nil {
 		t.Fatalf("stria acuity: %v\n%s", err, got)
 	}
-	f, err := runfolder.ReadAcuity(out)
+	f, err := acuityfolder.ReadAcuity(out)
 	if err != nil {
 		t.Fatal(err)
 	}

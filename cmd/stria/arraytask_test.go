@@ -15,6 +15,7 @@ import (
 	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/comparefolder"
 )
 
 // TestMain lets the tests run the stria command in child processes: the
@@ -139,7 +140,7 @@ func TestArrayTasksGatherLikeOneRun(t *testing.T) {
 		}
 	}
 	full := outputs(t, filepath.Join(dir, "full"))
-	for _, f := range []string{"m1-resp/fold_scores.csv", "m3-resp/comparison.json", runfolder.FilePerRecording, runfolder.FilePooledSummary, runfolder.FilePooledPairs} {
+	for _, f := range []string{"m1-resp/fold_scores.csv", "m3-resp/comparison.json", runfolder.FilePerRecording, comparefolder.FilePooledSummary, comparefolder.FilePooledPairs} {
 		if _, ok := full[f]; !ok {
 			t.Errorf("the run in one process lacks %s", f)
 		}

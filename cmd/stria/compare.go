@@ -15,6 +15,7 @@ import (
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/compare"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/comparefolder"
 )
 
 func compareCommand() *cli.Command {
@@ -139,7 +140,7 @@ type compareOptions struct {
 // folder whose settings.yaml holds other settings. The whole comparison
 // (not an array task, which shares the folder with the others) locks the
 // folder.
-func runCompare(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer, o compareOptions) ([]*runfolder.Comparison, error) {
+func runCompare(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer, o compareOptions) ([]*comparefolder.Comparison, error) {
 	plan, err := compare.NewPlan(cfg)
 	if err != nil {
 		return nil, err

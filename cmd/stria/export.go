@@ -7,6 +7,7 @@ import (
 
 	"github.com/strialab/stria/train/export"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/acuityfolder"
 )
 
 func exportCommand() *cli.Command {
@@ -27,7 +28,7 @@ func exportCommand() *cli.Command {
 			opt.Out = c.String("out")
 			var ex *export.Exported
 			var err error
-			if dir := c.Args().First(); runfolder.IsAcuity(dir) {
+			if dir := c.Args().First(); acuityfolder.IsAcuity(dir) {
 				if opt.Neurons != "" || opt.Compare != "" {
 					return fmt.Errorf("export: %s is an acuity folder; --neurons and --compare apply to run folders only", dir)
 				}

@@ -17,6 +17,7 @@ import (
 	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/comparefolder"
 )
 
 // copyDir copies a folder tree, leaving out the folder named skip.
@@ -209,7 +210,7 @@ func TestExportAndReport(t *testing.T) {
 	// The condition means of the tuning figure agree with those stria
 	// compare saved from the same recording and binning (curves/data_mean.npy,
 	// float64 written, float32 read: relative tolerance 1e-6).
-	if dm, err := format.ReadNPY(filepath.Join(cmp, runfolder.DirCurves, "data_mean.npy")); err == nil {
+	if dm, err := format.ReadNPY(filepath.Join(cmp, comparefolder.DirCurves, "data_mean.npy")); err == nil {
 		tc := readCSVCols(t, filepath.Join(exp, "tuning_n5.csv"))
 		if len(tc["data_mean"]) != dm.Rows {
 			t.Fatalf("tuning_n5.csv: %d bins, data_mean.npy %d", len(tc["data_mean"]), dm.Rows)

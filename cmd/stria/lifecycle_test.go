@@ -15,6 +15,7 @@ import (
 	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/comparefolder"
 )
 
 // TestFitOverwrite: --overwrite empties the folder of an earlier run
@@ -81,12 +82,12 @@ func TestStaleTempsRemovedOnResume(t *testing.T) {
 func TestCompareReusesMatchingUnits(t *testing.T) {
 	f := newFixture(t)
 	f.run(t, compareArgs(f)...)
-	first, _ := os.ReadFile(filepath.Join(f.cmp, runfolder.FileFoldScores))
+	first, _ := os.ReadFile(filepath.Join(f.cmp, comparefolder.FileFoldScores))
 	out, err := runCLI(t, "compare", "--config", f.cfg)
 	if err != nil || !strings.Contains(out, "already done") {
 		t.Fatalf("second run: %v\n%s", err, out)
 	}
-	again, _ := os.ReadFile(filepath.Join(f.cmp, runfolder.FileFoldScores))
+	again, _ := os.ReadFile(filepath.Join(f.cmp, comparefolder.FileFoldScores))
 	if string(first) != string(again) {
 		t.Error("reusing the units changed the scores")
 	}

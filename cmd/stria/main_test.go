@@ -15,6 +15,7 @@ import (
 	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/eval/report/browsertest"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/comparefolder"
 )
 
 // runCLI runs the stria command line with args and returns its output.
@@ -114,12 +115,12 @@ func TestDemoEndToEnd(t *testing.T) {
 
 	// The comparison folder.
 	cmpDir := filepath.Join(dir, "compare")
-	for _, f := range []string{runfolder.FileFoldScores, runfolder.FileModelSummary, runfolder.FileModelPairs, runfolder.FileComparison, runfolder.FileDescriptors, "tuning_curves/condmean.npy"} {
+	for _, f := range []string{comparefolder.FileFoldScores, comparefolder.FileModelSummary, comparefolder.FileModelPairs, runfolder.FileComparison, comparefolder.FileDescriptors, "tuning_curves/condmean.npy"} {
 		if st, err := os.Stat(filepath.Join(cmpDir, f)); err != nil || st.Size() == 0 {
 			t.Errorf("comparison folder: %s missing or empty (%v)", f, err)
 		}
 	}
-	sc, _ := os.ReadFile(filepath.Join(cmpDir, runfolder.FileFoldScores))
+	sc, _ := os.ReadFile(filepath.Join(cmpDir, comparefolder.FileFoldScores))
 	if !strings.HasPrefix(string(sc), "model,fold,neuron,test_r2,test_r,explainable_fraction,fev,") || !strings.Contains(string(sc), "cc_norm") {
 		t.Errorf("scores.csv header: %.100s", sc)
 	}

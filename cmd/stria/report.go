@@ -7,6 +7,7 @@ import (
 
 	"github.com/strialab/stria/train/export"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/acuityfolder"
 )
 
 func reportCommand() *cli.Command {
@@ -24,7 +25,7 @@ func reportCommand() *cli.Command {
 				return err
 			}
 			dir := c.Args().First()
-			if runfolder.IsAcuity(dir) {
+			if acuityfolder.IsAcuity(dir) {
 				if c.String("neurons") != "" || c.String("compare") != "" {
 					return fmt.Errorf("report: %s is an acuity folder; --neurons and --compare apply to run folders only", dir)
 				}

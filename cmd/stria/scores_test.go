@@ -12,6 +12,7 @@ import (
 
 	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/comparefolder"
 )
 
 // writeUntunedHeavy writes a recording where most cells are untuned and
@@ -186,7 +187,7 @@ func TestUntunedHeavyRatios(t *testing.T) {
 			t.Errorf("summary.json: fev kept %d, reliable %d; test_r2 kept %d, scored %d; verdicts %v", sum.Spread["fev"].Kept, sum.Reliable, sum.Spread["test_r2"].Kept, sum.Scored, sum.Ceilings)
 		}
 		// Compare: every fold's scores and the fold averages.
-		cf, err := runfolder.ReadComparison(cmp)
+		cf, err := comparefolder.ReadComparison(cmp)
 		if err != nil {
 			t.Fatal(err)
 		}

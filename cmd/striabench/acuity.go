@@ -7,7 +7,7 @@ import (
 	"os/exec"
 	"path/filepath"
 
-	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/acuityfolder"
 )
 
 // acuityTemplate is the acuity section of the timed config: the defaults.
@@ -44,7 +44,7 @@ func timeAcuity(o options, r rec) error {
 	if cr.Err != "" {
 		return fmt.Errorf("stria acuity %s: %s\n%s", cfgPath, cr.Err, cr.Stderr)
 	}
-	f, err := runfolder.ReadAcuity(out)
+	f, err := acuityfolder.ReadAcuity(out)
 	if err != nil {
 		return err
 	}

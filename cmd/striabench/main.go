@@ -31,6 +31,7 @@ import (
 	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/comparefolder"
 )
 
 type options struct {
@@ -512,7 +513,7 @@ func timeCompare(o options, r rec) error {
 	}
 	matMB := float64(r.neurons) * float64(r.trials) * 4 / 1e6
 	fmt.Printf("  wall %.1f s (target <= 60), peak resident memory %.0f MB = %.2f x the float32 matrix\n", cr.Wall, cr.MaxRSS/1e6, cr.MaxRSS/1e6/matMB)
-	cj, err := runfolder.ReadComparisonInfo(out)
+	cj, err := comparefolder.ReadComparisonInfo(out)
 	if err != nil {
 		return err
 	}

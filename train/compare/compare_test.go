@@ -9,7 +9,7 @@ import (
 
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/train"
-	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/comparefolder"
 )
 
 func TestSpecsGrid(t *testing.T) {
@@ -195,11 +195,11 @@ func TestAcrossFolds(t *testing.T) {
 			t.Errorf("pair %+v, want a vs b, share 1/3, n 3", pt)
 		}
 	}
-	if len(c.Pairs) != len(runfolder.CompareMetrics) {
+	if len(c.Pairs) != len(comparefolder.CompareMetrics) {
 		t.Errorf("%d pairs, want one per metric", len(c.Pairs))
 	}
 	// Pooling two recordings concatenates their neurons.
-	p := Pool([]*runfolder.Comparison{c, c})
+	p := Pool([]*comparefolder.Comparison{c, c})
 	if p.Neurons != 8 || p.Excluded != 2 || len(p.PerNeuron["a"]["fev"]) != 8 || !slices.Equal(p.Models, c.Models) {
 		t.Errorf("pooled: %d neurons, %d excluded, models %v", p.Neurons, p.Excluded, p.Models)
 	}

@@ -9,6 +9,7 @@ import (
 	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/comparefolder"
 )
 
 // unitSettings returns the settings the numbers of the units of spec si
@@ -71,8 +72,8 @@ func (p *Plan) fingerprint(u Unit, files []format.FileID) runfolder.Fingerprint 
 // checkDone reads the result of a finished unit and refuses it when its
 // fingerprint differs from the unit's now. The error names every
 // difference and how to go on.
-func (p *Plan) checkDone(u Unit, files []format.FileID) (*runfolder.FoldResult, error) {
-	r, err := runfolder.ReadFoldResult(p.Dir(), u.ID)
+func (p *Plan) checkDone(u Unit, files []format.FileID) (*comparefolder.FoldResult, error) {
+	r, err := comparefolder.ReadFoldResult(p.Dir(), u.ID)
 	if err != nil {
 		return nil, err
 	}

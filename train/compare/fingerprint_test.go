@@ -12,7 +12,7 @@ import (
 	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/train"
-	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/comparefolder"
 )
 
 const fpConfig = `seed: 1
@@ -122,7 +122,7 @@ func TestChangedDataRefused(t *testing.T) {
 	}
 	n := 0
 	for _, u := range p.Units {
-		if runfolder.HasFoldResult(p.Dir(), u.ID) {
+		if comparefolder.HasFoldResult(p.Dir(), u.ID) {
 			n++
 		}
 	}

@@ -14,6 +14,7 @@ import (
 	"github.com/strialab/stria/eval/tuning"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/comparefolder"
 )
 
 // Gather checks that every unit is done and writes the comparison
@@ -26,7 +27,7 @@ import (
 // Every unit's fingerprint must match the plan's (settings and data
 // files; otherwise a *StaleError), and the recordings must not have
 // changed while being read: both are checked before anything is written.
-func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
+func (p *Plan) Gather() ([]*comparefolder.Comparison, error) {
 	if miss := p.Missing(); len(miss) > 0 {
 		show := miss
 		if len(show) > 20 {
@@ -41,14 +42,14 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 		return nil, err
 	}
 	// Everything is read and checked before anything is written.
-	folders := make([]*runfolder.ComparisonFolder, len(p.Recordings))
+	folders := make([]*comparefolder.ComparisonFolder, len(p.Recordings))
 	for ri, rec := range p.Recordings {
 		prep, folds, err := p.prepare(ri) // the folds also for the coverage warnings
 		if err != nil {
 			return nil, err
 		}
 		files := prep.Rec.Files()
-		var results []*runfolder.FoldResult
+		var results []*comparefolder.FoldResult
 		for _, u := range p.Units {
 			if u.Rec != ri {
 				continue
@@ -65,7 +66,7 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 			}
 			results = append(results, r)
 		}
-		var folder *runfolder.ComparisonFolder
+		var folder *comparefolder.ComparisonFolder
 		if gerr := format.Guard(func() { folder, err = newFolder(prep, rec.Specs, results, folds) }); gerr != nil {
 			return nil, p.recErr(rec, gerr)
 		}
@@ -81,14 +82,14 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 	if err := p.Begin(); err != nil {
 		return nil, err
 	}
-	var cmps []*runfolder.Comparison
+	var cmps []*comparefolder.Comparison
 	for ri, rec := range p.Recordings {
 		folder := folders[ri]
 		dir := out
 		if rec.Name != "" {
 			dir = filepath.Join(out, rec.Name)
 		}
-		if err := runfolder.WriteComparison(dir, folder); err != nil {
+		if err := comparefolder.WriteComparison(dir, folder); err != nil {
 			return nil, err
 		}
 		if rec.Name != "" {
@@ -99,7 +100,7 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 		cmps = append(cmps, folder.Result)
 	}
 	if len(p.Recordings) > 1 {
-		if err := runfolder.WriteAcross(out, runfolder.NewAcross(cmps, Pool(cmps))); err != nil {
+		if err := comparefolder.WriteAcross(out, comparefolder.NewAcross(cmps, Pool(cmps))); err != nil {
 			return nil, err
 		}
 	}
@@ -111,7 +112,7 @@ func (p *Plan) Gather() ([]*runfolder.Comparison, error) {
 
 // newFolder computes everything the comparison folder of one recording
 // holds from the units' results (in plan order) on the given folds.
-func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.FoldResult, folds [][3][]int) (*runfolder.ComparisonFolder, error) {
+func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefolder.FoldResult, folds [][3][]int) (*comparefolder.ComparisonFolder, error) {
 	names := make([]string, len(specs))
 	var encoders []string
 	for i, s := range specs {
@@ -144,9 +145,9 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.
 	if err != nil {
 		return nil, err
 	}
-	f := &runfolder.ComparisonFolder{Settings: settings, Result: c, Excluded: reasons, Curves: map[string][]float64{}}
+	f := &comparefolder.ComparisonFolder{Settings: settings, Result: c, Excluded: reasons, Curves: map[string][]float64{}}
 	for _, r := range results {
-		f.FoldScores = append(f.FoldScores, runfolder.NewFoldScores(r.Model, r.Fold, r.Scores, ex, verdicts[r.Fold]))
+		f.FoldScores = append(f.FoldScores, comparefolder.NewFoldScores(r.Model, r.Fold, r.Scores, ex, verdicts[r.Fold]))
 	}
 	// Fold-averaged curves per model.
 	for _, m := range names {
@@ -178,7 +179,7 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.
 			sem[b*n+j] = math.Sqrt(sem[b*n+j] / float64(st.Count[b]))
 		}
 	}
-	f.Curves[runfolder.CurveDataMean], f.Curves[runfolder.CurveDataSEM] = means, sem
+	f.Curves[comparefolder.CurveDataMean], f.Curves[comparefolder.CurveDataSEM] = means, sem
 	// Tuning descriptors of the data's and every model's curves, at the
 	// conditions' stimulus values; NaN throughout for an excluded neuron.
 	values := p.Values
@@ -194,19 +195,19 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*runfolder.
 		}
 		for j := 0; j < n; j++ {
 			if excluded[j] {
-				f.Descriptors = append(f.Descriptors, runfolder.Descriptor{Source: src, Neuron: j, Descriptors: NaNDescriptors()})
+				f.Descriptors = append(f.Descriptors, comparefolder.Descriptor{Source: src, Neuron: j, Descriptors: NaNDescriptors()})
 				continue
 			}
 			for b := 0; b < nb; b++ {
 				r[b] = curve[b*n+j]
 			}
-			f.Descriptors = append(f.Descriptors, runfolder.Descriptor{Source: src, Neuron: j, Descriptors: tuning.Describe(r, values, period)})
+			f.Descriptors = append(f.Descriptors, comparefolder.Descriptor{Source: src, Neuron: j, Descriptors: tuning.Describe(r, values, period)})
 		}
 	}
-	info := runfolder.ComparisonInfo{Models: names, Encoders: encoders, Folds: c.Folds, Neurons: n, Excluded: map[string]string{},
+	info := comparefolder.ComparisonInfo{Models: names, Encoders: encoders, Folds: c.Folds, Neurons: n, Excluded: map[string]string{},
 		Ceilings: runfolder.CeilingCounts(ceilingVerdicts(c.Ceiling), func(j int) bool { return excluded[j] }), FoldCeilings: c.FoldCeilings,
 		Reliable: Reliable(c), MinReliability: c.MinReliability,
-		Summary: c.Summary, Winner: c.Winner, Pairs: runfolder.NewPairInfo(c.Pairs), PValues: runfolder.WilcoxonNote,
+		Summary: c.Summary, Winner: c.Winner, Pairs: comparefolder.NewPairInfo(c.Pairs), PValues: comparefolder.WilcoxonNote,
 		Cautions: FoldCautions(p, folds), Warnings: compareWarnings(p.Report.Warnings),
 		Axis:   runfolder.AxisOf(p),
 		Epochs: map[string][]int{}, Recordings: []string{p.Rec.Source.Responses}}

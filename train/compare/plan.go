@@ -14,6 +14,7 @@ import (
 	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/comparefolder"
 )
 
 // RecordingPlan is one recording of a comparison plan with its own config
@@ -79,7 +80,7 @@ func NewPlan(c *train.Config) (*Plan, error) {
 		p.settings = append(p.settings, us)
 		for si, s := range specs {
 			for f := 0; f < r.Cfg.Split.Folds; f++ {
-				id := runfolder.FileName(s.Name) + "/fold" + strconv.Itoa(f+1)
+				id := comparefolder.FileName(s.Name) + "/fold" + strconv.Itoa(f+1)
 				if r.Name != "" {
 					id = r.Name + "/" + id
 				}
@@ -124,7 +125,7 @@ func expandRecordings(c *train.Config) ([]RecordingPlan, error) {
 				stem := strings.TrimSuffix(filepath.Base(m), filepath.Ext(m))
 				name = filepath.Base(filepath.Dir(m)) + "-" + stem
 			}
-			name = runfolder.FileName(name)
+			name = comparefolder.FileName(name)
 			if seen[name] {
 				return nil, fmt.Errorf("%s: two recordings are called %q; give them names", field, name)
 			}
@@ -159,7 +160,7 @@ func expandRecordings(c *train.Config) ([]RecordingPlan, error) {
 func (p *Plan) Dir() string { return p.Cfg.Compare.Output }
 
 // Done reports whether a unit's result is already on disk.
-func (p *Plan) Done(u Unit) bool { return runfolder.HasFoldResult(p.Dir(), u.ID) }
+func (p *Plan) Done(u Unit) bool { return comparefolder.HasFoldResult(p.Dir(), u.ID) }
 
 // ArrayTask returns the units of array task i of n (1-based): every n-th
 // unit, starting at the i-th. It panics unless 1 <= i <= n; check the
@@ -330,7 +331,7 @@ func (p *Plan) recErr(rec RecordingPlan, err error) error {
 }
 
 func (p *Plan) runOne(ctx context.Context, prep *train.Prepared, rec RecordingPlan, u Unit, sets [3][]int, files []format.FileID) error {
-	if err := runfolder.RemoveFoldResultTemps(p.Dir(), u.ID); err != nil {
+	if err := comparefolder.RemoveFoldResultTemps(p.Dir(), u.ID); err != nil {
 		return err
 	}
 	r, err := train.RunUnit(ctx, prep, rec.Specs[u.Spec], u.Fold, sets)
@@ -342,7 +343,7 @@ func (p *Plan) runOne(ctx context.Context, prep *train.Prepared, rec RecordingPl
 	if err := prep.Rec.Unchanged(); err != nil {
 		return p.recErr(rec, err)
 	}
-	return runfolder.WriteFoldResult(p.Dir(), &runfolder.FoldResult{ID: u.ID, Model: r.Model, Fold: r.Fold, Scores: r.Scores, Curves: r.Curves, Epochs: r.Epochs,
+	return comparefolder.WriteFoldResult(p.Dir(), &comparefolder.FoldResult{ID: u.ID, Model: r.Model, Fold: r.Fold, Scores: r.Scores, Curves: r.Curves, Epochs: r.Epochs,
 		Fingerprint: p.fingerprint(u, files)})
 }
 

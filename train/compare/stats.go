@@ -3,6 +3,7 @@ package compare
 import (
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/comparefolder"
 )
 
 // Scoring is how AcrossFolds judges the scores: the level of the F test that
@@ -27,8 +28,8 @@ type Scoring struct {
 // a usable fold. The verdicts depend only on each fold's test trials, so
 // they are taken from the first model; the per-fold verdicts are returned
 // (verdicts[f][j]) for fold_scores.csv.
-func AcrossFolds(models []string, folds, neurons int, perFold map[string][][]eval.Scores, excluded []bool, sc Scoring) (*runfolder.Comparison, [][]eval.Ceiling) {
-	c := &runfolder.Comparison{Models: models, Folds: folds, Neurons: neurons, PerNeuron: map[string]map[string][]float64{},
+func AcrossFolds(models []string, folds, neurons int, perFold map[string][][]eval.Scores, excluded []bool, sc Scoring) (*comparefolder.Comparison, [][]eval.Ceiling) {
+	c := &comparefolder.Comparison{Models: models, Folds: folds, Neurons: neurons, PerNeuron: map[string]map[string][]float64{},
 		SplitHalfAll: sc.SplitHalfAll, MinReliability: sc.MinReliability}
 	for _, ex := range excluded {
 		if ex {
@@ -112,7 +113,7 @@ func neuronVerdicts(verdicts [][]eval.Ceiling, n int, excluded func(int) bool) (
 // of them share. Each neuron keeps its recording's verdict and
 // reliability; the threshold is the first recording's (one config sets it
 // for all).
-func Pool(cmps []*runfolder.Comparison) *runfolder.Comparison {
+func Pool(cmps []*comparefolder.Comparison) *comparefolder.Comparison {
 	var models []string
 	for _, m := range cmps[0].Models {
 		all := true
@@ -124,7 +125,7 @@ func Pool(cmps []*runfolder.Comparison) *runfolder.Comparison {
 			models = append(models, m)
 		}
 	}
-	p := &runfolder.Comparison{Recording: "pooled", Models: models, Folds: cmps[0].Folds, PerNeuron: map[string]map[string][]float64{},
+	p := &comparefolder.Comparison{Recording: "pooled", Models: models, Folds: cmps[0].Folds, PerNeuron: map[string]map[string][]float64{},
 		MinReliability: cmps[0].MinReliability}
 	for _, c := range cmps {
 		p.Neurons += c.Neurons
@@ -152,7 +153,7 @@ func Pool(cmps []*runfolder.Comparison) *runfolder.Comparison {
 // MinReliability) for a ratio metric, every scored neuron otherwise (a
 // neuron is scored when its test_r2 fold average is not NaN or its verdict
 // is not "").
-func Kept(c *runfolder.Comparison, metric string) ([]bool, string) {
+func Kept(c *comparefolder.Comparison, metric string) ([]bool, string) {
 	keep := make([]bool, c.Neurons)
 	ratio := runfolder.IsRatio(metric)
 	for j := range keep {
@@ -166,7 +167,7 @@ func Kept(c *runfolder.Comparison, metric string) ([]bool, string) {
 }
 
 // Reliable is the number of scored neurons kept for the ratio metrics.
-func Reliable(c *runfolder.Comparison) int {
+func Reliable(c *comparefolder.Comparison) int {
 	keep, _ := Kept(c, runfolder.RatioColumns[0])
 	n := 0
 	for _, k := range keep {
@@ -179,18 +180,18 @@ func Reliable(c *runfolder.Comparison) int {
 
 // compareModels fills the summaries, winners and pairwise tests of c from
 // its fold averages, each metric over the neurons Kept gives it.
-func compareModels(c *runfolder.Comparison) {
+func compareModels(c *comparefolder.Comparison) {
 	c.Summary = map[string]map[string]runfolder.Spread{}
 	c.Winner = map[string]string{}
 	c.Pairs = nil
 	for _, m := range c.Models {
 		c.Summary[m] = map[string]runfolder.Spread{}
-		for _, k := range runfolder.CompareMetrics {
+		for _, k := range comparefolder.CompareMetrics {
 			keep, by := Kept(c, k)
 			c.Summary[m][k] = runfolder.SpreadOver(c.PerNeuron[m][k], keep, by)
 		}
 	}
-	for _, k := range runfolder.CompareMetrics {
+	for _, k := range comparefolder.CompareMetrics {
 		keep, by := Kept(c, k)
 		kept := 0
 		for _, ok := range keep {
@@ -215,7 +216,7 @@ func compareModels(c *runfolder.Comparison) {
 			c.Winner[k] = ""
 		}
 		for _, pt := range eval.Pairs(cols) {
-			c.Pairs = append(c.Pairs, runfolder.PairTest{Metric: k, A: c.Models[pt.A], B: c.Models[pt.B], ShareA: pt.ShareA, Wilcoxon: pt.Wilcoxon, Kept: kept, KeptBy: by})
+			c.Pairs = append(c.Pairs, comparefolder.PairTest{Metric: k, A: c.Models[pt.A], B: c.Models[pt.B], ShareA: pt.ShareA, Wilcoxon: pt.Wilcoxon, Kept: kept, KeptBy: by})
 		}
 	}
 }

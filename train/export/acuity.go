@@ -9,13 +9,15 @@ import (
 	"github.com/strialab/stria/eval/figure"
 	"github.com/strialab/stria/eval/report"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/acuityfolder"
+	"github.com/strialab/stria/train/runfolder/comparefolder"
 )
 
 // AcuityFigures writes the figures of a finished acuity folder, each with
 // the CSV arrays it is drawn from, into out (default FOLDER/figures).
 // Everything is read before the first file is written.
-func AcuityFigures(dir, out string) (*Exported, *runfolder.AcuityFolder, error) {
-	f, err := runfolder.ReadAcuity(dir)
+func AcuityFigures(dir, out string) (*Exported, *acuityfolder.AcuityFolder, error) {
+	f, err := acuityfolder.ReadAcuity(dir)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -25,7 +27,7 @@ func AcuityFigures(dir, out string) (*Exported, *runfolder.AcuityFolder, error) 
 	if err := runfolder.MakeFolder(out); err != nil {
 		return nil, nil, err
 	}
-	ex := &Exported{Folder: dir, Kind: runfolder.KindAcuity, Dir: out}
+	ex := &Exported{Folder: dir, Kind: acuityfolder.KindAcuity, Dir: out}
 	info := f.Info
 	ax := figAxis(info.Axis)
 	unit := info.Axis.Unit
@@ -93,7 +95,7 @@ func AcuityFigures(dir, out string) (*Exported, *runfolder.AcuityFolder, error) 
 	var bands []figure.Band
 	for d, dec := range info.Decoders {
 		share := figure.ConfusionShare(f.Confusion[d], len(centers))
-		name := "acuity_confusion_" + runfolder.FileName(dec.Name)
+		name := "acuity_confusion_" + comparefolder.FileName(dec.Name)
 		rows := make([][]string, 0, len(share))
 		B := len(centers)
 		for a := 0; a < B; a++ {
@@ -161,7 +163,7 @@ func WriteAcuityReport(dir, out string) (string, error) {
 
 // AcuitySections are the report sections of an acuity folder, for its own
 // report or inside another one.
-func AcuitySections(ex *Exported, f *runfolder.AcuityFolder) []report.Section {
+func AcuitySections(ex *Exported, f *acuityfolder.AcuityFolder) []report.Section {
 	info := f.Info
 	unit := orUnits(info.Axis.Unit)
 	infoUnit := "1/" + unit + "²"
@@ -181,13 +183,13 @@ func AcuitySections(ex *Exported, f *runfolder.AcuityFolder) []report.Section {
 			return false
 		})
 	}
-	pairs := report.Table{Caption: fmt.Sprintf("Information between neighbouring conditions for random subsets of %d neurons, mean over %d subsets (%s): information in %s, its sd over subsets and its analytic standard error for Gaussian noise (se); threshold at d' = 1 in %s.", firstSize(f), info.Repeats, runfolder.FileInfoPairs, infoUnit, unit),
+	pairs := report.Table{Caption: fmt.Sprintf("Information between neighbouring conditions for random subsets of %d neurons, mean over %d subsets (%s): information in %s, its sd over subsets and its analytic standard error for Gaussian noise (se); threshold at d' = 1 in %s.", firstSize(f), info.Repeats, acuityfolder.FileInfoPairs, infoUnit, unit),
 		Header:  []string{"stimulus", "trials A", "trials B", "information", "sd", "se", "threshold", "shuffled", "shuffled threshold"},
 		Numeric: []bool{true, true, true, true, true, true, true, true, true}}
 	for _, r := range f.Pairs {
 		pairs.Rows = append(pairs.Rows, []string{g4(r.Stim), strconv.Itoa(r.TA), strconv.Itoa(r.TB), g4(r.Info), g4(r.InfoSD), g4(r.SE), g4(r.Threshold), g4(r.Shuffled), g4(r.ShuffledThreshold)})
 	}
-	sizes := report.Table{Caption: "Information (mean over pairs, " + infoUnit + ") against the number of neurons: mean and sd over random subsets, and the saturation fit (" + runfolder.FileInfoVsSize + ").",
+	sizes := report.Table{Caption: "Information (mean over pairs, " + infoUnit + ") against the number of neurons: mean and sd over random subsets, and the saturation fit (" + acuityfolder.FileInfoVsSize + ").",
 		Header: []string{"neurons", "information", "sd", "shuffled", "shuffled sd", "fit"}, Numeric: []bool{true, true, true, true, true, true}}
 	for _, r := range f.Sizes {
 		sizes.Rows = append(sizes.Rows, []string{strconv.Itoa(r.Size), g4(r.Info), g4(r.InfoSD), g4(r.Shuffled), g4(r.ShuffledSD), g4(r.Fit)})
@@ -201,7 +203,7 @@ func AcuitySections(ex *Exported, f *runfolder.AcuityFolder) []report.Section {
 		satText = fmt.Sprintf("Saturation fit I(N) = a N/(1 + eps a N): a = %s %s per neuron, eps = %s %s²; asymptotic information 1/eps = %s %s (EXTRAPOLATION; 95%% bootstrap interval over the subsets %s to %s, %d resamples), so a threshold of an infinite population of %s %s; rms residual %s %s.",
 			g4(float64(sat.A)), infoUnit, g4(float64(sat.Eps)), unit, g4(float64(sat.Asymptote)), infoUnit, g4(float64(sat.Lo)), g4(float64(sat.Hi)), sat.Boot, g4(1/math.Sqrt(float64(sat.Asymptote))), unit, g4(float64(sat.RMS)), infoUnit)
 	}
-	dec := report.Table{Caption: "Cross-validated decoding of the held-out trials with all neurons (" + runfolder.FileDecodingSummary + "); errors in " + unit + circularText(info.Axis) + ".",
+	dec := report.Table{Caption: "Cross-validated decoding of the held-out trials with all neurons (" + acuityfolder.FileDecodingSummary + "); errors in " + unit + circularText(info.Axis) + ".",
 		Header: []string{"decoder", "trials", "accuracy", "mean abs error", "s.e.m.", "rms error", "left out"}, Numeric: []bool{false, true, true, true, true, true, true}}
 	var decText []string
 	for _, d := range info.Decoders {
@@ -221,7 +223,7 @@ func AcuitySections(ex *Exported, f *runfolder.AcuityFolder) []report.Section {
 	}
 }
 
-func acuityReport(ex *Exported, f *runfolder.AcuityFolder) (*report.Report, error) {
+func acuityReport(ex *Exported, f *acuityfolder.AcuityFolder) (*report.Report, error) {
 	dir := ex.Folder
 	cfgYAML, err := runfolder.ReadSettings(dir)
 	if err != nil {
@@ -241,7 +243,7 @@ func acuityReport(ex *Exported, f *runfolder.AcuityFolder) (*report.Report, erro
 	return r, nil
 }
 
-func firstSize(f *runfolder.AcuityFolder) int {
+func firstSize(f *acuityfolder.AcuityFolder) int {
 	if len(f.Pairs) == 0 {
 		return 0
 	}

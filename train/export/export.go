@@ -14,6 +14,7 @@ import (
 	"github.com/strialab/stria/eval/report"
 	"github.com/strialab/stria/eval/tuning"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/comparefolder"
 )
 
 // Options are the settings of Folder.
@@ -163,7 +164,7 @@ func baselineCurves(cmp string, nb, n int) (names []string, curves [][]float64, 
 	if kind != runfolder.KindComparison {
 		return nil, nil, fmt.Errorf("--compare %s: a %s folder, want the comparison folder of one recording", cmp, kind)
 	}
-	ci, err := runfolder.ReadComparisonInfo(cmp)
+	ci, err := comparefolder.ReadComparisonInfo(cmp)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -175,7 +176,7 @@ func baselineCurves(cmp string, nb, n int) (names []string, curves [][]float64, 
 		if enc[m] {
 			continue
 		}
-		c, err := runfolder.ReadCurves(cmp, m, nb, n)
+		c, err := comparefolder.ReadCurves(cmp, m, nb, n)
 		if err != nil {
 			return nil, nil, err
 		}
@@ -397,13 +398,13 @@ func writeColumns(path string, header []string, cols [][]float64) error {
 
 // exportComparison writes the figures and tables of a comparison folder.
 func exportComparison(dir, out string) (*Exported, error) {
-	ci, err := runfolder.ReadComparisonInfo(dir)
+	ci, err := comparefolder.ReadComparisonInfo(dir)
 	if err != nil {
 		return nil, err
 	}
 	n := ci.Neurons
 	metrics := []string{"cc_norm", "test_r2", "explainable_fraction", "cc_max"}
-	fa, err := runfolder.ReadFoldAverages(dir, ci.Models, n)
+	fa, err := comparefolder.ReadFoldAverages(dir, ci.Models, n)
 	if err != nil {
 		return nil, err
 	}
@@ -471,7 +472,7 @@ func exportComparison(dir, out string) (*Exported, error) {
 	for _, met := range []string{"cc_norm", "test_r2"} {
 		for _, e := range encoders {
 			for _, b := range baselines {
-				name := "scatter_" + met + "_" + runfolder.FileName(b) + "_vs_" + runfolder.FileName(e)
+				name := "scatter_" + met + "_" + comparefolder.FileName(b) + "_vs_" + comparefolder.FileName(e)
 				im, err := figure.Scatter(shown(b, met), shown(e, met), b, e, met)
 				err = ex.add(name, im, err, fmt.Sprintf("Per-neuron %s averaged over %d folds: %s (x) against %s (y). Points above the diagonal are neurons that %s predicts better.%s", met, ci.Folds, b, e, e, whom(met)),
 					"foldavg_"+met+".csv")
@@ -504,19 +505,19 @@ func exportComparison(dir, out string) (*Exported, error) {
 	tab := report.Table{Caption: fmt.Sprintf("Median over neurons of the fold-averaged score [interquartile range], %d-fold cross-validation, %d neurons; test_r2 and test_r over the %d scored neurons, fev and cc_norm over the %d with split-half reliability (all trials) >= %g.",
 		ci.Folds, n, n-len(ci.Excluded), ci.Reliable, ci.MinReliability),
 		Header: []string{"model"}, Numeric: []bool{false}}
-	for _, k := range runfolder.CompareMetrics {
+	for _, k := range comparefolder.CompareMetrics {
 		tab.Header = append(tab.Header, k)
 		tab.Numeric = append(tab.Numeric, true)
 	}
 	var csvRows [][]string
 	csvHead := []string{"model"}
-	for _, k := range runfolder.CompareMetrics {
+	for _, k := range comparefolder.CompareMetrics {
 		csvHead = append(csvHead, k+"_median", k+"_q1", k+"_q3", k+"_neurons", k+"_nan", k+"_neurons_kept", k+"_kept_by")
 	}
 	for _, m := range ci.Models {
 		row := []string{m}
 		crow := []string{m}
-		for _, k := range runfolder.CompareMetrics {
+		for _, k := range comparefolder.CompareMetrics {
 			s := ci.Summary[m][k]
 			row = append(row, fmt.Sprintf("%.3f [%.3f, %.3f]", float64(s.Median), float64(s.Q1), float64(s.Q3)))
 			crow = append(crow, g8(float64(s.Median)), g8(float64(s.Q1)), g8(float64(s.Q3)), strconv.Itoa(s.N), strconv.Itoa(s.NaN), strconv.Itoa(s.Kept), s.KeptBy)
@@ -533,7 +534,7 @@ func exportComparison(dir, out string) (*Exported, error) {
 		fmt.Fprintf(&md, "| %s |\n", strings.Join(r, " | "))
 	}
 	fmt.Fprintln(&md)
-	for _, k := range runfolder.CompareMetrics {
+	for _, k := range comparefolder.CompareMetrics {
 		fmt.Fprintf(&md, "Best median %s: %s\n", k, ci.Winner[k])
 	}
 	if err := runfolder.WriteBytes(filepath.Join(out, "summary_table.md"), []byte(md.String())); err != nil {

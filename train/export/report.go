@@ -14,6 +14,7 @@ import (
 	"github.com/strialab/stria/eval/report"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/runfolder/comparefolder"
 )
 
 // WriteReport exports the folder (into opt.Out, default FOLDER/figures,
@@ -183,7 +184,7 @@ func runReport(ex *Exported) (*report.Report, error) {
 // comparisonReport builds the report of an exported comparison folder.
 func comparisonReport(ex *Exported) (*report.Report, error) {
 	dir := ex.Folder
-	cj, err := runfolder.ReadComparisonInfo(dir)
+	cj, err := comparefolder.ReadComparisonInfo(dir)
 	if err != nil {
 		return nil, err
 	}
@@ -194,7 +195,7 @@ func comparisonReport(ex *Exported) (*report.Report, error) {
 	cautions := cj.Cautions
 	r := &report.Report{Title: "stria comparison " + filepath.Base(filepath.Clean(dir)), Subtitle: subtitle(dir), Cautions: cautions}
 	var win []string
-	for _, k := range runfolder.CompareMetrics {
+	for _, k := range comparefolder.CompareMetrics {
 		win = append(win, fmt.Sprintf("%s: %s", k, cj.Winner[k]))
 	}
 	r.Sections = append(r.Sections, report.Section{ID: "summary", Heading: "Summary",
@@ -205,14 +206,14 @@ func comparisonReport(ex *Exported) (*report.Report, error) {
 		},
 		Tables: ex.Tables})
 
-	pairs := report.Table{Caption: "Pairwise comparisons across neurons (" + runfolder.FileModelPairs + "): share of neurons where model A scores higher, Wilcoxon statistic W, p-value, neurons used and zero differences dropped, of the neurons kept for the metric.",
+	pairs := report.Table{Caption: "Pairwise comparisons across neurons (" + comparefolder.FileModelPairs + "): share of neurons where model A scores higher, Wilcoxon statistic W, p-value, neurons used and zero differences dropped, of the neurons kept for the metric.",
 		Header: []string{"metric", "model A", "model B", "A higher", "W", "p", "n", "dropped", "method", "kept", "kept by"}, Numeric: []bool{false, false, false, true, true, true, true, true, false, true, false}}
 	for _, p := range cj.Pairs {
 		pairs.Rows = append(pairs.Rows, []string{p.Metric, p.A, p.B, fmt.Sprintf("%.1f %%", 100*float64(p.ShareA)), g4(float64(p.W)), fmt.Sprintf("%.3g", float64(p.P)), strconv.Itoa(p.N), strconv.Itoa(p.Dropped), p.Method, strconv.Itoa(p.Kept), p.KeptBy})
 	}
 	method := cj.PValues
 	if method == "" {
-		method = runfolder.WilcoxonNote
+		method = comparefolder.WilcoxonNote
 	}
 	r.Sections = append(r.Sections, report.Section{ID: "pairs", Heading: "Pairwise tests",
 		Paragraphs: []string{"p-values: " + method}, Tables: []report.Table{pairs}})
@@ -304,7 +305,7 @@ func csvTable(path, caption string, keep func(row []string) bool) (report.Table,
 // builds one report: the tables across recordings, then each recording's
 // summary and figures.
 func manyReport(dir string) (*report.Report, error) {
-	subs, err := runfolder.RecordingFolders(dir)
+	subs, err := comparefolder.RecordingFolders(dir)
 	if err != nil {
 		return nil, err
 	}
@@ -312,7 +313,7 @@ func manyReport(dir string) (*report.Report, error) {
 	seen := map[string]bool{}
 	var cautions []string
 	for _, sub := range subs {
-		ci, err := runfolder.ReadComparisonInfo(sub)
+		ci, err := comparefolder.ReadComparisonInfo(sub)
 		if err != nil {
 			return nil, err
 		}
@@ -329,11 +330,11 @@ func manyReport(dir string) (*report.Report, error) {
 	if err != nil {
 		return nil, err
 	}
-	pooled, err := csvTable(filepath.Join(dir, runfolder.FilePooledSummary), "All neurons of all recordings pooled ("+runfolder.FilePooledSummary+"): median and quartiles of the fold-averaged scores.", nil)
+	pooled, err := csvTable(filepath.Join(dir, comparefolder.FilePooledSummary), "All neurons of all recordings pooled ("+comparefolder.FilePooledSummary+"): median and quartiles of the fold-averaged scores.", nil)
 	if err != nil {
 		return nil, err
 	}
-	pairs, err := csvTable(filepath.Join(dir, runfolder.FilePooledPairs), "Pooled neurons, cc_norm, over the reliable neurons (kept_by): share of neurons where model A scores higher, and the Wilcoxon test ("+runfolder.FilePooledPairs+" has every metric).",
+	pairs, err := csvTable(filepath.Join(dir, comparefolder.FilePooledPairs), "Pooled neurons, cc_norm, over the reliable neurons (kept_by): share of neurons where model A scores higher, and the Wilcoxon test ("+comparefolder.FilePooledPairs+" has every metric).",
 		func(row []string) bool { return row[0] == "cc_norm" })
 	if err != nil {
 		return nil, err
@@ -341,7 +342,7 @@ func manyReport(dir string) (*report.Report, error) {
 	r.Sections = append(r.Sections,
 		report.Section{ID: "pooled", Heading: "Across recordings",
 			Paragraphs: []string{"Pooled neurons answer \"for a neuron in these data\" (large recordings weigh more); the median of recording medians answers \"for a recording\" (each counts once).",
-				"p-values: " + runfolder.WilcoxonNote},
+				"p-values: " + comparefolder.WilcoxonNote},
 			Tables: []report.Table{pooled, pairs}},
 		report.Section{ID: "recordings", Heading: "Recording by recording", Tables: []report.Table{byRec}})
 	for _, sub := range subs {

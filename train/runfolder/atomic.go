@@ -72,8 +72,8 @@ func WriteJSON(path string, v any) error {
 	return WriteBytes(path, append(b, '\n'))
 }
 
-// readJSON reads a JSON file into v; errors name the file.
-func readJSON(path string, v any) error {
+// ReadJSON reads a JSON file into v; errors name the file.
+func ReadJSON(path string, v any) error {
 	b, err := os.ReadFile(path)
 	if err != nil {
 		return err
@@ -90,7 +90,7 @@ func mkdir(dir string) error { return os.MkdirAll(dir, FolderMode) }
 // WriteTable writes a CSV table (header and rows) atomically through
 // encoding/csv.
 func WriteTable(path string, header []string, rows [][]string) error {
-	return writeCSV(path, header, func(cw *csv.Writer) error {
+	return WriteCSV(path, header, func(cw *csv.Writer) error {
 		for _, r := range rows {
 			if err := cw.Write(r); err != nil {
 				return err
@@ -100,8 +100,8 @@ func WriteTable(path string, header []string, rows [][]string) error {
 	})
 }
 
-// writeCSV writes a header and the rows that emit writes, atomically.
-func writeCSV(path string, header []string, emit func(cw *csv.Writer) error) error {
+// WriteCSV writes a header and the rows that emit writes, atomically.
+func WriteCSV(path string, header []string, emit func(cw *csv.Writer) error) error {
 	return WriteFile(path, func(w io.Writer) error {
 		cw := csv.NewWriter(w)
 		if err := cw.Write(header); err != nil {
@@ -133,36 +133,37 @@ func ReadTable(path string) (header []string, rows [][]string, err error) {
 	return all[0], all[1:], nil
 }
 
-// table is a CSV table read back, with its columns found by name.
-type table struct {
-	path   string
+// Table is a CSV table read back, with its columns found by name.
+type Table struct {
+	Path   string // the file, named in errors
 	header []string
-	rows   [][]string
+	Rows   [][]string // the data rows, header excluded
 }
 
-func readTable(path string) (*table, error) {
+// ReadColumns reads a CSV table whose columns are then found by name.
+func ReadColumns(path string) (*Table, error) {
 	h, rows, err := ReadTable(path)
 	if err != nil {
 		return nil, err
 	}
-	return &table{path: path, header: h, rows: rows}, nil
+	return &Table{Path: path, header: h, Rows: rows}, nil
 }
 
-// col returns the index of a column; the error names the file.
-func (t *table) col(name string) (int, error) {
+// Col returns the index of a column; the error names the file.
+func (t *Table) Col(name string) (int, error) {
 	for i, h := range t.header {
 		if h == name {
 			return i, nil
 		}
 	}
-	return 0, fmt.Errorf("%s: no column %q", t.path, name)
+	return 0, fmt.Errorf("%s: no column %q", t.Path, name)
 }
 
-// cols returns the indices of several columns.
-func (t *table) cols(names ...string) ([]int, error) {
+// Cols returns the indices of several columns.
+func (t *Table) Cols(names ...string) ([]int, error) {
 	out := make([]int, len(names))
 	for i, n := range names {
-		k, err := t.col(n)
+		k, err := t.Col(n)
 		if err != nil {
 			return nil, err
 		}
@@ -171,30 +172,30 @@ func (t *table) cols(names ...string) ([]int, error) {
 	return out, nil
 }
 
-// float parses row i's column k; the error names file, line and column.
-func (t *table) float(i, k int) (float64, error) {
-	v, err := strconv.ParseFloat(t.rows[i][k], 64)
+// Float parses row i's column k; the error names file, line and column.
+func (t *Table) Float(i, k int) (float64, error) {
+	v, err := strconv.ParseFloat(t.Rows[i][k], 64)
 	if err != nil {
-		return 0, fmt.Errorf("%s: line %d, column %s: %q is not a number", t.path, i+2, t.header[k], t.rows[i][k])
+		return 0, fmt.Errorf("%s: line %d, column %s: %q is not a number", t.Path, i+2, t.header[k], t.Rows[i][k])
 	}
 	return v, nil
 }
 
-// int parses row i's column k as a whole number.
-func (t *table) int(i, k int) (int, error) {
-	v, err := strconv.Atoi(t.rows[i][k])
+// Int parses row i's column k as a whole number.
+func (t *Table) Int(i, k int) (int, error) {
+	v, err := strconv.Atoi(t.Rows[i][k])
 	if err != nil {
-		return 0, fmt.Errorf("%s: line %d, column %s: %q is not a whole number", t.path, i+2, t.header[k], t.rows[i][k])
+		return 0, fmt.Errorf("%s: line %d, column %s: %q is not a whole number", t.Path, i+2, t.header[k], t.Rows[i][k])
 	}
 	return v, nil
 }
 
-// g8 formats a score with 8 significant digits (NaN as NaN).
-func g8(v float64) string { return strconv.FormatFloat(v, 'g', 8, 64) }
+// FormatScore formats a score with 8 significant digits (NaN as NaN).
+func FormatScore(v float64) string { return strconv.FormatFloat(v, 'g', 8, 64) }
 
-// exact formats v in the shortest form that reads back to the same
+// FormatExact formats v in the shortest form that reads back to the same
 // float64.
-func exact(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
+func FormatExact(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
 
 // Num is a float64 that writes NaN and infinities as JSON null.
 type Num float64

@@ -64,11 +64,19 @@ func Finish(dir, format string) error {
 // ReadComplete reads the completion marker of dir.
 func ReadComplete(dir string) (*Complete, error) {
 	var c Complete
-	if err := readJSON(filepath.Join(dir, FileComplete), &c); err != nil {
+	if err := ReadJSON(filepath.Join(dir, FileComplete), &c); err != nil {
 		return nil, err
 	}
 	return &c, nil
 }
+
+// The comparison folder's names that tell its kind (the format itself is
+// train/runfolder/comparefolder's, which uses these constants).
+const (
+	FileComparison   = "comparison.json"   // a comparison folder's ComparisonInfo
+	FilePerRecording = "per_recording.csv" // several recordings: every recording's medians
+	DirFoldResults   = "fold_results"      // <recording>/<model>/fold<k>.gob: one unit's FoldResult
+)
 
 // Kind tells a run folder from a comparison folder (one recording, or
 // several) by the files in it, finished or not. Any other folder is an

@@ -1,9 +1,12 @@
 // Package runfolder is the on-disk format of stria's run folders (written
-// by stria fit), comparison folders (written by stria compare and stria
-// gather) and acuity folders (stria acuity, acuity.go): every file of them
-// is written and read back here, and nowhere else.
+// by stria fit): every file of them is written and read back here, and
+// nowhere else. It also holds the machinery that the comparison folders
+// (sub-package comparefolder) and acuity folders (sub-package acuityfolder)
+// share with run folders: the atomic writer and CSV/JSON helpers
+// (atomic.go), the completion marker and folder kinds (complete.go), the
+// writer's lock and Empty (lock.go), resume state and fingerprints.
 //
-// Conventions:
+// Conventions (of all three formats):
 //
 //   - Every file is written atomically by WriteFile: into a temporary file
 //     in the same folder, synced, given mode 0644 and renamed over the

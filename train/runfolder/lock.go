@@ -263,11 +263,17 @@ func Holds(dir string) (string, error) {
 var striaNames = map[string]bool{
 	FileSettings: true, FileManifest: true, FileFilters: true, FileNeuronScores: true, FileSummary: true,
 	FileHistory: true, FileSplit: true, FileResume: true, DirParameters: true, DirFigures: true, FileReport: true,
-	FileComplete: true, FileLock: true, oldSettings: true,
-	FileFoldScores: true, FileFoldAverages: true, FileModelSummary: true, FileModelPairs: true, FileComparison: true,
-	FileDescriptors: true, DirCurves: true, DirFoldResults: true, FilePerRecording: true, FilePooledSummary: true,
-	FilePooledPairs: true,
+	FileComplete: true, FileLock: true, oldSettings: true, FileComparison: true, FilePerRecording: true, DirFoldResults: true,
+	// The comparison folder's names (the File and Dir constants of
+	// train/runfolder/comparefolder; its tests check they are all here).
+	"fold_scores.csv": true, "fold_averages.csv": true, "model_summary.csv": true, "model_pairs.csv": true,
+	"tuning_descriptors.csv": true, "tuning_curves": true,
+	"pooled_summary.csv": true, "pooled_pairs.csv": true,
 }
+
+// IsStriaName reports whether name is one stria writes at the top of a
+// run or comparison folder.
+func IsStriaName(name string) bool { return striaNames[name] }
 
 // foreign lists the entries of dir that stria did not write: any name
 // but striaNames and temporary files, except folders (a recording's

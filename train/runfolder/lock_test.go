@@ -204,22 +204,3 @@ func TestFingerprintMismatch(t *testing.T) {
 		})
 	}
 }
-
-func TestRemoveFoldResultTemps(t *testing.T) {
-	dir := t.TempDir()
-	p := FoldResultPath(dir, "encoder/fold1")
-	os.MkdirAll(filepath.Dir(p), 0o755)
-	mine, other := filepath.Join(filepath.Dir(p), ".fold1.gob.tmp123"), filepath.Join(filepath.Dir(p), ".fold2.gob.tmp9")
-	for _, f := range []string{mine, other} {
-		os.WriteFile(f, []byte("x"), 0o644)
-	}
-	if err := RemoveFoldResultTemps(dir, "encoder/fold1"); err != nil {
-		t.Fatal(err)
-	}
-	if _, err := os.Stat(mine); err == nil {
-		t.Error("the unit's temporary file is left")
-	}
-	if _, err := os.Stat(other); err != nil {
-		t.Error("another unit's temporary file was removed")
-	}
-}

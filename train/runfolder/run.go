@@ -166,10 +166,10 @@ func IsRatio(col string) bool {
 	return false
 }
 
-// spreadOf converts eval's summary of kept neurons; nanOffset is
+// SpreadOf converts eval's summary of kept neurons; nanOffset is
 // subtracted from its NaN count (neurons excluded from every score are not
 // undefined scores).
-func spreadOf(s eval.Summary, nanOffset int) Spread {
+func SpreadOf(s eval.Summary, nanOffset int) Spread {
 	return Spread{Median: Num(s.Median), Q1: Num(s.Q1), Q3: Num(s.Q3), N: s.N, NaN: s.NaN - nanOffset, Kept: s.N + s.NaN - nanOffset}
 }
 
@@ -185,7 +185,7 @@ func SpreadOver(v []float64, keep []bool, keptBy string) Spread {
 			}
 		}
 	}
-	sp := spreadOf(eval.Summarize(sel), 0)
+	sp := SpreadOf(eval.Summarize(sel), 0)
 	sp.KeptBy = keptBy
 	return sp
 }
@@ -386,14 +386,14 @@ func NewNeuronScores(names []string, scores []eval.Scores, excluded map[int]stri
 func WriteNeuronScores(dir string, t *NeuronScores) error {
 	path := filepath.Join(dir, FileNeuronScores)
 	header := append(append([]string{"neuron", "name"}, ScoreColumns...), ColCeiling, ColSplitHalfAll, "excluded")
-	return writeCSV(path, header, func(cw *csv.Writer) error {
+	return WriteCSV(path, header, func(cw *csv.Writer) error {
 		row := make([]string, len(header))
 		for j := range t.Names {
 			row[0], row[1] = strconv.Itoa(j), t.Names[j]
 			for k := range ScoreColumns {
-				row[2+k] = g8(t.Cols[k][j])
+				row[2+k] = FormatScore(t.Cols[k][j])
 			}
-			row[len(row)-3], row[len(row)-2] = t.Ceiling[j], g8(t.SplitHalfAll[j])
+			row[len(row)-3], row[len(row)-2] = t.Ceiling[j], FormatScore(t.SplitHalfAll[j])
 			row[len(row)-1] = t.Excluded[j]
 			if err := cw.Write(row); err != nil {
 				return err
@@ -407,19 +407,19 @@ func WriteNeuronScores(dir string, t *NeuronScores) error {
 // neurons expected (from model.json), or -1 for any.
 func ReadNeuronScores(dir string, n int) (*NeuronScores, error) {
 	path := filepath.Join(dir, FileNeuronScores)
-	tb, err := readTable(path)
+	tb, err := ReadColumns(path)
 	if err != nil {
 		return nil, err
 	}
-	if n >= 0 && len(tb.rows) != n {
-		return nil, fmt.Errorf("%s: %d neuron rows, want %d (%s)", path, len(tb.rows), n, FileManifest)
+	if n >= 0 && len(tb.Rows) != n {
+		return nil, fmt.Errorf("%s: %d neuron rows, want %d (%s)", path, len(tb.Rows), n, FileManifest)
 	}
-	n = len(tb.rows)
-	kc, err := tb.cols(ScoreColumns...)
+	n = len(tb.Rows)
+	kc, err := tb.Cols(ScoreColumns...)
 	if err != nil {
 		return nil, err
 	}
-	fixed, err := tb.cols("neuron", "name", "excluded", ColCeiling, ColSplitHalfAll)
+	fixed, err := tb.Cols("neuron", "name", "excluded", ColCeiling, ColSplitHalfAll)
 	if err != nil {
 		return nil, err
 	}
@@ -427,8 +427,8 @@ func ReadNeuronScores(dir string, n int) (*NeuronScores, error) {
 	for k := range t.Cols {
 		t.Cols[k] = make([]float64, n)
 	}
-	for i, r := range tb.rows {
-		j, err := tb.int(i, fixed[0])
+	for i, r := range tb.Rows {
+		j, err := tb.Int(i, fixed[0])
 		if err != nil {
 			return nil, err
 		}
@@ -436,14 +436,14 @@ func ReadNeuronScores(dir string, n int) (*NeuronScores, error) {
 			return nil, fmt.Errorf("%s: line %d: neuron %d, want %d (rows in neuron order)", path, i+2, j, i)
 		}
 		t.Names[i], t.Excluded[i] = r[fixed[1]], r[fixed[2]]
-		if t.Ceiling[i], err = ceilingCode(tb, i, fixed[3]); err != nil {
+		if t.Ceiling[i], err = CeilingCode(tb, i, fixed[3]); err != nil {
 			return nil, err
 		}
-		if t.SplitHalfAll[i], err = tb.float(i, fixed[4]); err != nil {
+		if t.SplitHalfAll[i], err = tb.Float(i, fixed[4]); err != nil {
 			return nil, err
 		}
 		for q, k := range kc {
-			if t.Cols[q][i], err = tb.float(i, k); err != nil {
+			if t.Cols[q][i], err = tb.Float(i, k); err != nil {
 				return nil, err
 			}
 		}
@@ -457,7 +457,7 @@ var historyHeader = []string{"epoch", "train_loss", "val_loss", "val_r2", "secon
 // WriteHistory writes training_history.csv into dir, one row per epoch.
 func WriteHistory(dir string, log []train.EpochLog) error {
 	path := filepath.Join(dir, FileHistory)
-	return writeCSV(path, historyHeader, func(cw *csv.Writer) error {
+	return WriteCSV(path, historyHeader, func(cw *csv.Writer) error {
 		for _, e := range log {
 			err := cw.Write([]string{strconv.Itoa(e.Epoch), strconv.FormatFloat(e.TrainLoss, 'g', 10, 64), strconv.FormatFloat(e.ValLoss, 'g', 10, 64),
 				strconv.FormatFloat(e.ValR2, 'g', 6, 64), strconv.FormatFloat(e.Seconds, 'f', 4, 64)})
@@ -472,23 +472,23 @@ func WriteHistory(dir string, log []train.EpochLog) error {
 // ReadHistory reads training_history.csv of dir.
 func ReadHistory(dir string) ([]train.EpochLog, error) {
 	path := filepath.Join(dir, FileHistory)
-	tb, err := readTable(path)
+	tb, err := ReadColumns(path)
 	if err != nil {
 		return nil, err
 	}
-	k, err := tb.cols(historyHeader...)
+	k, err := tb.Cols(historyHeader...)
 	if err != nil {
 		return nil, err
 	}
-	log := make([]train.EpochLog, len(tb.rows))
-	for i := range tb.rows {
+	log := make([]train.EpochLog, len(tb.Rows))
+	for i := range tb.Rows {
 		var v [5]float64
 		for q := 1; q < 5; q++ {
-			if v[q], err = tb.float(i, k[q]); err != nil {
+			if v[q], err = tb.Float(i, k[q]); err != nil {
 				return nil, err
 			}
 		}
-		ep, err := tb.int(i, k[0])
+		ep, err := tb.Int(i, k[0])
 		if err != nil {
 			return nil, err
 		}
@@ -620,7 +620,7 @@ func saveArray(dir string, m *Manifest, name string, shape []int, v []float64) e
 func ReadManifest(dir string) (*Manifest, error) {
 	path := filepath.Join(dir, FileManifest)
 	var m Manifest
-	if err := readJSON(path, &m); err != nil {
+	if err := ReadJSON(path, &m); err != nil {
 		if errNotExist(err) {
 			return nil, fmt.Errorf("%s is not a stria run folder: %w", dir, err)
 		}
@@ -635,7 +635,7 @@ func ReadManifest(dir string) (*Manifest, error) {
 // ReadSummary reads summary.json.
 func ReadSummary(dir string) (*Summary, error) {
 	var s Summary
-	if err := readJSON(filepath.Join(dir, FileSummary), &s); err != nil {
+	if err := ReadJSON(filepath.Join(dir, FileSummary), &s); err != nil {
 		return nil, err
 	}
 	return &s, nil
@@ -644,7 +644,7 @@ func ReadSummary(dir string) (*Summary, error) {
 // ReadSplit reads split.json.
 func ReadSplit(dir string) (*SplitInfo, error) {
 	var s SplitInfo
-	if err := readJSON(filepath.Join(dir, FileSplit), &s); err != nil {
+	if err := ReadJSON(filepath.Join(dir, FileSplit), &s); err != nil {
 		return nil, err
 	}
 	return &s, nil
@@ -747,9 +747,9 @@ func RemoveResumeState(dir string) error {
 	return nil
 }
 
-// ceilingCode reads row i's column k as an eval.Ceiling code, or "".
-func ceilingCode(tb *table, i, k int) (string, error) {
-	v := tb.rows[i][k]
+// CeilingCode reads row i's column k as an eval.Ceiling code, or "".
+func CeilingCode(tb *Table, i, k int) (string, error) {
+	v := tb.Rows[i][k]
 	if v == "" {
 		return v, nil
 	}
@@ -758,5 +758,5 @@ func ceilingCode(tb *table, i, k int) (string, error) {
 			return v, nil
 		}
 	}
-	return "", fmt.Errorf("%s: line %d, column %s: %q is not a noise-ceiling verdict (usable, no_repeats, no_signal_power, signal_not_significant)", tb.path, i+2, tb.header[k], v)
+	return "", fmt.Errorf("%s: line %d, column %s: %q is not a noise-ceiling verdict (usable, no_repeats, no_signal_power, signal_not_significant)", tb.Path, i+2, tb.header[k], v)
 }

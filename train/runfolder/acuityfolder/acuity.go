@@ -1,8 +1,10 @@
-package runfolder
+package acuityfolder
 
 import (
 	"encoding/csv"
+	"errors"
 	"fmt"
+	"github.com/strialab/stria/train/runfolder"
 	"math"
 	"os"
 	"path/filepath"
@@ -38,15 +40,15 @@ const (
 // with a bootstrap interval. Extrapolation is always true: the asymptote
 // lies far beyond the largest subset measured.
 type AcuitySaturation struct {
-	A             Num    `json:"a"`
-	Eps           Num    `json:"eps"`
-	Asymptote     InfNum `json:"asymptote"`
-	Lo            InfNum `json:"asymptote_lo95"`
-	Hi            InfNum `json:"asymptote_hi95"`
-	Boot          int    `json:"bootstrap"`
-	RMS           Num    `json:"rms_residual"`
-	Extrapolation bool   `json:"extrapolation"`
-	Error         string `json:"error,omitempty"`
+	A             runfolder.Num `json:"a"`
+	Eps           runfolder.Num `json:"eps"`
+	Asymptote     InfNum        `json:"asymptote"`
+	Lo            InfNum        `json:"asymptote_lo95"`
+	Hi            InfNum        `json:"asymptote_hi95"`
+	Boot          int           `json:"bootstrap"`
+	RMS           runfolder.Num `json:"rms_residual"`
+	Extrapolation bool          `json:"extrapolation"`
+	Error         string        `json:"error,omitempty"`
 }
 
 // InfNum is a float64 that keeps infinities in JSON: NaN is written null,
@@ -63,7 +65,7 @@ func (v InfNum) MarshalJSON() ([]byte, error) {
 	case math.IsInf(f, -1):
 		return []byte(`"-Inf"`), nil
 	}
-	return Num(f).MarshalJSON()
+	return runfolder.Num(f).MarshalJSON()
 }
 
 // UnmarshalJSON implements json.Unmarshaler.
@@ -76,21 +78,21 @@ func (v *InfNum) UnmarshalJSON(b []byte) error {
 		*v = InfNum(math.Inf(-1))
 		return nil
 	}
-	return (*Num)(v).UnmarshalJSON(b)
+	return (*runfolder.Num)(v).UnmarshalJSON(b)
 }
 
 // AcuityDecoderInfo is one decoder's summary in acuity.json.
 type AcuityDecoderInfo struct {
-	Name        string `json:"name"`
-	Description string `json:"description"`
-	Trials      int    `json:"trials"`
-	Accuracy    Num    `json:"accuracy"`
-	MAE         Num    `json:"mean_abs_error"`
-	SEM         Num    `json:"mean_abs_error_sem"`
-	RMSE        Num    `json:"rms_error"`
-	Excluded    int    `json:"excluded_fold_neurons"`
-	Floored     int    `json:"floored_predictions"`
-	Untrained   int    `json:"untrained_fold_conditions"`
+	Name        string        `json:"name"`
+	Description string        `json:"description"`
+	Trials      int           `json:"trials"`
+	Accuracy    runfolder.Num `json:"accuracy"`
+	MAE         runfolder.Num `json:"mean_abs_error"`
+	SEM         runfolder.Num `json:"mean_abs_error_sem"`
+	RMSE        runfolder.Num `json:"rms_error"`
+	Excluded    int           `json:"excluded_fold_neurons"`
+	Floored     int           `json:"floored_predictions"`
+	Untrained   int           `json:"untrained_fold_conditions"`
 }
 
 // AcuityInfo is acuity.json.
@@ -99,7 +101,7 @@ type AcuityInfo struct {
 	Stria         string              `json:"stria_version"`
 	Created       string              `json:"created"`
 	Seed          uint64              `json:"seed"`
-	Axis          AxisInfo            `json:"axis"`
+	Axis          runfolder.AxisInfo  `json:"axis"`
 	Sources       map[string]string   `json:"sources"`
 	Neurons       int                 `json:"neurons"`
 	Trials        int                 `json:"trials"`
@@ -171,12 +173,12 @@ func NewAcuityFolder(p *train.Prepared, r *train.AcuityResult) *AcuityFolder {
 	cfg := p.Cfg
 	c := r.Curve
 	f := &AcuityFolder{Info: AcuityInfo{
-		Format: FormatAcuity, Stria: Version, Created: time.Now().UTC().Format(time.RFC3339), Seed: cfg.Seed,
-		Axis: AxisOf(p), Sources: map[string]string{"responses": cfg.Data.Responses, "stimulus": cfg.Data.Stimulus},
+		Format: FormatAcuity, Stria: runfolder.Version, Created: time.Now().UTC().Format(time.RFC3339), Seed: cfg.Seed,
+		Axis: runfolder.AxisOf(p), Sources: map[string]string{"responses": cfg.Data.Responses, "stimulus": cfg.Data.Stimulus},
 		Neurons: r.Neurons, Trials: r.Trials, Folds: r.Folds, MaxSize: r.MaxSize,
 		InfoSizes: c.Sizes, Repeats: c.Repeats, DecodeRepeats: cfg.Acuity.DecodeRepeats,
-		Saturation: AcuitySaturation{A: Num(r.Fit.A), Eps: Num(r.Fit.Eps), Asymptote: InfNum(r.Fit.Asymptote), Lo: InfNum(r.Fit.Lo), Hi: InfNum(r.Fit.Hi),
-			Boot: r.Fit.Boot, RMS: Num(r.Fit.RMS), Extrapolation: true, Error: r.FitError},
+		Saturation: AcuitySaturation{A: runfolder.Num(r.Fit.A), Eps: runfolder.Num(r.Fit.Eps), Asymptote: InfNum(r.Fit.Asymptote), Lo: InfNum(r.Fit.Lo), Hi: InfNum(r.Fit.Hi),
+			Boot: r.Fit.Boot, RMS: runfolder.Num(r.Fit.RMS), Extrapolation: true, Error: r.FitError},
 		Seconds: r.Seconds, Cautions: r.Cautions, Warnings: r.Warnings,
 	}}
 	if f.Info.Warnings == nil {
@@ -209,7 +211,7 @@ func NewAcuityFolder(p *train.Prepared, r *train.AcuityResult) *AcuityFolder {
 	for _, d := range r.Decoders {
 		s := d.Summary
 		f.Info.Decoders = append(f.Info.Decoders, AcuityDecoderInfo{Name: d.Name, Description: d.Description, Trials: len(s.Trials),
-			Accuracy: Num(s.Accuracy), MAE: Num(s.MAE), SEM: Num(s.SEM), RMSE: Num(s.RMSE),
+			Accuracy: runfolder.Num(s.Accuracy), MAE: runfolder.Num(s.MAE), SEM: runfolder.Num(s.SEM), RMSE: runfolder.Num(s.RMSE),
 			Excluded: d.Stats.Excluded, Floored: d.Stats.Floored, Untrained: d.Stats.Untrained})
 		f.Info.DecodeSizes = d.Curve.Sizes
 		f.Confusion = append(f.Confusion, s.Confusion)
@@ -226,22 +228,22 @@ func NewAcuityFolder(p *train.Prepared, r *train.AcuityResult) *AcuityFolder {
 // BeginAcuity prepares dir for stria acuity: it creates the folder,
 // removes an earlier completion marker and writes the resolved settings.
 func BeginAcuity(dir string, settings []byte) error {
-	if err := Begin(dir); err != nil {
+	if err := runfolder.Begin(dir); err != nil {
 		return err
 	}
-	return WriteBytes(filepath.Join(dir, FileSettings), settings)
+	return runfolder.WriteBytes(filepath.Join(dir, runfolder.FileSettings), settings)
 }
 
 // WriteAcuity writes the tables of an acuity folder, then acuity.json,
 // then complete.json (last). Call BeginAcuity first.
 func WriteAcuity(dir string, f *AcuityFolder) error {
 	path := func(name string) string { return filepath.Join(dir, name) }
-	err := writeCSV(path(FileInfoPairs), []string{"condition_a", "condition_b", "stimulus", "step", "trials_a", "trials_b", "size",
+	err := runfolder.WriteCSV(path(FileInfoPairs), []string{"condition_a", "condition_b", "stimulus", "step", "trials_a", "trials_b", "size",
 		"information", "information_sd", "information_se", "threshold", "shuffled_information", "shuffled_information_sd", "shuffled_threshold"},
 		func(cw *csv.Writer) error {
 			for _, r := range f.Pairs {
-				if err := cw.Write([]string{itoa(r.A), itoa(r.B), exact(r.Stim), exact(r.Ds), itoa(r.TA), itoa(r.TB), itoa(r.Size),
-					exact(r.Info), exact(r.InfoSD), exact(r.SE), exact(r.Threshold), exact(r.Shuffled), exact(r.ShuffledSD), exact(r.ShuffledThreshold)}); err != nil {
+				if err := cw.Write([]string{itoa(r.A), itoa(r.B), runfolder.FormatExact(r.Stim), runfolder.FormatExact(r.Ds), itoa(r.TA), itoa(r.TB), itoa(r.Size),
+					runfolder.FormatExact(r.Info), runfolder.FormatExact(r.InfoSD), runfolder.FormatExact(r.SE), runfolder.FormatExact(r.Threshold), runfolder.FormatExact(r.Shuffled), runfolder.FormatExact(r.ShuffledSD), runfolder.FormatExact(r.ShuffledThreshold)}); err != nil {
 					return err
 				}
 			}
@@ -250,10 +252,10 @@ func WriteAcuity(dir string, f *AcuityFolder) error {
 	if err != nil {
 		return err
 	}
-	err = writeCSV(path(FileInfoVsSize), []string{"size", "information", "information_sd", "shuffled_information", "shuffled_information_sd", "saturation_fit"},
+	err = runfolder.WriteCSV(path(FileInfoVsSize), []string{"size", "information", "information_sd", "shuffled_information", "shuffled_information_sd", "saturation_fit"},
 		func(cw *csv.Writer) error {
 			for _, r := range f.Sizes {
-				if err := cw.Write([]string{itoa(r.Size), exact(r.Info), exact(r.InfoSD), exact(r.Shuffled), exact(r.ShuffledSD), exact(r.Fit)}); err != nil {
+				if err := cw.Write([]string{itoa(r.Size), runfolder.FormatExact(r.Info), runfolder.FormatExact(r.InfoSD), runfolder.FormatExact(r.Shuffled), runfolder.FormatExact(r.ShuffledSD), runfolder.FormatExact(r.Fit)}); err != nil {
 					return err
 				}
 			}
@@ -262,10 +264,10 @@ func WriteAcuity(dir string, f *AcuityFolder) error {
 	if err != nil {
 		return err
 	}
-	err = writeCSV(path(FileInfoSubsets), []string{"repeat", "size", "pair", "neurons", "information", "shuffled_information"},
+	err = runfolder.WriteCSV(path(FileInfoSubsets), []string{"repeat", "size", "pair", "neurons", "information", "shuffled_information"},
 		func(cw *csv.Writer) error {
 			for _, r := range f.Subsets {
-				if err := cw.Write([]string{itoa(r.Repeat), itoa(r.Size), itoa(r.Pair), itoa(r.Neurons), exact(r.Info), exact(r.Shuffled)}); err != nil {
+				if err := cw.Write([]string{itoa(r.Repeat), itoa(r.Size), itoa(r.Pair), itoa(r.Neurons), runfolder.FormatExact(r.Info), runfolder.FormatExact(r.Shuffled)}); err != nil {
 					return err
 				}
 			}
@@ -274,10 +276,10 @@ func WriteAcuity(dir string, f *AcuityFolder) error {
 	if err != nil {
 		return err
 	}
-	err = writeCSV(path(FileDecodingSummary), []string{"decoder", "trials", "accuracy", "mean_abs_error", "mean_abs_error_sem", "rms_error", "excluded_fold_neurons", "floored_predictions", "untrained_fold_conditions"},
+	err = runfolder.WriteCSV(path(FileDecodingSummary), []string{"decoder", "trials", "accuracy", "mean_abs_error", "mean_abs_error_sem", "rms_error", "excluded_fold_neurons", "floored_predictions", "untrained_fold_conditions"},
 		func(cw *csv.Writer) error {
 			for _, d := range f.Info.Decoders {
-				if err := cw.Write([]string{d.Name, itoa(d.Trials), exact(float64(d.Accuracy)), exact(float64(d.MAE)), exact(float64(d.SEM)), exact(float64(d.RMSE)),
+				if err := cw.Write([]string{d.Name, itoa(d.Trials), runfolder.FormatExact(float64(d.Accuracy)), runfolder.FormatExact(float64(d.MAE)), runfolder.FormatExact(float64(d.SEM)), runfolder.FormatExact(float64(d.RMSE)),
 					itoa(d.Excluded), itoa(d.Floored), itoa(d.Untrained)}); err != nil {
 					return err
 				}
@@ -287,10 +289,10 @@ func WriteAcuity(dir string, f *AcuityFolder) error {
 	if err != nil {
 		return err
 	}
-	err = writeCSV(path(FileDecodingVsSize), []string{"decoder", "size", "repeat", "mean_abs_error", "accuracy"},
+	err = runfolder.WriteCSV(path(FileDecodingVsSize), []string{"decoder", "size", "repeat", "mean_abs_error", "accuracy"},
 		func(cw *csv.Writer) error {
 			for _, r := range f.DecodeSizes {
-				if err := cw.Write([]string{r.Decoder, itoa(r.Size), itoa(r.Repeat), exact(r.MAE), exact(r.Accuracy)}); err != nil {
+				if err := cw.Write([]string{r.Decoder, itoa(r.Size), itoa(r.Repeat), runfolder.FormatExact(r.MAE), runfolder.FormatExact(r.Accuracy)}); err != nil {
 					return err
 				}
 			}
@@ -300,13 +302,13 @@ func WriteAcuity(dir string, f *AcuityFolder) error {
 		return err
 	}
 	centers := f.Info.Axis.Centers
-	err = writeCSV(path(FileConfusion), []string{"decoder", "true_condition", "true_stimulus", "decoded_condition", "decoded_stimulus", "trials"},
+	err = runfolder.WriteCSV(path(FileConfusion), []string{"decoder", "true_condition", "true_stimulus", "decoded_condition", "decoded_stimulus", "trials"},
 		func(cw *csv.Writer) error {
 			for d, m := range f.Confusion {
 				B := len(centers)
 				for a := 0; a < B; a++ {
 					for b := 0; b < B; b++ {
-						if err := cw.Write([]string{f.Info.Decoders[d].Name, itoa(a), exact(centers[a]), itoa(b), exact(centers[b]), itoa(m[a*B+b])}); err != nil {
+						if err := cw.Write([]string{f.Info.Decoders[d].Name, itoa(a), runfolder.FormatExact(centers[a]), itoa(b), runfolder.FormatExact(centers[b]), itoa(m[a*B+b])}); err != nil {
 							return err
 						}
 					}
@@ -317,10 +319,10 @@ func WriteAcuity(dir string, f *AcuityFolder) error {
 	if err != nil {
 		return err
 	}
-	if err := WriteJSON(path(FileAcuity), f.Info); err != nil {
+	if err := runfolder.WriteJSON(path(FileAcuity), f.Info); err != nil {
 		return err
 	}
-	return Finish(dir, FormatAcuity)
+	return runfolder.Finish(dir, FormatAcuity)
 }
 
 func itoa(v int) string { return strconv.Itoa(v) }
@@ -338,67 +340,67 @@ func IsAcuity(dir string) bool {
 // ReadAcuity reads a finished acuity folder. A folder without
 // complete.json is refused, naming it.
 func ReadAcuity(dir string) (*AcuityFolder, error) {
-	c, err := ReadComplete(dir)
+	c, err := runfolder.ReadComplete(dir)
 	if err != nil {
-		if errNotExist(err) {
-			return nil, fmt.Errorf("%s is incomplete: the stria acuity run that wrote it did not finish (no %s)", dir, FileComplete)
+		if errors.Is(err, os.ErrNotExist) {
+			return nil, fmt.Errorf("%s is incomplete: the stria acuity run that wrote it did not finish (no %s)", dir, runfolder.FileComplete)
 		}
 		return nil, err
 	}
 	if c.Format != FormatAcuity {
-		return nil, fmt.Errorf("%s: %s says format %q, want %q (an acuity folder written by stria acuity)", dir, FileComplete, c.Format, FormatAcuity)
+		return nil, fmt.Errorf("%s: %s says format %q, want %q (an acuity folder written by stria acuity)", dir, runfolder.FileComplete, c.Format, FormatAcuity)
 	}
 	f := &AcuityFolder{}
-	if err := readJSON(filepath.Join(dir, FileAcuity), &f.Info); err != nil {
+	if err := runfolder.ReadJSON(filepath.Join(dir, FileAcuity), &f.Info); err != nil {
 		return nil, err
 	}
 	path := func(name string) string { return filepath.Join(dir, name) }
-	t, err := readTable(path(FileInfoPairs))
+	t, err := runfolder.ReadColumns(path(FileInfoPairs))
 	if err != nil {
 		return nil, err
 	}
-	for i := range t.rows {
+	for i := range t.Rows {
 		var r InfoPair
-		if err := t.scan(i, []string{"condition_a", "condition_b", "stimulus", "step", "trials_a", "trials_b", "size",
+		if err := scan(t, i, []string{"condition_a", "condition_b", "stimulus", "step", "trials_a", "trials_b", "size",
 			"information", "information_sd", "information_se", "threshold", "shuffled_information", "shuffled_information_sd", "shuffled_threshold"},
 			&r.A, &r.B, &r.Stim, &r.Ds, &r.TA, &r.TB, &r.Size, &r.Info, &r.InfoSD, &r.SE, &r.Threshold, &r.Shuffled, &r.ShuffledSD, &r.ShuffledThreshold); err != nil {
 			return nil, err
 		}
 		f.Pairs = append(f.Pairs, r)
 	}
-	if t, err = readTable(path(FileInfoVsSize)); err != nil {
+	if t, err = runfolder.ReadColumns(path(FileInfoVsSize)); err != nil {
 		return nil, err
 	}
-	for i := range t.rows {
+	for i := range t.Rows {
 		var r InfoSize
-		if err := t.scan(i, []string{"size", "information", "information_sd", "shuffled_information", "shuffled_information_sd", "saturation_fit"},
+		if err := scan(t, i, []string{"size", "information", "information_sd", "shuffled_information", "shuffled_information_sd", "saturation_fit"},
 			&r.Size, &r.Info, &r.InfoSD, &r.Shuffled, &r.ShuffledSD, &r.Fit); err != nil {
 			return nil, err
 		}
 		f.Sizes = append(f.Sizes, r)
 	}
-	if t, err = readTable(path(FileInfoSubsets)); err != nil {
+	if t, err = runfolder.ReadColumns(path(FileInfoSubsets)); err != nil {
 		return nil, err
 	}
-	for i := range t.rows {
+	for i := range t.Rows {
 		var r InfoSubset
-		if err := t.scan(i, []string{"repeat", "size", "pair", "neurons", "information", "shuffled_information"},
+		if err := scan(t, i, []string{"repeat", "size", "pair", "neurons", "information", "shuffled_information"},
 			&r.Repeat, &r.Size, &r.Pair, &r.Neurons, &r.Info, &r.Shuffled); err != nil {
 			return nil, err
 		}
 		f.Subsets = append(f.Subsets, r)
 	}
-	if t, err = readTable(path(FileDecodingVsSize)); err != nil {
+	if t, err = runfolder.ReadColumns(path(FileDecodingVsSize)); err != nil {
 		return nil, err
 	}
-	for i := range t.rows {
+	for i := range t.Rows {
 		var r DecodeSize
-		if err := t.scan(i, []string{"decoder", "size", "repeat", "mean_abs_error", "accuracy"}, &r.Decoder, &r.Size, &r.Repeat, &r.MAE, &r.Accuracy); err != nil {
+		if err := scan(t, i, []string{"decoder", "size", "repeat", "mean_abs_error", "accuracy"}, &r.Decoder, &r.Size, &r.Repeat, &r.MAE, &r.Accuracy); err != nil {
 			return nil, err
 		}
 		f.DecodeSizes = append(f.DecodeSizes, r)
 	}
-	if t, err = readTable(path(FileConfusion)); err != nil {
+	if t, err = runfolder.ReadColumns(path(FileConfusion)); err != nil {
 		return nil, err
 	}
 	B := len(f.Info.Axis.Centers)
@@ -407,16 +409,16 @@ func ReadAcuity(dir string) (*AcuityFolder, error) {
 		index[dec.Name] = d
 		f.Confusion = append(f.Confusion, make([]int, B*B))
 	}
-	for i := range t.rows {
+	for i := range t.Rows {
 		var name string
 		var a, b, n int
 		var sa, sb float64
-		if err := t.scan(i, []string{"decoder", "true_condition", "true_stimulus", "decoded_condition", "decoded_stimulus", "trials"}, &name, &a, &sa, &b, &sb, &n); err != nil {
+		if err := scan(t, i, []string{"decoder", "true_condition", "true_stimulus", "decoded_condition", "decoded_stimulus", "trials"}, &name, &a, &sa, &b, &sb, &n); err != nil {
 			return nil, err
 		}
 		d, ok := index[name]
 		if !ok || a < 0 || a >= B || b < 0 || b >= B || n < 0 {
-			return nil, fmt.Errorf("%s: line %d: decoder %q, conditions %d, %d, trials %d: want a decoder of %s and conditions 0..%d", t.path, i+2, name, a, b, n, FileAcuity, B-1)
+			return nil, fmt.Errorf("%s: line %d: decoder %q, conditions %d, %d, trials %d: want a decoder of %s and conditions 0..%d", t.Path, i+2, name, a, b, n, FileAcuity, B-1)
 		}
 		f.Confusion[d][a*B+b] = n
 	}
@@ -425,27 +427,27 @@ func ReadAcuity(dir string) (*AcuityFolder, error) {
 
 // scan parses row i's named columns into dst (*int, *float64 or *string);
 // errors name the file, line and column.
-func (t *table) scan(i int, names []string, dst ...any) error {
-	ks, err := t.cols(names...)
+func scan(t *runfolder.Table, i int, names []string, dst ...any) error {
+	ks, err := t.Cols(names...)
 	if err != nil {
 		return err
 	}
 	for j, k := range ks {
 		switch p := dst[j].(type) {
 		case *int:
-			v, err := t.int(i, k)
+			v, err := t.Int(i, k)
 			if err != nil {
 				return err
 			}
 			*p = v
 		case *float64:
-			v, err := t.float(i, k)
+			v, err := t.Float(i, k)
 			if err != nil {
 				return err
 			}
 			*p = v
 		case *string:
-			*p = t.rows[i][k]
+			*p = t.Rows[i][k]
 		default:
 			panic(fmt.Sprintf("runfolder: scan into %T", dst[j]))
 		}
@@ -460,7 +462,7 @@ func (t *table) scan(i int, names []string, dst ...any) error {
 // with the same neurons, trials and bins as p (checked trial by trial);
 // errors name the folder and what differs.
 func AcuityEncoder(dir string, p *train.Prepared) (*train.AcuityEncoder, error) {
-	m, err := LoadModel(dir)
+	m, err := runfolder.LoadModel(dir)
 	if err != nil {
 		return nil, fmt.Errorf("acuity.encoder: %w", err)
 	}
@@ -470,16 +472,16 @@ func AcuityEncoder(dir string, p *train.Prepared) (*train.AcuityEncoder, error) 
 	if b := m.Axis.NumBins(); b != p.NBins {
 		return nil, fmt.Errorf("acuity.encoder %s: the run has %d bins, the config %d", dir, b, p.NBins)
 	}
-	sp, err := ReadSplit(dir)
+	sp, err := runfolder.ReadSplit(dir)
 	if err != nil {
 		return nil, fmt.Errorf("acuity.encoder: %w", err)
 	}
 	if len(sp.Cond) != len(p.Cond) {
-		return nil, fmt.Errorf("acuity.encoder %s: the run's %s has %d trials, the recording %d", dir, FileSplit, len(sp.Cond), len(p.Cond))
+		return nil, fmt.Errorf("acuity.encoder %s: the run's %s has %d trials, the recording %d", dir, runfolder.FileSplit, len(sp.Cond), len(p.Cond))
 	}
 	for t, c := range sp.Cond {
 		if c != p.Cond[t] {
-			return nil, fmt.Errorf("acuity.encoder %s: trial %d (0-based) is in bin %d in the run's %s but in bin %d here: not the same recording or bins", dir, t, c, FileSplit, p.Cond[t])
+			return nil, fmt.Errorf("acuity.encoder %s: trial %d (0-based) is in bin %d in the run's %s but in bin %d here: not the same recording or bins", dir, t, c, runfolder.FileSplit, p.Cond[t])
 		}
 	}
 	pred, err := m.Predict(p.Axis.Centers())

@@ -1,9 +1,11 @@
-package runfolder
+package comparefolder
 
 import (
 	"encoding/csv"
 	"encoding/gob"
+	"errors"
 	"fmt"
+	"github.com/strialab/stria/train/runfolder"
 	"io"
 	"math"
 	"os"
@@ -20,17 +22,17 @@ import (
 // Comparison folder file names (settings.yaml, figures/, report.html and
 // complete.json as in run folders).
 const (
-	FileFoldScores    = "fold_scores.csv"        // model, fold, neuron: scores on the fold's test trials
-	FileFoldAverages  = "fold_averages.csv"      // model, neuron: scores averaged over folds
-	FileModelSummary  = "model_summary.csv"      // model, metric: median and quartiles over neurons
-	FileModelPairs    = "model_pairs.csv"        // metric, model pair: share and Wilcoxon test
-	FileComparison    = "comparison.json"        // ComparisonInfo
-	FileDescriptors   = "tuning_descriptors.csv" // source, neuron: tuning descriptors
-	DirCurves         = "tuning_curves"          // <model>.npy, data_mean.npy, data_sem.npy: bins x neurons
-	DirFoldResults    = "fold_results"           // <recording>/<model>/fold<k>.gob: one unit's FoldResult
-	FilePerRecording  = "per_recording.csv"      // several recordings: every recording's medians
-	FilePooledSummary = "pooled_summary.csv"     // several recordings: neurons pooled
-	FilePooledPairs   = "pooled_pairs.csv"       // several recordings: pairs on pooled neurons
+	FileFoldScores    = "fold_scores.csv"          // model, fold, neuron: scores on the fold's test trials
+	FileFoldAverages  = "fold_averages.csv"        // model, neuron: scores averaged over folds
+	FileModelSummary  = "model_summary.csv"        // model, metric: median and quartiles over neurons
+	FileModelPairs    = "model_pairs.csv"          // metric, model pair: share and Wilcoxon test
+	FileComparison    = runfolder.FileComparison   // ComparisonInfo
+	FileDescriptors   = "tuning_descriptors.csv"   // source, neuron: tuning descriptors
+	DirCurves         = "tuning_curves"            // <model>.npy, data_mean.npy, data_sem.npy: bins x neurons
+	DirFoldResults    = runfolder.DirFoldResults   // <recording>/<model>/fold<k>.gob: one unit's FoldResult
+	FilePerRecording  = runfolder.FilePerRecording // several recordings: every recording's medians
+	FilePooledSummary = "pooled_summary.csv"       // several recordings: neurons pooled
+	FilePooledPairs   = "pooled_pairs.csv"         // several recordings: pairs on pooled neurons
 )
 
 // Curve names of the data in tuning_curves/ beside the models' curves.
@@ -97,7 +99,7 @@ type Comparison struct {
 	SplitHalfAll   []float64
 	MinReliability float64
 	// Summary[model][metric] over neurons, for CompareMetrics.
-	Summary map[string]map[string]Spread
+	Summary map[string]map[string]runfolder.Spread
 	Pairs   []PairTest
 	// Cautions and Warnings are those of comparison.json (the data
 	// warnings without repeats).
@@ -122,32 +124,32 @@ type ComparisonInfo struct {
 	// Reliable counts the scored neurons with split_half_all >=
 	// MinReliability, the neurons of the ratio metrics' summaries and
 	// tests.
-	Reliable       int                          `json:"neurons_reliable"`
-	MinReliability float64                      `json:"min_reliability"`
-	Summary        map[string]map[string]Spread `json:"summary"`
-	Winner         map[string]string            `json:"winner"`
-	Pairs          []PairInfo                   `json:"pairs"`
-	PValues        string                       `json:"p_value_method"`
-	Cautions       []string                     `json:"cautions"`
-	Warnings       []string                     `json:"warnings"`
-	Axis           AxisInfo                     `json:"axis"`
-	Epochs         map[string][]int             `json:"encoder_epochs,omitempty"`
-	Recordings     []string                     `json:"recordings"`
+	Reliable       int                                    `json:"neurons_reliable"`
+	MinReliability float64                                `json:"min_reliability"`
+	Summary        map[string]map[string]runfolder.Spread `json:"summary"`
+	Winner         map[string]string                      `json:"winner"`
+	Pairs          []PairInfo                             `json:"pairs"`
+	PValues        string                                 `json:"p_value_method"`
+	Cautions       []string                               `json:"cautions"`
+	Warnings       []string                               `json:"warnings"`
+	Axis           runfolder.AxisInfo                     `json:"axis"`
+	Epochs         map[string][]int                       `json:"encoder_epochs,omitempty"`
+	Recordings     []string                               `json:"recordings"`
 }
 
 // PairInfo is one pairwise test in comparison.json.
 type PairInfo struct {
-	Metric  string `json:"metric"`
-	A       string `json:"model_a"`
-	B       string `json:"model_b"`
-	ShareA  Num    `json:"share_a_higher"`
-	W       Num    `json:"w"`
-	P       Num    `json:"p"`
-	N       int    `json:"n"`
-	Dropped int    `json:"dropped"`
-	Method  string `json:"method"`
-	Kept    int    `json:"neurons_kept"`
-	KeptBy  string `json:"kept_by"`
+	Metric  string        `json:"metric"`
+	A       string        `json:"model_a"`
+	B       string        `json:"model_b"`
+	ShareA  runfolder.Num `json:"share_a_higher"`
+	W       runfolder.Num `json:"w"`
+	P       runfolder.Num `json:"p"`
+	N       int           `json:"n"`
+	Dropped int           `json:"dropped"`
+	Method  string        `json:"method"`
+	Kept    int           `json:"neurons_kept"`
+	KeptBy  string        `json:"kept_by"`
 }
 
 // FoldScores is one model's scores on one fold, as in fold_scores.csv:
@@ -189,7 +191,7 @@ type ComparisonFolder struct {
 // NewFoldScores builds the table of one model's scores on one fold, with
 // the verdicts of its noise ceilings.
 func NewFoldScores(model string, fold int, scores []eval.Scores, excluded map[int]string, verdicts []eval.Ceiling) FoldScores {
-	t := NewNeuronScores(nil, scores, excluded, verdicts, nil)
+	t := runfolder.NewNeuronScores(nil, scores, excluded, verdicts, nil)
 	return FoldScores{Model: model, Fold: fold, Cols: t.Cols, Ceiling: t.Ceiling}
 }
 
@@ -198,7 +200,7 @@ func NewFoldScores(model string, fold int, scores []eval.Scores, excluded map[in
 func NewPairInfo(pairs []PairTest) []PairInfo {
 	out := make([]PairInfo, len(pairs))
 	for i, pt := range pairs {
-		out[i] = PairInfo{Metric: pt.Metric, A: pt.A, B: pt.B, ShareA: Num(pt.ShareA), W: Num(pt.W), P: Num(pt.P), N: pt.N, Dropped: pt.Dropped, Method: pt.Method, Kept: pt.Kept, KeptBy: pt.KeptBy}
+		out[i] = PairInfo{Metric: pt.Metric, A: pt.A, B: pt.B, ShareA: runfolder.Num(pt.ShareA), W: runfolder.Num(pt.W), P: runfolder.Num(pt.P), N: pt.N, Dropped: pt.Dropped, Method: pt.Method, Kept: pt.Kept, KeptBy: pt.KeptBy}
 	}
 	return out
 }
@@ -206,18 +208,18 @@ func NewPairInfo(pairs []PairTest) []PairInfo {
 // WriteComparison writes the comparison folder of one recording (not
 // complete.json: call Finish after it).
 func WriteComparison(dir string, c *ComparisonFolder) error {
-	if err := mkdir(filepath.Join(dir, DirCurves)); err != nil {
+	if err := runfolder.MakeFolder(filepath.Join(dir, DirCurves)); err != nil {
 		return err
 	}
 	n := c.Info.Neurons
-	header := append(append([]string{"model", "fold", "neuron"}, ScoreColumns...), ColCeiling, "excluded")
-	err := writeCSV(filepath.Join(dir, FileFoldScores), header, func(cw *csv.Writer) error {
+	header := append(append([]string{"model", "fold", "neuron"}, runfolder.ScoreColumns...), runfolder.ColCeiling, "excluded")
+	err := runfolder.WriteCSV(filepath.Join(dir, FileFoldScores), header, func(cw *csv.Writer) error {
 		row := make([]string, len(header))
 		for _, fs := range c.FoldScores {
 			for j := 0; j < n; j++ {
 				row[0], row[1], row[2] = fs.Model, strconv.Itoa(fs.Fold+1), strconv.Itoa(j)
-				for k := range ScoreColumns {
-					row[3+k] = g8(fs.Cols[k][j])
+				for k := range runfolder.ScoreColumns {
+					row[3+k] = runfolder.FormatScore(fs.Cols[k][j])
 				}
 				row[len(row)-2] = fs.Ceiling[j]
 				row[len(row)-1] = c.Excluded[j]
@@ -250,9 +252,9 @@ func WriteComparison(dir string, c *ComparisonFolder) error {
 			return err
 		}
 	}
-	err = writeCSV(filepath.Join(dir, FileDescriptors), descriptorHeader, func(cw *csv.Writer) error {
+	err = runfolder.WriteCSV(filepath.Join(dir, FileDescriptors), descriptorHeader, func(cw *csv.Writer) error {
 		for _, d := range c.Descriptors {
-			if err := cw.Write([]string{d.Source, strconv.Itoa(d.Neuron), g8(d.Preferred), g8(d.Peak), g8(d.OneMinusCV), g8(d.DirVector), g8(d.OSI), g8(d.DSI)}); err != nil {
+			if err := cw.Write([]string{d.Source, strconv.Itoa(d.Neuron), runfolder.FormatScore(d.Preferred), runfolder.FormatScore(d.Peak), runfolder.FormatScore(d.OneMinusCV), runfolder.FormatScore(d.DirVector), runfolder.FormatScore(d.OSI), runfolder.FormatScore(d.DSI)}); err != nil {
 				return err
 			}
 		}
@@ -261,10 +263,10 @@ func WriteComparison(dir string, c *ComparisonFolder) error {
 	if err != nil {
 		return err
 	}
-	if err := WriteBytes(filepath.Join(dir, FileSettings), c.Settings); err != nil {
+	if err := runfolder.WriteBytes(filepath.Join(dir, runfolder.FileSettings), c.Settings); err != nil {
 		return err
 	}
-	return WriteJSON(filepath.Join(dir, FileComparison), c.Info)
+	return runfolder.WriteJSON(filepath.Join(dir, FileComparison), c.Info)
 }
 
 var descriptorHeader = []string{"source", "neuron", "preferred", "peak", "one_minus_cv", "direction_vector", "osi", "dsi"}
@@ -288,20 +290,20 @@ const (
 // verdict over the folds, its number of usable folds and its reliability
 // over all trials (the same in every model's rows).
 func writeFoldAverages(path string, c *Comparison) error {
-	header := append(append([]string{"model", "neuron"}, ScoreColumns...), ColCeiling, ColCeilingFolds, ColSplitHalfAll)
-	return writeCSV(path, header, func(cw *csv.Writer) error {
+	header := append(append([]string{"model", "neuron"}, runfolder.ScoreColumns...), runfolder.ColCeiling, ColCeilingFolds, runfolder.ColSplitHalfAll)
+	return runfolder.WriteCSV(path, header, func(cw *csv.Writer) error {
 		row := make([]string, len(header))
 		for _, m := range c.Models {
 			for j := 0; j < c.Neurons; j++ {
 				row[0], row[1] = m, strconv.Itoa(j)
-				for k, col := range ScoreColumns {
-					row[2+k] = exact(c.PerNeuron[m][col][j])
+				for k, col := range runfolder.ScoreColumns {
+					row[2+k] = runfolder.FormatExact(c.PerNeuron[m][col][j])
 				}
 				rel := math.NaN()
 				if c.SplitHalfAll != nil {
 					rel = c.SplitHalfAll[j]
 				}
-				row[len(row)-3], row[len(row)-2], row[len(row)-1] = c.Ceiling[j], strconv.Itoa(c.UsableFolds[j]), exact(rel)
+				row[len(row)-3], row[len(row)-2], row[len(row)-1] = c.Ceiling[j], strconv.Itoa(c.UsableFolds[j]), runfolder.FormatExact(rel)
 				if err := cw.Write(row); err != nil {
 					return err
 				}
@@ -324,15 +326,15 @@ type FoldAverages struct {
 // models with n neurons.
 func ReadFoldAverages(dir string, models []string, n int) (*FoldAverages, error) {
 	path := filepath.Join(dir, FileFoldAverages)
-	tb, err := readTable(path)
+	tb, err := runfolder.ReadColumns(path)
 	if err != nil {
 		return nil, err
 	}
-	fixed, err := tb.cols("model", "neuron", ColCeiling, ColCeilingFolds, ColSplitHalfAll)
+	fixed, err := tb.Cols("model", "neuron", runfolder.ColCeiling, ColCeilingFolds, runfolder.ColSplitHalfAll)
 	if err != nil {
 		return nil, err
 	}
-	kc, err := tb.cols(ScoreColumns...)
+	kc, err := tb.Cols(runfolder.ScoreColumns...)
 	if err != nil {
 		return nil, err
 	}
@@ -341,17 +343,17 @@ func ReadFoldAverages(dir string, models []string, n int) (*FoldAverages, error)
 	seen := map[string][]bool{}
 	for _, m := range models {
 		out[m] = map[string][]float64{}
-		for _, c := range ScoreColumns {
+		for _, c := range runfolder.ScoreColumns {
 			out[m][c] = make([]float64, n)
 		}
 		seen[m] = make([]bool, n)
 	}
-	for i, r := range tb.rows {
+	for i, r := range tb.Rows {
 		m := r[fixed[0]]
 		if _, ok := out[m]; !ok {
 			return nil, fmt.Errorf("%s: line %d: model %q is not in %s", path, i+2, m, FileComparison)
 		}
-		j, err := tb.int(i, fixed[1])
+		j, err := tb.Int(i, fixed[1])
 		if err != nil {
 			return nil, err
 		}
@@ -363,17 +365,17 @@ func ReadFoldAverages(dir string, models []string, n int) (*FoldAverages, error)
 		}
 		seen[m][j] = true
 		for q, k := range kc {
-			if out[m][ScoreColumns[q]][j], err = tb.float(i, k); err != nil {
+			if out[m][runfolder.ScoreColumns[q]][j], err = tb.Float(i, k); err != nil {
 				return nil, err
 			}
 		}
-		if fa.Ceiling[j], err = ceilingCode(tb, i, fixed[2]); err != nil {
+		if fa.Ceiling[j], err = runfolder.CeilingCode(tb, i, fixed[2]); err != nil {
 			return nil, err
 		}
-		if fa.UsableFolds[j], err = tb.int(i, fixed[3]); err != nil {
+		if fa.UsableFolds[j], err = tb.Int(i, fixed[3]); err != nil {
 			return nil, err
 		}
-		if fa.SplitHalfAll[j], err = tb.float(i, fixed[4]); err != nil {
+		if fa.SplitHalfAll[j], err = tb.Float(i, fixed[4]); err != nil {
 			return nil, err
 		}
 	}
@@ -392,7 +394,7 @@ func ReadFoldAverages(dir string, models []string, n int) (*FoldAverages, error)
 // metric (Recording is empty outside per_recording.csv).
 type SpreadRow struct {
 	Recording, Model, Metric string
-	Spread
+	runfolder.Spread
 }
 
 // summaryRows lists the spreads of a comparison, models in order, metrics
@@ -421,14 +423,14 @@ func WriteSpreadTable(path string, rows []SpreadRow, withRecording bool) error {
 	if withRecording {
 		header = perRecHeader
 	}
-	return writeCSV(path, header, func(cw *csv.Writer) error {
+	return runfolder.WriteCSV(path, header, func(cw *csv.Writer) error {
 		for _, r := range rows {
 			lead := []string{r.Model, r.Metric}
 			if withRecording {
 				lead = []string{r.Recording, r.Model, r.Metric}
 			}
 			s := r.Spread
-			if err := cw.Write(append(lead, g8(float64(s.Median)), g8(float64(s.Q1)), g8(float64(s.Q3)), strconv.Itoa(s.N), strconv.Itoa(s.NaN), strconv.Itoa(s.Kept), s.KeptBy)); err != nil {
+			if err := cw.Write(append(lead, runfolder.FormatScore(float64(s.Median)), runfolder.FormatScore(float64(s.Q1)), runfolder.FormatScore(float64(s.Q3)), strconv.Itoa(s.N), strconv.Itoa(s.NaN), strconv.Itoa(s.Kept), s.KeptBy)); err != nil {
 				return err
 			}
 		}
@@ -439,35 +441,35 @@ func WriteSpreadTable(path string, rows []SpreadRow, withRecording bool) error {
 // ReadSpreadTable reads model_summary.csv, pooled_summary.csv or
 // per_recording.csv (which has a recording column).
 func ReadSpreadTable(path string) ([]SpreadRow, error) {
-	tb, err := readTable(path)
+	tb, err := runfolder.ReadColumns(path)
 	if err != nil {
 		return nil, err
 	}
-	k, err := tb.cols(spreadHeader...)
+	k, err := tb.Cols(spreadHeader...)
 	if err != nil {
 		return nil, err
 	}
-	kr, errRec := tb.col("recording")
-	rows := make([]SpreadRow, len(tb.rows))
-	for i, r := range tb.rows {
+	kr, errRec := tb.Col("recording")
+	rows := make([]SpreadRow, len(tb.Rows))
+	for i, r := range tb.Rows {
 		row := SpreadRow{Model: r[k[0]], Metric: r[k[1]]}
 		if errRec == nil {
 			row.Recording = r[kr]
 		}
-		for q, dst := range []*Num{&row.Median, &row.Q1, &row.Q3} {
-			v, err := tb.float(i, k[2+q])
+		for q, dst := range []*runfolder.Num{&row.Median, &row.Q1, &row.Q3} {
+			v, err := tb.Float(i, k[2+q])
 			if err != nil {
 				return nil, err
 			}
-			*dst = Num(v)
+			*dst = runfolder.Num(v)
 		}
-		if row.N, err = tb.int(i, k[5]); err != nil {
+		if row.N, err = tb.Int(i, k[5]); err != nil {
 			return nil, err
 		}
-		if row.NaN, err = tb.int(i, k[6]); err != nil {
+		if row.NaN, err = tb.Int(i, k[6]); err != nil {
 			return nil, err
 		}
-		if row.Kept, err = tb.int(i, k[7]); err != nil {
+		if row.Kept, err = tb.Int(i, k[7]); err != nil {
 			return nil, err
 		}
 		row.KeptBy = r[k[8]]
@@ -479,9 +481,9 @@ func ReadSpreadTable(path string) ([]SpreadRow, error) {
 // WritePairsTable writes pairwise tests as model_pairs.csv or
 // pooled_pairs.csv.
 func WritePairsTable(path string, pairs []PairTest) error {
-	return writeCSV(path, pairsHeader, func(cw *csv.Writer) error {
+	return runfolder.WriteCSV(path, pairsHeader, func(cw *csv.Writer) error {
 		for _, pt := range pairs {
-			if err := cw.Write([]string{pt.Metric, pt.A, pt.B, g8(pt.ShareA), g8(pt.W), g8(pt.P), strconv.Itoa(pt.N), strconv.Itoa(pt.Dropped), pt.Method, strconv.Itoa(pt.Kept), pt.KeptBy}); err != nil {
+			if err := cw.Write([]string{pt.Metric, pt.A, pt.B, runfolder.FormatScore(pt.ShareA), runfolder.FormatScore(pt.W), runfolder.FormatScore(pt.P), strconv.Itoa(pt.N), strconv.Itoa(pt.Dropped), pt.Method, strconv.Itoa(pt.Kept), pt.KeptBy}); err != nil {
 				return err
 			}
 		}
@@ -491,30 +493,30 @@ func WritePairsTable(path string, pairs []PairTest) error {
 
 // ReadPairsTable reads model_pairs.csv or pooled_pairs.csv.
 func ReadPairsTable(path string) ([]PairTest, error) {
-	tb, err := readTable(path)
+	tb, err := runfolder.ReadColumns(path)
 	if err != nil {
 		return nil, err
 	}
-	k, err := tb.cols(pairsHeader...)
+	k, err := tb.Cols(pairsHeader...)
 	if err != nil {
 		return nil, err
 	}
-	out := make([]PairTest, len(tb.rows))
-	for i, r := range tb.rows {
+	out := make([]PairTest, len(tb.Rows))
+	for i, r := range tb.Rows {
 		pt := PairTest{Metric: r[k[0]], A: r[k[1]], B: r[k[2]]}
 		pt.Method = r[k[8]]
 		for q, dst := range []*float64{&pt.ShareA, &pt.W, &pt.P} {
-			if *dst, err = tb.float(i, k[3+q]); err != nil {
+			if *dst, err = tb.Float(i, k[3+q]); err != nil {
 				return nil, err
 			}
 		}
-		if pt.N, err = tb.int(i, k[6]); err != nil {
+		if pt.N, err = tb.Int(i, k[6]); err != nil {
 			return nil, err
 		}
-		if pt.Dropped, err = tb.int(i, k[7]); err != nil {
+		if pt.Dropped, err = tb.Int(i, k[7]); err != nil {
 			return nil, err
 		}
-		if pt.Kept, err = tb.int(i, k[9]); err != nil {
+		if pt.Kept, err = tb.Int(i, k[9]); err != nil {
 			return nil, err
 		}
 		pt.KeptBy = r[k[10]]
@@ -527,7 +529,7 @@ func ReadPairsTable(path string) ([]PairTest, error) {
 func ReadComparisonInfo(dir string) (*ComparisonInfo, error) {
 	path := filepath.Join(dir, FileComparison)
 	var ci ComparisonInfo
-	if err := readJSON(path, &ci); err != nil {
+	if err := runfolder.ReadJSON(path, &ci); err != nil {
 		return nil, err
 	}
 	if len(ci.Models) == 0 {
@@ -561,7 +563,7 @@ func ReadComparison(dir string) (*ComparisonFolder, error) {
 	}
 	n, nb := ci.Neurons, ci.Axis.Bins
 	c := &ComparisonFolder{Info: *ci, Curves: map[string][]float64{}}
-	if c.Settings, err = ReadSettings(dir); err != nil {
+	if c.Settings, err = runfolder.ReadSettings(dir); err != nil {
 		return nil, err
 	}
 	avg, err := ReadFoldAverages(dir, ci.Models, n)
@@ -592,38 +594,38 @@ func ReadComparison(dir string) (*ComparisonFolder, error) {
 // readFoldScores reads fold_scores.csv: the tables in file order and
 // every neuron's exclusion reason.
 func readFoldScores(path string, n int) ([]FoldScores, []string, error) {
-	tb, err := readTable(path)
+	tb, err := runfolder.ReadColumns(path)
 	if err != nil {
 		return nil, nil, err
 	}
-	fixed, err := tb.cols("model", "fold", "neuron", "excluded", ColCeiling)
+	fixed, err := tb.Cols("model", "fold", "neuron", "excluded", runfolder.ColCeiling)
 	if err != nil {
 		return nil, nil, err
 	}
-	kc, err := tb.cols(ScoreColumns...)
+	kc, err := tb.Cols(runfolder.ScoreColumns...)
 	if err != nil {
 		return nil, nil, err
 	}
-	if len(tb.rows)%n != 0 {
-		return nil, nil, fmt.Errorf("%s: %d rows, not a whole number of folds of %d neurons", path, len(tb.rows), n)
+	if len(tb.Rows)%n != 0 {
+		return nil, nil, fmt.Errorf("%s: %d rows, not a whole number of folds of %d neurons", path, len(tb.Rows), n)
 	}
 	excluded := make([]string, n)
 	var out []FoldScores
-	for i, r := range tb.rows {
+	for i, r := range tb.Rows {
 		j := i % n
 		if j == 0 {
-			fold, err := tb.int(i, fixed[1])
+			fold, err := tb.Int(i, fixed[1])
 			if err != nil {
 				return nil, nil, err
 			}
-			fs := FoldScores{Model: r[fixed[0]], Fold: fold - 1, Cols: make([][]float64, len(ScoreColumns)), Ceiling: make([]string, n)}
+			fs := FoldScores{Model: r[fixed[0]], Fold: fold - 1, Cols: make([][]float64, len(runfolder.ScoreColumns)), Ceiling: make([]string, n)}
 			for k := range fs.Cols {
 				fs.Cols[k] = make([]float64, n)
 			}
 			out = append(out, fs)
 		}
 		fs := &out[len(out)-1]
-		nj, err := tb.int(i, fixed[2])
+		nj, err := tb.Int(i, fixed[2])
 		if err != nil {
 			return nil, nil, err
 		}
@@ -631,11 +633,11 @@ func readFoldScores(path string, n int) ([]FoldScores, []string, error) {
 			return nil, nil, fmt.Errorf("%s: line %d: want model %q, fold %d, neuron %d (rows grouped by model and fold, neurons in order)", path, i+2, fs.Model, fs.Fold+1, j)
 		}
 		excluded[j] = r[fixed[3]]
-		if fs.Ceiling[j], err = ceilingCode(tb, i, fixed[4]); err != nil {
+		if fs.Ceiling[j], err = runfolder.CeilingCode(tb, i, fixed[4]); err != nil {
 			return nil, nil, err
 		}
 		for q, k := range kc {
-			if fs.Cols[q][j], err = tb.float(i, k); err != nil {
+			if fs.Cols[q][j], err = tb.Float(i, k); err != nil {
 				return nil, nil, err
 			}
 		}
@@ -644,22 +646,22 @@ func readFoldScores(path string, n int) ([]FoldScores, []string, error) {
 }
 
 func readDescriptors(path string) ([]Descriptor, error) {
-	tb, err := readTable(path)
+	tb, err := runfolder.ReadColumns(path)
 	if err != nil {
 		return nil, err
 	}
-	k, err := tb.cols(descriptorHeader...)
+	k, err := tb.Cols(descriptorHeader...)
 	if err != nil {
 		return nil, err
 	}
-	out := make([]Descriptor, len(tb.rows))
-	for i, r := range tb.rows {
+	out := make([]Descriptor, len(tb.Rows))
+	for i, r := range tb.Rows {
 		d := Descriptor{Source: r[k[0]]}
-		if d.Neuron, err = tb.int(i, k[1]); err != nil {
+		if d.Neuron, err = tb.Int(i, k[1]); err != nil {
 			return nil, err
 		}
 		for q, dst := range []*float64{&d.Preferred, &d.Peak, &d.OneMinusCV, &d.DirVector, &d.OSI, &d.DSI} {
-			if *dst, err = tb.float(i, k[2+q]); err != nil {
+			if *dst, err = tb.Float(i, k[2+q]); err != nil {
 				return nil, err
 			}
 		}
@@ -699,7 +701,7 @@ func NewAcross(cmps []*Comparison, pooled *Comparison) *Across {
 			for i, c := range cmps {
 				med[i] = float64(c.Summary[m][k].Median)
 			}
-			sp := spreadOf(eval.Summarize(med), 0)
+			sp := runfolder.SpreadOf(eval.Summarize(med), 0)
 			sp.KeptBy = "recordings"
 			a.PerRecording = append(a.PerRecording, SpreadRow{Recording: recordingsRows, Model: m, Metric: k, Spread: sp})
 		}
@@ -743,7 +745,7 @@ func RecordingFolders(dir string) ([]string, error) {
 	}
 	var out []string
 	for _, e := range ents {
-		if e.IsDir() && e.Name() != DirFoldResults && e.Name() != DirFigures {
+		if e.IsDir() && e.Name() != DirFoldResults && e.Name() != runfolder.DirFigures {
 			if _, err := os.Stat(filepath.Join(dir, e.Name(), FileComparison)); err == nil {
 				out = append(out, filepath.Join(dir, e.Name()))
 			}
@@ -767,7 +769,7 @@ type FoldResult struct {
 	Epochs int
 	// Fingerprint is what the numbers depend on (empty in results of an
 	// older stria).
-	Fingerprint Fingerprint
+	Fingerprint runfolder.Fingerprint
 }
 
 // FoldResultPath is where the unit with the given id (recording/model/
@@ -785,10 +787,10 @@ func HasFoldResult(dir, id string) bool {
 // WriteFoldResult writes a unit's result atomically.
 func WriteFoldResult(dir string, r *FoldResult) error {
 	path := FoldResultPath(dir, r.ID)
-	if err := mkdir(filepath.Dir(path)); err != nil {
+	if err := runfolder.MakeFolder(filepath.Dir(path)); err != nil {
 		return err
 	}
-	return WriteFile(path, func(w io.Writer) error { return gob.NewEncoder(w).Encode(r) })
+	return runfolder.WriteFile(path, func(w io.Writer) error { return gob.NewEncoder(w).Encode(r) })
 }
 
 // RemoveFoldResultTemps removes the temporary files a killed write of
@@ -801,7 +803,7 @@ func RemoveFoldResultTemps(dir, id string) error {
 		return err
 	}
 	for _, t := range tmps {
-		if err := os.Remove(t); err != nil && !errNotExist(err) {
+		if err := os.Remove(t); err != nil && !errors.Is(err, os.ErrNotExist) {
 			return err
 		}
 	}

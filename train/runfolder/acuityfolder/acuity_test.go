@@ -1,6 +1,7 @@
-package runfolder
+package acuityfolder
 
 import (
+	"github.com/strialab/stria/train/runfolder"
 	"math"
 	"os"
 	"path/filepath"
@@ -15,7 +16,7 @@ func testAcuityFolder() *AcuityFolder {
 	nan, inf := math.NaN(), math.Inf(1)
 	return &AcuityFolder{
 		Info: AcuityInfo{Format: FormatAcuity, Stria: "test", Created: "2026-01-01T00:00:00Z", Seed: 3,
-			Axis:    AxisInfo{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, Bins: 3, Centers: []float64{60, 180, 300}, Edges: []float64{0, 120, 240, 360}},
+			Axis:    runfolder.AxisInfo{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, Bins: 3, Centers: []float64{60, 180, 300}, Edges: []float64{0, 120, 240, 360}},
 			Sources: map[string]string{"responses": "r.npy"}, Neurons: 7, Trials: 30, Folds: 2, MaxSize: 16,
 			InfoSizes: []int{2, 4}, Repeats: 2, DecodeSizes: []int{3, 7}, DecodeRepeats: 1,
 			Saturation: AcuitySaturation{A: 0.1, Eps: 2, Asymptote: 0.5, Lo: 0.25, Hi: InfNum(inf), Boot: 100, RMS: 0.01, Extrapolation: true},
@@ -49,7 +50,7 @@ func TestAcuityRoundTrip(t *testing.T) {
 		t.Fatal(err)
 	}
 	if _, err := ReadAcuity(dir); err == nil || !strings.Contains(err.Error(), "incomplete") {
-		t.Errorf("a folder without %s: got %v, want it refused as incomplete", FileComplete, err)
+		t.Errorf("a folder without %s: got %v, want it refused as incomplete", runfolder.FileComplete, err)
 	}
 	if err := WriteAcuity(dir, want); err != nil {
 		t.Fatal(err)
@@ -83,14 +84,14 @@ func TestAcuityRoundTrip(t *testing.T) {
 		t.Errorf("%s: the infinite upper bound is not written \"+Inf\" (%v)", FileAcuity, err)
 	}
 	// Another folder's marker is refused, naming the format.
-	if err := Finish(dir, FormatRun); err != nil {
+	if err := runfolder.Finish(dir, runfolder.FormatRun); err != nil {
 		t.Fatal(err)
 	}
 	if _, err := ReadAcuity(dir); err == nil || !strings.Contains(err.Error(), FormatAcuity) {
-		t.Errorf("a folder marked %s: got %v, want an error naming %s", FormatRun, err, FormatAcuity)
+		t.Errorf("a folder marked %s: got %v, want an error naming %s", runfolder.FormatRun, err, FormatAcuity)
 	}
 	// A damaged table names the file and line.
-	if err := Finish(dir, FormatAcuity); err != nil {
+	if err := runfolder.Finish(dir, FormatAcuity); err != nil {
 		t.Fatal(err)
 	}
 	path := filepath.Join(dir, FileDecodingVsSize)
