@@ -3,6 +3,7 @@ package train
 import (
 	"context"
 	"fmt"
+	"github.com/strialab/stria/train/settings"
 	"math"
 	"math/rand/v2"
 	"slices"
@@ -85,7 +86,7 @@ type AcuityEncoder struct {
 	Pred []float64
 	// Loss is the loss it was fitted with: Poisson selects the Poisson
 	// likelihood.
-	Loss Loss
+	Loss settings.Loss
 	// Train are the trials it was fitted on (training and validation),
 	// Test its held-out trials, the only ones it decodes.
 	Train, Test []int
@@ -148,7 +149,7 @@ func Acuity(ctx context.Context, p *Prepared, enc *AcuityEncoder, progress Acuit
 		}
 		// From 5 neurons, or from a quarter of the largest size when that
 		// is small, so that the saturation fit sees a range of sizes.
-		sizes = GeometricSizes(min(5, max(1, hi/4)), hi, ac.SizeCount)
+		sizes = settings.GeometricSizes(min(5, max(1, hi/4)), hi, ac.SizeCount)
 	} else if last := sizes[len(sizes)-1]; last > n || last > limit {
 		return nil, fmt.Errorf("acuity.sizes: the largest size %d is above the %d neurons of the recording or the %d the bias correction allows for the pair with the fewest trials (fewer than TA+TB-3 neurons)", last, n, limit)
 	}
@@ -183,11 +184,11 @@ func Acuity(ctx context.Context, p *Prepared, enc *AcuityEncoder, progress Acuit
 	afolds := AcuityFolds(folds)
 	dsizes := ac.DecodeSizes
 	if len(dsizes) == 0 {
-		dsizes = GeometricSizes(10, n, ac.SizeCount)
+		dsizes = settings.GeometricSizes(10, n, ac.SizeCount)
 	} else if last := dsizes[len(dsizes)-1]; last > n {
 		return nil, fmt.Errorf("acuity.decode_sizes: the largest size %d is above the %d neurons of the recording", last, n)
 	}
-	if slices.Contains(ac.Decoders, DecoderLDA) && ac.Shrinkage < 1 && n > acuity.DefaultMaxFull {
+	if slices.Contains(ac.Decoders, settings.DecoderLDA) && ac.Shrinkage < 1 && n > acuity.DefaultMaxFull {
 		return nil, fmt.Errorf("acuity.shrinkage %g: the linear discriminant with a full covariance is limited to %d neurons and the recording has %d (its cost grows with the cube of the number of neurons); use acuity.shrinkage: 1", ac.Shrinkage, acuity.DefaultMaxFull, n)
 	}
 	for _, kind := range ac.Decoders {
@@ -195,14 +196,14 @@ func Acuity(ctx context.Context, p *Prepared, enc *AcuityEncoder, progress Acuit
 		d := acuity.Decoder{Kind: acuity.LinearDiscriminant, Shrinkage: ac.Shrinkage}
 		r := AcuityDecoding{Name: "lda", Description: ldaText(ac.Shrinkage)}
 		dfolds := afolds
-		if kind == DecoderModel {
+		if kind == settings.DecoderModel {
 			d = acuity.Decoder{Kind: acuity.GaussianModel}
 			loss, which := cfg.Model.Loss, "the encoder fitted on each fold's training trials"
 			if enc != nil {
 				loss, which = enc.Loss, fmt.Sprintf("the encoder of the run folder %s, on its %d held-out test trials only", enc.Source, len(enc.Test))
 			}
 			r.Name, r.Description = "model-gaussian", "maximum likelihood from "+which+", independent Gaussian noise with per-neuron variance (the training residuals)"
-			if loss == Poisson {
+			if loss == settings.Poisson {
 				d.Kind = acuity.PoissonModel
 				r.Name, r.Description = "model-poisson", "maximum likelihood from "+which+", independent Poisson noise"
 			}

@@ -2,90 +2,23 @@ package train
 
 import (
 	"context"
+	"github.com/strialab/stria/train/settings"
 	"math"
 	"reflect"
 	"runtime"
 	"slices"
-	"strings"
 	"testing"
 
 	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/nn"
 )
 
-// TestAcuityConfigErrors checks that every bad setting of the acuity
-// section is refused with a message naming its key.
-func TestAcuityConfigErrors(t *testing.T) {
-	cases := []struct {
-		name string
-		edit func(*AcuityConfig)
-		want string
-	}{
-		{"sizes not increasing", func(a *AcuityConfig) { a.Sizes = []int{10, 10} }, "acuity.sizes[1] 10: sizes must increase strictly"},
-		{"size zero", func(a *AcuityConfig) { a.Sizes = []int{0, 4} }, "acuity.sizes[0] 0"},
-		{"one size", func(a *AcuityConfig) { a.DecodeSizes = []int{5} }, "acuity.decode_sizes: give at least two sizes"},
-		{"size count", func(a *AcuityConfig) { a.SizeCount = 1 }, "acuity.size_count 1"},
-		{"max size", func(a *AcuityConfig) { a.MaxSize = -3 }, "acuity.max_size -3"},
-		{"repeats", func(a *AcuityConfig) { a.Repeats = 0 }, "acuity.repeats 0"},
-		{"bootstrap negative", func(a *AcuityConfig) { a.Bootstrap = -1 }, "acuity.bootstrap -1"},
-		{"bootstrap too few", func(a *AcuityConfig) { a.Bootstrap = 20 }, "acuity.bootstrap 20"},
-		{"bootstrap one repeat", func(a *AcuityConfig) { a.Repeats = 1 }, "acuity.bootstrap 1000 with acuity.repeats 1"},
-		{"no decoder", func(a *AcuityConfig) { a.Decoders = nil }, "acuity.decoders: give at least one of lda or model"},
-		{"decoder twice", func(a *AcuityConfig) { a.Decoders = []AcuityDecoder{DecoderLDA, DecoderLDA} }, "acuity.decoders[1] lda: listed twice"},
-		{"shrinkage", func(a *AcuityConfig) { a.Shrinkage = 1.5 }, "acuity.shrinkage 1.5"},
-		{"decode repeats", func(a *AcuityConfig) { a.DecodeRepeats = 0 }, "acuity.decode_repeats 0"},
-		{"output", func(a *AcuityConfig) { a.Output = "" }, "acuity.output"},
-		{"encoder without model decoder", func(a *AcuityConfig) { a.Encoder, a.Decoders = "run", []AcuityDecoder{DecoderLDA} }, "acuity.encoder run: used only by the model decoder"},
-	}
-	for _, c := range cases {
-		t.Run(c.name, func(t *testing.T) {
-			cfg := validBase()
-			c.edit(&cfg.Acuity)
-			err := cfg.Validate()
-			if err == nil || !strings.Contains(err.Error(), c.want) {
-				t.Errorf("got error %v, want one containing %q", err, c.want)
-			}
-		})
-	}
-	// A wrong word names the key and its line.
-	_, err := ParseConfig([]byte("acuity:\n  decoders: [lda, bayes]\n"), "x.yaml")
-	if err == nil || !strings.Contains(err.Error(), "acuity.decoders") || !strings.Contains(err.Error(), "line 2") || !strings.Contains(err.Error(), "lda or model") {
-		t.Errorf("unknown decoder: got %v, want an error naming acuity.decoders, line 2 and the words", err)
-	}
-	_, err = ParseConfig([]byte("acuity:\n  repeat: 3\n"), "x.yaml")
-	if err == nil || !strings.Contains(err.Error(), `"acuity.repeat"`) {
-		t.Errorf("misspelt key: got %v, want an error naming acuity.repeat", err)
-	}
-	cfg, err := ParseConfig([]byte("acuity:\n  decoders: [model]\n  sizes: [4, 8, 16]\n"), "x.yaml")
-	if err != nil || !slices.Equal(cfg.Acuity.Decoders, []AcuityDecoder{DecoderModel}) || !slices.Equal(cfg.Acuity.Sizes, []int{4, 8, 16}) || cfg.Acuity.Repeats != 20 {
-		t.Errorf("parsed %+v, %v; want decoders [model], sizes [4 8 16] and the default repeats 20", cfg.Acuity, err)
-	}
-}
-
-func TestGeometricSizes(t *testing.T) {
-	cases := []struct {
-		lo, hi, count int
-		want          []int
-	}{
-		{10, 24000, 8, []int{10, 30, 92, 281, 854, 2597, 7894, 24000}}, // 10 * 2400^(i/7), rounded [computed by hand]
-		{5, 63, 8, []int{5, 7, 10, 15, 21, 31, 44, 63}},
-		{10, 4, 8, []int{4}},         // lo above hi: hi only
-		{1, 4, 8, []int{1, 2, 3, 4}}, // repeats dropped
-		{2, 9, 2, []int{2, 9}},
-	}
-	for _, c := range cases {
-		if got := GeometricSizes(c.lo, c.hi, c.count); !slices.Equal(got, c.want) {
-			t.Errorf("GeometricSizes(%d, %d, %d) = %v, want %v", c.lo, c.hi, c.count, got, c.want)
-		}
-	}
-}
-
 // TestAcuityUsesCompareFolds checks that the decoders run on the folds of
 // stria compare (Folds of the same config, prepared afresh as compare's
 // plan does), that every trial is decoded exactly once, and that the same
 // config gives the same numbers on one core as on all.
 func TestAcuityUsesCompareFolds(t *testing.T) {
-	small := func(c *Config) {
+	small := func(c *settings.Config) {
 		c.Acuity.Repeats, c.Acuity.Bootstrap, c.Acuity.DecodeRepeats, c.Acuity.SizeCount = 4, 100, 2, 4
 		c.Train.MaxEpochs = 60
 	}
@@ -147,13 +80,13 @@ func TestAcuityUsesCompareFolds(t *testing.T) {
 // of about 90 deg [computed: uniform error on a circle]).
 func TestAcuityPoissonModel(t *testing.T) {
 	rec, _, _ := synth.Population(synth.Config{Neurons: 40, Trials: 1200, Bins: 60, TwoPeakFrac: 0.25, UntunedFrac: 0.1, GainSD: 0.15, Poisson: true, Seed: 5})
-	cfg := Defaults()
+	cfg := settings.Defaults()
 	cfg.Data.Responses = "synthetic"
-	cfg.Axis = AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 6, Encoding: OneHot}
+	cfg.Axis = settings.AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 6, Encoding: settings.OneHot}
 	cfg.Split.KeepBlocks, cfg.Split.ZScore = false, false
-	cfg.Model.Loss, cfg.Model.Output = Poisson, nn.Softplus
+	cfg.Model.Loss, cfg.Model.Output = settings.Poisson, nn.Softplus
 	cfg.Train.MaxEpochs, cfg.Train.Patience = 80, 20
-	cfg.Acuity.Decoders = []AcuityDecoder{DecoderModel}
+	cfg.Acuity.Decoders = []settings.AcuityDecoder{settings.DecoderModel}
 	cfg.Acuity.Repeats, cfg.Acuity.Bootstrap, cfg.Acuity.DecodeRepeats, cfg.Acuity.SizeCount = 3, 0, 1, 3
 	if err := cfg.Validate(); err != nil {
 		t.Fatal(err)
@@ -181,10 +114,10 @@ func TestAcuityPoissonModel(t *testing.T) {
 // TestAcuityBoundedAxis checks a bounded axis: one pair fewer than bins
 // (no wrap pair), and decoding errors as plain differences.
 func TestAcuityBoundedAxis(t *testing.T) {
-	p, _ := synthPrepared(t, 20, 1200, func(c *Config) {
+	p, _ := synthPrepared(t, 20, 1200, func(c *settings.Config) {
 		c.Axis.Periodic = false
 		c.Axis.BinWidth = 12
-		c.Acuity.Decoders = []AcuityDecoder{DecoderLDA}
+		c.Acuity.Decoders = []settings.AcuityDecoder{settings.DecoderLDA}
 		c.Acuity.Repeats, c.Acuity.Bootstrap, c.Acuity.DecodeRepeats, c.Acuity.SizeCount = 3, 0, 1, 3
 	})
 	res, err := Acuity(context.Background(), p, nil, nil)

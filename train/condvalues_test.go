@@ -1,6 +1,7 @@
 package train
 
 import (
+	"github.com/strialab/stria/train/settings"
 	"math"
 	"strings"
 	"testing"
@@ -18,9 +19,9 @@ import (
 // the values are the bins' mean directions.
 func TestConditionValues(t *testing.T) {
 	prep := func(rec *data.Recording, width float64) *Prepared {
-		cfg := Defaults()
+		cfg := settings.Defaults()
 		cfg.Data.Responses = "synthetic"
-		cfg.Axis = AxisConfig{Name: "direction", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: width, Encoding: OneHot}
+		cfg.Axis = settings.AxisConfig{Name: "direction", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: width, Encoding: settings.OneHot}
 		cfg.Split.KeepBlocks = false
 		if err := cfg.Validate(); err != nil {
 			t.Fatal(err)

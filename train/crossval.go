@@ -3,6 +3,7 @@ package train
 import (
 	"context"
 	"fmt"
+	"github.com/strialab/stria/train/settings"
 	"math/rand/v2"
 	"runtime"
 	"slices"
@@ -19,7 +20,7 @@ type ModelSpec struct {
 	// Baseline is the baseline kind; empty for an encoder.
 	Baseline string
 	// Cfg is the encoder's full config (nil for a baseline).
-	Cfg *Config
+	Cfg *settings.Config
 }
 
 // FoldResult is one model's scores on one fold.

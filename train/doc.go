@@ -1,5 +1,5 @@
-// Package train fits stria's encoders in memory: the typed config (read
-// once from YAML, checked by Validate), preparation of a recording (bins,
+// Package train fits stria's encoders in memory from the typed config of
+// train/settings: preparation of a recording (bins,
 // checks, the split, z-scoring), the epoch loop that every solver plugs
 // into, the two solvers, and the glue that scores a fit on its test
 // trials; Acuity runs stria acuity's analysis (eval/acuity) on compare's
@@ -16,8 +16,8 @@
 //   - Matrices are row-major flat slices: predictions per bin are B x N,
 //     per trial T x N; responses stay float32 in the recording's units.
 //   - Words from the config (loss, output, border, encoding, optimizer,
-//     solver) are typed values (Loss, Encoding, ...); code switches on
-//     them and never compares strings.
+//     solver) are typed values of train/settings (settings.Loss, ...);
+//     code switches on them and never compares strings.
 //   - With split.zscore the trainer works in z-scored units
 //     (condstats.Normalizer, fitted on the training and validation trials);
 //     every prediction handed out of this package is in the recording's

@@ -3,6 +3,7 @@ package train
 import (
 	"context"
 	"errors"
+	"github.com/strialab/stria/train/settings"
 	"math"
 	"math/rand/v2"
 	"slices"
@@ -63,7 +64,7 @@ var ErrInterrupted = errors.New("training interrupted")
 type Fitted struct {
 	Net *nn.Net
 	// Solver is the solver that ran (never SolverAuto).
-	Solver Solver
+	Solver settings.Solver
 	// ReadoutL2 is the readout penalty of each neuron when it was chosen
 	// from the data (model.readout_l2: auto on the projected solver); nil
 	// when the config's number was used throughout.
@@ -186,7 +187,7 @@ func ssTotOf(p *Prepared, st *condstats.Stats) []float64 {
 // trainer holds the state of one fit.
 type trainer struct {
 	p      *Prepared
-	cfg    *Config
+	cfg    *settings.Config
 	net    *nn.Net
 	work   *nn.Work
 	rng    *rand.Rand
@@ -213,7 +214,7 @@ const chunkRows = 256
 
 func newTrainer(p *Prepared, net *nn.Net) *trainer {
 	cfg := p.Cfg
-	tr := &trainer{p: p, cfg: cfg, net: net, poiss: cfg.Model.Loss == Poisson, excluded: p.Report.Constant}
+	tr := &trainer{p: p, cfg: cfg, net: net, poiss: cfg.Model.Loss == settings.Poisson, excluded: p.Report.Constant}
 	// The losses are means over the neurons that train: the penalty per
 	// weight and the gradient scale do not change when excluded neurons
 	// are added (Adam's epsilon would otherwise make them matter).
@@ -427,8 +428,8 @@ func Fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (f *
 
 func fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
 	cfg := p.Cfg
-	if cfg.SolverToRun() == SolverProjected {
-		if cfg.Model.Loss == Poisson {
+	if cfg.SolverToRun() == settings.SolverProjected {
+		if cfg.Model.Loss == settings.Poisson {
 			return fitPoissonProjected(ctx, p, hooks, resume)
 		}
 		return fitProjected(ctx, p, hooks, resume)
@@ -447,7 +448,7 @@ func fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fi
 	if err != nil {
 		return nil, err
 	}
-	return &Fitted{Net: net, Solver: SolverAdam, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}, nil
+	return &Fitted{Net: net, Solver: settings.SolverAdam, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}, nil
 }
 
 // initReadout sets the readout bias to each neuron's mean training

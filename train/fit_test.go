@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"github.com/strialab/stria/train/settings"
 	"math"
 	"math/rand/v2"
 	"runtime"
@@ -20,15 +21,15 @@ import (
 )
 
 // synthPrepared builds a prepared demo-scenario recording.
-func synthPrepared(t testing.TB, neurons, trials int, edit func(*Config)) (*Prepared, *synth.Truth) {
+func synthPrepared(t testing.TB, neurons, trials int, edit func(*settings.Config)) (*Prepared, *synth.Truth) {
 	t.Helper()
 	rec, _, truth := synth.Population(synth.Config{
 		Neurons: neurons, Trials: trials, Bins: 60,
 		TwoPeakFrac: 0.25, UntunedFrac: 0.1, GainSD: 0.15, NoiseSD: 0.5, Seed: 11,
 	})
-	cfg := Defaults()
+	cfg := settings.Defaults()
 	cfg.Data.Responses = "synthetic"
-	cfg.Axis = AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 6, Encoding: OneHot}
+	cfg.Axis = settings.AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 6, Encoding: settings.OneHot}
 	cfg.Split.KeepBlocks = false
 	cfg.Train.MaxEpochs = 400
 	cfg.Train.Patience = 50
@@ -49,20 +50,20 @@ func synthPrepared(t testing.TB, neurons, trials int, edit func(*Config)) (*Prep
 // and gradients on per-condition rows (weight N_b, target the condition
 // mean) equal the trial-level ones, for MSE and Poisson.
 func TestConditionSumIdentity(t *testing.T) {
-	for _, loss := range []Loss{MSE, Poisson} {
+	for _, loss := range []settings.Loss{settings.MSE, settings.Poisson} {
 		t.Run(loss.String(), func(t *testing.T) {
 			// The loss is set after preparing: the identity holds for any
 			// targets >= 0, and Prepare refuses non-counts for poisson.
-			p, _ := synthPrepared(t, 30, 300, func(c *Config) {
-				if loss == Poisson {
+			p, _ := synthPrepared(t, 30, 300, func(c *settings.Config) {
+				if loss == settings.Poisson {
 					c.Model.Output = nn.Softplus
 					c.Split.ZScore = false
 				}
-				c.Model.Layers = []LayerConfig{{Channels: 3, Kernel: 5, Stride: 2, Border: BorderCircular}}
+				c.Model.Layers = []settings.LayerConfig{{Channels: 3, Kernel: 5, Stride: 2, Border: settings.BorderCircular}}
 				c.Axis.BinWidth = 12
 			})
 			p.Cfg.Model.Loss = loss
-			if loss == Poisson {
+			if loss == settings.Poisson {
 				// Poisson needs non-negative targets: shift every response.
 				for i, v := range p.Rec.Y.Data {
 					p.Rec.Y.Data[i] = float32(math.Abs(float64(v)))
@@ -99,7 +100,7 @@ func TestConditionSumIdentity(t *testing.T) {
 
 func TestFitDeterministic(t *testing.T) {
 	run := func() (*Fitted, []eval.Scores) {
-		p, _ := synthPrepared(t, 40, 600, func(c *Config) { c.Train.MaxEpochs = 60; c.Train.BatchSize = 64; c.Axis.BinWidth = 12 })
+		p, _ := synthPrepared(t, 40, 600, func(c *settings.Config) { c.Train.MaxEpochs = 60; c.Train.BatchSize = 64; c.Axis.BinWidth = 12 })
 		f, err := Fit(context.Background(), p, Hooks{}, nil)
 		if err != nil {
 			t.Fatal(err)
@@ -123,13 +124,13 @@ func TestFitDeterministic(t *testing.T) {
 // mini-batch paths.
 func TestResume(t *testing.T) {
 	for _, batch := range []int{0, 64} {
-		edit := func(c *Config) {
+		edit := func(c *settings.Config) {
 			c.Train.MaxEpochs = 40
 			c.Train.Patience = 1000
 			c.Train.CheckpointEvery = 7
 			c.Train.BatchSize = batch
 			c.Axis.BinWidth = 12
-			c.Train.Solver = SolverAdam // the projected solver's resume: TestProjectedResume
+			c.Train.Solver = settings.SolverAdam // the projected solver's resume: TestProjectedResume
 		}
 		p, _ := synthPrepared(t, 30, 400, edit)
 		whole, err := Fit(context.Background(), p, Hooks{}, nil)
@@ -178,12 +179,12 @@ func TestResume(t *testing.T) {
 }
 
 func TestDivergenceStops(t *testing.T) {
-	p, _ := synthPrepared(t, 20, 300, func(c *Config) { c.Train.LearningRate = 1e6; c.Train.MaxEpochs = 50; c.Axis.BinWidth = 12 })
+	p, _ := synthPrepared(t, 20, 300, func(c *settings.Config) { c.Train.LearningRate = 1e6; c.Train.MaxEpochs = 50; c.Axis.BinWidth = 12 })
 	// Only the adam path: the projected solver's loss is bounded by the
 	// grand-mean model's whatever the filters do (the readout is optimal
 	// for them), so a huge step makes a poor fit that early stopping
 	// discards, not a growing loss.
-	for _, solver := range []Solver{SolverAdam} {
+	for _, solver := range []settings.Solver{settings.SolverAdam} {
 		p.Cfg.Train.Solver = solver
 		_, err := Fit(context.Background(), p, Hooks{}, nil)
 		if err == nil {
@@ -219,7 +220,7 @@ func (f *fakeSolver) Validate(int) (float64, float64, error) { return 1, 0, nil 
 // is not finite, or more than a million times the first epoch's, stops
 // training at that epoch; a loss that grows less does not.
 func TestDivergenceRule(t *testing.T) {
-	tc := Defaults().Train
+	tc := settings.Defaults().Train
 	tc.MaxEpochs, tc.Patience = 5, 100
 	for _, c := range []struct {
 		name   string
@@ -261,10 +262,10 @@ func TestDivergenceRule(t *testing.T) {
 //     and remove noise that a per-bin average keeps.
 func TestDemoRecovery(t *testing.T) {
 	demoL2 := 1.0
-	p, truth := synthPrepared(t, 200, 1200, func(c *Config) {
+	p, truth := synthPrepared(t, 200, 1200, func(c *settings.Config) {
 		c.Train.MaxEpochs = 3000
 		c.Train.Patience = 100
-		c.Model.ReadoutL2 = Penalty{Value: demoL2}
+		c.Model.ReadoutL2 = settings.Penalty{Value: demoL2}
 		c.Split.ZScore = false
 	})
 	f, err := Fit(context.Background(), p, Hooks{}, nil)
@@ -324,7 +325,7 @@ func TestDemoRecovery(t *testing.T) {
 // against condstats.FitNormalizer's two passes over the trials, including a
 // constant neuron (Scale 1) and one with a large offset.
 func TestNormalizerFromStats(t *testing.T) {
-	p, _ := synthPrepared(t, 20, 600, func(c *Config) { c.Axis.BinWidth = 12 })
+	p, _ := synthPrepared(t, 20, 600, func(c *settings.Config) { c.Axis.BinWidth = 12 })
 	y := p.Rec.Y
 	for i := 0; i < y.Rows; i++ {
 		y.Row(i)[0] = 3.25               // constant
@@ -352,12 +353,12 @@ func TestNormalizerFromStats(t *testing.T) {
 // work independently of the number of cores), for both solvers.
 func TestCoresDoNotChangeResults(t *testing.T) {
 	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
-	for _, solver := range []Solver{SolverAdam, SolverProjected} {
+	for _, solver := range []settings.Solver{settings.SolverAdam, settings.SolverProjected} {
 		var params [2][]float64
 		var scores [2][]eval.Scores
 		for i, procs := range []int{1, 2} {
 			runtime.GOMAXPROCS(procs)
-			p, _ := synthPrepared(t, 300, 600, func(c *Config) {
+			p, _ := synthPrepared(t, 300, 600, func(c *settings.Config) {
 				c.Train.Solver = solver
 				c.Train.MaxEpochs = 80
 				c.Axis.BinWidth = 12
@@ -386,9 +387,9 @@ func TestCoresDoNotChangeResults(t *testing.T) {
 func TestBlockTrials(t *testing.T) {
 	rec, _, _ := synth.Population(synth.Config{Neurons: 10, Trials: 1200, Bins: 60, TwoPeakFrac: 0.25, UntunedFrac: 0.1, GainSD: 0.15, NoiseSD: 0.5, Seed: 11})
 	rec.Block = nil // no block ids: blocks come from split.block_trials
-	cfg := Defaults()
+	cfg := settings.Defaults()
 	cfg.Data.Responses = "synthetic"
-	cfg.Axis = AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 30, Encoding: OneHot}
+	cfg.Axis = settings.AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 30, Encoding: settings.OneHot}
 	cfg.Split.KeepBlocks = true
 	cfg.Split.BlockTrials = 40
 	if err := cfg.Validate(); err != nil {
@@ -427,28 +428,28 @@ func TestBlockTrials(t *testing.T) {
 func TestSolverAuto(t *testing.T) {
 	for _, tc := range []struct {
 		name string
-		edit func(*Config)
-		want Solver
+		edit func(*settings.Config)
+		want settings.Solver
 	}{
-		{"default", func(*Config) {}, SolverProjected},
-		{"soft encoding", func(c *Config) { c.Axis.Encoding = Soft }, SolverAdam},
-		{"mini-batches", func(c *Config) { c.Train.BatchSize = 32 }, SolverAdam},
-		{"named adam", func(c *Config) { c.Train.Solver = SolverAdam }, SolverAdam},
+		{"default", func(*settings.Config) {}, settings.SolverProjected},
+		{"soft encoding", func(c *settings.Config) { c.Axis.Encoding = settings.Soft }, settings.SolverAdam},
+		{"mini-batches", func(c *settings.Config) { c.Train.BatchSize = 32 }, settings.SolverAdam},
+		{"named adam", func(c *settings.Config) { c.Train.Solver = settings.SolverAdam }, settings.SolverAdam},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			c := Defaults()
+			c := settings.Defaults()
 			tc.edit(&c)
 			if got := c.SolverToRun(); got != tc.want {
 				t.Errorf("got %s, want %s", got, tc.want)
 			}
 		})
 	}
-	p, _ := synthPrepared(t, 20, 300, func(c *Config) { c.Train.MaxEpochs = 5; c.Axis.BinWidth = 12 })
+	p, _ := synthPrepared(t, 20, 300, func(c *settings.Config) { c.Train.MaxEpochs = 5; c.Axis.BinWidth = 12 })
 	f, err := Fit(context.Background(), p, Hooks{}, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
-	if f.Solver != SolverProjected {
+	if f.Solver != settings.SolverProjected {
 		t.Errorf("default fit ran %s, want projected", f.Solver)
 	}
 }
@@ -460,9 +461,9 @@ func TestSolverAuto(t *testing.T) {
 // columns rescale the filter gradient, which Adam undoes up to its
 // epsilon.
 func TestConstantNeuronsLeftOut(t *testing.T) {
-	for _, solver := range []Solver{SolverAdam, SolverProjected} {
+	for _, solver := range []settings.Solver{settings.SolverAdam, settings.SolverProjected} {
 		t.Run(solver.String(), func(t *testing.T) {
-			edit := func(c *Config) {
+			edit := func(c *settings.Config) {
 				c.Train.Solver = solver
 				c.Train.MaxEpochs = 150
 				c.Axis.BinWidth = 12
@@ -513,7 +514,7 @@ func TestConstantNeuronsLeftOut(t *testing.T) {
 // scores: the filters depend on the neurons only through sums over them,
 // which change with the order only by rounding.
 func TestProjectedColumnOrder(t *testing.T) {
-	edit := func(c *Config) { c.Train.MaxEpochs = 150; c.Axis.BinWidth = 12 }
+	edit := func(c *settings.Config) { c.Train.MaxEpochs = 150; c.Axis.BinWidth = 12 }
 	p, _ := synthPrepared(t, 50, 600, edit)
 	f, err := Fit(context.Background(), p, Hooks{}, nil)
 	if err != nil {
@@ -541,7 +542,7 @@ func TestProjectedColumnOrder(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if f.Solver != SolverProjected || g.Solver != SolverProjected {
+	if f.Solver != settings.SolverProjected || g.Solver != settings.SolverProjected {
 		t.Fatalf("solvers %s, %s: want the default projected", f.Solver, g.Solver)
 	}
 	got := ScoreFitted(q2, g)
@@ -577,9 +578,9 @@ func TestDiscreteConditionsCentred(t *testing.T) {
 			rec.Y.Row(t)[n] = float32(mu + 0.5*rng.NormFloat64())
 		}
 	}
-	cfg := Defaults()
+	cfg := settings.Defaults()
 	cfg.Data.Responses = "synthetic"
-	cfg.Axis = AxisConfig{Name: "orientation", Unit: "deg", Min: 0, Max: 180, Periodic: true, BinWidth: 15}
+	cfg.Axis = settings.AxisConfig{Name: "orientation", Unit: "deg", Min: 0, Max: 180, Periodic: true, BinWidth: 15}
 	cfg.Split.KeepBlocks = false
 	if err := cfg.Validate(); err != nil {
 		t.Fatal(err)

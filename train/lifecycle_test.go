@@ -3,6 +3,7 @@ package train
 import (
 	"context"
 	"errors"
+	"github.com/strialab/stria/train/settings"
 	"os"
 	"path/filepath"
 	"strings"
@@ -32,10 +33,10 @@ func TestPoissonRefusesNonCounts(t *testing.T) {
 				rec.Y.Data[i] = float32(int(v*v*4 + 0.5)) // whole numbers >= 0
 			}
 			rec.Y.Data[7*6+3] = c.v
-			cfg := Defaults()
+			cfg := settings.Defaults()
 			cfg.Data.Responses = "synthetic"
-			cfg.Axis = AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 30, Encoding: OneHot}
-			cfg.Model.Loss, cfg.Model.Output, cfg.Split.ZScore = Poisson, nn.Softplus, false
+			cfg.Axis = settings.AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 30, Encoding: settings.OneHot}
+			cfg.Model.Loss, cfg.Model.Output, cfg.Split.ZScore = settings.Poisson, nn.Softplus, false
 			if err := cfg.Validate(); err != nil {
 				t.Fatal(err)
 			}
@@ -45,7 +46,7 @@ func TestPoissonRefusesNonCounts(t *testing.T) {
 			}
 			// The same values with mse are accepted.
 			rec.Y.Data[7*6+3] = c.v
-			cfg.Model.Loss, cfg.Model.Output = MSE, nn.Identity
+			cfg.Model.Loss, cfg.Model.Output = settings.MSE, nn.Identity
 			if _, err := PrepareRecording(&cfg, rec); err != nil {
 				t.Errorf("mse: %v", err)
 			}
@@ -79,14 +80,14 @@ func TestFitTruncatedMapping(t *testing.T) {
 		t.Fatal(err)
 	}
 	v = nil
-	cfg := Defaults()
+	cfg := settings.Defaults()
 	cfg.Data.Responses, cfg.Data.Stimulus = resp, stim
-	cfg.Axis = AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, Bins: 8, Encoding: OneHot}
+	cfg.Axis = settings.AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, Bins: 8, Encoding: settings.OneHot}
 	cfg.Split.KeepBlocks = false
-	cfg.Model.Layers = []LayerConfig{{Channels: 2, Kernel: 3, Stride: 1, Border: BorderCircular}}
+	cfg.Model.Layers = []settings.LayerConfig{{Channels: 2, Kernel: 3, Stride: 1, Border: settings.BorderCircular}}
 	// Mini-batches of trials: the fit reads the responses (full-batch
 	// fits work on condition sums made in Prepare).
-	cfg.Train.MaxEpochs, cfg.Train.Patience, cfg.Train.BatchSize, cfg.Train.Solver = 1, 1, 256, SolverAdam
+	cfg.Train.MaxEpochs, cfg.Train.Patience, cfg.Train.BatchSize, cfg.Train.Solver = 1, 1, 256, settings.SolverAdam
 	if err := cfg.Validate(); err != nil {
 		t.Fatal(err)
 	}

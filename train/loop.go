@@ -3,6 +3,7 @@ package train
 import (
 	"context"
 	"fmt"
+	"github.com/strialab/stria/train/settings"
 	"math"
 	"math/rand/v2"
 	"slices"
@@ -40,11 +41,11 @@ type solver interface {
 
 // newOptimizer returns the Adam optimiser the train settings describe for
 // n parameters.
-func newOptimizer(tc TrainConfig, n int) *nn.Adam {
+func newOptimizer(tc settings.TrainConfig, n int) *nn.Adam {
 	opt := nn.NewAdam(n)
 	opt.LR, opt.Beta1, opt.Beta2, opt.Eps = tc.LearningRate, tc.Beta1, tc.Beta2, tc.Epsilon
 	opt.WeightDecay = tc.WeightDecay
-	opt.Decoupled = tc.Optimizer == OptimizerAdamW
+	opt.Decoupled = tc.Optimizer == settings.OptimizerAdamW
 	return opt
 }
 
@@ -62,7 +63,7 @@ type loopResult struct {
 // is handed to hooks and ErrInterrupted is returned. A loss that is not
 // finite or grows a millionfold over the first epoch's stops training with
 // an error that suggests a smaller learning rate.
-func runEpochs(ctx context.Context, s solver, tc TrainConfig, hooks Hooks, resume *Checkpoint) (*loopResult, error) {
+func runEpochs(ctx context.Context, s solver, tc settings.TrainConfig, hooks Hooks, resume *Checkpoint) (*loopResult, error) {
 	params := s.Trainable()
 	opt := newOptimizer(tc, len(params))
 	st := Checkpoint{BestVal: math.Inf(1)}

@@ -2,6 +2,7 @@ package train
 
 import (
 	"context"
+	"github.com/strialab/stria/train/settings"
 	"math"
 	"testing"
 )
@@ -10,8 +11,8 @@ import (
 // returns against a forward pass of the fitted net. Tolerance 1e-10 of the
 // largest prediction: the same quantity, summed in another order.
 func TestProjectedCurves(t *testing.T) {
-	p, _ := synthPrepared(t, 150, 900, func(c *Config) {
-		c.Train.Solver = SolverProjected
+	p, _ := synthPrepared(t, 150, 900, func(c *settings.Config) {
+		c.Train.Solver = settings.SolverProjected
 		c.Train.MaxEpochs = 30
 		c.Axis.BinWidth = 12
 	})

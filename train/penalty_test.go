@@ -1,6 +1,7 @@
 package train
 
 import (
+	"github.com/strialab/stria/train/settings"
 	"math"
 	"testing"
 
@@ -13,7 +14,7 @@ import (
 // and that the recorded penalties lie on the grid's range.
 func TestAutoReadout(t *testing.T) {
 	for _, per := range []bool{false, true} {
-		p, net := projectedCase(t, BorderCircular, 1)
+		p, net := projectedCase(t, settings.BorderCircular, 1)
 		pj, err := projection.NewMSE(p.problem(), net)
 		if err != nil {
 			t.Fatal(err)

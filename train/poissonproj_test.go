@@ -3,6 +3,7 @@ package train
 import (
 	"context"
 	"errors"
+	"github.com/strialab/stria/train/settings"
 	"math"
 	"math/rand/v2"
 	"slices"
@@ -22,10 +23,10 @@ import (
 func poissonCase(t *testing.T, output nn.Activation, l2 float64) (*Prepared, *nn.Net) {
 	t.Helper()
 	p, _ := popPrepared(t, synth.DiscreteConfig{Neurons: 9, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, RareBins: 3, Seed: 5},
-		func(c *Config) {
+		func(c *settings.Config) {
 			c.Model.Output = output
-			c.Model.ReadoutL2 = Penalty{Value: l2}
-			c.Model.Layers = []LayerConfig{{Channels: 3, Kernel: 5, Stride: 2}}
+			c.Model.ReadoutL2 = settings.Penalty{Value: l2}
+			c.Model.Layers = []settings.LayerConfig{{Channels: 3, Kernel: 5, Stride: 2}}
 		})
 	net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
 	net.Init(rand.New(rand.NewPCG(3, 4)))
@@ -146,7 +147,7 @@ func TestPoissonProjGradient(t *testing.T) {
 func fitPoissonFast(t testing.TB, p *Prepared) ([]float64, int) {
 	q := *p
 	cfg := *p.Cfg
-	cfg.Train.Solver = SolverProjected
+	cfg.Train.Solver = settings.SolverProjected
 	if err := cfg.Validate(); err != nil {
 		t.Fatal(err)
 	}
@@ -167,7 +168,7 @@ func TestPoissonFastVsAdam(t *testing.T) {
 		t.Skip("fits two models on 200 neurons")
 	}
 	spec := synth.DiscreteConfig{Neurons: 200, Trials: 2400, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 21}
-	edit := func(c *Config) { c.Model.ReadoutL2 = Penalty{Value: 0.01}; c.Train.Patience = 50 }
+	edit := func(c *settings.Config) { c.Model.ReadoutL2 = settings.Penalty{Value: 0.01}; c.Train.Patience = 50 }
 	p, truth := popPrepared(t, spec, edit)
 	t0 := time.Now()
 	fa, err := Fit(context.Background(), p, Hooks{}, nil)
@@ -197,11 +198,11 @@ func TestPoissonEdgeCases(t *testing.T) {
 		for tr := 0; tr < rec.Y.Rows; tr++ {
 			edit(rec.Y.Row(tr))
 		}
-		cfg := Defaults()
+		cfg := settings.Defaults()
 		cfg.Data.Responses = "synthetic"
-		cfg.Axis = AxisConfig{Name: "direction", Min: 0, Max: 360, Periodic: true, BinWidth: 12, Encoding: OneHot}
+		cfg.Axis = settings.AxisConfig{Name: "direction", Min: 0, Max: 360, Periodic: true, BinWidth: 12, Encoding: settings.OneHot}
 		cfg.Split.KeepBlocks = false
-		cfg.Model.Loss, cfg.Model.Output, cfg.Split.ZScore = Poisson, nn.Softplus, false
+		cfg.Model.Loss, cfg.Model.Output, cfg.Split.ZScore = settings.Poisson, nn.Softplus, false
 		if err := cfg.Validate(); err != nil {
 			t.Fatal(err)
 		}
@@ -249,10 +250,10 @@ func TestPoissonEdgeCases(t *testing.T) {
 // the returned curves.
 func TestPoissonFitDeterministic(t *testing.T) {
 	p, _ := popPrepared(t, synth.DiscreteConfig{Neurons: 20, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, Seed: 9},
-		func(c *Config) {
-			c.Train.Solver = SolverProjected
+		func(c *settings.Config) {
+			c.Train.Solver = settings.SolverProjected
 			c.Train.MaxEpochs = 30
-			c.Model.Layers = []LayerConfig{{Channels: 3, Kernel: 5, Stride: 2}}
+			c.Model.Layers = []settings.LayerConfig{{Channels: 3, Kernel: 5, Stride: 2}}
 		})
 	a, err := Fit(context.Background(), p, Hooks{}, nil)
 	if err != nil {
@@ -279,11 +280,11 @@ func TestPoissonFitDeterministic(t *testing.T) {
 // for bit.
 func TestPoissonResumeState(t *testing.T) {
 	p, _ := popPrepared(t, synth.DiscreteConfig{Neurons: 20, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, Seed: 9},
-		func(c *Config) {
-			c.Train.Solver = SolverProjected
+		func(c *settings.Config) {
+			c.Train.Solver = settings.SolverProjected
 			c.Train.MaxEpochs = 40
 			c.Train.Patience = 1000
-			c.Model.Layers = []LayerConfig{{Channels: 3, Kernel: 5, Stride: 2}}
+			c.Model.Layers = []settings.LayerConfig{{Channels: 3, Kernel: 5, Stride: 2}}
 		})
 	newSolver := func() *projection.Poisson {
 		net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))

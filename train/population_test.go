@@ -1,6 +1,7 @@
 package train
 
 import (
+	"github.com/strialab/stria/train/settings"
 	"math"
 	"slices"
 	"testing"
@@ -11,15 +12,15 @@ import (
 )
 
 // popPrepared prepares a population with the stria defaults edited by edit.
-func popPrepared(t testing.TB, s synth.DiscreteConfig, edit func(*Config)) (*Prepared, []float64) {
+func popPrepared(t testing.TB, s synth.DiscreteConfig, edit func(*settings.Config)) (*Prepared, []float64) {
 	t.Helper()
 	rec, truth := synth.Discrete(s)
-	cfg := Defaults()
+	cfg := settings.Defaults()
 	cfg.Data.Responses = "synthetic"
-	cfg.Axis = AxisConfig{Name: "direction", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 360 / float64(s.Bins), Encoding: OneHot}
+	cfg.Axis = settings.AxisConfig{Name: "direction", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 360 / float64(s.Bins), Encoding: settings.OneHot}
 	cfg.Split.KeepBlocks = false
 	if s.Poisson {
-		cfg.Model.Loss, cfg.Model.Output, cfg.Split.ZScore = Poisson, nn.Softplus, false
+		cfg.Model.Loss, cfg.Model.Output, cfg.Split.ZScore = settings.Poisson, nn.Softplus, false
 	}
 	if edit != nil {
 		edit(&cfg)

@@ -2,6 +2,7 @@ package train
 
 import (
 	"fmt"
+	"github.com/strialab/stria/train/settings"
 
 	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/data/condstats"
@@ -10,7 +11,7 @@ import (
 
 // Prepared is a recording loaded, binned, checked and split, ready to fit.
 type Prepared struct {
-	Cfg   *Config
+	Cfg   *settings.Config
 	Rec   *data.Recording
 	Axis  data.Axis
 	NBins int
@@ -42,7 +43,7 @@ type Prepared struct {
 
 // Prepare loads the recording the config names and splits it. The config
 // must be valid.
-func Prepare(cfg *Config) (*Prepared, error) {
+func Prepare(cfg *settings.Config) (*Prepared, error) {
 	rec, err := data.Load(cfg.Source())
 	if err != nil {
 		return nil, err
@@ -55,14 +56,14 @@ func Prepare(cfg *Config) (*Prepared, error) {
 // (Recording.Files, for fingerprints) and, with a count loss (poisson),
 // requires whole numbers >= 0. Every read of the responses runs under
 // format.Guard (a truncated mapped file gives a *format.FaultError).
-func PrepareRecording(cfg *Config, rec *data.Recording) (p *Prepared, err error) {
+func PrepareRecording(cfg *settings.Config, rec *data.Recording) (p *Prepared, err error) {
 	if gerr := format.Guard(func() { p, err = prepareRecording(cfg, rec) }); gerr != nil {
 		return nil, gerr
 	}
 	return p, err
 }
 
-func prepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
+func prepareRecording(cfg *settings.Config, rec *data.Recording) (*Prepared, error) {
 	ax := cfg.DataAxis()
 	if err := ax.Validate(); err != nil {
 		return nil, err
@@ -96,7 +97,7 @@ func prepareRecording(cfg *Config, rec *data.Recording) (*Prepared, error) {
 	if err := checkConditionIDs(rec, cond, ax); err != nil {
 		return nil, err
 	}
-	rep, err := data.CheckWith(rec, cond, data.CheckOptions{NBins: p.NBins, Axis: &p.Axis, Counts: cfg.Model.Loss == Poisson, Hash: true})
+	rep, err := data.CheckWith(rec, cond, data.CheckOptions{NBins: p.NBins, Axis: &p.Axis, Counts: cfg.Model.Loss == settings.Poisson, Hash: true})
 	if err != nil {
 		return nil, err
 	}
@@ -198,7 +199,7 @@ func (p *Prepared) Neurons() int { return p.Rec.Y.Cols }
 
 // Soft reports whether trials are encoded by linear interpolation between
 // bin centres rather than one-hot.
-func (p *Prepared) Soft() bool { return p.Cfg.Axis.Encoding == Soft }
+func (p *Prepared) Soft() bool { return p.Cfg.Axis.Encoding == settings.Soft }
 
 // encode writes the model input for trial t (NBins values) into dst.
 func (p *Prepared) encode(dst []float64, t int) {

@@ -2,6 +2,7 @@ package train
 
 import (
 	"context"
+	"github.com/strialab/stria/train/settings"
 	"math"
 	"math/rand/v2"
 
@@ -43,7 +44,7 @@ func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpo
 	if err := fillBestR2(res, s.ValR2); err != nil {
 		return nil, err
 	}
-	f := &Fitted{Net: net, Solver: SolverProjected, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}
+	f := &Fitted{Net: net, Solver: settings.SolverProjected, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}
 	if cfg.Model.ReadoutL2.Auto {
 		f.Curves, f.ReadoutL2, err = s.AutoReadout(cfg.Model.ReadoutL2PerNeuron)
 	} else {
@@ -82,7 +83,7 @@ func fitPoissonProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *
 	if err := fillBestR2(res, func() (float64, error) { return vr2, nil }); err != nil {
 		return nil, err
 	}
-	return &Fitted{Net: net, Solver: SolverProjected, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop, Curves: curves}, nil
+	return &Fitted{Net: net, Solver: settings.SolverProjected, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop, Curves: curves}, nil
 }
 
 // fillBestR2 gives the best epoch of the log the validation R^2 of the

@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"github.com/strialab/stria/train/settings"
 	"math"
 	"math/rand/v2"
 	"slices"
@@ -17,13 +18,13 @@ import (
 // projectedCase builds a small prepared recording and a net with random
 // filters for the projected solver; stride 2 makes F (45) larger than the
 // number of conditions (30), the full-size situation.
-func projectedCase(t *testing.T, border LayerBorder, l2 float64) (*Prepared, *nn.Net) {
+func projectedCase(t *testing.T, border settings.LayerBorder, l2 float64) (*Prepared, *nn.Net) {
 	t.Helper()
-	p, _ := synthPrepared(t, 40, 400, func(c *Config) {
-		c.Model.Layers = []LayerConfig{{Channels: 3, Kernel: 5, Stride: 2, Border: border}}
+	p, _ := synthPrepared(t, 40, 400, func(c *settings.Config) {
+		c.Model.Layers = []settings.LayerConfig{{Channels: 3, Kernel: 5, Stride: 2, Border: border}}
 		c.Axis.BinWidth = 12
-		c.Model.ReadoutL2 = Penalty{Value: l2}
-		c.Train.Solver = SolverProjected
+		c.Model.ReadoutL2 = settings.Penalty{Value: l2}
+		c.Train.Solver = settings.SolverProjected
 	})
 	net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
 	net.Init(rand.New(rand.NewPCG(3, 4)))
@@ -41,9 +42,9 @@ func projectedCase(t *testing.T, border LayerBorder, l2 float64) (*Prepared, *nn
 //     validation loss and median R^2 must equal trainer.evalVal's.
 func TestProjectedGradient(t *testing.T) {
 	for _, tc := range []struct {
-		border LayerBorder
+		border settings.LayerBorder
 		l2     float64
-	}{{BorderCircular, 1}, {BorderZero, 0.05}, {BorderValid, 20}} {
+	}{{settings.BorderCircular, 1}, {settings.BorderZero, 0.05}, {settings.BorderValid, 20}} {
 		t.Run(tc.border.String(), func(t *testing.T) {
 			p, net := projectedCase(t, tc.border, tc.l2)
 			pj, err := projection.NewMSE(p.problem(), net)
@@ -129,7 +130,7 @@ func TestProjectedGradient(t *testing.T) {
 }
 
 func TestProjectedNeedsPenalty(t *testing.T) {
-	p, _ := projectedCase(t, BorderCircular, 0)
+	p, _ := projectedCase(t, settings.BorderCircular, 0)
 	_, err := Fit(context.Background(), p, Hooks{}, nil)
 	if err == nil || !strings.Contains(err.Error(), "readout_l2") {
 		t.Fatalf("readout_l2 0: got %v, want an error naming model.readout_l2", err)
@@ -143,12 +144,12 @@ func TestProjectedNeedsPenalty(t *testing.T) {
 // median over 300 neurons is larger than that, so the margin only allows
 // for the two optimisers stopping at slightly different filters).
 func TestProjectedVsAdam(t *testing.T) {
-	fit := func(solver Solver) (float64, *Fitted) {
-		p, _ := synthPrepared(t, 300, 1500, func(c *Config) {
+	fit := func(solver settings.Solver) (float64, *Fitted) {
+		p, _ := synthPrepared(t, 300, 1500, func(c *settings.Config) {
 			c.Train.Solver = solver
 			c.Train.MaxEpochs = 2000
 			c.Train.Patience = 50
-			if solver == SolverAdam {
+			if solver == settings.SolverAdam {
 				c.Train.BatchSize = 64
 				c.Train.LearningRate = 1e-3
 			}
@@ -164,8 +165,8 @@ func TestProjectedVsAdam(t *testing.T) {
 		}
 		return median(r2), f
 	}
-	ra, fa := fit(SolverAdam)
-	rp, fp := fit(SolverProjected)
+	ra, fa := fit(settings.SolverAdam)
+	rp, fp := fit(settings.SolverProjected)
 	t.Logf("held-out median R2: adam (batch 64) %.5f in %d epochs; projected %.5f in %d epochs", ra, len(fa.Log), rp, len(fp.Log))
 	if rp < ra-0.002 {
 		t.Errorf("projected median test R2 %.5f is below the adam path's %.5f by more than 0.002", rp, ra)
@@ -175,8 +176,8 @@ func TestProjectedVsAdam(t *testing.T) {
 // TestProjectedResume interrupts a projected fit and resumes it from its
 // checkpoint: the weights must equal those of an uninterrupted fit.
 func TestProjectedResume(t *testing.T) {
-	edit := func(c *Config) {
-		c.Train.Solver = SolverProjected
+	edit := func(c *settings.Config) {
+		c.Train.Solver = settings.SolverProjected
 		c.Train.MaxEpochs = 40
 		c.Train.Patience = 1000
 		c.Train.CheckpointEvery = 7
@@ -233,8 +234,8 @@ func TestProjectedResume(t *testing.T) {
 // benchPrepared is a demo-scenario recording with 60 bins for benchmarks.
 func benchPrepared(b *testing.B, neurons, trials int) *Prepared {
 	b.Helper()
-	p, _ := synthPrepared(b, neurons, trials, func(c *Config) {
-		c.Train.Solver = SolverProjected
+	p, _ := synthPrepared(b, neurons, trials, func(c *settings.Config) {
+		c.Train.Solver = settings.SolverProjected
 		c.Train.MaxEpochs = 3000
 		c.Train.Patience = 100
 	})
@@ -318,7 +319,7 @@ func BenchmarkFitProjected(b *testing.B) {
 // Tolerance 1e-9 relative: the two sum the same terms in another order.
 func TestScoreNet(t *testing.T) {
 	for _, z := range []bool{true, false} {
-		p, _ := synthPrepared(t, 1061, 300, func(c *Config) { c.Split.ZScore = z; c.Axis.BinWidth = 12 })
+		p, _ := synthPrepared(t, 1061, 300, func(c *settings.Config) { c.Split.ZScore = z; c.Axis.BinWidth = 12 })
 		net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
 		net.Init(rand.New(rand.NewPCG(5, 6)))
 		want := Score(p, PredictTrials(net, p, p.Test))

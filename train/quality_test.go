@@ -6,6 +6,7 @@ import (
 	"encoding/binary"
 	"encoding/hex"
 	"encoding/json"
+	"github.com/strialab/stria/train/settings"
 	"math"
 	"os"
 	"path/filepath"
@@ -38,9 +39,9 @@ var qualityScenario = synth.BumpsConfig{Neurons: 2000, Trials: 3000, Bins: 60, U
 func qualityPrepared(tb testing.TB, scen synth.BumpsConfig) (*Prepared, []float64) {
 	tb.Helper()
 	rec, _, oracle := synth.Bumps(scen)
-	cfg := Defaults()
+	cfg := settings.Defaults()
 	cfg.Data.Responses = "synthetic"
-	cfg.Axis = AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 360 / float64(scen.Bins), Encoding: OneHot}
+	cfg.Axis = settings.AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 360 / float64(scen.Bins), Encoding: settings.OneHot}
 	cfg.Split.KeepBlocks = false
 	if err := cfg.Validate(); err != nil {
 		tb.Fatal(err)
@@ -150,9 +151,9 @@ func BenchmarkQuality(b *testing.B) {
 		b.Fatalf("the benchmark population changed (responses %s, reference made on %s): rerun testdata/quality/gen_quality.py", h, ref.ResponsesSHA256)
 	}
 	cm, orc := meanR2(p, trainingMeans(p)), meanR2(p, oracle)
-	for _, solver := range []Solver{SolverAuto, SolverAdam} {
+	for _, solver := range []settings.Solver{settings.SolverAuto, settings.SolverAdam} {
 		name := "default"
-		if solver != SolverAuto {
+		if solver != settings.SolverAuto {
 			name = "solver=" + solver.String()
 		}
 		b.Run(name, func(b *testing.B) {
@@ -177,7 +178,7 @@ func BenchmarkQuality(b *testing.B) {
 			b.ReportMetric(ref.Share, "share_framework")
 			b.ReportMetric(cm, "r2_condmean")
 			b.ReportMetric(orc, "r2_oracle")
-			if solver == SolverAuto && share < ref.Share {
+			if solver == settings.SolverAuto && share < ref.Share {
 				b.Errorf("the default fit closes %.3f of the gap, the framework %.3f", share, ref.Share)
 			}
 		})

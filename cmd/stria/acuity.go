@@ -14,6 +14,7 @@ import (
 
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder/acuityfolder"
+	"github.com/strialab/stria/train/settings"
 )
 
 func acuityCommand() *cli.Command {
@@ -48,7 +49,7 @@ func acuityCommand() *cli.Command {
 
 // runAcuity prepares the recording, computes everything, writes the
 // acuity folder (complete.json last) and prints the results and cautions.
-func runAcuity(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer, quiet bool) (*acuityfolder.AcuityFolder, error) {
+func runAcuity(ctx context.Context, cfg *settings.Config, stdout, stderr io.Writer, quiet bool) (*acuityfolder.AcuityFolder, error) {
 	start := time.Now()
 	p, err := train.Prepare(cfg)
 	if err != nil {

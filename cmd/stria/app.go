@@ -11,8 +11,8 @@ import (
 	"github.com/urfave/cli/v2"
 	"golang.org/x/term"
 
-	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/settings"
 )
 
 // version is set at build time with -ldflags "-X main.version=...".
@@ -55,8 +55,8 @@ func dataFlags() []cli.Flag {
 
 // loadConfig reads the config and applies the command-line overrides.
 // Paths given on the command line are relative to the working folder.
-func loadConfig(c *cli.Context) (*train.Config, error) {
-	cfg, err := train.LoadConfig(c.String("config"))
+func loadConfig(c *cli.Context) (*settings.Config, error) {
+	cfg, err := settings.LoadConfig(c.String("config"))
 	if err != nil {
 		return nil, err
 	}

@@ -14,6 +14,7 @@ import (
 	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/settings"
 )
 
 // The command-line catalogue of bad inputs and faults. Every row must end
@@ -425,7 +426,7 @@ func writeLockFile(t *testing.T, dir string, l runfolder.LockInfo) {
 // state does not matter to the checks).
 func fakeCheckpoint(t *testing.T, f *fixture) {
 	t.Helper()
-	cfg, err := train.LoadConfig(f.cfg)
+	cfg, err := settings.LoadConfig(f.cfg)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -12,10 +12,10 @@ import (
 
 	"github.com/urfave/cli/v2"
 
-	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/compare"
 	"github.com/strialab/stria/train/runfolder"
 	"github.com/strialab/stria/train/runfolder/comparefolder"
+	"github.com/strialab/stria/train/settings"
 )
 
 func compareCommand() *cli.Command {
@@ -140,7 +140,7 @@ type compareOptions struct {
 // folder whose settings.yaml holds other settings. The whole comparison
 // (not an array task, which shares the folder with the others) locks the
 // folder.
-func runCompare(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer, o compareOptions) ([]*comparefolder.Comparison, error) {
+func runCompare(ctx context.Context, cfg *settings.Config, stdout, stderr io.Writer, o compareOptions) ([]*comparefolder.Comparison, error) {
 	plan, err := compare.NewPlan(cfg)
 	if err != nil {
 		return nil, err
@@ -220,7 +220,7 @@ func runCompare(ctx context.Context, cfg *train.Config, stdout, stderr io.Writer
 // folder or a folder of other files; for an array task, a folder locked by
 // a whole comparison or one whose settings.yaml holds other settings than
 // cfg (the array tasks of one comparison must share them).
-func checkCompareFolder(out string, cfg *train.Config, o compareOptions) error {
+func checkCompareFolder(out string, cfg *settings.Config, o compareOptions) error {
 	if err := runfolder.CheckWritable(out); err != nil {
 		return err
 	}
@@ -260,7 +260,7 @@ func checkCompareFolder(out string, cfg *train.Config, o compareOptions) error {
 		return err
 	}
 	if string(a) != string(b) {
-		diff, _ := train.DiffSettings(a, b)
+		diff, _ := settings.DiffSettings(a, b)
 		return fmt.Errorf("%s: its %s (written by an earlier comparison or array task) holds other settings; the array tasks of one comparison must share them:\n  %s\nuse a new output folder for these settings",
 			out, runfolder.FileSettings, strings.Join(diff, "\n  "))
 	}

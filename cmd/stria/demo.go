@@ -15,9 +15,9 @@ import (
 	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/data/synth"
-	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/export"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/settings"
 )
 
 func demoCommand() *cli.Command {
@@ -174,7 +174,7 @@ func runDemo(ctx context.Context, stdout, stderr io.Writer, o demoOptions) error
 		return err
 	}
 	fmt.Fprintf(stdout, "== synthetic recording and config written to %s\n", o.dir)
-	cfg, err := train.LoadConfig(cfgPath)
+	cfg, err := settings.LoadConfig(cfgPath)
 	if err != nil {
 		return err
 	}

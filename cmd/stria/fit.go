@@ -21,6 +21,7 @@ import (
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/settings"
 )
 
 func fitCommand() *cli.Command {
@@ -74,7 +75,7 @@ type fitOptions struct {
 // runfolder.AcquireLock), emptied with overwrite, cleared of temporary
 // files a killed fit left, and its completion marker removed; the marker
 // is written again last.
-func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*runfolder.Summary, error) {
+func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder.Summary, error) {
 	if o.stderr == nil {
 		o.stderr = os.Stderr
 	}
@@ -100,7 +101,7 @@ func runFit(ctx context.Context, cfg *train.Config, o fitOptions) (*runfolder.Su
 			return nil, fmt.Errorf("--resume: %w", err)
 		}
 		if !bytes.Equal(resume.Config, cfgYAML) {
-			diff, _ := train.DiffSettings(resume.Config, cfgYAML)
+			diff, _ := settings.DiffSettings(resume.Config, cfgYAML)
 			return nil, fmt.Errorf("--resume: the checkpoint in %s was written with another config; refusing to mix them:\n  %s", dir, strings.Join(diff, "\n  "))
 		}
 	}

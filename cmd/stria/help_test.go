@@ -9,7 +9,7 @@ import (
 	"gopkg.in/yaml.v3"
 
 	"github.com/strialab/stria/eval"
-	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/settings"
 )
 
 // TestHelpTopics checks that stria help prints every topic in full, still
@@ -91,9 +91,9 @@ func configKeys(prefix string, m map[string]any, dst *[]string) {
 // config, as the defaults marshal it to YAML (with one recording and one
 // encoder spec, so that the keys of list entries appear too).
 func TestConfigHelpComplete(t *testing.T) {
-	cfg := train.Defaults()
-	cfg.Recordings = []train.RecordingConfig{{}}
-	cfg.Compare.Encoders = []train.EncoderSpec{{}}
+	cfg := settings.Defaults()
+	cfg.Recordings = []settings.RecordingConfig{{}}
+	cfg.Compare.Encoders = []settings.EncoderSpec{{}}
 	b, err := cfg.Marshal()
 	if err != nil {
 		t.Fatal(err)

@@ -14,6 +14,7 @@ import (
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/settings"
 )
 
 func inspectCommand() *cli.Command {
@@ -48,7 +49,7 @@ func inspectCommand() *cli.Command {
 // the blocks, the split-half reliability over all trials and every data
 // warning. A problem that would stop stria fit does not stop the summary:
 // inspect prints what it can, lists the problem and then returns an error.
-func inspect(w io.Writer, cfg *train.Config, rec *data.Recording) error {
+func inspect(w io.Writer, cfg *settings.Config, rec *data.Recording) error {
 	var problems []string
 	fmt.Fprintf(w, "recording: %s\n", rec.Source.Responses)
 	fmt.Fprintf(w, "trials: %d   neurons: %d\n", rec.Y.Rows, rec.Y.Cols)
@@ -80,7 +81,7 @@ func inspect(w io.Writer, cfg *train.Config, rec *data.Recording) error {
 		problems = append(problems, fmt.Sprintf("stimulus %s: %v", rec.Source.Stimulus, err))
 		return inspectProblems(w, problems, hint)
 	}
-	rep, err := data.CheckWith(rec, cond, data.CheckOptions{NBins: nb, Axis: &ax, Counts: cfg.Model.Loss == train.Poisson})
+	rep, err := data.CheckWith(rec, cond, data.CheckOptions{NBins: nb, Axis: &ax, Counts: cfg.Model.Loss == settings.Poisson})
 	if err != nil {
 		problems = append(problems, err.Error())
 	}
@@ -194,7 +195,7 @@ func printStimulus(w io.Writer, ax data.Axis, rec *data.Recording) {
 }
 
 // printBlocks prints the blocks the splits keep together.
-func printBlocks(w io.Writer, cfg *train.Config, rec *data.Recording) {
+func printBlocks(w io.Writer, cfg *settings.Config, rec *data.Recording) {
 	ids := rec.Block
 	from := "block ids of " + rec.Source.Block
 	if ids == nil && cfg.Split.BlockTrials > 0 {

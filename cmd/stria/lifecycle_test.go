@@ -13,9 +13,9 @@ import (
 	"testing"
 
 	"github.com/strialab/stria/data/format"
-	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
 	"github.com/strialab/stria/train/runfolder/comparefolder"
+	"github.com/strialab/stria/train/settings"
 )
 
 // TestFitOverwrite: --overwrite empties the folder of an earlier run
@@ -134,7 +134,7 @@ func TestPredictCSV(t *testing.T) {
 // folder is left without complete.json.
 func TestFitRefusesChangedData(t *testing.T) {
 	f := newFixture(t)
-	cfg, err := train.LoadConfig(f.cfg)
+	cfg, err := settings.LoadConfig(f.cfg)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -8,8 +8,8 @@ import (
 	"testing"
 
 	"github.com/strialab/stria/eval"
-	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder/comparefolder"
+	"github.com/strialab/stria/train/settings"
 )
 
 func TestSpecsGrid(t *testing.T) {
@@ -25,7 +25,7 @@ compare:
       layers: [{channels: 2, kernel: 3}]
   baselines: [condmean, vonmises]
 `
-	cfg, err := train.ParseConfig([]byte(src), "c.yaml")
+	cfg, err := settings.ParseConfig([]byte(src), "c.yaml")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -43,7 +43,7 @@ compare:
 	if strings.Join(names, " ") != strings.Join(want, " ") {
 		t.Fatalf("specs %v, want %v", names, want)
 	}
-	if specs[2].Cfg.Model.Layers[0].Channels != 4 || specs[2].Cfg.Model.ReadoutL2 != (train.Penalty{Value: 0.1}) || specs[4].Cfg.Model.Layers[0].Kernel != 3 {
+	if specs[2].Cfg.Model.Layers[0].Channels != 4 || specs[2].Cfg.Model.ReadoutL2 != (settings.Penalty{Value: 0.1}) || specs[4].Cfg.Model.Layers[0].Kernel != 3 {
 		t.Errorf("grid values not applied: %+v / %+v", specs[2].Cfg.Model, specs[4].Cfg.Model)
 	}
 	if cfg.Model.Layers[0].Channels != 8 {
@@ -66,7 +66,7 @@ compare:
 func TestResolvedConfigRoundTrip(t *testing.T) {
 	src := "data: {responses: /r.npy}\naxis: {min: 0, max: 360, periodic: true, bin_width: 30}\n" +
 		"compare:\n  encoders:\n    - name: a\n    - name: b\n      layers: [{channels: 2, kernel: 3}]\n"
-	cfg, err := train.ParseConfig([]byte(src), "c.yaml")
+	cfg, err := settings.ParseConfig([]byte(src), "c.yaml")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -74,7 +74,7 @@ func TestResolvedConfigRoundTrip(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	back, err := train.ParseConfig(b, "resolved.yaml")
+	back, err := settings.ParseConfig(b, "resolved.yaml")
 	if err != nil {
 		t.Fatalf("resolved config does not parse: %v\n%s", err, b)
 	}
@@ -93,7 +93,7 @@ func TestResolvedConfigRoundTrip(t *testing.T) {
 func TestArrayTask(t *testing.T) {
 	src := "data: {responses: /r.npy}\naxis: {min: 0, max: 360, periodic: true, bin_width: 30}\nsplit: {folds: 3}\n" +
 		"compare:\n  encoders: [{name: a}, {name: b}]\n  baselines: [condmean]\n"
-	cfg, err := train.ParseConfig([]byte(src), "c.yaml")
+	cfg, err := settings.ParseConfig([]byte(src), "c.yaml")
 	if err != nil {
 		t.Fatal(err)
 	}

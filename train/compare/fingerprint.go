@@ -10,10 +10,11 @@ import (
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
 	"github.com/strialab/stria/train/runfolder/comparefolder"
+	"github.com/strialab/stria/train/settings"
 )
 
 // unitSettings returns the settings the numbers of the units of spec si
-// on recording rec depend on, as YAML (see train.Config.NumericSettings):
+// on recording rec depend on, as YAML (see settings.Config.NumericSettings):
 //
 //   - an encoder: its whole config (grid values applied) except the
 //     compare section (the other models), the recordings list, the
@@ -29,16 +30,16 @@ import (
 // The data files' paths are left out: the files' identity (size and
 // content hash) stands for them, so a recording moved or copied elsewhere
 // keeps its results.
-func unitSettings(rec *train.Config, spec train.ModelSpec) ([]byte, error) {
-	var c train.Config
+func unitSettings(rec *settings.Config, spec train.ModelSpec) ([]byte, error) {
+	var c settings.Config
 	if spec.Baseline == "" {
 		c = *spec.Cfg
-		c.Compare = train.CompareConfig{}
+		c.Compare = settings.CompareConfig{}
 	} else {
 		c = *rec
-		c.Model = train.ModelConfig{}
-		c.Train = train.TrainConfig{}
-		c.Compare = train.CompareConfig{Baselines: []string{spec.Baseline}}
+		c.Model = settings.ModelConfig{}
+		c.Train = settings.TrainConfig{}
+		c.Compare = settings.CompareConfig{Baselines: []string{spec.Baseline}}
 		switch spec.Baseline {
 		case "vonmises", "vonmises2", "gaussian":
 			c.Compare.Starts = rec.Compare.Starts
@@ -57,7 +58,7 @@ func unitSettings(rec *train.Config, spec train.ModelSpec) ([]byte, error) {
 	c.Recordings = nil
 	// Acuity and which neurons the summaries keep are decided after the
 	// units, from their scores.
-	c.Acuity = train.AcuityConfig{}
+	c.Acuity = settings.AcuityConfig{}
 	c.Scores.MinReliability = 0
 	c.Train.CheckpointEvery = 0
 	c.Data.Responses, c.Data.Stimulus, c.Data.Condition, c.Data.Block = "", "", "", ""
@@ -77,7 +78,7 @@ func (p *Plan) checkDone(u Unit, files []format.FileID) (*comparefolder.FoldResu
 	if err != nil {
 		return nil, err
 	}
-	if diff := p.fingerprint(u, files).Mismatch(r.Fingerprint, train.DiffSettings); len(diff) > 0 {
+	if diff := p.fingerprint(u, files).Mismatch(r.Fingerprint, settings.DiffSettings); len(diff) > 0 {
 		return nil, &StaleError{Dir: p.Dir(), Unit: u.ID, Diff: diff}
 	}
 	return r, nil

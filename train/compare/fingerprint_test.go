@@ -11,8 +11,8 @@ import (
 
 	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/data/synth"
-	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder/comparefolder"
+	"github.com/strialab/stria/train/settings"
 )
 
 const fpConfig = `seed: 1
@@ -40,7 +40,7 @@ func TestUnitSettings(t *testing.T) {
 			}
 			src = strings.Replace(src, old, new, 1)
 		}
-		cfg, err := train.ParseConfig([]byte(src), "c.yaml")
+		cfg, err := settings.ParseConfig([]byte(src), "c.yaml")
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -97,7 +97,7 @@ func TestChangedDataRefused(t *testing.T) {
 	src = strings.Replace(src, "split: {folds: 2, validation_fraction: 0.2, test_fraction: 0.2}", "split: {folds: 2, keep_blocks: false}", 1)
 	cfgPath := filepath.Join(dir, "c.yaml")
 	os.WriteFile(cfgPath, []byte(src+"output: run\n"), 0o644)
-	cfg, err := train.LoadConfig(cfgPath)
+	cfg, err := settings.LoadConfig(cfgPath)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -15,6 +15,7 @@ import (
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
 	"github.com/strialab/stria/train/runfolder/comparefolder"
+	"github.com/strialab/stria/train/settings"
 )
 
 // RecordingPlan is one recording of a comparison plan with its own config
@@ -23,7 +24,7 @@ type RecordingPlan struct {
 	// Name is empty for the single recording of a config without a
 	// recordings list.
 	Name string
-	Cfg  *train.Config
+	Cfg  *settings.Config
 	// Specs are the models compared on it.
 	Specs []train.ModelSpec
 }
@@ -38,7 +39,7 @@ type Unit struct {
 // Plan is the whole comparison: recordings, models and folds, and the
 // units they make. Its folder is Cfg.Compare.Output.
 type Plan struct {
-	Cfg        *train.Config
+	Cfg        *settings.Config
 	Recordings []RecordingPlan
 	Units      []Unit
 
@@ -50,7 +51,7 @@ type Plan struct {
 
 // NewPlan expands the config's recordings, model specs and folds into
 // units, in a fixed order.
-func NewPlan(c *train.Config) (*Plan, error) {
+func NewPlan(c *settings.Config) (*Plan, error) {
 	p := &Plan{Cfg: c}
 	if len(c.Recordings) == 0 {
 		p.Recordings = []RecordingPlan{{Cfg: c}}
@@ -93,7 +94,7 @@ func NewPlan(c *train.Config) (*Plan, error) {
 
 // expandRecordings turns the recordings list into recordings with their
 // own configs, expanding globs.
-func expandRecordings(c *train.Config) ([]RecordingPlan, error) {
+func expandRecordings(c *settings.Config) ([]RecordingPlan, error) {
 	var out []RecordingPlan
 	seen := map[string]bool{}
 	for i, rc := range c.Recordings {

@@ -8,13 +8,14 @@ import (
 	"strings"
 
 	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/settings"
 )
 
 // gridKeys are the settings a grid may vary (channels, kernel and stride
 // apply to the first conv layer).
 var gridKeys = []string{"readout_l2", "learning_rate", "weight_decay", "channels", "kernel", "stride"}
 
-func defaultBaselines(ax train.AxisConfig) []string {
+func defaultBaselines(ax settings.AxisConfig) []string {
 	if !ax.Periodic {
 		return []string{"condmean", "gaussian", "smoothlinear"}
 	}
@@ -27,11 +28,11 @@ func defaultBaselines(ax train.AxisConfig) []string {
 // Specs expands the compare section of c into model specs, encoders
 // first (grids expanded, keys in sorted order), baselines last. Errors name
 // the field.
-func Specs(c *train.Config) ([]train.ModelSpec, error) {
+func Specs(c *settings.Config) ([]train.ModelSpec, error) {
 	var specs []train.ModelSpec
 	encs := c.Compare.Encoders
 	if len(encs) == 0 {
-		encs = []train.EncoderSpec{{Name: "encoder"}}
+		encs = []settings.EncoderSpec{{Name: "encoder"}}
 	}
 	seen := map[string]bool{}
 	add := func(s train.ModelSpec) error {
@@ -99,7 +100,7 @@ func Specs(c *train.Config) ([]train.ModelSpec, error) {
 				parts = append(parts, k+"="+strconv.FormatFloat(v, 'g', -1, 64))
 				switch k {
 				case "readout_l2":
-					cfg.Model.ReadoutL2 = train.Penalty{Value: v}
+					cfg.Model.ReadoutL2 = settings.Penalty{Value: v}
 				case "learning_rate":
 					cfg.Train.LearningRate = v
 				case "weight_decay":

@@ -7,7 +7,7 @@ import (
 )
 
 // Fingerprint is what the numbers of one comparison unit depend on: the
-// settings that matter to it (YAML, from train.Config.NumericSettings with
+// settings that matter to it (YAML, from settings.Config.NumericSettings with
 // what cannot change the unit's numbers blanked) and the identity of the
 // recording's files. A unit's result is reused only by a comparison whose
 // fingerprint for it is the same.
@@ -19,7 +19,7 @@ type Fingerprint struct {
 // Mismatch lists how the fingerprint have (of a result on disk) differs
 // from want (of the comparison run now), one line per difference: the
 // settings as "key: old -> new" (diff gives those lines; see
-// train.DiffSettings), the files as "FILE: size ...; content differs". A
+// settings.DiffSettings), the files as "FILE: size ...; content differs". A
 // file counts as the same when its size and content hash are (its path and
 // modification time may differ: a copy or a touched file gives the same
 // numbers); without hashes size and modification time decide. It returns

@@ -15,6 +15,7 @@ import (
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/nn"
 	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/settings"
 )
 
 // Run folder file names.
@@ -58,7 +59,7 @@ type Manifest struct {
 	Axis     AxisInfo          `json:"axis"`
 	Layers   []LayerInfo       `json:"layers"`
 	Output   nn.Activation     `json:"output"`
-	Loss     train.Loss        `json:"loss"`
+	Loss     settings.Loss     `json:"loss"`
 	Neurons  int               `json:"neurons"`
 	Features int               `json:"features"`
 	Arrays   map[string]Array  `json:"arrays"`
@@ -70,15 +71,15 @@ type Manifest struct {
 
 // AxisInfo is the stimulus axis as recorded in a run or comparison.
 type AxisInfo struct {
-	Name     string         `json:"name"`
-	Unit     string         `json:"unit"`
-	Min      float64        `json:"min"`
-	Max      float64        `json:"max"`
-	Periodic bool           `json:"periodic"`
-	Bins     int            `json:"bins"`
-	Encoding train.Encoding `json:"encoding"`
-	Edges    []float64      `json:"bin_edges"`
-	Centers  []float64      `json:"bin_centers"`
+	Name     string            `json:"name"`
+	Unit     string            `json:"unit"`
+	Min      float64           `json:"min"`
+	Max      float64           `json:"max"`
+	Periodic bool              `json:"periodic"`
+	Bins     int               `json:"bins"`
+	Encoding settings.Encoding `json:"encoding"`
+	Edges    []float64         `json:"bin_edges"`
+	Centers  []float64         `json:"bin_centers"`
 	// Values is the stimulus value of each condition (train.Prepared.Values):
 	// the bin centres on an axis centred on a discrete stimulus, the trials'
 	// mean values where bins pool several values. Absent in folders of
@@ -601,7 +602,7 @@ type PenaltyInfo struct {
 	Q3     Num `json:"q3"`
 }
 
-func penaltyInfo(setting train.Penalty, chosen []float64) PenaltyInfo {
+func penaltyInfo(setting settings.Penalty, chosen []float64) PenaltyInfo {
 	pi := PenaltyInfo{Setting: setting.String(), Chosen: Num(setting.Value), Q1: Num(setting.Value), Q3: Num(setting.Value)}
 	if chosen != nil {
 		s := eval.Summarize(chosen)
@@ -657,8 +658,8 @@ func ReadSettings(dir string) ([]byte, error) {
 
 // LoadSettings reads and checks settings.yaml of a run or comparison
 // folder; relative data paths in it are relative to the folder.
-func LoadSettings(dir string) (*train.Config, error) {
-	return train.LoadConfig(filepath.Join(dir, FileSettings))
+func LoadSettings(dir string) (*settings.Config, error) {
+	return settings.LoadConfig(filepath.Join(dir, FileSettings))
 }
 
 // Model is a trained encoder loaded back from a run folder, with its
@@ -694,7 +695,7 @@ func LoadModel(dir string) (*Model, error) {
 		return nil, fmt.Errorf("%s: no layers, bins or neurons", path)
 	}
 	net := nn.NewNet(shape)
-	m := &Model{Dir: dir, Manifest: *mf, Model: &train.Model{Net: net, Axis: mf.Axis.DataAxis(), Soft: mf.Axis.Encoding == train.Soft}}
+	m := &Model{Dir: dir, Manifest: *mf, Model: &train.Model{Net: net, Axis: mf.Axis.DataAxis(), Soft: mf.Axis.Encoding == settings.Soft}}
 	read := func(name string, want int) ([]float64, error) {
 		a, ok := mf.Arrays[name]
 		if !ok {

@@ -19,6 +19,7 @@ import (
 	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/settings"
 )
 
 // oddNames are neuron and model names that a hand-made CSV writer gets
@@ -248,11 +249,11 @@ func smallFit(t *testing.T) (*train.Prepared, *train.Fitted, []eval.Scores) {
 	for i := 0; i < rec.Y.Rows; i++ {
 		rec.Y.Row(i)[0] = 2
 	}
-	cfg := train.Defaults()
+	cfg := settings.Defaults()
 	cfg.Data.Responses = "synthetic"
-	cfg.Axis = train.AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 30, Encoding: train.OneHot}
+	cfg.Axis = settings.AxisConfig{Name: "heading", Unit: "deg", Min: 0, Max: 360, Periodic: true, BinWidth: 30, Encoding: settings.OneHot}
 	cfg.Split.KeepBlocks = false
-	cfg.Model.Layers = []train.LayerConfig{{Channels: 2, Kernel: 3, Stride: 1}}
+	cfg.Model.Layers = []settings.LayerConfig{{Channels: 2, Kernel: 3, Stride: 1}}
 	cfg.Train.MaxEpochs, cfg.Train.Patience = 4, 4
 	if err := cfg.Validate(); err != nil {
 		t.Fatal(err)

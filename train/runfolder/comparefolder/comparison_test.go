@@ -16,7 +16,7 @@ import (
 
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/eval/tuning"
-	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/settings"
 )
 
 // fileModes returns the mode of every file and folder under dir.
@@ -192,7 +192,7 @@ func sampleComparison(n, nb int) *ComparisonFolder {
 	}
 	c.Info = ComparisonInfo{Models: models, Encoders: models[:1], Folds: 2, Neurons: n, Excluded: map[string]string{"1": excluded[1]},
 		Summary: c.Result.Summary, Winner: c.Result.Winner, Pairs: NewPairInfo(c.Result.Pairs), PValues: WilcoxonNote,
-		Cautions: []string{"c"}, Warnings: []string{"w, \"quoted\""}, Axis: runfolder.AxisInfo{Name: "heading", Unit: "deg", Max: 360, Periodic: true, Bins: nb, Encoding: train.OneHot, Centers: centers},
+		Cautions: []string{"c"}, Warnings: []string{"w, \"quoted\""}, Axis: runfolder.AxisInfo{Name: "heading", Unit: "deg", Max: 360, Periodic: true, Bins: nb, Encoding: settings.OneHot, Centers: centers},
 		Epochs: map[string][]int{models[0]: {3, 4}}, Recordings: []string{"/data/r.npy"}}
 	return c
 }

@@ -1,4 +1,4 @@
-package train
+package settings
 
 import (
 	"strings"
@@ -18,14 +18,14 @@ func TestNumericSettings(t *testing.T) {
 		t.Fatal(err)
 	}
 	sb, _ := b.NumericSettings()
-	if SettingsHash(sa) != SettingsHash(sb) {
+	if Hash(sa) != Hash(sb) {
 		t.Error("output folders or the thread count changed the settings hash")
 	}
 	b.Model.ReadoutL2 = Penalty{Value: 100}
 	b.Seed = 2
 	b.Model.Layers = append(b.Model.Layers, LayerConfig{Channels: 2, Kernel: 3, Stride: 1})
 	sb, _ = b.NumericSettings()
-	if SettingsHash(sa) == SettingsHash(sb) {
+	if Hash(sa) == Hash(sb) {
 		t.Fatal("a changed penalty and seed kept the hash")
 	}
 	diff, err := DiffSettings(sa, sb)

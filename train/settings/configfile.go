@@ -1,4 +1,4 @@
-package train
+package settings
 
 import (
 	"bytes"
@@ -239,7 +239,7 @@ func keyAt(keys []yamlKey, n int) string {
 }
 
 func sectionOf(typ string) string {
-	switch strings.TrimPrefix(typ, "train.") {
+	switch strings.TrimPrefix(typ, "settings.") {
 	case "DataConfig":
 		return "data"
 	case "AxisConfig":

@@ -1,4 +1,4 @@
-package train
+package settings
 
 import (
 	"crypto/sha256"
@@ -23,8 +23,8 @@ func (c *Config) NumericSettings() ([]byte, error) {
 	return d.Marshal()
 }
 
-// SettingsHash returns the hex SHA-256 of settings (from NumericSettings).
-func SettingsHash(settings []byte) string {
+// Hash returns the hex SHA-256 of settings (from NumericSettings).
+func Hash(settings []byte) string {
 	h := sha256.Sum256(settings)
 	return hex.EncodeToString(h[:])
 }

@@ -1,4 +1,4 @@
-package train
+package settings
 
 // CompareConfig is the compare section of a config: which models to
 // cross-validate.

@@ -1,4 +1,4 @@
-package train
+package settings
 
 import (
 	"os"
@@ -81,7 +81,7 @@ func TestValidateRefusesBadSettings(t *testing.T) {
 }
 
 func TestConfigExamplesParse(t *testing.T) {
-	files, _ := filepath.Glob("../configs/*.yaml")
+	files, _ := filepath.Glob("../../configs/*.yaml")
 	if len(files) == 0 {
 		t.Fatal("no example configs")
 	}
