@@ -6,8 +6,8 @@
 // folds. It reads recordings through package data and writes no files;
 // the projected solvers live in train/projection (they read condition
 // statistics, not a prepared recording, and plug into this package's
-// epoch loop), the on-disk format of run and comparison folders in
-// train/runfolder, comparisons in train/compare, figures and reports in
+// epoch loop), the on-disk format of run, comparison and acuity folders
+// in train/runfolder and its sub-packages, comparisons in train/compare, figures and reports in
 // train/export.
 //
 // Conventions:
