@@ -109,4 +109,3 @@ func Discrete(s DiscreteConfig) (*data.Recording, []float64) {
 	}
 	return rec, truth
 }
-
