@@ -16,7 +16,7 @@ import (
 // (eval/acuity; eval/methods.md §10-§11). Information is in 1/(axis
 // unit)^2, thresholds and decoding errors in axis units.
 type AcuityResult struct {
-	Axis acuity.Axis
+	Axis acuity.Conditions
 	// Pairs are the neighbouring pairs of conditions, with their trials.
 	Pairs    []acuity.Pair
 	TA, TB   []int
@@ -56,8 +56,8 @@ var AcuityCautions = []string{acuity.CautionTrials, acuity.CautionExtrapolation,
 
 // AcuityAxis is the stimulus axis of a prepared recording as eval/acuity
 // wants it: the bin centres, and the period on a periodic axis.
-func AcuityAxis(p *Prepared) acuity.Axis {
-	ax := acuity.Axis{Values: p.Axis.Centers()}
+func AcuityAxis(p *Prepared) acuity.Conditions {
+	ax := acuity.Conditions{Values: p.Axis.Centers()}
 	if p.Axis.Periodic {
 		ax.Period = p.Axis.Max - p.Axis.Min
 	}

@@ -5,24 +5,24 @@ import (
 	"math"
 )
 
-// Axis is the stimulus axis of the conditions: Values[b] is the stimulus value
+// Conditions are the stimulus values of the conditions on their axis: Values[b] is the stimulus value
 // of condition b in axis units (degrees, cm, Hz, ...), strictly increasing.
 // Period > 0 marks a periodic axis (360 for direction, 180 for orientation)
 // whose values lie within one period (Values[B-1] - Values[0] < Period);
 // Period 0 marks a bounded axis.
-type Axis struct {
+type Conditions struct {
 	Values []float64
 	Period float64
 }
 
 // Periodic reports whether the axis wraps around.
-func (ax Axis) Periodic() bool { return ax.Period > 0 }
+func (ax Conditions) Periodic() bool { return ax.Period > 0 }
 
 // NBins returns the number of conditions B.
-func (ax Axis) NBins() int { return len(ax.Values) }
+func (ax Conditions) NBins() int { return len(ax.Values) }
 
 // check validates the axis. It returns an error naming the offending value.
-func (ax Axis) check() error {
+func (ax Conditions) check() error {
 	B := len(ax.Values)
 	if B < 2 {
 		return fmt.Errorf("acuity: axis has %d conditions, need at least 2", B)
@@ -46,7 +46,7 @@ func (ax Axis) check() error {
 
 // Diff returns the signed difference x - y in axis units. On a periodic axis
 // it is the shortest signed difference, in [-Period/2, Period/2).
-func (ax Axis) Diff(x, y float64) float64 {
+func (ax Conditions) Diff(x, y float64) float64 {
 	d := x - y
 	if !ax.Periodic() {
 		return d
@@ -71,7 +71,7 @@ type Pair struct {
 // Pairs returns the neighbouring pairs of the axis in order: (0,1), (1,2),
 // ..., (B-2,B-1), and on a periodic axis last the wrap pair (B-1,0). The axis
 // must be valid (see the package documentation); Pairs returns nil otherwise.
-func (ax Axis) Pairs() []Pair {
+func (ax Conditions) Pairs() []Pair {
 	if ax.check() != nil {
 		return nil
 	}

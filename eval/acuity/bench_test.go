@@ -20,14 +20,14 @@ var (
 	benchOnce  sync.Once
 	benchY     []float32
 	benchCond  []int
-	benchAxis  Axis
+	benchAxis  Conditions
 	benchFold  []Fold
 	benchPredF [][]float64
 )
 
 func benchData() {
 	rng := rand.New(rand.NewPCG(2026, 12))
-	benchAxis = Axis{Values: make([]float64, benchB), Period: 360}
+	benchAxis = Conditions{Values: make([]float64, benchB), Period: 360}
 	for b := range benchAxis.Values {
 		benchAxis.Values[b] = float64(b) * 360 / benchB
 	}

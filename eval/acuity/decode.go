@@ -683,7 +683,7 @@ type DecodeSummary struct {
 	Confusion []int
 	// Trials lists the decoded trials in ascending order and Err their
 	// decoding error Values[decoded] - Values[true] in axis units (on a
-	// periodic axis the shortest signed difference, Axis.Diff).
+	// periodic axis the shortest signed difference, Conditions.Diff).
 	Trials []int
 	Err    []float64
 	// Accuracy is the fraction decoded exactly; MAE the mean absolute error
@@ -697,7 +697,7 @@ type DecodeSummary struct {
 // decoded, as written by Decoder.Decode) with cond on the axis ax. Errors: an
 // invalid axis, a condition or decoded value out of range, no decoded trial.
 // Panics if len(decoded) != len(cond).
-func Summarize(ax Axis, cond, decoded []int) (DecodeSummary, error) {
+func Summarize(ax Conditions, cond, decoded []int) (DecodeSummary, error) {
 	if len(decoded) != len(cond) {
 		panic("acuity: Summarize: len(decoded) != len(cond)")
 	}
@@ -759,7 +759,7 @@ type DecodeCurve struct {
 // increasing, at most n), repeats random orders drawn from rng, and
 // summarises each run on ax (the number of conditions is ax.NBins()).
 // Shapes and errors are those of Decode and Summarize.
-func (d *Decoder) VsSize(y []float32, n int, cond []int, ax Axis, folds []Fold, sizes []int, repeats int, rng *rand.Rand) (*DecodeCurve, error) {
+func (d *Decoder) VsSize(y []float32, n int, cond []int, ax Conditions, folds []Fold, sizes []int, repeats int, rng *rand.Rand) (*DecodeCurve, error) {
 	if err := ax.check(); err != nil {
 		return nil, err
 	}

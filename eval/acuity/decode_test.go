@@ -76,7 +76,7 @@ func TestPoissonDecoderCramerRao(t *testing.T) {
 	}
 	const B = 360
 	pop := newVMPop(200, 0.5, 8, 2)
-	ax := Axis{Values: make([]float64, B), Period: 360}
+	ax := Conditions{Values: make([]float64, B), Period: 360}
 	for b := range ax.Values {
 		ax.Values[b] = float64(b)
 	}
@@ -134,7 +134,7 @@ func TestGaussianDecoderCramerRao(t *testing.T) {
 	}
 	const B = 360
 	pop := newVMPop(150, 0, 6, 2)
-	ax := Axis{Values: make([]float64, B), Period: 360}
+	ax := Conditions{Values: make([]float64, B), Period: 360}
 	for b := range ax.Values {
 		ax.Values[b] = float64(b)
 	}
@@ -200,7 +200,7 @@ func TestGaussianDecoderCramerRao(t *testing.T) {
 func TestSummarize(t *testing.T) {
 	cond := []int{0, 0, 7, 3, 4}
 	dec := []int{1, 7, 0, -1, 4}
-	per := Axis{Values: []float64{0, 45, 90, 135, 180, 225, 270, 315}, Period: 360}
+	per := Conditions{Values: []float64{0, 45, 90, 135, 180, 225, 270, 315}, Period: 360}
 	s, err := Summarize(per, cond, dec)
 	if err != nil {
 		t.Fatal(err)
@@ -219,7 +219,7 @@ func TestSummarize(t *testing.T) {
 	if math.Abs(s.SEM-11.25) > 1e-12 {
 		t.Errorf("got SEM %v want 11.25", s.SEM)
 	}
-	bnd := Axis{Values: per.Values}
+	bnd := Conditions{Values: per.Values}
 	s, _ = Summarize(bnd, cond, dec)
 	if s.Err[1] != 315 || s.Err[2] != -315 {
 		t.Errorf("bounded axis: got %v want 315, -315", s.Err[1:3])
@@ -227,7 +227,7 @@ func TestSummarize(t *testing.T) {
 }
 
 func TestAxisPairs(t *testing.T) {
-	ax := Axis{Values: []float64{-170, -90, 0, 90}, Period: 360}
+	ax := Conditions{Values: []float64{-170, -90, 0, 90}, Period: 360}
 	ps := ax.Pairs()
 	if len(ps) != 4 {
 		t.Fatalf("got %d pairs want 4", len(ps))
@@ -236,11 +236,11 @@ func TestAxisPairs(t *testing.T) {
 	if w := ps[3]; w.A != 3 || w.B != 0 || w.Ds != 100 || w.Stim != 140 {
 		t.Errorf("got wrap pair %+v want A 3 B 0 Ds 100 Stim 140", w)
 	}
-	ax = Axis{Values: []float64{0, 60, 120, 300}, Period: 360}
+	ax = Conditions{Values: []float64{0, 60, 120, 300}, Period: 360}
 	if w := ax.Pairs()[3]; w.Ds != 60 || w.Stim != 330 {
 		t.Errorf("got wrap pair %+v want Ds 60 Stim 330", w)
 	}
-	ax = Axis{Values: []float64{10, 100, 350}, Period: 360}
+	ax = Conditions{Values: []float64{10, 100, 350}, Period: 360}
 	// 350 -> 370: midpoint 360 wraps to 0... Values[0] is 10, so 360 stays in [10, 370).
 	if w := ax.Pairs()[2]; w.Ds != 20 || w.Stim != 360 {
 		t.Errorf("got wrap pair %+v want Ds 20 Stim 360", w)
@@ -249,7 +249,7 @@ func TestAxisPairs(t *testing.T) {
 
 // TestErrors: bad input gets an error naming what is wrong, never a panic.
 func TestErrors(t *testing.T) {
-	ax := Axis{Values: []float64{0, 1, 2}}
+	ax := Conditions{Values: []float64{0, 1, 2}}
 	y := make([]float32, 9*2)
 	for i := range y {
 		y[i] = float32(i % 7)
@@ -272,11 +272,11 @@ func TestErrors(t *testing.T) {
 		}, "trial 8 has condition 5"},
 		{"nan", func() error { _, err := LinearInfo(nan, 2, cond, ax, []int{1}); return err }, "trial 2, neuron 1 is NaN"},
 		{"axis_order", func() error {
-			_, err := LinearInfo(y, 2, cond, Axis{Values: []float64{0, 2, 1}}, []int{0})
+			_, err := LinearInfo(y, 2, cond, Conditions{Values: []float64{0, 2, 1}}, []int{0})
 			return err
 		}, "increase strictly"},
 		{"axis_span", func() error {
-			_, err := LinearInfo(y, 2, cond, Axis{Values: []float64{0, 90, 180}, Period: 180}, []int{0})
+			_, err := LinearInfo(y, 2, cond, Conditions{Values: []float64{0, 90, 180}, Period: 180}, []int{0})
 			return err
 		}, "not less than the period"},
 		{"sizes", func() error {
@@ -347,7 +347,7 @@ func TestDegenerateNeurons(t *testing.T) {
 		}
 		y[t*n+3] = 2
 	}
-	ax := Axis{Values: []float64{0, 1}}
+	ax := Conditions{Values: []float64{0, 1}}
 	all, err := LinearInfo(y, n, cond, ax, nil)
 	if err != nil {
 		t.Fatal(err)

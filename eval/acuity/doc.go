@@ -8,7 +8,7 @@
 //   - Responses y are trials x neurons, row-major float32 (as loaded from
 //     disk); all arithmetic is float64. cond[t] in 0..B-1 is the condition
 //     (bin) of trial t. Neuron subsets are lists of column indices of y.
-//   - The stimulus axis is an Axis: Values[b] is the stimulus of condition b
+//   - The stimulus axis is given as Conditions: Values[b] is the stimulus of condition b
 //     in axis units, strictly increasing; Period > 0 marks a periodic axis
 //     (all values within one period), 0 a bounded one.
 //   - Neighbouring pairs are (b, b+1), plus on a periodic axis the wrap pair

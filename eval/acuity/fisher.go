@@ -26,7 +26,7 @@ func MaxNeurons(ta, tb int) int { return ta + tb - 4 }
 // MaxNeurons(TA, TB), given the condition of each trial. About half of it is
 // a sensible largest size for InfoVsSize. Errors: an invalid axis, a condition
 // out of range, or a pair too small for even one neuron.
-func MaxSubset(cond []int, ax Axis) (int, error) {
+func MaxSubset(cond []int, ax Conditions) (int, error) {
 	if err := ax.check(); err != nil {
 		return 0, err
 	}
@@ -145,7 +145,7 @@ func (p PairInfo) Threshold() float64 { return Threshold(p.Info) }
 func (p PairInfo) ShuffledThreshold() float64 { return Threshold(p.Shuffled) }
 
 // LinearInfo returns the linear Fisher information of the neurons in subset
-// for every pair of neighbouring conditions (Axis.Pairs order).
+// for every pair of neighbouring conditions (Conditions.Pairs order).
 //
 // y holds the responses, trials x n row-major float32; cond[t] in 0..B-1 is
 // the condition of trial t, B = ax.NBins(). subset lists column indices of y
@@ -161,7 +161,7 @@ func (p PairInfo) ShuffledThreshold() float64 { return Threshold(p.Shuffled) }
 // information); a neuron that is a linear combination of others within a pair
 // (singular covariance). It panics if len(y) != len(cond)*n or a subset index
 // is out of range.
-func LinearInfo(y []float32, n int, cond []int, ax Axis, subset []int) ([]PairInfo, error) {
+func LinearInfo(y []float32, n int, cond []int, ax Conditions, subset []int) ([]PairInfo, error) {
 	if err := ax.check(); err != nil {
 		return nil, err
 	}
@@ -488,7 +488,7 @@ func (c *SizeCurve) PairMean(s int) []float64 {
 // Shapes, errors and panics are those of LinearInfo. Estimates near the limit
 // MaxNeurons are valid but very noisy (InfoSE grows like 1/sqrt(nu-N-3)); a
 // largest size of about half the limit is a sensible default.
-func InfoVsSize(y []float32, n int, cond []int, ax Axis, sizes []int, repeats int, rng *rand.Rand) (*SizeCurve, error) {
+func InfoVsSize(y []float32, n int, cond []int, ax Conditions, sizes []int, repeats int, rng *rand.Rand) (*SizeCurve, error) {
 	if err := ax.check(); err != nil {
 		return nil, err
 	}

@@ -27,7 +27,7 @@ func TestCorrectionPoissonCounts(t *testing.T) {
 		d := rb[i] - ra[i]
 		truth += d * d / ((ra[i] + rb[i]) / 2)
 	}
-	ax := Axis{Values: []float64{0, 1}}
+	ax := Conditions{Values: []float64{0, 1}}
 	y := make([]float32, 2*T*n)
 	cond := make([]int, 2*T)
 	sum, sum2 := 0.0, 0.0

@@ -63,7 +63,7 @@ func TestLDAScikitLearn(t *testing.T) {
 			}
 		}
 	}
-	ax := Axis{Values: ref.Values, Period: ref.Period}
+	ax := Conditions{Values: ref.Values, Period: ref.Period}
 	cols := make([]int, n)
 	for j := range cols {
 		cols[j] = j

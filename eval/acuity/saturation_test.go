@@ -35,12 +35,12 @@ func satPop(rng *rand.Rand, n, B, T int, a, eps, ds float64) (y []float32, cond 
 	return y, cond
 }
 
-func lineAxis(B int, ds float64) Axis {
+func lineAxis(B int, ds float64) Conditions {
 	v := make([]float64, B)
 	for b := range v {
 		v[b] = float64(b) * ds
 	}
-	return Axis{Values: v}
+	return Conditions{Values: v}
 }
 
 // TestSaturationRecovery: information against population size follows the

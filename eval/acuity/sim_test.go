@@ -146,7 +146,7 @@ func TestBiasCorrectionSimulation(t *testing.T) {
 			rng := rand.New(rand.NewPCG(uint64(ci)+10, 7))
 			g := newGaussPop(rng, c.n, 4, c.eps)
 			truth, truthSh := g.info(), g.shuffledInfo()
-			ax := Axis{Values: []float64{0, c.ds}}
+			ax := Conditions{Values: []float64{0, c.ds}}
 			var sumBC, sumBC2, sumNaive, sumSh float64
 			for k := 0; k < sets; k++ {
 				y, cond := g.sample(rng, nil, nil, 0, 0, c.ta)

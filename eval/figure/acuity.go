@@ -73,7 +73,7 @@ func addBand(p *plot.Plot, b Band, i int) []plot.Thumbnailer {
 // unit.
 //
 // Panics if a series' lengths differ.
-func AgainstStimulus(series []Band, ax AxisInfo, yLabel string) (*Image, error) {
+func AgainstStimulus(series []Band, ax AxisLabels, yLabel string) (*Image, error) {
 	p := newPlot(axisLabel(ax.Label, ax.Unit), yLabel)
 	for i, b := range series {
 		checkBand("AgainstStimulus", b)
@@ -246,7 +246,7 @@ func ConfusionShare(counts []int, B int) []float64 {
 //
 // Panics if len(counts) != len(centers)^2 or there are fewer than 2
 // conditions.
-func Confusion(counts []int, centers []float64, ax AxisInfo) (*Image, error) {
+func Confusion(counts []int, centers []float64, ax AxisLabels) (*Image, error) {
 	B := len(centers)
 	if B < 2 {
 		panic("figure: Confusion needs at least 2 conditions")

@@ -132,7 +132,7 @@ const (
 	wantSVGScatter = "237.6pt" // 3.3*72 [doc.go]
 )
 
-var heading = AxisInfo{Label: "heading", Unit: "deg", Periodic: true, Period: 360}
+var heading = AxisLabels{Label: "heading", Unit: "deg", Periodic: true, Period: 360}
 
 // checkFigure runs the content checks shared by all figures: sizes, labels,
 // number of series colours in SVG and PNG, and that the PNG is not blank.
@@ -334,7 +334,7 @@ func TestPreferred(t *testing.T) {
 func TestWrapCounts(t *testing.T) {
 	// Period 360, 4 bins of 90 deg: -10 -> 350 (bin 3), 370 -> 10 (bin 0),
 	// 360 -> 0 (bin 0), 90 -> bin 1, -1e-14 -> 0 (rounds to 360, wrapped) [computed by hand].
-	ax := AxisInfo{Periodic: true, Period: 360}
+	ax := AxisLabels{Periodic: true, Period: 360}
 	base := filepath.Join(t.TempDir(), "wrap")
 	if err := toFiles(base)(Preferred([]float64{-10, 370, 360, 90, -1e-14}, ax, 4)); err != nil {
 		t.Fatal(err)
@@ -371,7 +371,7 @@ func TestEmptyAndConstant(t *testing.T) {
 	if err := toFiles(filepath.Join(dir, "p"))(Preferred(nan, heading, 0)); err != nil {
 		t.Fatal(err)
 	}
-	if err := toFiles(filepath.Join(dir, "t"))(Tuning([]float64{0, 1}, nan, nan, []Curve{{Name: "m", X: []float64{0}, Y: []float64{math.NaN()}}}, AxisInfo{}, "rate (spikes/s)")); err != nil {
+	if err := toFiles(filepath.Join(dir, "t"))(Tuning([]float64{0, 1}, nan, nan, []Curve{{Name: "m", X: []float64{0}, Y: []float64{math.NaN()}}}, AxisLabels{}, "rate (spikes/s)")); err != nil {
 		t.Fatal(err)
 	}
 	if err := toFiles(filepath.Join(dir, "hs"))(Histograms(nil, nil, "CC_norm", 0)); err != nil {

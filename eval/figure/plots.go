@@ -12,15 +12,15 @@ import (
 	"gonum.org/v1/plot/vg/draw"
 )
 
-// AxisInfo describes the stimulus axis.
-type AxisInfo struct {
+// AxisLabels describes the stimulus axis.
+type AxisLabels struct {
 	Label    string  // e.g. "heading"; "stimulus" when empty
 	Unit     string  // e.g. "deg"; may be empty
 	Periodic bool    // the axis wraps around
 	Period   float64 // length of one period in axis units; used when Periodic
 }
 
-func (ax AxisInfo) periodic() bool { return ax.Periodic && ax.Period > 0 && !math.IsInf(ax.Period, 0) }
+func (ax AxisLabels) periodic() bool { return ax.Periodic && ax.Period > 0 && !math.IsInf(ax.Period, 0) }
 
 // Curve is one model curve for Tuning: Y[i] is the model's value at X[i].
 type Curve struct {
@@ -84,7 +84,7 @@ func addLines(p *plot.Plot, x, y []float64, st draw.LineStyle) *plotter.Line {
 // "ch 1" ... "ch C". The x axis is labelled "offset (unit)".
 //
 // Panics if channels < 1, k < 1 or len(filters) != channels*k.
-func Filters(filters []float64, channels, k int, binWidth float64, ax AxisInfo) (*Image, error) {
+func Filters(filters []float64, channels, k int, binWidth float64, ax AxisLabels) (*Image, error) {
 	if channels < 1 || k < 1 {
 		panic(fmt.Sprintf("figure: Filters with %d channels and %d taps", channels, k))
 	}
@@ -144,7 +144,7 @@ func TapOffsets(k int, binWidth float64) []float64 {
 // quarter periods. yLabel should carry the unit, e.g. "rate (spikes/s)".
 //
 // Panics if len(mean) or len(sem) != len(centers), or a curve's len(X) != len(Y).
-func Tuning(centers, mean, sem []float64, curves []Curve, ax AxisInfo, yLabel string) (*Image, error) {
+func Tuning(centers, mean, sem []float64, curves []Curve, ax AxisLabels, yLabel string) (*Image, error) {
 	if len(mean) != len(centers) || len(sem) != len(centers) {
 		panic(fmt.Sprintf("figure: Tuning lengths centers %d, mean %d, sem %d", len(centers), len(mean), len(sem)))
 	}
@@ -542,7 +542,7 @@ func ys(p plotter.XYs) []float64 {
 // [0, Period) and the bins span exactly 0..Period (ticks at quarter periods);
 // otherwise they span the finite values. Non-finite values are excluded and
 // counted in the legend. bins < 1 is taken as 24.
-func Preferred(preferred []float64, ax AxisInfo, bins int) (*Image, error) {
+func Preferred(preferred []float64, ax AxisLabels, bins int) (*Image, error) {
 	if bins < 1 {
 		bins = 24
 	}

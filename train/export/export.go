@@ -97,8 +97,8 @@ func (ex *Exported) add(name string, im *figure.Image, err error, caption string
 }
 
 // figAxis is the figure package's description of a run's axis.
-func figAxis(a runfolder.AxisInfo) figure.AxisInfo {
-	return figure.AxisInfo{Label: a.Name, Unit: a.Unit, Periodic: a.Periodic, Period: a.Max - a.Min}
+func figAxis(a runfolder.AxisInfo) figure.AxisLabels {
+	return figure.AxisLabels{Label: a.Name, Unit: a.Unit, Periodic: a.Periodic, Period: a.Max - a.Min}
 }
 
 // condData is the recording's condition means and standard errors, B x N.
