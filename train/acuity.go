@@ -54,9 +54,9 @@ type AcuityDecoding struct {
 // printed.
 var AcuityCautions = []string{acuity.CautionTrials, acuity.CautionExtrapolation, acuity.CautionDecoder}
 
-// AcuityAxis is the stimulus axis of a prepared recording as eval/acuity
+// AcuityConditions are the conditions of a prepared recording as eval/acuity
 // wants it: the bin centres, and the period on a periodic axis.
-func AcuityAxis(p *Prepared) acuity.Conditions {
+func AcuityConditions(p *Prepared) acuity.Conditions {
 	ax := acuity.Conditions{Values: p.Axis.Centers()}
 	if p.Axis.Periodic {
 		ax.Period = p.Axis.Max - p.Axis.Min
@@ -118,7 +118,7 @@ func Acuity(ctx context.Context, p *Prepared, enc *AcuityEncoder, progress Acuit
 			progress(fmt.Sprintf(format, a...))
 		}
 	}
-	ax := AcuityAxis(p)
+	ax := AcuityConditions(p)
 	n, T := p.Neurons(), len(p.Cond)
 	y := p.Rec.Y.Data
 	res := &AcuityResult{Axis: ax, Pairs: ax.Pairs(), Neurons: n, Trials: T, Seconds: map[string]float64{},

@@ -20,7 +20,9 @@ type AxisLabels struct {
 	Period   float64 // length of one period in axis units; used when Periodic
 }
 
-func (ax AxisLabels) periodic() bool { return ax.Periodic && ax.Period > 0 && !math.IsInf(ax.Period, 0) }
+func (ax AxisLabels) periodic() bool {
+	return ax.Periodic && ax.Period > 0 && !math.IsInf(ax.Period, 0)
+}
 
 // Curve is one model curve for Tuning: Y[i] is the model's value at X[i].
 type Curve struct {

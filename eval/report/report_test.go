@@ -21,7 +21,7 @@ import (
 func sampleReport(t testing.TB, dir string) (r *Report, nFig int) {
 	t.Helper()
 	rng := rand.New(rand.NewPCG(11, 12))
-	ax := figure.AxisInfo{Label: "heading", Unit: "deg", Periodic: true, Period: 360}
+	ax := figure.AxisLabels{Label: "heading", Unit: "deg", Periodic: true, Period: 360}
 	const C, K = 4, 9
 	filt := make([]float64, C*K)
 	for i := range filt {
