@@ -1,10 +1,8 @@
 package main
 
 import (
-	"encoding/json"
 	"fmt"
 	"os"
-	"os/exec"
 	"path/filepath"
 
 	"github.com/strialab/stria/train/runfolder/acuityfolder"
@@ -28,21 +26,10 @@ func timeAcuity(o options, r rec) error {
 		return err
 	}
 	os.RemoveAll(out)
-	self, err := os.Executable()
+	fmt.Println("\nstria acuity, default settings (information: 8 sizes x 20 subsets; lda and model decoders on 5 folds, 8 sizes x 3 subsets), child process:")
+	cr, err := inChild(o, "acuity", cfgPath, nil)
 	if err != nil {
 		return err
-	}
-	fmt.Println("\nstria acuity, default settings (information: 8 sizes x 20 subsets; lda and model decoders on 5 folds, 8 sizes x 3 subsets), child process:")
-	b, err := exec.Command(self, runnerFlag, o.stria, "acuity", "--quiet", "--config", cfgPath).Output()
-	if err != nil {
-		return fmt.Errorf("runner: %w", err)
-	}
-	var cr childResult
-	if err := json.Unmarshal(b, &cr); err != nil {
-		return fmt.Errorf("runner output %q: %w", b, err)
-	}
-	if cr.Err != "" {
-		return fmt.Errorf("stria acuity %s: %s\n%s", cfgPath, cr.Err, cr.Stderr)
 	}
 	f, err := acuityfolder.ReadAcuity(out)
 	if err != nil {

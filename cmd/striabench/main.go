@@ -402,25 +402,13 @@ func timeFit(o options, r rec, solver, tag string, repeats int) (fitResult, erro
 	var walls, rss []float64
 	for i := 0; i < max(1, repeats); i++ {
 		os.RemoveAll(out)
-		self, err := os.Executable()
+		var env []string
+		if solver == "adam" && o.adamTimeout > 0 {
+			env = append(env, "STRIABENCH_TIMEOUT="+o.adamTimeout.String())
+		}
+		cr, err := inChild(o, "fit", cfgPath, env)
 		if err != nil {
 			return res, err
-		}
-		cmd := exec.Command(self, runnerFlag, o.stria, "fit", "--quiet", "--config", cfgPath)
-		cmd.Env = os.Environ()
-		if solver == "adam" && o.adamTimeout > 0 {
-			cmd.Env = append(cmd.Env, "STRIABENCH_TIMEOUT="+o.adamTimeout.String())
-		}
-		b, err := cmd.Output()
-		if err != nil {
-			return res, fmt.Errorf("runner: %w", err)
-		}
-		var cr childResult
-		if err := json.Unmarshal(b, &cr); err != nil {
-			return res, fmt.Errorf("runner output %q: %w", b, err)
-		}
-		if cr.Err != "" {
-			return res, fmt.Errorf("stria fit %s: %s\n%s", cfgPath, cr.Err, cr.Stderr)
 		}
 		walls = append(walls, cr.Wall)
 		rss = append(rss, cr.MaxRSS)
@@ -495,21 +483,10 @@ func timeCompare(o options, r rec) error {
 		return err
 	}
 	os.RemoveAll(out)
-	self, err := os.Executable()
+	fmt.Println("\nstria compare, 5 folds, the projected encoder and the default baselines (condmean, vonmises, vonmises2, smoothlinear), child process:")
+	cr, err := inChild(o, "compare", cfgPath, nil)
 	if err != nil {
 		return err
-	}
-	fmt.Println("\nstria compare, 5 folds, the projected encoder and the default baselines (condmean, vonmises, vonmises2, smoothlinear), child process:")
-	b, err := exec.Command(self, runnerFlag, o.stria, "compare", "--quiet", "--config", cfgPath).Output()
-	if err != nil {
-		return fmt.Errorf("runner: %w", err)
-	}
-	var cr childResult
-	if err := json.Unmarshal(b, &cr); err != nil {
-		return fmt.Errorf("runner output %q: %w", b, err)
-	}
-	if cr.Err != "" {
-		return fmt.Errorf("stria compare %s: %s\n%s", cfgPath, cr.Err, cr.Stderr)
 	}
 	matMB := float64(r.neurons) * float64(r.trials) * 4 / 1e6
 	fmt.Printf("  wall %.1f s (target <= 60), peak resident memory %.0f MB = %.2f x the float32 matrix\n", cr.Wall, cr.MaxRSS/1e6, cr.MaxRSS/1e6/matMB)
@@ -524,4 +501,29 @@ func timeCompare(o options, r rec) error {
 		os.RemoveAll(out)
 	}
 	return nil
+}
+
+// inChild runs `stria COMMAND --quiet --config cfgPath` through the runner
+// (a child process whose peak memory is its own; env is added to the
+// environment) and returns what the runner measured, or the command's
+// error with its stderr.
+func inChild(o options, command, cfgPath string, env []string) (childResult, error) {
+	var cr childResult
+	self, err := os.Executable()
+	if err != nil {
+		return cr, err
+	}
+	cmd := exec.Command(self, runnerFlag, o.stria, command, "--quiet", "--config", cfgPath)
+	cmd.Env = append(os.Environ(), env...)
+	b, err := cmd.Output()
+	if err != nil {
+		return cr, fmt.Errorf("runner: %w", err)
+	}
+	if err := json.Unmarshal(b, &cr); err != nil {
+		return cr, fmt.Errorf("runner output %q: %w", b, err)
+	}
+	if cr.Err != "" {
+		return cr, fmt.Errorf("stria %s %s: %s\n%s", command, cfgPath, cr.Err, cr.Stderr)
+	}
+	return cr, nil
 }
