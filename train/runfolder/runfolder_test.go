@@ -3,11 +3,8 @@ package runfolder
 import (
 	"bytes"
 	"context"
-	"encoding/csv"
-	"encoding/json"
 	"errors"
 	"io"
-	"io/fs"
 	"math"
 	"os"
 	"path/filepath"
@@ -19,109 +16,13 @@ import (
 	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/runfolder/foldertest"
 	"github.com/strialab/stria/train/settings"
 )
 
 // oddNames are neuron and model names that a hand-made CSV writer gets
 // wrong: commas, quotes, newlines, a leading space and non-ASCII text.
 var oddNames = []string{`cell "A"`, "a,b", "line\nbreak", " lead", "Zelle ü", "細胞", `"`, "", "tab\there", "crlf\r\nend", "plain"}
-
-// fileModes returns the mode of every file and folder under dir.
-func fileModes(t *testing.T, dir string) map[string]fs.FileMode {
-	t.Helper()
-	m := map[string]fs.FileMode{}
-	filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
-		if err != nil {
-			t.Fatal(err)
-		}
-		info, err := d.Info()
-		if err != nil {
-			t.Fatal(err)
-		}
-		rel, _ := filepath.Rel(dir, p)
-		m[rel] = info.Mode()
-		return nil
-	})
-	return m
-}
-
-// checkFolder checks modes (files 0644, folders 0755) and that no
-// temporary file is left.
-func checkFolder(t *testing.T, dir string) {
-	t.Helper()
-	for rel, mode := range fileModes(t, dir) {
-		if strings.Contains(rel, ".tmp") {
-			t.Errorf("temporary file %s left", rel)
-		}
-		want := FileMode
-		if mode.IsDir() {
-			want = FolderMode | fs.ModeDir
-		}
-		if rel != "." && mode != want {
-			t.Errorf("%s has mode %v, want %v", rel, mode, want)
-		}
-	}
-}
-
-// sameFolders compares every file of a and b byte for byte; complete.json
-// is compared without its time.
-func sameFolders(t *testing.T, a, b string) {
-	t.Helper()
-	files := func(dir string) []string {
-		var out []string
-		filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
-			if err == nil && !d.IsDir() {
-				rel, _ := filepath.Rel(dir, p)
-				out = append(out, rel)
-			}
-			return nil
-		})
-		return out
-	}
-	fa, fb := files(a), files(b)
-	if !slices.Equal(fa, fb) {
-		t.Fatalf("files differ:\n%v\n%v", fa, fb)
-	}
-	for _, rel := range fa {
-		x, _ := os.ReadFile(filepath.Join(a, rel))
-		y, _ := os.ReadFile(filepath.Join(b, rel))
-		if filepath.Base(rel) == FileComplete {
-			x, y = withoutTime(t, x), withoutTime(t, y)
-		}
-		if !bytes.Equal(x, y) {
-			t.Errorf("%s differs after reading back and writing again:\n%.300s\n---\n%.300s", rel, x, y)
-		}
-	}
-}
-
-func withoutTime(t *testing.T, b []byte) []byte {
-	var c Complete
-	if err := json.Unmarshal(b, &c); err != nil {
-		t.Fatal(err)
-	}
-	if _, err := time.Parse(time.RFC3339, c.Finished); err != nil {
-		t.Errorf("complete.json finished %q: %v", c.Finished, err)
-	}
-	c.Finished = ""
-	out, _ := json.Marshal(c)
-	return out
-}
-
-// readAllCSV parses a file with encoding/csv, failing the test if it does
-// not parse.
-func readAllCSV(t *testing.T, path string) [][]string {
-	t.Helper()
-	f, err := os.Open(path)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	rows, err := csv.NewReader(f).ReadAll()
-	if err != nil {
-		t.Fatalf("%s does not parse as CSV: %v", path, err)
-	}
-	return rows
-}
 
 func TestWriteFile(t *testing.T) {
 	dir := t.TempDir()
@@ -148,7 +49,7 @@ func TestWriteFile(t *testing.T) {
 	if err := WriteJSON(filepath.Join(dir, "sub", "deeper", "v.json"), map[string]Num{"nan": Num(math.NaN()), "one": 1}); err != nil {
 		t.Fatal(err)
 	}
-	checkFolder(t, dir)
+	foldertest.CheckFolder(t, dir, FileMode, FolderMode)
 	b, _ := os.ReadFile(filepath.Join(dir, "sub", "deeper", "v.json"))
 	if want := "{\n  \"nan\": null,\n  \"one\": 1\n}\n"; string(b) != want {
 		t.Errorf("JSON %q, want %q", b, want)
@@ -181,7 +82,7 @@ func TestNeuronScoresOddNames(t *testing.T) {
 		t.Fatal(err)
 	}
 	// encoding/csv reads every row with the names intact.
-	rows := readAllCSV(t, path)
+	rows := foldertest.ReadAllCSV(t, path)
 	if len(rows) != n+1 {
 		t.Fatalf("%d rows, want %d", len(rows), n+1)
 	}
@@ -296,7 +197,7 @@ func TestRunRoundTrip(t *testing.T) {
 	if err := Finish(dir, FormatRun); err != nil {
 		t.Fatal(err)
 	}
-	checkFolder(t, dir)
+	foldertest.CheckFolder(t, dir, FileMode, FolderMode)
 	if k, err := Open(dir); k != KindRun || err != nil {
 		t.Errorf("Open: %q %v, want %q", k, err, KindRun)
 	}
@@ -328,7 +229,7 @@ func TestRunRoundTrip(t *testing.T) {
 	if err := Finish(copyDir, FormatRun); err != nil {
 		t.Fatal(err)
 	}
-	sameFolders(t, dir, copyDir)
+	foldertest.SameFolders(t, dir, copyDir, FileComplete)
 	// Settings reload into a config.
 	if _, err := LoadSettings(dir); err != nil {
 		t.Errorf("settings.yaml: %v", err)
@@ -383,7 +284,7 @@ func TestResumeState(t *testing.T) {
 	if back.Epoch != 3 || len(back.Params) != 3 || !math.IsNaN(back.Params[1]) || string(back.Config) != "seed: 1\n" || back.Log[0].TrainLoss != 0.5 {
 		t.Errorf("resume state read back as %+v", back)
 	}
-	checkFolder(t, dir)
+	foldertest.CheckFolder(t, dir, FileMode, FolderMode)
 	if err := RemoveResumeState(dir); err != nil {
 		t.Fatal(err)
 	}

@@ -2,119 +2,20 @@ package comparefolder
 
 import (
 	"bytes"
-	"encoding/csv"
-	"encoding/json"
 	"github.com/strialab/stria/train/runfolder"
-	"io/fs"
 	"math"
 	"os"
 	"path/filepath"
 	"slices"
 	"strings"
 	"testing"
-	"time"
 
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/eval/tuning"
+	"github.com/strialab/stria/train/runfolder/foldertest"
 	"github.com/strialab/stria/train/settings"
 )
 
-// fileModes returns the mode of every file and folder under dir.
-func fileModes(t *testing.T, dir string) map[string]fs.FileMode {
-	t.Helper()
-	m := map[string]fs.FileMode{}
-	filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
-		if err != nil {
-			t.Fatal(err)
-		}
-		info, err := d.Info()
-		if err != nil {
-			t.Fatal(err)
-		}
-		rel, _ := filepath.Rel(dir, p)
-		m[rel] = info.Mode()
-		return nil
-	})
-	return m
-}
-
-// checkFolder checks modes (files 0644, folders 0755) and that no
-// temporary file is left.
-func checkFolder(t *testing.T, dir string) {
-	t.Helper()
-	for rel, mode := range fileModes(t, dir) {
-		if strings.Contains(rel, ".tmp") {
-			t.Errorf("temporary file %s left", rel)
-		}
-		want := runfolder.FileMode
-		if mode.IsDir() {
-			want = runfolder.FolderMode | fs.ModeDir
-		}
-		if rel != "." && mode != want {
-			t.Errorf("%s has mode %v, want %v", rel, mode, want)
-		}
-	}
-}
-
-// sameFolders compares every file of a and b byte for byte; complete.json
-// is compared without its time.
-func sameFolders(t *testing.T, a, b string) {
-	t.Helper()
-	files := func(dir string) []string {
-		var out []string
-		filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
-			if err == nil && !d.IsDir() {
-				rel, _ := filepath.Rel(dir, p)
-				out = append(out, rel)
-			}
-			return nil
-		})
-		return out
-	}
-	fa, fb := files(a), files(b)
-	if !slices.Equal(fa, fb) {
-		t.Fatalf("files differ:\n%v\n%v", fa, fb)
-	}
-	for _, rel := range fa {
-		x, _ := os.ReadFile(filepath.Join(a, rel))
-		y, _ := os.ReadFile(filepath.Join(b, rel))
-		if filepath.Base(rel) == runfolder.FileComplete {
-			x, y = withoutTime(t, x), withoutTime(t, y)
-		}
-		if !bytes.Equal(x, y) {
-			t.Errorf("%s differs after reading back and writing again:\n%.300s\n---\n%.300s", rel, x, y)
-		}
-	}
-}
-
-func withoutTime(t *testing.T, b []byte) []byte {
-	var c runfolder.Complete
-	if err := json.Unmarshal(b, &c); err != nil {
-		t.Fatal(err)
-	}
-	if _, err := time.Parse(time.RFC3339, c.Finished); err != nil {
-		t.Errorf("complete.json finished %q: %v", c.Finished, err)
-	}
-	c.Finished = ""
-	out, _ := json.Marshal(c)
-	return out
-}
-
-// readAllCSV parses a file with encoding/csv, failing the test if it does
-// not parse.
-func readAllCSV(t *testing.T, path string) [][]string {
-	t.Helper()
-	f, err := os.Open(path)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	rows, err := csv.NewReader(f).ReadAll()
-	if err != nil {
-		t.Fatalf("%s does not parse as CSV: %v", path, err)
-	}
-	return rows
-}
 func sampleComparison(n, nb int) *ComparisonFolder {
 	models := []string{`enc[channels=2,readout_l2=0.1]`, `base "q"`}
 	excluded := make([]string, n)
@@ -214,12 +115,12 @@ func TestComparisonRoundTrip(t *testing.T) {
 	if err := runfolder.Finish(dir, runfolder.FormatComparison); err != nil {
 		t.Fatal(err)
 	}
-	checkFolder(t, dir)
+	foldertest.CheckFolder(t, dir, runfolder.FileMode, runfolder.FolderMode)
 	if k, err := runfolder.Open(dir); k != runfolder.KindComparison || err != nil {
 		t.Errorf("Open: %q %v", k, err)
 	}
 	for _, f := range []string{FileFoldScores, FileFoldAverages, FileModelSummary, FileModelPairs, FileDescriptors} {
-		rows := readAllCSV(t, filepath.Join(dir, f))
+		rows := foldertest.ReadAllCSV(t, filepath.Join(dir, f))
 		if len(rows) < 2 {
 			t.Errorf("%s: %d rows", f, len(rows))
 		}
@@ -285,7 +186,7 @@ func TestComparisonRoundTrip(t *testing.T) {
 	if err := runfolder.Finish(again, runfolder.FormatComparison); err != nil {
 		t.Fatal(err)
 	}
-	sameFolders(t, dir, again)
+	foldertest.SameFolders(t, dir, again, runfolder.FileComplete)
 }
 
 func TestAcrossAndFoldResults(t *testing.T) {
@@ -295,7 +196,7 @@ func TestAcrossAndFoldResults(t *testing.T) {
 	if err := WriteAcross(dir, NewAcross([]*Comparison{a, b}, a)); err != nil {
 		t.Fatal(err)
 	}
-	rows := readAllCSV(t, filepath.Join(dir, FilePerRecording))
+	rows := foldertest.ReadAllCSV(t, filepath.Join(dir, FilePerRecording))
 	// 2 recordings x 2 models x 4 metrics, then 2 models x 4 metrics of
 	// the median over recordings.
 	if len(rows) != 1+16+8 || rows[1][0] != "m1,left" || rows[17][0] != "median of recordings" {
@@ -341,7 +242,7 @@ func TestAcrossAndFoldResults(t *testing.T) {
 	if _, err := ReadFoldResult(dir, "bad"); err == nil || !strings.Contains(err.Error(), "run its array task again") {
 		t.Errorf("a broken fold result: %v", err)
 	}
-	checkFolder(t, filepath.Join(dir, DirFoldResults, "m1"))
+	foldertest.CheckFolder(t, filepath.Join(dir, DirFoldResults, "m1"), runfolder.FileMode, runfolder.FolderMode)
 }
 
 func TestRemoveFoldResultTemps(t *testing.T) {
