@@ -13,6 +13,7 @@ import (
 
 	"gonum.org/v1/gonum/diff/fd"
 
+	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/nn"
 	"github.com/strialab/stria/train/projection"
@@ -222,6 +223,59 @@ func TestPoissonAutoPenalty(t *testing.T) {
 		f.ReadoutL2[0], len(f.Log), nanMedian(rf), nanMedian(cm), nanMedian(or), share)
 	if !(share > 0.2) {
 		t.Errorf("gap share %.3f, want > 0.2", share)
+	}
+}
+
+// TestPoissonConstantNeuronsLeftOut appends constant count columns (0 and
+// 2 spikes on every trial) to a spike-count recording and expects the
+// Poisson fast path with the automatic penalty to give the other neurons
+// the same held-out scores: constant neurons take no part in training, the
+// losses and the penalty grid's scale are means over the others (as
+// TestConstantNeuronsLeftOut for the other solvers).
+func TestPoissonConstantNeuronsLeftOut(t *testing.T) {
+	spec := synth.DiscreteConfig{Neurons: 30, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, Seed: 7}
+	edit := func(c *settings.Config) { c.Train.MaxEpochs = 60 }
+	p, _ := popPrepared(t, spec, edit)
+	f, err := Fit(context.Background(), p, Hooks{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	base := ScoreFitted(p, f)
+	q, _ := popPrepared(t, spec, edit)
+	y := q.Rec.Y
+	wide := data.NewMatrix(y.Rows, y.Cols+2)
+	for i := 0; i < y.Rows; i++ {
+		copy(wide.Row(i), y.Row(i))
+		wide.Row(i)[y.Cols], wide.Row(i)[y.Cols+1] = 0, 2
+	}
+	rec := *q.Rec
+	rec.Y = wide
+	rec.Neurons = nil
+	q2, err := PrepareRecording(q.Cfg, &rec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(q2.Report.Constant) != 2 {
+		t.Fatalf("constant neurons %v, want the 2 appended", q2.Report.Constant)
+	}
+	g, err := Fit(context.Background(), q2, Hooks{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if g.Solver != settings.SolverProjected {
+		t.Fatalf("solver %s, want projected", g.Solver)
+	}
+	wider := ScoreFitted(q2, g)
+	var worst float64
+	for j := range base {
+		worst = max(worst, math.Abs(base[j].TestR2-wider[j].TestR2))
+	}
+	t.Logf("largest change of a test R2: %.3g", worst)
+	if worst > 1e-9 {
+		t.Errorf("appending 2 constant neurons moved another neuron's test R2 by %.3g, want < 1e-9", worst)
+	}
+	if f.ReadoutL2[0] != g.ReadoutL2[0] {
+		t.Errorf("chosen readout_l2 %g with the constant neurons, %g without", g.ReadoutL2[0], f.ReadoutL2[0])
 	}
 }
 

@@ -15,6 +15,7 @@ func (p *Prepared) problem() projection.Problem {
 	return projection.Problem{
 		Train: p.TrainStats(), Val: p.ValStats(), Norm: p.Norm,
 		Penalty:    p.Cfg.Model.ReadoutL2.Value,
+		Excluded:   p.Report.Constant,
 		NeuronName: p.Rec.NeuronName,
 		BinLabel:   p.Axis.BinLabel,
 	}

@@ -73,6 +73,10 @@ type poissonProj struct {
 	vsq             []float64 // N: sum of squares over the validation trials
 	valTot          []float64 // N: total sum of squares about the validation mean
 	W, Wv, mu       float64
+	// skip marks the excluded neurons (N); nTrained is the number of the
+	// others, by which the losses are means.
+	skip     []bool
+	nTrained int
 	// muN, when not nil, is each neuron's penalty in place of mu (N).
 	muN   []float64
 	act   nn.Activation
@@ -278,6 +282,14 @@ func newPoissonProj(pr *Problem, net *nn.Net) (*poissonProj, error) {
 		}
 		pp.c[n] = invLink(net.Output, s/pp.W)
 	}
+	pp.skip = make([]bool, N)
+	for _, n := range pr.Excluded {
+		if n < 0 || n >= N {
+			panic(fmt.Sprintf("projection: excluded neuron %d of %d", n, N))
+		}
+		pp.skip[n] = true
+	}
+	pp.nTrained = N - len(pr.Excluded)
 	pp.nconv = len(net.Params) - N*F - N
 	nw := max(1, min(runtime.GOMAXPROCS(0), (N+63)/64))
 	for range nw {
@@ -810,7 +822,9 @@ func (pp *poissonProj) solveAll() {
 		go func(w *psWorker) {
 			defer wg.Done()
 			for n := lo; n < hi; n++ {
-				pp.solveNeuron(w, n)
+				if !pp.skip[n] {
+					pp.solveNeuron(w, n)
+				}
 			}
 		}(pp.workers[k])
 	}
@@ -835,7 +849,7 @@ func (pp *poissonProj) eval(net *nn.Net, grad, r2 bool) error {
 		obj += pp.objN[n]
 		data += pp.dataN[n]
 	}
-	scale := 1 / (pp.W * float64(N))
+	scale := 1 / (pp.W * float64(max(pp.nTrained, 1)))
 	pp.obj, pp.loss = obj*scale, data*scale
 	r := pp.r
 	if grad {
@@ -902,13 +916,15 @@ func (pp *poissonProj) valLoss(h []float64, r2 bool) {
 			quad += pp.vcnt[i] * f * f
 		}
 		pp.valN[n] = l
-		loss += l
+		if !pp.skip[n] {
+			loss += l
+		}
 		if r2 && pp.valTot[n] > 0 {
 			pp.r2[k] = 1 - (pp.vsq[n]-2*cross+quad)/pp.valTot[n]
 			k++
 		}
 	}
-	pp.val = loss / (pp.Wv * float64(N))
+	pp.val = loss / (pp.Wv * float64(max(pp.nTrained, 1)))
 	if r2 {
 		pp.vr2 = median(pp.r2[:k])
 	}
@@ -1131,10 +1147,14 @@ func (pp *poissonProj) l2Scale() float64 {
 		}
 		hh += pp.cnt[i] * s
 	}
-	for _, v := range pp.sum {
-		total += v
+	for n := 0; n < pp.N; n++ {
+		if !pp.skip[n] {
+			for _, v := range pp.sum[n*pp.Bt : (n+1)*pp.Bt] {
+				total += v
+			}
+		}
 	}
-	return hh / float64(pp.Bt) * total / (pp.W * float64(pp.N))
+	return hh / float64(pp.Bt) * total / (pp.W * float64(max(pp.nTrained, 1)))
 }
 
 // choosePenalty picks, at the net's current filters, the penalty of the
