@@ -304,7 +304,13 @@ func TestPoissonEdgeCases(t *testing.T) {
 	}
 	net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
 	net.InitConvs(rand.New(rand.NewPCG(1, 2)))
-	pp, err := projection.NewPoisson(p.problem(), net)
+	// The solver on the silent neuron: a Problem that does not exclude it.
+	pr := p.problem()
+	if !slices.Equal(pr.Excluded, []int{2}) {
+		t.Fatalf("excluded neurons %v, want the silent neuron 2", pr.Excluded)
+	}
+	pr.Excluded = nil
+	pp, err := projection.NewPoisson(pr, net)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -320,6 +326,22 @@ func TestPoissonEdgeCases(t *testing.T) {
 	for b := 0; b < p.NBins; b++ {
 		if r := curves[b*p.Neurons()+2]; !(r >= 0 && r < 1e-6) {
 			t.Errorf("silent neuron, bin %d: rate %g, want ~0", b, r)
+		}
+	}
+	// As fitted (the silent neuron is constant, so excluded): a zero
+	// readout at the mean-rate floor 1e-3 of the adam path (initReadout).
+	pp, err = projection.NewPoisson(p.problem(), net)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := pp.Evaluate(true, true); err != nil {
+		t.Fatal(err)
+	}
+	curves = pp.WriteReadout()
+	for b := 0; b < p.NBins; b++ {
+		if r := curves[b*p.Neurons()+2]; math.Abs(r-1e-3) > 1e-12 {
+			t.Errorf("excluded silent neuron, bin %d: rate %g, want 1e-3", b, r)
+			break
 		}
 	}
 
