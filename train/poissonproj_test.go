@@ -279,9 +279,10 @@ func TestPoissonConstantNeuronsLeftOut(t *testing.T) {
 	}
 }
 
-// TestPoissonEdgeCases: a silent neuron (all counts 0) gets a finite
-// readout with a rate near 0 and a finite gradient; a negative response
-// is refused with an error naming the neuron.
+// TestPoissonEdgeCases: a silent neuron (all counts 0) solved by the fast
+// path gets a finite readout with a rate near 0 and a finite gradient, and
+// as fitted (excluded, being constant) the adam path's mean-rate readout;
+// a negative response is refused with an error naming the neuron.
 func TestPoissonEdgeCases(t *testing.T) {
 	prep := func(edit func(y []float32)) (*Prepared, error) {
 		rec, _ := synth.Discrete(synth.DiscreteConfig{Neurons: 6, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, Seed: 5})
