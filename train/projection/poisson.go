@@ -115,7 +115,15 @@ type poissonProj struct {
 	uv          []float64 // N x Bv
 	r2          []float64
 	valN        []float64 // N: each neuron's validation loss (sum over trials)
-	workers     []*psWorker
+	// The validation rows of bins with training rows share their u with
+	// those: vOfRow (Bt) is the validation row of training row i (-1:
+	// none), vOnly the validation rows of bins without training rows.
+	// Each solve leaves, per neuron, the validation loss and the sums
+	// f.S and N f^2 of the R^2 over the shared rows in valS, crossS,
+	// quadS (N each), from the f and log f of its final readout.
+	vOfRow, vOnly       []int
+	valS, crossS, quadS []float64
+	workers             []*psWorker
 
 	obj, loss, val, vr2 float64
 	r2Every             int
@@ -240,6 +248,24 @@ func newPoissonProj(pr *Problem, net *nn.Net) (*poissonProj, error) {
 		pp.uv = make([]float64, N*Bv)
 		pp.r2 = make([]float64, N)
 		pp.valN = make([]float64, N)
+		pp.valS, pp.crossS, pp.quadS = make([]float64, N), make([]float64, N), make([]float64, N)
+		vOf := make(map[int]int, Bv)
+		for j, b := range pp.vrows {
+			vOf[b] = j
+		}
+		pp.vOfRow = make([]int, Bt)
+		for i, b := range pp.rows {
+			pp.vOfRow[i] = -1
+			if j, ok := vOf[b]; ok {
+				pp.vOfRow[i] = j
+				delete(vOf, b)
+			}
+		}
+		for j, b := range pp.vrows {
+			if _, ok := vOf[b]; ok {
+				pp.vOnly = append(pp.vOnly, j)
+			}
+		}
 		pp.r2Every = 1
 	}
 	pp.work = net.NewWork(B)
@@ -410,6 +436,9 @@ type psWorker struct {
 	// g, xd, xv, un, gn (Bt each): gradient rows, X d, X dir, the trial
 	// point's u (and scratch), its gradient rows.
 	g, xd, xv, un, gn []float64
+	// f, lf: f(u) and log(f(u) + eps) of the final readout's rows; fn,
+	// lfn: those of the trial point (Bt each).
+	f, lf, fn, lfn []float64
 }
 
 func newPSWorker(Bt int) *psWorker {
@@ -418,6 +447,7 @@ func newPSWorker(Bt int) *psWorker {
 		om: make([]float64, Bt), diag: make([]float64, p), res: make([]float64, p),
 		z: make([]float64, p), dir: make([]float64, p), hd: make([]float64, p),
 		g: make([]float64, Bt), xd: make([]float64, Bt), xv: make([]float64, Bt), un: make([]float64, Bt), gn: make([]float64, Bt),
+		f: make([]float64, Bt), lf: make([]float64, Bt), fn: make([]float64, Bt), lfn: make([]float64, Bt),
 		u:  make([]float64, Bt),
 		xs: make([]float64, Bt*p), hess: make([]float64, p*p), step: make([]float64, p),
 		grad: make([]float64, p), trial: make([]float64, p), try: make([]float64, p),
@@ -597,8 +627,11 @@ func (pp *poissonProj) solveNeuron(w *psWorker, n int) {
 	g := pp.g[n*Bt : (n+1)*Bt]
 	for i := 0; i < Bt; i++ {
 		f, d1, _ := linkTerms(pp.act, w.u[i])
-		g[i] = d1 * (pp.cnt[i] - sum[i]/(f+nn.PoissonEps))
+		fe := f + nn.PoissonEps
+		g[i] = d1 * (pp.cnt[i] - sum[i]/fe)
+		w.f[i], w.lf[i] = f, math.Log(fe)
 	}
+	pp.valShared(n, w.f[:Bt], w.lf[:Bt])
 	copy(pp.beta[n*Bt:n*Bt+r], x[:r])
 	pp.c[n] = x[r]
 	pp.objN[n], pp.dataN[n] = obj, data
@@ -755,6 +788,8 @@ func (pp *poissonProj) stepNeuron(w *psWorker, n, maxSteps int, tol float64, lin
 		obj, data = newData+mu*newPen, newData
 		copy(u, un)
 		copy(g, w.gn[:Bt])
+		copy(w.f[:Bt], w.fn[:Bt])
+		copy(w.lf[:Bt], w.lfn[:Bt])
 		taken++
 		if dec <= tol {
 			break
@@ -768,6 +803,7 @@ func (pp *poissonProj) stepNeuron(w *psWorker, n, maxSteps int, tol float64, lin
 	pp.c[n] = x[r]
 	pp.objN[n], pp.dataN[n] = obj, data
 	pp.iters[n], pp.cgIters[n] = 0, cg
+	pp.valShared(n, w.f[:Bt], w.lf[:Bt])
 	return true
 }
 
@@ -775,13 +811,15 @@ func (pp *poissonProj) stepNeuron(w *psWorker, n, maxSteps int, tol float64, lin
 // w.xd = X d: it writes u + t X d into w.un and the gradient rows there
 // into w.gn, and returns the data loss and ||beta||^2 of the point.
 func (pp *poissonProj) trialPoint(w *psWorker, sum []float64, t float64, x, d []float64, r int) (data, pen float64) {
-	un, gn := w.un[:pp.Bt], w.gn[:pp.Bt]
+	un, gn, fn, lfn := w.un[:pp.Bt], w.gn[:pp.Bt], w.fn[:pp.Bt], w.lfn[:pp.Bt]
 	for i, ui := range w.u[:pp.Bt] {
 		v := ui + t*w.xd[i]
 		un[i] = v
 		f, d1, _ := linkTerms(pp.act, v)
 		fe := f + nn.PoissonEps
-		data += pp.cnt[i]*f - sum[i]*math.Log(fe)
+		lf := math.Log(fe)
+		fn[i], lfn[i] = f, lf
+		data += pp.cnt[i]*f - sum[i]*lf
 		gn[i] = d1 * (pp.cnt[i] - sum[i]/fe)
 	}
 	for k := 0; k < r; k++ {
@@ -884,41 +922,71 @@ func (pp *poissonProj) eval(net *nn.Net, grad, r2 bool) error {
 	return nil
 }
 
+// valShared sets neuron n's validation sums over the validation rows that
+// share their bin with a training row, from f(u) and log(f(u) + eps) of
+// its training rows (f, lf, Bt each).
+func (pp *poissonProj) valShared(n int, f, lf []float64) {
+	if pp.Bv == 0 {
+		return
+	}
+	vs := pp.vsum[n*pp.Bv : (n+1)*pp.Bv]
+	var l, cross, quad float64
+	for i, j := range pp.vOfRow {
+		if j >= 0 {
+			l += pp.vcnt[j]*f[i] - vs[j]*lf[i]
+			cross += f[i] * vs[j]
+			quad += pp.vcnt[j] * f[i] * f[i]
+		}
+	}
+	pp.valS[n], pp.crossS[n], pp.quadS[n] = l, cross, quad
+}
+
 // valLoss computes the validation loss and, if r2, the median R^2 of the
-// current readouts (h: features of every bin).
+// readouts of the last solve (h: features of every bin): the sums over
+// validation rows shared with training rows come from the solve
+// (valShared); the other validation rows (bins without training trials)
+// are predicted here.
 func (pp *poissonProj) valLoss(h []float64, r2 bool) {
 	Bt, Bv, F, N, r := pp.Bt, pp.Bv, pp.F, pp.N, pp.r
-	// PhiV = H_v Qt^T (Bv x r), one product.
-	hv := pp.hv[:Bv*F]
-	for i, b := range pp.vrows {
-		copy(hv[i*F:(i+1)*F], h[b*F:(b+1)*F])
+	nv := len(pp.vOnly)
+	if nv > 0 {
+		// PhiV = H_v Qt^T (nv x r) for those rows, one product.
+		hv := pp.hv[:nv*F]
+		for i, j := range pp.vOnly {
+			b := pp.vrows[j]
+			copy(hv[i*F:(i+1)*F], h[b*F:(b+1)*F])
+		}
+		if r > 0 {
+			blas64.Gemm(blas.NoTrans, blas.Trans, 1,
+				blas64.General{Rows: nv, Cols: F, Stride: F, Data: hv},
+				blas64.General{Rows: r, Cols: F, Stride: F, Data: pp.qt[:r*F]},
+				0, blas64.General{Rows: nv, Cols: r, Stride: r, Data: pp.phiV[:nv*r]})
+			blas64.Gemm(blas.NoTrans, blas.Trans, 1,
+				blas64.General{Rows: N, Cols: r, Stride: Bt, Data: pp.beta},
+				blas64.General{Rows: nv, Cols: r, Stride: r, Data: pp.phiV[:nv*r]},
+				0, blas64.General{Rows: N, Cols: nv, Stride: nv, Data: pp.uv[:N*nv]})
+		} else {
+			clear(pp.uv[:N*nv])
+		}
 	}
-	if r > 0 {
-		blas64.Gemm(blas.NoTrans, blas.Trans, 1,
-			blas64.General{Rows: Bv, Cols: F, Stride: F, Data: hv},
-			blas64.General{Rows: r, Cols: F, Stride: F, Data: pp.qt[:r*F]},
-			0, blas64.General{Rows: Bv, Cols: r, Stride: r, Data: pp.phiV[:Bv*r]})
-	}
-	blas64.Gemm(blas.NoTrans, blas.Trans, 1,
-		blas64.General{Rows: N, Cols: r, Stride: Bt, Data: pp.beta},
-		blas64.General{Rows: Bv, Cols: r, Stride: r, Data: pp.phiV[:Bv*r]},
-		0, blas64.General{Rows: N, Cols: Bv, Stride: Bv, Data: pp.uv})
 	var loss float64
 	k := 0
 	for n := 0; n < N; n++ {
-		uv := pp.uv[n*Bv : (n+1)*Bv]
-		vs := pp.vsum[n*Bv : (n+1)*Bv]
-		var l, cross, quad float64
-		for i, u := range uv {
-			f, _, _ := linkTerms(pp.act, u+pp.c[n])
-			l += pp.vcnt[i]*f - vs[i]*math.Log(f+nn.PoissonEps)
-			cross += f * vs[i]
-			quad += pp.vcnt[i] * f * f
+		if pp.skip[n] {
+			continue
+		}
+		l, cross, quad := pp.valS[n], pp.crossS[n], pp.quadS[n]
+		if nv > 0 {
+			vs := pp.vsum[n*Bv : (n+1)*Bv]
+			for i, j := range pp.vOnly {
+				f, _, _ := linkTerms(pp.act, pp.uv[n*nv+i]+pp.c[n])
+				l += pp.vcnt[j]*f - vs[j]*math.Log(f+nn.PoissonEps)
+				cross += f * vs[j]
+				quad += pp.vcnt[j] * f * f
+			}
 		}
 		pp.valN[n] = l
-		if !pp.skip[n] {
-			loss += l
-		}
+		loss += l
 		if r2 && pp.valTot[n] > 0 {
 			pp.r2[k] = 1 - (pp.vsq[n]-2*cross+quad)/pp.valTot[n]
 			k++
