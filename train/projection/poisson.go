@@ -359,7 +359,10 @@ func (pp *poissonProj) basis(h []float64) error {
 	for r, b := range pp.rows {
 		copy(ht[r*F:(r+1)*F], h[b*F:(b+1)*F])
 	}
-	mulABt(pp.kmat, ht, ht, Bt, Bt, F, true)
+	blas64.Gemm(blas.NoTrans, blas.Trans, 1,
+		blas64.General{Rows: Bt, Cols: F, Stride: F, Data: ht},
+		blas64.General{Rows: Bt, Cols: F, Stride: F, Data: ht},
+		0, blas64.General{Rows: Bt, Cols: Bt, Stride: Bt, Data: pp.kmat})
 	for _, v := range pp.kmat {
 		if math.IsNaN(v) || math.IsInf(v, 0) {
 			return fmt.Errorf("train: Poisson fast path: the features are not finite")
@@ -409,7 +412,10 @@ func (pp *poissonProj) basis(h []float64) error {
 	if pp.hasOld && pp.rOld > 0 && r > 0 {
 		// beta_new = (Qt_new Qt_old^T) beta_old for every neuron.
 		ro := pp.rOld
-		mulABt(pp.transfer, pp.qt, pp.qtOld, r, ro, F, false)
+		blas64.Gemm(blas.NoTrans, blas.Trans, 1,
+			blas64.General{Rows: r, Cols: F, Stride: F, Data: pp.qt[:r*F]},
+			blas64.General{Rows: ro, Cols: F, Stride: F, Data: pp.qtOld[:ro*F]},
+			0, blas64.General{Rows: r, Cols: ro, Stride: ro, Data: pp.transfer[:r*ro]})
 		N := pp.N
 		copy(pp.betaTmp, pp.beta)
 		blas64.Gemm(blas.NoTrans, blas.Trans, 1,
