@@ -148,8 +148,9 @@ func BenchmarkPoissonSolvers(b *testing.B) {
 
 // BenchmarkPoissonEpoch times one epoch of the Poisson fast path as the
 // epoch loop runs it (a filter step, then features, basis, per-neuron
-// Newton from the previous epoch's readout, envelope gradient, validation
-// loss), at the full-size model shape (60 bins, F 480): O(N Bt^3).
+// inexact Newton steps from the previous epoch's readout, envelope
+// gradient, validation loss), at the full-size model shape (60 bins, F
+// 480): O(N Bt^2). Wall time, so compare the ratio of adjacent runs.
 func BenchmarkPoissonEpoch(b *testing.B) {
 	for _, n := range []int{1000, 6000, 24000} {
 		b.Run(fmt.Sprintf("neurons=%d", n), func(b *testing.B) {
