@@ -360,3 +360,20 @@ func TestPoissonPenaltyChoice(t *testing.T) {
 		}
 	}
 }
+
+// TestPoissonStepAllocs: the inexact step of one neuron allocates nothing.
+func TestPoissonStepAllocs(t *testing.T) {
+	c, net := poissonCase(t, nn.Softplus, 0.05)
+	pp, err := newPoissonProj(&c.pr, net)
+	if err != nil {
+		t.Fatal(err)
+	}
+	pp.mode = psStart
+	if err := pp.eval(net, true, false); err != nil {
+		t.Fatal(err)
+	}
+	w := pp.workers[0]
+	if a := testing.AllocsPerRun(20, func() { pp.stepNeuron(w, 0, 1, 0, true) }); a != 0 {
+		t.Errorf("stepNeuron allocates %v times per call, want 0", a)
+	}
+}
