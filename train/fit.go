@@ -6,6 +6,7 @@ import (
 	"github.com/strialab/stria/train/settings"
 	"math"
 	"math/rand/v2"
+	"runtime"
 	"slices"
 
 	"github.com/strialab/stria/data/condstats"
@@ -456,8 +457,20 @@ func fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fi
 	if err != nil {
 		return nil, err
 	}
+	if len(net.Params) >= largeNet {
+		// The optimiser's moments, the best copy and the trainer's row
+		// buffers (four parameter-sized arrays and more) are garbage now;
+		// collect them so that scoring and writing reuse their memory
+		// instead of growing the heap towards the collector's goal (twice
+		// the live heap at the last collection, which training set).
+		runtime.GC()
+	}
 	return &Fitted{Net: net, Solver: settings.SolverAdam, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}, nil
 }
+
+// largeNet is the number of parameters (8 M: 64 MB) from which a fit
+// collects its garbage before returning.
+const largeNet = 1 << 23
 
 // initReadout sets the readout bias to each neuron's mean training
 // response (through the inverse of the output nonlinearity), so that
