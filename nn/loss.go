@@ -42,7 +42,8 @@ func lossArgs(name string, dst, pred, target, weight []float64, rows, cols int) 
 //
 // over pred and target [rows][cols] with one weight per row (weight nil
 // means all 1, which gives torch's MSELoss with reduction 'mean'). If dst is
-// not nil it receives dL/dpred = 2 w_r (pred - target) / (W*C), OVERWRITTEN.
+// not nil it receives dL/dpred = 2 w_r (pred - target) / (W*C), OVERWRITTEN;
+// dst may be target itself (each element is read before it is written).
 //
 // With weight w_b = N_b, the trial count of condition b, and target = the
 // condition mean, L equals the mean loss over the N_b single trials of each
@@ -88,7 +89,7 @@ func MSE(dst, pred, target, weight []float64, rows, cols int) float64 {
 // [rows][cols]; weight nil means all 1, which gives torch's
 // PoissonNLLLoss(log_input=False, full=False, reduction='mean'). If dst is
 // not nil it receives dL/dpred = w_r (1 - target/(pred+eps)) / (W*C),
-// OVERWRITTEN.
+// OVERWRITTEN; dst may be target itself.
 //
 // With weight w_b = N_b and target = the condition mean (so that
 // w_b*target = S_b, the condition's spike sum), L equals the mean loss over

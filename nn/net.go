@@ -191,7 +191,7 @@ type Work struct {
 	x    []float64   // [MaxRows][In][L], copy of the input
 	h    [][]float64 // per layer [MaxRows][O][M], post-ReLU
 	dh   [][]float64 // per layer, gradient w.r.t. h, then w.r.t. the pre-ReLU
-	z, y []float64   // [MaxRows][N] readout output before and after Output
+	z, y []float64   // [MaxRows][N] readout output before and after Output (one buffer for Identity)
 	dH   []float64   // [MaxRows][F] readout input gradient
 	rows int         // rows of the last forward pass, -1 if none
 	full bool        // the last forward pass ran the readout
@@ -211,7 +211,10 @@ func (n *Net) NewWork(maxRows int) *Work {
 		w.dh = append(w.dh, make([]float64, maxRows*c.Out*c.OutLen()))
 	}
 	w.z = make([]float64, maxRows*n.Neurons)
-	w.y = make([]float64, maxRows*n.Neurons)
+	w.y = w.z // the identity output needs no second buffer
+	if n.Output != Identity {
+		w.y = make([]float64, maxRows*n.Neurons)
+	}
 	w.dH = make([]float64, maxRows*n.feat)
 	w.pool = newPool(maxRows, n.feat, n.Neurons)
 	if w.pool.jobs != nil {
@@ -256,6 +259,10 @@ func (n *Net) ForwardFeatures(w *Work, x []float64, rows int) []float64 {
 // w. Panics as ForwardFeatures.
 func (n *Net) Forward(w *Work, x []float64, rows int) []float64 {
 	h := n.ForwardFeatures(w, x, rows)
+	if n.Output != Identity && &w.y[0] == &w.z[0] {
+		// Output was changed from Identity after NewWork.
+		w.y = make([]float64, len(w.z))
+	}
 	p := w.pool
 	p.kind, p.rows, p.act = jobForward, rows, n.Output
 	p.h, p.w, p.b = h, n.ReadW(), n.ReadB()

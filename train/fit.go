@@ -6,7 +6,7 @@ import (
 	"github.com/strialab/stria/train/settings"
 	"math"
 	"math/rand/v2"
-	"runtime"
+	"runtime/debug"
 	"slices"
 
 	"github.com/strialab/stria/data/condstats"
@@ -34,6 +34,13 @@ type Hooks struct {
 	// what you keep); after a cancellation training does not continue, so
 	// that last one stays valid.
 	Checkpoint func(*Checkpoint) error
+	// TempDir, when not "", is an existing folder (the run folder) where
+	// a large fit keeps the parameters of its best epoch in a hidden
+	// temporary file (".stria-best.tmp*", matched by
+	// runfolder.RemoveStaleTemps) instead of in memory: 92 MB at 24,000
+	// neurons. The file is removed before Fit returns, also on an error or
+	// an interruption; the results do not change.
+	TempDir string
 }
 
 // Checkpoint is the whole training state, enough to continue a fit with
@@ -96,9 +103,15 @@ type rowSet struct {
 	trials int
 	// ssTot is, per neuron, sum over trials of (y - mean y)^2.
 	ssTot []float64
-	// sumSq is, per neuron and condition, the sum of squares (one-hot only),
-	// for the trial-level residual sum of squares.
-	sumSq []float64
+	// withinN is, per neuron, the within-condition sum of squares
+	// sum over trials of (y - ybar_b)^2 (condition rows only): the
+	// trial-level residual sum of squares of a prediction f is withinN +
+	// sum_b N_b (f_b - ybar_b)^2.
+	withinN []float64
+	// scratch marks rows whose targets are refilled before every use (the
+	// trainer's trial batch): the loss gradient overwrites the targets
+	// instead of taking a buffer of its own.
+	scratch bool
 }
 
 // condRows builds the condition-level rows of a trial set from its
@@ -120,7 +133,7 @@ func condRows(p *Prepared, st *condstats.Stats) *rowSet {
 	rs.x = make([]float64, rs.rows*b)
 	rs.target = make([]float64, rs.rows*n)
 	rs.weight = make([]float64, rs.rows)
-	rs.sumSq = make([]float64, rs.rows*n)
+	rs.withinN = make([]float64, n)
 	rs.ssTot = make([]float64, n)
 	grand := make([]float64, n)
 	mu, inv := make([]float64, n), make([]float64, n)
@@ -134,14 +147,14 @@ func condRows(p *Prepared, st *condstats.Stats) *rowSet {
 		sum := st.Sum[c*n : (c+1)*n]
 		sq := st.SumSq[c*n : (c+1)*n]
 		tg := rs.target[r*n : (r+1)*n]
-		zq := rs.sumSq[r*n : (r+1)*n]
 		for j := range tg {
 			// Sums of z = (y - mu) * inv over the condition's trials.
 			zs := (sum[j] - cnt*mu[j]) * inv[j]
-			zq[j] = (sq[j] - 2*mu[j]*sum[j] + cnt*mu[j]*mu[j]) * inv[j] * inv[j]
+			zq := (sq[j] - 2*mu[j]*sum[j] + cnt*mu[j]*mu[j]) * inv[j] * inv[j]
 			tg[j] = zs / cnt
-			rs.within += zq[j] - zs*tg[j]
-			rs.ssTot[j] += zq[j]
+			rs.within += zq - zs*tg[j]
+			rs.withinN[j] += zq - zs*tg[j]
+			rs.ssTot[j] += zq
 			grand[j] += zs
 		}
 	}
@@ -195,11 +208,11 @@ type trainer struct {
 	pcg    *rand.PCG
 	poiss  bool
 	chunk  int
-	l2     float64 // readout penalty per neuron weight: lambda/N
-	dpred  []float64
-	batch  *rowSet // scratch rows for trial-level work
-	trainC *rowSet // condition rows of the training trials (one-hot)
-	valC   *rowSet // condition rows of the validation trials (one-hot)
+	l2     float64   // readout penalty per neuron weight: lambda/N
+	dpred  []float64 // loss gradient of condition rows (rows x N), grown on demand
+	batch  *rowSet   // scratch rows for trial-level work
+	trainC *rowSet   // condition rows of the training trials (one-hot)
+	valC   *rowSet   // condition rows of the validation trials (one-hot)
 	valTot []float64
 	ssRes  []float64
 	r2     []float64
@@ -213,8 +226,9 @@ type trainer struct {
 // chunkRows bounds the rows of one forward pass on trial-level data: a
 // mini-batch larger than this is passed in pieces whose gradients add up.
 // Each of the trainer's row buffers (predictions before and after the
-// output nonlinearity, their gradient, the targets) holds chunkRows x N
-// values: 12 MB each at 24,000 neurons.
+// output nonlinearity, one buffer when it is the identity; the targets,
+// which the loss gradient overwrites) holds chunkRows x N values: 12 MB
+// each at 24,000 neurons.
 const chunkRows = 64
 
 func newTrainer(p *Prepared, net *nn.Net) *trainer {
@@ -233,14 +247,14 @@ func newTrainer(p *Prepared, net *nn.Net) *trainer {
 	rows := max(tr.chunk, p.NBins)
 	tr.work = net.NewWork(rows)
 	n := p.Neurons()
-	tr.dpred = make([]float64, rows*n)
 	if p.Soft() || tc.BatchSize > 0 {
-		tr.batch = &rowSet{x: make([]float64, tr.chunk*p.NBins), target: make([]float64, tr.chunk*n)}
+		tr.batch = &rowSet{x: make([]float64, tr.chunk*p.NBins), target: make([]float64, tr.chunk*n), scratch: true}
 	}
 	if !p.Soft() {
 		if tc.BatchSize == 0 {
 			// Full batch on one-hot input: one step on the condition rows.
 			tr.trainC = condRows(p, p.TrainStats())
+			tr.dpred = make([]float64, tr.trainC.rows*n)
 		}
 		tr.valC = condRows(p, p.ValStats())
 		tr.valTot = tr.valC.ssTot
@@ -256,23 +270,23 @@ func newTrainer(p *Prepared, net *nn.Net) *trainer {
 // scaled by scale into the net's gradients. It returns the unnormalised
 // trial-level loss sum (sum over trials and neurons) so that chunks add up.
 // If ssRes is not nil it accumulates the per-neuron residual sum of squares.
+// With grad on scratch rows (rowSet.scratch) the targets are overwritten.
 func (tr *trainer) lossGrad(rs *rowSet, grad bool, scale float64, ssRes []float64) float64 {
 	n := tr.p.Neurons()
 	pred := tr.net.Forward(tr.work, rs.x, rs.rows)
+	if ssRes != nil {
+		tr.addSSRes(ssRes, rs, pred)
+	}
 	var l float64
-	dp := tr.dpred[:rs.rows*n]
+	var dp []float64 // nil: the loss alone
+	if grad {
+		dp = tr.gradBuf(rs)
+	}
 	w := rs.weight
 	if tr.poiss {
 		l = nn.Poisson(dp, pred[:rs.rows*n], rs.target[:rs.rows*n], w, rs.rows, n)
 	} else {
 		l = nn.MSE(dp, pred[:rs.rows*n], rs.target[:rs.rows*n], w, rs.rows, n)
-	}
-	// Excluded neurons are not trained: no gradient reaches their
-	// readout (which stays at zero weights and their mean) or the filters.
-	for _, j := range tr.excluded {
-		for r := 0; r < rs.rows; r++ {
-			dp[r*n+j] = 0
-		}
 	}
 	scale *= tr.gradScale
 	wsum := float64(rs.rows)
@@ -286,10 +300,15 @@ func (tr *trainer) lossGrad(rs *rowSet, grad bool, scale float64, ssRes []float6
 	if !tr.poiss && w != nil {
 		total += rs.within
 	}
-	if ssRes != nil {
-		tr.addSSRes(ssRes, rs, pred)
-	}
 	if grad {
+		// Excluded neurons are not trained: no gradient reaches their
+		// readout (which stays at zero weights and their mean) or the
+		// filters.
+		for _, j := range tr.excluded {
+			for r := 0; r < rs.rows; r++ {
+				dp[r*n+j] = 0
+			}
+		}
 		if scale != 1 {
 			for i := range dp {
 				dp[i] *= scale
@@ -300,18 +319,38 @@ func (tr *trainer) lossGrad(rs *rowSet, grad bool, scale float64, ssRes []float6
 	return total
 }
 
+// gradBuf returns the buffer (rs.rows x N) that receives the loss gradient
+// of rs: the targets themselves on scratch rows (nn.MSE and nn.Poisson
+// allow dst to be target), otherwise tr.dpred.
+func (tr *trainer) gradBuf(rs *rowSet) []float64 {
+	m := rs.rows * tr.p.Neurons()
+	if rs.scratch {
+		return rs.target[:m]
+	}
+	if len(tr.dpred) < m {
+		tr.dpred = make([]float64, m)
+	}
+	return tr.dpred[:m]
+}
+
 // addSSRes adds the trial-level residual sum of squares of each neuron.
+// Condition rows (all of a set in one call) add sum_t (y_t - f_b)^2 =
+// withinN + sum_b N_b (f_b - ybar_b)^2.
 func (tr *trainer) addSSRes(ss []float64, rs *rowSet, pred []float64) {
 	n := tr.p.Neurons()
+	if rs.weight != nil {
+		for j, w := range rs.withinN {
+			ss[j] += w
+		}
+	}
 	for r := 0; r < rs.rows; r++ {
 		f := pred[r*n : (r+1)*n]
 		y := rs.target[r*n : (r+1)*n]
 		if rs.weight != nil {
-			// Condition row: sum_t (y_t - f)^2 = SumSq - 2 f Sum + N f^2.
 			cnt := rs.weight[r]
-			sq := rs.sumSq[r*n : (r+1)*n]
 			for j := range f {
-				ss[j] += sq[j] - 2*f[j]*y[j]*cnt + cnt*f[j]*f[j]
+				d := y[j] - f[j]
+				ss[j] += cnt * d * d
 			}
 			continue
 		}
@@ -379,6 +418,10 @@ func (tr *trainer) Name() string         { return "adam" }
 func (tr *trainer) Trainable() []float64 { return tr.net.Params }
 func (tr *trainer) Begin() error         { return nil }
 func (tr *trainer) Random() *rand.PCG    { return tr.pcg }
+
+// scratch lends the epoch loop the gradients, which every step zeroes
+// before use (see scratcher).
+func (tr *trainer) scratch() []float64 { return tr.net.Grads }
 
 func (tr *trainer) Validate(int) (float64, float64, error) {
 	l, r2 := tr.evalVal()
@@ -453,17 +496,26 @@ func fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fi
 		clear(rw[j*nf : (j+1)*nf])
 	}
 	tr := newTrainer(p, net)
+	if len(net.Params) >= largeNet {
+		// The trainer has taken what it needs from the per-condition
+		// statistics of p (4 B x N values, 46 MB at 24,000 neurons and
+		// 60 bins): drop them (a later use computes them again) and give
+		// their memory, and what preparing left, back to the system
+		// before the optimiser's moments are allocated and touched.
+		p.trainSt, p.valSt = nil, nil
+		debug.FreeOSMemory()
+	}
 	res, err := runEpochs(ctx, tr, cfg.Train, hooks, resume)
 	if err != nil {
 		return nil, err
 	}
 	if len(net.Params) >= largeNet {
-		// The optimiser's moments, the best copy and the trainer's row
-		// buffers (four parameter-sized arrays and more) are garbage now;
-		// collect them so that scoring and writing reuse their memory
-		// instead of growing the heap towards the collector's goal (twice
-		// the live heap at the last collection, which training set).
-		runtime.GC()
+		// The optimiser's moments and the trainer's row buffers (two
+		// parameter-sized arrays and more) are garbage now: give them back
+		// to the system, so that scoring and writing, which may allocate
+		// up to the collector's goal (twice the live heap) before the next
+		// collection, stay below the peak of training.
+		debug.FreeOSMemory()
 	}
 	return &Fitted{Net: net, Solver: settings.SolverAdam, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}, nil
 }

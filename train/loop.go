@@ -39,6 +39,14 @@ type solver interface {
 	Random() *rand.PCG
 }
 
+// scratcher is a solver that lends the loop a buffer of len(Trainable())
+// values which it may overwrite between epochs (the adam trainer's
+// gradients): the loop reads a best copy kept in a file into it for a
+// checkpoint, instead of allocating a parameter-sized array.
+type scratcher interface {
+	scratch() []float64
+}
+
 // newOptimizer returns the Adam optimiser the train settings describe for
 // n parameters.
 func newOptimizer(tc settings.TrainConfig, n int) *nn.Adam {
@@ -58,7 +66,10 @@ type loopResult struct {
 
 // runEpochs trains s until the validation loss has not improved for
 // train.patience epochs or train.max_epochs have run, and leaves the best
-// parameters in place. With resume not nil it continues from that
+// parameters in place. The best epoch's parameters are kept in memory, or,
+// for spillParams parameters and more when hooks.TempDir is set, in a
+// temporary file there that is removed before runEpochs returns (also on
+// an error or an interruption); the result is the same bit for bit. With resume not nil it continues from that
 // checkpoint. Between epochs it honours ctx: on cancellation a checkpoint
 // is handed to hooks and ErrInterrupted is returned. A loss that is not
 // finite or grows a millionfold over the first epoch's stops training with
@@ -67,11 +78,26 @@ func runEpochs(ctx context.Context, s solver, tc settings.TrainConfig, hooks Hoo
 	params := s.Trainable()
 	opt := newOptimizer(tc, len(params))
 	st := Checkpoint{BestVal: math.Inf(1)}
+	best := newBestParams(len(params), hooks.TempDir)
+	defer best.close()
+	var scratch []float64
+	if sc, ok := s.(scratcher); ok && len(sc.scratch()) == len(params) {
+		scratch = sc.scratch()
+	}
 	if resume != nil {
 		if len(resume.Params) != len(params) || len(resume.M) != len(params) || len(resume.V) != len(params) {
 			return nil, fmt.Errorf("checkpoint has %d parameters, the %s solver of this config trains %d: was the config changed?", len(resume.Params), s.Name(), len(params))
 		}
 		st = *resume
+		if st.Best != nil {
+			if len(st.Best) != len(params) {
+				return nil, fmt.Errorf("checkpoint has %d best-epoch parameters, the %s solver of this config trains %d: was the config changed?", len(st.Best), s.Name(), len(params))
+			}
+			if err := best.adopt(st.Best); err != nil {
+				return nil, err
+			}
+			st.Best = nil
+		}
 		copy(params, st.Params)
 		opt.M, opt.V, opt.T = slices.Clone(st.M), slices.Clone(st.V), st.T
 		if pcg := s.Random(); pcg != nil {
@@ -89,8 +115,9 @@ func runEpochs(ctx context.Context, s solver, tc settings.TrainConfig, hooks Hoo
 		offset = st.Log[n-1].Seconds
 	}
 	// snapshot shares the live buffers (no copy of the N x F readout and
-	// its moments); hooks get it only while training waits for them.
-	snapshot := func() *Checkpoint {
+	// its moments); hooks get it only while training waits for them. A
+	// best copy kept in a file is read into the solver's scratch.
+	snapshot := func() (*Checkpoint, error) {
 		c := st
 		c.Params = params
 		c.M, c.V, c.T = opt.M, opt.V, opt.T
@@ -98,7 +125,19 @@ func runEpochs(ctx context.Context, s solver, tc settings.TrainConfig, hooks Hoo
 		if pcg := s.Random(); pcg != nil {
 			c.RNG, _ = pcg.MarshalBinary()
 		}
-		return &c
+		if best.have {
+			c.Best = best.mem
+			if best.spilled() {
+				if scratch == nil {
+					scratch = make([]float64, len(params))
+				}
+				if err := best.load(scratch); err != nil {
+					return nil, err
+				}
+				c.Best = scratch
+			}
+		}
+		return &c, nil
 	}
 	var first float64
 	if len(st.Log) > 0 {
@@ -108,7 +147,11 @@ func runEpochs(ctx context.Context, s solver, tc settings.TrainConfig, hooks Hoo
 	for st.Epoch < tc.MaxEpochs {
 		if err := ctx.Err(); err != nil {
 			if hooks.Checkpoint != nil {
-				if cerr := hooks.Checkpoint(snapshot()); cerr != nil {
+				c, cerr := snapshot()
+				if cerr == nil {
+					cerr = hooks.Checkpoint(c)
+				}
+				if cerr != nil {
 					return nil, cerr
 				}
 			}
@@ -131,7 +174,9 @@ func runEpochs(ctx context.Context, s solver, tc settings.TrainConfig, hooks Hoo
 		st.Log = append(st.Log, e)
 		if vl < st.BestVal {
 			st.BestVal, st.BestEpoch, st.Since = vl, st.Epoch, 0
-			st.Best = append(st.Best[:0], params...)
+			if err := best.save(params); err != nil {
+				return nil, err
+			}
 		} else {
 			st.Since++
 		}
@@ -143,13 +188,19 @@ func runEpochs(ctx context.Context, s solver, tc settings.TrainConfig, hooks Hoo
 			break
 		}
 		if hooks.Checkpoint != nil && st.Epoch%tc.CheckpointEvery == 0 {
-			if err := hooks.Checkpoint(snapshot()); err != nil {
+			c, err := snapshot()
+			if err == nil {
+				err = hooks.Checkpoint(c)
+			}
+			if err != nil {
 				return nil, err
 			}
 		}
 	}
-	if st.Best != nil {
-		copy(params, st.Best)
+	if best.have {
+		if err := best.load(params); err != nil {
+			return nil, err
+		}
 	}
 	return &loopResult{log: st.Log, bestEpoch: st.BestEpoch, stop: stop}, nil
 }

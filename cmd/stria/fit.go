@@ -166,6 +166,7 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 			c.Files = files
 			return runfolder.SaveResumeState(dir, c)
 		},
+		TempDir: dir,
 	}
 	var bar *progressbar.ProgressBar
 	if !o.quiet && isTerminal(o.stderr) {
