@@ -120,8 +120,28 @@ func uniform(rng *rand.Rand, dst []float64, bound float64) {
 	}
 }
 
-// ZeroGrad sets every gradient to zero.
-func (n *Net) ZeroGrad() { clear(n.Grads) }
+// ZeroGrad sets every gradient to zero (allocating Grads again after
+// ReleaseGrads).
+func (n *Net) ZeroGrad() {
+	if len(n.Grads) != len(n.Params) {
+		n.Grads = make([]float64, len(n.Params))
+		return
+	}
+	clear(n.Grads)
+}
+
+// ReleaseGrads drops the gradient buffer (as large as Params) of a net
+// that will only predict from now on; ZeroGrad allocates it again. Until
+// then Grads is nil, and Backward, BackwardFeatures and the ...Grad views
+// panic.
+func (n *Net) ReleaseGrads() { n.Grads = nil }
+
+// checkGrads panics after ReleaseGrads.
+func (n *Net) checkGrads() {
+	if len(n.Grads) != len(n.Params) {
+		panic("nn: the gradients were released (ReleaseGrads): call ZeroGrad first")
+	}
+}
 
 // Features returns the readout input size F = C_last * M_last.
 func (n *Net) Features() int { return n.feat }
@@ -161,6 +181,7 @@ func (n *Net) ReadB() []float64 { return n.Params[n.rbOff:] }
 // ConvWGrad returns the gradient view matching ConvW(i).
 func (n *Net) ConvWGrad(i int) []float64 {
 	i = n.layer(i)
+	n.checkGrads()
 	return n.Grads[n.wOff[i]:n.bOff[i]:n.bOff[i]]
 }
 
@@ -168,14 +189,21 @@ func (n *Net) ConvWGrad(i int) []float64 {
 func (n *Net) ConvBGrad(i int) []float64 {
 	i = n.layer(i)
 	o := n.bOff[i]
+	n.checkGrads()
 	return n.Grads[o : o+n.convs[i].Out : o+n.convs[i].Out]
 }
 
 // ReadWGrad returns the gradient view matching ReadW.
-func (n *Net) ReadWGrad() []float64 { return n.Grads[n.rwOff:n.rbOff:n.rbOff] }
+func (n *Net) ReadWGrad() []float64 {
+	n.checkGrads()
+	return n.Grads[n.rwOff:n.rbOff:n.rbOff]
+}
 
 // ReadBGrad returns the gradient view matching ReadB.
-func (n *Net) ReadBGrad() []float64 { return n.Grads[n.rbOff:] }
+func (n *Net) ReadBGrad() []float64 {
+	n.checkGrads()
+	return n.Grads[n.rbOff:]
+}
 
 // Work holds the activations of up to MaxRows rows of one Net, saved by a
 // forward pass for the backward pass, and the scratch space of the readout
@@ -287,6 +315,7 @@ func (p *pool) release() {
 // Forward, dpred is too short or dpred is the predictions slice.
 func (n *Net) Backward(w *Work, dpred []float64, rows int) {
 	n.checkWork(w, rows)
+	n.checkGrads()
 	if !w.full || w.rows != rows {
 		panic(fmt.Sprintf("nn: Backward of %d rows needs a Forward of the same rows on this Work", rows))
 	}
@@ -321,6 +350,7 @@ func (n *Net) Backward(w *Work, dpred []float64, rows int) {
 // of the same rows on w; dH is not modified.
 func (n *Net) BackwardFeatures(w *Work, dH []float64, rows int) {
 	n.checkWork(w, rows)
+	n.checkGrads()
 	if w.rows != rows {
 		panic(fmt.Sprintf("nn: BackwardFeatures of %d rows needs a forward pass of the same rows on this Work", rows))
 	}

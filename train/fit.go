@@ -510,11 +510,12 @@ func fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fi
 		return nil, err
 	}
 	if len(net.Params) >= largeNet {
-		// The optimiser's moments and the trainer's row buffers (two
-		// parameter-sized arrays and more) are garbage now: give them back
-		// to the system, so that scoring and writing, which may allocate
-		// up to the collector's goal (twice the live heap) before the next
-		// collection, stay below the peak of training.
+		// The gradients, the optimiser's moments and the trainer's row
+		// buffers (three parameter-sized arrays and more) are garbage now:
+		// give them back to the system, so that scoring and writing, which
+		// may allocate up to the collector's goal (twice the live heap)
+		// before the next collection, stay below the peak of training.
+		net.ReleaseGrads()
 		debug.FreeOSMemory()
 	}
 	return &Fitted{Net: net, Solver: settings.SolverAdam, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}, nil

@@ -3,6 +3,7 @@ package nn
 import (
 	"fmt"
 	"slices"
+	"strings"
 	"testing"
 )
 
@@ -62,4 +63,35 @@ func TestWorkOutputChanged(t *testing.T) {
 	p2, g2 := fastStep(n, n.NewWork(rows), x, target, rows)
 	checkClose(t, "pred", p1, p2, 0, 0)
 	checkClose(t, "grads", g1, g2, 0, 0)
+}
+
+// ReleaseGrads drops the gradients; Backward then panics, and ZeroGrad
+// brings them back, after which a step gives the same gradients as on a
+// net that never released them (the reference).
+func TestReleaseGrads(t *testing.T) {
+	rng := newRand(6)
+	n := NewNet(testShape(Softplus, 70))
+	n.Init(rng)
+	rows := 3
+	x := randn(rng, rows*n.In*n.Length)
+	target := randn(rng, rows*n.Neurons)
+	w := n.NewWork(rows)
+	_, want := fastStep(n, w, x, target, rows)
+	n.ReleaseGrads()
+	if n.Grads != nil {
+		t.Fatal("Grads kept after ReleaseGrads")
+	}
+	pred := n.Forward(w, x, rows) // predicting needs no gradients
+	dpred := make([]float64, len(pred))
+	MSE(dpred, pred, target, nil, rows, n.Neurons)
+	func() {
+		defer func() {
+			if r := recover(); r == nil || !strings.HasPrefix(fmt.Sprint(r), "nn: ") {
+				t.Errorf("Backward after ReleaseGrads: panic %v, want an nn: panic", r)
+			}
+		}()
+		n.Backward(w, dpred, rows)
+	}()
+	_, got := fastStep(n, w, x, target, rows) // ZeroGrad first
+	checkClose(t, "grads", got, want, 0, 0)
 }
