@@ -25,6 +25,11 @@
 //   - One epoch loop (runEpochs) owns early stopping on the validation
 //     loss, divergence, checkpoints, interruption and resume; a solver
 //     supplies one epoch and its validation.
+//   - Memory of large adam fits (the slow path): the best epoch's
+//     parameters go to a temporary file in Hooks.TempDir (over spillParams
+//     parameters), the prepared statistics are dropped once the trainer has
+//     its rows, and the gradients are released before scoring; the numbers
+//     do not change (train/best_test.go).
 //   - Same config and seed give the same numbers, whatever the number of
 //     cores: parallel kernels split work independently of GOMAXPROCS.
 //   - Formulas cite eval/methods.md by section.
