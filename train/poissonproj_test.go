@@ -170,7 +170,13 @@ func TestPoissonFastVsAdam(t *testing.T) {
 		t.Skip("fits two models on 200 neurons")
 	}
 	spec := synth.DiscreteConfig{Neurons: 200, Trials: 2400, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 21}
-	edit := func(c *settings.Config) { c.Model.ReadoutL2 = settings.Penalty{Value: 0.01}; c.Train.Patience = 50 }
+	// The first fit must run the adam solver itself: train.solver auto
+	// would route loss poisson to the fast path.
+	edit := func(c *settings.Config) {
+		c.Model.ReadoutL2 = settings.Penalty{Value: 0.01}
+		c.Train.Patience = 50
+		c.Train.Solver = settings.SolverAdam
+	}
 	p, truth := popPrepared(t, spec, edit)
 	t0 := time.Now()
 	fa, err := Fit(context.Background(), p, Hooks{}, nil)

@@ -73,23 +73,38 @@ func fitPoissonProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *
 	cfg := p.Cfg
 	net := nn.NewNet(cfg.Shape(p.NBins, p.Neurons()))
 	net.InitConvs(rand.New(rand.NewPCG(cfg.Seed, 0x1417)))
-	s, err := projection.NewPoisson(p.problem(), net)
+	var s poissonSolver
+	tc := cfg.Train
+	var err error
+	if poissonQN {
+		q, e := projection.NewPoissonQN(p.problem(), net)
+		s, err = q, e
+		if poissonQNPatience > 0 {
+			tc.Patience = min(tc.Patience, poissonQNPatience)
+		}
+	} else {
+		s, err = projection.NewPoisson(p.problem(), net)
+	}
 	if err != nil {
 		return nil, err
 	}
-	res, err := runEpochs(ctx, s, cfg.Train, hooks, resume)
+	res, err := runEpochs(ctx, s, tc, hooks, resume)
 	if err != nil {
 		return nil, err
 	}
 	f := &Fitted{Net: net, Solver: settings.SolverProjected, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}
 	var vr2 float64
 	if cfg.Model.ReadoutL2.Auto && p.ValStats() != nil && len(p.Val) > 0 {
-		// The best epoch's R^2 is that of the trained penalty.
-		ev, err := s.Evaluate(false, true)
-		if err != nil {
-			return nil, err
+		// The best epoch's R^2 is that of the trained penalty: solved
+		// here only when the log lacks it.
+		vr2 = math.NaN()
+		if bestR2Missing(res) {
+			ev, err := s.Evaluate(false, true)
+			if err != nil {
+				return nil, err
+			}
+			vr2 = ev.ValR2
 		}
-		vr2 = ev.ValR2
 		// One penalty for all neurons: a choice per neuron on its own
 		// validation loss was worse on BenchmarkPoissonSolvers (median
 		// held-out R^2 0.3588 against 0.3632 at 2,000 neurons), so
@@ -107,6 +122,16 @@ func fitPoissonProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *
 	return f, nil
 }
 
+// bestR2Missing reports whether the best epoch of the log has no R^2.
+func bestR2Missing(res *loopResult) bool {
+	for _, e := range res.log {
+		if e.Epoch == res.bestEpoch && math.IsNaN(e.ValR2) {
+			return true
+		}
+	}
+	return false
+}
+
 // fillBestR2 gives the best epoch of the log the validation R^2 of the
 // current (best) parameters where the solver skipped it.
 func fillBestR2(res *loopResult, valR2 func() (float64, error)) error {
@@ -121,3 +146,17 @@ func fillBestR2(res *loopResult, valR2 func() (float64, error)) error {
 	}
 	return nil
 }
+
+// poissonSolver is what fitPoissonProjected needs of its solver.
+type poissonSolver interface {
+	solver
+	Evaluate(grad, r2 bool) (projection.Eval, error)
+	AutoReadout(perNeuron bool) (curves, l2 []float64, valR2 float64, err error)
+	Readout() (curves []float64, valR2 float64, err error)
+}
+
+// Experiment switches.
+var (
+	poissonQN         = true
+	poissonQNPatience = 10
+)

@@ -24,7 +24,11 @@ func BenchmarkPoissonFastVsAdam(b *testing.B) {
 		n := 1000
 		b.Run(fmt.Sprintf("neurons=%d/readout_l2=%g", n, l2), func(b *testing.B) {
 			p, truth := popPrepared(b, synth.DiscreteConfig{Neurons: n, Trials: 3000, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 41},
-				func(c *settings.Config) { c.Model.ReadoutL2 = settings.Penalty{Value: l2}; c.Train.Patience = 100 })
+				func(c *settings.Config) {
+					c.Model.ReadoutL2 = settings.Penalty{Value: l2}
+					c.Train.Patience = 100
+					c.Train.Solver = settings.SolverAdam // auto would run the fast path
+				})
 			cm, or := testR2(p, condMeanPred(p)), testR2(p, truth)
 			for range b.N {
 				t0 := time.Now()
