@@ -30,6 +30,11 @@ type PoissonQN struct {
 	x0, g0, d  []float64
 	alpha      []float64
 	done       bool
+	// The readouts at the line search's start (beta N x Bt, c N, their
+	// basis Qt r0 x F): every trial starts its readout solves from them,
+	// not from a rejected trial's.
+	beta0, c0, qt0 []float64
+	r0             int
 	// Evals counts the objective evaluations of all iterations so far.
 	Evals int
 }
@@ -51,7 +56,8 @@ func NewPoissonQN(pr Problem, net *nn.Net) (*PoissonQN, error) {
 	}
 	n := s.pp.nconv
 	q := &PoissonQN{Poisson: s, rho: make([]float64, qnMemory), alpha: make([]float64, qnMemory),
-		x0: make([]float64, n), g0: make([]float64, n), d: make([]float64, n)}
+		x0: make([]float64, n), g0: make([]float64, n), d: make([]float64, n),
+		beta0: make([]float64, len(s.pp.beta)), c0: make([]float64, len(s.pp.c)), qt0: make([]float64, len(s.pp.qt))}
 	for range qnMemory {
 		q.sMem = append(q.sMem, make([]float64, n))
 		q.yMem = append(q.yMem, make([]float64, n))
@@ -75,7 +81,12 @@ func (q *PoissonQN) evalAt(t float64) float64 {
 	for i := range x {
 		x[i] = q.x0[i] + t*q.d[i]
 	}
-	q.pp.mode = psStart
+	pp := q.pp
+	copy(pp.beta, q.beta0)
+	copy(pp.c, q.c0)
+	pp.r = q.r0
+	copy(pp.qt[:q.r0*pp.F], q.qt0[:q.r0*pp.F])
+	pp.mode = psStart
 	q.Evals++
 	if err := q.pp.eval(q.net, true, false); err != nil || math.IsNaN(q.pp.obj) {
 		return math.Inf(1)
@@ -96,6 +107,10 @@ func (q *PoissonQN) Epoch(_ *nn.Adam) float64 {
 	copy(q.x0, x)
 	copy(q.g0, g)
 	f0 := pp.obj
+	copy(q.beta0, pp.beta)
+	copy(q.c0, pp.c)
+	q.r0 = pp.r
+	copy(q.qt0[:q.r0*pp.F], pp.qt[:q.r0*pp.F])
 	for attempt := 0; attempt < 2; attempt++ {
 		gd := q.direction()
 		if !(gd < 0) {
