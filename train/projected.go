@@ -66,7 +66,9 @@ func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpo
 // min(train.patience, poissonQNPatience) iterations without a lower
 // validation loss or after min(train.max_epochs, poissonQNMaxIter)
 // iterations, and keeps the filters of the best one. Adam's settings
-// (learning rate, betas, weight decay) do not apply. After training the
+// (learning rate, betas, epsilon) do not apply; train.weight_decay adds
+// (weight_decay / 2) ||theta||^2 over the filters to the objective (with
+// optimizer adam or adamw alike). After training the
 // readouts of the best filters are solved exactly and written into the
 // net, at the config's penalty or, with model.readout_l2 auto, at one
 // chosen for all neurons on the validation trials (eval/methods.md §12).
@@ -83,6 +85,9 @@ func fitPoissonProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *
 	tc.Patience = min(tc.Patience, poissonQNPatience)
 	tc.MaxEpochs = min(tc.MaxEpochs, poissonQNMaxIter)
 	s, err := projection.NewPoissonQN(p.problem(), net)
+	if err == nil {
+		s.WeightDecay = tc.WeightDecay
+	}
 	if err != nil {
 		return nil, err
 	}

@@ -37,6 +37,12 @@ type PoissonQN struct {
 	r0             int
 	// Evals counts the objective evaluations of all iterations so far.
 	Evals int
+	// WeightDecay adds (WeightDecay / 2) ||theta||^2 over the filter
+	// parameters theta to the objective (train.weight_decay: what Adam's
+	// coupled weight decay adds to the gradient); obj is the objective
+	// with it.
+	WeightDecay float64
+	obj         float64
 }
 
 // qnMemory is the number of step pairs L-BFGS keeps; qnFirstStep the
@@ -70,7 +76,22 @@ func NewPoissonQN(pr Problem, net *nn.Net) (*PoissonQN, error) {
 func (q *PoissonQN) Begin() error {
 	q.pp.mode = psStart
 	q.Evals++
-	return q.pp.eval(q.net, true, false)
+	if err := q.pp.eval(q.net, true, false); err != nil {
+		return err
+	}
+	q.obj = q.pp.obj + q.decay()
+	return nil
+}
+
+// decay adds the weight decay's gradient to the filter gradient and
+// returns its term of the objective.
+func (q *PoissonQN) decay() float64 {
+	if q.WeightDecay == 0 {
+		return 0
+	}
+	x := q.Trainable()
+	floats.AddScaled(q.net.Grads[:len(x)], q.WeightDecay, x)
+	return q.WeightDecay / 2 * floats.Dot(x, x)
 }
 
 // evalAt moves the filters to x0 + t d and evaluates the projected
@@ -89,9 +110,11 @@ func (q *PoissonQN) evalAt(t float64) float64 {
 	pp.mode = psStart
 	q.Evals++
 	if err := q.pp.eval(q.net, true, false); err != nil || math.IsNaN(q.pp.obj) {
-		return math.Inf(1)
+		q.obj = math.Inf(1)
+	} else {
+		q.obj = q.pp.obj + q.decay()
 	}
-	return q.pp.obj
+	return q.obj
 }
 
 // Epoch runs one L-BFGS iteration and returns the training data loss
@@ -106,7 +129,7 @@ func (q *PoissonQN) Epoch(_ *nn.Adam) float64 {
 	x, g := q.Trainable(), q.net.Grads[:n]
 	copy(q.x0, x)
 	copy(q.g0, g)
-	f0 := pp.obj
+	f0 := q.obj
 	copy(q.beta0, pp.beta)
 	copy(q.c0, pp.c)
 	q.r0 = pp.r
@@ -192,7 +215,7 @@ func (q *PoissonQN) Validate(epoch int) (float64, float64, error) {
 	pp := q.pp
 	r2 := epoch == 1 || (pp.r2Every > 0 && epoch%pp.r2Every == 0)
 	if pp.Bv == 0 {
-		return pp.obj, math.NaN(), nil
+		return q.obj, math.NaN(), nil
 	}
 	pp.valLoss(pp.h, r2)
 	return pp.val, pp.vr2, nil
