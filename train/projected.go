@@ -68,10 +68,10 @@ func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpo
 // iterations, and keeps the filters of the best one. Adam's settings
 // (learning rate, betas, epsilon) do not apply; train.weight_decay adds
 // (weight_decay / 2) ||theta||^2 over the filters to the objective (with
-// optimizer adam or adamw alike). After training the
-// readouts of the best filters are solved exactly and written into the
-// net, at the config's penalty or, with model.readout_l2 auto, at one
-// chosen for all neurons on the validation trials (eval/methods.md §12).
+// optimizer adam or adamw alike). After training the readouts of the
+// best filters are solved exactly and written into the net, at the
+// config's penalty or, with model.readout_l2 auto, at one chosen for all
+// neurons on the validation trials (eval/methods.md §12).
 //
 // A checkpoint holds the conv parameters only: a resumed fit solves the
 // readouts afresh and restarts the quasi-Newton memory (its first step is
@@ -85,12 +85,10 @@ func fitPoissonProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *
 	tc.Patience = min(tc.Patience, poissonQNPatience)
 	tc.MaxEpochs = min(tc.MaxEpochs, poissonQNMaxIter)
 	s, err := projection.NewPoissonQN(p.problem(), net)
-	if err == nil {
-		s.WeightDecay = tc.WeightDecay
-	}
 	if err != nil {
 		return nil, err
 	}
+	s.WeightDecay = tc.WeightDecay
 	res, err := runEpochs(ctx, s, tc, hooks, resume)
 	if err != nil {
 		return nil, err
