@@ -47,7 +47,8 @@ type PoissonQN struct {
 
 // qnMemory is the number of step pairs L-BFGS keeps; qnFirstStep the
 // largest change of one filter parameter in a steepest-descent step (the
-// size of one Adam step at the default learning rate).
+// size of one Adam step at the default learning rate); qnMaxHalve the
+// halvings one line search tries before it fails.
 const (
 	qnMemory    = 10
 	qnFirstStep = 1e-2
