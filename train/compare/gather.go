@@ -7,6 +7,7 @@ import (
 	"slices"
 	"strconv"
 	"strings"
+	"time"
 
 	"github.com/strialab/stria/data/condstats"
 	"github.com/strialab/stria/data/format"
@@ -49,6 +50,7 @@ func (p *Plan) Gather() ([]*comparefolder.Comparison, error) {
 			return nil, err
 		}
 		files := prep.Rec.Files()
+		start := time.Now()
 		var results []*comparefolder.FoldResult
 		for _, u := range p.Units {
 			if u.Rec != ri {
@@ -66,8 +68,9 @@ func (p *Plan) Gather() ([]*comparefolder.Comparison, error) {
 			}
 			results = append(results, r)
 		}
+		start = p.Timings.Since("gather: read fold results", start)
 		var folder *comparefolder.ComparisonFolder
-		if gerr := format.Guard(func() { folder, err = newFolder(prep, rec.Specs, results, folds) }); gerr != nil {
+		if gerr := format.Guard(func() { folder, err = newFolder(prep, rec.Specs, results, folds, p.Timings) }); gerr != nil {
 			return nil, p.recErr(rec, gerr)
 		}
 		if err != nil {
@@ -78,7 +81,9 @@ func (p *Plan) Gather() ([]*comparefolder.Comparison, error) {
 		}
 		folder.Result.Recording = rec.Name
 		folders[ri] = folder
+		p.Timings.Since("gather: the recording's tables, in all", start)
 	}
+	start := time.Now()
 	if err := p.Begin(); err != nil {
 		return nil, err
 	}
@@ -99,10 +104,12 @@ func (p *Plan) Gather() ([]*comparefolder.Comparison, error) {
 		}
 		cmps = append(cmps, folder.Result)
 	}
+	start = p.Timings.Since("gather: write comparison folders", start)
 	if len(p.Recordings) > 1 {
 		if err := comparefolder.WriteAcross(out, comparefolder.NewAcross(cmps, Pool(cmps))); err != nil {
 			return nil, err
 		}
+		start = p.Timings.Since("gather: pool and write the tables across recordings", start)
 	}
 	if err := runfolder.Finish(out, runfolder.FormatComparison); err != nil {
 		return nil, err
@@ -112,7 +119,8 @@ func (p *Plan) Gather() ([]*comparefolder.Comparison, error) {
 
 // newFolder computes everything the comparison folder of one recording
 // holds from the units' results (in plan order) on the given folds.
-func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefolder.FoldResult, folds [][3][]int) (*comparefolder.ComparisonFolder, error) {
+func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefolder.FoldResult, folds [][3][]int, tm *Timings) (*comparefolder.ComparisonFolder, error) {
+	start := time.Now()
 	names := make([]string, len(specs))
 	var encoders []string
 	for i, s := range specs {
@@ -139,12 +147,14 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefol
 	for j := range ex {
 		rel[j] = math.NaN()
 	}
+	start = tm.Since("gather: split-half reliability", start)
 	c, verdicts := AcrossFolds(names, p.Cfg.Split.Folds, n, perFold, excluded,
 		Scoring{Alpha: p.Cfg.Scores.CeilingAlpha, SplitHalfAll: rel, MinReliability: p.Cfg.Scores.MinReliability})
 	settings, err := p.Cfg.Marshal()
 	if err != nil {
 		return nil, err
 	}
+	start = tm.Since("gather: fold averages, summaries, pair tests", start)
 	f := &comparefolder.ComparisonFolder{Settings: settings, Result: c, Excluded: reasons, Curves: map[string][]float64{}}
 	for _, r := range results {
 		f.FoldScores = append(f.FoldScores, comparefolder.NewFoldScores(r.Model, r.Fold, r.Scores, ex, verdicts[r.Fold]))
@@ -180,6 +190,7 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefol
 		}
 	}
 	f.Curves[comparefolder.CurveDataMean], f.Curves[comparefolder.CurveDataSEM] = means, sem
+	start = tm.Since("gather: fold scores, curves, data means", start)
 	// Tuning descriptors of the data's and every model's curves, at the
 	// conditions' stimulus values; NaN throughout for an excluded neuron.
 	values := p.Values
@@ -204,6 +215,7 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefol
 			f.Descriptors = append(f.Descriptors, comparefolder.Descriptor{Source: src, Neuron: j, Descriptors: tuning.Describe(r, values, period)})
 		}
 	}
+	start = tm.Since("gather: tuning descriptors", start)
 	info := comparefolder.ComparisonInfo{Models: names, Encoders: encoders, Folds: c.Folds, Neurons: n, Excluded: map[string]string{},
 		Ceilings: runfolder.CeilingCounts(ceilingVerdicts(c.Ceiling), func(j int) bool { return excluded[j] }), FoldCeilings: c.FoldCeilings,
 		Reliable: Reliable(c), MinReliability: c.MinReliability,

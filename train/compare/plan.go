@@ -10,6 +10,7 @@ import (
 	"strconv"
 	"strings"
 	"sync"
+	"time"
 
 	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train"
@@ -42,6 +43,10 @@ type Plan struct {
 	Cfg        *settings.Config
 	Recordings []RecordingPlan
 	Units      []Unit
+
+	// Timings, when not nil, records the wall time of each phase
+	// (stria compare --timings).
+	Timings *Timings
 
 	// settings[r][s] is what the units of spec s on recording r depend
 	// on (see unitSettings), fixed when the plan is made: preparing a
@@ -198,10 +203,12 @@ func byRecording(units []Unit) (order []int, by map[int][]Unit) {
 // recording into its folds.
 func (p *Plan) prepare(ri int) (*train.Prepared, [][3][]int, error) {
 	rec := p.Recordings[ri]
+	start := time.Now()
 	prep, err := train.Prepare(rec.Cfg)
 	if err != nil {
 		return nil, nil, p.recErr(rec, err)
 	}
+	start = p.Timings.Since("prepare: load, bin, check, hash", start)
 	var folds [][3][]int
 	if err := format.Guard(func() { folds, err = train.Folds(prep) }); err != nil {
 		return nil, nil, p.recErr(rec, err)
@@ -209,6 +216,7 @@ func (p *Plan) prepare(ri int) (*train.Prepared, [][3][]int, error) {
 	if err != nil {
 		return nil, nil, p.recErr(rec, err)
 	}
+	p.Timings.Since("prepare: folds", start)
 	return prep, folds, nil
 }
 
@@ -335,10 +343,18 @@ func (p *Plan) runOne(ctx context.Context, prep *train.Prepared, rec RecordingPl
 	if err := comparefolder.RemoveFoldResultTemps(p.Dir(), u.ID); err != nil {
 		return err
 	}
-	r, err := train.RunUnit(ctx, prep, rec.Specs[u.Spec], u.Fold, sets)
+	start := time.Now()
+	spec := rec.Specs[u.Spec]
+	r, err := train.RunUnit(ctx, prep, spec, u.Fold, sets)
 	if err != nil {
 		return p.recErr(rec, err)
 	}
+	kind := spec.Baseline
+	if kind == "" {
+		kind = "encoder"
+	}
+	start = p.Timings.Since("unit: fit and score "+kind, start)
+	defer p.Timings.Since("unit: write fold result", start)
 	// The data must not have changed under the unit (a mapped file
 	// rewritten in place would mix two versions of it).
 	if err := prep.Rec.Unchanged(); err != nil {
