@@ -48,7 +48,14 @@ type curveFit struct {
 	// Result in original units.
 	params []float64
 	note   string
-	method *optimize.BFGS
+	min    minimizer
+	// conv and settings are the optimiser's settings, kept to spare an
+	// allocation per fit (the converger is reset by every run).
+	conv     optimize.FunctionConverge
+	settings optimize.Settings
+	// gonumRef runs optimize.Minimize instead of the minimizer: the
+	// reference the minimizer reproduces (tests only).
+	gonumRef bool
 }
 
 func newCurveFit(k kind, centers []float64, period float64, starts int, rng *rand.Rand) *curveFit {
@@ -58,7 +65,6 @@ func newCurveFit(k kind, centers []float64, period float64, starts int, rng *ran
 		x: make([]float64, B), cx: make([]float64, B), sx: make([]float64, B),
 		w: make([]float64, B), y: make([]float64, B),
 		g: make([]float64, 2*B), dg0: make([]float64, 2*B), dg1: make([]float64, 2*B),
-		method: &optimize.BFGS{},
 	}
 	if k != kindGauss {
 		f.cosC = make([]float64, B)
@@ -315,9 +321,10 @@ func (f *curveFit) fit(counts []int, means []float64) (ok bool, n int, ym, ysd f
 		Func: func(p []float64) float64 { eval(p); return lastF },
 		Grad: func(grad, p []float64) { eval(p); copy(grad, lastG[:]) },
 	}
-	settings := &optimize.Settings{
+	f.conv = optimize.FunctionConverge{Absolute: 1e-13, Relative: 1e-11, Iterations: 10}
+	f.settings = optimize.Settings{
 		GradientThreshold: 1e-8,
-		Converger:         &optimize.FunctionConverge{Absolute: 1e-13, Relative: 1e-11, Iterations: 10},
+		Converger:         &f.conv,
 		MajorIterations:   200,
 		FuncEvaluations:   2000,
 	}
@@ -348,11 +355,21 @@ func (f *curveFit) fit(counts []int, means []float64) (ok bool, n int, ym, ysd f
 	bestF := math.Inf(1)
 	if bestStart >= 0 {
 		start := cands[bestStart]
-		res, err := optimize.Minimize(prob, start[:], settings, f.method)
-		_ = err // a stopped-early result is still a candidate; compare by loss
-		if res != nil && !math.IsNaN(res.F) {
-			bestF = res.F
-			copy(best[:], res.X)
+		// BFGS as optimize.Minimize runs it, in this goroutine (see
+		// minimizer). A stopped-early result is still a candidate.
+		var F float64
+		var X []float64
+		if f.gonumRef {
+			F = math.NaN()
+			if res, _ := optimize.Minimize(prob, start[:], &f.settings, &f.min.bfgs); res != nil {
+				F, X = res.F, res.X
+			}
+		} else {
+			F, X = f.min.run(prob, start[:], &f.settings)
+		}
+		if !math.IsNaN(F) {
+			bestF = F
+			copy(best[:], X)
 		}
 	}
 	if math.IsInf(bestF, 1) {
