@@ -52,7 +52,25 @@ type Plan struct {
 	// on (see unitSettings), fixed when the plan is made: preparing a
 	// recording may resolve its axis in its config.
 	settings [][][]byte
+
+	// prepared keeps recordings already loaded, checked and hashed, for
+	// the next phase (Check, RunUnits, Gather) to reuse; see prepare.
+	prepared []*preparedRecording
 }
+
+// preparedRecording is a recording prepared by Plan.prepare, with its folds.
+type preparedRecording struct {
+	rec   int
+	prep  *train.Prepared
+	folds [][3][]int
+	bytes int64 // of the response matrix
+}
+
+// keepPreparedBytes bounds the response matrices of the recordings a plan
+// keeps prepared between its phases. The most recently prepared one is
+// always kept: a comparison of one recording, however large, loads, checks
+// and hashes it once, not once per phase.
+const keepPreparedBytes = 2 << 30
 
 // NewPlan expands the config's recordings, model specs and folds into
 // units, in a fixed order.
@@ -200,8 +218,38 @@ func byRecording(units []Unit) (order []int, by map[int][]Unit) {
 }
 
 // prepare loads, checks (with the files' content hashes) and splits a
-// recording into its folds.
+// recording into its folds, or returns it as an earlier phase of the plan
+// prepared it: the most recent recordings are kept, up to keepPreparedBytes
+// of responses (the most recent one always). Reuse is safe: every result
+// is written only after the recording's files are found unchanged since
+// they were loaded (data.Recording.Unchanged), as they were when their
+// hashes were taken.
 func (p *Plan) prepare(ri int) (*train.Prepared, [][3][]int, error) {
+	for i, k := range p.prepared {
+		if k.rec == ri {
+			// Most recently used last.
+			p.prepared = append(append(p.prepared[:i:i], p.prepared[i+1:]...), k)
+			return k.prep, k.folds, nil
+		}
+	}
+	prep, folds, err := p.prepareAnew(ri)
+	if err != nil {
+		return nil, nil, err
+	}
+	p.prepared = append(p.prepared, &preparedRecording{rec: ri, prep: prep, folds: folds, bytes: int64(len(prep.Rec.Y.Data)) * 4})
+	var total int64
+	for _, k := range p.prepared {
+		total += k.bytes
+	}
+	for len(p.prepared) > 1 && total > keepPreparedBytes {
+		total -= p.prepared[0].bytes
+		p.prepared = p.prepared[1:]
+	}
+	return prep, folds, nil
+}
+
+// prepareAnew is prepare without reuse.
+func (p *Plan) prepareAnew(ri int) (*train.Prepared, [][3][]int, error) {
 	rec := p.Recordings[ri]
 	start := time.Now()
 	prep, err := train.Prepare(rec.Cfg)
@@ -260,10 +308,12 @@ func (p *Plan) CheckData(units []Unit) error {
 // RunUnits runs the given units that are not done yet and writes their
 // results with their fingerprints; a finished unit is reused only when
 // its fingerprint matches (otherwise a *StaleError). Units of one
-// recording share its loaded data; up to workers units run at once (0: all
-// cores). Results do not depend on the order or the number of workers.
-// Before each result is written the recording's files are checked to be
-// unchanged since they were loaded.
+// recording share its loaded data, and the units of one fold its
+// per-condition statistics and test sums (train.Fold): they run fold by
+// fold, and a fold's shared data are dropped when its last unit is done.
+// Up to workers units run at once (0: all cores). Results do not depend on
+// the order or the number of workers. Before each result is written the
+// recording's files are checked to be unchanged since they were loaded.
 func (p *Plan) RunUnits(ctx context.Context, units []Unit, workers int, progress Progress) error {
 	if workers <= 0 {
 		workers = runtime.GOMAXPROCS(0)
@@ -292,6 +342,14 @@ func (p *Plan) RunUnits(ctx context.Context, units []Unit, workers int, progress
 				}
 			}
 		}
+		// Fold by fold (the plan lists them model by model), so that few
+		// folds' shared data are alive at once.
+		slices.SortStableFunc(todo, func(a, b Unit) int { return a.Fold - b.Fold })
+		shared := map[int]*train.Fold{}
+		left := map[int]int{}
+		for _, u := range todo {
+			left[u.Fold]++
+		}
 		var mu sync.Mutex
 		var firstErr error
 		next := 0
@@ -306,9 +364,17 @@ func (p *Plan) RunUnits(ctx context.Context, units []Unit, workers int, progress
 					}
 					u := todo[next]
 					next++
+					fold := shared[u.Fold]
+					if fold == nil {
+						fold = train.NewFold(prep, folds[u.Fold])
+						shared[u.Fold] = fold
+					}
 					mu.Unlock()
-					err := p.runOne(ctx, prep, rec, u, folds[u.Fold], files)
+					err := p.runOne(ctx, prep, rec, u, fold, files)
 					mu.Lock()
+					if left[u.Fold]--; left[u.Fold] == 0 {
+						delete(shared, u.Fold)
+					}
 					if err != nil && firstErr == nil {
 						firstErr = err
 					}
@@ -339,13 +405,13 @@ func (p *Plan) recErr(rec RecordingPlan, err error) error {
 	return fmt.Errorf("recording %s: %w", rec.Name, err)
 }
 
-func (p *Plan) runOne(ctx context.Context, prep *train.Prepared, rec RecordingPlan, u Unit, sets [3][]int, files []format.FileID) error {
+func (p *Plan) runOne(ctx context.Context, prep *train.Prepared, rec RecordingPlan, u Unit, fold *train.Fold, files []format.FileID) error {
 	if err := comparefolder.RemoveFoldResultTemps(p.Dir(), u.ID); err != nil {
 		return err
 	}
 	start := time.Now()
 	spec := rec.Specs[u.Spec]
-	r, err := train.RunUnit(ctx, prep, spec, u.Fold, sets)
+	r, err := train.RunFoldUnit(ctx, spec, u.Fold, fold)
 	if err != nil {
 		return p.recErr(rec, err)
 	}
