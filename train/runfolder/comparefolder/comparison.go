@@ -1,6 +1,7 @@
 package comparefolder
 
 import (
+	"bufio"
 	"encoding/csv"
 	"encoding/gob"
 	"errors"
@@ -790,7 +791,7 @@ func WriteFoldResult(dir string, r *FoldResult) error {
 	if err := runfolder.MakeFolder(filepath.Dir(path)); err != nil {
 		return err
 	}
-	return runfolder.WriteFile(path, func(w io.Writer) error { return gob.NewEncoder(w).Encode(r) })
+	return runfolder.WriteFile(path, func(w io.Writer) error { return gob.NewEncoder(w).Encode(packFoldResult(r)) })
 }
 
 // RemoveFoldResultTemps removes the temporary files a killed write of
@@ -818,9 +819,13 @@ func ReadFoldResult(dir, id string) (*FoldResult, error) {
 		return nil, err
 	}
 	defer f.Close()
-	var r FoldResult
-	if err := gob.NewDecoder(f).Decode(&r); err != nil {
+	var ff foldResultFile
+	if err := gob.NewDecoder(bufio.NewReaderSize(f, 1<<20)).Decode(&ff); err != nil {
 		return nil, fmt.Errorf("%s: %w (delete it and run its array task again)", path, err)
 	}
-	return &r, nil
+	r, err := ff.unpack()
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w (delete it and run its array task again)", path, err)
+	}
+	return r, nil
 }
