@@ -4,9 +4,12 @@ import (
 	"fmt"
 	"math"
 	"path/filepath"
+	"runtime"
 	"slices"
 	"strconv"
 	"strings"
+	"sync"
+	"sync/atomic"
 	"time"
 
 	"github.com/strialab/stria/data/condstats"
@@ -198,23 +201,29 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefol
 	if p.Axis.Periodic {
 		period = p.Axis.Max - p.Axis.Min
 	}
-	r := make([]float64, nb)
-	for _, src := range append([]string{"data"}, names...) {
-		curve := means
-		if src != "data" {
-			curve = f.Curves[src]
-		}
-		for j := 0; j < n; j++ {
-			if excluded[j] {
-				f.Descriptors = append(f.Descriptors, comparefolder.Descriptor{Source: src, Neuron: j, Descriptors: NaNDescriptors()})
-				continue
+	// Each neuron on its own, in parallel, into its fixed row (source by
+	// source, neurons in order): the rows do not depend on the cores.
+	sources := append([]string{"data"}, names...)
+	f.Descriptors = make([]comparefolder.Descriptor, len(sources)*n)
+	eachNeuronRange(n, func(lo, hi int) {
+		r := make([]float64, nb)
+		for si, src := range sources {
+			curve := means
+			if src != "data" {
+				curve = f.Curves[src]
 			}
-			for b := 0; b < nb; b++ {
-				r[b] = curve[b*n+j]
+			for j := lo; j < hi; j++ {
+				d := comparefolder.Descriptor{Source: src, Neuron: j, Descriptors: NaNDescriptors()}
+				if !excluded[j] {
+					for b := 0; b < nb; b++ {
+						r[b] = curve[b*n+j]
+					}
+					d.Descriptors = tuning.Describe(r, values, period)
+				}
+				f.Descriptors[si*n+j] = d
 			}
-			f.Descriptors = append(f.Descriptors, comparefolder.Descriptor{Source: src, Neuron: j, Descriptors: tuning.Describe(r, values, period)})
 		}
-	}
+	})
 	start = tm.Since("gather: tuning descriptors", start)
 	info := comparefolder.ComparisonInfo{Models: names, Encoders: encoders, Folds: c.Folds, Neurons: n, Excluded: map[string]string{},
 		Ceilings: runfolder.CeilingCounts(ceilingVerdicts(c.Ceiling), func(j int) bool { return excluded[j] }), FoldCeilings: c.FoldCeilings,
@@ -294,4 +303,27 @@ func compareWarnings(w []string) []string {
 		}
 	}
 	return out
+}
+
+// eachNeuronRange calls fn on consecutive ranges of the n neurons, the
+// ranges in parallel on all cores (fn must only write what belongs to its
+// neurons).
+func eachNeuronRange(n int, fn func(lo, hi int)) {
+	const chunk = 512
+	var wg sync.WaitGroup
+	var next atomic.Int64
+	for range min(runtime.GOMAXPROCS(0), (n+chunk-1)/chunk) {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for {
+				lo := int(next.Add(chunk) - chunk)
+				if lo >= n {
+					return
+				}
+				fn(lo, min(lo+chunk, n))
+			}
+		}()
+	}
+	wg.Wait()
 }
