@@ -59,9 +59,12 @@ func (p *Plan) Gather() ([]*comparefolder.Comparison, error) {
 			if u.Rec != ri {
 				continue
 			}
-			r, err := p.checkDone(u, files)
-			if err != nil {
-				return nil, err
+			r := p.ran[u.ID] // run and written by this plan: its fingerprint is the plan's
+			if r == nil {
+				var err error
+				if r, err = p.checkDone(u, files); err != nil {
+					return nil, err
+				}
 			}
 			if len(r.Scores) != prep.Neurons() {
 				return nil, fmt.Errorf("unit %s has %d neurons, the recording has %d: was the data changed?", u.ID, len(r.Scores), prep.Neurons())

@@ -56,6 +56,12 @@ type Plan struct {
 	// prepared keeps recordings already loaded, checked and hashed, for
 	// the next phase (Check, RunUnits, Gather) to reuse; see prepare.
 	prepared []*preparedRecording
+
+	// ran holds the results this plan's RunUnits wrote for the recording
+	// it ran last, as written (WriteFoldResult), by unit id: Gather uses
+	// them instead of reading them back.
+	ranMu sync.Mutex
+	ran   map[string]*comparefolder.FoldResult
 }
 
 // preparedRecording is a recording prepared by Plan.prepare, with its folds.
@@ -321,6 +327,7 @@ func (p *Plan) RunUnits(ctx context.Context, units []Unit, workers int, progress
 	order, byRec := byRecording(units)
 	for _, ri := range order {
 		rec := p.Recordings[ri]
+		p.ran = map[string]*comparefolder.FoldResult{} // only the last recording's are kept
 		var todo []Unit
 		for _, u := range byRec[ri] {
 			if !p.Done(u) {
@@ -426,8 +433,15 @@ func (p *Plan) runOne(ctx context.Context, prep *train.Prepared, rec RecordingPl
 	if err := prep.Rec.Unchanged(); err != nil {
 		return p.recErr(rec, err)
 	}
-	return comparefolder.WriteFoldResult(p.Dir(), &comparefolder.FoldResult{ID: u.ID, Model: r.Model, Fold: r.Fold, Scores: r.Scores, Curves: r.Curves, Epochs: r.Epochs,
-		Fingerprint: p.fingerprint(u, files)})
+	fr := &comparefolder.FoldResult{ID: u.ID, Model: r.Model, Fold: r.Fold, Scores: r.Scores, Curves: r.Curves, Epochs: r.Epochs,
+		Fingerprint: p.fingerprint(u, files)}
+	if err := comparefolder.WriteFoldResult(p.Dir(), fr); err != nil {
+		return err
+	}
+	p.ranMu.Lock()
+	p.ran[u.ID] = fr
+	p.ranMu.Unlock()
+	return nil
 }
 
 // Missing lists the ids of the units without a result.

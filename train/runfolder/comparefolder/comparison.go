@@ -792,8 +792,11 @@ func HasFoldResult(dir, id string) bool {
 	return err == nil
 }
 
-// WriteFoldResult writes a unit's result atomically.
+// WriteFoldResult writes a unit's result atomically. Scores of -0 are set
+// to 0 in r first (see foldResultFile), so that r then equals what
+// ReadFoldResult reads back.
 func WriteFoldResult(dir string, r *FoldResult) error {
+	zeroNegativeZeros(r.Scores)
 	path := FoldResultPath(dir, r.ID)
 	if err := runfolder.MakeFolder(filepath.Dir(path)); err != nil {
 		return err

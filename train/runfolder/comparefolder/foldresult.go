@@ -56,6 +56,19 @@ var scoreFields = func() []string {
 	return names
 }()
 
+// zeroNegativeZeros sets the scores of -0 to 0, as gob stored them (it
+// leaves a zero field out) before fold results were packed.
+func zeroNegativeZeros(scores []eval.Scores) {
+	for j := range scores {
+		v := reflect.ValueOf(&scores[j]).Elem()
+		for i := range scoreFields {
+			if v.Field(i).Float() == 0 {
+				v.Field(i).SetFloat(0)
+			}
+		}
+	}
+}
+
 // packFoldResult returns r in its on-disk form.
 func packFoldResult(r *FoldResult) *foldResultFile {
 	f := &foldResultFile{ID: r.ID, Model: r.Model, Fold: r.Fold, Epochs: r.Epochs, Fingerprint: r.Fingerprint,
@@ -65,11 +78,7 @@ func packFoldResult(r *FoldResult) *foldResultFile {
 	for j := range r.Scores {
 		v := reflect.ValueOf(&r.Scores[j]).Elem()
 		for i := 0; i < k; i++ {
-			x := v.Field(i).Float()
-			if x == 0 {
-				x = 0 // -0 as +0: gob stored a score of -0 as 0 (a zero field is left out)
-			}
-			binary.LittleEndian.PutUint64(f.ScoreBits[8*(j*k+i):], math.Float64bits(x))
+			binary.LittleEndian.PutUint64(f.ScoreBits[8*(j*k+i):], math.Float64bits(v.Field(i).Float()))
 		}
 	}
 	f.CurveBits = make([]byte, 8*len(r.Curves))
