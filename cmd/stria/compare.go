@@ -26,7 +26,7 @@ func compareCommand() *cli.Command {
 		ArgsUsage: " ",
 		Flags: append(dataFlags(),
 			&cli.IntFlag{Name: "array-task", Usage: "run only array task `I` (1-based) of --array-task-count, then stop; when every task has run: stria gather FOLDER"},
-			&cli.IntFlag{Name: "array-task-count", Usage: "the number `N` of array tasks the units are dealt to (every N-th unit goes to one task)"},
+			&cli.IntFlag{Name: "array-task-count", Usage: "the number `N` of array tasks the units are dealt to (each task runs a run of consecutive units: a few recordings, fold by fold)"},
 			&cli.IntFlag{Name: "workers", Usage: "units run at once (0: one per core)"},
 			&cli.IntFlag{Name: "slurm-script", Usage: "print a Slurm job-array script for `N` array tasks and exit"},
 			&cli.BoolFlag{Name: "overwrite", Usage: "start the comparison folder afresh: its files, finished units included, are deleted first"},

@@ -8,7 +8,8 @@
 //
 // Conventions: models are listed encoders first, baselines last; folds are
 // numbered from 0 in code and from 1 in ids and files; array tasks are
-// numbered from 1 (task I of N runs every N-th unit, starting at the I-th).
+// numbered from 1 (task I of N runs the I-th of N runs of consecutive
+// units, ordered by recording, fold and model; see Plan.ArrayTask).
 // Results do not depend on the number of workers or array tasks: each unit
 // is seeded by the config, not by the order it runs in.
 //

@@ -192,20 +192,32 @@ func (p *Plan) Dir() string { return p.Cfg.Compare.Output }
 // Done reports whether a unit's result is already on disk.
 func (p *Plan) Done(u Unit) bool { return comparefolder.HasFoldResult(p.Dir(), u.ID) }
 
-// ArrayTask returns the units of array task i of n (1-based): every n-th
-// unit, starting at the i-th. It panics unless 1 <= i <= n; check the
+// ArrayTask returns the units of array task i of n (1-based): the plan's
+// units ordered by recording, then fold, then model, cut into n runs of
+// consecutive units as equal in number as can be (the first ones one unit
+// longer), the i-th of them. A task so touches as few recordings as the
+// split allows (with many recordings, each is loaded, checked and hashed
+// by one or two tasks, not by every task), and the models of a fold share
+// its statistics (train.Fold). It panics unless 1 <= i <= n; check the
 // numbers with CheckArrayTask first.
 func (p *Plan) ArrayTask(i, n int) []Unit {
 	if err := CheckArrayTask(i, n); err != nil {
 		panic("compare: " + err.Error())
 	}
-	var out []Unit
-	for k, u := range p.Units {
-		if k%n == i-1 {
-			out = append(out, u)
+	order := slices.Clone(p.Units)
+	slices.SortStableFunc(order, func(a, b Unit) int {
+		if a.Rec != b.Rec {
+			return a.Rec - b.Rec
 		}
+		return a.Fold - b.Fold
+	})
+	size, extra := len(order)/n, len(order)%n
+	lo := (i-1)*size + min(i-1, extra)
+	hi := lo + size
+	if i <= extra {
+		hi++
 	}
-	return out
+	return order[lo:hi]
 }
 
 // Progress receives a line per finished unit.
