@@ -88,6 +88,7 @@ func gatherCommand() *cli.Command {
 		Name:      "gather",
 		Usage:     "check that every unit of a comparison run as array tasks is done and write its outputs",
 		ArgsUsage: "COMPARE_FOLDER",
+		Flags:     []cli.Flag{&cli.BoolFlag{Name: "timings", Usage: "print the wall time of each phase to stderr at the end"}},
 		Action: func(c *cli.Context) error {
 			if err := oneFolderArg(c); err != nil {
 				return err
@@ -103,9 +104,17 @@ func gatherCommand() *cli.Command {
 			if cfg.Compare.Output, err = filepath.Abs(dir); err != nil {
 				return err
 			}
+			start := time.Now()
 			plan, err := compare.NewPlan(cfg)
 			if err != nil {
 				return err
+			}
+			if c.Bool("timings") {
+				plan.Timings = compare.NewTimings()
+				defer func() {
+					plan.Timings.Since("stria gather, wall time in all", start)
+					plan.Timings.Write(c.App.ErrWriter)
+				}()
 			}
 			lock, note, err := runfolder.AcquireLock(dir, strings.Join(os.Args, " "))
 			if err != nil {

@@ -1,6 +1,7 @@
 package compare
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"path/filepath"
@@ -54,25 +55,41 @@ func (p *Plan) Gather() ([]*comparefolder.Comparison, error) {
 		}
 		files := prep.Rec.Files()
 		start := time.Now()
-		var results []*comparefolder.FoldResult
+		var units []Unit
 		for _, u := range p.Units {
-			if u.Rec != ri {
+			if u.Rec == ri {
+				units = append(units, u)
+			}
+		}
+		// Read (a few at a time), then checked in plan order.
+		results := make([]*comparefolder.FoldResult, len(units))
+		readErrs := make([]error, len(units))
+		var wg sync.WaitGroup
+		sem := make(chan struct{}, 4)
+		for i, u := range units {
+			results[i] = p.ran[u.ID] // run and written by this plan: its fingerprint is the plan's
+			if results[i] != nil {
 				continue
 			}
-			r := p.ran[u.ID] // run and written by this plan: its fingerprint is the plan's
-			if r == nil {
-				var err error
-				if r, err = p.checkDone(u, files); err != nil {
-					return nil, err
-				}
+			wg.Add(1)
+			sem <- struct{}{}
+			go func() {
+				defer func() { <-sem; wg.Done() }()
+				results[i], readErrs[i] = p.checkDone(u, files)
+			}()
+		}
+		wg.Wait()
+		for i, u := range units {
+			if readErrs[i] != nil {
+				return nil, readErrs[i]
 			}
+			r := results[i]
 			if len(r.Scores) != prep.Neurons() {
 				return nil, fmt.Errorf("unit %s has %d neurons, the recording has %d: was the data changed?", u.ID, len(r.Scores), prep.Neurons())
 			}
 			if want := prep.NBins * prep.Neurons(); len(r.Curves) != want {
 				return nil, fmt.Errorf("unit %s has %d curve values, want %d (bins x neurons): was the data changed?", u.ID, len(r.Curves), want)
 			}
-			results = append(results, r)
 		}
 		start = p.Timings.Since("gather: read fold results", start)
 		var folder *comparefolder.ComparisonFolder
@@ -93,22 +110,32 @@ func (p *Plan) Gather() ([]*comparefolder.Comparison, error) {
 	if err := p.Begin(); err != nil {
 		return nil, err
 	}
-	var cmps []*comparefolder.Comparison
+	// The recordings' folders are written a few at a time (each file
+	// atomically, and flushed to disk: with many recordings the writes
+	// would otherwise wait on one another).
+	cmps := make([]*comparefolder.Comparison, len(p.Recordings))
+	errs := make([]error, len(p.Recordings))
+	sem := make(chan struct{}, 4)
+	var wg sync.WaitGroup
 	for ri, rec := range p.Recordings {
 		folder := folders[ri]
+		cmps[ri] = folder.Result
 		dir := out
 		if rec.Name != "" {
 			dir = filepath.Join(out, rec.Name)
 		}
-		if err := comparefolder.WriteComparison(dir, folder); err != nil {
-			return nil, err
-		}
-		if rec.Name != "" {
-			if err := runfolder.Finish(dir, runfolder.FormatComparison); err != nil {
-				return nil, err
+		wg.Add(1)
+		sem <- struct{}{}
+		go func() {
+			defer func() { <-sem; wg.Done() }()
+			if errs[ri] = comparefolder.WriteComparison(dir, folder); errs[ri] == nil && rec.Name != "" {
+				errs[ri] = runfolder.Finish(dir, runfolder.FormatComparison)
 			}
-		}
-		cmps = append(cmps, folder.Result)
+		}()
+	}
+	wg.Wait()
+	if err := errors.Join(errs...); err != nil {
+		return nil, err
 	}
 	start = p.Timings.Since("gather: write comparison folders", start)
 	if len(p.Recordings) > 1 {
