@@ -188,6 +188,13 @@ func (f *curveFit) solveLinear(c []float64, n int) {
 		h[1] += wi * a * y[i]
 		h[2] += wi * b * y[i]
 	}
+	solve3(c, &G, &h)
+}
+
+// solve3 solves the 3 x 3 normal equations G c = h of solveLinear's two-peak
+// case, with its tiny relative ridge on the non-constant columns (G is
+// changed), by Cholesky (upper triangle used).
+func solve3(c []float64, G *[3][3]float64, h *[3]float64) {
 	G[1][1] += 1e-12 * (G[1][1] + 1e-300)
 	G[2][2] += 1e-12 * (G[2][2] + 1e-300)
 	// Cholesky of the 3 x 3 symmetric positive definite G (upper triangle used).
@@ -228,6 +235,9 @@ func (f *curveFit) solveLinear(c []float64, n int) {
 // objective returns the projected weighted SSE at p and, if grad != nil, its
 // gradient.
 func (f *curveFit) objective(grad, p []float64, n int) float64 {
+	if f.kind != kindGauss {
+		return f.objectiveVonMises(grad, p, n)
+	}
 	_, _, clip0, clip1 := f.basis(p, n)
 	var c [3]float64
 	f.solveLinear(c[:], n)
