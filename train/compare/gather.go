@@ -235,6 +235,7 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefol
 	// source, neurons in order): the rows do not depend on the cores.
 	sources := append([]string{"data"}, names...)
 	f.Descriptors = make([]comparefolder.Descriptor, len(sources)*n)
+	describer := tuning.NewDescriber(values, period)
 	eachNeuronRange(n, func(lo, hi int) {
 		r := make([]float64, nb)
 		for si, src := range sources {
@@ -248,7 +249,7 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefol
 					for b := 0; b < nb; b++ {
 						r[b] = curve[b*n+j]
 					}
-					d.Descriptors = tuning.Describe(r, values, period)
+					d.Descriptors = describer.Describe(r)
 				}
 				f.Descriptors[si*n+j] = d
 			}
