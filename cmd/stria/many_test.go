@@ -93,4 +93,20 @@ compare:
 		t.Fatalf("gather: %v\n%s", err, out)
 	}
 	sameOutputs(t, full, outputs(t, tasks), fmt.Sprintf("%d recordings as 7 array tasks", n))
+	if testing.Short() {
+		return
+	}
+	// The report over 50 recordings holds the tables only (export.ManyReportRecordings).
+	rep := filepath.Join(dir, "many-report.html")
+	if out, err := runCLI(t, "report", "--out", rep, tasks); err != nil {
+		t.Fatalf("report: %v\n%s", err, out)
+	}
+	html, err := os.ReadFile(rep)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !bytes.Contains(html, []byte("this report holds the tables only")) || bytes.Contains(html, []byte("Recording s01-responses")) || len(html) > 2<<20 {
+		t.Errorf("report over %d recordings: %d bytes, the note %v, a section per recording %v", n, len(html),
+			bytes.Contains(html, []byte("this report holds the tables only")), bytes.Contains(html, []byte("Recording s01-responses")))
+	}
 }
