@@ -61,11 +61,12 @@ func (p *Plan) Gather() ([]*comparefolder.Comparison, error) {
 				units = append(units, u)
 			}
 		}
-		// Read (a few at a time), then checked in plan order.
+		// Read 16 at a time (reading files no longer in the page cache
+		// waits on the disk, not the cores), then checked in plan order.
 		results := make([]*comparefolder.FoldResult, len(units))
 		readErrs := make([]error, len(units))
 		var wg sync.WaitGroup
-		sem := make(chan struct{}, 4)
+		sem := make(chan struct{}, 16)
 		for i, u := range units {
 			results[i] = p.ran[u.ID] // run and written by this plan: its fingerprint is the plan's
 			if results[i] != nil {
