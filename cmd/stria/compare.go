@@ -190,7 +190,7 @@ func runCompare(ctx context.Context, cfg *settings.Config, stdout, stderr io.Wri
 	if err := check(); err != nil {
 		return nil, err
 	}
-	phase = plan.Timings.Since("check (wall)", phase)
+	plan.Timings.Since("check (wall)", phase)
 	if o.tasks == 0 {
 		lock, note, err := runfolder.AcquireLock(out, strings.Join(os.Args, " "))
 		if err != nil {

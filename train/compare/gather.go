@@ -143,7 +143,7 @@ func (p *Plan) Gather() ([]*comparefolder.Comparison, error) {
 		if err := comparefolder.WriteAcross(out, comparefolder.NewAcross(cmps, Pool(cmps))); err != nil {
 			return nil, err
 		}
-		start = p.Timings.Since("gather: pool and write the tables across recordings", start)
+		p.Timings.Since("gather: pool and write the tables across recordings", start)
 	}
 	if err := runfolder.Finish(out, runfolder.FormatComparison); err != nil {
 		return nil, err
@@ -256,7 +256,7 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefol
 			}
 		}
 	})
-	start = tm.Since("gather: tuning descriptors", start)
+	tm.Since("gather: tuning descriptors", start)
 	info := comparefolder.ComparisonInfo{Models: names, Encoders: encoders, Folds: c.Folds, Neurons: n, Excluded: map[string]string{},
 		Ceilings: runfolder.CeilingCounts(ceilingVerdicts(c.Ceiling), func(j int) bool { return excluded[j] }), FoldCeilings: c.FoldCeilings,
 		Reliable: Reliable(c), MinReliability: c.MinReliability,
