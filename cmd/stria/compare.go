@@ -175,6 +175,8 @@ func runCompare(ctx context.Context, cfg *settings.Config, stdout, stderr io.Wri
 	units := plan.Units
 	if o.tasks > 0 {
 		units = plan.ArrayTask(o.task, o.tasks)
+	} else {
+		plan.KeepResults = true // this run gathers next
 	}
 	out := cfg.Compare.Output
 	if err := checkCompareFolder(out, cfg, o); err != nil {

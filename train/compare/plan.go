@@ -57,9 +57,14 @@ type Plan struct {
 	// the next phase (Check, RunUnits, Gather) to reuse; see prepare.
 	prepared []*preparedRecording
 
-	// ran holds the results this plan's RunUnits wrote for the recording
-	// it ran last, as written (WriteFoldResult), by unit id: Gather uses
-	// them instead of reading them back.
+	// KeepResults makes RunUnits keep the results it writes for the
+	// recording it runs last, for Gather to use instead of reading them
+	// back (set it when the same plan gathers next; an array task does
+	// not).
+	KeepResults bool
+
+	// ran holds the results kept by KeepResults, as written
+	// (WriteFoldResult), by unit id.
 	ranMu sync.Mutex
 	ran   map[string]*comparefolder.FoldResult
 }
@@ -450,9 +455,11 @@ func (p *Plan) runOne(ctx context.Context, prep *train.Prepared, rec RecordingPl
 	if err := comparefolder.WriteFoldResult(p.Dir(), fr); err != nil {
 		return err
 	}
-	p.ranMu.Lock()
-	p.ran[u.ID] = fr
-	p.ranMu.Unlock()
+	if p.KeepResults {
+		p.ranMu.Lock()
+		p.ran[u.ID] = fr
+		p.ranMu.Unlock()
+	}
 	return nil
 }
 

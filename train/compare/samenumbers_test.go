@@ -7,6 +7,7 @@ import (
 	"encoding/hex"
 	"encoding/json"
 	"flag"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -202,9 +203,24 @@ func sameNumbersDigests(t *testing.T, p *Plan) map[string]string {
 // TestSameNumbers guards every number of a comparison against the values
 // of the implementation before it was made faster (expected.json; see the
 // comment on updateNumbers).
+//
+// The comparison runs twice: gather using the results the run kept
+// (KeepResults, as stria compare does) and reading them back from disk (as
+// stria gather does after array tasks).
 func TestSameNumbers(t *testing.T) {
-	p := sameNumbersPlan(t)
-	got := sameNumbersDigests(t, p)
+	for _, keep := range []bool{true, false} {
+		t.Run(fmt.Sprintf("keep results %v", keep), func(t *testing.T) {
+			p := sameNumbersPlan(t)
+			p.KeepResults = keep
+			checkSameNumbers(t, sameNumbersDigests(t, p))
+		})
+		if *updateNumbers {
+			return
+		}
+	}
+}
+
+func checkSameNumbers(t *testing.T, got map[string]string) {
 	path := filepath.Join(sameNumbersDir, "expected.json")
 	if *updateNumbers {
 		b, err := json.MarshalIndent(got, "", "  ")
