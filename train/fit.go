@@ -428,6 +428,10 @@ func Fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (f *
 
 func fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
 	cfg := p.Cfg
+	if p.Parts != nil {
+		// PrepareParts accepted the config: the projected MSE solver.
+		return fitProjected(ctx, p, hooks, resume)
+	}
 	if cfg.SolverToRun() == settings.SolverProjected {
 		if cfg.Model.Loss == settings.Poisson {
 			return fitPoissonProjected(ctx, p, hooks, resume)

@@ -12,6 +12,14 @@ import (
 
 // problem reduces a prepared recording to what the projected solvers read.
 func (p *Prepared) problem() projection.Problem {
+	if p.Parts != nil {
+		return projection.Problem{
+			TrainParts: p.Parts.Train, ValParts: p.Parts.Val, Norm: p.Norm,
+			Penalty:    p.Cfg.Model.ReadoutL2.Value,
+			NeuronName: p.Rec.NeuronName,
+			BinLabel:   p.Axis.BinLabel,
+		}
+	}
 	return projection.Problem{
 		Train: p.TrainStats(), Val: p.ValStats(), Norm: p.Norm,
 		Penalty:    p.Cfg.Model.ReadoutL2.Value,

@@ -36,6 +36,15 @@ type StreamPlan struct {
 	Part []int
 	// Specs holds one entry per part.
 	Specs []PartSpec
+	// AllHalves also keeps the split-half sums over all the trials of
+	// all parts (the split-half reliability over all trials): within each
+	// condition the trials of every part, in ascending index order, are
+	// dealt alternately to half A and half B. AccumulateParts then returns
+	// one more PartStats after the parts, holding Count, CountA, Ref,
+	// RefCond and SumA of that dealing (Sum, TotSq and SumSq nil), with
+	// Ref the response of the first trial of any part; its half B's sums
+	// follow from the parts' sums (see AllSums).
+	AllHalves bool
 }
 
 // PartOf returns the part of each of T trials: trials listed in sets[i]
@@ -465,7 +474,7 @@ func AccumulateParts(s *format.NPYStream, plan StreamPlan, opt StreamOptions) ([
 	if p, n := acc.finish(); p >= 0 {
 		return nil, nonFiniteErr(s, plan.Part, p, n)
 	}
-	return acc.parts, nil
+	return acc.result(), nil
 }
 
 // AccumulatePartsMatrix is AccumulateParts for a recording already in
@@ -499,7 +508,7 @@ func AccumulatePartsMatrix(y *format.Matrix, plan StreamPlan, opt StreamOptions)
 		}
 		return nil, fmt.Errorf("data: responses: neuron %d (0-based) has sums of squares too large for float64", n)
 	}
-	return acc.parts, nil
+	return acc.result(), nil
 }
 
 // newAccumulator checks plan against a recording of T trials and N
@@ -524,6 +533,17 @@ func newAccumulator(plan *StreamPlan, T, N int, name string) (*accumulator, []in
 	}
 	// half[t]: trial t goes to half A of its part's condition.
 	half := make([]bool, T)
+	var all *PartStats
+	var allHalf []bool
+	var allCntA [][]int
+	if plan.AllHalves {
+		all = &PartStats{B: B, N: N, Count: make([]int, B), CountA: make([]int, B), RefCond: -1}
+		allHalf = make([]bool, T)
+		allCntA = make([][]int, P)
+		for i := range allCntA {
+			allCntA[i] = make([]int, B)
+		}
+	}
 	for t, p := range plan.Part {
 		if p == NoPart {
 			continue
@@ -543,6 +563,22 @@ func newAccumulator(plan *StreamPlan, T, N int, name string) (*accumulator, []in
 			first[p] = t
 			ps.RefCond = c
 		}
+		if all != nil {
+			allHalf[t] = all.Count[c]%2 == 0
+			if allHalf[t] {
+				all.CountA[c]++
+				allCntA[p][c]++
+			}
+			all.Count[c]++
+			all.Trials++
+			if all.RefCond < 0 {
+				all.RefCond = c
+				first = append(first, t) // the reference row of all
+			}
+		}
+	}
+	if all != nil && all.RefCond < 0 {
+		first = append(first, -1)
 	}
 	big := func(n int) []float64 {
 		v := make([]float64, n)
@@ -564,14 +600,38 @@ func newAccumulator(plan *StreamPlan, T, N int, name string) (*accumulator, []in
 			}
 		}
 	}
-	return &accumulator{parts: parts, plan: plan, half: half, N: N}, first, nil
+	if all != nil {
+		all.Ref = make([]float64, N)
+		all.SumA = big(B * N)
+	}
+	return &accumulator{parts: parts, plan: plan, half: half, N: N, all: all, allHalf: allHalf, allCntA: allCntA}, first, nil
 }
 
-// setRef sets part i's reference to row.
+// setRef sets part i's reference to row (i == len(parts): the reference
+// of the dealing over all trials).
 func (a *accumulator) setRef(i int, row []float32) {
+	ref := a.all.refOf(i, a.parts)
 	for n, v := range row {
-		a.parts[i].Ref[n] = float64(v)
+		ref[n] = float64(v)
 	}
+}
+
+// refOf returns the reference of part i, or of all (receiver) for i ==
+// len(parts).
+func (all *PartStats) refOf(i int, parts []*PartStats) []float64 {
+	if i < len(parts) {
+		return parts[i].Ref
+	}
+	return all.Ref
+}
+
+// result returns the parts, followed by the dealing over all trials when
+// kept.
+func (a *accumulator) result() []*PartStats {
+	if a.all == nil {
+		return a.parts
+	}
+	return append(a.parts[:len(a.parts):len(a.parts)], a.all)
 }
 
 // addParallel adds the values held in y, rows [lo, hi) x neurons
@@ -598,6 +658,22 @@ func (a *accumulator) addParallel(y []float32, lo, hi, y0, y1, workers int) erro
 // first part and neuron whose sums are not finite, or -1, -1.
 func (a *accumulator) finish() (part, neuron int) {
 	N := a.N
+	if all := a.all; all != nil {
+		// SumA holds sums of y - r_p over the half-A trials of each part p:
+		// add N_pb (r_p - r_all) to refer them to all.Ref.
+		for p, ps := range a.parts {
+			for b, k := range a.allCntA[p] {
+				if k == 0 {
+					continue
+				}
+				c := float64(k)
+				sa := all.SumA[b*N : (b+1)*N]
+				for n := range sa {
+					sa[n] += c * (ps.Ref[n] - all.Ref[n])
+				}
+			}
+		}
+	}
 	for i, ps := range a.parts {
 		if ps.SumSq != nil {
 			for b := 0; b < ps.B; b++ {
@@ -639,6 +715,12 @@ type accumulator struct {
 	plan  *StreamPlan
 	half  []bool
 	N     int
+	// With plan.AllHalves: all holds the dealing over all trials; allHalf[t]
+	// says trial t goes to its half A. Its SumA is summed relative to each
+	// trial's own part reference and corrected to all.Ref by finish.
+	all     *PartStats
+	allHalf []bool
+	allCntA [][]int // [part][condition] trials of half A (all trials) per part
 }
 
 // anyPart reports whether a trial of [lo, hi) belongs to a part.
@@ -681,11 +763,20 @@ func (a *accumulator) add(y []float32, lo, hi, y0, y1, c0, c1 int) {
 		} else {
 			sq = ps.TotSq[c0:c1:c1]
 		}
-		if ps.SumA != nil && a.half[t] {
-			addRowHalf(sum, sq, ps.SumA[o:o+w:o+w], row, ref)
-			continue
+		var allA []float64
+		if a.all != nil && a.allHalf[t] {
+			allA = a.all.SumA[o : o+w : o+w]
 		}
-		addRow(sum, sq, row, ref)
+		switch {
+		case ps.SumA != nil && a.half[t] && allA != nil:
+			addRowHalf2(sum, sq, ps.SumA[o:o+w:o+w], allA, row, ref)
+		case ps.SumA != nil && a.half[t]:
+			addRowHalf(sum, sq, ps.SumA[o:o+w:o+w], row, ref)
+		case allA != nil:
+			addRowHalf(sum, sq, allA, row, ref)
+		default:
+			addRow(sum, sq, row, ref)
+		}
 	}
 }
 
@@ -713,6 +804,49 @@ func addRowHalf(sum, sq, sa []float64, row []float32, ref []float64) {
 		sq[j] += d * d
 		sa[j] += d
 	}
+}
+
+// addRowHalf2 is addRowHalf that also adds d to sb.
+func addRowHalf2(sum, sq, sa, sb []float64, row []float32, ref []float64) {
+	sum = sum[:len(row)]
+	sq = sq[:len(row)]
+	sa = sa[:len(row)]
+	sb = sb[:len(row)]
+	ref = ref[:len(row)]
+	for j, v := range row {
+		d := float64(v) - ref[j]
+		sum[j] += d
+		sq[j] += d * d
+		sa[j] += d
+		sb[j] += d
+	}
+}
+
+// AllSums writes into dst (B x N; allocated if nil) the sums over all the
+// trials of parts, per condition, relative to all.Ref (all is the extra
+// PartStats of StreamPlan.AllHalves): sum_p Sum_p + N_pb (r_p - r_all),
+// adding the parts in order. Half B's sums are AllSums - all.SumA. It
+// panics if the shapes differ.
+func AllSums(dst []float64, all *PartStats, parts ...*PartStats) []float64 {
+	dst = all.dstBN(dst, "AllSums")
+	clear(dst)
+	N := all.N
+	for _, ps := range parts {
+		if ps.N != N || ps.B != all.B {
+			panic(fmt.Sprintf("data: AllSums parts of %dx%d and %dx%d", ps.B, ps.N, all.B, all.N))
+		}
+		for b, k := range ps.Count {
+			if k == 0 {
+				continue
+			}
+			c := float64(k)
+			d := dst[b*N : (b+1)*N]
+			for n, s := range ps.Sum[b*N : (b+1)*N] {
+				d[n] += s + c*(ps.Ref[n]-all.Ref[n])
+			}
+		}
+	}
+	return dst
 }
 
 // ConstantNeurons returns, in ascending order, the neurons whose response

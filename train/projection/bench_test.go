@@ -61,7 +61,7 @@ func benchPenalty(b *testing.B, noise float64) {
 		b.ReportMetric(gapShare(r2, cm, or), "gap_"+name)
 		b.ReportMetric(nanMedian(r2), "r2_"+name)
 	}
-	within := trainWithinN(&p.pr)
+	within := trainWithinN(&p.pr, &projector{})
 	for range b.N {
 		b.ReportMetric(nanMedian(cm), "r2_condition_mean")
 		b.ReportMetric(nanMedian(or), "r2_oracle")

@@ -60,6 +60,10 @@ type projector struct {
 	nv              []float64 // Bv: validation trials of each row
 	W, Wv, mu       float64
 	within, withinV float64 // within-condition sums of squares (all neurons)
+	// withinN is each neuron's within-condition sum of squares on the
+	// training trials (trained units), when kept from PartStats; nil
+	// otherwise (trainWithinN computes it from the Stats).
+	withinN []float64
 
 	yc    []float64 // Bt x N, centred training condition means
 	ymean []float64 // N, training mean of each neuron
@@ -112,10 +116,10 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 	if !(pr.Penalty > 0) {
 		return nil, fmt.Errorf("train.solver projected needs model.readout_l2 > 0 (it is %v): without a penalty the closed-form readout interpolates the condition means", pr.Penalty)
 	}
-	B, N, F := pr.Train.B, pr.Train.N, net.Features()
+	B, N, count := pr.dims()
+	F := net.Features()
 	pj := &projector{B: B, N: N, F: F}
-	st := pr.Train
-	for b, c := range st.Count {
+	for b, c := range count {
 		if c > 0 {
 			pj.rows = append(pj.rows, b)
 		}
@@ -125,11 +129,15 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 		return nil, fmt.Errorf("train: no training trials")
 	}
 	pj.Bt = Bt
-	pj.W = float64(trials(pr.Train))
+	W := 0
+	for _, c := range count {
+		W += c
+	}
+	pj.W = float64(W)
 	pj.mu = pr.Penalty * pj.W / 2
 	pj.sq, pj.pw = make([]float64, Bt), make([]float64, Bt)
 	for r, b := range pj.rows {
-		c := float64(st.Count[b])
+		c := float64(count[b])
 		pj.sq[r], pj.pw[r] = math.Sqrt(c), c/pj.W
 	}
 	// Training means, their weighted mean and the within sum of squares,
@@ -139,29 +147,11 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 	for n := range mu {
 		mu[n], inv[n] = pr.Norm.Affine(n)
 	}
-	pj.ymean = make([]float64, N)
-	pj.yc = make([]float64, Bt*N)
-	for r, b := range pj.rows {
-		c := float64(st.Count[b])
-		sum, sq := st.Sum[b*N:(b+1)*N], st.SumSq[b*N:(b+1)*N]
-		yc := pj.yc[r*N : (r+1)*N]
-		for n, s := range sum {
-			m := s / c
-			yc[n] = m
-			pj.within += (sq[n] - s*m) * inv[n] * inv[n]
-			pj.ymean[n] += s
-		}
+	if pr.TrainParts != nil {
+		pj.trainFromParts(pr.TrainParts, inv)
+	} else {
+		pj.trainFromStats(pr.Train, inv)
 	}
-	for n := range pj.ymean {
-		pj.ymean[n] /= pj.W
-	}
-	for r := 0; r < Bt; r++ {
-		yc := pj.yc[r*N : (r+1)*N]
-		for n, m := range pj.ymean {
-			yc[n] = (yc[n] - m) * inv[n]
-		}
-	}
-	st = nil
 	pj.S = make([]float64, Bt*Bt)
 	blas64.Gemm(blas.NoTrans, blas.Trans, 1, gen(pj.yc, Bt, N), gen(pj.yc, Bt, N), 0, gen(pj.S, Bt, Bt))
 	for i := 0; i < Bt; i++ {
@@ -171,39 +161,12 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 	}
 
 	if pr.hasVal() {
-		sv := pr.Val
-		for b, c := range sv.Count {
-			if c > 0 {
-				pj.vrows = append(pj.vrows, b)
-			}
+		if pr.TrainParts != nil {
+			pj.valFromParts(pr.ValParts, pr.TrainParts, inv)
+		} else {
+			pj.valFromStats(pr.Val, inv)
 		}
-		Bv := len(pj.vrows)
-		pj.Bv = Bv
-		pj.Wv = float64(trials(pr.Val))
-		pj.nv = make([]float64, Bv)
-		pj.dv = make([]float64, Bv*N)
-		pj.withN = make([]float64, N)
-		pj.valTot = make([]float64, N)
-		grand := make([]float64, N)
-		for r, b := range pj.vrows {
-			c := float64(sv.Count[b])
-			pj.nv[r] = c
-			sum, sq := sv.Sum[b*N:(b+1)*N], sv.SumSq[b*N:(b+1)*N]
-			d := pj.dv[r*N : (r+1)*N]
-			for n, s := range sum {
-				m := s / c
-				d[n] = (m - pj.ymean[n]) * inv[n]
-				pj.withN[n] += sq[n] - s*m
-				pj.valTot[n] += sq[n]
-				grand[n] += s
-			}
-		}
-		for n, w := range pj.withN {
-			i2 := inv[n] * inv[n]
-			pj.withN[n] = w * i2
-			pj.withinV += w * i2
-			pj.valTot[n] = (pj.valTot[n] - grand[n]*grand[n]/pj.Wv) * i2
-		}
+		Bv := pj.Bv
 		pj.yyv = make([]float64, Bv)
 		for r := range pj.yyv {
 			d := pj.dv[r*N : (r+1)*N]

@@ -351,7 +351,10 @@ func (pj *projector) readoutL2(mu float64) float64 { return 2 * mu / pj.W }
 
 // trainWithinN returns each neuron's within-condition sum of squares over
 // the training trials, in the trainer's units (for perNeuronSURE).
-func trainWithinN(pr *Problem) []float64 {
+func trainWithinN(pr *Problem, pj *projector) []float64 {
+	if pj.withinN != nil {
+		return pj.withinN
+	}
 	st := pr.Train
 	N := st.N
 	out := make([]float64, N)
@@ -396,7 +399,7 @@ func (pj *projector) autoReadout(pr *Problem, net *nn.Net, perNeuron bool) (curv
 	pj.mu = rp.mu[g]
 	var pick []int
 	if perNeuron {
-		pick = rp.perNeuronSURE(pj, trainWithinN(pr))
+		pick = rp.perNeuronSURE(pj, trainWithinN(pr, pj))
 	} else {
 		pick = make([]int, pj.N)
 		for n := range pick {
