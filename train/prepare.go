@@ -2,8 +2,8 @@ package train
 
 import (
 	"fmt"
-	"slices"
 	"github.com/strialab/stria/train/settings"
+	"slices"
 
 	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/data/condstats"
