@@ -34,6 +34,7 @@ func fitCommand() *cli.Command {
 			&cli.BoolFlag{Name: "overwrite", Usage: "replace the run folder of an earlier fit: its files are deleted first"},
 			&cli.BoolFlag{Name: "quiet", Aliases: []string{"q"}, Usage: "no progress display"},
 			&cli.BoolFlag{Name: "timings", Usage: "print the wall time of each phase to stderr"},
+			&cli.BoolFlag{Name: "in-memory", Usage: "hold every trial's responses in memory even where one pass over them would do (for checks; see stria help large)"},
 		),
 		Action: func(c *cli.Context) error {
 			if err := noArgs(c); err != nil {
@@ -48,7 +49,7 @@ func fitCommand() *cli.Command {
 			}
 			ctx, stop := signal.NotifyContext(c.Context, os.Interrupt, syscall.SIGTERM)
 			defer stop()
-			_, err = runFit(ctx, cfg, fitOptions{resume: c.Bool("resume"), overwrite: c.Bool("overwrite"), quiet: c.Bool("quiet"), timings: c.Bool("timings"), stdout: c.App.Writer, stderr: c.App.ErrWriter})
+			_, err = runFit(ctx, cfg, fitOptions{resume: c.Bool("resume"), overwrite: c.Bool("overwrite"), quiet: c.Bool("quiet"), timings: c.Bool("timings"), inMemory: c.Bool("in-memory"), stdout: c.App.Writer, stderr: c.App.ErrWriter})
 			return err
 		},
 	}
@@ -61,6 +62,9 @@ type fitOptions struct {
 	overwrite bool
 	quiet     bool
 	timings   bool
+	// inMemory holds the trials' responses in memory even when the model
+	// could be fitted from one pass over them (train.Streamable).
+	inMemory bool
 	stdout    io.Writer
 	stderr    io.Writer
 	// afterFit, when set, runs after training and before scoring (tests
@@ -113,16 +117,18 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 			last = now
 		}
 	}
-	rec, err := data.Load(cfg.Source())
+	rec, p, err := prepareFit(cfg, o, phase)
 	if err != nil {
 		return nil, err
 	}
-	phase("load")
-	p, err := train.PrepareRecording(cfg, rec)
-	if err != nil {
-		return nil, err
+	// A recording read in one pass has no content hashes yet: they are
+	// computed (one more read of the files) only when a checkpoint is
+	// compared or written.
+	if resume != nil {
+		if err := rec.HashFiles(); err != nil {
+			return nil, err
+		}
 	}
-	phase("bin, check, split, normalise")
 	files := rec.Files()
 	if resume != nil && resume.Files == nil {
 		return nil, fmt.Errorf("--resume: the checkpoint in %s does not record the data it was written on, so it cannot be checked; fit again without --resume (with --overwrite)", dir)
@@ -163,7 +169,10 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	hooks := train.Hooks{
 		Checkpoint: func(c *train.Checkpoint) error {
 			c.Config = cfgYAML
-			c.Files = files
+			if err := rec.HashFiles(); err != nil {
+				return err
+			}
+			c.Files = rec.Files()
 			return runfolder.SaveResumeState(dir, c)
 		},
 	}
@@ -232,6 +241,58 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	return sum, nil
 }
 
+// prepareFit loads and prepares the recording: in one pass over the
+// responses when the model allows it (train.Streamable), streamed from a
+// .npy file, else the trial-level path that holds them in memory. It says
+// on stderr which ran and why.
+func prepareFit(cfg *settings.Config, o fitOptions, phase func(string)) (*data.Recording, *train.Prepared, error) {
+	why := train.Streamable(cfg)
+	if o.inMemory && why == "" {
+		why = "--in-memory"
+	}
+	if why != "" {
+		rec, err := data.Load(cfg.Source())
+		if err != nil {
+			return nil, nil, err
+		}
+		phase("load")
+		p, err := train.PrepareRecording(cfg, rec)
+		if err != nil {
+			return nil, nil, err
+		}
+		phase("bin, check, split, normalise")
+		if why != "--in-memory" {
+			fmt.Fprintf(o.stderr, "note: every trial's responses are held in memory: %s (stria help large)\n", why)
+		}
+		return rec, p, nil
+	}
+	if strings.EqualFold(filepath.Ext(cfg.Data.Responses), ".npy") {
+		rec, s, err := data.LoadStream(cfg.Source())
+		if err != nil {
+			return nil, nil, err
+		}
+		defer s.Close()
+		phase("open, read the stimulus")
+		p, err := train.PrepareParts(cfg, rec, s)
+		if err != nil {
+			return nil, nil, err
+		}
+		phase("bin, check, split; one pass over the responses")
+		return rec, p, nil
+	}
+	rec, err := data.Load(cfg.Source())
+	if err != nil {
+		return nil, nil, err
+	}
+	phase("load")
+	p, err := train.PrepareParts(cfg, rec, nil)
+	if err != nil {
+		return nil, nil, err
+	}
+	phase("bin, check, split; statistics per condition")
+	return rec, p, nil
+}
+
 // checkFitFolder refuses an output folder that holds an earlier run (or
 // anything else) unless the fit resumes it or overwrites it; overwrite
 // empties only a folder stria wrote.
@@ -263,6 +324,14 @@ func fileExists(path string) bool {
 
 func printSummary(w io.Writer, dir string, s *runfolder.Summary) {
 	fmt.Fprintf(w, "run folder: %s\n", dir)
+	switch s.Responses {
+	case "streamed":
+		fmt.Fprintln(w, "responses: read once, in row blocks; fitted from their statistics per condition")
+	case "loaded":
+		fmt.Fprintln(w, "responses: loaded (only a .npy file is read in row blocks); fitted from their statistics per condition")
+	case "trials":
+		fmt.Fprintln(w, "responses: every trial held in memory")
+	}
 	fmt.Fprintf(w, "trained %d epochs (best %d, stopped by %s) in %.1f s\n", s.Epochs, s.BestEpoch, s.Stop, s.WallSeconds)
 	fmt.Fprintf(w, "held-out trials: %d; neurons scored: %d of %d", s.TestTrials, s.Scored, s.Neurons)
 	if s.Excluded > 0 {

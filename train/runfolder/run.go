@@ -219,6 +219,23 @@ type Summary struct {
 	ReadoutL2 PenaltyInfo `json:"readout_l2"`
 	Cautions  []string    `json:"cautions"`
 	Warnings  []string    `json:"warnings"`
+	// Responses says how the fit read the responses: "streamed" (one
+	// pass over the .npy file, statistics per condition kept), "loaded"
+	// (held in memory, fitted from their statistics per condition) or
+	// "trials" (every trial's responses held in memory). See
+	// train.Streamable.
+	Responses string `json:"responses,omitempty"`
+}
+
+// ResponsesPath is Summary.Responses of a prepared recording.
+func ResponsesPath(p *train.Prepared) string {
+	switch {
+	case p.Parts != nil && p.Rec.Y == nil:
+		return "streamed"
+	case p.Parts != nil:
+		return "loaded"
+	}
+	return "trials"
 }
 
 // ScoreColumns are the per-neuron score columns of neuron_scores.csv and
@@ -585,6 +602,7 @@ func WriteResults(dir string, p *train.Prepared, f *train.Fitted, scores []eval.
 	sum.Solver = f.Solver.String()
 	sum.ReadoutL2 = penaltyInfo(p.Cfg.Model.ReadoutL2, f.ReadoutL2)
 	sum.Warnings = p.Report.Warnings
+	sum.Responses = ResponsesPath(p)
 	if err := WriteJSON(filepath.Join(dir, FileSummary), sum); err != nil {
 		return nil, err
 	}
