@@ -77,6 +77,23 @@ type Fitted struct {
 	// (nbins x N, in the units the net was trained in), which a solver
 	// could compute more cheaply than a forward pass.
 	Curves []float64
+	// Weights, when not nil, computes the readout weights, which are then
+	// not in Net (its ReadW is zero): Weights(dst, n0, n1) writes those of
+	// neurons [n0, n1) into dst ((n1-n0) x features). A fit from Parts
+	// leaves them there, so that a million neurons' weights (3.8 GB) are
+	// never held at once. Use ReadoutWeights.
+	Weights func(dst []float64, n0, n1 int)
+}
+
+// ReadoutWeights writes the readout weights of neurons [n0, n1) into dst
+// ((n1-n0) x features, the layout of the net's ReadW).
+func (f *Fitted) ReadoutWeights(dst []float64, n0, n1 int) {
+	if f.Weights != nil {
+		f.Weights(dst, n0, n1)
+		return
+	}
+	F := f.Net.Features()
+	copy(dst, f.Net.ReadW()[n0*F:n1*F])
 }
 
 // rowSet is a set of training rows: model inputs, targets and row weights.

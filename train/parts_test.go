@@ -69,13 +69,18 @@ func fitWith(t testing.TB, p *Prepared) partsResult {
 	}
 	// Reliability before scoring: scoring does not change it.
 	rel := Reliability(p)
-	return partsResult{p: p, f: f, scores: ScoreFitted(p, f), rel: rel}
+	curves := slices.Clone(f.Curves)
+	r := partsResult{p: p, f: f, scores: ScoreFitted(p, f), rel: rel}
+	f.Curves = curves
+	return r
 }
 
 // floatsOf lists every number a run folder gets from a fit, by name.
 func floatsOf(r partsResult) map[string][]float64 {
+	w := make([]float64, r.f.Net.Neurons*r.f.Net.Features())
+	r.f.ReadoutWeights(w, 0, r.f.Net.Neurons)
 	m := map[string][]float64{
-		"params": r.f.Net.Params, "curves": r.f.Curves, "readout_l2": r.f.ReadoutL2,
+		"filters": r.f.Net.ConvW(0), "filter_bias": r.f.Net.ConvB(0), "readout_bias": r.f.Net.ReadB(), "weights": w, "curves": r.f.Curves, "readout_l2": r.f.ReadoutL2,
 		"norm_mean": r.p.Norm.Mean, "norm_scale": r.p.Norm.Scale, "reliability": r.rel,
 	}
 	var log, sc []float64

@@ -53,9 +53,15 @@ func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpo
 		return nil, err
 	}
 	f := &Fitted{Net: net, Solver: settings.SolverProjected, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}
-	if cfg.Model.ReadoutL2.Auto {
+	switch {
+	case cfg.Model.ReadoutL2.Auto && p.Parts != nil:
+		f.Curves, f.ReadoutL2, f.Weights, err = s.AutoReadoutBlocks(cfg.Model.ReadoutL2PerNeuron)
+		// The solver kept its means in the training and validation sums:
+		// they are spent.
+		p.Parts.Train.Sum, p.Parts.Val.Sum = nil, nil
+	case cfg.Model.ReadoutL2.Auto:
 		f.Curves, f.ReadoutL2, err = s.AutoReadout(cfg.Model.ReadoutL2PerNeuron)
-	} else {
+	default:
 		f.Curves, err = s.Readout()
 	}
 	if err != nil {

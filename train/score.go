@@ -104,7 +104,8 @@ func ScoreNet(p *Prepared, net *nn.Net) []eval.Scores {
 }
 
 // ScoreFitted is ScoreNet using the curves the solver computed, when it
-// did.
+// did. With a recording prepared by PrepareParts it takes the curves out
+// of f (f.Curves is nil afterwards).
 func ScoreFitted(p *Prepared, f *Fitted) []eval.Scores {
 	if p.Parts != nil && f.Curves == nil {
 		f.Curves = PredictConditions(f.Net, p.NBins)
@@ -112,7 +113,14 @@ func ScoreFitted(p *Prepared, f *Fitted) []eval.Scores {
 	if f.Curves == nil || p.Soft() {
 		return ScoreNet(p, f.Net)
 	}
-	pc := slices.Clone(f.Curves)
+	pc := f.Curves
+	if p.Parts == nil {
+		pc = slices.Clone(pc)
+	} else {
+		// No B x N copy at a million neurons: the curves are converted
+		// in place and leave f.
+		f.Curves = nil
+	}
 	p.Norm.InvertRows(pc)
 	return ScoreCurves(p, pc)
 }

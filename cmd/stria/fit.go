@@ -9,6 +9,7 @@ import (
 	"os"
 	"os/signal"
 	"path/filepath"
+	"runtime"
 	"strings"
 	"syscall"
 	"time"
@@ -204,6 +205,11 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 		return nil, err
 	}
 	phase(fmt.Sprintf("fit (%d epochs)", len(fitted.Log)))
+	if p.Parts != nil {
+		// What the solver no longer needs (B x N values each) goes before
+		// the scores allocate theirs.
+		runtime.GC()
+	}
 	if o.afterFit != nil {
 		o.afterFit()
 	}
@@ -277,6 +283,7 @@ func prepareFit(cfg *settings.Config, o fitOptions, phase func(string)) (*data.R
 		if err != nil {
 			return nil, nil, err
 		}
+		runtime.GC() // the split-half sums of the pass are spent
 		phase("bin, check, split; one pass over the responses")
 		return rec, p, nil
 	}

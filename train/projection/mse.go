@@ -187,7 +187,7 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 		if cost := float64(Bv) * float64(Bt) * float64(N); cost > projectedR2Every {
 			pj.r2Every = int(math.Ceil(cost / projectedR2Budget))
 		}
-		pj.g = make([]float64, Bv*N)
+		pj.g = make([]float64, Bv*min(N, neuronBlock))
 		pj.ssRes = make([]float64, N)
 		pj.r2 = make([]float64, N)
 		pj.hv = make([]float64, Bv*F)
@@ -217,6 +217,17 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 	pj.dH = make([]float64, B*F)
 	pj.nconv = len(net.Params) - N*F - N
 	return pj, nil
+}
+
+// neuronBlock is the number of neurons of the passes over all neurons
+// that go block by block (the validation R^2, the readout), so that their
+// scratch is B x neuronBlock rather than B x N.
+const neuronBlock = 4096
+
+// cols wraps columns [c0, c0+nc) of a row-major r x c slice as a
+// blas64.General.
+func cols(v []float64, r, c, c0, nc int) blas64.General {
+	return blas64.General{Rows: r, Cols: nc, Stride: c, Data: v[c0 : (r-1)*c+c0+nc]}
 }
 
 // gen wraps a row-major r x c slice as a blas64.General.
@@ -397,15 +408,20 @@ func (pj *projector) valR2() float64 {
 			pj.t[r*Bt+c] = pj.rk[r*Bt+c] * pj.sq[c]
 		}
 	}
-	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(pj.t, Bv, Bt), gen(pj.yc, Bt, N), 0, gen(pj.g, Bv, N))
 	copy(pj.ssRes, pj.withN)
-	for r := 0; r < Bv; r++ {
-		w := pj.nv[r]
-		g, d := pj.g[r*N:(r+1)*N], pj.dv[r*N:(r+1)*N]
-		ss := pj.ssRes[:len(g)]
-		for n, v := range g {
-			e := d[n] - v
-			ss[n] += w * e * e
+	// G by blocks of neurons: scratch of Bv x neuronBlock, not Bv x N.
+	for n0 := 0; n0 < N; n0 += neuronBlock {
+		nb := min(neuronBlock, N-n0)
+		gb := pj.g[:Bv*nb]
+		blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(pj.t, Bv, Bt), cols(pj.yc, Bt, N, n0, nb), 0, gen(gb, Bv, nb))
+		for r := 0; r < Bv; r++ {
+			w := pj.nv[r]
+			g, d := gb[r*nb:(r+1)*nb], pj.dv[r*N+n0:r*N+n0+nb]
+			ss := pj.ssRes[n0 : n0+nb]
+			for n, v := range g {
+				e := d[n] - v
+				ss[n] += w * e * e
+			}
 		}
 	}
 	k := 0
@@ -579,6 +595,21 @@ func (s *MSE) Readout() ([]float64, error) {
 // predictions of every bin (as Readout) and each neuron's penalty in
 // model.readout_l2 units.
 func (s *MSE) AutoReadout(perNeuron bool) (curves, l2 []float64, err error) {
+	curves, l2, weights, err := s.pj.autoReadout(&s.pr, s.net, perNeuron)
+	if err != nil {
+		return nil, nil, err
+	}
+	weights(s.net.ReadW(), 0, s.pj.N)
+	return curves, l2, nil
+}
+
+// AutoReadoutBlocks is AutoReadout that writes only the readout bias into
+// the net and returns the weights as a function: weights(dst, n0, n1)
+// writes those of neurons [n0, n1) into dst ((n1-n0) x F, row-major, as
+// in the net's ReadW), computing them again on every call, so that the N
+// x F weights of a million neurons (3.8 GB) need never be held at once.
+// weights keeps B x N values of the solver alive.
+func (s *MSE) AutoReadoutBlocks(perNeuron bool) (curves, l2 []float64, weights func(dst []float64, n0, n1 int), err error) {
 	return s.pj.autoReadout(&s.pr, s.net, perNeuron)
 }
 

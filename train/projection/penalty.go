@@ -203,21 +203,25 @@ func argmin(x []float64) int {
 	return k
 }
 
-// zeta computes z = U^T D^1/2 Yc (Bt x N) once per decomposition.
+// zeta computes z = U^T D^1/2 Yc (Bt x N) once per decomposition, by
+// blocks of neurons (scratch Bt x neuronBlock).
 func (rp *ridgePath) zeta(pj *projector) []float64 {
 	if rp.z != nil {
 		return rp.z
 	}
 	Bt, N := pj.Bt, pj.N
-	sy := make([]float64, Bt*N)
-	for r := 0; r < Bt; r++ {
-		s := pj.sq[r]
-		for n, v := range pj.yc[r*N : (r+1)*N] {
-			sy[r*N+n] = s * v
-		}
-	}
+	sy := make([]float64, Bt*min(N, neuronBlock))
 	rp.z = make([]float64, Bt*N)
-	blas64.Gemm(blas.Trans, blas.NoTrans, 1, gen(rp.u, Bt, Bt), gen(sy, Bt, N), 0, gen(rp.z, Bt, N))
+	for n0 := 0; n0 < N; n0 += neuronBlock {
+		nb := min(neuronBlock, N-n0)
+		for r := 0; r < Bt; r++ {
+			s := pj.sq[r]
+			for n, v := range pj.yc[r*N+n0 : r*N+n0+nb] {
+				sy[r*nb+n] = s * v
+			}
+		}
+		blas64.Gemm(blas.Trans, blas.NoTrans, 1, gen(rp.u, Bt, Bt), gen(sy[:Bt*nb], Bt, nb), 0, cols(rp.z, Bt, N, n0, nb))
+	}
 	return rp.z
 }
 
@@ -292,57 +296,84 @@ func (rp *ridgePath) perNeuronSURE(pj *projector, withinN []float64) []int {
 	return pick
 }
 
-// readout writes into the net the closed-form readout with penalty
-// rp.mu[pick[n]] for neuron n (w_n = A^T U diag(1/(s+mu_n)) z_n, c_n =
-// ybar_n - hbar . w_n) and returns the per-bin predictions (B x N, trained
-// units). The features must be those of the last decompose.
-func (rp *ridgePath) readout(pj *projector, net *nn.Net, pick []int) []float64 {
+// readout writes into the net the readout bias of the closed-form readout
+// with penalty rp.mu[pick[n]] for neuron n (w_n = A^T U diag(1/(s+mu_n))
+// z_n, c_n = ybar_n - hbar . w_n = ybar_n - (U^T A hbar) . zs_n with zs_n
+// = diag(1/(s+mu_n)) z_n) and returns the per-bin predictions (B x N,
+// trained units) and a function writing the weights of neurons [n0, n1)
+// into dst ((n1-n0) x F). Everything goes by blocks of neurons, with
+// scratch of (B + F) x neuronBlock. The features must be those of the
+// last decompose.
+func (rp *ridgePath) readout(pj *projector, net *nn.Net, pick []int) (curves []float64, weights func(dst []float64, n0, n1 int)) {
 	B, Bt, F, N := pj.B, pj.Bt, pj.F, pj.N
 	z := rp.zeta(pj)
-	zs := make([]float64, Bt*N)
-	for j := 0; j < Bt; j++ {
-		s := rp.s[j]
-		for n := 0; n < N; n++ {
-			zs[j*N+n] = z[j*N+n] / (s + rp.mu[pick[n]])
+	mu, s := rp.mu, rp.s
+	// zsBlock writes zs of neurons [n0, n0+nb) into dst (Bt x nb).
+	zsBlock := func(dst []float64, n0, nb int) {
+		for j := 0; j < Bt; j++ {
+			sj := s[j]
+			row := dst[j*nb : (j+1)*nb]
+			for n, v := range z[j*N+n0 : j*N+n0+nb] {
+				row[n] = v / (sj + mu[pick[n0+n]])
+			}
 		}
 	}
 	// AU = A^T U (F x Bt); W^T = AU zs (F x N).
 	au := make([]float64, F*Bt)
 	blas64.Gemm(blas.Trans, blas.NoTrans, 1, gen(pj.a, Bt, F), gen(rp.u, Bt, Bt), 0, gen(au, F, Bt))
-	wt := make([]float64, F*N)
-	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(au, F, Bt), gen(zs, Bt, N), 0, gen(wt, F, N))
-	w := net.ReadW()
-	for f := 0; f < F; f++ {
-		for n := 0; n < N; n++ {
-			w[n*F+f] = wt[f*N+n]
-		}
-	}
-	c := net.ReadB()
-	for n := 0; n < N; n++ {
-		var s float64
-		for f, hb := range pj.hbar {
-			s += hb * wt[f*N+n]
-		}
-		c[n] = pj.ymean[n] - s
-	}
+	// v = AU^T hbar (Bt): c_n = ybar_n - v . zs_n.
+	v := make([]float64, Bt)
+	blas64.Gemv(blas.Trans, 1, gen(au, F, Bt), blas64.Vector{N: F, Inc: 1, Data: pj.hbar}, 0, blas64.Vector{N: Bt, Inc: 1, Data: v})
 	// Per-bin predictions: (H - 1 hbar^T) W^T + c = ((H - 1 hbar^T) AU) zs + ybar.
 	hc := make([]float64, B*F)
 	for b := 0; b < B; b++ {
-		for f, v := range pj.h[b*F : (b+1)*F] {
-			hc[b*F+f] = v - pj.hbar[f]
+		for f, x := range pj.h[b*F : (b+1)*F] {
+			hc[b*F+f] = x - pj.hbar[f]
 		}
 	}
 	g := make([]float64, B*Bt)
 	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(hc, B, F), gen(au, F, Bt), 0, gen(g, B, Bt))
+	ymean := pj.ymean
+	c := net.ReadB()
 	out := make([]float64, B*N)
-	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(g, B, Bt), gen(zs, Bt, N), 0, gen(out, B, N))
-	for b := 0; b < B; b++ {
-		row := out[b*N : (b+1)*N]
-		for n, m := range pj.ymean {
-			row[n] += m
+	zs := make([]float64, Bt*min(N, neuronBlock))
+	for n0 := 0; n0 < N; n0 += neuronBlock {
+		nb := min(neuronBlock, N-n0)
+		zb := zs[:Bt*nb]
+		zsBlock(zb, n0, nb)
+		for n := 0; n < nb; n++ {
+			var t float64
+			for j, x := range v {
+				t += x * zb[j*nb+n]
+			}
+			c[n0+n] = ymean[n0+n] - t
+		}
+		blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(g, B, Bt), gen(zb, Bt, nb), 0, cols(out, B, N, n0, nb))
+		for b := 0; b < B; b++ {
+			row := out[b*N+n0 : b*N+n0+nb]
+			for n, m := range ymean[n0 : n0+nb] {
+				row[n] += m
+			}
 		}
 	}
-	return out
+	weights = func(dst []float64, n0, n1 int) {
+		if n0 < 0 || n1 > N || n0 > n1 || len(dst) != (n1-n0)*F {
+			panic(fmt.Sprintf("train: readout weights [%d, %d) of %d neurons into %d values, want (n1-n0) x %d", n0, n1, N, len(dst), F))
+		}
+		zb := make([]float64, Bt*min(n1-n0, neuronBlock))
+		wt := make([]float64, F*min(n1-n0, neuronBlock))
+		for m0 := n0; m0 < n1; m0 += neuronBlock {
+			nb := min(neuronBlock, n1-m0)
+			zsBlock(zb[:Bt*nb], m0, nb)
+			blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(au, F, Bt), gen(zb[:Bt*nb], Bt, nb), 0, gen(wt[:F*nb], F, nb))
+			for f := 0; f < F; f++ {
+				for n, x := range wt[f*nb : (f+1)*nb] {
+					dst[(m0-n0+n)*F+f] = x
+				}
+			}
+		}
+	}
+	return out, weights
 }
 
 // readoutL2 converts a penalty in the projector's units (mu) to the
@@ -384,10 +415,10 @@ func trainWithinN(pr *Problem, pj *projector) []float64 {
 // per-bin predictions (B x N, trained units) and the chosen
 // model.readout_l2 of every neuron (all equal unless perNeuron), and
 // leaves pj.mu at the global choice.
-func (pj *projector) autoReadout(pr *Problem, net *nn.Net, perNeuron bool) (curves, l2 []float64, err error) {
+func (pj *projector) autoReadout(pr *Problem, net *nn.Net, perNeuron bool) (curves, l2 []float64, weights func(dst []float64, n0, n1 int), err error) {
 	rp := newRidgePath(pj, nil)
 	if err := rp.decompose(pj, net); err != nil {
-		return nil, nil, err
+		return nil, nil, nil, err
 	}
 	score := make([]float64, len(rp.mu))
 	if pj.Bv > 0 {
@@ -406,10 +437,10 @@ func (pj *projector) autoReadout(pr *Problem, net *nn.Net, perNeuron bool) (curv
 			pick[n] = g
 		}
 	}
-	curves = rp.readout(pj, net, pick)
+	curves, weights = rp.readout(pj, net, pick)
 	l2 = make([]float64, pj.N)
 	for n, k := range pick {
 		l2[n] = pj.readoutL2(rp.mu[k])
 	}
-	return curves, l2, nil
+	return curves, l2, weights, nil
 }

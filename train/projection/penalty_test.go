@@ -70,7 +70,15 @@ func TestRidgePath(t *testing.T) {
 		for n := range pick {
 			pick[n] = g
 		}
-		got := rp.readout(pj, net, pick)
+		got, weights := rp.readout(pj, net, pick)
+		clear(net.ReadW())
+		weights(net.ReadW(), 0, pj.N)
+		// Any range of neurons gives the same weights as the whole.
+		part := make([]float64, 7*pj.F)
+		weights(part, 3, 10)
+		if !slices.Equal(part, net.ReadW()[3*pj.F:10*pj.F]) {
+			t.Errorf("tau %g: the weights of neurons [3, 10) differ from those of all neurons", rp.tau[g])
+		}
 		for _, c := range []struct {
 			name      string
 			got, want []float64

@@ -551,7 +551,9 @@ func WriteModel(dir string, p *train.Prepared, f *train.Fitted) error {
 		}
 		in = c.Out
 	}
-	if err := saveArray(dir, &m, "readout_weight", []int{net.Neurons, net.Features()}, net.ReadW()); err != nil {
+	rel := filepath.Join(DirParameters, "readout_weight.npy")
+	m.Arrays["readout_weight"] = Array{File: filepath.ToSlash(rel), Shape: []int{net.Neurons, net.Features()}}
+	if err := format.WriteNPY64Rows(filepath.Join(dir, rel), net.Neurons, net.Features(), f.ReadoutWeights); err != nil {
 		return err
 	}
 	if err := saveArray(dir, &m, "readout_bias", []int{net.Neurons}, net.ReadB()); err != nil {
