@@ -3,6 +3,8 @@ package projection
 import (
 	"fmt"
 	"math"
+	"runtime"
+	"sync"
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
@@ -279,20 +281,24 @@ func (rp *ridgePath) perNeuronSURE(pj *projector, withinN []float64) []int {
 			dfs[g] += s / (s + mu)
 		}
 	}
-	for n := 0; n < N; n++ {
-		sigma2 := withinN[n] / math.Max(pj.W-float64(Bt), 1)
-		best := math.Inf(1)
-		for g, mu := range rp.mu {
-			var res float64
-			for j, s := range rp.s {
-				q := mu / (s + mu) * z[j*N+n]
-				res += q * q
-			}
-			if v := res + 2*sigma2*dfs[g]; v < best {
-				best, pick[n] = v, g
+	// Each neuron is done by one goroutine, so the choice does not depend
+	// on the number of cores.
+	parallelBlocks(N, func(n0, n1 int) {
+		for n := n0; n < n1; n++ {
+			sigma2 := withinN[n] / math.Max(pj.W-float64(Bt), 1)
+			best := math.Inf(1)
+			for g, mu := range rp.mu {
+				var res float64
+				for j, s := range rp.s {
+					q := mu / (s + mu) * z[j*N+n]
+					res += q * q
+				}
+				if v := res + 2*sigma2*dfs[g]; v < best {
+					best, pick[n] = v, g
+				}
 			}
 		}
-	}
+	})
 	return pick
 }
 
@@ -374,6 +380,28 @@ func (rp *ridgePath) readout(pj *projector, net *nn.Net, pick []int) (curves []f
 		}
 	}
 	return out, weights
+}
+
+// parallelBlocks calls do on the blocks [n0, n1) of neuronBlock neurons
+// that cover [0, N), on up to GOMAXPROCS goroutines, and waits.
+func parallelBlocks(N int, do func(n0, n1 int)) {
+	nblk := (N + neuronBlock - 1) / neuronBlock
+	next := make(chan int, nblk)
+	for i := range nblk {
+		next <- i
+	}
+	close(next)
+	var wg sync.WaitGroup
+	for range min(runtime.GOMAXPROCS(0), nblk) {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for i := range next {
+				do(i*neuronBlock, min((i+1)*neuronBlock, N))
+			}
+		}()
+	}
+	wg.Wait()
 }
 
 // readoutL2 converts a penalty in the projector's units (mu) to the
