@@ -42,8 +42,9 @@ type StreamPlan struct {
 	// dealt alternately to half A and half B. AccumulateParts then returns
 	// one more PartStats after the parts, holding Count, CountA, Ref,
 	// RefCond and SumA of that dealing (Sum, TotSq and SumSq nil), with
-	// Ref the response of the first trial of any part; its half B's sums
-	// follow from the parts' sums (see AllSums).
+	// Ref the response of the first trial of any part. Half B's sums
+	// follow from the parts': per condition b and neuron n, sum over parts
+	// p of Sum_pbn + N_pb (r_pn - Ref_n), minus SumA_bn.
 	AllHalves bool
 }
 
@@ -703,10 +704,10 @@ func nonFiniteErr(s *format.NPYStream, part []int, p, n int) error {
 			return err
 		}
 		if !isFinite32(v) {
-			return fmt.Errorf("data: %s: neuron %d (0-based) has a non-finite response (%v) in trial %d (0-based); remove or fix it before fitting", s.Name(), n, v, t)
+			return fmt.Errorf("data: %s: neuron %d (0-based) has a non-finite response (%v) in trial %d (0-based); remove or fix it before fitting", s.Name(), n+s.ColumnOffset(), v, t)
 		}
 	}
-	return fmt.Errorf("data: %s: neuron %d (0-based) has sums of squares too large for float64", s.Name(), n)
+	return fmt.Errorf("data: %s: neuron %d (0-based) has sums of squares too large for float64", s.Name(), n+s.ColumnOffset())
 }
 
 // accumulator sums row blocks into parts.
@@ -820,33 +821,6 @@ func addRowHalf2(sum, sq, sa, sb []float64, row []float32, ref []float64) {
 		sa[j] += d
 		sb[j] += d
 	}
-}
-
-// AllSums writes into dst (B x N; allocated if nil) the sums over all the
-// trials of parts, per condition, relative to all.Ref (all is the extra
-// PartStats of StreamPlan.AllHalves): sum_p Sum_p + N_pb (r_p - r_all),
-// adding the parts in order. Half B's sums are AllSums - all.SumA. It
-// panics if the shapes differ.
-func AllSums(dst []float64, all *PartStats, parts ...*PartStats) []float64 {
-	dst = all.dstBN(dst, "AllSums")
-	clear(dst)
-	N := all.N
-	for _, ps := range parts {
-		if ps.N != N || ps.B != all.B {
-			panic(fmt.Sprintf("data: AllSums parts of %dx%d and %dx%d", ps.B, ps.N, all.B, all.N))
-		}
-		for b, k := range ps.Count {
-			if k == 0 {
-				continue
-			}
-			c := float64(k)
-			d := dst[b*N : (b+1)*N]
-			for n, s := range ps.Sum[b*N : (b+1)*N] {
-				d[n] += s + c*(ps.Ref[n]-all.Ref[n])
-			}
-		}
-	}
-	return dst
 }
 
 // ConstantNeurons returns, in ascending order, the neurons whose response
