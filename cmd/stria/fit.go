@@ -66,8 +66,8 @@ type fitOptions struct {
 	// inMemory holds the trials' responses in memory even when the model
 	// could be fitted from one pass over them (train.Streamable).
 	inMemory bool
-	stdout    io.Writer
-	stderr    io.Writer
+	stdout   io.Writer
+	stderr   io.Writer
 	// afterFit, when set, runs after training and before scoring (tests
 	// change the data there).
 	afterFit func()
