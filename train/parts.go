@@ -59,28 +59,16 @@ func Streamable(cfg *settings.Config) string {
 // non-finite response is refused with its file, trial and neuron; the
 // responses file is not hashed (Recording.Files have no content hash).
 func PrepareParts(cfg *settings.Config, rec *data.Recording, stream *format.NPYStream) (*Prepared, error) {
-	if why := Streamable(cfg); why != "" {
-		panic("train: PrepareParts: " + why)
-	}
 	rows := 0
 	if stream != nil {
 		rows = stream.Rows()
 	} else {
 		rows = rec.Y.Rows
 	}
-	opt := func(p *Prepared) data.CheckOptions { return data.CheckOptions{NBins: p.NBins, Axis: &p.Axis} }
-	p, err := prepareTrials(cfg, rec, func(p *Prepared) (*data.Report, error) {
-		return data.CheckTrials(rec, rows, p.Cond, opt(p), nil)
-	})
+	p, plan, err := PlanParts(cfg, rec, rows)
 	if err != nil {
 		return nil, err
 	}
-	part, err := condstats.PartOf(rows, p.Train, p.Val, p.Test)
-	if err != nil {
-		return nil, err
-	}
-	plan := condstats.StreamPlan{NBins: p.NBins, Cond: p.Cond, Part: part, AllHalves: true,
-		Specs: []condstats.PartSpec{{}, {}, {Halves: true, CondSquares: true}}}
 	var ps []*condstats.PartStats
 	if stream != nil {
 		ps, err = condstats.AccumulateParts(stream, plan, condstats.StreamOptions{})
@@ -90,20 +78,71 @@ func PrepareParts(cfg *settings.Config, rec *data.Recording, stream *format.NPYS
 	if err != nil {
 		return nil, err
 	}
+	if err := p.SetParts(ps); err != nil {
+		return nil, err
+	}
+	return p, nil
+}
+
+// PlanParts is the first half of PrepareParts, for a recording of rows
+// trials whose responses are not read: it bins, checks and splits the
+// trials and returns the plan of the pass (the training, validation and
+// test trials, with the split-half sums over all trials). Array tasks of
+// a fit each run the plan over a range of neurons; SetParts finishes the
+// preparation with the joined statistics.
+func PlanParts(cfg *settings.Config, rec *data.Recording, rows int) (*Prepared, condstats.StreamPlan, error) {
+	if why := Streamable(cfg); why != "" {
+		panic("train: PlanParts: " + why)
+	}
+	p, err := prepareTrials(cfg, rec, func(p *Prepared) (*data.Report, error) {
+		return data.CheckTrials(rec, rows, p.Cond, p.checkOptions(), nil)
+	})
+	if err != nil {
+		return nil, condstats.StreamPlan{}, err
+	}
+	part, err := condstats.PartOf(rows, p.Train, p.Val, p.Test)
+	if err != nil {
+		return nil, condstats.StreamPlan{}, err
+	}
+	plan := condstats.StreamPlan{NBins: p.NBins, Cond: p.Cond, Part: part, AllHalves: true,
+		Specs: []condstats.PartSpec{{}, {}, {Halves: true, CondSquares: true}}}
+	return p, plan, nil
+}
+
+func (p *Prepared) checkOptions() data.CheckOptions {
+	return data.CheckOptions{NBins: p.NBins, Axis: &p.Axis}
+}
+
+// SetParts finishes a preparation begun by PlanParts with the statistics
+// of its plan over all the neurons (the training, validation and test
+// parts and the dealing over all trials, as AccumulateParts returns
+// them): the split-half reliability over all trials, the constant
+// neurons and the report, and the z-scoring from the parts' sums
+// (condstats.NormalizerFromParts).
+func (p *Prepared) SetParts(ps []*condstats.PartStats) error {
+	if len(ps) != 4 {
+		panic(fmt.Sprintf("train: SetParts of %d statistics, want the 3 parts and the dealing over all trials", len(ps)))
+	}
 	p.Parts = &Parts{Train: ps[0], Val: ps[1], Test: ps[2]}
 	p.Parts.Reliability = splitHalfAll(ps[3], ps[:3])
 	// The report again, now with the constant neurons, in the order of
 	// PrepareRecording's.
-	rep, err := data.CheckTrials(rec, rows, p.Cond, opt(p), condstats.ConstantNeurons(ps[:3]...))
+	rep, err := data.CheckTrials(p.Rec, len(p.Cond), p.Cond, p.checkOptions(), condstats.ConstantNeurons(ps[:3]...))
 	if err != nil {
-		return nil, err
+		return err
 	}
 	rep.Warnings = append(append(slices.Clone(p.notes), rep.Warnings...), p.coverage...)
 	p.Report = rep
-	if cfg.Split.ZScore {
+	if p.Cfg.Split.ZScore {
 		p.Norm = condstats.NormalizerFromParts(ps[0], ps[1])
 	}
-	return p, nil
+	return nil
+}
+
+// NeuronRange returns the neurons [n0, n1) of array task i of n (1-based)
+// over N neurons: n0 = floor((i-1) N / n), n1 = floor(i N / n).
+func NeuronRange(i, n, N int) (n0, n1 int) {
+	return int(int64(i-1) * int64(N) / int64(n)), int(int64(i) * int64(N) / int64(n))
 }
 
 // splitHalfAll returns each neuron's split-half reliability over all the
@@ -170,11 +209,4 @@ func (pt *Parts) heldOut() *eval.HeldOutSums {
 	t := pt.Test
 	return &eval.HeldOutSums{B: t.B, N: t.N, Count: t.Count, CountA: t.CountA, Ref: t.Ref, RefCond: t.RefCond,
 		Sum: t.Sum, SumA: t.SumA, SumSq: t.SumSq}
-}
-
-// checkParts panics unless p was prepared by PrepareParts.
-func (p *Prepared) checkParts(fn string) {
-	if p.Parts == nil {
-		panic(fmt.Sprintf("train: %s needs a recording prepared by PrepareParts", fn))
-	}
 }

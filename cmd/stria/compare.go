@@ -91,6 +91,11 @@ func gatherCommand() *cli.Command {
 				return err
 			}
 			dir := c.Args().First()
+			if isFitArrayFolder(dir) {
+				ctx, stop := signal.NotifyContext(c.Context, os.Interrupt, syscall.SIGTERM)
+				defer stop()
+				return gatherFit(ctx, dir, fitOptions{quiet: true, stdout: c.App.Writer, stderr: c.App.ErrWriter})
+			}
 			if k, err := runfolder.Kind(dir); err == nil && k == runfolder.KindRun {
 				return fmt.Errorf("gather: %s is a run folder (written by stria fit); gather takes the folder of stria compare", dir)
 			}

@@ -36,6 +36,9 @@ func fitCommand() *cli.Command {
 			&cli.BoolFlag{Name: "quiet", Aliases: []string{"q"}, Usage: "no progress display"},
 			&cli.BoolFlag{Name: "timings", Usage: "print the wall time of each phase to stderr"},
 			&cli.BoolFlag{Name: "in-memory", Usage: "hold every trial's responses in memory even where one pass over them would do (for checks; see stria help large)"},
+			&cli.IntFlag{Name: "array-task", Usage: "pass over the neurons of array task `I` (1-based) of --array-task-count only and write their statistics; when every task has run: stria gather FOLDER"},
+			&cli.IntFlag{Name: "array-task-count", Usage: "the number `N` of array tasks the neurons are split into"},
+			&cli.IntFlag{Name: "slurm-script", Usage: "print a script that submits the fit as a Slurm job array of `N` tasks and the gather job after it, and exit"},
 		),
 		Action: func(c *cli.Context) error {
 			if err := noArgs(c); err != nil {
@@ -47,6 +50,26 @@ func fitCommand() *cli.Command {
 			}
 			if c.Bool("resume") && c.Bool("overwrite") {
 				return fmt.Errorf("fit: --resume continues the fit in the folder and --overwrite deletes it: give one of them")
+			}
+			if n := c.Int("slurm-script"); n > 0 {
+				if err := checkArrayFit(cfg); err != nil {
+					return err
+				}
+				return printFitSlurmScript(c.App.Writer, c.String("config"), cfg.Output, n)
+			}
+			task, tasks, err := fitArrayTaskOf(c, os.Getenv)
+			if err != nil {
+				return err
+			}
+			if tasks > 0 {
+				if c.Bool("resume") || c.Bool("overwrite") || c.Bool("in-memory") {
+					return fmt.Errorf("fit: an array task writes only the statistics of its neurons: --resume, --overwrite and --in-memory do not apply (empty the folder once before the array runs, or use a new --out)")
+				}
+				var out io.Writer
+				if !c.Bool("quiet") {
+					out = c.App.Writer
+				}
+				return runFitArrayTask(cfg, task, tasks, out)
 			}
 			ctx, stop := signal.NotifyContext(c.Context, os.Interrupt, syscall.SIGTERM)
 			defer stop()
@@ -66,6 +89,9 @@ type fitOptions struct {
 	// inMemory holds the trials' responses in memory even when the model
 	// could be fitted from one pass over them (train.Streamable).
 	inMemory bool
+	// gather, when not nil, fits from the statistics array tasks wrote
+	// into the folder (stria gather).
+	gather *arrayGather
 	stdout   io.Writer
 	stderr   io.Writer
 	// afterFit, when set, runs after training and before scoring (tests
@@ -118,7 +144,13 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 			last = now
 		}
 	}
-	rec, p, err := prepareFit(cfg, o, phase)
+	var rec *data.Recording
+	var p *train.Prepared
+	if o.gather != nil {
+		rec, p, err = prepareGathered(cfg, o.gather, phase)
+	} else {
+		rec, p, err = prepareFit(cfg, o, phase)
+	}
 	if err != nil {
 		return nil, err
 	}
@@ -236,6 +268,11 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	if err := runfolder.RemoveResumeState(dir); err != nil {
 		return nil, err
 	}
+	if o.gather != nil {
+		if err := runfolder.RemoveArrayTasks(dir); err != nil {
+			return nil, err
+		}
+	}
 	// Last: the marker that tells readers the run folder is complete.
 	if err := runfolder.Finish(dir, runfolder.FormatRun); err != nil {
 		return nil, err
@@ -310,6 +347,9 @@ func checkFitFolder(dir string, o fitOptions) error {
 	}
 	if o.resume {
 		return nil
+	}
+	if o.gather != nil {
+		return checkArrayFolder(dir)
 	}
 	what, err := runfolder.Holds(dir)
 	if err != nil || what == "" {

@@ -99,3 +99,46 @@ func TestAllHalves(t *testing.T) {
 		}
 	}
 }
+
+// TestJoinNeurons: the statistics of neuron ranges joined are bitwise
+// those of all the neurons at once; ranges of other trials are refused.
+func TestJoinNeurons(t *testing.T) {
+	const T, N, B = 200, 10, 6
+	y, cond, path := streamCase(t, T, N, B)
+	part := make([]int, T)
+	for r := range part {
+		part[r] = r % 3
+	}
+	plan := StreamPlan{NBins: B, Cond: cond, Part: part, Specs: []PartSpec{{}, {}, {Halves: true, CondSquares: true}}, AllHalves: true}
+	whole, err := AccumulatePartsMatrix(y, plan, StreamOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := format.OpenNPYStream(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	var pieces [][]*PartStats
+	for _, r := range [][2]int{{0, 3}, {3, 3}, {3, 10}} {
+		ps, err := AccumulateParts(s.Columns(r[0], r[1]), plan, StreamOptions{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		pieces = append(pieces, ps)
+	}
+	for i := range whole {
+		got, err := JoinNeurons(pieces[0][i], pieces[1][i], pieces[2][i])
+		if err != nil {
+			t.Fatal(err)
+		}
+		w := whole[i]
+		if got.N != N || !slices.Equal(got.Count, w.Count) || !slices.Equal(got.Ref, w.Ref) || !slices.Equal(got.Sum, w.Sum) ||
+			!slices.Equal(got.TotSq, w.TotSq) || !slices.Equal(got.SumSq, w.SumSq) || !slices.Equal(got.SumA, w.SumA) || !slices.Equal(got.CountA, w.CountA) {
+			t.Errorf("part %d: joined ranges differ from the whole", i)
+		}
+	}
+	if _, err := JoinNeurons(pieces[0][0], pieces[1][1]); err == nil {
+		t.Error("ranges of different parts were joined")
+	}
+}

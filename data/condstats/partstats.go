@@ -859,3 +859,69 @@ func ConstantNeurons(parts ...*PartStats) []int {
 
 // isFinite32 reports whether v is neither NaN nor infinite.
 func isFinite32(v float32) bool { return !math.IsNaN(float64(v)) && !math.IsInf(float64(v), 0) }
+
+// JoinNeurons returns the statistics of one part over the neurons of
+// ranges, which hold the same part's statistics for consecutive ranges of
+// neurons of the same trials (from AccumulateParts over
+// format.NPYStream.Columns): the neurons side by side, in the order
+// given. Every neuron's statistics depend only on its own responses, so
+// the result is bitwise what one pass over all the neurons gives. It
+// returns an error naming the first range whose conditions, trial counts
+// or kept statistics differ from the first one's.
+func JoinNeurons(ranges ...*PartStats) (*PartStats, error) {
+	if len(ranges) == 0 {
+		return nil, fmt.Errorf("data: JoinNeurons of no ranges")
+	}
+	f := ranges[0]
+	out := &PartStats{B: f.B, Trials: f.Trials, Count: append([]int(nil), f.Count...), RefCond: f.RefCond}
+	if f.CountA != nil {
+		out.CountA = append([]int(nil), f.CountA...)
+	}
+	for i, r := range ranges {
+		switch {
+		case r.B != f.B || r.Trials != f.Trials || r.RefCond != f.RefCond || !equalInts(r.Count, f.Count) || !equalInts(r.CountA, f.CountA):
+			return nil, fmt.Errorf("data: range %d of the statistics has other conditions or trial counts than range 0", i)
+		case (r.Sum == nil) != (f.Sum == nil) || (r.SumSq == nil) != (f.SumSq == nil) || (r.SumA == nil) != (f.SumA == nil) || (r.TotSq == nil) != (f.TotSq == nil):
+			return nil, fmt.Errorf("data: range %d of the statistics keeps other sums than range 0", i)
+		}
+		out.N += r.N
+	}
+	N, B := out.N, out.B
+	join := func(get func(*PartStats) []float64, perCond bool) []float64 {
+		if get(f) == nil {
+			return nil
+		}
+		rows := 1
+		if perCond {
+			rows = B
+		}
+		v := make([]float64, rows*N)
+		n0 := 0
+		for _, r := range ranges {
+			src := get(r)
+			for b := 0; b < rows; b++ {
+				copy(v[b*N+n0:b*N+n0+r.N], src[b*r.N:(b+1)*r.N])
+			}
+			n0 += r.N
+		}
+		return v
+	}
+	out.Ref = join(func(p *PartStats) []float64 { return p.Ref }, false)
+	out.TotSq = join(func(p *PartStats) []float64 { return p.TotSq }, false)
+	out.Sum = join(func(p *PartStats) []float64 { return p.Sum }, true)
+	out.SumSq = join(func(p *PartStats) []float64 { return p.SumSq }, true)
+	out.SumA = join(func(p *PartStats) []float64 { return p.SumA }, true)
+	return out, nil
+}
+
+func equalInts(a, b []int) bool {
+	if len(a) != len(b) {
+		return false
+	}
+	for i := range a {
+		if a[i] != b[i] {
+			return false
+		}
+	}
+	return true
+}
