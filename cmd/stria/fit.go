@@ -92,8 +92,8 @@ type fitOptions struct {
 	// gather, when not nil, fits from the statistics array tasks wrote
 	// into the folder (stria gather).
 	gather *arrayGather
-	stdout   io.Writer
-	stderr   io.Writer
+	stdout io.Writer
+	stderr io.Writer
 	// afterFit, when set, runs after training and before scoring (tests
 	// change the data there).
 	afterFit func()
