@@ -81,8 +81,20 @@ type Fitted struct {
 	// not in Net (its ReadW is zero): Weights(dst, n0, n1) writes those of
 	// neurons [n0, n1) into dst ((n1-n0) x features). A fit from Parts
 	// leaves them there, so that a million neurons' weights (3.8 GB) are
-	// never held at once. Use ReadoutWeights.
+	// never held at once (not safe for concurrent use). Use
+	// ReadoutWeights. Net then has a single
+	// neuron (only its filters are used) and Bias holds the readout bias
+	// of every neuron.
 	Weights func(dst []float64, n0, n1 int)
+	Bias    []float64
+}
+
+// ReadoutBias returns the readout bias of every neuron.
+func (f *Fitted) ReadoutBias() []float64 {
+	if f.Weights != nil {
+		return f.Bias
+	}
+	return f.Net.ReadB()
 }
 
 // ReadoutWeights writes the readout weights of neurons [n0, n1) into dst

@@ -77,10 +77,11 @@ func fitWith(t testing.TB, p *Prepared) partsResult {
 
 // floatsOf lists every number a run folder gets from a fit, by name.
 func floatsOf(r partsResult) map[string][]float64 {
-	w := make([]float64, r.f.Net.Neurons*r.f.Net.Features())
-	r.f.ReadoutWeights(w, 0, r.f.Net.Neurons)
+	N := r.p.Neurons()
+	w := make([]float64, N*r.f.Net.Features())
+	r.f.ReadoutWeights(w, 0, N)
 	m := map[string][]float64{
-		"filters": r.f.Net.ConvW(0), "filter_bias": r.f.Net.ConvB(0), "readout_bias": r.f.Net.ReadB(), "weights": w, "curves": r.f.Curves, "readout_l2": r.f.ReadoutL2,
+		"filters": r.f.Net.ConvW(0), "filter_bias": r.f.Net.ConvB(0), "readout_bias": r.f.ReadoutBias(), "weights": w, "curves": r.f.Curves, "readout_l2": r.f.ReadoutL2,
 		"norm_mean": r.p.Norm.Mean, "norm_scale": r.p.Norm.Scale, "reliability": r.rel,
 	}
 	var log, sc []float64

@@ -215,7 +215,7 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 	pj.x = make([]float64, Bt*Bt)
 	pj.m = make([]float64, Bt*Bt)
 	pj.dH = make([]float64, B*F)
-	pj.nconv = len(net.Params) - N*F - N
+	pj.nconv = len(net.Params) - net.Neurons*F - net.Neurons
 	return pj, nil
 }
 
@@ -595,7 +595,7 @@ func (s *MSE) Readout() ([]float64, error) {
 // predictions of every bin (as Readout) and each neuron's penalty in
 // model.readout_l2 units.
 func (s *MSE) AutoReadout(perNeuron bool) (curves, l2 []float64, err error) {
-	curves, l2, weights, err := s.pj.autoReadout(&s.pr, s.net, perNeuron)
+	curves, l2, weights, err := s.pj.autoReadoutTo(&s.pr, s.net, perNeuron, s.net.ReadB())
 	if err != nil {
 		return nil, nil, err
 	}
@@ -603,14 +603,26 @@ func (s *MSE) AutoReadout(perNeuron bool) (curves, l2 []float64, err error) {
 	return curves, l2, nil
 }
 
-// AutoReadoutBlocks is AutoReadout that writes only the readout bias into
-// the net and returns the weights as a function: weights(dst, n0, n1)
-// writes those of neurons [n0, n1) into dst ((n1-n0) x F, row-major, as
-// in the net's ReadW), computing them again on every call, so that the N
-// x F weights of a million neurons (3.8 GB) need never be held at once.
-// weights keeps B x N values of the solver alive.
-func (s *MSE) AutoReadoutBlocks(perNeuron bool) (curves, l2 []float64, weights func(dst []float64, n0, n1 int), err error) {
-	return s.pj.autoReadout(&s.pr, s.net, perNeuron)
+// ReadoutBlocks is the readout of Readout (auto false: the problem's
+// penalty) or of AutoReadout (auto true) without writing it into the net,
+// which may then have any number of neurons (one, for a fit from
+// PartStats): it returns the per-bin predictions, each neuron's penalty
+// in model.readout_l2 units (nil unless auto), the readout bias and the
+// weights as a function: weights(dst, n0, n1) writes those of neurons
+// [n0, n1) into dst ((n1-n0) x F, row-major, as in a net's ReadW),
+// computing them again on every call, so that the N x F weights of a
+// million neurons (3.8 GB) need never be held at once. weights keeps B x
+// N values of the solver alive. The arithmetic is that of AutoReadout (by
+// the eigendecomposition of A A^T), not Readout's Cholesky solve: with a
+// fixed penalty the two agree to rounding.
+func (s *MSE) ReadoutBlocks(auto, perNeuron bool) (curves, l2, bias []float64, weights func(dst []float64, n0, n1 int), err error) {
+	bias = make([]float64, s.pj.N)
+	if auto {
+		curves, l2, weights, err = s.pj.autoReadoutTo(&s.pr, s.net, perNeuron, bias)
+		return curves, l2, bias, weights, err
+	}
+	curves, weights, err = s.pj.fixedReadout(s.net, bias)
+	return curves, nil, bias, weights, err
 }
 
 // Eval is the state of the projected objective at some filters.

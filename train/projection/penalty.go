@@ -302,15 +302,16 @@ func (rp *ridgePath) perNeuronSURE(pj *projector, withinN []float64) []int {
 	return pick
 }
 
-// readout writes into the net the readout bias of the closed-form readout
+// readout writes into c (N) the readout bias of the closed-form readout
 // with penalty rp.mu[pick[n]] for neuron n (w_n = A^T U diag(1/(s+mu_n))
 // z_n, c_n = ybar_n - hbar . w_n = ybar_n - (U^T A hbar) . zs_n with zs_n
 // = diag(1/(s+mu_n)) z_n) and returns the per-bin predictions (B x N,
 // trained units) and a function writing the weights of neurons [n0, n1)
-// into dst ((n1-n0) x F). Everything goes by blocks of neurons, with
+// into dst ((n1-n0) x F; not safe for concurrent use). Everything goes by
+// blocks of neurons, with
 // scratch of (B + F) x neuronBlock. The features must be those of the
 // last decompose.
-func (rp *ridgePath) readout(pj *projector, net *nn.Net, pick []int) (curves []float64, weights func(dst []float64, n0, n1 int)) {
+func (rp *ridgePath) readout(pj *projector, c []float64, pick []int) (curves []float64, weights func(dst []float64, n0, n1 int)) {
 	B, Bt, F, N := pj.B, pj.Bt, pj.F, pj.N
 	z := rp.zeta(pj)
 	mu, s := rp.mu, rp.s
@@ -340,7 +341,6 @@ func (rp *ridgePath) readout(pj *projector, net *nn.Net, pick []int) (curves []f
 	g := make([]float64, B*Bt)
 	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(hc, B, F), gen(au, F, Bt), 0, gen(g, B, Bt))
 	ymean := pj.ymean
-	c := net.ReadB()
 	out := make([]float64, B*N)
 	zs := make([]float64, Bt*min(N, neuronBlock))
 	for n0 := 0; n0 < N; n0 += neuronBlock {
@@ -362,12 +362,17 @@ func (rp *ridgePath) readout(pj *projector, net *nn.Net, pick []int) (curves []f
 			}
 		}
 	}
+	// The weights function reuses one scratch of (Bt + F) x neuronBlock:
+	// it is not safe for concurrent use.
+	var zb, wt []float64
 	weights = func(dst []float64, n0, n1 int) {
 		if n0 < 0 || n1 > N || n0 > n1 || len(dst) != (n1-n0)*F {
 			panic(fmt.Sprintf("train: readout weights [%d, %d) of %d neurons into %d values, want (n1-n0) x %d", n0, n1, N, len(dst), F))
 		}
-		zb := make([]float64, Bt*min(n1-n0, neuronBlock))
-		wt := make([]float64, F*min(n1-n0, neuronBlock))
+		if zb == nil {
+			zb = make([]float64, Bt*min(N, neuronBlock))
+			wt = make([]float64, F*min(N, neuronBlock))
+		}
 		for m0 := n0; m0 < n1; m0 += neuronBlock {
 			nb := min(neuronBlock, n1-m0)
 			zsBlock(zb[:Bt*nb], m0, nb)
@@ -434,8 +439,8 @@ func trainWithinN(pr *Problem, pj *projector) []float64 {
 	return out
 }
 
-// autoReadout chooses the readout penalty at the net's current filters and
-// writes the closed-form readout with it into the net. Global: one penalty
+// autoReadoutTo chooses the readout penalty at the net's current filters
+// and computes the closed-form readout with it, its bias into bias (N). Global: one penalty
 // for all neurons, by the validation loss when there are validation trials
 // and by C_p otherwise. Per neuron: each neuron's own C_p (its own
 // within-condition variance; measured better than per-neuron validation
@@ -443,7 +448,7 @@ func trainWithinN(pr *Problem, pj *projector) []float64 {
 // per-bin predictions (B x N, trained units) and the chosen
 // model.readout_l2 of every neuron (all equal unless perNeuron), and
 // leaves pj.mu at the global choice.
-func (pj *projector) autoReadout(pr *Problem, net *nn.Net, perNeuron bool) (curves, l2 []float64, weights func(dst []float64, n0, n1 int), err error) {
+func (pj *projector) autoReadoutTo(pr *Problem, net *nn.Net, perNeuron bool, bias []float64) (curves, l2 []float64, weights func(dst []float64, n0, n1 int), err error) {
 	rp := newRidgePath(pj, nil)
 	if err := rp.decompose(pj, net); err != nil {
 		return nil, nil, nil, err
@@ -465,10 +470,24 @@ func (pj *projector) autoReadout(pr *Problem, net *nn.Net, perNeuron bool) (curv
 			pick[n] = g
 		}
 	}
-	curves, weights = rp.readout(pj, net, pick)
+	curves, weights = rp.readout(pj, bias, pick)
 	l2 = make([]float64, pj.N)
 	for n, k := range pick {
 		l2[n] = pj.readoutL2(rp.mu[k])
 	}
 	return curves, l2, weights, nil
+}
+
+// fixedReadout computes the closed-form readout at the problem's penalty
+// (pj.mu) by the eigendecomposition of A A^T, its bias into bias (N), and
+// returns the per-bin predictions and the weights function of
+// ridgePath.readout.
+func (pj *projector) fixedReadout(net *nn.Net, bias []float64) (curves []float64, weights func(dst []float64, n0, n1 int), err error) {
+	rp := newRidgePath(pj, []float64{1})
+	if err := rp.decompose(pj, net); err != nil {
+		return nil, nil, err
+	}
+	rp.mu[0] = pj.mu
+	curves, weights = rp.readout(pj, bias, make([]int, pj.N))
+	return curves, weights, nil
 }

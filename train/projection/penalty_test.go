@@ -70,7 +70,7 @@ func TestRidgePath(t *testing.T) {
 		for n := range pick {
 			pick[n] = g
 		}
-		got, weights := rp.readout(pj, net, pick)
+		got, weights := rp.readout(pj, net.ReadB(), pick)
 		clear(net.ReadW())
 		weights(net.ReadW(), 0, pj.N)
 		// Any range of neurons gives the same weights as the whole.

@@ -531,10 +531,11 @@ func WriteModel(dir string, p *train.Prepared, f *train.Fitted) error {
 		return err
 	}
 	net := f.Net
+	N := p.Neurons() // net has one neuron when f.Weights is set
 	m := Manifest{
 		Format: FormatRun, Stria: Version, Go: runtime.Version(), Created: time.Now().UTC().Format(time.RFC3339),
 		Seed: p.Cfg.Seed, Output: p.Cfg.Model.Output, Loss: p.Cfg.Model.Loss,
-		Neurons: net.Neurons, Features: net.Features(), Arrays: map[string]Array{}, ZScore: p.Norm != nil,
+		Neurons: N, Features: net.Features(), Arrays: map[string]Array{}, ZScore: p.Norm != nil,
 		Names:   p.Rec.Neurons,
 		Trials:  map[string]int{"train": len(p.Train), "validation": len(p.Val), "test": len(p.Test)},
 		Sources: map[string]string{"responses": p.Rec.Source.Responses, "stimulus": p.Rec.Source.Stimulus},
@@ -552,23 +553,23 @@ func WriteModel(dir string, p *train.Prepared, f *train.Fitted) error {
 		in = c.Out
 	}
 	rel := filepath.Join(DirParameters, "readout_weight.npy")
-	m.Arrays["readout_weight"] = Array{File: filepath.ToSlash(rel), Shape: []int{net.Neurons, net.Features()}}
-	if err := format.WriteNPY64Rows(filepath.Join(dir, rel), net.Neurons, net.Features(), f.ReadoutWeights); err != nil {
+	m.Arrays["readout_weight"] = Array{File: filepath.ToSlash(rel), Shape: []int{N, net.Features()}}
+	if err := format.WriteNPY64Rows(filepath.Join(dir, rel), N, net.Features(), f.ReadoutWeights); err != nil {
 		return err
 	}
-	if err := saveArray(dir, &m, "readout_bias", []int{net.Neurons}, net.ReadB()); err != nil {
+	if err := saveArray(dir, &m, "readout_bias", []int{N}, f.ReadoutBias()); err != nil {
 		return err
 	}
 	if p.Norm != nil {
-		if err := saveArray(dir, &m, "norm_mean", []int{net.Neurons}, p.Norm.Mean); err != nil {
+		if err := saveArray(dir, &m, "norm_mean", []int{N}, p.Norm.Mean); err != nil {
 			return err
 		}
-		if err := saveArray(dir, &m, "norm_scale", []int{net.Neurons}, p.Norm.Scale); err != nil {
+		if err := saveArray(dir, &m, "norm_scale", []int{N}, p.Norm.Scale); err != nil {
 			return err
 		}
 	}
 	if f.ReadoutL2 != nil {
-		if err := saveArray(dir, &m, "readout_l2", []int{net.Neurons}, f.ReadoutL2); err != nil {
+		if err := saveArray(dir, &m, "readout_l2", []int{N}, f.ReadoutL2); err != nil {
 			return err
 		}
 	}
