@@ -305,7 +305,7 @@ stats=$(sbatch --parsable --job-name=stria-fit-stats --array=1-%d \
 	--cpus-per-task=2 --mem=8G --time=04:00:00 --output="stria-fit-task-%%a-of-%d.log" \
 	--wrap "$(q "$STRIA") fit --config $(q "$CONFIG") --out $(q "$OUT") --array-task \$SLURM_ARRAY_TASK_ID --array-task-count %d --quiet")
 echo "submitted the statistics job array: $stats"
-gather=$(sbatch --parsable --job-name=stria-fit-gather --dependency=afterok:"${stats%%%%;*}" \
+gather=$(sbatch --parsable --job-name=stria-fit-gather --dependency=afterok:"${stats%%%%;*}" --kill-on-invalid-dep=yes \
 	--cpus-per-task=2 --mem=16G --time=04:00:00 --output=stria-fit-gather.log "$@" \
 	--wrap "$(q "$STRIA") gather $(q "$OUT")")
 echo "submitted the gather job: $gather (after the array succeeds)"
