@@ -225,7 +225,7 @@ func prepareGathered(cfg *settings.Config, g *arrayGather, phase func(string)) (
 			file := filepath.Join(runfolder.ArrayTaskDir(dir, i, g.tasks), runfolder.FileArrayStats)
 			if k == 0 {
 				if diff := want.Mismatch(a.Fingerprint, settings.DiffSettings); len(diff) > 0 {
-					return nil, nil, fmt.Errorf("gather: %s was written with other settings or data than array task 1 and the files now; refusing to mix them:\n  %s\nrun that task again", file, strings.Join(diff, "\n  "))
+					return nil, nil, fmt.Errorf("gather: %s was written with other settings or data than array task 1 and the files now; refusing to mix them (its value -> the value now):\n  %s\nrun that task again", file, strings.Join(diff, "\n  "))
 				}
 				n0, n1 := train.NeuronRange(i, g.tasks, s.Cols())
 				if a.Neurons != [2]int{n0, n1} || a.TotalNeurons != s.Cols() || a.Trials != s.Rows() {
