@@ -1,10 +1,10 @@
 package main
 
 import (
-	"os"
-	"path/filepath"
 	"bytes"
 	"math"
+	"os"
+	"path/filepath"
 	"regexp"
 	"strconv"
 	"strings"
