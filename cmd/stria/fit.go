@@ -154,14 +154,9 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	if err != nil {
 		return nil, err
 	}
-	// A recording read in one pass has no content hashes yet: they are
-	// computed (one more read of the files) only when a checkpoint is
-	// compared or written.
-	if resume != nil {
-		if err := rec.HashFiles(); err != nil {
-			return nil, err
-		}
-	}
+	// A recording read in one pass has no content hashes (they would cost
+	// a second read of the file): its checkpoints record the files' size
+	// and modification time, which decide alone when a hash is missing.
 	files := rec.Files()
 	if resume != nil && resume.Files == nil {
 		return nil, fmt.Errorf("--resume: the checkpoint in %s does not record the data it was written on, so it cannot be checked; fit again without --resume (with --overwrite)", dir)
@@ -202,10 +197,7 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	hooks := train.Hooks{
 		Checkpoint: func(c *train.Checkpoint) error {
 			c.Config = cfgYAML
-			if err := rec.HashFiles(); err != nil {
-				return err
-			}
-			c.Files = rec.Files()
+			c.Files = files
 			return runfolder.SaveResumeState(dir, c)
 		},
 	}
