@@ -153,7 +153,7 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 		pj.trainFromStats(pr.Train, inv)
 	}
 	pj.S = make([]float64, Bt*Bt)
-	blas64.Gemm(blas.NoTrans, blas.Trans, 1, gen(pj.yc, Bt, N), gen(pj.yc, Bt, N), 0, gen(pj.S, Bt, Bt))
+	sumOverNeurons(pj.S, pj.yc, pj.yc, Bt, Bt, N)
 	for i := 0; i < Bt; i++ {
 		for j := 0; j < Bt; j++ {
 			pj.S[i*Bt+j] *= pj.sq[i] * pj.sq[j]
@@ -177,7 +177,7 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 			pj.yyv[r] = s
 		}
 		pj.cvt = make([]float64, Bv*Bt)
-		blas64.Gemm(blas.NoTrans, blas.Trans, 1, gen(pj.dv, Bv, N), gen(pj.yc, Bt, N), 0, gen(pj.cvt, Bv, Bt))
+		sumOverNeurons(pj.cvt, pj.dv, pj.yc, Bv, Bt, N)
 		for r := 0; r < Bv; r++ {
 			for c := 0; c < Bt; c++ {
 				pj.cvt[r*Bt+c] *= pj.sq[c]
@@ -228,6 +228,31 @@ const neuronBlock = 4096
 // blas64.General.
 func cols(v []float64, r, c, c0, nc int) blas64.General {
 	return blas64.General{Rows: r, Cols: nc, Stride: c, Data: v[c0 : (r-1)*c+c0+nc]}
+}
+
+// sumOverNeurons writes dst = a b^T (m x n), a sum over the N neurons,
+// with a (m x N) and b (n x N): by chunks of neuronBlock neurons on up to
+// GOMAXPROCS goroutines (a product with a long inner dimension and a small
+// result runs on one core in Gemm), the chunks' products added in chunk
+// order, so the result does not depend on the number of cores. At most
+// one chunk: Gemm itself.
+func sumOverNeurons(dst, a, b []float64, m, n, N int) {
+	nch := (N + neuronBlock - 1) / neuronBlock
+	if nch <= 1 {
+		blas64.Gemm(blas.NoTrans, blas.Trans, 1, gen(a, m, N), gen(b, n, N), 0, gen(dst, m, n))
+		return
+	}
+	part := make([]float64, nch*m*n)
+	parallelBlocks(N, func(n0, n1 int) {
+		c := n0 / neuronBlock
+		blas64.Gemm(blas.NoTrans, blas.Trans, 1, cols(a, m, N, n0, n1-n0), cols(b, n, N, n0, n1-n0), 0, gen(part[c*m*n:(c+1)*m*n], m, n))
+	})
+	copy(dst, part[:m*n])
+	for c := 1; c < nch; c++ {
+		for i, v := range part[c*m*n : (c+1)*m*n] {
+			dst[i] += v
+		}
+	}
 }
 
 // gen wraps a row-major r x c slice as a blas64.General.

@@ -276,25 +276,38 @@ func (rp *ridgePath) perNeuronSURE(pj *projector, withinN []float64) []int {
 	z := rp.zeta(pj)
 	pick := make([]int, N)
 	dfs := make([]float64, len(rp.mu))
+	// coef[g*Bt+j] = mu_g / (s_j + mu_g): no division per neuron.
+	coef := make([]float64, len(rp.mu)*Bt)
 	for g, mu := range rp.mu {
-		for _, s := range rp.s {
+		for j, s := range rp.s {
 			dfs[g] += s / (s + mu)
+			coef[g*Bt+j] = mu / (s + mu)
 		}
 	}
 	// Each neuron is done by one goroutine, so the choice does not depend
-	// on the number of cores.
+	// on the number of cores. For each grid value the risks of a block of
+	// neurons are summed over j in ascending order, as one neuron's alone.
 	parallelBlocks(N, func(n0, n1 int) {
-		for n := n0; n < n1; n++ {
-			sigma2 := withinN[n] / math.Max(pj.W-float64(Bt), 1)
-			best := math.Inf(1)
-			for g, mu := range rp.mu {
-				var res float64
-				for j, s := range rp.s {
-					q := mu / (s + mu) * z[j*N+n]
-					res += q * q
+		nb := n1 - n0
+		res := make([]float64, nb)
+		best := make([]float64, nb)
+		sigma2 := make([]float64, nb)
+		for n := range best {
+			best[n] = math.Inf(1)
+			sigma2[n] = withinN[n0+n] / math.Max(pj.W-float64(Bt), 1)
+		}
+		for g := range rp.mu {
+			clear(res)
+			for j, c := range coef[g*Bt : (g+1)*Bt] {
+				zr := z[j*N+n0 : j*N+n1]
+				for n, v := range zr {
+					q := c * v
+					res[n] += q * q
 				}
-				if v := res + 2*sigma2*dfs[g]; v < best {
-					best, pick[n] = v, g
+			}
+			for n, r := range res {
+				if v := r + 2*sigma2[n]*dfs[g]; v < best[n] {
+					best[n], pick[n0+n] = v, g
 				}
 			}
 		}
