@@ -56,6 +56,7 @@ import (
 type projector struct {
 	B, Bt, Bv, F, N int
 	rows, vrows     []int     // bins of the training and the validation rows
+	trainRow        []int     // B: the training row of each bin, -1 for none
 	sq, pw          []float64 // Bt: sqrt(N_b), N_b / W
 	nv              []float64 // Bv: validation trials of each row
 	W, Wv, mu       float64
@@ -64,6 +65,14 @@ type projector struct {
 	// training trials (trained units), when kept from PartStats; nil
 	// otherwise (trainWithinN computes it from the Stats).
 	withinN []float64
+	// consume: yc and dv are the Sum arrays of PartStats (Problem's
+	// TrainParts and ValParts), which the readout may take over: z goes
+	// into yc's storage and the per-bin predictions into valStore (dv's
+	// whole B x N array). spent is set once it has; the solver cannot
+	// evaluate after that.
+	consume  bool
+	valStore []float64
+	spent    bool
 
 	yc    []float64 // Bt x N, centred training condition means
 	ymean []float64 // N, training mean of each neuron
@@ -128,6 +137,13 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 	if Bt == 0 {
 		return nil, fmt.Errorf("train: no training trials")
 	}
+	pj.trainRow = make([]int, B)
+	for b := range pj.trainRow {
+		pj.trainRow[b] = -1
+	}
+	for r, b := range pj.rows {
+		pj.trainRow[b] = r
+	}
 	pj.Bt = Bt
 	W := 0
 	for _, c := range count {
@@ -148,6 +164,7 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 		mu[n], inv[n] = pr.Norm.Affine(n)
 	}
 	if pr.TrainParts != nil {
+		pj.consume = true
 		pj.trainFromParts(pr.TrainParts, inv)
 	} else {
 		pj.trainFromStats(pr.Train, inv)
@@ -287,16 +304,17 @@ func (pj *projector) features(net *nn.Net) []float64 {
 	return h
 }
 
-// factor forms K = A A^T + mu I and its Cholesky factor. It returns false
+// factor forms A A^T (kept in pj.k) and the Cholesky factor of K = A A^T
+// + mu I. It returns false
 // if K is not numerically positive definite (only possible with NaN or Inf
 // features).
 func (pj *projector) factor() (blas64.Triangular, bool) {
 	Bt, F := pj.Bt, pj.F
 	mulABt(pj.k, pj.a, pj.a, Bt, Bt, F, true)
-	for i := 0; i < Bt; i++ {
-		pj.k[i*Bt+i] += pj.mu
-	}
 	copy(pj.l, pj.k)
+	for i := 0; i < Bt; i++ {
+		pj.l[i*Bt+i] += pj.mu
+	}
 	return lapack64.Potrf(blas64.Symmetric{Uplo: blas.Lower, N: Bt, Stride: Bt, Data: pj.l})
 }
 
@@ -353,6 +371,9 @@ func solveRight(l blas64.Triangular, b blas64.General) {
 // overwrites the conv gradients in net.Grads with dJ/dtheta (the readout
 // part of net.Grads is not touched). It allocates nothing.
 func (pj *projector) eval(net *nn.Net, grad, r2 bool) error {
+	if pj.spent {
+		panic("train: projected solver evaluated after ReadoutBlocks took over its statistics")
+	}
 	Bt, F, N := pj.Bt, pj.F, float64(pj.N)
 	h := pj.features(net)
 	l, ok := pj.factor()
@@ -395,14 +416,8 @@ func (pj *projector) eval(net *nn.Net, grad, r2 bool) error {
 		return nil
 	}
 	Bv := pj.Bv
-	for r, b := range pj.vrows {
-		hv := pj.hv[r*F : (r+1)*F]
-		for f, v := range h[b*F : (b+1)*F] {
-			hv[f] = v - pj.hbar[f]
-		}
-	}
+	pj.valProjection(h)
 	rk := gen(pj.rk, Bv, Bt)
-	mulABt(pj.rk, pj.hv, pj.a, Bv, Bt, F, false)
 	solveRight(l, rk)
 	mulAB(pj.t, pj.rk, pj.S, Bv, Bt, Bt)
 	sum := pj.withinV
@@ -420,6 +435,36 @@ func (pj *projector) eval(net *nn.Net, grad, r2 bool) error {
 		pj.vr2 = pj.valR2()
 	}
 	return nil
+}
+
+// valProjection writes P = (Hv - 1 hbar^T) A^T (Bv x Bt) into pj.rk, for
+// the features h of the last factor. A validation bin that is training
+// row c has A_c = sqrt(N_c) (h_c - hbar), so its row of P is row c of
+// A A^T (pj.k) divided by sqrt(N_c) [derived]; only bins without training
+// trials take the product with A (F multiply-adds per entry).
+func (pj *projector) valProjection(h []float64) {
+	Bt, F := pj.Bt, pj.F
+	for r, b := range pj.vrows {
+		row := pj.rk[r*Bt : (r+1)*Bt]
+		if c := pj.trainRow[b]; c >= 0 {
+			inv := 1 / pj.sq[c]
+			for j, v := range pj.k[c*Bt : (c+1)*Bt] {
+				row[j] = v * inv
+			}
+			continue
+		}
+		hv := pj.hv[r*F : (r+1)*F]
+		for f, v := range h[b*F : (b+1)*F] {
+			hv[f] = v - pj.hbar[f]
+		}
+		for j := range row {
+			var d float64
+			for f, a := range pj.a[j*F : (j+1)*F] {
+				d += hv[f] * a
+			}
+			row[j] = d
+		}
+	}
 }
 
 // valR2 returns the median over neurons of the validation R^2 of the
@@ -637,7 +682,10 @@ func (s *MSE) AutoReadout(perNeuron bool) (curves, l2 []float64, err error) {
 // [n0, n1) into dst ((n1-n0) x F, row-major, as in a net's ReadW),
 // computing them again on every call, so that the N x F weights of a
 // million neurons (3.8 GB) need never be held at once. weights keeps B x
-// N values of the solver alive. The arithmetic is that of AutoReadout (by
+// N values of the solver alive. With a Problem of PartStats the readout
+// takes over their Sum arrays (the curves are returned in ValParts.Sum
+// when it has B x N values) and the solver cannot be evaluated after it
+// (it panics). The arithmetic is that of AutoReadout (by
 // the eigendecomposition of A A^T), not Readout's Cholesky solve: with a
 // fixed penalty the two agree to rounding.
 func (s *MSE) ReadoutBlocks(auto, perNeuron bool) (curves, l2, bias []float64, weights func(dst []float64, n0, n1 int), err error) {

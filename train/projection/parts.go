@@ -134,4 +134,5 @@ func (pj *projector) valFromParts(ps, train *condstats.PartStats, inv []float64)
 		}
 	}
 	pj.dv = ps.Sum[: Bv*N : Bv*N]
+	pj.valStore = ps.Sum
 }

@@ -213,12 +213,22 @@ func (rp *ridgePath) zeta(pj *projector) []float64 {
 	}
 	Bt, N := pj.Bt, pj.N
 	sy := make([]float64, Bt*min(N, neuronBlock))
-	rp.z = make([]float64, Bt*N)
+	if pj.consume {
+		// In yc's own storage: each block of yc is copied to sy before
+		// z's block overwrites it.
+		rp.z, pj.yc, pj.spent = pj.yc, nil, true
+	} else {
+		rp.z = make([]float64, Bt*N)
+	}
+	yc := rp.z
+	if !pj.consume {
+		yc = pj.yc
+	}
 	for n0 := 0; n0 < N; n0 += neuronBlock {
 		nb := min(neuronBlock, N-n0)
 		for r := 0; r < Bt; r++ {
 			s := pj.sq[r]
-			for n, v := range pj.yc[r*N+n0 : r*N+n0+nb] {
+			for n, v := range yc[r*N+n0 : r*N+n0+nb] {
 				sy[r*nb+n] = s * v
 			}
 		}
@@ -354,7 +364,13 @@ func (rp *ridgePath) readout(pj *projector, c []float64, pick []int) (curves []f
 	g := make([]float64, B*Bt)
 	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(hc, B, F), gen(au, F, Bt), 0, gen(g, B, Bt))
 	ymean := pj.ymean
-	out := make([]float64, B*N)
+	var out []float64
+	if pj.consume && len(pj.valStore) == B*N {
+		// dv is spent: the curves take its storage.
+		out, pj.dv, pj.valStore = pj.valStore, nil, nil
+	} else {
+		out = make([]float64, B*N)
+	}
 	zs := make([]float64, Bt*min(N, neuronBlock))
 	for n0 := 0; n0 < N; n0 += neuronBlock {
 		nb := min(neuronBlock, N-n0)
