@@ -7,6 +7,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"runtime"
 	"slices"
 	"strings"
 
@@ -241,6 +242,8 @@ func prepareGathered(cfg *settings.Config, g *arrayGather, phase func(string)) (
 		if joined[k], err = condstats.JoinNeurons(ranges...); err != nil {
 			return nil, nil, fmt.Errorf("gather: %s: %w", dir, err)
 		}
+		ranges = nil
+		runtime.GC() // the ranges are joined: their memory serves the next part
 	}
 	phase(fmt.Sprintf("read and join the statistics of %d array tasks", g.tasks))
 	if err := p.SetParts(joined); err != nil {
