@@ -69,6 +69,7 @@ func l2Grid() []float64 {
 // Bt x Bt for u and su, Bv x Bt for pu and cu, Bt x N for z.
 type ridgePath struct {
 	tau, mu []float64 // grid, relative and absolute (the projector's mu units)
+	fixed   float64   // > 0: the one penalty (mu units) of fixedReadout, not a grid
 	scale   float64   // tr(A A^T) / Bt
 	s, u    []float64 // eigenvalues (ascending) and eigenvectors (columns)
 	pu, cu  []float64
@@ -104,12 +105,20 @@ func (rp *ridgePath) decompose(pj *projector, net *nn.Net) error {
 	for i := 0; i < Bt; i++ {
 		tr += rp.u[i*Bt+i]
 	}
-	if !(tr > 0) || math.IsInf(tr, 0) {
+	switch {
+	case rp.fixed > 0 && (math.IsNaN(tr) || math.IsInf(tr, 0)):
+		return fmt.Errorf("train: projected solver: the features are not finite")
+	case rp.fixed > 0:
+		// A fixed penalty: zero features (dead filters) give the readout
+		// of the means alone, as the Cholesky solve of K = mu I does.
+		rp.mu[0] = rp.fixed
+	case !(tr > 0) || math.IsInf(tr, 0):
 		return fmt.Errorf("train: readout penalty: the features are zero or not finite")
-	}
-	rp.scale = tr / float64(Bt)
-	for g, t := range rp.tau {
-		rp.mu[g] = t * rp.scale
+	default:
+		rp.scale = tr / float64(Bt)
+		for g, t := range rp.tau {
+			rp.mu[g] = t * rp.scale
+		}
 	}
 	if !lapack64.Syev(lapack.EVCompute, blas64.Symmetric{Uplo: blas.Upper, N: Bt, Stride: Bt, Data: rp.u}, rp.s, rp.work, len(rp.work)) {
 		return fmt.Errorf("train: readout penalty: the eigendecomposition did not converge")
@@ -513,10 +522,10 @@ func (pj *projector) autoReadoutTo(pr *Problem, net *nn.Net, perNeuron bool, bia
 // ridgePath.readout.
 func (pj *projector) fixedReadout(net *nn.Net, bias []float64) (curves []float64, weights func(dst []float64, n0, n1 int), err error) {
 	rp := newRidgePath(pj, []float64{1})
+	rp.fixed = pj.mu
 	if err := rp.decompose(pj, net); err != nil {
 		return nil, nil, err
 	}
-	rp.mu[0] = pj.mu
 	curves, weights = rp.readout(pj, bias, make([]int, pj.N))
 	return curves, weights, nil
 }
