@@ -243,17 +243,20 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	var scores []eval.Scores
 	gerr := format.Guard(func() { scores = train.ScoreFitted(p, fitted) })
 	phase("score the test trials")
-	if err := <-written; err != nil {
-		return nil, err
-	}
 	if gerr != nil {
+		<-written
 		return nil, gerr
 	}
 	// The data must not have changed while the fit read them.
 	if err := rec.Unchanged(); err != nil {
+		<-written
 		return nil, err
 	}
+	// The scores are written while the model still is.
 	sum, err := runfolder.WriteResults(dir, p, fitted, scores, time.Since(start))
+	if werr := <-written; werr != nil {
+		return nil, werr
+	}
 	if err != nil {
 		return nil, err
 	}
