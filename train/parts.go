@@ -152,7 +152,7 @@ func NeuronRange(i, n, N int) (n0, n1 int) {
 // both halves, NaN with fewer than three, Spearman-Brown stepped up.
 // Neurons are done in blocks over the cores.
 func splitHalfAll(all *condstats.PartStats, parts []*condstats.PartStats) []float64 {
-	B, N := all.B, all.N
+	N := all.N
 	out := make([]float64, N)
 	var use []int
 	for b, k := range all.Count {
@@ -200,7 +200,6 @@ func splitHalfAll(all *condstats.PartStats, parts []*condstats.PartStats) []floa
 		}()
 	}
 	wg.Wait()
-	_ = B
 	return out
 }
 
