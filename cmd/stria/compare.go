@@ -84,8 +84,8 @@ func arrayTask(c *cli.Context, getenv func(string) string) (i, n int, err error)
 func gatherCommand() *cli.Command {
 	return &cli.Command{
 		Name:      "gather",
-		Usage:     "check that every unit of a comparison run as array tasks is done and write its outputs",
-		ArgsUsage: "COMPARE_FOLDER",
+		Usage:     "check that every array task of a comparison or a fit is done and write the results (a fit: join the statistics, fit, write the run folder)",
+		ArgsUsage: "FOLDER",
 		Action: func(c *cli.Context) error {
 			if err := oneFolderArg(c); err != nil {
 				return err
