@@ -28,6 +28,11 @@ type Problem struct {
 	// Penalty is model.readout_l2, the ridge penalty the filters train
 	// with (> 0).
 	Penalty float64
+	// Excluded are neurons that take no part in training (constant ones:
+	// train's Report.Constant), in increasing order; the Poisson fast path
+	// gives them a zero readout at their mean rate and leaves them out of
+	// its losses, as the adam path does. The MSE solver does not read it.
+	Excluded []int
 	// NeuronName and BinLabel name a neuron and a condition in errors
 	// (nil: by index).
 	NeuronName func(n int) string
