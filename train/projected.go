@@ -12,6 +12,14 @@ import (
 
 // problem reduces a prepared recording to what the projected solvers read.
 func (p *Prepared) problem() projection.Problem {
+	if p.Parts != nil {
+		return projection.Problem{
+			TrainParts: p.Parts.Train, ValParts: p.Parts.Val, Norm: p.Norm,
+			Penalty:    p.Cfg.Model.ReadoutL2.Value,
+			NeuronName: p.Rec.NeuronName,
+			BinLabel:   p.Axis.BinLabel,
+		}
+	}
 	return projection.Problem{
 		Train: p.TrainStats(), Val: p.ValStats(), Norm: p.Norm,
 		Penalty:    p.Cfg.Model.ReadoutL2.Value,
@@ -31,7 +39,15 @@ func (p *Prepared) problem() projection.Problem {
 // holds only the conv parameters and no random state.
 func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
 	cfg := p.Cfg
-	net := nn.NewNet(cfg.Shape(p.NBins, p.Neurons()))
+	// From Parts the solver gets a net of one neuron: it trains only the
+	// filters, and a readout of N x F values (3.8 GB at a million
+	// neurons) would be allocated, and zeroed, for nothing; the readout
+	// comes back as Fitted.Weights and Bias.
+	shapeN := p.Neurons()
+	if p.Parts != nil {
+		shapeN = 1
+	}
+	net := nn.NewNet(cfg.Shape(p.NBins, shapeN))
 	net.InitConvs(rand.New(rand.NewPCG(cfg.Seed, 0x1417)))
 	s, err := projection.NewMSE(p.problem(), net)
 	if err != nil {
@@ -46,9 +62,15 @@ func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpo
 		return nil, err
 	}
 	f := &Fitted{Net: net, Solver: settings.SolverProjected, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}
-	if cfg.Model.ReadoutL2.Auto {
+	switch {
+	case p.Parts != nil:
+		f.Curves, f.ReadoutL2, f.Bias, f.Weights, err = s.ReadoutBlocks(cfg.Model.ReadoutL2.Auto, cfg.Model.ReadoutL2PerNeuron)
+		// The solver kept its means in the training and validation sums:
+		// they are spent.
+		p.Parts.Train.Sum, p.Parts.Val.Sum = nil, nil
+	case cfg.Model.ReadoutL2.Auto:
 		f.Curves, f.ReadoutL2, err = s.AutoReadout(cfg.Model.ReadoutL2PerNeuron)
-	} else {
+	default:
 		f.Curves, err = s.Readout()
 	}
 	if err != nil {
@@ -110,7 +132,9 @@ func fitPoissonProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *
 		// validation loss was worse on BenchmarkPoissonSolvers (median
 		// held-out R^2 0.3588 against 0.3632 at 2,000 neurons), so
 		// model.readout_l2_per_neuron does not apply here.
-		f.Curves, f.ReadoutL2, _, err = s.AutoReadout(false)
+		if f.Curves, f.ReadoutL2, _, err = s.AutoReadout(false); err != nil {
+			return nil, err
+		}
 	} else {
 		f.Curves, vr2, err = s.Readout()
 	}
