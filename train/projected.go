@@ -2,6 +2,7 @@ package train
 
 import (
 	"context"
+	"fmt"
 	"github.com/strialab/stria/train/settings"
 	"math"
 	"math/rand/v2"
@@ -116,6 +117,11 @@ func fitPoissonProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *
 		return nil, err
 	}
 	f := &Fitted{Net: net, Solver: settings.SolverProjected, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}
+	// Say which limits counted: the config's are in Adam epochs.
+	if tc.Patience != cfg.Train.Patience || tc.MaxEpochs != cfg.Train.MaxEpochs {
+		f.Stop = fmt.Sprintf("%s; epochs are quasi-Newton iterations here, limited to patience %d and max_epochs %d (train.patience %d, train.max_epochs %d count Adam epochs)",
+			res.stop, tc.Patience, tc.MaxEpochs, cfg.Train.Patience, cfg.Train.MaxEpochs)
+	}
 	var vr2 float64
 	if cfg.Model.ReadoutL2.Auto && p.ValStats() != nil && len(p.Val) > 0 {
 		// The best epoch's R^2 is that of the trained penalty: solved
