@@ -85,6 +85,35 @@ type Fitted struct {
 	// (nbins x N, in the units the net was trained in), which a solver
 	// could compute more cheaply than a forward pass.
 	Curves []float64
+	// Weights, when not nil, computes the readout weights, which are then
+	// not in Net (its ReadW is zero): Weights(dst, n0, n1) writes those of
+	// neurons [n0, n1) into dst ((n1-n0) x features). A fit from Parts
+	// leaves them there, so that a million neurons' weights (3.8 GB) are
+	// never held at once (not safe for concurrent use). Use
+	// ReadoutWeights. Net then has a single
+	// neuron (only its filters are used) and Bias holds the readout bias
+	// of every neuron.
+	Weights func(dst []float64, n0, n1 int)
+	Bias    []float64
+}
+
+// ReadoutBias returns the readout bias of every neuron.
+func (f *Fitted) ReadoutBias() []float64 {
+	if f.Weights != nil {
+		return f.Bias
+	}
+	return f.Net.ReadB()
+}
+
+// ReadoutWeights writes the readout weights of neurons [n0, n1) into dst
+// ((n1-n0) x features, the layout of the net's ReadW).
+func (f *Fitted) ReadoutWeights(dst []float64, n0, n1 int) {
+	if f.Weights != nil {
+		f.Weights(dst, n0, n1)
+		return
+	}
+	F := f.Net.Features()
+	copy(dst, f.Net.ReadW()[n0*F:n1*F])
 }
 
 // rowSet is a set of training rows: model inputs, targets and row weights.
@@ -480,6 +509,10 @@ func Fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (f *
 
 func fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
 	cfg := p.Cfg
+	if p.Parts != nil {
+		// PrepareParts accepted the config: the projected MSE solver.
+		return fitProjected(ctx, p, hooks, resume)
+	}
 	if cfg.SolverToRun() == settings.SolverProjected {
 		if cfg.Model.Loss == settings.Poisson {
 			return fitPoissonProjected(ctx, p, hooks, resume)

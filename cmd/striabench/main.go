@@ -56,6 +56,8 @@ type options struct {
 	projectedPatience  int
 	projectedLR        float64
 	projectedReadoutL2 float64
+	// run is the benchmark: run, or runMany with -many.
+	run func(options) error
 }
 
 // runnerFlag starts striabench as a small runner that runs one child
@@ -70,7 +72,7 @@ func main() {
 		runChild(os.Args[2:])
 		return
 	}
-	var o options
+	o := options{run: run}
 	flag.StringVar(&o.dir, "dir", filepath.Join(os.TempDir(), "striabench"), "folder for the recordings, configs and run folders (recordings are reused when present)")
 	flag.StringVar(&o.stria, "stria", "", "stria binary to time (default: build ./cmd/stria into -dir)")
 	flag.IntVar(&o.neurons, "neurons", 24000, "neurons of the full-size recording")
@@ -96,8 +98,24 @@ func main() {
 	flag.IntVar(&o.projectedPatience, "patience", 100, "train.patience of the projected fits")
 	flag.Float64Var(&o.projectedLR, "lr", 1e-2, "train.learning_rate of the projected fits")
 	flag.Float64Var(&o.projectedReadoutL2, "readout-l2", 1, "model.readout_l2 of every fit")
+	var so streamOptions
+	stream := flag.Bool("stream", false, "instead: time stria fit with the default config on a recording written to disk by synth.WriteNPY (-stream-neurons x -stream-trials), against cat FILE > /dev/null in the same run")
+	flag.IntVar(&so.neurons, "stream-neurons", 1000000, "neurons of the -stream recording")
+	flag.IntVar(&so.trials, "stream-trials", 4600, "trials of the -stream recording")
+	flag.BoolVar(&so.keep, "stream-keep", false, "keep the -stream recording and run folder (a recording already in -dir is always kept)")
+	flag.BoolVar(&so.inMemory, "stream-in-memory", false, "run the -stream fit with --in-memory (the trial-level path)")
 	flag.Parse()
-	if err := run(o); err != nil {
+	if *stream {
+		if err := runStream(o, so); err != nil {
+			fmt.Fprintln(os.Stderr, "striabench:", err)
+			os.Exit(1)
+		}
+		return
+	}
+	if *manyCount > 0 {
+		o.run = runMany // the many-recordings benchmark (many.go)
+	}
+	if err := o.run(o); err != nil {
 		fmt.Fprintln(os.Stderr, "striabench:", err)
 		os.Exit(1)
 	}

@@ -15,6 +15,13 @@ type Problem struct {
 	// neurons) of the training and validation trials, in the recording's
 	// units; Val may be nil or hold no trials (no validation).
 	Train, Val *condstats.Stats
+	// TrainParts and ValParts, when TrainParts is not nil, take the place
+	// of Train and Val: the statistics of one pass over a recording
+	// (condstats.AccumulateParts; ValParts may be nil or hold no trials).
+	// The solver keeps its centred condition means in their Sum arrays,
+	// which it overwrites: at a million neurons that saves a B x N copy
+	// of each.
+	TrainParts, ValParts *condstats.PartStats
 	// Norm z-scores the responses (nil: none); the solvers work in the
 	// z-scored units and return predictions in them.
 	Norm *condstats.Normalizer
@@ -32,7 +39,21 @@ type Problem struct {
 	BinLabel   func(b int) string
 }
 
-func (pr *Problem) hasVal() bool { return pr.Val != nil && trials(pr.Val) > 0 }
+func (pr *Problem) hasVal() bool {
+	if pr.TrainParts != nil {
+		return pr.ValParts != nil && pr.ValParts.Trials > 0
+	}
+	return pr.Val != nil && trials(pr.Val) > 0
+}
+
+// dims returns the numbers of conditions and neurons and the training
+// trials per condition.
+func (pr *Problem) dims() (B, N int, count []int) {
+	if pr.TrainParts != nil {
+		return pr.TrainParts.B, pr.TrainParts.N, pr.TrainParts.Count
+	}
+	return pr.Train.B, pr.Train.N, pr.Train.Count
+}
 
 func (pr *Problem) neuronName(n int) string {
 	if pr.NeuronName != nil {
