@@ -62,6 +62,7 @@ func unitSettings(rec *settings.Config, spec train.ModelSpec) ([]byte, error) {
 	c.Scores.MinReliability = 0
 	c.Train.CheckpointEvery = 0
 	c.Data.Responses, c.Data.Stimulus, c.Data.Condition, c.Data.Block = "", "", "", ""
+	c.Data.Covariates = ""
 	return c.NumericSettings()
 }
 

@@ -1,0 +1,174 @@
+package train
+
+import (
+	"context"
+	"math"
+	"strings"
+	"testing"
+
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
+	"github.com/strialab/stria/eval/state"
+	"github.com/strialab/stria/train/settings"
+)
+
+// simPrepared prepares a state.Simulate population (16 directions, the
+// running speed as covariate) for a fit.
+func simPrepared(t testing.TB, sim *state.Sim, edit func(*settings.Config)) *Prepared {
+	t.Helper()
+	T, N, B := len(sim.Cond), sim.Config.Neurons, sim.Config.Conditions
+	y := data.NewMatrix(T, N)
+	copy(y.Data, sim.Y)
+	stim := make([]float64, T)
+	for i, c := range sim.Cond {
+		stim[i] = float64(c) * 360 / float64(B)
+	}
+	rec := &data.Recording{Y: y, Stim: stim, CovariateNames: []string{"speed"}, Covariates: [][]float64{sim.Speed},
+		Source: data.Source{Responses: "synthetic", Covariates: "speed.npy"}}
+	cfg := settings.Defaults()
+	cfg.Data.Responses = "synthetic"
+	cfg.Data.Covariates = "speed.npy"
+	cfg.Axis = settings.AxisConfig{Name: "direction", Unit: "deg", Min: 0, Max: 360, Periodic: true, Bins: B, Encoding: settings.OneHot}
+	cfg.Split.KeepBlocks = false
+	cfg.Model.Layers = []settings.LayerConfig{{Channels: 4, Kernel: 5, Stride: 1}}
+	cfg.Train.MaxEpochs = 300
+	cfg.Train.Patience = 40
+	if edit != nil {
+		edit(&cfg)
+	}
+	if err := cfg.Validate(); err != nil {
+		t.Fatal(err)
+	}
+	p, err := PrepareRecording(&cfg, rec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return p
+}
+
+// TestStateSimulation: on a simulation with planted running-speed gains
+// and offsets (state.Simulate, Poisson-like noise, an unobserved latent
+// gain left as noise), the state terms fitted around the encoder recover
+// the planted ones (r > 0.9, task requirement) and the held-out R^2 they
+// add matches the simulation's prediction (state.Sim.Predict, as in
+// eval/state's TestSimHeldOutGain) within 0.03, for both tuning modes.
+func TestStateSimulation(t *testing.T) {
+	cfg := state.DefaultSim()
+	cfg.Seed = 3
+	sim := state.Simulate(cfg)
+	N := cfg.Neurons
+	pr := make([]state.Predicted, N)
+	sim.Predict(pr)
+	for _, tuning := range []settings.StateTuning{settings.StateFixed, settings.StateRefit} {
+		t.Run(tuning.String(), func(t *testing.T) {
+			p := simPrepared(t, sim, func(c *settings.Config) { c.State.Tuning = tuning })
+			f, err := Fit(context.Background(), p, Hooks{}, nil)
+			if err != nil {
+				t.Fatal(err)
+			}
+			sf, err := FitState(context.Background(), p, f)
+			if err != nil {
+				t.Fatal(err)
+			}
+			var q float64
+			for _, tr := range p.Test {
+				z := (sim.Speed[tr] - sim.SpeedMean) / sim.SpeedSD
+				q += z * z
+			}
+			q /= float64(len(p.Test))
+			W := len(p.Train) + len(p.Val)
+			aT, oT := make([]float64, N), make([]float64, N)
+			var want, got float64
+			for n := 0; n < N; n++ {
+				aT[n] = sim.GainPerSD[n] / sim.SpeedSD
+				oT[n] = sim.OffsetPerSD[n] / sim.SpeedSD
+				S := pr[n].Speed * pr[n].Total
+				V := pr[n].Total - S + q*S
+				want += q*S/V - 3*(1-pr[n].Stim-pr[n].Speed)/float64(W)
+				got += sf.Scores[n].Delta
+			}
+			want /= float64(N)
+			got /= float64(N)
+			ra, ro := eval.Pearson(aT, sf.Raw.Gain), eval.Pearson(oT, sf.Raw.Offset)
+			var slope, ss float64
+			for n := range aT {
+				slope += aT[n] * sf.Raw.Gain[n]
+				ss += aT[n] * aT[n]
+			}
+			t.Logf("%s: gains r %.3f (fitted/planted %.3f), offsets r %.3f; held-out R^2 added %.4f, predicted %.4f; rounds %d, objective %v; %.2f s",
+				tuning, ra, slope/ss, ro, got, want, sf.Rounds, sf.Objective, sf.Seconds)
+			if ra < 0.9 || ro < 0.9 {
+				t.Errorf("got correlations with the planted terms: gain %.3f, offset %.3f; want both > 0.9", ra, ro)
+			}
+			if math.Abs(got-want) > 0.03 {
+				t.Errorf("got mean held-out R^2 added %.4f, want %.4f +- 0.03 (simulation's prediction)", got, want)
+			}
+			for i := 1; i < len(sf.Objective); i++ {
+				if sf.Objective[i] > sf.Objective[i-1] {
+					t.Errorf("objective rose at round %d: %v", i, sf.Objective)
+				}
+			}
+		})
+	}
+}
+
+// TestStatePopulationGain: the shared gain read from the other half of the
+// neurons adds held-out R^2 on the simulation (its latent gain and the
+// speed effect are shared), for most neurons.
+func TestStatePopulationGain(t *testing.T) {
+	cfg := state.DefaultSim()
+	cfg.Seed = 4
+	sim := state.Simulate(cfg)
+	p := simPrepared(t, sim, func(c *settings.Config) {
+		c.Data.Covariates = ""
+		c.State.PopulationGain = true
+	})
+	p.Rec.Covariates, p.Rec.CovariateNames = nil, nil
+	f, err := Fit(context.Background(), p, Hooks{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sf, err := FitState(context.Background(), p, f)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if sf.Scores != nil || sf.Pop == nil {
+		t.Fatalf("got covariate scores %v and population fit %v, want none and one", sf.Scores != nil, sf.Pop != nil)
+	}
+	s := sf.PopSummary
+	t.Logf("population gain (%s weights): mean held-out R^2 added %.4f, %.0f%% of neurons gain", sf.PopWeighting, s.MeanDelta, 100*s.FracPositive)
+	if !(s.MeanDelta > 0.02) || !(s.FracPositive > 0.7) {
+		t.Errorf("got mean R^2 added %.4f and share of neurons gaining %.2f, want > 0.02 and > 0.7", s.MeanDelta, s.FracPositive)
+	}
+}
+
+// TestStateCovariateErrors: bad covariates are refused with the file, the
+// covariate and the trial named.
+func TestStateCovariateErrors(t *testing.T) {
+	cfg := state.DefaultSim()
+	cfg.Neurons, cfg.Repeats, cfg.Seed = 20, 10, 5
+	sim := state.Simulate(cfg)
+	for _, tc := range []struct {
+		name string
+		edit func(v []float64)
+		want string
+	}{
+		{"nan", func(v []float64) { v[7] = math.NaN() }, `speed.npy: state: covariate "speed": value NaN at trial 7 (0-based)`},
+		{"constant", func(v []float64) {
+			for i := range v {
+				v[i] = 2
+			}
+		}, `speed.npy: state: covariate "speed": constant (2) over all`},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			p := simPrepared(t, sim, nil)
+			v := append([]float64(nil), sim.Speed...)
+			tc.edit(v)
+			p.Rec.Covariates = [][]float64{v}
+			_, err := StateFitCurves(context.Background(), p, p.TrainStats().Sum, true)
+			if err == nil || !strings.Contains(err.Error(), tc.want) {
+				t.Errorf("got error %v, want one containing %q", err, tc.want)
+			}
+		})
+	}
+}
