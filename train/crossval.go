@@ -21,6 +21,10 @@ type ModelSpec struct {
 	Baseline string
 	// Cfg is the encoder's full config (nil for a baseline).
 	Cfg *settings.Config
+	// State, when not empty, makes the model a state variant of the
+	// encoder or baseline above (VariantState or VariantPopGain; see
+	// state_compare.go).
+	State string
 }
 
 // FoldResult is one model's scores on one fold.
@@ -60,10 +64,11 @@ func Folds(p *Prepared) ([][3][]int, error) {
 func RunUnit(ctx context.Context, p *Prepared, spec ModelSpec, fold int, sets [3][]int) (*FoldResult, error) {
 	res := &FoldResult{Model: spec.Name, Fold: fold}
 	var pred []float64
+	var pf *Prepared
 	if spec.Baseline == "" {
 		q := *p
 		q.Cfg = spec.Cfg
-		pf := q.WithSplit(sets[0], sets[1], sets[2])
+		pf = q.WithSplit(sets[0], sets[1], sets[2])
 		f, err := Fit(ctx, pf, Hooks{}, nil)
 		if err != nil {
 			return nil, fmt.Errorf("%s, fold %d: %w", spec.Name, fold+1, err)
@@ -78,12 +83,18 @@ func RunUnit(ctx context.Context, p *Prepared, spec ModelSpec, fold int, sets [3
 			pred = PredictTrials(f.Net, pf, sets[2])
 		}
 	} else {
-		pf := p.WithSplit(append(slices.Clone(sets[0]), sets[1]...), nil, sets[2])
+		pf = p.WithSplit(append(slices.Clone(sets[0]), sets[1]...), nil, sets[2])
 		curves, err := fitBaseline(pf, spec.Baseline)
 		if err != nil {
 			return nil, fmt.Errorf("%s, fold %d: %w", spec.Name, fold+1, err)
 		}
 		res.Curves = curves
+	}
+	if spec.State != "" {
+		var err error
+		if pred, err = stateUnit(ctx, pf, spec, res); err != nil {
+			return nil, fmt.Errorf("%s, fold %d: %w", spec.Name, fold+1, err)
+		}
 	}
 	res.Scores = make([]eval.Scores, p.Neurons())
 	if pred != nil {

@@ -36,6 +36,9 @@ type StateFit struct {
 	// covariates); Summary summarises them.
 	Scores  []state.HeldOut
 	Summary state.GainSummary
+	// Pred is the state model's prediction of the test trials
+	// (len(p.Test) x N, row i for p.Test[i]); nil without covariates.
+	Pred []float64
 	// Linked lists the covariates tied to the stimulus (eta^2 above
 	// state.stimulus_share_warning on the fitting trials).
 	Linked []state.Link
@@ -190,6 +193,7 @@ func stateFitCurves(ctx context.Context, p *Prepared, stim []float64, encoder bo
 		}
 		pred := make([]float64, len(p.Test)*n)
 		state.Predict(pred, sf.Params, sf.Tuning, z, p.Cond, p.Test)
+		sf.Pred = pred
 		sf.Scores = make([]state.HeldOut, n)
 		state.ScoreHeldOut(sf.Scores, y, n, p.Cond, p.Test, stim, pred)
 		sf.Summary = state.SummarizeGain(sf.Scores)
@@ -329,4 +333,72 @@ func targetStats(p *Prepared, st *state.Stats, pr *state.Params) *condstats.Stat
 		}
 	}
 	return out
+}
+
+// StateLevels are the observed responses at low and high state of one
+// covariate, for figures: the trials in its lowest and highest third (by
+// the covariate's value over all trials), their mean standardised value
+// and their per-condition mean responses (B x N, recording units; NaN
+// where a condition has no such trial).
+type StateLevels struct {
+	Covariate             int
+	LowZ, HighZ           float64
+	LowMeans, HighMeans   []float64
+	LowCount, HighCount   []int
+	LowCutoff, HighCutoff float64
+}
+
+// Levels splits the trials by covariate k into thirds and returns the low
+// and high thirds' mean z-score and condition means. It panics if the fit
+// has no covariates or k is out of range.
+func (sf *StateFit) Levels(p *Prepared, k int) *StateLevels {
+	cov := sf.Covariates
+	if cov == nil || k < 0 || k >= cov.K {
+		panic("train: StateFit.Levels: no such covariate")
+	}
+	T, K := cov.T, cov.K
+	v := make([]float64, T)
+	for t := range v {
+		v[t] = cov.Values[t*K+k]
+	}
+	sorted := slices.Clone(v)
+	slices.Sort(sorted)
+	lv := &StateLevels{Covariate: k, LowCutoff: sorted[(T-1)/3], HighCutoff: sorted[T-1-(T-1)/3]}
+	B, N := p.NBins, p.Neurons()
+	lv.LowMeans, lv.HighMeans = make([]float64, B*N), make([]float64, B*N)
+	lv.LowCount, lv.HighCount = make([]int, B), make([]int, B)
+	var zl, zh float64
+	var nl, nh int
+	y := p.Rec.Y.Data
+	for t, x := range v {
+		var dst []float64
+		z := (x - sf.Std.Mean[k]) / sf.Std.Scale[k]
+		switch {
+		case x <= lv.LowCutoff:
+			dst = lv.LowMeans
+			lv.LowCount[p.Cond[t]]++
+			zl += z
+			nl++
+		case x >= lv.HighCutoff:
+			dst = lv.HighMeans
+			lv.HighCount[p.Cond[t]]++
+			zh += z
+			nh++
+		default:
+			continue
+		}
+		b := p.Cond[t]
+		row := dst[b*N : b*N+N]
+		for j, yv := range y[t*N : t*N+N] {
+			row[j] += float64(yv)
+		}
+	}
+	for b := 0; b < B; b++ {
+		for j := 0; j < N; j++ {
+			lv.LowMeans[b*N+j] /= float64(lv.LowCount[b])
+			lv.HighMeans[b*N+j] /= float64(lv.HighCount[b])
+		}
+	}
+	lv.LowZ, lv.HighZ = zl/float64(max(nl, 1)), zh/float64(max(nh, 1))
+	return lv
 }

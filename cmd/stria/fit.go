@@ -218,6 +218,10 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	if err != nil {
 		return nil, err
 	}
+	if err := fitState(ctx, dir, p, fitted, sum, o.stderr); err != nil {
+		return nil, err
+	}
+	phase("state terms")
 	if err := runfolder.RemoveResumeState(dir); err != nil {
 		return nil, err
 	}
@@ -290,6 +294,7 @@ func printSummary(w io.Writer, dir string, s *runfolder.Summary) {
 	for _, c := range s.Cautions {
 		fmt.Fprintln(w, "note:", c)
 	}
+	printState(w, s.State)
 }
 
 // ceilingCounts lists the verdict counts of summary.json in code order:

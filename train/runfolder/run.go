@@ -219,6 +219,8 @@ type Summary struct {
 	ReadoutL2 PenaltyInfo `json:"readout_l2"`
 	Cautions  []string    `json:"cautions"`
 	Warnings  []string    `json:"warnings"`
+	// State is the state terms' block (state.go); nil without them.
+	State *StateSummary `json:"state,omitempty"`
 }
 
 // ScoreColumns are the per-neuron score columns of neuron_scores.csv and
