@@ -10,8 +10,8 @@ import (
 )
 
 // stateSpecs returns the state variants of a comparison (eval/methods.md
-// §17): for each base model (state.compare_models; empty: the first
-// encoder and condmean, where present) the variant name+state when the
+// §17): for each base model named in state.compare_models (none by
+// default: each variant costs a unit per fold) the variant name+state when the
 // recording has covariates and name+popgain with state.population_gain.
 // They are listed after the models they vary, scored on the same folds
 // and enter the same pair tests. None when the config has no state terms.
@@ -20,19 +20,6 @@ func stateSpecs(c *settings.Config, specs []train.ModelSpec) ([]train.ModelSpec,
 		return nil, nil
 	}
 	bases := c.State.CompareModels
-	if len(bases) == 0 {
-		for _, s := range specs {
-			if s.Baseline == "" {
-				bases = append(bases, s.Name)
-				break
-			}
-		}
-		for _, s := range specs {
-			if s.Baseline == "condmean" {
-				bases = append(bases, s.Name)
-			}
-		}
-	}
 	var kinds []string
 	if c.HasCovariates() {
 		kinds = append(kinds, train.VariantState)

@@ -330,6 +330,10 @@ func exportRun(dir, out string, opt Options) (*Exported, error) {
 		}
 	}
 
+	if err := exportState(dir, out, ex, sum, values, chosen, ax); err != nil {
+		return nil, err
+	}
+
 	// Preferred stimuli from the noise-free encoder curves.
 	period := 0.0
 	if mf.Axis.Periodic {

@@ -33,8 +33,7 @@ type StateConfig struct {
 	// covariate is tied to the stimulus.
 	StimulusShareWarning float64 `yaml:"stimulus_share_warning"`
 	// CompareModels are the models of stria compare that get state
-	// variants (name+state, name+popgain); empty: the first encoder and
-	// condmean.
+	// variants (name+state, name+popgain); empty: none.
 	CompareModels []string `yaml:"compare_models"`
 }
 
@@ -85,6 +84,9 @@ func (c *Config) validateState(bad func(string, ...any)) {
 	}
 	if s.PopulationOffset && !s.PopulationGain {
 		bad("state.population_offset: needs state.population_gain: true")
+	}
+	if len(s.CompareModels) > 0 && !c.StateActive() {
+		bad("state.compare_models: state variants need covariates (data.covariates or data.covariate_columns) or state.population_gain: true")
 	}
 	for i, n := range c.Data.CovariateColumns {
 		if strings.TrimSpace(n) == "" {
