@@ -75,6 +75,24 @@ func StateCovariates(p *Prepared) (*state.Covariates, error) {
 	return cov, nil
 }
 
+// CheckState checks, before any fitting, what the state terms of p will
+// need: the covariates (StateCovariates) and their spread over the fitting
+// trials (a covariate constant there cannot be standardised). Nil when the
+// config asks for no state terms.
+func CheckState(p *Prepared) error {
+	if !p.Cfg.StateActive() {
+		return nil
+	}
+	cov, err := StateCovariates(p)
+	if err != nil || cov == nil {
+		return err
+	}
+	if _, err := state.NewStandardizer(cov, p.fitTrials()); err != nil {
+		return fmt.Errorf("%s: %w", covariateFile(p), err)
+	}
+	return nil
+}
+
 func covariateFile(p *Prepared) string {
 	src := p.Rec.Source
 	switch {

@@ -122,6 +122,9 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	if err != nil {
 		return nil, err
 	}
+	if err := train.CheckState(p); err != nil {
+		return nil, err
+	}
 	phase("bin, check, split, normalise")
 	files := rec.Files()
 	if resume != nil && resume.Files == nil {
