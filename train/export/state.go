@@ -179,7 +179,7 @@ func stateSection(ex *Exported, sum *runfolder.Summary) *report.Section {
 	sec := &report.Section{ID: "state", Heading: "State terms: gain and offset",
 		Paragraphs: []string{fmt.Sprintf("Each neuron's response is modelled as (1 + gain . z) tuning + offset . z + bias, z the standardised covariates of the trial (tuning %s). %s", s.Tuning, s.Caution)},
 		Notes:      s.Notes, Tables: []report.Table{t},
-		Figures:    reportFigures(ex, func(n string) bool { return strings.HasPrefix(n, "state_") })}
+		Figures: reportFigures(ex, func(n string) bool { return strings.HasPrefix(n, "state_") })}
 	return sec
 }
 
