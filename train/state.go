@@ -2,7 +2,10 @@ package train
 
 import (
 	"context"
+	"encoding/binary"
 	"fmt"
+	"hash"
+	"hash/fnv"
 	"math"
 	"slices"
 	"strconv"
@@ -145,8 +148,10 @@ func FitState(ctx context.Context, p *Prepared, f *Fitted) (*StateFit, error) {
 //     tuning such as condmean) tuning and state terms are fitted jointly
 //     by state.FitFree, started at stim.
 //  2. population gain (state.population_gain): state.CrossGain with the
-//     tuning stim, halves by state.SplitHalves on the neuron names (or
-//     0-based column numbers when the recording has none) and the seed.
+//     tuning stim, halves by state.SplitHalves on the neuron names (or a
+//     hash of each neuron's responses when the recording has none, see
+//     neuronIDs) and the seed, so the halves do not depend on the column
+//     order.
 //
 // Scores are on p.Test: the stimulus-only R^2 of stim and the R^2 with the
 // state terms (state.ScoreHeldOut). Errors name the covariate file, the
@@ -217,15 +222,7 @@ func stateFitCurves(ctx context.Context, p *Prepared, stim []float64, encoder bo
 		sf.Summary = state.SummarizeGain(sf.Scores)
 	}
 	if cfg.PopulationGain {
-		ids := make([]string, n)
-		for j := range ids {
-			if j < len(p.Rec.Neurons) && p.Rec.Neurons[j] != "" {
-				ids[j] = p.Rec.Neurons[j]
-			} else {
-				ids[j] = strconv.Itoa(j)
-			}
-		}
-		half, err := state.SplitHalves(ids, p.Cfg.Seed)
+		half, err := state.SplitHalves(neuronIDs(p), p.Cfg.Seed)
 		if err != nil {
 			return nil, fmt.Errorf("population gain: %w", err)
 		}
@@ -246,6 +243,54 @@ func stateFitCurves(ctx context.Context, p *Prepared, stim []float64, encoder bo
 	}
 	sf.Seconds = time.Since(start).Seconds()
 	return sf, nil
+}
+
+// neuronIDs names the neurons for state.SplitHalves so that the halves do
+// not depend on the column order: the recording's neuron names, or, when
+// it has none, a hash of each neuron's responses (64-bit FNV-1a of the
+// float32 bits over all trials; identical columns get "#2", "#3", ... in
+// column order, which cannot change any result since they are the same
+// neuron twice).
+func neuronIDs(p *Prepared) []string {
+	n := p.Neurons()
+	ids := make([]string, n)
+	if len(p.Rec.Neurons) == n {
+		copy(ids, p.Rec.Neurons)
+	}
+	var hs []hash.Hash64
+	for j := range ids {
+		if ids[j] == "" {
+			if hs == nil {
+				hs = make([]hash.Hash64, n)
+			}
+			hs[j] = fnv.New64a()
+		}
+	}
+	if hs != nil {
+		var buf [4]byte
+		y := p.Rec.Y.Data
+		for t := 0; t < p.Rec.Y.Rows; t++ {
+			for j, h := range hs {
+				if h != nil {
+					binary.LittleEndian.PutUint32(buf[:], math.Float32bits(y[t*n+j]))
+					h.Write(buf[:])
+				}
+			}
+		}
+		seen := map[string]int{}
+		for j, h := range hs {
+			if h == nil {
+				continue
+			}
+			id := "responses:" + strconv.FormatUint(h.Sum64(), 16)
+			seen[id]++
+			if k := seen[id]; k > 1 {
+				id += "#" + strconv.Itoa(k)
+			}
+			ids[j] = id
+		}
+	}
+	return ids
 }
 
 func nonNegative(y []float32) bool {

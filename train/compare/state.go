@@ -6,6 +6,7 @@ import (
 	"strings"
 
 	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/runfolder"
 	"github.com/strialab/stria/train/settings"
 )
 
@@ -59,4 +60,15 @@ func refitAllowed(cfg *settings.Config) error {
 	c := *cfg
 	c.Data.Covariates = "x"
 	return c.Validate()
+}
+
+// stateCautions returns the caution shown beside scores of state variants
+// (runfolder.StateCaution), when the comparison has any.
+func stateCautions(specs []train.ModelSpec) []string {
+	for _, s := range specs {
+		if s.State != "" {
+			return []string{"Models named +state or +popgain add per-trial state terms. " + runfolder.StateCaution}
+		}
+	}
+	return nil
 }
