@@ -218,3 +218,30 @@ func TestStateColumnOrder(t *testing.T) {
 		}
 	}
 }
+
+// TestStateStimulusLinked: a covariate tied to the stimulus (running more
+// during some directions, state.SimConfig.SpeedLink) is named in a note and
+// flagged in the summary's share; an independent one is not.
+func TestStateStimulusLinked(t *testing.T) {
+	for _, link := range []float64{0, 0.9} {
+		cfg := state.DefaultSim()
+		cfg.Seed, cfg.SpeedLink = 8, link
+		sim := state.Simulate(cfg)
+		p := simPrepared(t, sim, nil)
+		f, err := Fit(context.Background(), p, Hooks{}, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		sf, err := FitState(context.Background(), p, f)
+		if err != nil {
+			t.Fatal(err)
+		}
+		noted := false
+		for _, n := range sf.Notes {
+			noted = noted || strings.Contains(n, `covariate "speed" is tied to the stimulus`)
+		}
+		if noted != (link > 0) || (len(sf.Linked) > 0) != (link > 0) {
+			t.Errorf("speed link %g: got note %v and linked %v, want them only for a linked covariate", link, noted, sf.Linked)
+		}
+	}
+}

@@ -113,7 +113,7 @@ acuity:
 state:
   # a gain and an offset per neuron on its tuning, from running speed, and a
   # shared gain read from the other half of the neurons
-  tuning: fixed              # refit trains the encoder again on the targets
+  tuning: fixed              # the default; refit trains the encoder again on the targets
   population_gain: true
 output: run
 `
