@@ -4,6 +4,7 @@ import (
 	"encoding/csv"
 	"fmt"
 	"math"
+	"os"
 	"path/filepath"
 	"strconv"
 
@@ -125,8 +126,12 @@ func WriteState(dir string, p *train.Prepared, sf *train.StateFit) (*StateSummar
 	for _, v := range sf.Objective {
 		s.Objective = append(s.Objective, Num(v))
 	}
+	mf, err := ReadManifest(dir)
+	if err != nil {
+		return nil, err
+	}
 	save := func(name string, shape []int, v []float64) error {
-		return writeArray(dir, name, shape, v)
+		return writeArray(dir, mf, name, shape, v)
 	}
 	header := []string{"neuron", "name"}
 	var cols []func(j int) string
@@ -244,7 +249,7 @@ func WriteState(dir string, p *train.Prepared, sf *train.StateFit) (*StateSummar
 		}
 	}
 	names := p.Rec.Neurons
-	err := WriteCSV(filepath.Join(dir, FileStateTerms), header, func(cw *csv.Writer) error {
+	err = WriteCSV(filepath.Join(dir, FileStateTerms), header, func(cw *csv.Writer) error {
 		row := make([]string, len(header))
 		for j := 0; j < N; j++ {
 			row[0] = strconv.Itoa(j)
@@ -264,11 +269,15 @@ func WriteState(dir string, p *train.Prepared, sf *train.StateFit) (*StateSummar
 	if err != nil {
 		return nil, err
 	}
+	// model.json lists the state arrays with the others.
+	if err := WriteJSON(filepath.Join(dir, FileManifest), mf); err != nil {
+		return nil, err
+	}
 	return s, nil
 }
 
-// writeArray writes parameters/name.npy.
-func writeArray(dir, name string, shape []int, v []float64) error {
+// writeArray writes parameters/name.npy and lists it in m.
+func writeArray(dir string, m *Manifest, name string, shape []int, v []float64) error {
 	n := 1
 	for _, d := range shape {
 		n *= d
@@ -276,8 +285,23 @@ func writeArray(dir, name string, shape []int, v []float64) error {
 	if n != len(v) {
 		panic(fmt.Sprintf("runfolder: %s: %d values for shape %v", name, len(v), shape))
 	}
-	m := &Manifest{Arrays: map[string]Array{}}
 	return saveArray(dir, m, name, shape, v)
+}
+
+// readStateTerms returns the bytes of state_terms.csv, nil when the run
+// has no state terms.
+func readStateTerms(dir string) ([]byte, error) {
+	b, err := os.ReadFile(filepath.Join(dir, FileStateTerms))
+	if errNotExist(err) {
+		return nil, nil
+	}
+	return b, err
+}
+
+// ReadStateTerms reads state_terms.csv of a run folder with state terms:
+// its header and rows (every row as long as the header).
+func ReadStateTerms(dir string) (header []string, rows [][]string, err error) {
+	return ReadTable(filepath.Join(dir, FileStateTerms))
 }
 
 // ReadStateArray reads parameters/name.npy of a run folder with state
