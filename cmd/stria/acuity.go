@@ -7,12 +7,14 @@ import (
 	"math"
 	"os"
 	"os/signal"
+	"strings"
 	"syscall"
 	"time"
 
 	"github.com/urfave/cli/v2"
 
 	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/runfolder"
 	"github.com/strialab/stria/train/runfolder/acuityfolder"
 	"github.com/strialab/stria/train/settings"
 )
@@ -30,6 +32,7 @@ func acuityCommand() *cli.Command {
 			"24,000 neurons x 4,600 trials with the defaults: 32 s on two cores (27 s of CPU time), 1.1 GB.",
 		Flags: append(dataFlags(),
 			&cli.BoolFlag{Name: "quiet", Aliases: []string{"q"}, Usage: "no progress lines"},
+			&cli.BoolFlag{Name: "overwrite", Usage: "replace the acuity folder of an earlier run: its files are deleted first"},
 		),
 		Action: func(c *cli.Context) error {
 			cfg, err := loadConfig(c)
@@ -41,7 +44,7 @@ func acuityCommand() *cli.Command {
 			}
 			ctx, stop := signal.NotifyContext(c.Context, os.Interrupt, syscall.SIGTERM)
 			defer stop()
-			_, err = runAcuity(ctx, cfg, c.App.Writer, c.App.ErrWriter, c.Bool("quiet"))
+			_, err = runAcuity(ctx, cfg, c.App.Writer, c.App.ErrWriter, c.Bool("quiet"), c.Bool("overwrite"))
 			return err
 		},
 	}
@@ -49,8 +52,19 @@ func acuityCommand() *cli.Command {
 
 // runAcuity prepares the recording, computes everything, writes the
 // acuity folder (complete.json last) and prints the results and cautions.
-func runAcuity(ctx context.Context, cfg *settings.Config, stdout, stderr io.Writer, quiet bool) (*acuityfolder.AcuityFolder, error) {
+//
+// The output folder is checked before the work starts: a folder of
+// another kind or of other files is refused, an earlier acuity folder
+// only replaced with overwrite; the folder is locked while it is written.
+func runAcuity(ctx context.Context, cfg *settings.Config, stdout, stderr io.Writer, quiet, overwrite bool) (*acuityfolder.AcuityFolder, error) {
 	start := time.Now()
+	out := cfg.Acuity.Output
+	if err := runfolder.CheckWritable(out); err != nil {
+		return nil, err
+	}
+	if err := checkAcuityFolder(out, overwrite); err != nil {
+		return nil, err
+	}
 	p, err := train.Prepare(cfg)
 	if err != nil {
 		return nil, err
@@ -65,7 +79,25 @@ func runAcuity(ctx context.Context, cfg *settings.Config, stdout, stderr io.Writ
 	if err != nil {
 		return nil, err
 	}
-	out := cfg.Acuity.Output
+	lock, note, err := runfolder.AcquireLock(out, strings.Join(os.Args, " "))
+	if err != nil {
+		return nil, err
+	}
+	defer lock.Release()
+	if note != "" {
+		fmt.Fprintln(stderr, "note:", note)
+	}
+	if err := checkAcuityFolder(out, overwrite); err != nil { // again, under the lock
+		return nil, err
+	}
+	if overwrite {
+		if err := runfolder.Empty(out); err != nil {
+			return nil, err
+		}
+	}
+	if _, err := runfolder.RemoveStaleTemps(out); err != nil {
+		return nil, err
+	}
 	if err := acuityfolder.BeginAcuity(out, settings); err != nil {
 		return nil, err
 	}
@@ -88,6 +120,29 @@ func runAcuity(ctx context.Context, cfg *settings.Config, stdout, stderr io.Writ
 	}
 	printAcuity(stdout, out, f)
 	return f, nil
+}
+
+// checkAcuityFolder refuses an output folder another stria is writing, a
+// folder of another kind or of files stria did not write, and an earlier
+// acuity folder unless overwrite.
+func checkAcuityFolder(dir string, overwrite bool) error {
+	if err := runfolder.CheckUnlocked(dir); err != nil {
+		return err
+	}
+	what, err := runfolder.Holds(dir)
+	if err != nil || what == "" {
+		return err
+	}
+	if kind, _ := runfolder.Kind(dir); kind != "" && kind != runfolder.KindAcuity {
+		return fmt.Errorf("output folder %s holds %s; stria acuity needs its own folder (acuity.output or --out)", dir, what)
+	}
+	if err := runfolder.CheckEmptiable(dir); err != nil {
+		return err
+	}
+	if overwrite {
+		return nil
+	}
+	return fmt.Errorf("output folder %s holds %s: give --overwrite to replace it (its files are deleted first), or another --out", dir, what)
 }
 
 // printAcuity prints the headline numbers of an acuity folder and its

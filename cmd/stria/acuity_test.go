@@ -96,6 +96,39 @@ func TestAcuityEndToEnd(t *testing.T) {
 	if len(sa) == 0 || string(sa) != string(sb) {
 		t.Error("stria export and stria report drew different acuity_saturation.svg files")
 	}
+
+	// The finished folder is not replaced silently, not mixed with a fit
+	// or a comparison, and --overwrite deletes only stria's files.
+	before, _ := os.ReadFile(filepath.Join(out, acuityfolder.FileAcuity))
+	for _, c := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"acuity", "--config", cfgPath, "--out", out, "--quiet"}, "holds an acuity folder: give --overwrite"},
+		{[]string{"fit", "--config", cfgPath, "--out", out, "--quiet"}, "holds an acuity folder; a fit needs its own folder"},
+		{[]string{"fit", "--config", cfgPath, "--out", out, "--quiet", "--overwrite"}, "holds an acuity folder; a fit needs its own folder"},
+		{[]string{"compare", "--config", cfgPath, "--out", out, "--quiet"}, "holds an acuity folder; a comparison needs its own folder"},
+	} {
+		got, err := runCLI(t, c.args...)
+		if err == nil || !strings.Contains(got+err.Error(), c.want) {
+			t.Errorf("stria %s into the acuity folder: got %v\n%s\nwant an error containing %q", strings.Join(c.args[:1], " "), err, got, c.want)
+		}
+	}
+	if after, _ := os.ReadFile(filepath.Join(out, acuityfolder.FileAcuity)); string(after) != string(before) {
+		t.Error("a refused command changed acuity.json")
+	}
+	mine := filepath.Join(out, "notes.txt")
+	os.WriteFile(mine, []byte("mine"), 0o644)
+	if got, err := runCLI(t, "acuity", "--config", cfgPath, "--out", out, "--quiet", "--overwrite"); err == nil || !strings.Contains(got+err.Error(), "notes.txt") {
+		t.Errorf("acuity --overwrite of a folder holding notes.txt: got %v\n%s\nwant a refusal naming notes.txt", err, got)
+	}
+	os.Remove(mine)
+	if got, err := runCLI(t, "acuity", "--config", cfgPath, "--out", out, "--quiet", "--overwrite"); err != nil {
+		t.Errorf("acuity --overwrite: %v\n%s", err, got)
+	}
+	if _, err := os.Stat(filepath.Join(out, runfolder.FileReport)); err == nil {
+		t.Error("acuity --overwrite left the earlier report.html")
+	}
 }
 
 // TestAcuityRefusesBadConfig checks that a bad acuity setting is refused

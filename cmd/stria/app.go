@@ -107,6 +107,25 @@ func oneFolderArg(c *cli.Context) error {
 	return nil
 }
 
+// lockFolder takes the lock of an existing folder that export or report
+// reads and writes figures into, so that they neither read a folder a fit
+// or comparison is still writing nor run two at once on it. A folder that
+// does not exist is left to the command's own error. The caller releases
+// the lock.
+func lockFolder(c *cli.Context, dir string) (*runfolder.Lock, error) {
+	if st, err := os.Stat(dir); err != nil || !st.IsDir() {
+		return nil, nil
+	}
+	lock, note, err := runfolder.AcquireLock(dir, strings.Join(os.Args, " "))
+	if err != nil {
+		return nil, err
+	}
+	if note != "" {
+		fmt.Fprintln(c.App.ErrWriter, "note:", note)
+	}
+	return lock, nil
+}
+
 // noArgs refuses positional arguments for commands that take none (fit,
 // compare, inspect, demo): they would be silently ignored otherwise.
 func noArgs(c *cli.Context) error {

@@ -235,8 +235,8 @@ func checkCompareFolder(out string, cfg *settings.Config, o compareOptions) erro
 	if kerr != nil && !fileExists(filepath.Join(out, runfolder.FileSettings)) {
 		return fmt.Errorf("output folder %s holds %s; choose an empty or new output folder (--out)", out, what)
 	}
-	if kind == runfolder.KindRun {
-		return fmt.Errorf("output folder %s holds a run folder (written by stria fit); a comparison needs its own folder (--out)", out)
+	if kind == runfolder.KindRun || kind == runfolder.KindAcuity {
+		return fmt.Errorf("output folder %s holds %s; a comparison needs its own folder (--out)", out, what)
 	}
 	if o.overwrite {
 		return runfolder.CheckEmptiable(out)

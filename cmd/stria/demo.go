@@ -218,7 +218,7 @@ func runDemo(ctx context.Context, stdout, stderr io.Writer, o demoOptions) error
 		return err
 	}
 	fmt.Fprintf(stdout, "\n== stria acuity --config %s\n", cfgPath)
-	if _, err := runAcuity(ctx, cfg, stdout, stderr, o.quiet); err != nil {
+	if _, err := runAcuity(ctx, cfg, stdout, stderr, o.quiet, true); err != nil {
 		return err
 	}
 	fmt.Fprintf(stdout, "\n== stria report %s\n", cfg.Acuity.Output)

@@ -24,10 +24,14 @@ func exportCommand() *cli.Command {
 			if err := oneFolderArg(c); err != nil {
 				return err
 			}
+			lock, err := lockFolder(c, c.Args().First())
+			if err != nil {
+				return err
+			}
+			defer lock.Release()
 			opt := exportOptions(c)
 			opt.Out = c.String("out")
 			var ex *export.Exported
-			var err error
 			if dir := c.Args().First(); acuityfolder.IsAcuity(dir) {
 				if opt.Neurons != "" || opt.Compare != "" {
 					return fmt.Errorf("export: %s is an acuity folder; --neurons and --compare apply to run folders only", dir)

@@ -257,6 +257,9 @@ func checkFitFolder(dir string, o fitOptions) error {
 	if _, kerr := runfolder.Kind(dir); kerr != nil && !fileExists(filepath.Join(dir, runfolder.FileSettings)) {
 		return fmt.Errorf("output folder %s holds %s; choose an empty or new output folder (--out)", dir, what)
 	}
+	if kind, _ := runfolder.Kind(dir); kind != "" && kind != runfolder.KindRun {
+		return fmt.Errorf("output folder %s holds %s; a fit needs its own folder (--out)", dir, what)
+	}
 	if o.overwrite {
 		return runfolder.CheckEmptiable(dir)
 	}

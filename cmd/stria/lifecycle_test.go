@@ -206,3 +206,34 @@ func TestGatherRemovesStaleTemps(t *testing.T) {
 		t.Error("gather left a stale temporary file")
 	}
 }
+
+// TestExportWaitsForWriter: export and report refuse a folder another
+// stria process holds the lock of (a fit still writing it), and take the
+// lock themselves.
+func TestExportWaitsForWriter(t *testing.T) {
+	f := newFixture(t)
+	f.run(t, fitArgs(f)...)
+	sleeper := exec.Command("sleep", "30")
+	if err := sleeper.Start(); err != nil {
+		t.Skip(err)
+	}
+	defer func() { sleeper.Process.Kill(); sleeper.Wait() }()
+	host, _ := os.Hostname()
+	writeLockFile(t, f.out, runfolder.LockInfo{PID: sleeper.Process.Pid, Host: host, Started: "2026-12-03T10:00:00Z", Command: "stria fit (running)"})
+	for _, cmd := range []string{"export", "report"} {
+		out, err := runCLI(t, cmd, f.out)
+		if err == nil || !strings.Contains(err.Error(), runfolder.ErrLocked.Error()) {
+			t.Errorf("stria %s of a locked folder: got %v\n%s\nwant %q", cmd, err, out, runfolder.ErrLocked)
+		}
+	}
+	if _, err := os.Stat(filepath.Join(f.out, runfolder.DirFigures)); err == nil {
+		t.Error("export wrote figures into a locked folder")
+	}
+	os.Remove(filepath.Join(f.out, runfolder.FileLock))
+	if out, err := runCLI(t, "export", f.out); err != nil {
+		t.Errorf("stria export: %v\n%s", err, out)
+	}
+	if _, err := os.Stat(filepath.Join(f.out, runfolder.FileLock)); err == nil {
+		t.Error("export left its lock behind")
+	}
+}

@@ -25,6 +25,11 @@ func reportCommand() *cli.Command {
 				return err
 			}
 			dir := c.Args().First()
+			lock, err := lockFolder(c, dir)
+			if err != nil {
+				return err
+			}
+			defer lock.Release()
 			if acuityfolder.IsAcuity(dir) {
 				if c.String("neurons") != "" || c.String("compare") != "" {
 					return fmt.Errorf("report: %s is an acuity folder; --neurons and --compare apply to run folders only", dir)

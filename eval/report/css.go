@@ -45,9 +45,10 @@ figure.fig { margin: 1.5rem 0; }
 .plot svg, .plot img { display: inline-block; width: 100%; max-width: 36rem; height: auto; }
 figcaption { font-size: .9rem; color: var(--muted); margin-top: .4rem; }
 .label { font-weight: 650; color: var(--ink); }
-.table-wrap { overflow-x: auto; margin: 1.25rem 0; }
+figure.tab { margin: 1.25rem 0; }
+figure.tab figcaption { margin: 0 0 .4rem; overflow-wrap: anywhere; }
+.table-wrap { overflow-x: auto; }
 table { border-collapse: collapse; font-size: .9rem; min-width: 50%; }
-caption { caption-side: top; text-align: left; font-size: .9rem; color: var(--muted); padding-bottom: .4rem; }
 th, td { padding: .3rem .7rem; text-align: left; vertical-align: top; }
 thead th { border-bottom: 2px solid var(--ink); font-weight: 600; }
 tbody tr:nth-child(even) { background: var(--zebra); }
@@ -63,11 +64,11 @@ footer { margin-top: 3rem; border-top: 1px solid var(--rule); color: var(--muted
 @media print {
   @page { size: auto; margin: 18mm 16mm; }
   body { max-width: none; padding: 0; font-size: 10.5pt; color: #000; }
-  h1, h2, .label, .subtitle, .counts, figcaption, caption, footer { color: #000; }
+  h1, h2, .label, .subtitle, .counts, figcaption, footer { color: #000; }
   nav.toc { display: none; }
   a { color: #000; text-decoration: none; }
   h2 { break-after: avoid; page-break-after: avoid; }
-  figure.fig, .table-wrap, pre.code, .cautions, ul.notes li { break-inside: avoid; page-break-inside: avoid; }
+  figure.fig, figure.tab, pre.code, .cautions, ul.notes li { break-inside: avoid; page-break-inside: avoid; }
   .plot svg, .plot img { width: auto; max-width: 100%; }
   .plot img { width: 3.5in; }
   .cautions, ul.notes li { background: none; border-left-color: #000; }

@@ -65,9 +65,10 @@ var pageTmpl = template.Must(template.New("report").Funcs(template.FuncMap{
 </figure>
 {{- end}}
 {{- range $s.Tables}}
+<figure class="tab">
+<figcaption id="{{.ID}}-caption"><span class="label">Table {{.N}}.</span> {{.Caption}}</figcaption>
 <div class="table-wrap">
-<table id="{{.ID}}">
-<caption><span class="label">Table {{.N}}.</span> {{.Caption}}</caption>
+<table id="{{.ID}}" aria-labelledby="{{.ID}}-caption">
 {{- if .Header}}
 <thead><tr>{{range .Header}}<th scope="col"{{if .Numeric}} class="n"{{end}}>{{.Text}}</th>{{end}}</tr></thead>
 {{- end}}
@@ -78,6 +79,7 @@ var pageTmpl = template.Must(template.New("report").Funcs(template.FuncMap{
 </tbody>
 </table>
 </div>
+</figure>
 {{- end}}
 {{- if $s.Code}}
 <pre class="code"><code>{{$s.Code}}</code></pre>

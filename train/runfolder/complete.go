@@ -18,6 +18,16 @@ const (
 	// KindMany is a comparison over several recordings: a comparison
 	// folder per recording and the tables across them.
 	KindMany = "comparison over recordings"
+	// KindAcuity is an acuity folder (stria acuity; its files are those of
+	// train/runfolder/acuityfolder).
+	KindAcuity = "acuity"
+)
+
+// fileAcuity and fileAcuityPairs mark an acuity folder, finished or not
+// (acuityfolder.FileAcuity and FileInfoPairs).
+const (
+	fileAcuity      = "acuity.json"
+	fileAcuityPairs = "information_pairs.csv"
 )
 
 // Formats recorded in complete.json (and model.json for runs).
@@ -96,6 +106,8 @@ func Kind(dir string) (string, error) {
 	switch {
 	case has(FilePerRecording):
 		return KindMany, nil
+	case has(fileAcuity), has(fileAcuityPairs):
+		return KindAcuity, nil
 	case has(FileComparison):
 		return KindComparison, nil
 	case has(FileManifest), has(FileResume):
@@ -105,7 +117,7 @@ func Kind(dir string) (string, error) {
 		// results are grouped by recording; Open refuses it either way.
 		return KindComparison, nil
 	}
-	return "", fmt.Errorf("%s: neither a run folder (no %s, written by stria fit) nor a comparison folder (no %s, written by stria compare)", dir, FileManifest, FileComparison)
+	return "", fmt.Errorf("%s: neither a run folder (no %s, written by stria fit), a comparison folder (no %s, written by stria compare) nor an acuity folder (no %s, written by stria acuity)", dir, FileManifest, FileComparison, fileAcuity)
 }
 
 // CheckComplete returns an error unless dir holds the completion marker of
@@ -123,6 +135,9 @@ func CheckComplete(dir, kind string) error {
 	}
 	if kind == KindRun {
 		return fmt.Errorf("%s is incomplete: the fit that wrote it did not finish (no %s)", dir, FileComplete)
+	}
+	if kind == KindAcuity {
+		return fmt.Errorf("%s is incomplete: the stria acuity run that wrote it did not finish (no %s)", dir, FileComplete)
 	}
 	return fmt.Errorf("%s is incomplete: the comparison that wrote it did not finish (no %s); when every array task has run: stria gather %s", dir, FileComplete, dir)
 }

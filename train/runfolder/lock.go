@@ -252,13 +252,16 @@ func Holds(dir string) (string, error) {
 		return "", nil
 	}
 	if k, err := Kind(dir); err == nil {
+		if k == KindAcuity {
+			return "an " + k + " folder", nil
+		}
 		return "a " + k + " folder", nil
 	}
 	return fmt.Sprintf("%d file(s) or folder(s) that stria did not write", n), nil
 }
 
-// striaNames are the names stria writes at the top of run and comparison
-// folders (folders among them are taken whole). Keep it in step with the
+// striaNames are the names stria writes at the top of run, comparison and
+// acuity folders (folders among them are taken whole). Keep it in step with the
 // File and Dir constants: Empty refuses to delete anything else.
 var striaNames = map[string]bool{
 	FileSettings: true, FileManifest: true, FileFilters: true, FileNeuronScores: true, FileSummary: true,
@@ -269,6 +272,10 @@ var striaNames = map[string]bool{
 	"fold_scores.csv": true, "fold_averages.csv": true, "model_summary.csv": true, "model_pairs.csv": true,
 	"tuning_descriptors.csv": true, "tuning_curves": true,
 	"pooled_summary.csv": true, "pooled_pairs.csv": true,
+	// The acuity folder's names (train/runfolder/acuityfolder; its tests
+	// check they are all here).
+	fileAcuity: true, fileAcuityPairs: true, "information_vs_size.csv": true, "information_subsets.csv": true,
+	"decoding_summary.csv": true, "decoding_vs_size.csv": true, "confusion.csv": true,
 }
 
 // IsStriaName reports whether name is one stria writes at the top of a

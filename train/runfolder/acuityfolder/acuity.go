@@ -31,7 +31,7 @@ const (
 // KindAcuity is the kind of an acuity folder; FormatAcuity its format in
 // complete.json.
 const (
-	KindAcuity   = "acuity"
+	KindAcuity   = runfolder.KindAcuity
 	FormatAcuity = "stria-acuity/1"
 )
 

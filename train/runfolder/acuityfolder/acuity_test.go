@@ -102,3 +102,23 @@ func TestAcuityRoundTrip(t *testing.T) {
 		t.Errorf("damaged table: got %v, want an error naming the file and line 2", err)
 	}
 }
+
+// TestNamesKnownToRunfolder checks that every top-level name of an acuity
+// folder is one runfolder.Empty may delete, and that runfolder tells the
+// folder's kind by the same files.
+func TestNamesKnownToRunfolder(t *testing.T) {
+	for _, name := range []string{FileAcuity, FileInfoPairs, FileInfoVsSize, FileInfoSubsets, FileDecodingSummary, FileDecodingVsSize, FileConfusion} {
+		if !runfolder.IsStriaName(name) {
+			t.Errorf("got runfolder.IsStriaName(%q) false, want true", name)
+		}
+	}
+	for _, name := range []string{FileAcuity, FileInfoPairs} {
+		dir := t.TempDir()
+		if err := os.WriteFile(filepath.Join(dir, name), nil, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		if k, err := runfolder.Kind(dir); k != KindAcuity || !IsAcuity(dir) {
+			t.Errorf("a folder holding %s: got runfolder.Kind %q (%v), IsAcuity %v; want %q, true", name, k, err, IsAcuity(dir), KindAcuity)
+		}
+	}
+}
