@@ -97,6 +97,10 @@ func TestStateEndToEnd(t *testing.T) {
 	if !(sum.State.Scores.MeanAdded > 0.05) {
 		t.Errorf("got mean R^2 added %v, want > 0.05 (planted speed effects)", sum.State.Scores.MeanAdded)
 	}
+	// A second fit over the first replaces the state outputs too.
+	if out, err := runCLI(t, "fit", "--config", cfg, "--quiet", "--overwrite"); err != nil {
+		t.Fatalf("fit --overwrite: %v\n%s", err, out)
+	}
 	if out, err := runCLI(t, "report", run); err != nil {
 		t.Fatalf("report: %v\n%s", err, out)
 	}
