@@ -4,11 +4,17 @@ import (
 	"context"
 	"fmt"
 	"io"
+	"math"
 	"math/rand/v2"
 	"path/filepath"
+	"slices"
 
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/eval"
+	"github.com/strialab/stria/eval/state"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/settings"
 )
 
 // fitState fits the state terms of a finished fit when the config asks for
@@ -91,4 +97,60 @@ func demoRunning(gain []float64, seed uint64) []float64 {
 		v[t] = max(0, 12+60*(g-1)+3*rng.NormFloat64())
 	}
 	return v
+}
+
+// printCovariates prints, for stria inspect, each state covariate's range,
+// mean and standard deviation and its link to the stimulus (the share of
+// its variance the condition explains, eta^2, against chance), and returns
+// the problems that would stop stria fit (NaN, constant, wrong length).
+func printCovariates(w io.Writer, cfg *settings.Config, rec *data.Recording, cond []int, nb int) []string {
+	if len(rec.Covariates) == 0 {
+		return nil
+	}
+	cov, err := state.NewCovariates(rec.CovariateNames, rec.Covariates, rec.Y.Rows)
+	if err != nil {
+		return []string{fmt.Sprintf("%s: %v", covariateSource(rec.Source), err)}
+	}
+	all := make([]int, cov.T)
+	for i := range all {
+		all[i] = i
+	}
+	share := make([]float64, cov.K)
+	state.ConditionShare(share, cov, cond, nb, all)
+	nonEmpty := map[int]bool{}
+	for _, c := range cond {
+		nonEmpty[c] = true
+	}
+	null := state.NullShare(len(nonEmpty), cov.T)
+	fmt.Fprintf(w, "state covariates (%s): %d\n", covariateSource(rec.Source), cov.K)
+	for k, name := range cov.Names {
+		col := rec.Covariates[k]
+		s := eval.Summarize(col)
+		lo, hi := slices.Min(col), slices.Max(col)
+		var m, m2 float64
+		for _, v := range col {
+			m += v
+		}
+		m /= float64(len(col))
+		for _, v := range col {
+			m2 += (v - m) * (v - m)
+		}
+		tied := ""
+		if share[k] > cfg.State.StimulusShareWarning {
+			tied = fmt.Sprintf(" (above state.stimulus_share_warning %g: tied to the stimulus, its state terms can take over stimulus variance)", cfg.State.StimulusShareWarning)
+		}
+		fmt.Fprintf(w, "  %-16s %.4g to %.4g, median %.4g, mean %.4g, sd %.4g; condition explains %.1f%% of its variance (chance %.1f%%)%s\n",
+			name, lo, hi, s.Median, m, math.Sqrt(m2/float64(len(col))), 100*share[k], 100*null, tied)
+	}
+	return nil
+}
+
+func covariateSource(src data.Source) string {
+	switch {
+	case src.Covariates != "":
+		return src.Covariates
+	case src.Stimulus != "":
+		return src.Stimulus
+	}
+	return src.Responses
 }

@@ -66,6 +66,9 @@ func TestStateEndToEnd(t *testing.T) {
 	if err != nil {
 		t.Fatalf("fit: %v\n%s", err, out)
 	}
+	if out, err := runCLI(t, "inspect", "--config", cfg); err != nil || !strings.Contains(out, "state covariates (") {
+		t.Errorf("inspect: %v, want the covariates listed\n%s", err, out)
+	}
 	for _, want := range []string{"state terms (state_terms.csv)", "with covariates:", "with population gain:", "can exceed the stimulus-only noise ceiling"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("fit printout lacks %q:\n%s", want, out)
@@ -133,6 +136,10 @@ func TestStateEndToEnd(t *testing.T) {
 	out, err = runCLI(t, "fit", "--config", cfg, "--quiet")
 	if err == nil || !strings.Contains(err.Error(), `behaviour.csv: state: covariate "speed": value NaN at trial 5 (0-based)`) {
 		t.Errorf("got error %v, want one naming the file, covariate and trial\n%s", err, out)
+	}
+	out, err = runCLI(t, "inspect", "--config", cfg)
+	if err == nil || !strings.Contains(out, `problem: `) || !strings.Contains(out, `covariate "speed": value NaN at trial 5 (0-based)`) {
+		t.Errorf("inspect: got error %v, want the NaN covariate listed as a problem\n%s", err, out)
 	}
 	if runfolder.CheckComplete(filepath.Join(bad, "run"), runfolder.KindRun) == nil {
 		t.Errorf("a fit refused for its covariates left a completed run folder")
