@@ -131,6 +131,24 @@ func TestStateEndToEnd(t *testing.T) {
 		t.Errorf("compare printout lacks the variants:\n%s", out)
 	}
 
+	// The population gain alone: no covariate file, its couplings drawn.
+	pop := t.TempDir()
+	cfg = writeStateSim(t, pop, false)
+	conf, _ := os.ReadFile(cfg)
+	conf = []byte(strings.Replace(strings.Replace(string(conf), ", covariate_columns: [speed]", "", 1), "compare_models: [encoder, condmean]", "compare_models: [condmean]", 1))
+	if err := os.WriteFile(cfg, conf, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if out, err := runCLI(t, "fit", "--config", cfg, "--quiet"); err != nil || !strings.Contains(out, "with population gain:") || strings.Contains(out, "with covariates:") {
+		t.Fatalf("fit with the population gain alone: %v\n%s", err, out)
+	}
+	if out, err := runCLI(t, "export", filepath.Join(pop, "run")); err != nil {
+		t.Fatalf("export: %v\n%s", err, out)
+	}
+	if _, err := os.Stat(filepath.Join(pop, "run", runfolder.DirFigures, "state_gains.svg")); err != nil {
+		t.Errorf("no gain histogram of the population gain: %v", err)
+	}
+
 	bad := t.TempDir()
 	cfg = writeStateSim(t, bad, true)
 	out, err = runCLI(t, "fit", "--config", cfg, "--quiet")

@@ -27,8 +27,11 @@ var StateRange = figure.Range{Lo: -1, Hi: 1}
 // trials). Arrays are written beside the figures.
 func exportState(dir, out string, ex *Exported, sum *runfolder.Summary, values []float64, chosen []int, ax figure.AxisLabels) error {
 	s := sum.State
-	if s == nil || len(s.Covariates) == 0 {
+	if s == nil {
 		return nil
+	}
+	if len(s.Covariates) == 0 {
+		return exportPopulation(dir, out, ex, s)
 	}
 	read := func(name string, want int) ([]float64, error) {
 		_, v, err := runfolder.ReadStateArray(dir, name)
@@ -102,6 +105,16 @@ func exportState(dir, out string, ex *Exported, sum *runfolder.Summary, values [
 		hO = append(hO, "relative_offset_"+c.Name)
 		colsG, colsO = append(colsG, g), append(colsO, o)
 	}
+	if s.Population != nil {
+		c, err := populationCoupling(dir, n, len(s.Population.Terms))
+		if err != nil {
+			return err
+		}
+		gSeries[populationSeries] = c
+		order = append(order, populationSeries)
+		hG = append(hG, "coupling_population_gain")
+		colsG = append(colsG, c)
+	}
 	if err := writeColumns(filepath.Join(out, "state_gains.csv"), hG, colsG); err != nil {
 		return err
 	}
@@ -109,8 +122,12 @@ func exportState(dir, out string, ex *Exported, sum *runfolder.Summary, values [
 		return err
 	}
 	im, err := figure.HistogramsIn(gSeries, order, "gain per standard deviation of the covariate", 0, StateRange)
-	if err := ex.add("state_gains", im, err, fmt.Sprintf("Distribution over the %d fitted neurons of the gain per standard deviation of each covariate (0.1: the stimulus-driven response grows by 10%% per standard deviation; %s, columns gain_*). Neurons whose gain and offset could not be told apart (NaN) and values outside %g to %g are counted in the legend.",
-		s.Fitted, runfolder.FileStateTerms, StateRange.Lo, StateRange.Hi), "state_gains.csv"); err != nil {
+	pop := ""
+	if s.Population != nil {
+		pop = " The " + populationSeries + " series is each neuron's coupling to the shared gain read from the other half of the neurons, per standard deviation of that gain."
+	}
+	if err := ex.add("state_gains", im, err, fmt.Sprintf("Distribution over the %d fitted neurons of the gain per standard deviation of each covariate (0.1: the stimulus-driven response grows by 10%% per standard deviation; %s, columns gain_*). Neurons whose gain and offset could not be told apart (NaN) and values outside %g to %g are counted in the legend.%s",
+		s.Fitted, runfolder.FileStateTerms, StateRange.Lo, StateRange.Hi, pop), "state_gains.csv"); err != nil {
 		return err
 	}
 	im, err = figure.HistogramsIn(oSeries, order, "offset per sd, relative to the tuning's spread", 0, StateRange)
@@ -150,6 +167,49 @@ func exportState(dir, out string, ex *Exported, sum *runfolder.Summary, values [
 		}
 	}
 	return nil
+}
+
+// populationSeries names the population gain's couplings in the gain
+// histogram.
+const populationSeries = "population gain"
+
+// populationCoupling reads each neuron's coupling to the other half's
+// shared gain (the first of its P terms).
+func populationCoupling(dir string, n, P int) ([]float64, error) {
+	_, v, err := runfolder.ReadStateArray(dir, runfolder.ArrayPopulationCoupled)
+	if err != nil {
+		return nil, err
+	}
+	if len(v) != n*P {
+		return nil, fmt.Errorf("%s: %d values, want %d", filepath.Join(dir, runfolder.DirParameters, runfolder.ArrayPopulationCoupled+".npy"), len(v), n*P)
+	}
+	c := make([]float64, n)
+	for j := range c {
+		c[j] = v[j*P]
+	}
+	return c, nil
+}
+
+// exportPopulation writes the gain histogram of a run with the population
+// gain and no covariates: each neuron's coupling to the shared gain.
+func exportPopulation(dir, out string, ex *Exported, s *runfolder.StateSummary) error {
+	if s.Population == nil {
+		return nil
+	}
+	m, err := runfolder.ReadManifest(dir)
+	if err != nil {
+		return err
+	}
+	c, err := populationCoupling(dir, m.Neurons, len(s.Population.Terms))
+	if err != nil {
+		return err
+	}
+	if err := writeColumns(filepath.Join(out, "state_gains.csv"), []string{"neuron", "coupling_population_gain"}, [][]float64{seq(m.Neurons), c}); err != nil {
+		return err
+	}
+	im, err := figure.HistogramsIn(map[string][]float64{populationSeries: c}, []string{populationSeries}, "gain per standard deviation of the shared gain", 0, StateRange)
+	return ex.add("state_gains", im, err, fmt.Sprintf("Distribution over the neurons of their coupling to the shared gain read from the other half of the neurons, per standard deviation of that gain (%s, column coupling_population_gain). Values outside %g to %g are counted in the legend.",
+		runfolder.FileStateTerms, StateRange.Lo, StateRange.Hi), "state_gains.csv")
 }
 
 // stateSection is the report's section on the state terms (nil without

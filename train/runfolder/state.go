@@ -3,7 +3,6 @@ package runfolder
 import (
 	"encoding/csv"
 	"fmt"
-	"math"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -139,16 +138,18 @@ func WriteState(dir string, p *train.Prepared, sf *train.StateFit) (*StateSummar
 	if sf.Params != nil {
 		K := sf.Params.K
 		names := sf.Covariates.Names
+		fitT := append(append([]int(nil), p.Train...), p.Val...)
 		share := make([]float64, K)
-		state.ConditionShare(share, sf.Covariates, p.Cond, B, append(append([]int(nil), p.Train...), p.Val...))
+		state.ConditionShare(share, sf.Covariates, p.Cond, B, fitT)
 		linked := map[string]state.Link{}
 		for _, l := range sf.Linked {
 			linked[l.Name] = l
 		}
-		null := math.NaN()
-		if len(sf.Linked) > 0 {
-			null = sf.Linked[0].Null
+		nonEmpty := map[int]bool{}
+		for _, t := range fitT {
+			nonEmpty[p.Cond[t]] = true
 		}
+		null := state.NullShare(len(nonEmpty), len(fitT))
 		fitted := 0
 		for _, st := range sf.Params.Status {
 			if st == state.Fitted {
