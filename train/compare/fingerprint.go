@@ -79,7 +79,7 @@ func unitSettings(rec *settings.Config, spec train.ModelSpec) ([]byte, error) {
 
 // fingerprint is the fingerprint of unit u given its recording's files.
 func (p *Plan) fingerprint(u Unit, files []format.FileID) runfolder.Fingerprint {
-	return runfolder.Fingerprint{Settings: p.settings[u.Rec][u.Spec], Files: files}
+	return runfolder.Fingerprint{Settings: p.settings[u.Rec][u.Spec], Files: p.unitFiles(u, files)}
 }
 
 // checkDone reads the result of a finished unit and refuses it when its

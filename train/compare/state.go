@@ -5,6 +5,7 @@ import (
 	"slices"
 	"strings"
 
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
 	"github.com/strialab/stria/train/settings"
@@ -71,4 +72,23 @@ func stateCautions(specs []train.ModelSpec) []string {
 		}
 	}
 	return nil
+}
+
+// unitFiles returns the recording's files a unit's numbers depend on: all
+// of them for a state variant; without the covariate file for the other
+// models, which never read it (unless it is also the responses or stimulus
+// file), so that adding or changing covariates keeps their results.
+func (p *Plan) unitFiles(u Unit, files []format.FileID) []format.FileID {
+	rec := p.Recordings[u.Rec]
+	d := rec.Cfg.Data
+	if rec.Specs[u.Spec].State != "" || d.Covariates == "" || d.Covariates == d.Responses || d.Covariates == d.Stimulus {
+		return files
+	}
+	out := make([]format.FileID, 0, len(files))
+	for _, f := range files {
+		if f.Path != d.Covariates {
+			out = append(out, f)
+		}
+	}
+	return out
 }

@@ -4,6 +4,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train/settings"
 )
 
@@ -77,6 +78,14 @@ func TestStateVariants(t *testing.T) {
 	s := base.settings[0]
 	if string(s[3]) == string(s[4]) || string(s[3]) == string(s[0]) || string(s[5]) == string(s[1]) {
 		t.Errorf("variants share a fingerprint with each other or their model")
+	}
+	// The covariate file is part of the variants' fingerprints only.
+	files := []format.FileID{{Path: "r.npy", Hash: "a"}, {Path: "speed.npy", Hash: "b"}}
+	for i, name := range names {
+		fp := base.fingerprint(Unit{Rec: 0, Spec: i}, files)
+		if has := len(fp.Files) == 2; has != strings.Contains(name, "+") {
+			t.Errorf("%s: fingerprint files %v", name, fp.Files)
+		}
 	}
 	cfg, _ := settings.ParseConfig([]byte(strings.Replace(stateConfig, "compare_models: [encoder, condmean]", "compare_models: [encoder, nomodel]", 1)), "c.yaml")
 	if _, err := NewPlan(cfg); err == nil || !strings.Contains(err.Error(), `state.compare_models[1]: no model "nomodel"`) {
