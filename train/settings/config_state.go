@@ -17,7 +17,8 @@ type StateConfig struct {
 	// stimulus-only tuning held fixed) or refit (the encoder is refitted on
 	// the state-corrected condition targets, alternating with the state
 	// terms). On simulations with planted truth fixed recovers the gains
-	// better (train.TestStateMethods; eval/methods.md §17).
+	// better with the default encoder, refit with a flexible one
+	// (train.TestStateMethods; eval/methods.md §17).
 	Tuning StateTuning `yaml:"tuning"`
 	// Rounds is the number of refit rounds (tuning refit).
 	Rounds int `yaml:"rounds"`
