@@ -130,6 +130,20 @@ func TestStateEndToEnd(t *testing.T) {
 	if !strings.Contains(out, "encoder+popgain") || !strings.Contains(out, "condmean+state") {
 		t.Errorf("compare printout lacks the variants:\n%s", out)
 	}
+	// A variant is drawn against its own model only.
+	if out, err := runCLI(t, "export", filepath.Join(dir, "compare")); err != nil {
+		t.Fatalf("export: %v\n%s", err, out)
+	}
+	figs, _ := filepath.Glob(filepath.Join(dir, "compare", runfolder.DirFigures, "scatter_*.svg"))
+	var names []string
+	for _, f := range figs {
+		names = append(names, filepath.Base(f))
+	}
+	want := []string{"scatter_cc_norm_condmean_vs_encoder.svg", "scatter_test_r2_condmean_vs_condmean+popgain.svg", "scatter_test_r2_condmean_vs_condmean+state.svg",
+		"scatter_test_r2_condmean_vs_encoder.svg", "scatter_test_r2_encoder_vs_encoder+popgain.svg", "scatter_test_r2_encoder_vs_encoder+state.svg"}
+	if strings.Join(names, " ") != strings.Join(want, " ") {
+		t.Errorf("got scatter figures %v, want %v", names, want)
+	}
 
 	// The population gain alone: no covariate file, its couplings drawn.
 	pop := t.TempDir()

@@ -9,6 +9,7 @@ import (
 
 	"github.com/strialab/stria/eval/figure"
 	"github.com/strialab/stria/eval/report"
+	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/runfolder"
 )
 
@@ -245,4 +246,28 @@ func stateSection(ex *Exported, sum *runfolder.Summary) *report.Section {
 
 func spreadText(s runfolder.Spread) string {
 	return fmt.Sprintf("%s [%s, %s]", f3(s.Median), f3(s.Q1), f3(s.Q3))
+}
+
+// stateVariants splits the state variants of stria compare off a model
+// list: a model named BASE+state or BASE+popgain (train.VariantState,
+// train.VariantPopGain) whose BASE is also in the list. plain keeps the
+// order of the others; each variant is {BASE, name}. The variants are
+// drawn only against their own model, not in every pair of encoder and
+// baseline.
+func stateVariants(models []string) (plain []string, variants [][2]string) {
+	have := setOf(models)
+	for _, m := range models {
+		base, ok := "", false
+		for _, kind := range []string{train.VariantState, train.VariantPopGain} {
+			if b, found := strings.CutSuffix(m, "+"+kind); found && have[b] {
+				base, ok = b, true
+			}
+		}
+		if ok {
+			variants = append(variants, [2]string{base, m})
+		} else {
+			plain = append(plain, m)
+		}
+	}
+	return plain, variants
 }
