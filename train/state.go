@@ -56,6 +56,9 @@ type StateFit struct {
 	Pop          *state.CrossResult
 	PopSummary   state.GainSummary
 	PopWeighting string
+	// PopError says why the population gain could not be estimated (Pop
+	// is then nil; the reason is also in Notes).
+	PopError error
 	// Notes say what was done or refused, for the printout and
 	// summary.json.
 	Notes   []string
@@ -151,7 +154,9 @@ func FitState(ctx context.Context, p *Prepared, f *Fitted) (*StateFit, error) {
 //     tuning stim, halves by state.SplitHalves on the neuron names (or a
 //     hash of each neuron's responses when the recording has none, see
 //     neuronIDs) and the seed, so the halves do not depend on the column
-//     order.
+//     order. When it cannot be estimated (a trial where no neuron of a
+//     half has a positive tuning value, ...) the fit goes on without it:
+//     Pop is nil and PopError and Notes say why.
 //
 // Scores are on p.Test: the stimulus-only R^2 of stim and the R^2 with the
 // state terms (state.ScoreHeldOut). Errors name the covariate file, the
@@ -233,7 +238,12 @@ func stateFitCurves(ctx context.Context, p *Prepared, stim []float64, encoder bo
 		sf.PopWeighting = opt.Weighting.String()
 		cr, err := state.CrossGain(y, n, stim, p.Cond, B, fitT, p.Test, half, opt)
 		if err != nil {
-			return nil, fmt.Errorf("population gain: %w", err)
+			// The covariates' terms (and the encoder) stand without it:
+			// say why it is missing rather than throw the fit away.
+			sf.PopError = fmt.Errorf("population gain: %w", err)
+			sf.Notes = append(sf.Notes, sf.PopError.Error()+"; no population gain was fitted")
+			sf.Seconds = time.Since(start).Seconds()
+			return sf, nil
 		}
 		sf.Pop = cr
 		sf.PopSummary = state.SummarizeGain(cr.Scores)

@@ -48,6 +48,9 @@ func stateUnit(ctx context.Context, pf *Prepared, spec ModelSpec, res *FoldResul
 		return nil, err
 	}
 	if spec.State == VariantPopGain {
+		if sf.Pop == nil {
+			return nil, sf.PopError
+		}
 		return sf.Pop.Pred, nil
 	}
 	res.Curves = sf.Tuning

@@ -260,3 +260,27 @@ func TestStateStimulusLinked(t *testing.T) {
 		}
 	}
 }
+
+// TestStatePopulationFails: a population gain that cannot be estimated
+// (every tuning value 0 on one condition, so no neuron informs the gain of
+// its trials) leaves the covariates' terms in place and says why.
+func TestStatePopulationFails(t *testing.T) {
+	cfg := state.DefaultSim()
+	cfg.Neurons, cfg.Repeats, cfg.Seed = 20, 10, 12
+	sim := state.Simulate(cfg)
+	p := simPrepared(t, sim, func(c *settings.Config) { c.State.PopulationGain = true })
+	B, N := p.NBins, p.Neurons()
+	f := make([]float64, B*N)
+	for b := 1; b < B; b++ {
+		for j := 0; j < N; j++ {
+			f[b*N+j] = 1 + float64(b)
+		}
+	}
+	sf, err := StateFitCurves(context.Background(), p, f, true)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if sf.Pop != nil || sf.PopError == nil || sf.Params == nil || len(sf.Notes) == 0 || !strings.Contains(sf.Notes[len(sf.Notes)-1], "no population gain was fitted") {
+		t.Errorf("got population %v, error %v, notes %q; want no population gain, the covariates' terms and a note", sf.Pop != nil, sf.PopError, sf.Notes)
+	}
+}
