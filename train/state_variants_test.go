@@ -13,7 +13,9 @@ import (
 // simulations with planted truth (long; skipped with -short): the tuning
 // held at the encoder's (fixed), one and two refit rounds, and the free
 // per-condition tuning fitted jointly (condmean, state.FitFree), and fixed
-// and refit with a flexible encoder (readout_l2 0.01, *-l2). It logs,
+// and refit with a flexible encoder (readout_l2 0.01, *-l2) and with one
+// readout penalty for all neurons (readout_l2_per_neuron false,
+// *-shared). It logs,
 // per method, the mean over seeds of the gains' and offsets' correlation
 // with the planted ones, the fitted/planted gain slope and the held-out
 // R^2 added minus the simulation's prediction. These numbers (quoted in
@@ -24,7 +26,7 @@ func TestStateMethods(t *testing.T) {
 	}
 	type acc struct{ ra, ro, slope, dev, n float64 }
 	res := map[string]*acc{}
-	order := []string{"fixed", "refit1", "refit2", "free", "fixed-l2", "refit-l2"}
+	order := []string{"fixed", "refit1", "refit2", "free", "fixed-l2", "refit-l2", "fixed-shared", "refit-shared"}
 	for _, o := range order {
 		res[o] = &acc{}
 	}
@@ -39,14 +41,18 @@ func TestStateMethods(t *testing.T) {
 			p := simPrepared(t, sim, func(c *settings.Config) {
 				c.State.Tuning = settings.StateRefit
 				switch m {
-				case "fixed", "free", "fixed-l2":
+				case "fixed", "free", "fixed-l2", "fixed-shared":
 					c.State.Tuning = settings.StateFixed
 				case "refit2":
 					c.State.Rounds = 2
 				}
-				if m == "fixed-l2" || m == "refit-l2" {
+				switch m {
+				case "fixed-l2", "refit-l2":
 					// A flexible encoder: a small fixed readout penalty.
 					c.Model.ReadoutL2 = settings.Penalty{Value: 0.01}
+				case "fixed-shared", "refit-shared":
+					// One penalty for all neurons, chosen from the data.
+					c.Model.ReadoutL2PerNeuron = false
 				}
 			})
 			var sf *StateFit

@@ -17,7 +17,8 @@ type StateConfig struct {
 	// stimulus-only tuning held fixed) or refit (the encoder is refitted on
 	// the state-corrected condition targets, alternating with the state
 	// terms). On simulations with planted truth fixed recovers the gains
-	// better with the default encoder, refit with a flexible one
+	// better with the default encoder (per-neuron readout penalties),
+	// refit with one penalty for all neurons or a flexible encoder
 	// (train.TestStateMethods; eval/methods.md §17).
 	Tuning StateTuning `yaml:"tuning"`
 	// Rounds is the number of refit rounds (tuning refit).
