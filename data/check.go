@@ -128,38 +128,81 @@ func CheckWith(rec *Recording, cond []int, opt CheckOptions) (*Report, error) {
 			in.id.Hash = sc.hash
 		}
 	}
+	// Constant neurons (over all trials): the same value on every trial.
+	var constant []int
+	for n := range sc.min {
+		if sc.min[n] == sc.max[n] {
+			constant = append(constant, n)
+		}
+	}
+	if err := checkTrials(rep, rec, name, y.Rows, cond, opt, constant); err != nil {
+		return rep, err
+	}
+	if opt.Hash {
+		if err := rec.HashFiles(); err != nil {
+			return rep, err
+		}
+	}
+	return rep, nil
+}
+
+// CheckTrials is CheckWith for responses that are not in memory (a
+// recording from LoadStream, rows trials): everything CheckWith checks
+// except the response values (see condstats.AccumulateParts, which refuses
+// non-finite ones), with constant the neurons whose response is the same
+// on every trial (condstats.ConstantNeurons; nil before they are known).
+// The warnings come in CheckWith's order. Opt.Counts and Opt.Hash are not
+// supported (they need the values) and panic.
+func CheckTrials(rec *Recording, rows int, cond []int, opt CheckOptions, constant []int) (*Report, error) {
+	if opt.Counts || opt.Hash {
+		panic("data: CheckTrials cannot check counts or hash the responses")
+	}
+	if opt.MinTrials <= 0 {
+		opt.MinTrials = 2
+	}
+	name := rec.Source.Responses
+	if name == "" {
+		name = "responses"
+	}
+	rep := &Report{}
+	return rep, checkTrials(rep, rec, name, rows, cond, opt, constant)
+}
+
+// checkTrials checks the stimulus, conditions and blocks of a recording of
+// rows trials and fills rep's warnings, constant neurons included.
+func checkTrials(rep *Report, rec *Recording, name string, rows int, cond []int, opt CheckOptions, constant []int) error {
 
 	// Stimulus.
 	stimFile := rec.Source.Stimulus
 	if stimFile == "" {
 		stimFile = name
 	}
-	if len(rec.Stim) != y.Rows {
-		return rep, fmt.Errorf("data: %s has %d trials but %d stimulus values from %s", name, y.Rows, len(rec.Stim), stimFile)
+	if len(rec.Stim) != rows {
+		return fmt.Errorf("data: %s has %d trials but %d stimulus values from %s", name, rows, len(rec.Stim), stimFile)
 	}
 	for t, v := range rec.Stim {
 		if math.IsNaN(v) || math.IsInf(v, 0) {
-			return rep, fmt.Errorf("data: %s: stimulus of trial %d (0-based) is %g", stimFile, t, v)
+			return fmt.Errorf("data: %s: stimulus of trial %d (0-based) is %g", stimFile, t, v)
 		}
 	}
-	if rec.Cond != nil && len(rec.Cond) != y.Rows {
-		return rep, fmt.Errorf("data: %s has %d trials but %d condition ids", name, y.Rows, len(rec.Cond))
+	if rec.Cond != nil && len(rec.Cond) != rows {
+		return fmt.Errorf("data: %s has %d trials but %d condition ids", name, rows, len(rec.Cond))
 	}
-	if rec.Block != nil && len(rec.Block) != y.Rows {
-		return rep, fmt.Errorf("data: %s has %d trials but %d block ids", name, y.Rows, len(rec.Block))
+	if rec.Block != nil && len(rec.Block) != rows {
+		return fmt.Errorf("data: %s has %d trials but %d block ids", name, rows, len(rec.Block))
 	}
 
 	// Conditions.
-	if len(cond) != y.Rows {
-		return rep, fmt.Errorf("data: %d condition ids for %d trials", len(cond), y.Rows)
+	if len(cond) != rows {
+		return fmt.Errorf("data: %d condition ids for %d trials", len(cond), rows)
 	}
 	if opt.NBins < 1 {
-		return rep, fmt.Errorf("data: number of conditions %d must be at least 1", opt.NBins)
+		return fmt.Errorf("data: number of conditions %d must be at least 1", opt.NBins)
 	}
 	count := make([]int, opt.NBins)
 	for t, c := range cond {
 		if c < 0 || c >= opt.NBins {
-			return rep, fmt.Errorf("data: trial %d (0-based) has condition %d, outside [0, %d)", t, c, opt.NBins)
+			return fmt.Errorf("data: trial %d (0-based) has condition %d, outside [0, %d)", t, c, opt.NBins)
 		}
 		count[c]++
 	}
@@ -195,12 +238,7 @@ func CheckWith(rec *Recording, cond []int, opt CheckOptions) (*Report, error) {
 			len(rep.FewTrials), opt.MinTrials, strings.Join(l, ", ")))
 	}
 
-	// Constant neurons (over all trials): the same value on every trial.
-	for n := range sc.min {
-		if sc.min[n] == sc.max[n] {
-			rep.Constant = append(rep.Constant, n)
-		}
-	}
+	rep.Constant = constant
 	if len(rep.Constant) > 0 {
 		var l []string
 		for i, n := range rep.Constant {
@@ -239,14 +277,14 @@ func CheckWith(rec *Recording, cond []int, opt CheckOptions) (*Report, error) {
 		if opt.Axis != nil {
 			hint = radiansHint(rec.Stim, *opt.Axis)
 		}
-		return rep, fmt.Errorf("data: %s: %d of %d stimulus bins have no trials: %s; use wider bins or fewer bins%s", rec.stimLabel(), len(empty), opt.NBins, strings.Join(show, ", "), hint)
+		return fmt.Errorf("data: %s: %d of %d stimulus bins have no trials: %s; use wider bins or fewer bins%s", rec.stimLabel(), len(empty), opt.NBins, strings.Join(show, ", "), hint)
 	}
 	if opt.Hash {
 		if err := rec.HashFiles(); err != nil {
-			return rep, err
+			return err
 		}
 	}
-	return rep, nil
+	return nil
 }
 
 // StimulusFile returns the file the stimulus values come from: the

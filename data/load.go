@@ -261,19 +261,29 @@ func Load(src Source) (*Recording, error) {
 	if rec.Y.Rows == 0 || rec.Y.Cols == 0 {
 		return nil, fmt.Errorf("data: %s: responses are %dx%d; need at least one trial and one neuron", src.Responses, rec.Y.Rows, rec.Y.Cols)
 	}
+	if err := l.trialData(rec, stimFile, rec.Y.Rows, rec.Y.Cols); err != nil {
+		return nil, err
+	}
+	return rec, nil
+}
 
+// trialData reads the stimulus, the optional condition and block ids and
+// the optional state covariates of rec.Source into rec, checking that each
+// has one value per trial of the rows x cols responses.
+func (l *loader) trialData(rec *Recording, stimFile string, rows, cols int) error {
+	src := rec.Source
 	switch {
 	case stimFile == src.Responses && fileKind(stimFile) == "npy":
-		return nil, fmt.Errorf("data: %s: no stimulus file is given (data.stimulus), and a .npy file holds only the responses", src.Responses)
+		return fmt.Errorf("data: %s: no stimulus file is given (data.stimulus), and a .npy file holds only the responses", src.Responses)
 	case fileKind(stimFile) == "npz" && src.StimulusColumn == "":
-		return nil, fmt.Errorf("data: %s: the stimulus is in an .npz, so its array name must be given (data.stimulus_column)", stimFile)
+		return fmt.Errorf("data: %s: the stimulus is in an .npz, so its array name must be given (data.stimulus_column)", stimFile)
 	}
 	stim, err := l.vector(stimFile, src.StimulusColumn, "stimulus")
 	if err != nil {
-		return nil, err
+		return err
 	}
-	if err := sameLength(src.Responses, rec.Y.Rows, rec.Y.Cols, stimFile, "stimulus", len(stim)); err != nil {
-		return nil, err
+	if err := sameLength(src.Responses, rows, cols, stimFile, "stimulus", len(stim)); err != nil {
+		return err
 	}
 	rec.Stim = stim
 
@@ -288,21 +298,19 @@ func Load(src Source) (*Recording, error) {
 		if err != nil {
 			return nil, err
 		}
-		if err := sameLength(src.Responses, rec.Y.Rows, rec.Y.Cols, file, what, len(v)); err != nil {
+		if err := sameLength(src.Responses, rows, cols, file, what, len(v)); err != nil {
 			return nil, err
 		}
 		return v, nil
 	}
 	if rec.Cond, err = opt(src.Condition, src.ConditionColumn, "condition"); err != nil {
-		return nil, err
+		return err
 	}
 	if rec.Block, err = opt(src.Block, src.BlockColumn, "block"); err != nil {
-		return nil, err
+		return err
 	}
-	if rec.CovariateNames, rec.Covariates, err = l.covariates(src, stimFile, rec.Y.Rows, rec.Y.Cols); err != nil {
-		return nil, err
-	}
-	return rec, nil
+	rec.CovariateNames, rec.Covariates, err = l.covariates(src, stimFile, rows, cols)
+	return err
 }
 
 func sameLength(respFile string, trials, neurons int, file, what string, n int) error {

@@ -29,4 +29,9 @@
 //   - Same config and seed give the same numbers, whatever the number of
 //     cores: parallel kernels split work independently of GOMAXPROCS.
 //   - Formulas cite eval/methods.md by section.
+//   - A model Streamable accepts (one-hot, squared error, full batch, the
+//     projected solver) is prepared by PrepareParts from one pass over the
+//     responses (Prepared.Parts, Rec.Y nil when streamed): everything that
+//     would read the trials reads the parts' sums instead, and the fitted
+//     readout comes back as Fitted.Weights and Bias (eval/methods.md §8).
 package train

@@ -6,6 +6,7 @@ import (
 	"github.com/strialab/stria/train/settings"
 	"math"
 	"math/rand/v2"
+	"runtime"
 	"slices"
 
 	"github.com/strialab/stria/data/condstats"
@@ -77,6 +78,35 @@ type Fitted struct {
 	// (nbins x N, in the units the net was trained in), which a solver
 	// could compute more cheaply than a forward pass.
 	Curves []float64
+	// Weights, when not nil, computes the readout weights, which are then
+	// not in Net (its ReadW is zero): Weights(dst, n0, n1) writes those of
+	// neurons [n0, n1) into dst ((n1-n0) x features). A fit from Parts
+	// leaves them there, so that a million neurons' weights (3.8 GB) are
+	// never held at once (not safe for concurrent use). Use
+	// ReadoutWeights. Net then has a single
+	// neuron (only its filters are used) and Bias holds the readout bias
+	// of every neuron.
+	Weights func(dst []float64, n0, n1 int)
+	Bias    []float64
+}
+
+// ReadoutBias returns the readout bias of every neuron.
+func (f *Fitted) ReadoutBias() []float64 {
+	if f.Weights != nil {
+		return f.Bias
+	}
+	return f.Net.ReadB()
+}
+
+// ReadoutWeights writes the readout weights of neurons [n0, n1) into dst
+// ((n1-n0) x features, the layout of the net's ReadW).
+func (f *Fitted) ReadoutWeights(dst []float64, n0, n1 int) {
+	if f.Weights != nil {
+		f.Weights(dst, n0, n1)
+		return
+	}
+	F := f.Net.Features()
+	copy(dst, f.Net.ReadW()[n0*F:n1*F])
 }
 
 // rowSet is a set of training rows: model inputs, targets and row weights.
@@ -209,8 +239,12 @@ type trainer struct {
 	gradScale float64
 }
 
-// chunkRows bounds the rows of one forward pass on trial-level data.
-const chunkRows = 256
+// chunkRows bounds the rows of one forward pass on trial-level data: a
+// mini-batch larger than this is passed in pieces whose gradients add up.
+// Each of the trainer's row buffers (predictions before and after the
+// output nonlinearity, their gradient, the targets) holds chunkRows x N
+// values: 12 MB each at 24,000 neurons.
+const chunkRows = 64
 
 func newTrainer(p *Prepared, net *nn.Net) *trainer {
 	cfg := p.Cfg
@@ -225,9 +259,6 @@ func newTrainer(p *Prepared, net *nn.Net) *trainer {
 	tr.pcg = rand.NewPCG(cfg.Seed, 0x5eed)
 	tr.rng = rand.New(tr.pcg)
 	tr.chunk = chunkRows
-	if tc.BatchSize > tr.chunk {
-		tr.chunk = tc.BatchSize
-	}
 	rows := max(tr.chunk, p.NBins)
 	tr.work = net.NewWork(rows)
 	n := p.Neurons()
@@ -236,7 +267,10 @@ func newTrainer(p *Prepared, net *nn.Net) *trainer {
 		tr.batch = &rowSet{x: make([]float64, tr.chunk*p.NBins), target: make([]float64, tr.chunk*n)}
 	}
 	if !p.Soft() {
-		tr.trainC = condRows(p, p.TrainStats())
+		if tc.BatchSize == 0 {
+			// Full batch on one-hot input: one step on the condition rows.
+			tr.trainC = condRows(p, p.TrainStats())
+		}
 		tr.valC = condRows(p, p.ValStats())
 		tr.valTot = tr.valC.ssTot
 	} else {
@@ -403,8 +437,12 @@ func (tr *trainer) Epoch(opt *nn.Adam) float64 {
 	for lo := 0; lo < len(order); lo += tc.BatchSize {
 		hi := min(lo+tc.BatchSize, len(order))
 		tr.net.ZeroGrad()
-		trialRows(tr.batch, p, order[lo:hi])
-		total += tr.lossGrad(tr.batch, true, 1, nil)
+		// The batch's mean gradient, in pieces of at most chunkRows trials.
+		for clo := lo; clo < hi; clo += tr.chunk {
+			chi := min(clo+tr.chunk, hi)
+			trialRows(tr.batch, p, order[clo:chi])
+			total += tr.lossGrad(tr.batch, true, float64(chi-clo)/float64(hi-lo), nil)
+		}
 		tr.penalty(true)
 		opt.Step(tr.net.Params, tr.net.Grads)
 	}
@@ -428,6 +466,10 @@ func Fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (f *
 
 func fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
 	cfg := p.Cfg
+	if p.Parts != nil {
+		// PrepareParts accepted the config: the projected MSE solver.
+		return fitProjected(ctx, p, hooks, resume)
+	}
 	if cfg.SolverToRun() == settings.SolverProjected {
 		if cfg.Model.Loss == settings.Poisson {
 			return fitPoissonProjected(ctx, p, hooks, resume)
@@ -448,8 +490,20 @@ func fit(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fi
 	if err != nil {
 		return nil, err
 	}
+	if len(net.Params) >= largeNet {
+		// The optimiser's moments, the best copy and the trainer's row
+		// buffers (four parameter-sized arrays and more) are garbage now;
+		// collect them so that scoring and writing reuse their memory
+		// instead of growing the heap towards the collector's goal (twice
+		// the live heap at the last collection, which training set).
+		runtime.GC()
+	}
 	return &Fitted{Net: net, Solver: settings.SolverAdam, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}, nil
 }
+
+// largeNet is the number of parameters (8 M: 64 MB) from which a fit
+// collects its garbage before returning.
+const largeNet = 1 << 23
 
 // initReadout sets the readout bias to each neuron's mean training
 // response (through the inverse of the output nonlinearity), so that

@@ -424,7 +424,9 @@ func TestBlockTrials(t *testing.T) {
 }
 
 // TestSolverAuto checks that a config that names no solver runs the
-// projected solver wherever the model allows it, and adam otherwise.
+// projected solver wherever the model allows it (MSE with identity output,
+// Poisson with softplus or exp output, one-hot, full batch), and adam
+// otherwise.
 func TestSolverAuto(t *testing.T) {
 	for _, tc := range []struct {
 		name string
@@ -435,6 +437,15 @@ func TestSolverAuto(t *testing.T) {
 		{"soft encoding", func(c *settings.Config) { c.Axis.Encoding = settings.Soft }, settings.SolverAdam},
 		{"mini-batches", func(c *settings.Config) { c.Train.BatchSize = 32 }, settings.SolverAdam},
 		{"named adam", func(c *settings.Config) { c.Train.Solver = settings.SolverAdam }, settings.SolverAdam},
+		{"poisson softplus", func(c *settings.Config) {
+			c.Model.Loss, c.Model.Output, c.Split.ZScore = settings.Poisson, nn.Softplus, false
+		}, settings.SolverProjected},
+		{"poisson exp", func(c *settings.Config) {
+			c.Model.Loss, c.Model.Output, c.Split.ZScore = settings.Poisson, nn.Exp, false
+		}, settings.SolverProjected},
+		{"poisson mini-batches", func(c *settings.Config) {
+			c.Model.Loss, c.Model.Output, c.Split.ZScore, c.Train.BatchSize = settings.Poisson, nn.Softplus, false, 32
+		}, settings.SolverAdam},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			c := settings.Defaults()

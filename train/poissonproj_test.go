@@ -6,6 +6,7 @@ import (
 	"github.com/strialab/stria/train/settings"
 	"math"
 	"math/rand/v2"
+	"runtime"
 	"slices"
 	"strings"
 	"testing"
@@ -13,6 +14,7 @@ import (
 
 	"gonum.org/v1/gonum/diff/fd"
 
+	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/nn"
 	"github.com/strialab/stria/train/projection"
@@ -189,9 +191,99 @@ func TestPoissonFastVsAdam(t *testing.T) {
 	}
 }
 
-// TestPoissonEdgeCases: a silent neuron (all counts 0) gets a finite
-// readout with a rate near 0 and a finite gradient; a negative response
-// is refused with an error naming the neuron.
+// TestPoissonAutoPenalty fits a spike-count population with the defaults
+// for counts (train.solver auto, model.readout_l2 auto): auto must run the
+// Poisson fast path, record one chosen penalty for all neurons, and the
+// fit must close a clear share of the gap between the training condition
+// means and the true noise-free means on the test trials (simulation with
+// known truth; 0.55 measured on this population, 0.2 required).
+func TestPoissonAutoPenalty(t *testing.T) {
+	if testing.Short() {
+		t.Skip("fits 200 neurons")
+	}
+	spec := synth.DiscreteConfig{Neurons: 200, Trials: 2400, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 21}
+	p, truth := popPrepared(t, spec, func(c *settings.Config) { c.Train.Patience = 20 })
+	f, err := Fit(context.Background(), p, Hooks{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if f.Solver != settings.SolverProjected {
+		t.Fatalf("solver %s, want projected", f.Solver)
+	}
+	if len(f.ReadoutL2) != p.Neurons() {
+		t.Fatalf("%d chosen penalties, want %d", len(f.ReadoutL2), p.Neurons())
+	}
+	for _, v := range f.ReadoutL2 {
+		if v != f.ReadoutL2[0] || !(v > 0) {
+			t.Fatalf("chosen penalties %v, want one value > 0 for all neurons", f.ReadoutL2[:3])
+		}
+	}
+	rf, cm, or := testR2(p, f.Curves), testR2(p, condMeanPred(p)), testR2(p, truth)
+	share := gapShare(rf, cm, or)
+	t.Logf("readout_l2 %.4g, %d epochs, median test R2 %.5f (condition mean %.5f, oracle %.5f), gap share %.3f",
+		f.ReadoutL2[0], len(f.Log), nanMedian(rf), nanMedian(cm), nanMedian(or), share)
+	if !(share > 0.2) {
+		t.Errorf("gap share %.3f, want > 0.2", share)
+	}
+}
+
+// TestPoissonConstantNeuronsLeftOut appends constant count columns (0 and
+// 2 spikes on every trial) to a spike-count recording and expects the
+// Poisson fast path with the automatic penalty to give the other neurons
+// the same held-out scores: constant neurons take no part in training, the
+// losses and the penalty grid's scale are means over the others (as
+// TestConstantNeuronsLeftOut for the other solvers).
+func TestPoissonConstantNeuronsLeftOut(t *testing.T) {
+	spec := synth.DiscreteConfig{Neurons: 30, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, Seed: 7}
+	edit := func(c *settings.Config) { c.Train.MaxEpochs = 60 }
+	p, _ := popPrepared(t, spec, edit)
+	f, err := Fit(context.Background(), p, Hooks{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	base := ScoreFitted(p, f)
+	q, _ := popPrepared(t, spec, edit)
+	y := q.Rec.Y
+	wide := data.NewMatrix(y.Rows, y.Cols+2)
+	for i := 0; i < y.Rows; i++ {
+		copy(wide.Row(i), y.Row(i))
+		wide.Row(i)[y.Cols], wide.Row(i)[y.Cols+1] = 0, 2
+	}
+	rec := *q.Rec
+	rec.Y = wide
+	rec.Neurons = nil
+	q2, err := PrepareRecording(q.Cfg, &rec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(q2.Report.Constant) != 2 {
+		t.Fatalf("constant neurons %v, want the 2 appended", q2.Report.Constant)
+	}
+	g, err := Fit(context.Background(), q2, Hooks{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if g.Solver != settings.SolverProjected {
+		t.Fatalf("solver %s, want projected", g.Solver)
+	}
+	wider := ScoreFitted(q2, g)
+	var worst float64
+	for j := range base {
+		worst = max(worst, math.Abs(base[j].TestR2-wider[j].TestR2))
+	}
+	t.Logf("largest change of a test R2: %.3g", worst)
+	if worst > 1e-9 {
+		t.Errorf("appending 2 constant neurons moved another neuron's test R2 by %.3g, want < 1e-9", worst)
+	}
+	if f.ReadoutL2[0] != g.ReadoutL2[0] {
+		t.Errorf("chosen readout_l2 %g with the constant neurons, %g without", g.ReadoutL2[0], f.ReadoutL2[0])
+	}
+}
+
+// TestPoissonEdgeCases: a silent neuron (all counts 0) solved by the fast
+// path gets a finite readout with a rate near 0 and a finite gradient, and
+// as fitted (excluded, being constant) the adam path's mean-rate readout;
+// a negative response is refused with an error naming the neuron.
 func TestPoissonEdgeCases(t *testing.T) {
 	prep := func(edit func(y []float32)) (*Prepared, error) {
 		rec, _ := synth.Discrete(synth.DiscreteConfig{Neurons: 6, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, Seed: 5})
@@ -214,7 +306,13 @@ func TestPoissonEdgeCases(t *testing.T) {
 	}
 	net := nn.NewNet(p.Cfg.Shape(p.NBins, p.Neurons()))
 	net.InitConvs(rand.New(rand.NewPCG(1, 2)))
-	pp, err := projection.NewPoisson(p.problem(), net)
+	// The solver on the silent neuron: a Problem that does not exclude it.
+	pr := p.problem()
+	if !slices.Equal(pr.Excluded, []int{2}) {
+		t.Fatalf("excluded neurons %v, want the silent neuron 2", pr.Excluded)
+	}
+	pr.Excluded = nil
+	pp, err := projection.NewPoisson(pr, net)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -232,6 +330,22 @@ func TestPoissonEdgeCases(t *testing.T) {
 			t.Errorf("silent neuron, bin %d: rate %g, want ~0", b, r)
 		}
 	}
+	// As fitted (the silent neuron is constant, so excluded): a zero
+	// readout at the mean-rate floor 1e-3 of the adam path (initReadout).
+	pp, err = projection.NewPoisson(p.problem(), net)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := pp.Evaluate(true, true); err != nil {
+		t.Fatal(err)
+	}
+	curves = pp.WriteReadout()
+	for b := 0; b < p.NBins; b++ {
+		if r := curves[b*p.Neurons()+2]; math.Abs(r-1e-3) > 1e-12 {
+			t.Errorf("excluded silent neuron, bin %d: rate %g, want 1e-3", b, r)
+			break
+		}
+	}
 
 	// Prepare refuses non-counts for poisson (data.CheckOptions.Counts);
 	// the solver's own check is the second line.
@@ -246,10 +360,10 @@ func TestPoissonEdgeCases(t *testing.T) {
 }
 
 // TestPoissonFitDeterministic fits twice through Fit with train.solver
-// projected and wants the same weights and a net whose forward pass gives
-// the returned curves.
+// projected, the second time on one core, and wants the same weights bit
+// for bit and a net whose forward pass gives the returned curves.
 func TestPoissonFitDeterministic(t *testing.T) {
-	p, _ := popPrepared(t, synth.DiscreteConfig{Neurons: 20, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, Seed: 9},
+	p, _ := popPrepared(t, synth.DiscreteConfig{Neurons: 150, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, Seed: 9},
 		func(c *settings.Config) {
 			c.Train.Solver = settings.SolverProjected
 			c.Train.MaxEpochs = 30
@@ -259,12 +373,16 @@ func TestPoissonFitDeterministic(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	// The second fit on one core: the neurons' solves are split among
+	// fewer goroutines.
+	prev := runtime.GOMAXPROCS(1)
 	b, err := Fit(context.Background(), p, Hooks{}, nil)
+	runtime.GOMAXPROCS(prev)
 	if err != nil {
 		t.Fatal(err)
 	}
 	if !slices.Equal(a.Net.Params, b.Net.Params) {
-		t.Error("two fits with the same seed differ")
+		t.Errorf("two fits with the same seed differ (cores %d and 1)", prev)
 	}
 	want := PredictConditions(a.Net, p.NBins)
 	for i := range want {
@@ -279,7 +397,7 @@ func TestPoissonFitDeterministic(t *testing.T) {
 // loadState): the weights must equal those of an uninterrupted fit bit
 // for bit.
 func TestPoissonResumeState(t *testing.T) {
-	p, _ := popPrepared(t, synth.DiscreteConfig{Neurons: 20, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, Seed: 9},
+	p, _ := popPrepared(t, synth.DiscreteConfig{Neurons: 150, Trials: 900, Bins: 30, Poisson: true, GainSD: 0.2, UntunedFrac: 0.2, Seed: 9},
 		func(c *settings.Config) {
 			c.Train.Solver = settings.SolverProjected
 			c.Train.MaxEpochs = 40

@@ -3,6 +3,7 @@ package train
 import (
 	"fmt"
 	"github.com/strialab/stria/train/settings"
+	"slices"
 
 	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/data/condstats"
@@ -37,8 +38,16 @@ type Prepared struct {
 	// the recording's units.
 	Norm *condstats.Normalizer
 
+	// Parts holds the statistics of one pass over the responses when the
+	// recording was prepared by PrepareParts (nil otherwise): then Rec.Y
+	// may be nil and everything that needs the responses reads Parts.
+	Parts *Parts
+
 	// Per-condition statistics of Train and Val, computed on first use.
 	trainSt, valSt *condstats.Stats
+	// notes and coverage are the warnings before and after the data
+	// checks' own (PrepareParts rebuilds the Report after its pass).
+	notes, coverage []string
 }
 
 // Prepare loads the recording the config names and splits it. The config
@@ -64,6 +73,21 @@ func PrepareRecording(cfg *settings.Config, rec *data.Recording) (p *Prepared, e
 }
 
 func prepareRecording(cfg *settings.Config, rec *data.Recording) (*Prepared, error) {
+	p, err := prepareTrials(cfg, rec, func(p *Prepared) (*data.Report, error) {
+		return data.CheckWith(rec, p.Cond, data.CheckOptions{NBins: p.NBins, Axis: &p.Axis, Counts: cfg.Model.Loss == settings.Poisson, Hash: true})
+	})
+	if err != nil {
+		return nil, err
+	}
+	if cfg.Split.ZScore {
+		p.Norm = condstats.NormalizerFromStats(p.TrainStats(), p.ValStats())
+	}
+	return p, nil
+}
+
+// prepareTrials bins the trials, checks the recording with check, and
+// splits it; everything but the z-scoring, which needs the responses.
+func prepareTrials(cfg *settings.Config, rec *data.Recording, check func(p *Prepared) (*data.Report, error)) (*Prepared, error) {
 	ax := cfg.DataAxis()
 	if err := ax.Validate(); err != nil {
 		return nil, err
@@ -97,7 +121,7 @@ func prepareRecording(cfg *settings.Config, rec *data.Recording) (*Prepared, err
 	if err := checkConditionIDs(rec, cond, ax); err != nil {
 		return nil, err
 	}
-	rep, err := data.CheckWith(rec, cond, data.CheckOptions{NBins: p.NBins, Axis: &p.Axis, Counts: cfg.Model.Loss == settings.Poisson, Hash: true})
+	rep, err := check(p)
 	if err != nil {
 		return nil, err
 	}
@@ -107,7 +131,9 @@ func prepareRecording(cfg *settings.Config, rec *data.Recording) (*Prepared, err
 	if offNote != "" {
 		notes = append(notes, offNote)
 	}
-	rep.Warnings = append(notes, rep.Warnings...)
+	p.notes = notes
+	rep.Warnings = append(slices.Clone(notes), rep.Warnings...)
+	nw := len(rep.Warnings)
 	if cfg.Split.KeepBlocks {
 		p.Blocks = rec.Block
 		if p.Blocks == nil && cfg.Split.BlockTrials > 0 {
@@ -124,12 +150,10 @@ func prepareRecording(cfg *settings.Config, rec *data.Recording) (*Prepared, err
 	}
 	p.Test = sp.Test
 	coverageWarnings(rep, sp, cond, &p.Axis, TestSplitLabel)
+	p.coverage = slices.Clone(rep.Warnings[nw:])
 	p.Train, p.Val, err = carve(cond, blocks, sp.Train, p.NBins, cfg.Split.ValidationFraction, cfg.Seed+1)
 	if err != nil {
 		return nil, fmt.Errorf("validation split: %w", err)
-	}
-	if cfg.Split.ZScore {
-		p.Norm = condstats.NormalizerFromStats(p.TrainStats(), p.ValStats())
 	}
 	return p, nil
 }
@@ -150,6 +174,9 @@ func (p *Prepared) WithSplit(train, val, test []int) *Prepared {
 
 // TrainStats returns the per-condition statistics of the training trials.
 func (p *Prepared) TrainStats() *condstats.Stats {
+	if p.Parts != nil {
+		panic("train: TrainStats of a recording prepared by PrepareParts (use Parts)")
+	}
 	if p.trainSt == nil {
 		p.trainSt = condstats.New(p.Rec.Y, p.Cond, p.Train, p.NBins)
 	}
@@ -158,6 +185,9 @@ func (p *Prepared) TrainStats() *condstats.Stats {
 
 // ValStats returns the per-condition statistics of the validation trials.
 func (p *Prepared) ValStats() *condstats.Stats {
+	if p.Parts != nil {
+		panic("train: ValStats of a recording prepared by PrepareParts (use Parts)")
+	}
 	if p.valSt == nil {
 		p.valSt = condstats.New(p.Rec.Y, p.Cond, p.Val, p.NBins)
 	}
@@ -195,7 +225,12 @@ func carve(cond, blocks, sub []int, nbins int, frac float64, seed uint64) (train
 }
 
 // Neurons is the number of neurons in the recording.
-func (p *Prepared) Neurons() int { return p.Rec.Y.Cols }
+func (p *Prepared) Neurons() int {
+	if p.Parts != nil {
+		return p.Parts.Test.N
+	}
+	return p.Rec.Y.Cols
+}
 
 // Soft reports whether trials are encoded by linear interpolation between
 // bin centres rather than one-hot.

@@ -104,20 +104,40 @@ func ScoreNet(p *Prepared, net *nn.Net) []eval.Scores {
 }
 
 // ScoreFitted is ScoreNet using the curves the solver computed, when it
-// did.
+// did. With a recording prepared by PrepareParts it takes the curves out
+// of f (f.Curves is nil afterwards).
 func ScoreFitted(p *Prepared, f *Fitted) []eval.Scores {
+	if p.Parts != nil && f.Curves == nil {
+		f.Curves = PredictConditions(f.Net, p.NBins)
+	}
 	if f.Curves == nil || p.Soft() {
 		return ScoreNet(p, f.Net)
 	}
-	pc := slices.Clone(f.Curves)
+	pc := f.Curves
+	if p.Parts == nil {
+		pc = slices.Clone(pc)
+	} else {
+		// No B x N copy at a million neurons: the curves are converted
+		// in place and leave f.
+		f.Curves = nil
+	}
 	p.Norm.InvertRows(pc)
 	return ScoreCurves(p, pc)
 }
 
 // ScoreCurves scores a one-hot model's predictions (nbins x N, recording
 // units) on the test trials, reading each test trial once.
+//
+// A recording prepared by PrepareParts is scored from the test part's
+// sums (eval.ScoreSums; the same numbers as ScoreConditions from the same
+// sums, eval/methods.md §8).
 func ScoreCurves(p *Prepared, pc []float64) []eval.Scores {
 	s := make([]eval.Scores, p.Neurons())
+	if p.Parts != nil {
+		eval.ScoreSums(s, p.Parts.heldOut(), pc)
+		eval.GateCeilings(nil, s, p.Cfg.Scores.CeilingAlpha)
+		return s
+	}
 	eval.ScoreConditions(s, p.Rec.Y.Data, p.Neurons(), p.Test, p.Cond, pc, p.NBins)
 	eval.GateCeilings(nil, s, p.Cfg.Scores.CeilingAlpha)
 	return s
@@ -151,7 +171,12 @@ func Ceilings(p *Prepared, scores []eval.Scores) []eval.Ceiling {
 // scores.min_reliability selects the neurons of the ratio summaries with
 // it. NaN where eval.SplitHalf is undefined (a constant neuron, fewer than
 // three conditions with two trials).
+//
+// A recording prepared by PrepareParts has it in Parts.Reliability.
 func Reliability(p *Prepared) []float64 {
+	if p.Parts != nil {
+		return p.Parts.Reliability
+	}
 	all := make([]int, p.Rec.Y.Rows)
 	for i := range all {
 		all[i] = i

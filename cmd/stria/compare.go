@@ -84,13 +84,18 @@ func arrayTask(c *cli.Context, getenv func(string) string) (i, n int, err error)
 func gatherCommand() *cli.Command {
 	return &cli.Command{
 		Name:      "gather",
-		Usage:     "check that every unit of a comparison run as array tasks is done and write its outputs",
-		ArgsUsage: "COMPARE_FOLDER",
+		Usage:     "check that every array task of a comparison or a fit is done and write the results (a fit: join the statistics, fit, write the run folder)",
+		ArgsUsage: "FOLDER",
 		Action: func(c *cli.Context) error {
 			if err := oneFolderArg(c); err != nil {
 				return err
 			}
 			dir := c.Args().First()
+			if isFitArrayFolder(dir) {
+				ctx, stop := signal.NotifyContext(c.Context, os.Interrupt, syscall.SIGTERM)
+				defer stop()
+				return gatherFit(ctx, dir, fitOptions{quiet: true, stdout: c.App.Writer, stderr: c.App.ErrWriter})
+			}
 			if k, err := runfolder.Kind(dir); err == nil && k == runfolder.KindRun {
 				return fmt.Errorf("gather: %s is a run folder (written by stria fit); gather takes the folder of stria compare", dir)
 			}

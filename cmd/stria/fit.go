@@ -9,6 +9,7 @@ import (
 	"os"
 	"os/signal"
 	"path/filepath"
+	"runtime"
 	"strings"
 	"syscall"
 	"time"
@@ -34,6 +35,10 @@ func fitCommand() *cli.Command {
 			&cli.BoolFlag{Name: "overwrite", Usage: "replace the run folder of an earlier fit: its files are deleted first"},
 			&cli.BoolFlag{Name: "quiet", Aliases: []string{"q"}, Usage: "no progress display"},
 			&cli.BoolFlag{Name: "timings", Usage: "print the wall time of each phase to stderr"},
+			&cli.BoolFlag{Name: "in-memory", Usage: "hold every trial's responses in memory even where one pass over them would do (for checks; see stria help large)"},
+			&cli.IntFlag{Name: "array-task", Usage: "pass over the neurons of array task `I` (1-based) of --array-task-count only and write their statistics; when every task has run: stria gather FOLDER"},
+			&cli.IntFlag{Name: "array-task-count", Usage: "the number `N` of array tasks the neurons are split into"},
+			&cli.IntFlag{Name: "slurm-script", Usage: "print a script that submits the fit as a Slurm job array of `N` tasks and the gather job after it, and exit"},
 		),
 		Action: func(c *cli.Context) error {
 			if err := noArgs(c); err != nil {
@@ -46,9 +51,29 @@ func fitCommand() *cli.Command {
 			if c.Bool("resume") && c.Bool("overwrite") {
 				return fmt.Errorf("fit: --resume continues the fit in the folder and --overwrite deletes it: give one of them")
 			}
+			if n := c.Int("slurm-script"); n > 0 {
+				if err := checkArrayFit(cfg); err != nil {
+					return err
+				}
+				return printFitSlurmScript(c.App.Writer, c.String("config"), cfg.Output, n)
+			}
+			task, tasks, err := fitArrayTaskOf(c, os.Getenv)
+			if err != nil {
+				return err
+			}
+			if tasks > 0 {
+				if c.Bool("resume") || c.Bool("overwrite") || c.Bool("in-memory") {
+					return fmt.Errorf("fit: an array task writes only the statistics of its neurons: --resume, --overwrite and --in-memory do not apply (empty the folder once before the array runs, or use a new --out)")
+				}
+				var out io.Writer
+				if !c.Bool("quiet") {
+					out = c.App.Writer
+				}
+				return runFitArrayTask(cfg, task, tasks, out)
+			}
 			ctx, stop := signal.NotifyContext(c.Context, os.Interrupt, syscall.SIGTERM)
 			defer stop()
-			_, err = runFit(ctx, cfg, fitOptions{resume: c.Bool("resume"), overwrite: c.Bool("overwrite"), quiet: c.Bool("quiet"), timings: c.Bool("timings"), stdout: c.App.Writer, stderr: c.App.ErrWriter})
+			_, err = runFit(ctx, cfg, fitOptions{resume: c.Bool("resume"), overwrite: c.Bool("overwrite"), quiet: c.Bool("quiet"), timings: c.Bool("timings"), inMemory: c.Bool("in-memory"), stdout: c.App.Writer, stderr: c.App.ErrWriter})
 			return err
 		},
 	}
@@ -61,8 +86,14 @@ type fitOptions struct {
 	overwrite bool
 	quiet     bool
 	timings   bool
-	stdout    io.Writer
-	stderr    io.Writer
+	// inMemory holds the trials' responses in memory even when the model
+	// could be fitted from one pass over them (train.Streamable).
+	inMemory bool
+	// gather, when not nil, fits from the statistics array tasks wrote
+	// into the folder (stria gather).
+	gather *arrayGather
+	stdout io.Writer
+	stderr io.Writer
 	// afterFit, when set, runs after training and before scoring (tests
 	// change the data there).
 	afterFit func()
@@ -113,19 +144,22 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 			last = now
 		}
 	}
-	rec, err := data.Load(cfg.Source())
-	if err != nil {
-		return nil, err
+	var rec *data.Recording
+	var p *train.Prepared
+	if o.gather != nil {
+		rec, p, err = prepareGathered(cfg, o.gather, phase)
+	} else {
+		rec, p, err = prepareFit(cfg, o, phase)
 	}
-	phase("load")
-	p, err := train.PrepareRecording(cfg, rec)
 	if err != nil {
 		return nil, err
 	}
 	if err := train.CheckState(p); err != nil {
 		return nil, err
 	}
-	phase("bin, check, split, normalise")
+	// A recording read in one pass has no content hashes (they would cost
+	// a second read of the file): its checkpoints record the files' size
+	// and modification time, which decide alone when a hash is missing.
 	files := rec.Files()
 	if resume != nil && resume.Files == nil {
 		return nil, fmt.Errorf("--resume: the checkpoint in %s does not record the data it was written on, so it cannot be checked; fit again without --resume (with --overwrite)", dir)
@@ -198,6 +232,11 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 		return nil, err
 	}
 	phase(fmt.Sprintf("fit (%d epochs)", len(fitted.Log)))
+	if p.Parts != nil {
+		// What the solver no longer needs (B x N values each) goes before
+		// the scores allocate theirs.
+		runtime.GC()
+	}
 	if o.afterFit != nil {
 		o.afterFit()
 	}
@@ -207,17 +246,20 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	var scores []eval.Scores
 	gerr := format.Guard(func() { scores = train.ScoreFitted(p, fitted) })
 	phase("score the test trials")
-	if err := <-written; err != nil {
-		return nil, err
-	}
 	if gerr != nil {
+		<-written
 		return nil, gerr
 	}
 	// The data must not have changed while the fit read them.
 	if err := rec.Unchanged(); err != nil {
+		<-written
 		return nil, err
 	}
+	// The scores are written while the model still is.
 	sum, err := runfolder.WriteResults(dir, p, fitted, scores, time.Since(start))
+	if werr := <-written; werr != nil {
+		return nil, werr
+	}
 	if err != nil {
 		return nil, err
 	}
@@ -227,6 +269,11 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	phase("state terms")
 	if err := runfolder.RemoveResumeState(dir); err != nil {
 		return nil, err
+	}
+	if o.gather != nil {
+		if err := runfolder.RemoveArrayTasks(dir); err != nil {
+			return nil, err
+		}
 	}
 	// Last: the marker that tells readers the run folder is complete.
 	if err := runfolder.Finish(dir, runfolder.FormatRun); err != nil {
@@ -239,6 +286,59 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	return sum, nil
 }
 
+// prepareFit loads and prepares the recording: in one pass over the
+// responses when the model allows it (train.Streamable), streamed from a
+// .npy file, else the trial-level path that holds them in memory. It says
+// on stderr which ran and why.
+func prepareFit(cfg *settings.Config, o fitOptions, phase func(string)) (*data.Recording, *train.Prepared, error) {
+	why := train.Streamable(cfg)
+	if o.inMemory && why == "" {
+		why = "--in-memory"
+	}
+	if why != "" {
+		rec, err := data.Load(cfg.Source())
+		if err != nil {
+			return nil, nil, err
+		}
+		phase("load")
+		p, err := train.PrepareRecording(cfg, rec)
+		if err != nil {
+			return nil, nil, err
+		}
+		phase("bin, check, split, normalise")
+		if why != "--in-memory" {
+			fmt.Fprintf(o.stderr, "note: every trial's responses are held in memory: %s (stria help large)\n", why)
+		}
+		return rec, p, nil
+	}
+	if strings.EqualFold(filepath.Ext(cfg.Data.Responses), ".npy") {
+		rec, s, err := data.LoadStream(cfg.Source())
+		if err != nil {
+			return nil, nil, err
+		}
+		defer s.Close()
+		phase("open, read the stimulus")
+		p, err := train.PrepareParts(cfg, rec, s)
+		if err != nil {
+			return nil, nil, err
+		}
+		runtime.GC() // the split-half sums of the pass are spent
+		phase("bin, check, split; one pass over the responses")
+		return rec, p, nil
+	}
+	rec, err := data.Load(cfg.Source())
+	if err != nil {
+		return nil, nil, err
+	}
+	phase("load")
+	p, err := train.PrepareParts(cfg, rec, nil)
+	if err != nil {
+		return nil, nil, err
+	}
+	phase("bin, check, split; statistics per condition")
+	return rec, p, nil
+}
+
 // checkFitFolder refuses an output folder that holds an earlier run (or
 // anything else) unless the fit resumes it or overwrites it; overwrite
 // empties only a folder stria wrote.
@@ -249,6 +349,9 @@ func checkFitFolder(dir string, o fitOptions) error {
 	}
 	if o.resume {
 		return nil
+	}
+	if o.gather != nil {
+		return checkArrayFolder(dir)
 	}
 	what, err := runfolder.Holds(dir)
 	if err != nil || what == "" {
@@ -273,6 +376,14 @@ func fileExists(path string) bool {
 
 func printSummary(w io.Writer, dir string, s *runfolder.Summary) {
 	fmt.Fprintf(w, "run folder: %s\n", dir)
+	switch s.Responses {
+	case "streamed":
+		fmt.Fprintln(w, "responses: read once, in row blocks; fitted from their statistics per condition")
+	case "loaded":
+		fmt.Fprintln(w, "responses: loaded (only a .npy file is read in row blocks); fitted from their statistics per condition")
+	case "trials":
+		fmt.Fprintln(w, "responses: every trial held in memory")
+	}
 	fmt.Fprintf(w, "trained %d epochs (best %d, stopped by %s) in %.1f s\n", s.Epochs, s.BestEpoch, s.Stop, s.WallSeconds)
 	fmt.Fprintf(w, "held-out trials: %d; neurons scored: %d of %d", s.TestTrials, s.Scored, s.Neurons)
 	if s.Excluded > 0 {

@@ -19,7 +19,7 @@ var helpFiles embed.FS
 
 // helpTopicNames are the topics of stria help, in the order they are
 // listed.
-var helpTopicNames = []string{"config", "outputs", "metrics", "formats", "methods"}
+var helpTopicNames = []string{"config", "outputs", "metrics", "formats", "large", "methods"}
 
 // helpTopic returns the text of a help topic and whether it exists.
 func helpTopic(name string) (string, bool) {

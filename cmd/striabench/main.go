@@ -96,7 +96,20 @@ func main() {
 	flag.IntVar(&o.projectedPatience, "patience", 100, "train.patience of the projected fits")
 	flag.Float64Var(&o.projectedLR, "lr", 1e-2, "train.learning_rate of the projected fits")
 	flag.Float64Var(&o.projectedReadoutL2, "readout-l2", 1, "model.readout_l2 of every fit")
+	var so streamOptions
+	stream := flag.Bool("stream", false, "instead: time stria fit with the default config on a recording written to disk by synth.WriteNPY (-stream-neurons x -stream-trials), against cat FILE > /dev/null in the same run")
+	flag.IntVar(&so.neurons, "stream-neurons", 1000000, "neurons of the -stream recording")
+	flag.IntVar(&so.trials, "stream-trials", 4600, "trials of the -stream recording")
+	flag.BoolVar(&so.keep, "stream-keep", false, "keep the -stream recording and run folder (a recording already in -dir is always kept)")
+	flag.BoolVar(&so.inMemory, "stream-in-memory", false, "run the -stream fit with --in-memory (the trial-level path)")
 	flag.Parse()
+	if *stream {
+		if err := runStream(o, so); err != nil {
+			fmt.Fprintln(os.Stderr, "striabench:", err)
+			os.Exit(1)
+		}
+		return
+	}
 	if err := run(o); err != nil {
 		fmt.Fprintln(os.Stderr, "striabench:", err)
 		os.Exit(1)

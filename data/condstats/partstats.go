@@ -36,6 +36,16 @@ type StreamPlan struct {
 	Part []int
 	// Specs holds one entry per part.
 	Specs []PartSpec
+	// AllHalves also keeps the split-half sums over all the trials of
+	// all parts (the split-half reliability over all trials): within each
+	// condition the trials of every part, in ascending index order, are
+	// dealt alternately to half A and half B. AccumulateParts then returns
+	// one more PartStats after the parts, holding Count, CountA, Ref,
+	// RefCond and SumA of that dealing (Sum, TotSq and SumSq nil), with
+	// Ref the response of the first trial of any part. Half B's sums
+	// follow from the parts': per condition b and neuron n, sum over parts
+	// p of Sum_pbn + N_pb (r_pn - Ref_n), minus SumA_bn.
+	AllHalves bool
 }
 
 // PartOf returns the part of each of T trials: trials listed in sets[i]
@@ -465,7 +475,7 @@ func AccumulateParts(s *format.NPYStream, plan StreamPlan, opt StreamOptions) ([
 	if p, n := acc.finish(); p >= 0 {
 		return nil, nonFiniteErr(s, plan.Part, p, n)
 	}
-	return acc.parts, nil
+	return acc.result(), nil
 }
 
 // AccumulatePartsMatrix is AccumulateParts for a recording already in
@@ -499,7 +509,7 @@ func AccumulatePartsMatrix(y *format.Matrix, plan StreamPlan, opt StreamOptions)
 		}
 		return nil, fmt.Errorf("data: responses: neuron %d (0-based) has sums of squares too large for float64", n)
 	}
-	return acc.parts, nil
+	return acc.result(), nil
 }
 
 // newAccumulator checks plan against a recording of T trials and N
@@ -524,6 +534,17 @@ func newAccumulator(plan *StreamPlan, T, N int, name string) (*accumulator, []in
 	}
 	// half[t]: trial t goes to half A of its part's condition.
 	half := make([]bool, T)
+	var all *PartStats
+	var allHalf []bool
+	var allCntA [][]int
+	if plan.AllHalves {
+		all = &PartStats{B: B, N: N, Count: make([]int, B), CountA: make([]int, B), RefCond: -1}
+		allHalf = make([]bool, T)
+		allCntA = make([][]int, P)
+		for i := range allCntA {
+			allCntA[i] = make([]int, B)
+		}
+	}
 	for t, p := range plan.Part {
 		if p == NoPart {
 			continue
@@ -543,6 +564,22 @@ func newAccumulator(plan *StreamPlan, T, N int, name string) (*accumulator, []in
 			first[p] = t
 			ps.RefCond = c
 		}
+		if all != nil {
+			allHalf[t] = all.Count[c]%2 == 0
+			if allHalf[t] {
+				all.CountA[c]++
+				allCntA[p][c]++
+			}
+			all.Count[c]++
+			all.Trials++
+			if all.RefCond < 0 {
+				all.RefCond = c
+				first = append(first, t) // the reference row of all
+			}
+		}
+	}
+	if all != nil && all.RefCond < 0 {
+		first = append(first, -1)
 	}
 	big := func(n int) []float64 {
 		v := make([]float64, n)
@@ -564,14 +601,38 @@ func newAccumulator(plan *StreamPlan, T, N int, name string) (*accumulator, []in
 			}
 		}
 	}
-	return &accumulator{parts: parts, plan: plan, half: half, N: N}, first, nil
+	if all != nil {
+		all.Ref = make([]float64, N)
+		all.SumA = big(B * N)
+	}
+	return &accumulator{parts: parts, plan: plan, half: half, N: N, all: all, allHalf: allHalf, allCntA: allCntA}, first, nil
 }
 
-// setRef sets part i's reference to row.
+// setRef sets part i's reference to row (i == len(parts): the reference
+// of the dealing over all trials).
 func (a *accumulator) setRef(i int, row []float32) {
+	ref := a.all.refOf(i, a.parts)
 	for n, v := range row {
-		a.parts[i].Ref[n] = float64(v)
+		ref[n] = float64(v)
 	}
+}
+
+// refOf returns the reference of part i, or of all (receiver) for i ==
+// len(parts).
+func (all *PartStats) refOf(i int, parts []*PartStats) []float64 {
+	if i < len(parts) {
+		return parts[i].Ref
+	}
+	return all.Ref
+}
+
+// result returns the parts, followed by the dealing over all trials when
+// kept.
+func (a *accumulator) result() []*PartStats {
+	if a.all == nil {
+		return a.parts
+	}
+	return append(a.parts[:len(a.parts):len(a.parts)], a.all)
 }
 
 // addParallel adds the values held in y, rows [lo, hi) x neurons
@@ -598,6 +659,22 @@ func (a *accumulator) addParallel(y []float32, lo, hi, y0, y1, workers int) erro
 // first part and neuron whose sums are not finite, or -1, -1.
 func (a *accumulator) finish() (part, neuron int) {
 	N := a.N
+	if all := a.all; all != nil {
+		// SumA holds sums of y - r_p over the half-A trials of each part p:
+		// add N_pb (r_p - r_all) to refer them to all.Ref.
+		for p, ps := range a.parts {
+			for b, k := range a.allCntA[p] {
+				if k == 0 {
+					continue
+				}
+				c := float64(k)
+				sa := all.SumA[b*N : (b+1)*N]
+				for n := range sa {
+					sa[n] += c * (ps.Ref[n] - all.Ref[n])
+				}
+			}
+		}
+	}
 	for i, ps := range a.parts {
 		if ps.SumSq != nil {
 			for b := 0; b < ps.B; b++ {
@@ -627,10 +704,10 @@ func nonFiniteErr(s *format.NPYStream, part []int, p, n int) error {
 			return err
 		}
 		if !isFinite32(v) {
-			return fmt.Errorf("data: %s: neuron %d (0-based) has a non-finite response (%v) in trial %d (0-based); remove or fix it before fitting", s.Name(), n, v, t)
+			return fmt.Errorf("data: %s: neuron %d (0-based) has a non-finite response (%v) in trial %d (0-based); remove or fix it before fitting", s.Name(), n+s.ColumnOffset(), v, t)
 		}
 	}
-	return fmt.Errorf("data: %s: neuron %d (0-based) has sums of squares too large for float64", s.Name(), n)
+	return fmt.Errorf("data: %s: neuron %d (0-based) has sums of squares too large for float64", s.Name(), n+s.ColumnOffset())
 }
 
 // accumulator sums row blocks into parts.
@@ -639,6 +716,12 @@ type accumulator struct {
 	plan  *StreamPlan
 	half  []bool
 	N     int
+	// With plan.AllHalves: all holds the dealing over all trials; allHalf[t]
+	// says trial t goes to its half A. Its SumA is summed relative to each
+	// trial's own part reference and corrected to all.Ref by finish.
+	all     *PartStats
+	allHalf []bool
+	allCntA [][]int // [part][condition] trials of half A (all trials) per part
 }
 
 // anyPart reports whether a trial of [lo, hi) belongs to a part.
@@ -681,11 +764,20 @@ func (a *accumulator) add(y []float32, lo, hi, y0, y1, c0, c1 int) {
 		} else {
 			sq = ps.TotSq[c0:c1:c1]
 		}
-		if ps.SumA != nil && a.half[t] {
-			addRowHalf(sum, sq, ps.SumA[o:o+w:o+w], row, ref)
-			continue
+		var allA []float64
+		if a.all != nil && a.allHalf[t] {
+			allA = a.all.SumA[o : o+w : o+w]
 		}
-		addRow(sum, sq, row, ref)
+		switch {
+		case ps.SumA != nil && a.half[t] && allA != nil:
+			addRowHalf2(sum, sq, ps.SumA[o:o+w:o+w], allA, row, ref)
+		case ps.SumA != nil && a.half[t]:
+			addRowHalf(sum, sq, ps.SumA[o:o+w:o+w], row, ref)
+		case allA != nil:
+			addRowHalf(sum, sq, allA, row, ref)
+		default:
+			addRow(sum, sq, row, ref)
+		}
 	}
 }
 
@@ -712,6 +804,22 @@ func addRowHalf(sum, sq, sa []float64, row []float32, ref []float64) {
 		sum[j] += d
 		sq[j] += d * d
 		sa[j] += d
+	}
+}
+
+// addRowHalf2 is addRowHalf that also adds d to sb.
+func addRowHalf2(sum, sq, sa, sb []float64, row []float32, ref []float64) {
+	sum = sum[:len(row)]
+	sq = sq[:len(row)]
+	sa = sa[:len(row)]
+	sb = sb[:len(row)]
+	ref = ref[:len(row)]
+	for j, v := range row {
+		d := float64(v) - ref[j]
+		sum[j] += d
+		sq[j] += d * d
+		sa[j] += d
+		sb[j] += d
 	}
 }
 
@@ -751,3 +859,69 @@ func ConstantNeurons(parts ...*PartStats) []int {
 
 // isFinite32 reports whether v is neither NaN nor infinite.
 func isFinite32(v float32) bool { return !math.IsNaN(float64(v)) && !math.IsInf(float64(v), 0) }
+
+// JoinNeurons returns the statistics of one part over the neurons of
+// ranges, which hold the same part's statistics for consecutive ranges of
+// neurons of the same trials (from AccumulateParts over
+// format.NPYStream.Columns): the neurons side by side, in the order
+// given. Every neuron's statistics depend only on its own responses, so
+// the result is bitwise what one pass over all the neurons gives. It
+// returns an error naming the first range whose conditions, trial counts
+// or kept statistics differ from the first one's.
+func JoinNeurons(ranges ...*PartStats) (*PartStats, error) {
+	if len(ranges) == 0 {
+		return nil, fmt.Errorf("data: JoinNeurons of no ranges")
+	}
+	f := ranges[0]
+	out := &PartStats{B: f.B, Trials: f.Trials, Count: append([]int(nil), f.Count...), RefCond: f.RefCond}
+	if f.CountA != nil {
+		out.CountA = append([]int(nil), f.CountA...)
+	}
+	for i, r := range ranges {
+		switch {
+		case r.B != f.B || r.Trials != f.Trials || r.RefCond != f.RefCond || !equalInts(r.Count, f.Count) || !equalInts(r.CountA, f.CountA):
+			return nil, fmt.Errorf("data: range %d of the statistics has other conditions or trial counts than range 0", i)
+		case (r.Sum == nil) != (f.Sum == nil) || (r.SumSq == nil) != (f.SumSq == nil) || (r.SumA == nil) != (f.SumA == nil) || (r.TotSq == nil) != (f.TotSq == nil):
+			return nil, fmt.Errorf("data: range %d of the statistics keeps other sums than range 0", i)
+		}
+		out.N += r.N
+	}
+	N, B := out.N, out.B
+	join := func(get func(*PartStats) []float64, perCond bool) []float64 {
+		if get(f) == nil {
+			return nil
+		}
+		rows := 1
+		if perCond {
+			rows = B
+		}
+		v := make([]float64, rows*N)
+		n0 := 0
+		for _, r := range ranges {
+			src := get(r)
+			for b := 0; b < rows; b++ {
+				copy(v[b*N+n0:b*N+n0+r.N], src[b*r.N:(b+1)*r.N])
+			}
+			n0 += r.N
+		}
+		return v
+	}
+	out.Ref = join(func(p *PartStats) []float64 { return p.Ref }, false)
+	out.TotSq = join(func(p *PartStats) []float64 { return p.TotSq }, false)
+	out.Sum = join(func(p *PartStats) []float64 { return p.Sum }, true)
+	out.SumSq = join(func(p *PartStats) []float64 { return p.SumSq }, true)
+	out.SumA = join(func(p *PartStats) []float64 { return p.SumA }, true)
+	return out, nil
+}
+
+func equalInts(a, b []int) bool {
+	if len(a) != len(b) {
+		return false
+	}
+	for i := range a {
+		if a[i] != b[i] {
+			return false
+		}
+	}
+	return true
+}

@@ -99,6 +99,52 @@ func NPYHeaderBytes(descr string, shape []int) []byte {
 // writeNPY writes header and data atomically. raw, if non-nil, is the data
 // already in little-endian byte order; otherwise put encodes element i.
 func writeNPY(path, descr string, shape []int, raw []byte, n int, put func(b []byte, i int), size int) (err error) {
+	return writeNPYBody(path, descr, shape, raw, n, put, size, nil)
+}
+
+// WriteNPY64Rows is WriteNPY64 for a rows x cols array produced a block of
+// rows at a time: fill(dst, r0, r1) writes rows [r0, r1) into dst
+// ((r1-r0) x cols). Memory is one block of about 4 MiB, whatever the size
+// of the array (a readout of a million neurons). Writing is atomic as for
+// WriteNPY.
+func WriteNPY64Rows(path string, rows, cols int, fill func(dst []float64, r0, r1 int)) error {
+	if rows < 0 || cols < 0 {
+		panic(fmt.Sprintf("data: WriteNPY64Rows negative shape %d x %d", rows, cols))
+	}
+	R := max(1, (4<<20)/(8*max(cols, 1)))
+	buf := make([]float64, min(R, max(rows, 1))*cols)
+	var bytes []byte
+	if !HostLittle {
+		bytes = make([]byte, 8*len(buf))
+	}
+	return writeNPYBody(path, "<f8", []int{rows, cols}, nil, 0, nil, 8, func(w *bufio.Writer) error {
+		for r0 := 0; r0 < rows; r0 += R {
+			r1 := min(r0+R, rows)
+			v := buf[:(r1-r0)*cols]
+			fill(v, r0, r1)
+			var b []byte
+			if HostLittle {
+				if len(v) == 0 {
+					continue
+				}
+				b = unsafe.Slice((*byte)(unsafe.Pointer(&v[0])), 8*len(v))
+			} else {
+				b = bytes[:8*len(v)]
+				for i, x := range v {
+					binary.LittleEndian.PutUint64(b[8*i:], math.Float64bits(x))
+				}
+			}
+			if _, err := w.Write(b); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+}
+
+// writeNPYBody writes header and data atomically: body writes the data
+// when it is not nil, else raw or put as for writeNPY.
+func writeNPYBody(path, descr string, shape []int, raw []byte, n int, put func(b []byte, i int), size int, body func(w *bufio.Writer) error) (err error) {
 	dir, base := filepath.Split(path)
 	if dir == "" {
 		dir = "."
@@ -121,9 +167,12 @@ func writeNPY(path, descr string, shape []int, raw []byte, n int, put func(b []b
 	// The values may be mapped from a file (a recording written back out):
 	// a fault while reading them is an error, not a crash.
 	if ferr := Guard(func() {
-		if raw != nil {
+		switch {
+		case body != nil:
+			err = body(w)
+		case raw != nil:
 			_, err = w.Write(raw)
-		} else {
+		default:
 			var b [8]byte
 			for i := 0; i < n && err == nil; i++ {
 				put(b[:size], i)

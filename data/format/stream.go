@@ -31,6 +31,49 @@ type NPYStream struct {
 	off        int64 // offset of the first data byte
 	rows, cols int
 	rowBytes   int64
+	// colOff is the first column of the file this stream shows (see
+	// Columns); cols are shown from there.
+	colOff int
+}
+
+// Columns returns a stream of the same file showing only columns
+// (neurons) [c0, c1): its Cols is c1-c0 and its column c is the file's
+// c0+c. It shares the open file (close either, once). It panics if the
+// range is outside [0, Cols].
+func (s *NPYStream) Columns(c0, c1 int) *NPYStream {
+	if c0 < 0 || c1 < c0 || c1 > s.cols {
+		panic(fmt.Sprintf("data: NPYStream.Columns [%d, %d) out of range [0, %d)", c0, c1, s.cols))
+	}
+	v := *s
+	v.colOff, v.cols = s.colOff+c0, c1-c0
+	return &v
+}
+
+// ColumnOffset is the file column of the stream's column 0 (0 unless the
+// stream comes from Columns).
+func (s *NPYStream) ColumnOffset() int { return s.colOff }
+
+// contiguous reports whether the stream shows whole rows of the file.
+func (s *NPYStream) contiguous() bool {
+	return int64(s.cols)*int64(s.h.size) == s.rowBytes
+}
+
+// pieces calls read(i, k, t, c) for the runs of the span of n elements
+// starting at element (t, c) that are contiguous in the file: element i
+// of the span is the first of the run of k, at (t, c) of the stream.
+func (s *NPYStream) pieces(n, t, c int, read func(i, k, t, c int) error) error {
+	if s.contiguous() {
+		return read(0, n, t, c)
+	}
+	for i := 0; i < n; {
+		k := min(n-i, s.cols-c)
+		if err := read(i, k, t, c); err != nil {
+			return err
+		}
+		i += k
+		t, c = t+1, 0
+	}
+	return nil
 }
 
 // OpenNPYStream opens path for row-block reads. Errors name the file and
@@ -106,7 +149,7 @@ func (s *NPYStream) checkRange(fn string, n, lo, hi int) {
 
 // pos is the file offset of element (t, c).
 func (s *NPYStream) pos(t, c int) int64 {
-	return s.off + int64(t)*s.rowBytes + int64(c)*int64(s.h.size)
+	return s.off + int64(t)*s.rowBytes + int64(c+s.colOff)*int64(s.h.size)
 }
 
 // readErr wraps an error of a read starting at element (t, c).
@@ -114,7 +157,7 @@ func (s *NPYStream) readErr(err error, t, c int) error {
 	if err == io.EOF || err == io.ErrUnexpectedEOF {
 		return formatErr(s.name, "file ends before the data of trial %d (0-based) the header announces: was it truncated while being read?", t)
 	}
-	return fmt.Errorf("data: %s: reading trial %d, neuron %d (0-based) onwards: %w", s.name, t, c, err)
+	return fmt.Errorf("data: %s: reading trial %d, neuron %d (0-based) onwards: %w", s.name, t, c+s.colOff, err)
 }
 
 // ReadRows32 reads rows [lo, hi) into dst[:(hi-lo)*Cols] as float32 in C
@@ -137,14 +180,18 @@ func (s *NPYStream) ReadSpan32(dst []float32, t, c int) error {
 		return nil
 	}
 	if s.direct(4) {
-		b := unsafe.Slice((*byte)(unsafe.Pointer(&dst[0])), 4*len(dst))
-		if _, err := s.f.ReadAt(b, s.pos(t, c)); err != nil {
-			return s.readErr(err, t, c)
-		}
-		return nil
+		return s.pieces(len(dst), t, c, func(i, k, t, c int) error {
+			b := unsafe.Slice((*byte)(unsafe.Pointer(&dst[i])), 4*k)
+			if _, err := s.f.ReadAt(b, s.pos(t, c)); err != nil {
+				return s.readErr(err, t, c)
+			}
+			return nil
+		})
 	}
 	get := s.h.getter()
-	return s.convert(len(dst), t, c, func(i int, b []byte) { dst[i] = float32(get(b)) })
+	return s.pieces(len(dst), t, c, func(i, k, t, c int) error {
+		return s.convert(k, t, c, func(e int, b []byte) { dst[i+e] = float32(get(b)) })
+	})
 }
 
 // ReadRows64 is ReadRows32 for float64 destinations; little-endian
@@ -157,14 +204,18 @@ func (s *NPYStream) ReadRows64(dst []float64, lo, hi int) ([]float64, error) {
 		return out, nil
 	}
 	if s.direct(8) {
-		b := unsafe.Slice((*byte)(unsafe.Pointer(&out[0])), 8*n)
-		if _, err := s.f.ReadAt(b, s.pos(lo, 0)); err != nil {
-			return out, s.readErr(err, lo, 0)
-		}
-		return out, nil
+		return out, s.pieces(n, lo, 0, func(i, k, t, c int) error {
+			b := unsafe.Slice((*byte)(unsafe.Pointer(&out[i])), 8*k)
+			if _, err := s.f.ReadAt(b, s.pos(t, c)); err != nil {
+				return s.readErr(err, t, c)
+			}
+			return nil
+		})
 	}
 	get := s.h.getter()
-	return out, s.convert(n, lo, 0, func(i int, b []byte) { out[i] = get(b) })
+	return out, s.pieces(n, lo, 0, func(i, k, t, c int) error {
+		return s.convert(k, t, c, func(e int, b []byte) { out[i+e] = get(b) })
+	})
 }
 
 // convert reads n elements starting at element (t, c) in chunks and hands
@@ -193,8 +244,8 @@ func (s *NPYStream) convert(n, t, c int, set func(i int, b []byte)) error {
 func (s *NPYStream) ReadElem(t, n int) (float32, error) {
 	size := s.h.size
 	b := make([]byte, size)
-	if _, err := s.f.ReadAt(b, s.off+int64(t)*s.rowBytes+int64(n)*int64(size)); err != nil {
-		return 0, fmt.Errorf("data: %s: reading trial %d, neuron %d: %w", s.name, t, n, err)
+	if _, err := s.f.ReadAt(b, s.pos(t, n)); err != nil {
+		return 0, fmt.Errorf("data: %s: reading trial %d, neuron %d: %w", s.name, t, n+s.colOff, err)
 	}
 	return float32(s.h.getter()(b)), nil
 }

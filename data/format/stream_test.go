@@ -81,3 +81,46 @@ func TestNPYStreamRead(t *testing.T) {
 		}
 	})
 }
+
+// TestStreamColumns: a column view reads what the whole rows hold in its
+// columns, across row boundaries, into float32 and float64.
+func TestStreamColumns(t *testing.T) {
+	dir := t.TempDir()
+	const T, N = 7, 11
+	v := make([]float32, T*N)
+	for i := range v {
+		v[i] = float32(i)
+	}
+	path := filepath.Join(dir, "y.npy")
+	if err := WriteNPY(path, []int{T, N}, v); err != nil {
+		t.Fatal(err)
+	}
+	s, err := OpenNPYStream(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	for _, r := range [][2]int{{0, N}, {3, 8}, {10, 11}, {0, 1}} {
+		c := s.Columns(r[0], r[1])
+		w := r[1] - r[0]
+		got := make([]float32, T*w)
+		if _, err := c.ReadRows32(got, 0, T); err != nil {
+			t.Fatal(err)
+		}
+		got64 := make([]float64, T*w)
+		if _, err := c.ReadRows64(got64, 0, T); err != nil {
+			t.Fatal(err)
+		}
+		for tr := 0; tr < T; tr++ {
+			for n := 0; n < w; n++ {
+				want := v[tr*N+r[0]+n]
+				if got[tr*w+n] != want || got64[tr*w+n] != float64(want) {
+					t.Fatalf("columns %v: trial %d, column %d: got %v and %v, want %v", r, tr, n, got[tr*w+n], got64[tr*w+n], want)
+				}
+			}
+		}
+		if e, _ := c.ReadElem(2, w-1); e != v[2*N+r[1]-1] {
+			t.Errorf("columns %v: ReadElem got %v, want %v", r, e, v[2*N+r[1]-1])
+		}
+	}
+}

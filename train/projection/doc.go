@@ -8,9 +8,12 @@
 //     costs O(B^2 F + B^3) whatever the number of neurons; the penalty can
 //     be chosen from the data at the final filters, for all neurons or per
 //     neuron (eval/methods.md §12).
-//   - Poisson with a softplus or exp output: each neuron's readout by
-//     Newton's method in the span of the condition rows (eval/methods.md
-//     §13), O(N B^3) per epoch.
+//   - Poisson with a softplus or exp output (the Poisson fast path): each
+//     neuron's readout by Newton's method in the span of the condition rows
+//     (eval/methods.md §13); while the filters train, one inexact Newton
+//     step per neuron and epoch from the previous readout (conjugate
+//     gradients, O(N B^2) per epoch), solved exactly at the end; the
+//     penalty can be chosen on the validation trials at the final filters.
 //
 // A solver reads a Problem (per-condition statistics of the training and
 // validation trials, the z-scoring, the penalty) and a net whose conv

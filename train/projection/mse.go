@@ -56,10 +56,23 @@ import (
 type projector struct {
 	B, Bt, Bv, F, N int
 	rows, vrows     []int     // bins of the training and the validation rows
+	trainRow        []int     // B: the training row of each bin, -1 for none
 	sq, pw          []float64 // Bt: sqrt(N_b), N_b / W
 	nv              []float64 // Bv: validation trials of each row
 	W, Wv, mu       float64
 	within, withinV float64 // within-condition sums of squares (all neurons)
+	// withinN is each neuron's within-condition sum of squares on the
+	// training trials (trained units), when kept from PartStats; nil
+	// otherwise (trainWithinN computes it from the Stats).
+	withinN []float64
+	// consume: yc and dv are the Sum arrays of PartStats (Problem's
+	// TrainParts and ValParts), which the readout may take over: z goes
+	// into yc's storage and the per-bin predictions into valStore (dv's
+	// whole B x N array). spent is set once it has; the solver cannot
+	// evaluate after that.
+	consume  bool
+	valStore []float64
+	spent    bool
 
 	yc    []float64 // Bt x N, centred training condition means
 	ymean []float64 // N, training mean of each neuron
@@ -112,10 +125,10 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 	if !(pr.Penalty > 0) {
 		return nil, fmt.Errorf("train.solver projected needs model.readout_l2 > 0 (it is %v): without a penalty the closed-form readout interpolates the condition means", pr.Penalty)
 	}
-	B, N, F := pr.Train.B, pr.Train.N, net.Features()
+	B, N, count := pr.dims()
+	F := net.Features()
 	pj := &projector{B: B, N: N, F: F}
-	st := pr.Train
-	for b, c := range st.Count {
+	for b, c := range count {
 		if c > 0 {
 			pj.rows = append(pj.rows, b)
 		}
@@ -124,12 +137,23 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 	if Bt == 0 {
 		return nil, fmt.Errorf("train: no training trials")
 	}
+	pj.trainRow = make([]int, B)
+	for b := range pj.trainRow {
+		pj.trainRow[b] = -1
+	}
+	for r, b := range pj.rows {
+		pj.trainRow[b] = r
+	}
 	pj.Bt = Bt
-	pj.W = float64(trials(pr.Train))
+	W := 0
+	for _, c := range count {
+		W += c
+	}
+	pj.W = float64(W)
 	pj.mu = pr.Penalty * pj.W / 2
 	pj.sq, pj.pw = make([]float64, Bt), make([]float64, Bt)
 	for r, b := range pj.rows {
-		c := float64(st.Count[b])
+		c := float64(count[b])
 		pj.sq[r], pj.pw[r] = math.Sqrt(c), c/pj.W
 	}
 	// Training means, their weighted mean and the within sum of squares,
@@ -139,31 +163,14 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 	for n := range mu {
 		mu[n], inv[n] = pr.Norm.Affine(n)
 	}
-	pj.ymean = make([]float64, N)
-	pj.yc = make([]float64, Bt*N)
-	for r, b := range pj.rows {
-		c := float64(st.Count[b])
-		sum, sq := st.Sum[b*N:(b+1)*N], st.SumSq[b*N:(b+1)*N]
-		yc := pj.yc[r*N : (r+1)*N]
-		for n, s := range sum {
-			m := s / c
-			yc[n] = m
-			pj.within += (sq[n] - s*m) * inv[n] * inv[n]
-			pj.ymean[n] += s
-		}
+	if pr.TrainParts != nil {
+		pj.consume = true
+		pj.trainFromParts(pr.TrainParts, inv)
+	} else {
+		pj.trainFromStats(pr.Train, inv)
 	}
-	for n := range pj.ymean {
-		pj.ymean[n] /= pj.W
-	}
-	for r := 0; r < Bt; r++ {
-		yc := pj.yc[r*N : (r+1)*N]
-		for n, m := range pj.ymean {
-			yc[n] = (yc[n] - m) * inv[n]
-		}
-	}
-	st = nil
 	pj.S = make([]float64, Bt*Bt)
-	blas64.Gemm(blas.NoTrans, blas.Trans, 1, gen(pj.yc, Bt, N), gen(pj.yc, Bt, N), 0, gen(pj.S, Bt, Bt))
+	sumOverNeurons(pj.S, pj.yc, pj.yc, Bt, Bt, N)
 	for i := 0; i < Bt; i++ {
 		for j := 0; j < Bt; j++ {
 			pj.S[i*Bt+j] *= pj.sq[i] * pj.sq[j]
@@ -171,39 +178,12 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 	}
 
 	if pr.hasVal() {
-		sv := pr.Val
-		for b, c := range sv.Count {
-			if c > 0 {
-				pj.vrows = append(pj.vrows, b)
-			}
+		if pr.TrainParts != nil {
+			pj.valFromParts(pr.ValParts, pr.TrainParts, inv)
+		} else {
+			pj.valFromStats(pr.Val, inv)
 		}
-		Bv := len(pj.vrows)
-		pj.Bv = Bv
-		pj.Wv = float64(trials(pr.Val))
-		pj.nv = make([]float64, Bv)
-		pj.dv = make([]float64, Bv*N)
-		pj.withN = make([]float64, N)
-		pj.valTot = make([]float64, N)
-		grand := make([]float64, N)
-		for r, b := range pj.vrows {
-			c := float64(sv.Count[b])
-			pj.nv[r] = c
-			sum, sq := sv.Sum[b*N:(b+1)*N], sv.SumSq[b*N:(b+1)*N]
-			d := pj.dv[r*N : (r+1)*N]
-			for n, s := range sum {
-				m := s / c
-				d[n] = (m - pj.ymean[n]) * inv[n]
-				pj.withN[n] += sq[n] - s*m
-				pj.valTot[n] += sq[n]
-				grand[n] += s
-			}
-		}
-		for n, w := range pj.withN {
-			i2 := inv[n] * inv[n]
-			pj.withN[n] = w * i2
-			pj.withinV += w * i2
-			pj.valTot[n] = (pj.valTot[n] - grand[n]*grand[n]/pj.Wv) * i2
-		}
+		Bv := pj.Bv
 		pj.yyv = make([]float64, Bv)
 		for r := range pj.yyv {
 			d := pj.dv[r*N : (r+1)*N]
@@ -214,7 +194,7 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 			pj.yyv[r] = s
 		}
 		pj.cvt = make([]float64, Bv*Bt)
-		blas64.Gemm(blas.NoTrans, blas.Trans, 1, gen(pj.dv, Bv, N), gen(pj.yc, Bt, N), 0, gen(pj.cvt, Bv, Bt))
+		sumOverNeurons(pj.cvt, pj.dv, pj.yc, Bv, Bt, N)
 		for r := 0; r < Bv; r++ {
 			for c := 0; c < Bt; c++ {
 				pj.cvt[r*Bt+c] *= pj.sq[c]
@@ -224,7 +204,7 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 		if cost := float64(Bv) * float64(Bt) * float64(N); cost > projectedR2Every {
 			pj.r2Every = int(math.Ceil(cost / projectedR2Budget))
 		}
-		pj.g = make([]float64, Bv*N)
+		pj.g = make([]float64, Bv*min(N, neuronBlock))
 		pj.ssRes = make([]float64, N)
 		pj.r2 = make([]float64, N)
 		pj.hv = make([]float64, Bv*F)
@@ -252,8 +232,44 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 	pj.x = make([]float64, Bt*Bt)
 	pj.m = make([]float64, Bt*Bt)
 	pj.dH = make([]float64, B*F)
-	pj.nconv = len(net.Params) - N*F - N
+	pj.nconv = len(net.Params) - net.Neurons*F - net.Neurons
 	return pj, nil
+}
+
+// neuronBlock is the number of neurons of the passes over all neurons
+// that go block by block (the validation R^2, the readout), so that their
+// scratch is B x neuronBlock rather than B x N.
+const neuronBlock = 4096
+
+// cols wraps columns [c0, c0+nc) of a row-major r x c slice as a
+// blas64.General.
+func cols(v []float64, r, c, c0, nc int) blas64.General {
+	return blas64.General{Rows: r, Cols: nc, Stride: c, Data: v[c0 : (r-1)*c+c0+nc]}
+}
+
+// sumOverNeurons writes dst = a b^T (m x n), a sum over the N neurons,
+// with a (m x N) and b (n x N): by chunks of neuronBlock neurons on up to
+// GOMAXPROCS goroutines (a product with a long inner dimension and a small
+// result runs on one core in Gemm), the chunks' products added in chunk
+// order, so the result does not depend on the number of cores. At most
+// one chunk: Gemm itself.
+func sumOverNeurons(dst, a, b []float64, m, n, N int) {
+	nch := (N + neuronBlock - 1) / neuronBlock
+	if nch <= 1 {
+		blas64.Gemm(blas.NoTrans, blas.Trans, 1, gen(a, m, N), gen(b, n, N), 0, gen(dst, m, n))
+		return
+	}
+	part := make([]float64, nch*m*n)
+	parallelBlocks(N, func(n0, n1 int) {
+		c := n0 / neuronBlock
+		blas64.Gemm(blas.NoTrans, blas.Trans, 1, cols(a, m, N, n0, n1-n0), cols(b, n, N, n0, n1-n0), 0, gen(part[c*m*n:(c+1)*m*n], m, n))
+	})
+	copy(dst, part[:m*n])
+	for c := 1; c < nch; c++ {
+		for i, v := range part[c*m*n : (c+1)*m*n] {
+			dst[i] += v
+		}
+	}
 }
 
 // gen wraps a row-major r x c slice as a blas64.General.
@@ -288,16 +304,17 @@ func (pj *projector) features(net *nn.Net) []float64 {
 	return h
 }
 
-// factor forms K = A A^T + mu I and its Cholesky factor. It returns false
+// factor forms A A^T (kept in pj.k) and the Cholesky factor of K = A A^T
+// + mu I. It returns false
 // if K is not numerically positive definite (only possible with NaN or Inf
 // features).
 func (pj *projector) factor() (blas64.Triangular, bool) {
 	Bt, F := pj.Bt, pj.F
 	mulABt(pj.k, pj.a, pj.a, Bt, Bt, F, true)
-	for i := 0; i < Bt; i++ {
-		pj.k[i*Bt+i] += pj.mu
-	}
 	copy(pj.l, pj.k)
+	for i := 0; i < Bt; i++ {
+		pj.l[i*Bt+i] += pj.mu
+	}
 	return lapack64.Potrf(blas64.Symmetric{Uplo: blas.Lower, N: Bt, Stride: Bt, Data: pj.l})
 }
 
@@ -354,6 +371,9 @@ func solveRight(l blas64.Triangular, b blas64.General) {
 // overwrites the conv gradients in net.Grads with dJ/dtheta (the readout
 // part of net.Grads is not touched). It allocates nothing.
 func (pj *projector) eval(net *nn.Net, grad, r2 bool) error {
+	if pj.spent {
+		panic("train: projected solver evaluated after ReadoutBlocks took over its statistics")
+	}
 	Bt, F, N := pj.Bt, pj.F, float64(pj.N)
 	h := pj.features(net)
 	l, ok := pj.factor()
@@ -396,14 +416,8 @@ func (pj *projector) eval(net *nn.Net, grad, r2 bool) error {
 		return nil
 	}
 	Bv := pj.Bv
-	for r, b := range pj.vrows {
-		hv := pj.hv[r*F : (r+1)*F]
-		for f, v := range h[b*F : (b+1)*F] {
-			hv[f] = v - pj.hbar[f]
-		}
-	}
+	pj.valProjection(h)
 	rk := gen(pj.rk, Bv, Bt)
-	mulABt(pj.rk, pj.hv, pj.a, Bv, Bt, F, false)
 	solveRight(l, rk)
 	mulAB(pj.t, pj.rk, pj.S, Bv, Bt, Bt)
 	sum := pj.withinV
@@ -423,6 +437,36 @@ func (pj *projector) eval(net *nn.Net, grad, r2 bool) error {
 	return nil
 }
 
+// valProjection writes P = (Hv - 1 hbar^T) A^T (Bv x Bt) into pj.rk, for
+// the features h of the last factor. A validation bin that is training
+// row c has A_c = sqrt(N_c) (h_c - hbar), so its row of P is row c of
+// A A^T (pj.k) divided by sqrt(N_c) [derived]; only bins without training
+// trials take the product with A (F multiply-adds per entry).
+func (pj *projector) valProjection(h []float64) {
+	Bt, F := pj.Bt, pj.F
+	for r, b := range pj.vrows {
+		row := pj.rk[r*Bt : (r+1)*Bt]
+		if c := pj.trainRow[b]; c >= 0 {
+			inv := 1 / pj.sq[c]
+			for j, v := range pj.k[c*Bt : (c+1)*Bt] {
+				row[j] = v * inv
+			}
+			continue
+		}
+		hv := pj.hv[r*F : (r+1)*F]
+		for f, v := range h[b*F : (b+1)*F] {
+			hv[f] = v - pj.hbar[f]
+		}
+		for j := range row {
+			var d float64
+			for f, a := range pj.a[j*F : (j+1)*F] {
+				d += hv[f] * a
+			}
+			row[j] = d
+		}
+	}
+}
+
 // valR2 returns the median over neurons of the validation R^2 of the
 // closed-form readout, from pj.rk of the last eval: the centred
 // validation prediction is G = Rk D^1/2 Yc (Bv x N) and the residual sum of
@@ -434,15 +478,20 @@ func (pj *projector) valR2() float64 {
 			pj.t[r*Bt+c] = pj.rk[r*Bt+c] * pj.sq[c]
 		}
 	}
-	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(pj.t, Bv, Bt), gen(pj.yc, Bt, N), 0, gen(pj.g, Bv, N))
 	copy(pj.ssRes, pj.withN)
-	for r := 0; r < Bv; r++ {
-		w := pj.nv[r]
-		g, d := pj.g[r*N:(r+1)*N], pj.dv[r*N:(r+1)*N]
-		ss := pj.ssRes[:len(g)]
-		for n, v := range g {
-			e := d[n] - v
-			ss[n] += w * e * e
+	// G by blocks of neurons: scratch of Bv x neuronBlock, not Bv x N.
+	for n0 := 0; n0 < N; n0 += neuronBlock {
+		nb := min(neuronBlock, N-n0)
+		gb := pj.g[:Bv*nb]
+		blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(pj.t, Bv, Bt), cols(pj.yc, Bt, N, n0, nb), 0, gen(gb, Bv, nb))
+		for r := 0; r < Bv; r++ {
+			w := pj.nv[r]
+			g, d := gb[r*nb:(r+1)*nb], pj.dv[r*N+n0:r*N+n0+nb]
+			ss := pj.ssRes[n0 : n0+nb]
+			for n, v := range g {
+				e := d[n] - v
+				ss[n] += w * e * e
+			}
 		}
 	}
 	k := 0
@@ -616,7 +665,37 @@ func (s *MSE) Readout() ([]float64, error) {
 // predictions of every bin (as Readout) and each neuron's penalty in
 // model.readout_l2 units.
 func (s *MSE) AutoReadout(perNeuron bool) (curves, l2 []float64, err error) {
-	return s.pj.autoReadout(&s.pr, s.net, perNeuron)
+	curves, l2, weights, err := s.pj.autoReadoutTo(&s.pr, s.net, perNeuron, s.net.ReadB())
+	if err != nil {
+		return nil, nil, err
+	}
+	weights(s.net.ReadW(), 0, s.pj.N)
+	return curves, l2, nil
+}
+
+// ReadoutBlocks is the readout of Readout (auto false: the problem's
+// penalty) or of AutoReadout (auto true) without writing it into the net,
+// which may then have any number of neurons (one, for a fit from
+// PartStats): it returns the per-bin predictions, each neuron's penalty
+// in model.readout_l2 units (nil unless auto), the readout bias and the
+// weights as a function: weights(dst, n0, n1) writes those of neurons
+// [n0, n1) into dst ((n1-n0) x F, row-major, as in a net's ReadW),
+// computing them again on every call, so that the N x F weights of a
+// million neurons (3.8 GB) need never be held at once. weights keeps B x
+// N values of the solver alive. With a Problem of PartStats the readout
+// takes over their Sum arrays (the curves are returned in ValParts.Sum
+// when it has B x N values) and the solver cannot be evaluated after it
+// (it panics). The arithmetic is that of AutoReadout (by
+// the eigendecomposition of A A^T), not Readout's Cholesky solve: with a
+// fixed penalty the two agree to rounding.
+func (s *MSE) ReadoutBlocks(auto, perNeuron bool) (curves, l2, bias []float64, weights func(dst []float64, n0, n1 int), err error) {
+	bias = make([]float64, s.pj.N)
+	if auto {
+		curves, l2, weights, err = s.pj.autoReadoutTo(&s.pr, s.net, perNeuron, bias)
+		return curves, l2, bias, weights, err
+	}
+	curves, weights, err = s.pj.fixedReadout(s.net, bias)
+	return curves, nil, bias, weights, err
 }
 
 // Eval is the state of the projected objective at some filters.

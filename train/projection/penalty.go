@@ -3,6 +3,8 @@ package projection
 import (
 	"fmt"
 	"math"
+	"runtime"
+	"sync"
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
@@ -67,6 +69,7 @@ func l2Grid() []float64 {
 // Bt x Bt for u and su, Bv x Bt for pu and cu, Bt x N for z.
 type ridgePath struct {
 	tau, mu []float64 // grid, relative and absolute (the projector's mu units)
+	fixed   float64   // > 0: the one penalty (mu units) of fixedReadout, not a grid
 	scale   float64   // tr(A A^T) / Bt
 	s, u    []float64 // eigenvalues (ascending) and eigenvectors (columns)
 	pu, cu  []float64
@@ -102,12 +105,20 @@ func (rp *ridgePath) decompose(pj *projector, net *nn.Net) error {
 	for i := 0; i < Bt; i++ {
 		tr += rp.u[i*Bt+i]
 	}
-	if !(tr > 0) || math.IsInf(tr, 0) {
+	switch {
+	case rp.fixed > 0 && (math.IsNaN(tr) || math.IsInf(tr, 0)):
+		return fmt.Errorf("train: projected solver: the features are not finite")
+	case rp.fixed > 0:
+		// A fixed penalty: zero features (dead filters) give the readout
+		// of the means alone, as the Cholesky solve of K = mu I does.
+		rp.mu[0] = rp.fixed
+	case !(tr > 0) || math.IsInf(tr, 0):
 		return fmt.Errorf("train: readout penalty: the features are zero or not finite")
-	}
-	rp.scale = tr / float64(Bt)
-	for g, t := range rp.tau {
-		rp.mu[g] = t * rp.scale
+	default:
+		rp.scale = tr / float64(Bt)
+		for g, t := range rp.tau {
+			rp.mu[g] = t * rp.scale
+		}
 	}
 	if !lapack64.Syev(lapack.EVCompute, blas64.Symmetric{Uplo: blas.Upper, N: Bt, Stride: Bt, Data: rp.u}, rp.s, rp.work, len(rp.work)) {
 		return fmt.Errorf("train: readout penalty: the eigendecomposition did not converge")
@@ -203,21 +214,35 @@ func argmin(x []float64) int {
 	return k
 }
 
-// zeta computes z = U^T D^1/2 Yc (Bt x N) once per decomposition.
+// zeta computes z = U^T D^1/2 Yc (Bt x N) once per decomposition, by
+// blocks of neurons (scratch Bt x neuronBlock).
 func (rp *ridgePath) zeta(pj *projector) []float64 {
 	if rp.z != nil {
 		return rp.z
 	}
 	Bt, N := pj.Bt, pj.N
-	sy := make([]float64, Bt*N)
-	for r := 0; r < Bt; r++ {
-		s := pj.sq[r]
-		for n, v := range pj.yc[r*N : (r+1)*N] {
-			sy[r*N+n] = s * v
-		}
+	sy := make([]float64, Bt*min(N, neuronBlock))
+	if pj.consume {
+		// In yc's own storage: each block of yc is copied to sy before
+		// z's block overwrites it.
+		rp.z, pj.yc, pj.spent = pj.yc, nil, true
+	} else {
+		rp.z = make([]float64, Bt*N)
 	}
-	rp.z = make([]float64, Bt*N)
-	blas64.Gemm(blas.Trans, blas.NoTrans, 1, gen(rp.u, Bt, Bt), gen(sy, Bt, N), 0, gen(rp.z, Bt, N))
+	yc := rp.z
+	if !pj.consume {
+		yc = pj.yc
+	}
+	for n0 := 0; n0 < N; n0 += neuronBlock {
+		nb := min(neuronBlock, N-n0)
+		for r := 0; r < Bt; r++ {
+			s := pj.sq[r]
+			for n, v := range yc[r*N+n0 : r*N+n0+nb] {
+				sy[r*nb+n] = s * v
+			}
+		}
+		blas64.Gemm(blas.Trans, blas.NoTrans, 1, gen(rp.u, Bt, Bt), gen(sy[:Bt*nb], Bt, nb), 0, cols(rp.z, Bt, N, n0, nb))
+	}
 	return rp.z
 }
 
@@ -270,79 +295,156 @@ func (rp *ridgePath) perNeuronSURE(pj *projector, withinN []float64) []int {
 	z := rp.zeta(pj)
 	pick := make([]int, N)
 	dfs := make([]float64, len(rp.mu))
+	// coef[g*Bt+j] = mu_g / (s_j + mu_g): no division per neuron.
+	coef := make([]float64, len(rp.mu)*Bt)
 	for g, mu := range rp.mu {
-		for _, s := range rp.s {
+		for j, s := range rp.s {
 			dfs[g] += s / (s + mu)
+			coef[g*Bt+j] = mu / (s + mu)
 		}
 	}
-	for n := 0; n < N; n++ {
-		sigma2 := withinN[n] / math.Max(pj.W-float64(Bt), 1)
-		best := math.Inf(1)
-		for g, mu := range rp.mu {
-			var res float64
-			for j, s := range rp.s {
-				q := mu / (s + mu) * z[j*N+n]
-				res += q * q
+	// Each neuron is done by one goroutine, so the choice does not depend
+	// on the number of cores. For each grid value the risks of a block of
+	// neurons are summed over j in ascending order, as one neuron's alone.
+	parallelBlocks(N, func(n0, n1 int) {
+		nb := n1 - n0
+		res := make([]float64, nb)
+		best := make([]float64, nb)
+		sigma2 := make([]float64, nb)
+		for n := range best {
+			best[n] = math.Inf(1)
+			sigma2[n] = withinN[n0+n] / math.Max(pj.W-float64(Bt), 1)
+		}
+		for g := range rp.mu {
+			clear(res)
+			for j, c := range coef[g*Bt : (g+1)*Bt] {
+				zr := z[j*N+n0 : j*N+n1]
+				for n, v := range zr {
+					q := c * v
+					res[n] += q * q
+				}
 			}
-			if v := res + 2*sigma2*dfs[g]; v < best {
-				best, pick[n] = v, g
+			for n, r := range res {
+				if v := r + 2*sigma2[n]*dfs[g]; v < best[n] {
+					best[n], pick[n0+n] = v, g
+				}
 			}
 		}
-	}
+	})
 	return pick
 }
 
-// readout writes into the net the closed-form readout with penalty
-// rp.mu[pick[n]] for neuron n (w_n = A^T U diag(1/(s+mu_n)) z_n, c_n =
-// ybar_n - hbar . w_n) and returns the per-bin predictions (B x N, trained
-// units). The features must be those of the last decompose.
-func (rp *ridgePath) readout(pj *projector, net *nn.Net, pick []int) []float64 {
+// readout writes into c (N) the readout bias of the closed-form readout
+// with penalty rp.mu[pick[n]] for neuron n (w_n = A^T U diag(1/(s+mu_n))
+// z_n, c_n = ybar_n - hbar . w_n = ybar_n - (U^T A hbar) . zs_n with zs_n
+// = diag(1/(s+mu_n)) z_n) and returns the per-bin predictions (B x N,
+// trained units) and a function writing the weights of neurons [n0, n1)
+// into dst ((n1-n0) x F; not safe for concurrent use). Everything goes by
+// blocks of neurons, with
+// scratch of (B + F) x neuronBlock. The features must be those of the
+// last decompose.
+func (rp *ridgePath) readout(pj *projector, c []float64, pick []int) (curves []float64, weights func(dst []float64, n0, n1 int)) {
 	B, Bt, F, N := pj.B, pj.Bt, pj.F, pj.N
 	z := rp.zeta(pj)
-	zs := make([]float64, Bt*N)
-	for j := 0; j < Bt; j++ {
-		s := rp.s[j]
-		for n := 0; n < N; n++ {
-			zs[j*N+n] = z[j*N+n] / (s + rp.mu[pick[n]])
+	mu, s := rp.mu, rp.s
+	// zsBlock writes zs of neurons [n0, n0+nb) into dst (Bt x nb).
+	zsBlock := func(dst []float64, n0, nb int) {
+		for j := 0; j < Bt; j++ {
+			sj := s[j]
+			row := dst[j*nb : (j+1)*nb]
+			for n, v := range z[j*N+n0 : j*N+n0+nb] {
+				row[n] = v / (sj + mu[pick[n0+n]])
+			}
 		}
 	}
 	// AU = A^T U (F x Bt); W^T = AU zs (F x N).
 	au := make([]float64, F*Bt)
 	blas64.Gemm(blas.Trans, blas.NoTrans, 1, gen(pj.a, Bt, F), gen(rp.u, Bt, Bt), 0, gen(au, F, Bt))
-	wt := make([]float64, F*N)
-	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(au, F, Bt), gen(zs, Bt, N), 0, gen(wt, F, N))
-	w := net.ReadW()
-	for f := 0; f < F; f++ {
-		for n := 0; n < N; n++ {
-			w[n*F+f] = wt[f*N+n]
-		}
-	}
-	c := net.ReadB()
-	for n := 0; n < N; n++ {
-		var s float64
-		for f, hb := range pj.hbar {
-			s += hb * wt[f*N+n]
-		}
-		c[n] = pj.ymean[n] - s
-	}
+	// v = AU^T hbar (Bt): c_n = ybar_n - v . zs_n.
+	v := make([]float64, Bt)
+	blas64.Gemv(blas.Trans, 1, gen(au, F, Bt), blas64.Vector{N: F, Inc: 1, Data: pj.hbar}, 0, blas64.Vector{N: Bt, Inc: 1, Data: v})
 	// Per-bin predictions: (H - 1 hbar^T) W^T + c = ((H - 1 hbar^T) AU) zs + ybar.
 	hc := make([]float64, B*F)
 	for b := 0; b < B; b++ {
-		for f, v := range pj.h[b*F : (b+1)*F] {
-			hc[b*F+f] = v - pj.hbar[f]
+		for f, x := range pj.h[b*F : (b+1)*F] {
+			hc[b*F+f] = x - pj.hbar[f]
 		}
 	}
 	g := make([]float64, B*Bt)
 	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(hc, B, F), gen(au, F, Bt), 0, gen(g, B, Bt))
-	out := make([]float64, B*N)
-	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(g, B, Bt), gen(zs, Bt, N), 0, gen(out, B, N))
-	for b := 0; b < B; b++ {
-		row := out[b*N : (b+1)*N]
-		for n, m := range pj.ymean {
-			row[n] += m
+	ymean := pj.ymean
+	var out []float64
+	if pj.consume && len(pj.valStore) == B*N {
+		// dv is spent: the curves take its storage.
+		out, pj.dv, pj.valStore = pj.valStore, nil, nil
+	} else {
+		out = make([]float64, B*N)
+	}
+	zs := make([]float64, Bt*min(N, neuronBlock))
+	for n0 := 0; n0 < N; n0 += neuronBlock {
+		nb := min(neuronBlock, N-n0)
+		zb := zs[:Bt*nb]
+		zsBlock(zb, n0, nb)
+		for n := 0; n < nb; n++ {
+			var t float64
+			for j, x := range v {
+				t += x * zb[j*nb+n]
+			}
+			c[n0+n] = ymean[n0+n] - t
+		}
+		blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(g, B, Bt), gen(zb, Bt, nb), 0, cols(out, B, N, n0, nb))
+		for b := 0; b < B; b++ {
+			row := out[b*N+n0 : b*N+n0+nb]
+			for n, m := range ymean[n0 : n0+nb] {
+				row[n] += m
+			}
 		}
 	}
-	return out
+	// The weights function reuses one scratch of (Bt + F) x neuronBlock:
+	// it is not safe for concurrent use.
+	var zb, wt []float64
+	weights = func(dst []float64, n0, n1 int) {
+		if n0 < 0 || n1 > N || n0 > n1 || len(dst) != (n1-n0)*F {
+			panic(fmt.Sprintf("train: readout weights [%d, %d) of %d neurons into %d values, want (n1-n0) x %d", n0, n1, N, len(dst), F))
+		}
+		if zb == nil {
+			zb = make([]float64, Bt*min(N, neuronBlock))
+			wt = make([]float64, F*min(N, neuronBlock))
+		}
+		for m0 := n0; m0 < n1; m0 += neuronBlock {
+			nb := min(neuronBlock, n1-m0)
+			zsBlock(zb[:Bt*nb], m0, nb)
+			blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(au, F, Bt), gen(zb[:Bt*nb], Bt, nb), 0, gen(wt[:F*nb], F, nb))
+			for f := 0; f < F; f++ {
+				for n, x := range wt[f*nb : (f+1)*nb] {
+					dst[(m0-n0+n)*F+f] = x
+				}
+			}
+		}
+	}
+	return out, weights
+}
+
+// parallelBlocks calls do on the blocks [n0, n1) of neuronBlock neurons
+// that cover [0, N), on up to GOMAXPROCS goroutines, and waits.
+func parallelBlocks(N int, do func(n0, n1 int)) {
+	nblk := (N + neuronBlock - 1) / neuronBlock
+	next := make(chan int, nblk)
+	for i := range nblk {
+		next <- i
+	}
+	close(next)
+	var wg sync.WaitGroup
+	for range min(runtime.GOMAXPROCS(0), nblk) {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for i := range next {
+				do(i*neuronBlock, min((i+1)*neuronBlock, N))
+			}
+		}()
+	}
+	wg.Wait()
 }
 
 // readoutL2 converts a penalty in the projector's units (mu) to the
@@ -351,7 +453,10 @@ func (pj *projector) readoutL2(mu float64) float64 { return 2 * mu / pj.W }
 
 // trainWithinN returns each neuron's within-condition sum of squares over
 // the training trials, in the trainer's units (for perNeuronSURE).
-func trainWithinN(pr *Problem) []float64 {
+func trainWithinN(pr *Problem, pj *projector) []float64 {
+	if pj.withinN != nil {
+		return pj.withinN
+	}
 	st := pr.Train
 	N := st.N
 	out := make([]float64, N)
@@ -372,8 +477,8 @@ func trainWithinN(pr *Problem) []float64 {
 	return out
 }
 
-// autoReadout chooses the readout penalty at the net's current filters and
-// writes the closed-form readout with it into the net. Global: one penalty
+// autoReadoutTo chooses the readout penalty at the net's current filters
+// and computes the closed-form readout with it, its bias into bias (N). Global: one penalty
 // for all neurons, by the validation loss when there are validation trials
 // and by C_p otherwise. Per neuron: each neuron's own C_p (its own
 // within-condition variance; measured better than per-neuron validation
@@ -381,10 +486,10 @@ func trainWithinN(pr *Problem) []float64 {
 // per-bin predictions (B x N, trained units) and the chosen
 // model.readout_l2 of every neuron (all equal unless perNeuron), and
 // leaves pj.mu at the global choice.
-func (pj *projector) autoReadout(pr *Problem, net *nn.Net, perNeuron bool) (curves, l2 []float64, err error) {
+func (pj *projector) autoReadoutTo(pr *Problem, net *nn.Net, perNeuron bool, bias []float64) (curves, l2 []float64, weights func(dst []float64, n0, n1 int), err error) {
 	rp := newRidgePath(pj, nil)
 	if err := rp.decompose(pj, net); err != nil {
-		return nil, nil, err
+		return nil, nil, nil, err
 	}
 	score := make([]float64, len(rp.mu))
 	if pj.Bv > 0 {
@@ -396,17 +501,31 @@ func (pj *projector) autoReadout(pr *Problem, net *nn.Net, perNeuron bool) (curv
 	pj.mu = rp.mu[g]
 	var pick []int
 	if perNeuron {
-		pick = rp.perNeuronSURE(pj, trainWithinN(pr))
+		pick = rp.perNeuronSURE(pj, trainWithinN(pr, pj))
 	} else {
 		pick = make([]int, pj.N)
 		for n := range pick {
 			pick[n] = g
 		}
 	}
-	curves = rp.readout(pj, net, pick)
+	curves, weights = rp.readout(pj, bias, pick)
 	l2 = make([]float64, pj.N)
 	for n, k := range pick {
 		l2[n] = pj.readoutL2(rp.mu[k])
 	}
-	return curves, l2, nil
+	return curves, l2, weights, nil
+}
+
+// fixedReadout computes the closed-form readout at the problem's penalty
+// (pj.mu) by the eigendecomposition of A A^T, its bias into bias (N), and
+// returns the per-bin predictions and the weights function of
+// ridgePath.readout.
+func (pj *projector) fixedReadout(net *nn.Net, bias []float64) (curves []float64, weights func(dst []float64, n0, n1 int), err error) {
+	rp := newRidgePath(pj, []float64{1})
+	rp.fixed = pj.mu
+	if err := rp.decompose(pj, net); err != nil {
+		return nil, nil, err
+	}
+	curves, weights = rp.readout(pj, bias, make([]int, pj.N))
+	return curves, weights, nil
 }

@@ -70,7 +70,15 @@ func TestRidgePath(t *testing.T) {
 		for n := range pick {
 			pick[n] = g
 		}
-		got := rp.readout(pj, net, pick)
+		got, weights := rp.readout(pj, net.ReadB(), pick)
+		clear(net.ReadW())
+		weights(net.ReadW(), 0, pj.N)
+		// Any range of neurons gives the same weights as the whole.
+		part := make([]float64, 7*pj.F)
+		weights(part, 3, 10)
+		if !slices.Equal(part, net.ReadW()[3*pj.F:10*pj.F]) {
+			t.Errorf("tau %g: the weights of neurons [3, 10) differ from those of all neurons", rp.tau[g])
+		}
 		for _, c := range []struct {
 			name      string
 			got, want []float64
@@ -82,6 +90,53 @@ func TestRidgePath(t *testing.T) {
 			}
 			if d > 1e-8*math.Max(m, 1) {
 				t.Errorf("tau %g: %s differ by %g (largest %g)", rp.tau[g], c.name, d, m)
+			}
+		}
+	}
+}
+
+// TestReadoutBlocksFixed: the readout of ReadoutBlocks at a fixed penalty
+// (eigendecomposition) equals Readout's (Cholesky solve) to rounding, and
+// with dead filters (zero features) it is the readout of the condition
+// means alone, as the Cholesky solve of K = mu I gives, not an error.
+func TestReadoutBlocksFixed(t *testing.T) {
+	for _, dead := range []bool{false, true} {
+		c, net := synthCase(t, nn.Circular, 0.7)
+		if dead {
+			clear(net.ConvW(0))
+			for i := range net.ConvB(0) {
+				net.ConvB(0)[i] = -1 // ReLU(-1) = 0: every feature is zero
+			}
+		}
+		s, err := NewMSE(c.pr, net)
+		if err != nil {
+			t.Fatal(err)
+		}
+		curves, l2, bias, weights, err := s.ReadoutBlocks(false, false)
+		if err != nil {
+			t.Fatalf("dead %v: %v", dead, err)
+		}
+		if l2 != nil {
+			t.Errorf("dead %v: per-neuron penalties %v for a fixed penalty, want nil", dead, l2[:2])
+		}
+		w := make([]float64, c.N*net.Features())
+		weights(w, 0, c.N)
+		s2, err := NewMSE(c.pr, net)
+		if err != nil {
+			t.Fatal(err)
+		}
+		wantCurves, err := s2.Readout()
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, cmp := range []struct {
+			name      string
+			got, want []float64
+		}{{"curves", curves, wantCurves}, {"bias", bias, net.ReadB()}, {"weights", w, net.ReadW()}} {
+			for i, v := range cmp.want {
+				if math.Abs(cmp.got[i]-v) > 1e-9*math.Max(1, math.Abs(v)) {
+					t.Fatalf("dead %v: %s[%d] = %v, Readout gives %v", dead, cmp.name, i, cmp.got[i], v)
+				}
 			}
 		}
 	}

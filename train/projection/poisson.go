@@ -35,6 +35,7 @@ import (
 //     ||w_n|| = ||beta_n||, H_t w_n = Phi beta_n with Phi = V diag(s)^1/2
 //     (Bt x r). Each neuron is then an (r+1)-dimensional convex problem in
 //     (beta_n, c_n), r <= Bt.
+//
 //   - Newton's method with a backtracking line search solves it, with the
 //     exact Hessian X^T diag(omega) X + 2 mu diag(1,..,1,0), X = [Phi 1],
 //     omega_b = f”(u) (N_b - S_b/(f+eps)) + S_b f'(u)^2/(f+eps)^2 (clipped at
@@ -43,14 +44,26 @@ import (
 //     row space). Neurons are solved in parallel; the work of each neuron
 //     does not depend on the partition, so results do not depend on the
 //     number of cores.
+//
 //   - Envelope theorem: at the per-neuron optima, dJ/dh_b = 1/(W N) sum_n
 //     g_bn w_n with g_bn = f'(u_bn) (N_b - S_bn/(f(u_bn)+eps)), i.e.
 //     dJ/dH_t = G^T Beta Qt / (W N) (G N x Bt, Beta N x r).
 //
-// Cost per epoch: one eigendecomposition of a Bt x Bt matrix and, per
-// neuron and Newton iteration, O(Bt r^2 + r^3) for the Hessian and its
-// Cholesky factor, so O(N Bt^3) per epoch at r = Bt; warm starts keep the
-// iterations to one or two per epoch after the first few.
+//   - Training epochs do not solve the readouts to convergence: the filters
+//     move little per epoch, so each neuron takes inexact Newton steps from
+//     its previous readout (conjugate gradients on the Newton system,
+//     preconditioned by its diagonal; stepNeuron) until one lands in the
+//     region of quadratic convergence, usually the first. The readouts, and
+//     with them the envelope gradient, trail the exact ones by a small
+//     fraction of one epoch's change, and a point where training stops
+//     moving is one of the exact projected objective. The final readout,
+//     Evaluate and the penalty choice solve exactly (eval/methods.md §13).
+//
+// Cost per epoch: one eigendecomposition of a Bt x Bt matrix and products
+// of Bt x F and r x F matrices (independent of N), and per neuron O(Bt r)
+// per conjugate-gradient iteration (about three per epoch) instead of the
+// O(Bt r^2 + r^3) of forming and factoring its Hessian; an exact solve
+// costs the latter per Newton iteration.
 type poissonProj struct {
 	B, Bt, Bv, F, N int
 	rows, vrows     []int
@@ -60,8 +73,14 @@ type poissonProj struct {
 	vsq             []float64 // N: sum of squares over the validation trials
 	valTot          []float64 // N: total sum of squares about the validation mean
 	W, Wv, mu       float64
-	act             nn.Activation
-	nconv           int
+	// skip marks the excluded neurons (N); nTrained is the number of the
+	// others, by which the losses are means.
+	skip     []bool
+	nTrained int
+	// muN, when not nil, is each neuron's penalty in place of mu (N).
+	muN   []float64
+	act   nn.Activation
+	nconv int
 
 	work   *nn.Work
 	eye    []float64
@@ -73,6 +92,7 @@ type poissonProj struct {
 	eigval     []float64 // Bt eigenvalues (ascending)
 	syevWork   []float64
 	phi        []float64 // Bt x (Bt+1), X = [Phi 1], first r+1 columns used (stride Bt+1)
+	phi2       []float64 // Bt x (Bt+1): X o X, element-wise (diag(H) = phi2^T omega + 2 mu)
 	qt, qtOld  []float64 // r x F (capacity Bt x F)
 	rOld       int
 	transfer   []float64 // r x rOld
@@ -80,6 +100,9 @@ type poissonProj struct {
 	hasOld     bool
 	h          []float64 // B x F features of the last eval
 	dH         []float64 // B x F
+	dHt        []float64 // Bt x F: dJ/dH_t
+	vs         []float64 // Bt x Bt: diag(s)^-1/2 V^T
+	hv         []float64 // Bv x F: features of the validation rows
 	gb         []float64 // Bt x r
 	betaTmp    []float64 // N x Bt
 
@@ -87,16 +110,25 @@ type poissonProj struct {
 	// g (N x Bt), the neuron's objective and data loss.
 	beta, c, g  []float64
 	objN, dataN []float64
-	iters       []int     // Newton iterations of each neuron in the last solve
+	iters       []int     // Newton iterations of each neuron in the last solve (0: an inexact step)
+	cgIters     []int     // conjugate-gradient iterations of each neuron's last inexact step
 	uv          []float64 // N x Bv
 	r2          []float64
-	workers     []*psWorker
+	valN        []float64 // N: each neuron's validation loss (sum over trials)
+	// The validation rows of bins with training rows share their u with
+	// those: vOfRow (Bt) is the validation row of training row i (-1:
+	// none), vOnly the validation rows of bins without training rows.
+	// Each solve leaves, per neuron, the validation loss and the sums
+	// f.S and N f^2 of the R^2 over the shared rows in valS, crossS,
+	// quadS (N each), from the f and log f of its final readout.
+	vOfRow, vOnly       []int
+	valS, crossS, quadS []float64
+	workers             []*psWorker
 
 	obj, loss, val, vr2 float64
 	r2Every             int
-	// chord: factor each neuron's Hessian once per eval (set by the
-	// training loop after the first, exact, eval; see solveNeuron).
-	chord bool
+	// mode: how solveAll moves the readouts (psExact, psStart, psStep).
+	mode int
 }
 
 // psRankTol drops eigen-directions of H_t H_t^T below this fraction of the
@@ -115,7 +147,36 @@ const (
 	psNewtonTol  = 1e-13
 	psNewtonFull = 1e-8
 	psMaxNewton  = 100
-	psChordIters = 4
+)
+
+// The inexact steps (stepNeuron): conjugate gradients preconditioned by
+// the Hessian's diagonal stop once the preconditioned residual r.M^-1 r
+// has fallen below psCGTol times its start (the residual norm about ten
+// times smaller) or after psCGMax iterations. A full step is taken when
+// its Newton decrement is at most psStepMaxDec (in units of the neuron's
+// log-likelihood: about the region where Newton's method converges
+// quadratically), a shortened one otherwise.
+const (
+	psCGTol      = 1e-2
+	psCGMax      = 12
+	psStepMaxDec = 1
+)
+
+// Modes of solveAll: exact readouts (Evaluate, the final readout, the
+// penalty choice: solveNeuron to psNewtonTol); the start of training and
+// the penalty grid (inexact steps from the mean-rate start or the previous
+// grid value until the decrement is below psStartTol, at most
+// psStartSteps); a training epoch (inexact steps from the previous epoch's
+// readout until one with a decrement at most psStepMaxDec has been taken
+// in full). A neuron whose inexact steps cannot be taken is solved
+// exactly.
+const (
+	psExact = iota
+	psStart
+	psStep
+
+	psStartSteps = 50
+	psStartTol   = 1e-6
 )
 
 // newPoissonProj reduces a prepared recording to the per-condition spike
@@ -186,6 +247,25 @@ func newPoissonProj(pr *Problem, net *nn.Net) (*poissonProj, error) {
 		pp.phiV = make([]float64, Bv*Bt)
 		pp.uv = make([]float64, N*Bv)
 		pp.r2 = make([]float64, N)
+		pp.valN = make([]float64, N)
+		pp.valS, pp.crossS, pp.quadS = make([]float64, N), make([]float64, N), make([]float64, N)
+		vOf := make(map[int]int, Bv)
+		for j, b := range pp.vrows {
+			vOf[b] = j
+		}
+		pp.vOfRow = make([]int, Bt)
+		for i, b := range pp.rows {
+			pp.vOfRow[i] = -1
+			if j, ok := vOf[b]; ok {
+				pp.vOfRow[i] = j
+				delete(vOf, b)
+			}
+		}
+		for j, b := range pp.vrows {
+			if _, ok := vOf[b]; ok {
+				pp.vOnly = append(pp.vOnly, j)
+			}
+		}
 		pp.r2Every = 1
 	}
 	pp.work = net.NewWork(B)
@@ -203,10 +283,14 @@ func newPoissonProj(pr *Problem, net *nn.Net) (*poissonProj, error) {
 	lapack64.Syev(lapack.EVCompute, blas64.Symmetric{Uplo: blas.Upper, N: Bt, Stride: Bt, Data: pp.evec}, pp.eigval, q[:], -1)
 	pp.syevWork = make([]float64, int(q[0]))
 	pp.phi = make([]float64, Bt*(Bt+1))
+	pp.phi2 = make([]float64, Bt*(Bt+1))
 	pp.qt = make([]float64, Bt*F)
 	pp.qtOld = make([]float64, Bt*F)
 	pp.transfer = make([]float64, Bt*Bt)
 	pp.dH = make([]float64, B*F)
+	pp.dHt = make([]float64, Bt*F)
+	pp.vs = make([]float64, Bt*Bt)
+	pp.hv = make([]float64, pp.Bv*F)
 	pp.gb = make([]float64, Bt*Bt)
 	pp.beta = make([]float64, N*Bt)
 	pp.betaTmp = make([]float64, N*Bt)
@@ -215,6 +299,7 @@ func newPoissonProj(pr *Problem, net *nn.Net) (*poissonProj, error) {
 	pp.objN = make([]float64, N)
 	pp.dataN = make([]float64, N)
 	pp.iters = make([]int, N)
+	pp.cgIters = make([]int, N)
 	// Start every neuron at its mean rate (as initReadout does).
 	for n := range pp.c {
 		var s float64
@@ -223,12 +308,28 @@ func newPoissonProj(pr *Problem, net *nn.Net) (*poissonProj, error) {
 		}
 		pp.c[n] = invLink(net.Output, s/pp.W)
 	}
+	pp.skip = make([]bool, N)
+	for _, n := range pr.Excluded {
+		if n < 0 || n >= N {
+			panic(fmt.Sprintf("projection: excluded neuron %d of %d", n, N))
+		}
+		pp.skip[n] = true
+	}
+	pp.nTrained = N - len(pr.Excluded)
 	pp.nconv = len(net.Params) - N*F - N
 	nw := max(1, min(runtime.GOMAXPROCS(0), (N+63)/64))
 	for range nw {
 		pp.workers = append(pp.workers, newPSWorker(Bt))
 	}
 	return pp, nil
+}
+
+// muOf is neuron n's penalty mu.
+func (pp *poissonProj) muOf(n int) float64 {
+	if pp.muN != nil {
+		return pp.muN[n]
+	}
+	return pp.mu
 }
 
 // invLink returns u with f(u) = max(m, 1e-3).
@@ -258,7 +359,10 @@ func (pp *poissonProj) basis(h []float64) error {
 	for r, b := range pp.rows {
 		copy(ht[r*F:(r+1)*F], h[b*F:(b+1)*F])
 	}
-	mulABt(pp.kmat, ht, ht, Bt, Bt, F, true)
+	blas64.Gemm(blas.NoTrans, blas.Trans, 1,
+		blas64.General{Rows: Bt, Cols: F, Stride: F, Data: ht},
+		blas64.General{Rows: Bt, Cols: F, Stride: F, Data: ht},
+		0, blas64.General{Rows: Bt, Cols: Bt, Stride: Bt, Data: pp.kmat})
 	for _, v := range pp.kmat {
 		if math.IsNaN(v) || math.IsInf(v, 0) {
 			return fmt.Errorf("train: Poisson fast path: the features are not finite")
@@ -286,25 +390,32 @@ func (pp *poissonProj) basis(h []float64) error {
 			row[k] = pp.evec[i*Bt+j] * math.Sqrt(pp.eigval[j])
 		}
 		row[r] = 1
+		for k, v := range row {
+			pp.phi2[i*p1+k] = v * v
+		}
 	}
-	// Qt = diag(s)^-1/2 V^T H_t.
-	for k := 0; k < r; k++ {
-		j := Bt - 1 - k
-		q := pp.qt[k*F : (k+1)*F]
-		clear(q)
-		s := 1 / math.Sqrt(pp.eigval[j])
-		for i := 0; i < Bt; i++ {
-			if v := pp.evec[i*Bt+j] * s; v != 0 {
-				for f, x := range ht[i*F : (i+1)*F] {
-					q[f] += v * x
-				}
+	// Qt = diag(s)^-1/2 V^T H_t, one product of (r x Bt) and (Bt x F).
+	if r > 0 {
+		vs := pp.vs[:r*Bt]
+		for k := 0; k < r; k++ {
+			j := Bt - 1 - k
+			s := 1 / math.Sqrt(pp.eigval[j])
+			for i := 0; i < Bt; i++ {
+				vs[k*Bt+i] = pp.evec[i*Bt+j] * s
 			}
 		}
+		blas64.Gemm(blas.NoTrans, blas.NoTrans, 1,
+			blas64.General{Rows: r, Cols: Bt, Stride: Bt, Data: vs},
+			blas64.General{Rows: Bt, Cols: F, Stride: F, Data: ht},
+			0, blas64.General{Rows: r, Cols: F, Stride: F, Data: pp.qt[:r*F]})
 	}
 	if pp.hasOld && pp.rOld > 0 && r > 0 {
 		// beta_new = (Qt_new Qt_old^T) beta_old for every neuron.
 		ro := pp.rOld
-		mulABt(pp.transfer, pp.qt, pp.qtOld, r, ro, F, false)
+		blas64.Gemm(blas.NoTrans, blas.Trans, 1,
+			blas64.General{Rows: r, Cols: F, Stride: F, Data: pp.qt[:r*F]},
+			blas64.General{Rows: ro, Cols: F, Stride: F, Data: pp.qtOld[:ro*F]},
+			0, blas64.General{Rows: r, Cols: ro, Stride: ro, Data: pp.transfer[:r*ro]})
 		N := pp.N
 		copy(pp.betaTmp, pp.beta)
 		blas64.Gemm(blas.NoTrans, blas.Trans, 1,
@@ -324,11 +435,25 @@ func (pp *poissonProj) basis(h []float64) error {
 // psWorker is the scratch space of one goroutine of the per-neuron solve.
 type psWorker struct {
 	u, xs, hess, step, grad, trial, try []float64
+	// The inexact step's conjugate gradients: omega (Bt), the diagonal,
+	// residual, preconditioned residual, direction and Hessian times
+	// direction (p each).
+	om, diag, res, z, dir, hd []float64
+	// g, xd, xv, un, gn (Bt each): gradient rows, X d, X dir, the trial
+	// point's u (and scratch), its gradient rows.
+	g, xd, xv, un, gn []float64
+	// f, lf: f(u) and log(f(u) + eps) of the final readout's rows; fn,
+	// lfn: those of the trial point (Bt each).
+	f, lf, fn, lfn []float64
 }
 
 func newPSWorker(Bt int) *psWorker {
 	p := Bt + 1
 	return &psWorker{
+		om: make([]float64, Bt), diag: make([]float64, p), res: make([]float64, p),
+		z: make([]float64, p), dir: make([]float64, p), hd: make([]float64, p),
+		g: make([]float64, Bt), xd: make([]float64, Bt), xv: make([]float64, Bt), un: make([]float64, Bt), gn: make([]float64, Bt),
+		f: make([]float64, Bt), lf: make([]float64, Bt), fn: make([]float64, Bt), lfn: make([]float64, Bt),
 		u:  make([]float64, Bt),
 		xs: make([]float64, Bt*p), hess: make([]float64, p*p), step: make([]float64, p),
 		grad: make([]float64, p), trial: make([]float64, p), try: make([]float64, p),
@@ -341,28 +466,22 @@ func linkTerms(a nn.Activation, u float64) (f, d1, d2 float64) {
 		e := math.Exp(u)
 		return e, e, e
 	}
-	s := sigmoid(u)
-	var sp float64
+	// One exponential: e = exp(-|u|), softplus = max(u, 0) + log1p(e),
+	// sigmoid = 1/(1+e) for u >= 0 and e/(1+e) below.
+	e := math.Exp(-math.Abs(u))
+	sp := math.Log1p(e)
+	s := 1 / (1 + e)
 	if u > 0 {
-		sp = u + math.Log1p(math.Exp(-u))
-	} else {
-		sp = math.Log1p(math.Exp(u))
+		sp += u
+	} else if u < 0 {
+		s = e / (1 + e)
 	}
 	return sp, s, s * (1 - s)
 }
 
-// sigmoid returns 1/(1+exp(-z)) without overflow.
-func sigmoid(z float64) float64 {
-	if z >= 0 {
-		return 1 / (1 + math.Exp(-z))
-	}
-	e := math.Exp(z)
-	return e / (1 + e)
-}
-
 // objective returns the neuron's objective and data loss at theta =
 // (beta[:r], c), with u = X theta written into w.u.
-func (pp *poissonProj) objective(w *psWorker, theta []float64, sum []float64) (obj, data float64) {
+func (pp *poissonProj) objective(w *psWorker, theta []float64, sum []float64, mu float64) (obj, data float64) {
 	Bt, r, p1 := pp.Bt, pp.r, pp.Bt+1
 	c := theta[r]
 	for i := 0; i < Bt; i++ {
@@ -386,34 +505,39 @@ func (pp *poissonProj) objective(w *psWorker, theta []float64, sum []float64) (o
 	for _, v := range theta[:r] {
 		pen += v * v
 	}
-	return data + pp.mu*pen, data
+	return data + mu*pen, data
 }
 
-// solveNeuron runs Newton's method on neuron n from its stored readout.
-// With pp.chord (training epochs after the first) the Hessian is factored
-// once, at the warm start, and up to psChordIters steps reuse that factor
-// with fresh gradients (the chord method: linear convergence at a rate
-// that vanishes as the warm start approaches the optimum); otherwise every
-// iteration refactors (quadratic convergence, for exact readouts).
+// solveNeuron runs Newton's method on neuron n from its stored readout
+// until the Newton decrement is below psNewtonTol (1 + |objective|): the
+// exact readout. In the modes psStart and psStep (training) it takes
+// inexact steps instead (stepNeuron) and solves exactly only when they
+// cannot be taken.
 func (pp *poissonProj) solveNeuron(w *psWorker, n int) {
+	switch pp.mode {
+	case psStep:
+		if pp.stepNeuron(w, n, psStartSteps, psStepMaxDec, true) {
+			return
+		}
+	case psStart:
+		if pp.stepNeuron(w, n, psStartSteps, psStartTol, true) {
+			return
+		}
+	}
 	Bt, r, p1 := pp.Bt, pp.r, pp.Bt+1
 	p := r + 1
 	sum := pp.sum[n*Bt : (n+1)*Bt]
+	mu := pp.muOf(n)
 	// x: current parameters (beta[:r], c); step: Newton step; try: the
 	// line search's trial point; xs: sqrt(omega) X, transposed (p x Bt).
 	x := w.trial[:p]
 	copy(x, pp.beta[n*Bt:n*Bt+r])
 	x[r] = pp.c[n]
-	obj, data := pp.objective(w, x, sum)
+	obj, data := pp.objective(w, x, sum, mu)
 	hs := w.hess[:p*p]
-	maxIt := psMaxNewton
-	if pp.chord {
-		maxIt = psChordIters
-	}
 	it := 0
-	for ; it < maxIt; it++ {
-		// Gradient (and, when refactoring, the Hessian) at x; w.u holds X x.
-		refactor := it == 0 || !pp.chord
+	for ; it < psMaxNewton; it++ {
+		// Gradient and Hessian at x; w.u holds X x.
 		grad := w.grad[:p]
 		clear(grad)
 		for i := 0; i < Bt; i++ {
@@ -425,40 +549,36 @@ func (pp *poissonProj) solveNeuron(w *psWorker, n int) {
 			for k, v := range row {
 				grad[k] += gi * v
 			}
-			if refactor {
-				om := d2*(pp.cnt[i]-ratio) + ratio*d1*d1/fe
-				if !(om > 0) {
-					om = 0
-				}
-				sq := math.Sqrt(om)
-				for k, v := range row {
-					w.xs[k*Bt+i] = sq * v
-				}
+			om := d2*(pp.cnt[i]-ratio) + ratio*d1*d1/fe
+			if !(om > 0) {
+				om = 0
+			}
+			sq := math.Sqrt(om)
+			for k, v := range row {
+				w.xs[k*Bt+i] = sq * v
 			}
 		}
 		for k := 0; k < r; k++ {
-			grad[k] += 2 * pp.mu * x[k]
+			grad[k] += 2 * mu * x[k]
 		}
-		if refactor {
-			// Upper triangle of X^T diag(omega) X + 2 mu diag(1..1, 0).
-			var tr float64
-			for k := 0; k < p; k++ {
-				xk := w.xs[k*Bt : (k+1)*Bt]
-				for l := k; l < p; l++ {
-					hs[k*p+l] = floats.Dot(xk, w.xs[l*Bt:(l+1)*Bt])
-				}
-				tr += hs[k*p+k]
+		// Upper triangle of X^T diag(omega) X + 2 mu diag(1..1, 0).
+		var tr float64
+		for k := 0; k < p; k++ {
+			xk := w.xs[k*Bt : (k+1)*Bt]
+			for l := k; l < p; l++ {
+				hs[k*p+l] = floats.Dot(xk, w.xs[l*Bt:(l+1)*Bt])
 			}
-			damp := 1e-14 * (tr/float64(p) + 2*pp.mu)
-			for k := 0; k < p; k++ {
-				hs[k*p+k] += damp
-				if k < r {
-					hs[k*p+k] += 2 * pp.mu
-				}
+			tr += hs[k*p+k]
+		}
+		damp := 1e-14 * (tr/float64(p) + 2*mu)
+		for k := 0; k < p; k++ {
+			hs[k*p+k] += damp
+			if k < r {
+				hs[k*p+k] += 2 * mu
 			}
-			if _, ok := lapack64.Potrf(blas64.Symmetric{Uplo: blas.Upper, N: p, Stride: p, Data: hs}); !ok {
-				break
-			}
+		}
+		if _, ok := lapack64.Potrf(blas64.Symmetric{Uplo: blas.Upper, N: p, Stride: p, Data: hs}); !ok {
+			break
 		}
 		step := w.step[:p]
 		for k := range step {
@@ -478,7 +598,7 @@ func (pp *poissonProj) solveNeuron(w *psWorker, n int) {
 			for k := range step {
 				x[k] += step[k]
 			}
-			obj, data = pp.objective(w, x, sum)
+			obj, data = pp.objective(w, x, sum, mu)
 			if dec <= psNewtonTol*(1+math.Abs(obj)) {
 				it++
 				break
@@ -494,7 +614,7 @@ func (pp *poissonProj) solveNeuron(w *psWorker, n int) {
 			for k := range step {
 				try[k] = x[k] + t*step[k]
 			}
-			newObj, newData = pp.objective(w, try, sum)
+			newObj, newData = pp.objective(w, try, sum, mu)
 			if newObj <= obj-1e-4*t*dec {
 				accepted = true
 				break
@@ -503,7 +623,7 @@ func (pp *poissonProj) solveNeuron(w *psWorker, n int) {
 		}
 		if !accepted {
 			// Restore u at x and stop: no descent at machine precision.
-			pp.objective(w, x, sum)
+			pp.objective(w, x, sum, mu)
 			break
 		}
 		copy(x, w.try[:p])
@@ -513,13 +633,210 @@ func (pp *poissonProj) solveNeuron(w *psWorker, n int) {
 	g := pp.g[n*Bt : (n+1)*Bt]
 	for i := 0; i < Bt; i++ {
 		f, d1, _ := linkTerms(pp.act, w.u[i])
-		g[i] = d1 * (pp.cnt[i] - sum[i]/(f+nn.PoissonEps))
+		fe := f + nn.PoissonEps
+		g[i] = d1 * (pp.cnt[i] - sum[i]/fe)
+		w.f[i], w.lf[i] = f, math.Log(fe)
 	}
+	pp.valShared(n, w.f[:Bt], w.lf[:Bt])
 	copy(pp.beta[n*Bt:n*Bt+r], x[:r])
 	pp.c[n] = x[r]
 	pp.objN[n], pp.dataN[n] = obj, data
 	pp.iters[n] = it
 }
+
+// stepNeuron moves neuron n's readout from its stored value by inexact
+// Newton steps and reports whether it did; if not, nothing is changed. It
+// takes at most maxSteps steps and stops after one whose Newton decrement
+// is at most tol. Each step solves H d = -grad (the exact gradient and
+// Hessian of solveNeuron) approximately by conjugate gradients
+// preconditioned with diag(H), from d = 0, until the preconditioned
+// residual has fallen by psCGTol or after psCGMax iterations; an
+// iteration costs two products with X (O(Bt r)) instead of forming and
+// factoring H (O(Bt r^2 + r^3)). A step whose decrement -grad.d exceeds
+// psStepMaxDec is refused when lineSearch is false (the start is too far
+// from the optimum for a full step) and shortened by backtracking
+// otherwise; a step that does not lower the objective is refused, and so
+// is a first step that cannot be taken. The objective, data loss and
+// gradient rows g of the envelope gradient are those at the final readout
+// (eval/methods.md §13).
+//
+// Between epochs the filters move little, so the warm start is close to
+// the new optimum and one step shrinks the distance to it by a large
+// factor: the readouts, and with them the envelope gradient, trail the
+// exact ones by a small fraction of one epoch's change, and a stationary
+// point of training is one of the exact projected objective. The fit's
+// final readout, the penalty choice and Evaluate always solve exactly.
+func (pp *poissonProj) stepNeuron(w *psWorker, n, maxSteps int, tol float64, lineSearch bool) bool {
+	Bt, r, p1 := pp.Bt, pp.r, pp.Bt+1
+	p := r + 1
+	sum := pp.sum[n*Bt : (n+1)*Bt]
+	mu := pp.muOf(n)
+	X := blas64.General{Rows: Bt, Cols: p, Stride: p1, Data: pp.phi}
+	X2 := blas64.General{Rows: Bt, Cols: p, Stride: p1, Data: pp.phi2}
+	x := w.trial[:p]
+	copy(x, pp.beta[n*Bt:n*Bt+r])
+	x[r] = pp.c[n]
+	grad, diag, om, g := w.grad[:p], w.diag[:p], w.om[:Bt], w.g[:Bt]
+	u, xd, xv, un := w.u[:Bt], w.xd[:Bt], w.xv[:Bt], w.un[:Bt]
+	d, res, z, dir, hd := w.step[:p], w.res[:p], w.z[:p], w.dir[:p], w.hd[:p]
+	var obj, data float64
+	cg, taken := 0, 0
+	for s := 0; s < maxSteps; s++ {
+		// Gradient, omega and diag(H) at x.
+		blas64.Gemv(blas.NoTrans, 1, X, psVec(x), 0, psVec(u))
+		for i, ui := range u {
+			f, d1, d2 := linkTerms(pp.act, ui)
+			fe := f + nn.PoissonEps
+			ratio := sum[i] / fe
+			g[i] = d1 * (pp.cnt[i] - ratio)
+			o := d2*(pp.cnt[i]-ratio) + ratio*d1*d1/fe
+			if !(o > 0) {
+				o = 0
+			}
+			om[i] = o
+		}
+		blas64.Gemv(blas.Trans, 1, X, psVec(g), 0, psVec(grad))
+		blas64.Gemv(blas.Trans, 1, X2, psVec(om), 0, psVec(diag))
+		for k := 0; k < r; k++ {
+			grad[k] += 2 * mu * x[k]
+			diag[k] += 2 * mu
+		}
+		ok := true
+		for _, v := range diag {
+			if !(v > 0) || math.IsInf(v, 0) {
+				ok = false
+			}
+		}
+		if !ok {
+			break
+		}
+		// Preconditioned conjugate gradients on H d = -grad from d = 0;
+		// xd accumulates X d.
+		clear(d)
+		clear(xd)
+		for k, gk := range grad {
+			res[k] = -gk
+			z[k] = -gk / diag[k]
+		}
+		copy(dir, z)
+		rz := floats.Dot(res, z)
+		rz0 := rz
+		for it := 0; it < psCGMax && rz > psCGTol*rz0; it++ {
+			// hd = X^T (omega o (X dir)) + 2 mu (dir[:r], 0).
+			blas64.Gemv(blas.NoTrans, 1, X, psVec(dir), 0, psVec(xv))
+			for i, v := range xv {
+				un[i] = om[i] * v
+			}
+			blas64.Gemv(blas.Trans, 1, X, psVec(un), 0, psVec(hd))
+			for k := 0; k < r; k++ {
+				hd[k] += 2 * mu * dir[k]
+			}
+			dHd := floats.Dot(dir, hd)
+			if !(dHd > 0) {
+				break
+			}
+			alpha := rz / dHd
+			floats.AddScaled(d, alpha, dir)
+			floats.AddScaled(xd, alpha, xv)
+			floats.AddScaled(res, -alpha, hd)
+			for k, v := range res {
+				z[k] = v / diag[k]
+			}
+			rzNew := floats.Dot(res, z)
+			b := rzNew / rz
+			rz = rzNew
+			for k := range dir {
+				dir[k] = z[k] + b*dir[k]
+			}
+			cg++
+		}
+		dec := -floats.Dot(d, grad)
+		if !(dec > 0) || (dec > psStepMaxDec && !lineSearch) {
+			break
+		}
+		// The full step is taken when the slope along it at its end,
+		// phi'(1) with phi(t) = J(x + t d) and phi'(0) = -dec, is at most
+		// dec/2: in the quadratic model phi'(1) = 0, and the trapezoid
+		// estimate of the change, (phi'(1) - dec)/2, is then a decrease of
+		// at least dec/4. Otherwise (and when dec > psStepMaxDec), with
+		// lineSearch, backtracking on the objective (Armijo, factor 1/2).
+		t := 1.0
+		accepted := false
+		var newData, newPen float64
+		if dec <= psStepMaxDec {
+			newData, newPen = pp.trialPoint(w, sum, 1, x, d, r)
+			slope := floats.Dot(w.gn[:Bt], xd)
+			for k := 0; k < r; k++ {
+				slope += 2 * mu * (x[k] + d[k]) * d[k]
+			}
+			accepted = slope <= dec/2
+		}
+		if !accepted && lineSearch {
+			var obj0 float64
+			for i, ui := range u {
+				f, _, _ := linkTerms(pp.act, ui)
+				obj0 += pp.cnt[i]*f - sum[i]*math.Log(f+nn.PoissonEps)
+			}
+			obj0 += mu * floats.Dot(x[:r], x[:r])
+			for ls := 0; ls < 60; ls++ {
+				newData, newPen = pp.trialPoint(w, sum, t, x, d, r)
+				if newData+mu*newPen <= obj0-1e-4*t*dec {
+					accepted = true
+					break
+				}
+				t /= 2
+			}
+		}
+		if !accepted {
+			break
+		}
+		floats.AddScaled(x, t, d)
+		obj, data = newData+mu*newPen, newData
+		copy(u, un)
+		copy(g, w.gn[:Bt])
+		copy(w.f[:Bt], w.fn[:Bt])
+		copy(w.lf[:Bt], w.lfn[:Bt])
+		taken++
+		if dec <= tol {
+			break
+		}
+	}
+	if taken == 0 {
+		return false
+	}
+	copy(pp.g[n*Bt:(n+1)*Bt], g)
+	copy(pp.beta[n*Bt:n*Bt+r], x[:r])
+	pp.c[n] = x[r]
+	pp.objN[n], pp.dataN[n] = obj, data
+	pp.iters[n], pp.cgIters[n] = 0, cg
+	pp.valShared(n, w.f[:Bt], w.lf[:Bt])
+	return true
+}
+
+// trialPoint evaluates the point x + t d of stepNeuron from u = X x and
+// w.xd = X d: it writes u + t X d into w.un and the gradient rows there
+// into w.gn, and returns the data loss and ||beta||^2 of the point.
+func (pp *poissonProj) trialPoint(w *psWorker, sum []float64, t float64, x, d []float64, r int) (data, pen float64) {
+	un, gn, fn, lfn := w.un[:pp.Bt], w.gn[:pp.Bt], w.fn[:pp.Bt], w.lfn[:pp.Bt]
+	for i, ui := range w.u[:pp.Bt] {
+		v := ui + t*w.xd[i]
+		un[i] = v
+		f, d1, _ := linkTerms(pp.act, v)
+		fe := f + nn.PoissonEps
+		lf := math.Log(fe)
+		fn[i], lfn[i] = f, lf
+		data += pp.cnt[i]*f - sum[i]*lf
+		gn[i] = d1 * (pp.cnt[i] - sum[i]/fe)
+	}
+	for k := 0; k < r; k++ {
+		v := x[k] + t*d[k]
+		pen += v * v
+	}
+	return data, pen
+}
+
+// psVec is v as a blas64.Vector.
+func psVec(v []float64) blas64.Vector { return blas64.Vector{N: len(v), Inc: 1, Data: v} }
 
 // cholSolve overwrites b with A^-1 b, where the upper triangle of u
 // (p x p, row-major) holds the Cholesky factor U of A = U^T U.
@@ -549,7 +866,9 @@ func (pp *poissonProj) solveAll() {
 		go func(w *psWorker) {
 			defer wg.Done()
 			for n := lo; n < hi; n++ {
-				pp.solveNeuron(w, n)
+				if !pp.skip[n] {
+					pp.solveNeuron(w, n)
+				}
 			}
 		}(pp.workers[k])
 	}
@@ -574,7 +893,7 @@ func (pp *poissonProj) eval(net *nn.Net, grad, r2 bool) error {
 		obj += pp.objN[n]
 		data += pp.dataN[n]
 	}
-	scale := 1 / (pp.W * float64(N))
+	scale := 1 / (pp.W * float64(max(pp.nTrained, 1)))
 	pp.obj, pp.loss = obj*scale, data*scale
 	r := pp.r
 	if grad {
@@ -584,15 +903,14 @@ func (pp *poissonProj) eval(net *nn.Net, grad, r2 bool) error {
 			blas64.General{Rows: N, Cols: r, Stride: Bt, Data: pp.beta},
 			0, blas64.General{Rows: Bt, Cols: r, Stride: r, Data: pp.gb[:Bt*r]})
 		clear(pp.dH)
-		for i, b := range pp.rows {
-			d := pp.dH[b*F : (b+1)*F]
-			for k, v := range pp.gb[i*r : (i+1)*r] {
-				if v != 0 {
-					s := v * scale
-					for f, q := range pp.qt[k*F : (k+1)*F] {
-						d[f] += s * q
-					}
-				}
+		if r > 0 {
+			dht := pp.dHt[:Bt*F]
+			blas64.Gemm(blas.NoTrans, blas.NoTrans, scale,
+				blas64.General{Rows: Bt, Cols: r, Stride: r, Data: pp.gb[:Bt*r]},
+				blas64.General{Rows: r, Cols: F, Stride: F, Data: pp.qt[:r*F]},
+				0, blas64.General{Rows: Bt, Cols: F, Stride: F, Data: dht})
+			for i, b := range pp.rows {
+				copy(pp.dH[b*F:(b+1)*F], dht[i*F:(i+1)*F])
 			}
 		}
 		clear(net.Grads[:pp.nconv])
@@ -610,43 +928,77 @@ func (pp *poissonProj) eval(net *nn.Net, grad, r2 bool) error {
 	return nil
 }
 
-// valLoss computes the validation loss and, if r2, the median R^2 of the
-// current readouts (h: features of every bin).
-func (pp *poissonProj) valLoss(h []float64, r2 bool) {
-	Bt, Bv, F, N, r := pp.Bt, pp.Bv, pp.F, pp.N, pp.r
-	for i, b := range pp.vrows {
-		hv := h[b*F : (b+1)*F]
-		for k := 0; k < r; k++ {
-			var s float64
-			for f, q := range pp.qt[k*F : (k+1)*F] {
-				s += hv[f] * q
-			}
-			pp.phiV[i*r+k] = s
+// valShared sets neuron n's validation sums over the validation rows that
+// share their bin with a training row, from f(u) and log(f(u) + eps) of
+// its training rows (f, lf, Bt each).
+func (pp *poissonProj) valShared(n int, f, lf []float64) {
+	if pp.Bv == 0 {
+		return
+	}
+	vs := pp.vsum[n*pp.Bv : (n+1)*pp.Bv]
+	var l, cross, quad float64
+	for i, j := range pp.vOfRow {
+		if j >= 0 {
+			l += pp.vcnt[j]*f[i] - vs[j]*lf[i]
+			cross += f[i] * vs[j]
+			quad += pp.vcnt[j] * f[i] * f[i]
 		}
 	}
-	blas64.Gemm(blas.NoTrans, blas.Trans, 1,
-		blas64.General{Rows: N, Cols: r, Stride: Bt, Data: pp.beta},
-		blas64.General{Rows: Bv, Cols: r, Stride: r, Data: pp.phiV[:Bv*r]},
-		0, blas64.General{Rows: N, Cols: Bv, Stride: Bv, Data: pp.uv})
+	pp.valS[n], pp.crossS[n], pp.quadS[n] = l, cross, quad
+}
+
+// valLoss computes the validation loss and, if r2, the median R^2 of the
+// readouts of the last solve (h: features of every bin): the sums over
+// validation rows shared with training rows come from the solve
+// (valShared); the other validation rows (bins without training trials)
+// are predicted here.
+func (pp *poissonProj) valLoss(h []float64, r2 bool) {
+	Bt, Bv, F, N, r := pp.Bt, pp.Bv, pp.F, pp.N, pp.r
+	nv := len(pp.vOnly)
+	if nv > 0 {
+		// PhiV = H_v Qt^T (nv x r) for those rows, one product.
+		hv := pp.hv[:nv*F]
+		for i, j := range pp.vOnly {
+			b := pp.vrows[j]
+			copy(hv[i*F:(i+1)*F], h[b*F:(b+1)*F])
+		}
+		if r > 0 {
+			blas64.Gemm(blas.NoTrans, blas.Trans, 1,
+				blas64.General{Rows: nv, Cols: F, Stride: F, Data: hv},
+				blas64.General{Rows: r, Cols: F, Stride: F, Data: pp.qt[:r*F]},
+				0, blas64.General{Rows: nv, Cols: r, Stride: r, Data: pp.phiV[:nv*r]})
+			blas64.Gemm(blas.NoTrans, blas.Trans, 1,
+				blas64.General{Rows: N, Cols: r, Stride: Bt, Data: pp.beta},
+				blas64.General{Rows: nv, Cols: r, Stride: r, Data: pp.phiV[:nv*r]},
+				0, blas64.General{Rows: N, Cols: nv, Stride: nv, Data: pp.uv[:N*nv]})
+		} else {
+			clear(pp.uv[:N*nv])
+		}
+	}
 	var loss float64
 	k := 0
 	for n := 0; n < N; n++ {
-		uv := pp.uv[n*Bv : (n+1)*Bv]
-		vs := pp.vsum[n*Bv : (n+1)*Bv]
-		var l, cross, quad float64
-		for i, u := range uv {
-			f, _, _ := linkTerms(pp.act, u+pp.c[n])
-			l += pp.vcnt[i]*f - vs[i]*math.Log(f+nn.PoissonEps)
-			cross += f * vs[i]
-			quad += pp.vcnt[i] * f * f
+		if pp.skip[n] {
+			continue
 		}
+		l, cross, quad := pp.valS[n], pp.crossS[n], pp.quadS[n]
+		if nv > 0 {
+			vs := pp.vsum[n*Bv : (n+1)*Bv]
+			for i, j := range pp.vOnly {
+				f, _, _ := linkTerms(pp.act, pp.uv[n*nv+i]+pp.c[n])
+				l += pp.vcnt[j]*f - vs[j]*math.Log(f+nn.PoissonEps)
+				cross += f * vs[j]
+				quad += pp.vcnt[j] * f * f
+			}
+		}
+		pp.valN[n] = l
 		loss += l
 		if r2 && pp.valTot[n] > 0 {
 			pp.r2[k] = 1 - (pp.vsq[n]-2*cross+quad)/pp.valTot[n]
 			k++
 		}
 	}
-	pp.val = loss / (pp.Wv * float64(N))
+	pp.val = loss / (pp.Wv * float64(max(pp.nTrained, 1)))
 	if r2 {
 		pp.vr2 = median(pp.r2[:k])
 	}
@@ -700,7 +1052,7 @@ func NewPoisson(pr Problem, net *nn.Net) (*Poisson, error) {
 // N, counts) and the median validation R^2 (NaN without validation
 // trials).
 func (s *Poisson) Readout() (curves []float64, valR2 float64, err error) {
-	s.pp.chord = false
+	s.pp.mode = psExact
 	if err := s.pp.eval(s.net, false, s.pp.Bv > 0); err != nil {
 		return nil, 0, err
 	}
@@ -712,15 +1064,29 @@ func (s *Poisson) Readout() (curves []float64, valR2 float64, err error) {
 	return s.pp.curves(), valR2, nil
 }
 
+// AutoReadout chooses the readout penalty at the net's current filters on
+// the validation trials (eval/methods.md §12; one for all neurons, or one
+// per neuron), solves the readouts at it exactly, writes them into the net
+// and returns the predictions of every bin (B x N, counts), each neuron's
+// penalty in model.readout_l2 units and the median validation R^2.
+func (s *Poisson) AutoReadout(perNeuron bool) (curves, l2 []float64, valR2 float64, err error) {
+	l2, _, err = s.pp.choosePenalty(s.net, nil, perNeuron)
+	if err != nil {
+		return nil, nil, 0, err
+	}
+	s.pp.readout(s.net)
+	return s.pp.curves(), l2, s.pp.vr2, nil
+}
+
 // Evaluate solves every neuron's readout exactly at the net's current
 // filters and returns the projected objective (as MSE.Evaluate); with
 // grad it writes the filter gradient into the conv part of net.Grads. For
 // checks against other paths to the same numbers.
 func (s *Poisson) Evaluate(grad, r2 bool) (Eval, error) {
-	prev := s.pp.chord
-	s.pp.chord = false
+	prev := s.pp.mode
+	s.pp.mode = psExact
 	err := s.pp.eval(s.net, grad, r2)
-	s.pp.chord = prev
+	s.pp.mode = prev
 	if err != nil {
 		return Eval{}, err
 	}
@@ -758,9 +1124,9 @@ func (s *Poisson) Begin() error {
 		s.loaded = false
 		return nil
 	}
-	s.pp.chord = false
+	s.pp.mode = psStart
 	err := s.pp.eval(s.net, true, false)
-	s.pp.chord = true
+	s.pp.mode = psStep
 	return err
 }
 
@@ -807,7 +1173,7 @@ func (s *Poisson) LoadState(v []float64) error {
 		copy(pp.beta[n*Bt:n*Bt+r], v[n*r:(n+1)*r])
 	}
 	copy(pp.qt, v[N*r:])
-	pp.hasOld, pp.chord, s.loaded = true, true, true
+	pp.hasOld, pp.mode, s.loaded = true, psStep, true
 	return nil
 }
 
@@ -855,33 +1221,48 @@ func (pp *poissonProj) l2Scale() float64 {
 		}
 		hh += pp.cnt[i] * s
 	}
-	for _, v := range pp.sum {
-		total += v
+	for n := 0; n < pp.N; n++ {
+		if !pp.skip[n] {
+			for _, v := range pp.sum[n*pp.Bt : (n+1)*pp.Bt] {
+				total += v
+			}
+		}
 	}
-	return hh / float64(pp.Bt) * total / (pp.W * float64(pp.N))
+	return hh / float64(pp.Bt) * total / (pp.W * float64(max(pp.nTrained, 1)))
 }
 
 // choosePenalty picks, at the net's current filters, the penalty of the
-// grid tau (poissonL2Grid if nil) with the smallest validation loss, by
-// solving every neuron's readout exactly for each value (from the largest
-// penalty down, each solve starting from the previous one). It leaves
-// pp.mu and the readouts at the choice and returns the chosen
-// model.readout_l2 (2 mu / W) and the validation loss of every grid value.
-func (pp *poissonProj) choosePenalty(net *nn.Net, tau []float64) (float64, []float64, error) {
+// grid tau (poissonL2Grid if nil) with the smallest validation loss: one
+// for all neurons, or with perNeuron each neuron's own (each neuron's
+// readout and validation loss depend on its penalty only). It solves
+// every neuron's readout for each value, from the largest penalty down,
+// each solve starting from the previous one (inexact steps with a line
+// search until the Newton decrement is below psStartTol, as at the start
+// of training), then solves the readouts at the choice exactly. It leaves
+// the penalties and the readouts at the choice and returns each neuron's
+// model.readout_l2 (2 mu / W) and the validation loss of every grid value
+// (the population's, per trial and neuron).
+func (pp *poissonProj) choosePenalty(net *nn.Net, tau []float64, perNeuron bool) ([]float64, []float64, error) {
 	if pp.Bv == 0 {
-		return 0, nil, fmt.Errorf("train: the Poisson penalty choice needs validation trials")
+		return nil, nil, fmt.Errorf("train: the Poisson penalty choice needs validation trials")
 	}
 	if tau == nil {
 		tau = poissonL2Grid()
 	}
-	pp.chord = false
+	N := pp.N
+	pp.muN = nil
+	pp.mode = psStart
 	h := pp.features(net)
 	if err := pp.basis(h); err != nil {
-		return 0, nil, err
+		return nil, nil, err
 	}
 	scale := pp.l2Scale()
 	val := make([]float64, len(tau))
 	best, bestMu := math.Inf(1), pp.mu
+	bestN, muN := make([]float64, N), make([]float64, N)
+	for n := range bestN {
+		bestN[n] = math.Inf(1)
+	}
 	for k := len(tau) - 1; k >= 0; k-- {
 		pp.mu = tau[k] * scale
 		pp.solveAll()
@@ -890,10 +1271,27 @@ func (pp *poissonProj) choosePenalty(net *nn.Net, tau []float64) (float64, []flo
 		if pp.val < best {
 			best, bestMu = pp.val, pp.mu
 		}
+		for n, v := range pp.valN {
+			if v < bestN[n] {
+				bestN[n], muN[n] = v, pp.mu
+			}
+		}
 	}
 	pp.mu = bestMu
-	if err := pp.eval(net, false, true); err != nil {
-		return 0, nil, err
+	if perNeuron {
+		pp.muN = muN
+	} else {
+		for n := range muN {
+			muN[n] = bestMu
+		}
 	}
-	return 2 * bestMu / pp.W, val, nil
+	pp.mode = psExact
+	if err := pp.eval(net, false, true); err != nil {
+		return nil, nil, err
+	}
+	l2 := muN
+	for n, m := range l2 {
+		l2[n] = 2 * m / pp.W
+	}
+	return l2, val, nil
 }

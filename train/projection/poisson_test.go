@@ -182,11 +182,12 @@ func TestPoissonCores(t *testing.T) {
 		for range workers {
 			pp.workers = append(pp.workers, newPSWorker(pp.Bt))
 		}
+		pp.mode = psStart
 		for range 3 { // the later evals start from the earlier readouts
 			if err := pp.eval(net, true, false); err != nil {
 				t.Fatal(err)
 			}
-			pp.chord = true
+			pp.mode = psStep
 			net.Params[0] += 0.01
 		}
 		pp.readout(net)
@@ -196,5 +197,183 @@ func TestPoissonCores(t *testing.T) {
 		} else if !slices.Equal(got, ref) {
 			t.Errorf("%d goroutines: parameters or gradient differ from one goroutine's", workers)
 		}
+	}
+}
+
+// TestPoissonInexactSteps checks the inexact Newton steps of the training
+// epochs (stepNeuron) against the exact solve (solveNeuron, itself checked
+// against BFGS above): from the mean-rate start (the psStart mode) they
+// reach the exact readouts; after the filters move by about one training
+// step, one round of the psStep mode lowers every neuron's objective and
+// leaves a small fraction of the distance to the new exact readouts, and
+// repeated rounds reach them. The objective and gradient rows each step
+// reports are those of a direct evaluation at its readout.
+func TestPoissonInexactSteps(t *testing.T) {
+	for _, output := range []nn.Activation{nn.Softplus, nn.Exp} {
+		t.Run(output.String(), func(t *testing.T) {
+			c, net := poissonCase(t, output, 0.05)
+			exact, err := newPoissonProj(&c.pr, net)
+			if err != nil {
+				t.Fatal(err)
+			}
+			pp, err := newPoissonProj(&c.pr, net)
+			if err != nil {
+				t.Fatal(err)
+			}
+			// readouts returns (beta, c) of every neuron, N x (r+1).
+			readouts := func(q *poissonProj) []float64 {
+				var out []float64
+				for n := 0; n < q.N; n++ {
+					out = append(append(out, q.beta[n*q.Bt:n*q.Bt+q.r]...), q.c[n])
+				}
+				return out
+			}
+			dist := func(a, b []float64) float64 {
+				d := slices.Clone(a)
+				for i := range d {
+					d[i] -= b[i]
+				}
+				return maxAbs(d)
+			}
+			// The mean-rate start: the psStart mode against the exact solve
+			// (stopping decrement 1e-6, error of the order of its square
+			// root in the parameters).
+			if err := exact.eval(net, true, false); err != nil {
+				t.Fatal(err)
+			}
+			pp.mode = psStart
+			if err := pp.eval(net, true, false); err != nil {
+				t.Fatal(err)
+			}
+			ref := readouts(exact)
+			if d := dist(readouts(pp), ref); d > 1e-4*maxAbs(ref) {
+				t.Errorf("start: inexact readouts differ from the exact ones by %g (largest %g)", d, maxAbs(ref))
+			}
+			for n := range pp.iters {
+				if pp.iters[n] != 0 {
+					t.Errorf("start: neuron %d was solved exactly, want inexact steps", n)
+				}
+			}
+			// Move the filters as a training step of size 1e-2 would.
+			nc := pp.nconv
+			for i := range net.Params[:nc] {
+				net.Params[i] -= 1e-2 * math.Copysign(1, net.Grads[i])
+			}
+			if err := exact.eval(net, false, false); err != nil {
+				t.Fatal(err)
+			}
+			ref = readouts(exact)
+			// The objective of the previous readouts at the new filters (the
+			// warm start, moved onto the new basis as eval does; the eval
+			// below moves it again, by the identity up to rounding), for the
+			// descent check.
+			start := make([]float64, pp.N)
+			{
+				h := pp.features(net)
+				if err := pp.basis(h); err != nil {
+					t.Fatal(err)
+				}
+				w := pp.workers[0]
+				for n := range start {
+					x := append(slices.Clone(pp.beta[n*pp.Bt:n*pp.Bt+pp.r]), pp.c[n])
+					start[n], _ = pp.objective(w, x, pp.sum[n*pp.Bt:(n+1)*pp.Bt], pp.muOf(n))
+				}
+			}
+			before := dist(readouts(pp), ref)
+			pp.mode = psStep
+			if err := pp.eval(net, true, false); err != nil {
+				t.Fatal(err)
+			}
+			after := dist(readouts(pp), ref)
+			t.Logf("distance to the exact readouts: %g before one round, %g after", before, after)
+			if !(after < 0.1*before) {
+				t.Errorf("one round of steps left %g of a distance %g to the exact readouts, want < 10 %%", after, before)
+			}
+			for n := range start {
+				if pp.objN[n] > start[n] {
+					t.Errorf("neuron %d: objective %.15g after the step, %.15g before", n, pp.objN[n], start[n])
+				}
+				x := append(slices.Clone(pp.beta[n*pp.Bt:n*pp.Bt+pp.r]), pp.c[n])
+				w := pp.workers[0]
+				o, _ := pp.objective(w, x, pp.sum[n*pp.Bt:(n+1)*pp.Bt], pp.muOf(n))
+				if math.Abs(o-pp.objN[n]) > 1e-11*math.Abs(o) {
+					t.Errorf("neuron %d: reported objective %.15g, direct evaluation %.15g", n, pp.objN[n], o)
+				}
+				for i := 0; i < pp.Bt; i++ {
+					f, d1, _ := linkTerms(pp.act, w.u[i])
+					g := d1 * (pp.cnt[i] - pp.sum[n*pp.Bt+i]/(f+nn.PoissonEps))
+					if math.Abs(g-pp.g[n*pp.Bt+i]) > 1e-9*(1+math.Abs(g)) {
+						t.Errorf("neuron %d, row %d: gradient row %g, direct evaluation %g", n, i, pp.g[n*pp.Bt+i], g)
+						break
+					}
+				}
+			}
+			for range 4 {
+				if err := pp.eval(net, true, false); err != nil {
+					t.Fatal(err)
+				}
+			}
+			if d := dist(readouts(pp), ref); d > 1e-6*maxAbs(ref) {
+				t.Errorf("after five rounds the readouts differ from the exact ones by %g (largest %g)", d, maxAbs(ref))
+			}
+		})
+	}
+}
+
+// TestPoissonPenaltyChoice checks choosePenalty: the global choice is the
+// grid value with the smallest validation loss it reports, and the choice
+// per neuron gives every neuron a validation loss no larger than the
+// global choice does (each neuron's readout depends on its penalty only).
+func TestPoissonPenaltyChoice(t *testing.T) {
+	c, net := poissonCase(t, nn.Softplus, 0.05)
+	pp, err := newPoissonProj(&c.pr, net)
+	if err != nil {
+		t.Fatal(err)
+	}
+	tau := []float64{1e-3, 1e-2, 1e-1, 1, 10}
+	l2, val, err := pp.choosePenalty(net, tau, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	k := 0
+	for i, v := range val {
+		if v < val[k] {
+			k = i
+		}
+	}
+	want := 2 * tau[k] * pp.l2Scale() / pp.W
+	for n, v := range l2 {
+		if math.Abs(v-want) > 1e-12*want {
+			t.Fatalf("neuron %d: readout_l2 %g, want the grid's best %g (validation losses %v)", n, v, want, val)
+		}
+	}
+	global := slices.Clone(pp.valN)
+	per, _, err := pp.choosePenalty(net, tau, true)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for n := range per {
+		// Exact solves at the chosen penalties; the grid ran on solves to a
+		// decrement of 1e-6, so allow that much.
+		if pp.valN[n] > global[n]+1e-5 {
+			t.Errorf("neuron %d: validation loss %.10g at its own penalty %g, %.10g at the global %g", n, pp.valN[n], per[n], global[n], want)
+		}
+	}
+}
+
+// TestPoissonStepAllocs: the inexact step of one neuron allocates nothing.
+func TestPoissonStepAllocs(t *testing.T) {
+	c, net := poissonCase(t, nn.Softplus, 0.05)
+	pp, err := newPoissonProj(&c.pr, net)
+	if err != nil {
+		t.Fatal(err)
+	}
+	pp.mode = psStart
+	if err := pp.eval(net, true, false); err != nil {
+		t.Fatal(err)
+	}
+	w := pp.workers[0]
+	if a := testing.AllocsPerRun(20, func() { pp.stepNeuron(w, 0, 1, 0, true) }); a != 0 {
+		t.Errorf("stepNeuron allocates %v times per call, want 0", a)
 	}
 }

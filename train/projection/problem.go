@@ -15,19 +15,45 @@ type Problem struct {
 	// neurons) of the training and validation trials, in the recording's
 	// units; Val may be nil or hold no trials (no validation).
 	Train, Val *condstats.Stats
+	// TrainParts and ValParts, when TrainParts is not nil, take the place
+	// of Train and Val: the statistics of one pass over a recording
+	// (condstats.AccumulateParts; ValParts may be nil or hold no trials).
+	// The solver keeps its centred condition means in their Sum arrays,
+	// which it overwrites: at a million neurons that saves a B x N copy
+	// of each.
+	TrainParts, ValParts *condstats.PartStats
 	// Norm z-scores the responses (nil: none); the solvers work in the
 	// z-scored units and return predictions in them.
 	Norm *condstats.Normalizer
 	// Penalty is model.readout_l2, the ridge penalty the filters train
 	// with (> 0).
 	Penalty float64
+	// Excluded are neurons that take no part in training (constant ones:
+	// train's Report.Constant), in increasing order; the Poisson fast path
+	// gives them a zero readout at their mean rate and leaves them out of
+	// its losses, as the adam path does. The MSE solver does not read it.
+	Excluded []int
 	// NeuronName and BinLabel name a neuron and a condition in errors
 	// (nil: by index).
 	NeuronName func(n int) string
 	BinLabel   func(b int) string
 }
 
-func (pr *Problem) hasVal() bool { return pr.Val != nil && trials(pr.Val) > 0 }
+func (pr *Problem) hasVal() bool {
+	if pr.TrainParts != nil {
+		return pr.ValParts != nil && pr.ValParts.Trials > 0
+	}
+	return pr.Val != nil && trials(pr.Val) > 0
+}
+
+// dims returns the numbers of conditions and neurons and the training
+// trials per condition.
+func (pr *Problem) dims() (B, N int, count []int) {
+	if pr.TrainParts != nil {
+		return pr.TrainParts.B, pr.TrainParts.N, pr.TrainParts.Count
+	}
+	return pr.Train.B, pr.Train.N, pr.Train.Count
+}
 
 func (pr *Problem) neuronName(n int) string {
 	if pr.NeuronName != nil {

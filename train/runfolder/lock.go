@@ -267,6 +267,7 @@ var striaNames = map[string]bool{
 	FileSettings: true, FileManifest: true, FileFilters: true, FileNeuronScores: true, FileSummary: true,
 	FileHistory: true, FileSplit: true, FileResume: true, DirParameters: true, DirFigures: true, FileReport: true, FileStateTerms: true,
 	FileComplete: true, FileLock: true, oldSettings: true, FileComparison: true, FilePerRecording: true, DirFoldResults: true,
+	DirArrayTasks: true,
 	// The comparison folder's names (the File and Dir constants of
 	// train/runfolder/comparefolder; its tests check they are all here).
 	"fold_scores.csv": true, "fold_averages.csv": true, "model_summary.csv": true, "model_pairs.csv": true,

@@ -219,8 +219,25 @@ type Summary struct {
 	ReadoutL2 PenaltyInfo `json:"readout_l2"`
 	Cautions  []string    `json:"cautions"`
 	Warnings  []string    `json:"warnings"`
+	// Responses says how the fit read the responses: "streamed" (one
+	// pass over the .npy file, statistics per condition kept), "loaded"
+	// (held in memory, fitted from their statistics per condition) or
+	// "trials" (every trial's responses held in memory). See
+	// train.Streamable.
+	Responses string `json:"responses,omitempty"`
 	// State is the state terms' block (state.go); nil without them.
 	State *StateSummary `json:"state,omitempty"`
+}
+
+// ResponsesPath is Summary.Responses of a prepared recording.
+func ResponsesPath(p *train.Prepared) string {
+	switch {
+	case p.Parts != nil && p.Rec.Y == nil:
+		return "streamed"
+	case p.Parts != nil:
+		return "loaded"
+	}
+	return "trials"
 }
 
 // ScoreColumns are the per-neuron score columns of neuron_scores.csv and
@@ -516,10 +533,11 @@ func WriteModel(dir string, p *train.Prepared, f *train.Fitted) error {
 		return err
 	}
 	net := f.Net
+	N := p.Neurons() // net has one neuron when f.Weights is set
 	m := Manifest{
 		Format: FormatRun, Stria: Version, Go: runtime.Version(), Created: time.Now().UTC().Format(time.RFC3339),
 		Seed: p.Cfg.Seed, Output: p.Cfg.Model.Output, Loss: p.Cfg.Model.Loss,
-		Neurons: net.Neurons, Features: net.Features(), Arrays: map[string]Array{}, ZScore: p.Norm != nil,
+		Neurons: N, Features: net.Features(), Arrays: map[string]Array{}, ZScore: p.Norm != nil,
 		Names:   p.Rec.Neurons,
 		Trials:  map[string]int{"train": len(p.Train), "validation": len(p.Val), "test": len(p.Test)},
 		Sources: map[string]string{"responses": p.Rec.Source.Responses, "stimulus": p.Rec.Source.Stimulus},
@@ -536,22 +554,24 @@ func WriteModel(dir string, p *train.Prepared, f *train.Fitted) error {
 		}
 		in = c.Out
 	}
-	if err := saveArray(dir, &m, "readout_weight", []int{net.Neurons, net.Features()}, net.ReadW()); err != nil {
+	rel := filepath.Join(DirParameters, "readout_weight.npy")
+	m.Arrays["readout_weight"] = Array{File: filepath.ToSlash(rel), Shape: []int{N, net.Features()}}
+	if err := format.WriteNPY64Rows(filepath.Join(dir, rel), N, net.Features(), f.ReadoutWeights); err != nil {
 		return err
 	}
-	if err := saveArray(dir, &m, "readout_bias", []int{net.Neurons}, net.ReadB()); err != nil {
+	if err := saveArray(dir, &m, "readout_bias", []int{N}, f.ReadoutBias()); err != nil {
 		return err
 	}
 	if p.Norm != nil {
-		if err := saveArray(dir, &m, "norm_mean", []int{net.Neurons}, p.Norm.Mean); err != nil {
+		if err := saveArray(dir, &m, "norm_mean", []int{N}, p.Norm.Mean); err != nil {
 			return err
 		}
-		if err := saveArray(dir, &m, "norm_scale", []int{net.Neurons}, p.Norm.Scale); err != nil {
+		if err := saveArray(dir, &m, "norm_scale", []int{N}, p.Norm.Scale); err != nil {
 			return err
 		}
 	}
 	if f.ReadoutL2 != nil {
-		if err := saveArray(dir, &m, "readout_l2", []int{net.Neurons}, f.ReadoutL2); err != nil {
+		if err := saveArray(dir, &m, "readout_l2", []int{N}, f.ReadoutL2); err != nil {
 			return err
 		}
 	}
@@ -587,6 +607,7 @@ func WriteResults(dir string, p *train.Prepared, f *train.Fitted, scores []eval.
 	sum.Solver = f.Solver.String()
 	sum.ReadoutL2 = penaltyInfo(p.Cfg.Model.ReadoutL2, f.ReadoutL2)
 	sum.Warnings = p.Report.Warnings
+	sum.Responses = ResponsesPath(p)
 	if err := WriteJSON(filepath.Join(dir, FileSummary), sum); err != nil {
 		return nil, err
 	}

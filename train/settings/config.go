@@ -136,8 +136,8 @@ type TrainConfig struct {
 	// reference) or projected (for fixed filters the best readout of every
 	// neuron, the filters optimised on the resulting projected loss;
 	// one-hot input, full batch; MSE with identity output: closed-form
-	// ridge readout; Poisson with softplus or exp output, on request only:
-	// per-neuron Newton readout).
+	// ridge readout; Poisson with softplus or exp output: per-neuron
+	// Newton readout, the Poisson fast path).
 	Solver Solver `yaml:"solver"`
 }
 
@@ -373,8 +373,10 @@ func (c *Config) projectable() bool {
 
 // poissonProjectable reports whether train.solver projected can fit the
 // model with the Poisson fast path: Poisson loss with a softplus or exp
-// output on one-hot input, full batch. Solver auto does not choose it
-// (an epoch costs O(N B^3), more than an adam epoch at the usual sizes).
+// output on one-hot input, full batch. Solver auto chooses it: on
+// BenchmarkPoissonSolvers it closed twice adam's share of the gap to the
+// noise-free means and reached adam's best validation loss in under half
+// adam's time.
 func (c *Config) poissonProjectable() bool {
 	m, t := c.Model, c.Train
 	return m.Loss == Poisson && (m.Output == nn.Softplus || m.Output == nn.Exp) && c.Axis.Encoding == OneHot && t.BatchSize == 0
@@ -386,7 +388,7 @@ func (c *Config) SolverToRun() Solver {
 	if c.Train.Solver != SolverAuto {
 		return c.Train.Solver
 	}
-	if c.projectable() {
+	if c.projectable() || c.poissonProjectable() {
 		return SolverProjected
 	}
 	return SolverAdam

@@ -1,0 +1,315 @@
+package main
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"runtime"
+	"slices"
+	"strings"
+
+	"github.com/urfave/cli/v2"
+
+	"github.com/strialab/stria/data"
+	"github.com/strialab/stria/data/condstats"
+	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/compare"
+	"github.com/strialab/stria/train/runfolder"
+	"github.com/strialab/stria/train/settings"
+)
+
+// A fit spread over a job array has two stages (stria help large):
+//
+//  1. stria fit --array-task I --array-task-count N: each array task passes
+//     once over its range of neurons (train.NeuronRange) of the .npy
+//     responses and writes their statistics, with the fingerprint of its
+//     settings and data, into the run folder (runfolder.WriteArrayStats).
+//  2. stria gather FOLDER: checks that every task finished with the same
+//     settings and data, joins the statistics neuron range by neuron range
+//     (bitwise those of one pass over all neurons), fits the filters and
+//     the readouts and writes the run folder exactly as stria fit on one
+//     machine does, then removes the tasks' statistics and writes
+//     complete.json last.
+
+// fitArrayTaskOf reads --array-task and --array-task-count, or Slurm's
+// job-array environment (saying so on stderr); 0, 0: not an array task.
+func fitArrayTaskOf(c *cli.Context, getenv func(string) string) (i, n int, err error) {
+	given, count := c.IsSet("array-task"), c.IsSet("array-task-count")
+	if given != count {
+		return 0, 0, fmt.Errorf("fit: give both --array-task and --array-task-count (or neither)")
+	}
+	if given {
+		i, n = c.Int("array-task"), c.Int("array-task-count")
+		return i, n, compare.CheckArrayTask(i, n)
+	}
+	i, n, ok, err := compare.ArrayTaskFromEnv(getenv)
+	if err != nil || !ok {
+		return 0, 0, err
+	}
+	fmt.Fprintf(c.App.ErrWriter, "fit: array task %d of %d, from %s=%s, %s=%s and %s=%s (give --array-task and --array-task-count to override)\n",
+		i, n, compare.EnvTaskID, getenv(compare.EnvTaskID), compare.EnvTaskMin, getenv(compare.EnvTaskMin), compare.EnvTaskCount, getenv(compare.EnvTaskCount))
+	return i, n, nil
+}
+
+// checkArrayFit refuses a config whose fit cannot be spread over array
+// tasks: a model that needs every trial, or responses that are not .npy.
+func checkArrayFit(cfg *settings.Config) error {
+	if why := train.Streamable(cfg); why != "" {
+		return fmt.Errorf("fit: array tasks fit from statistics per condition, but %s; run stria fit without array tasks", why)
+	}
+	if !strings.EqualFold(filepath.Ext(cfg.Data.Responses), ".npy") {
+		return fmt.Errorf("fit: array tasks read ranges of neurons of a .npy responses file; %s is not one (convert it, or run stria fit without array tasks)", cfg.Data.Responses)
+	}
+	return nil
+}
+
+// checkArrayFolder refuses an output folder that another stria is
+// writing, that holds a finished run, or that holds anything but the
+// array tasks' statistics.
+func checkArrayFolder(dir string) error {
+	if err := runfolder.CheckUnlocked(dir); err != nil {
+		return err
+	}
+	ents, err := os.ReadDir(dir)
+	if err != nil {
+		if errors.Is(err, os.ErrNotExist) {
+			return nil
+		}
+		return err
+	}
+	var other []string
+	for _, e := range ents {
+		if name := e.Name(); name != runfolder.DirArrayTasks && !strings.HasPrefix(name, runfolder.FileLock) {
+			other = append(other, name)
+		}
+	}
+	if len(other) > 0 {
+		return fmt.Errorf("output folder %s holds %s besides the array tasks' statistics (%s): a fit spread over array tasks writes into a new or empty folder; give another --out", dir, strings.Join(other, ", "), runfolder.DirArrayTasks)
+	}
+	return nil
+}
+
+// runFitArrayTask runs array task i of n of a fit: one pass over its range
+// of neurons, the statistics written into the run folder.
+func runFitArrayTask(cfg *settings.Config, i, n int, stdout io.Writer) error {
+	if err := checkArrayFit(cfg); err != nil {
+		return err
+	}
+	dir := cfg.Output
+	cfgYAML, err := cfg.Marshal()
+	if err != nil {
+		return err
+	}
+	if err := runfolder.CheckWritable(dir); err != nil {
+		return err
+	}
+	if err := checkArrayFolder(dir); err != nil {
+		return err
+	}
+	rec, s, err := data.LoadStream(cfg.Source())
+	if err != nil {
+		return err
+	}
+	defer s.Close()
+	_, plan, err := train.PlanParts(cfg, rec, s.Rows())
+	if err != nil {
+		return err
+	}
+	n0, n1 := train.NeuronRange(i, n, s.Cols())
+	parts, err := condstats.AccumulateParts(s.Columns(n0, n1), plan, condstats.StreamOptions{})
+	if err != nil {
+		return err
+	}
+	if err := rec.Unchanged(); err != nil {
+		return err
+	}
+	a := runfolder.ArrayStats{Task: i, Tasks: n, Neurons: [2]int{n0, n1}, TotalNeurons: s.Cols(), Trials: s.Rows(),
+		Fingerprint: runfolder.Fingerprint{Settings: cfgYAML, Files: rec.Files()}}
+	if err := runfolder.WriteArrayStats(dir, a, parts); err != nil {
+		return err
+	}
+	if stdout != nil {
+		fmt.Fprintf(stdout, "array task %d of %d: neurons %d-%d of %d (0-based) read; statistics in %s\nwhen every task has run: stria gather %s\n",
+			i, n, n0, n1-1, s.Cols(), runfolder.ArrayTaskDir(dir, i, n), dir)
+	}
+	return nil
+}
+
+// isFitArrayFolder reports whether dir holds array tasks of a fit.
+func isFitArrayFolder(dir string) bool {
+	m, err := runfolder.ArrayTasks(dir)
+	return err == nil && len(m) > 0
+}
+
+// gatherFit is stria gather of a fit spread over array tasks: it checks
+// the tasks, then fits from their joined statistics and writes the run
+// folder (runFit with the statistics read from the tasks).
+func gatherFit(ctx context.Context, dir string, o fitOptions) error {
+	m, err := runfolder.ArrayTasks(dir)
+	if err != nil {
+		return err
+	}
+	if len(m) > 1 {
+		var counts []string
+		for n := range m {
+			counts = append(counts, fmt.Sprint(n))
+		}
+		slices.Sort(counts)
+		return fmt.Errorf("gather: %s holds array tasks of %s tasks in all: the tasks of one fit share --array-task-count; remove the folders under %s of the runs you do not want", dir, strings.Join(counts, " and "), runfolder.DirArrayTasks)
+	}
+	var n int
+	for k := range m {
+		n = k
+	}
+	var missing []string
+	for i := 1; i <= n; i++ {
+		if !slices.Contains(m[n], i) {
+			missing = append(missing, fmt.Sprint(i))
+		}
+	}
+	if len(missing) > 0 {
+		return fmt.Errorf("gather: array task(s) %s of %d have not finished (no %s in their folders under %s): run them again (with Slurm: sbatch --array=%s ...), then stria gather %s",
+			strings.Join(missing, ", "), n, runfolder.FileArrayStats, filepath.Join(dir, runfolder.DirArrayTasks), strings.Join(missing, ","), dir)
+	}
+	a1, _, err := runfolder.ReadArrayStats(dir, 1, n, -1)
+	if err != nil {
+		return err
+	}
+	cfg, err := settings.ParseConfig(a1.Fingerprint.Settings, filepath.Join(runfolder.ArrayTaskDir(dir, 1, n), runfolder.FileArrayStats)+" (settings)")
+	if err != nil {
+		return err
+	}
+	if err := cfg.Validate(); err != nil {
+		return err
+	}
+	if cfg.Output, err = filepath.Abs(dir); err != nil {
+		return err
+	}
+	o.gather = &arrayGather{tasks: n, settings: a1.Fingerprint.Settings}
+	_, err = runFit(ctx, cfg, o)
+	return err
+}
+
+// arrayGather is what runFit needs to fit from array tasks' statistics.
+type arrayGather struct {
+	tasks    int
+	settings []byte // the settings every task must have run with
+}
+
+// prepareGathered prepares the recording from the array tasks'
+// statistics: it plans the pass as each task did, checks every task's
+// fingerprint, range and counts against it, and joins the statistics part
+// by part (one part of every task in memory at a time).
+func prepareGathered(cfg *settings.Config, g *arrayGather, phase func(string)) (*data.Recording, *train.Prepared, error) {
+	dir := cfg.Output
+	rec, s, err := data.LoadStream(cfg.Source())
+	if err != nil {
+		return nil, nil, err
+	}
+	s.Close()
+	p, plan, err := train.PlanParts(cfg, rec, s.Rows())
+	if err != nil {
+		return nil, nil, err
+	}
+	want := runfolder.Fingerprint{Settings: g.settings, Files: rec.Files()}
+	joined := make([]*condstats.PartStats, runfolder.ArrayParts)
+	for k := range joined {
+		ranges := make([]*condstats.PartStats, g.tasks)
+		for i := 1; i <= g.tasks; i++ {
+			a, ps, err := runfolder.ReadArrayStats(dir, i, g.tasks, k)
+			if err != nil {
+				return nil, nil, err
+			}
+			file := filepath.Join(runfolder.ArrayTaskDir(dir, i, g.tasks), runfolder.FileArrayStats)
+			if k == 0 {
+				if diff := want.Mismatch(a.Fingerprint, settings.DiffSettings); len(diff) > 0 {
+					return nil, nil, fmt.Errorf("gather: %s was written with other settings or data than array task 1 and the files now; refusing to mix them (its value -> the value now):\n  %s\nrun that task again", file, strings.Join(diff, "\n  "))
+				}
+				n0, n1 := train.NeuronRange(i, g.tasks, s.Cols())
+				if a.Neurons != [2]int{n0, n1} || a.TotalNeurons != s.Cols() || a.Trials != s.Rows() {
+					return nil, nil, fmt.Errorf("gather: %s holds neurons %d-%d of %d and %d trials, want neurons %d-%d of %d and %d trials; run that task again",
+						file, a.Neurons[0], a.Neurons[1]-1, a.TotalNeurons, a.Trials, n0, n1-1, s.Cols(), s.Rows())
+				}
+			}
+			if !slices.Equal(ps.Count, planCounts(plan, k)) {
+				return nil, nil, fmt.Errorf("gather: %s: the %s trials per condition differ from the split of these settings; run that task again", file, []string{"training", "validation", "test", "all"}[k])
+			}
+			ranges[i-1] = ps
+		}
+		if joined[k], err = condstats.JoinNeurons(ranges...); err != nil {
+			return nil, nil, fmt.Errorf("gather: %s: %w", dir, err)
+		}
+		ranges = nil
+		runtime.GC() // the ranges are joined: their memory serves the next part
+	}
+	phase(fmt.Sprintf("read and join the statistics of %d array tasks", g.tasks))
+	if err := p.SetParts(joined); err != nil {
+		return nil, nil, err
+	}
+	phase("bin, check, split, normalise")
+	return rec, p, nil
+}
+
+// planCounts returns the trials per condition of part k of plan (k ==
+// len(plan.Specs): all its trials).
+func planCounts(plan condstats.StreamPlan, k int) []int {
+	c := make([]int, plan.NBins)
+	for t, q := range plan.Part {
+		if q != condstats.NoPart && (q == k || k == len(plan.Specs)) {
+			c[plan.Cond[t]]++
+		}
+	}
+	return c
+}
+
+// printFitSlurmScript prints a bash script that submits the fit as a Slurm
+// job array of n tasks and the gather job after it (afterok).
+func printFitSlurmScript(w io.Writer, config, out string, n int) error {
+	cfgAbs, err := filepath.Abs(config)
+	if err != nil {
+		return err
+	}
+	exe, err := os.Executable()
+	if err != nil {
+		exe = "stria"
+	}
+	_, err = fmt.Fprintf(w, fitSlurmScript, n, shellQuote(exe), shellQuote(cfgAbs), shellQuote(out), n, n, n)
+	return err
+}
+
+// shellQuote quotes s for a POSIX shell (single quotes).
+func shellQuote(s string) string {
+	return "'" + strings.ReplaceAll(s, "'", `'\''`) + "'"
+}
+
+const fitSlurmScript = `#!/bin/bash
+# stria fit spread over a Slurm job array of %d tasks, then gathered.
+# Run this script with bash (not sbatch): it submits two jobs:
+#   1. the job array: each task reads its range of neurons once and writes
+#      their statistics into the run folder (stria fit --array-task I ...);
+#   2. after every task has succeeded (afterok), one job that checks and
+#      joins them, fits and writes the run folder (stria gather FOLDER).
+# Extra arguments go to sbatch for the gather job (e.g. --wait).
+# A failed task can be rerun alone: sbatch --array=K with the same command,
+# then stria gather FOLDER. All tasks must see the same files and folder.
+# The logs go to the folder this script is run from.
+# Edit the resources to suit: each task holds about 3 KB per neuron of its
+# range; the gather job about 3 KB per neuron in all, and writes the run
+# folder (about 4 KB per neuron).
+set -euo pipefail
+STRIA=${STRIA:-%s}
+CONFIG=%s
+OUT=%s
+q() { printf "'%%s'" "${1//\'/\'\\\'\'}"; }
+stats=$(sbatch --parsable --job-name=stria-fit-stats --array=1-%d \
+	--cpus-per-task=2 --mem=8G --time=04:00:00 --output="stria-fit-task-%%a-of-%d.log" \
+	--wrap "$(q "$STRIA") fit --config $(q "$CONFIG") --out $(q "$OUT") --array-task \$SLURM_ARRAY_TASK_ID --array-task-count %d --quiet")
+echo "submitted the statistics job array: $stats"
+gather=$(sbatch --parsable --job-name=stria-fit-gather --dependency=afterok:"${stats%%%%;*}" --kill-on-invalid-dep=yes \
+	--cpus-per-task=2 --mem=16G --time=04:00:00 --output=stria-fit-gather.log "$@" \
+	--wrap "$(q "$STRIA") gather $(q "$OUT")")
+echo "submitted the gather job: $gather (after the array succeeds)"
+`
