@@ -284,3 +284,24 @@ func TestStatePopulationFails(t *testing.T) {
 		t.Errorf("got population %v, error %v, notes %q; want no population gain, the covariates' terms and a note", sf.Pop != nil, sf.PopError, sf.Notes)
 	}
 }
+
+// TestStateNotStreamable: the state terms need every trial's responses, so
+// a fit with them is never fitted from one pass over the file (nor by
+// array tasks, which check Streamable too).
+func TestStateNotStreamable(t *testing.T) {
+	cfg := settings.Defaults()
+	cfg.Axis = settings.AxisConfig{Min: 0, Max: 360, Periodic: true, Bins: 8, Encoding: settings.OneHot}
+	if why := Streamable(&cfg); why != "" {
+		t.Fatalf("the default config is not streamable: %s", why)
+	}
+	for _, edit := range []func(*settings.Config){
+		func(c *settings.Config) { c.Data.Covariates = "speed.npy" },
+		func(c *settings.Config) { c.State.PopulationGain = true },
+	} {
+		c := cfg
+		edit(&c)
+		if why := Streamable(&c); !strings.Contains(why, "state terms") {
+			t.Errorf("got %q, want the state terms named", why)
+		}
+	}
+}
