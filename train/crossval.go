@@ -6,7 +6,6 @@ import (
 	"github.com/strialab/stria/train/settings"
 	"math/rand/v2"
 	"runtime"
-	"slices"
 	"sync"
 
 	"github.com/strialab/stria/data"
@@ -60,30 +59,41 @@ func Folds(p *Prepared) ([][3][]int, error) {
 }
 
 // RunUnit fits one model on one fold and scores it on the fold's test
-// trials, with the noise ceilings gated as in a fit (Ceilings).
+// trials, with the noise ceilings gated as in a fit (Ceilings). It is
+// RunFoldUnit on a fold of its own.
 func RunUnit(ctx context.Context, p *Prepared, spec ModelSpec, fold int, sets [3][]int) (*FoldResult, error) {
+	return RunFoldUnit(ctx, spec, fold, NewFold(p, sets))
+}
+
+// RunFoldUnit fits one model on fold f and scores it on the fold's test
+// trials, with the noise ceilings gated as in a fit (Ceilings). The models
+// of one fold share f's per-condition statistics and test sums (see Fold);
+// the numbers do not depend on which units share it or in which order
+// they run.
+func RunFoldUnit(ctx context.Context, spec ModelSpec, fold int, f *Fold) (*FoldResult, error) {
+	p, sets := f.p, f.Sets
 	res := &FoldResult{Model: spec.Name, Fold: fold}
 	var pred []float64
 	var pf *Prepared
 	if spec.Baseline == "" {
 		q := *p
 		q.Cfg = spec.Cfg
-		pf = q.WithSplit(sets[0], sets[1], sets[2])
-		f, err := Fit(ctx, pf, Hooks{}, nil)
+		pf = q.withSplitStats(sets[0], sets[1], sets[2], f.trainStats(), f.valStats())
+		fitted, err := Fit(ctx, pf, Hooks{}, nil)
 		if err != nil {
 			return nil, fmt.Errorf("%s, fold %d: %w", spec.Name, fold+1, err)
 		}
-		res.Epochs = len(f.Log)
-		res.Curves = f.Curves
+		res.Epochs = len(fitted.Log)
+		res.Curves = fitted.Curves
 		if res.Curves == nil {
-			res.Curves = PredictConditions(f.Net, p.NBins)
+			res.Curves = PredictConditions(fitted.Net, p.NBins)
 		}
 		pf.Norm.InvertRows(res.Curves)
 		if p.Soft() {
-			pred = PredictTrials(f.Net, pf, sets[2])
+			pred = PredictTrials(fitted.Net, pf, sets[2])
 		}
 	} else {
-		pf = p.WithSplit(append(slices.Clone(sets[0]), sets[1]...), nil, sets[2])
+		pf = f.baselineSplit()
 		curves, err := fitBaseline(pf, spec.Baseline)
 		if err != nil {
 			return nil, fmt.Errorf("%s, fold %d: %w", spec.Name, fold+1, err)
@@ -100,7 +110,8 @@ func RunUnit(ctx context.Context, p *Prepared, spec ModelSpec, fold int, sets [3
 	if pred != nil {
 		eval.ScorePopulation(res.Scores, p.Rec.Y.Data, p.Neurons(), sets[2], p.Cond, pred, p.NBins)
 	} else {
-		eval.ScoreConditions(res.Scores, p.Rec.Y.Data, p.Neurons(), sets[2], p.Cond, res.Curves, p.NBins)
+		// eval.ScoreConditions' scores, bit for bit, from the fold's sums.
+		eval.ScoreSums(res.Scores, f.testSums(), res.Curves)
 	}
 	// The same gate as a fit's scores (scores.ceiling_alpha of the
 	// recording's config: baselines have no config of their own).

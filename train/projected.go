@@ -116,7 +116,9 @@ func fitPoissonProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *
 		// validation loss was worse on BenchmarkPoissonSolvers (median
 		// held-out R^2 0.3588 against 0.3632 at 2,000 neurons), so
 		// model.readout_l2_per_neuron does not apply here.
-		f.Curves, f.ReadoutL2, _, err = s.AutoReadout(false)
+		if f.Curves, f.ReadoutL2, _, err = s.AutoReadout(false); err != nil {
+			return nil, err
+		}
 	} else {
 		f.Curves, vr2, err = s.Readout()
 	}

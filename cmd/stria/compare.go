@@ -9,6 +9,7 @@ import (
 	"path/filepath"
 	"strings"
 	"syscall"
+	"time"
 
 	"github.com/urfave/cli/v2"
 
@@ -25,11 +26,12 @@ func compareCommand() *cli.Command {
 		ArgsUsage: " ",
 		Flags: append(dataFlags(),
 			&cli.IntFlag{Name: "array-task", Usage: "run only array task `I` (1-based) of --array-task-count, then stop; when every task has run: stria gather FOLDER"},
-			&cli.IntFlag{Name: "array-task-count", Usage: "the number `N` of array tasks the units are dealt to (every N-th unit goes to one task)"},
+			&cli.IntFlag{Name: "array-task-count", Usage: "the number `N` of array tasks the units are dealt to (each task runs a run of consecutive units: a few recordings, fold by fold)"},
 			&cli.IntFlag{Name: "workers", Usage: "units run at once (0: one per core)"},
 			&cli.IntFlag{Name: "slurm-script", Usage: "print a Slurm job-array script for `N` array tasks and exit"},
 			&cli.BoolFlag{Name: "overwrite", Usage: "start the comparison folder afresh: its files, finished units included, are deleted first"},
 			&cli.BoolFlag{Name: "quiet", Aliases: []string{"q"}, Usage: "no progress lines"},
+			&cli.BoolFlag{Name: "timings", Usage: "print the wall time of each phase to stderr at the end"},
 		),
 		Action: func(c *cli.Context) error {
 			if err := noArgs(c); err != nil {
@@ -45,7 +47,7 @@ func compareCommand() *cli.Command {
 			if n := c.Int("slurm-script"); n > 0 {
 				return printSlurmScript(c.App.Writer, c.String("config"), cfg.Compare.Output, n)
 			}
-			o := compareOptions{workers: c.Int("workers"), quiet: c.Bool("quiet"), overwrite: c.Bool("overwrite")}
+			o := compareOptions{workers: c.Int("workers"), quiet: c.Bool("quiet"), overwrite: c.Bool("overwrite"), timings: c.Bool("timings")}
 			if o.task, o.tasks, err = arrayTask(c, os.Getenv); err != nil {
 				return err
 			}
@@ -86,6 +88,7 @@ func gatherCommand() *cli.Command {
 		Name:      "gather",
 		Usage:     "check that every array task of a comparison or a fit is done and write the results (a fit: join the statistics, fit, write the run folder)",
 		ArgsUsage: "FOLDER",
+		Flags:     []cli.Flag{&cli.BoolFlag{Name: "timings", Usage: "print the wall time of each phase of a comparison's gather to stderr at the end"}},
 		Action: func(c *cli.Context) error {
 			if err := oneFolderArg(c); err != nil {
 				return err
@@ -106,9 +109,17 @@ func gatherCommand() *cli.Command {
 			if cfg.Compare.Output, err = filepath.Abs(dir); err != nil {
 				return err
 			}
+			start := time.Now()
 			plan, err := compare.NewPlan(cfg)
 			if err != nil {
 				return err
+			}
+			if c.Bool("timings") {
+				plan.Timings = compare.NewTimings()
+				defer func() {
+					plan.Timings.Since("stria gather, wall time in all", start)
+					plan.Timings.Write(c.App.ErrWriter)
+				}()
 			}
 			lock, note, err := runfolder.AcquireLock(dir, strings.Join(os.Args, " "))
 			if err != nil {
@@ -133,6 +144,8 @@ type compareOptions struct {
 	// tasks); without it finished units are reused when their
 	// fingerprints match.
 	overwrite bool
+	// timings prints the wall time of each phase to stderr at the end.
+	timings bool
 }
 
 // runCompare runs the units of a comparison (all of them, or one array
@@ -146,10 +159,19 @@ type compareOptions struct {
 // (not an array task, which shares the folder with the others) locks the
 // folder.
 func runCompare(ctx context.Context, cfg *settings.Config, stdout, stderr io.Writer, o compareOptions) ([]*comparefolder.Comparison, error) {
+	start := time.Now()
 	plan, err := compare.NewPlan(cfg)
 	if err != nil {
 		return nil, err
 	}
+	if o.timings {
+		plan.Timings = compare.NewTimings()
+		defer func() {
+			plan.Timings.Since("stria compare, wall time in all", start)
+			plan.Timings.Write(stderr)
+		}()
+	}
+	plan.Timings.Since("plan", start)
 	// The settings as given, before preparing the data resolves the axis.
 	settings, err := cfg.Marshal()
 	if err != nil {
@@ -158,6 +180,8 @@ func runCompare(ctx context.Context, cfg *settings.Config, stdout, stderr io.Wri
 	units := plan.Units
 	if o.tasks > 0 {
 		units = plan.ArrayTask(o.task, o.tasks)
+	} else {
+		plan.KeepResults = true // this run gathers next
 	}
 	out := cfg.Compare.Output
 	if err := checkCompareFolder(out, cfg, o); err != nil {
@@ -169,9 +193,11 @@ func runCompare(ctx context.Context, cfg *settings.Config, stdout, stderr io.Wri
 		}
 		return plan.Check(units)
 	}
+	phase := time.Now()
 	if err := check(); err != nil {
 		return nil, err
 	}
+	plan.Timings.Since("check (wall)", phase)
 	if o.tasks == 0 {
 		lock, note, err := runfolder.AcquireLock(out, strings.Join(os.Args, " "))
 		if err != nil {
@@ -211,14 +237,18 @@ func runCompare(ctx context.Context, cfg *settings.Config, stdout, stderr io.Wri
 		}
 		fmt.Fprintf(stderr, "  [%d/%d] %s %s\n", done, len(units), u.ID, what)
 	}
+	phase = time.Now()
 	if err := plan.RunUnits(ctx, units, o.workers, progress); err != nil {
 		return nil, err
 	}
+	phase = plan.Timings.Since("run units (wall)", phase)
 	if o.tasks > 0 {
 		fmt.Fprintf(stdout, "array task %d of %d: %d units done in %s; when every task has run: stria gather %s\n", o.task, o.tasks, len(units), filepath.Join(out, runfolder.DirFoldResults), out)
 		return nil, nil
 	}
-	return nil, gatherPlan(stdout, plan)
+	err = gatherPlan(stdout, plan)
+	plan.Timings.Since("gather and print (wall)", phase)
+	return nil, err
 }
 
 // checkCompareFolder refuses an output path that cannot be written, a run

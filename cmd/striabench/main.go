@@ -56,6 +56,8 @@ type options struct {
 	projectedPatience  int
 	projectedLR        float64
 	projectedReadoutL2 float64
+	// run is the benchmark: run, or runMany with -many.
+	run func(options) error
 }
 
 // runnerFlag starts striabench as a small runner that runs one child
@@ -70,7 +72,7 @@ func main() {
 		runChild(os.Args[2:])
 		return
 	}
-	var o options
+	o := options{run: run}
 	flag.StringVar(&o.dir, "dir", filepath.Join(os.TempDir(), "striabench"), "folder for the recordings, configs and run folders (recordings are reused when present)")
 	flag.StringVar(&o.stria, "stria", "", "stria binary to time (default: build ./cmd/stria into -dir)")
 	flag.IntVar(&o.neurons, "neurons", 24000, "neurons of the full-size recording")
@@ -110,7 +112,10 @@ func main() {
 		}
 		return
 	}
-	if err := run(o); err != nil {
+	if *manyCount > 0 {
+		o.run = runMany // the many-recordings benchmark (many.go)
+	}
+	if err := o.run(o); err != nil {
 		fmt.Fprintln(os.Stderr, "striabench:", err)
 		os.Exit(1)
 	}

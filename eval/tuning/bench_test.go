@@ -82,3 +82,41 @@ func BenchmarkSmoothLinearFit(b *testing.B) {
 		})
 	}
 }
+
+// BenchmarkMinimizer fits the neurons of BenchmarkVonMisesFit (8 starts)
+// with the synchronous minimizer (sync) and with gonum's optimize.Minimize
+// (gonum), the reference it reproduces.
+func BenchmarkMinimizer(b *testing.B) {
+	centers := grid(60, 6, 3)
+	rng := rand.New(rand.NewPCG(7, 8))
+	const nNeurons = 64
+	counts := make([][]int, nNeurons)
+	means := make([][]float64, nNeurons)
+	for i := range counts {
+		p := [4]float64{rng.Float64(), 1 + 3*rng.Float64(), 0.5 + 4*rng.Float64(), 360 * rng.Float64()}
+		counts[i], means[i] = synthetic(rng, centers, 360, p, 10, 1)
+	}
+	for _, kind := range []string{"vonmises", "vonmises2"} {
+		for _, ref := range []bool{false, true} {
+			name := kind + "/sync"
+			if ref {
+				name = kind + "/gonum"
+			}
+			b.Run(name, func(b *testing.B) {
+				var m Model
+				if kind == "vonmises" {
+					m = NewVonMises(centers, 360, 8, rand.New(rand.NewPCG(1, 1)))
+				} else {
+					m = NewVonMisesTwoPeak(centers, 360, 8, rand.New(rand.NewPCG(1, 1)))
+				}
+				m.(*Curve).f.gonumRef = ref
+				b.ReportAllocs()
+				for i := 0; b.Loop(); i++ {
+					if err := m.Fit(counts[i%nNeurons], means[i%nNeurons]); err != nil {
+						b.Fatal(err)
+					}
+				}
+			})
+		}
+	}
+}

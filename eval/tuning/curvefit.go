@@ -48,7 +48,14 @@ type curveFit struct {
 	// Result in original units.
 	params []float64
 	note   string
-	method *optimize.BFGS
+	min    minimizer
+	// conv and settings are the optimiser's settings, kept to spare an
+	// allocation per fit (the converger is reset by every run).
+	conv     optimize.FunctionConverge
+	settings optimize.Settings
+	// gonumRef runs optimize.Minimize instead of the minimizer: the
+	// reference the minimizer reproduces (tests only).
+	gonumRef bool
 }
 
 func newCurveFit(k kind, centers []float64, period float64, starts int, rng *rand.Rand) *curveFit {
@@ -58,7 +65,6 @@ func newCurveFit(k kind, centers []float64, period float64, starts int, rng *ran
 		x: make([]float64, B), cx: make([]float64, B), sx: make([]float64, B),
 		w: make([]float64, B), y: make([]float64, B),
 		g: make([]float64, 2*B), dg0: make([]float64, 2*B), dg1: make([]float64, 2*B),
-		method: &optimize.BFGS{},
 	}
 	if k != kindGauss {
 		f.cosC = make([]float64, B)
@@ -182,6 +188,13 @@ func (f *curveFit) solveLinear(c []float64, n int) {
 		h[1] += wi * a * y[i]
 		h[2] += wi * b * y[i]
 	}
+	solve3(c, &G, &h)
+}
+
+// solve3 solves the 3 x 3 normal equations G c = h of solveLinear's two-peak
+// case, with its tiny relative ridge on the non-constant columns (G is
+// changed), by Cholesky (upper triangle used).
+func solve3(c []float64, G *[3][3]float64, h *[3]float64) {
 	G[1][1] += 1e-12 * (G[1][1] + 1e-300)
 	G[2][2] += 1e-12 * (G[2][2] + 1e-300)
 	// Cholesky of the 3 x 3 symmetric positive definite G (upper triangle used).
@@ -222,6 +235,9 @@ func (f *curveFit) solveLinear(c []float64, n int) {
 // objective returns the projected weighted SSE at p and, if grad != nil, its
 // gradient.
 func (f *curveFit) objective(grad, p []float64, n int) float64 {
+	if f.kind != kindGauss {
+		return f.objectiveVonMises(grad, p, n)
+	}
 	_, _, clip0, clip1 := f.basis(p, n)
 	var c [3]float64
 	f.solveLinear(c[:], n)
@@ -315,9 +331,10 @@ func (f *curveFit) fit(counts []int, means []float64) (ok bool, n int, ym, ysd f
 		Func: func(p []float64) float64 { eval(p); return lastF },
 		Grad: func(grad, p []float64) { eval(p); copy(grad, lastG[:]) },
 	}
-	settings := &optimize.Settings{
+	f.conv = optimize.FunctionConverge{Absolute: 1e-13, Relative: 1e-11, Iterations: 10}
+	f.settings = optimize.Settings{
 		GradientThreshold: 1e-8,
-		Converger:         &optimize.FunctionConverge{Absolute: 1e-13, Relative: 1e-11, Iterations: 10},
+		Converger:         &f.conv,
 		MajorIterations:   200,
 		FuncEvaluations:   2000,
 	}
@@ -348,11 +365,21 @@ func (f *curveFit) fit(counts []int, means []float64) (ok bool, n int, ym, ysd f
 	bestF := math.Inf(1)
 	if bestStart >= 0 {
 		start := cands[bestStart]
-		res, err := optimize.Minimize(prob, start[:], settings, f.method)
-		_ = err // a stopped-early result is still a candidate; compare by loss
-		if res != nil && !math.IsNaN(res.F) {
-			bestF = res.F
-			copy(best[:], res.X)
+		// BFGS as optimize.Minimize runs it, in this goroutine (see
+		// minimizer). A stopped-early result is still a candidate.
+		var F float64
+		var X []float64
+		if f.gonumRef {
+			F = math.NaN()
+			if res, _ := optimize.Minimize(prob, start[:], &f.settings, &f.min.bfgs); res != nil {
+				F, X = res.F, res.X
+			}
+		} else {
+			F, X = f.min.run(prob, start[:], &f.settings)
+		}
+		if !math.IsNaN(F) {
+			bestF = F
+			copy(best[:], X)
 		}
 	}
 	if math.IsInf(bestF, 1) {

@@ -62,6 +62,41 @@ const FlatTol = 1e-6
 // len(centers) or r is empty. NaN entries of r make the affected descriptors
 // NaN.
 func Describe(r, centers []float64, period float64) Descriptors {
+	return NewDescriber(centers, period).Describe(r)
+}
+
+// Describer describes many tuning curves at the same conditions: Describe
+// with the cosines and sines of the conditions' angles computed once (the
+// same values, so the same descriptors bit for bit). It is safe for
+// concurrent use.
+type Describer struct {
+	centers                []float64
+	period                 float64
+	cos1, sin1, cos2, sin2 []float64 // of phi_k = 2 pi centers[k] / period and of 2 phi_k
+}
+
+// NewDescriber returns the Describer of the conditions at centers (axis
+// units, ascending) on an axis with the given period (0: non-periodic); see
+// Describe.
+func NewDescriber(centers []float64, period float64) *Describer {
+	d := &Describer{centers: centers, period: period}
+	if period > 0 {
+		n := len(centers)
+		d.cos1, d.sin1, d.cos2, d.sin2 = make([]float64, n), make([]float64, n), make([]float64, n), make([]float64, n)
+		for k, c := range centers {
+			phi := 2 * math.Pi * c / period
+			d.cos1[k], d.sin1[k] = math.Cos(phi), math.Sin(phi)
+			d.cos2[k], d.sin2[k] = math.Cos(2*phi), math.Sin(2*phi)
+		}
+	}
+	return d
+}
+
+// Describe returns the descriptors of the tuning curve r (see the function
+// Describe). It panics if len(r) differs from the number of conditions or r
+// is empty.
+func (ds *Describer) Describe(r []float64) Descriptors {
+	centers, period := ds.centers, ds.period
 	if len(r) != len(centers) || len(r) == 0 {
 		panic("tuning: Describe: r and centers must have the same, non-zero length")
 	}
@@ -87,13 +122,12 @@ func Describe(r, centers []float64, period float64) Descriptors {
 	}
 	var sum, abs, c1, s1, c2, s2 float64
 	for k, v := range r {
-		phi := 2 * math.Pi * centers[k] / period
 		sum += v
 		abs += math.Abs(v)
-		c1 += v * math.Cos(phi)
-		s1 += v * math.Sin(phi)
-		c2 += v * math.Cos(2*phi)
-		s2 += v * math.Sin(2*phi)
+		c1 += v * ds.cos1[k]
+		s1 += v * ds.sin1[k]
+		c2 += v * ds.cos2[k]
+		s2 += v * ds.sin2[k]
 	}
 	d.Preferred = math.Mod(math.Atan2(s1, c1)*period/(2*math.Pi)+period, period)
 	if flat || !(math.Hypot(c1, s1) > FlatTol*abs) {

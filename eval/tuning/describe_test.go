@@ -2,6 +2,7 @@ package tuning
 
 import (
 	"math"
+	"math/rand/v2"
 	"testing"
 )
 
@@ -64,4 +65,108 @@ func fill(n int, v float64) []float64 {
 		r[i] = v
 	}
 	return r
+}
+
+// TestDescriberMatchesDescribe: a Describer gives the descriptors the
+// trigonometry of each call gave before it (describeReference, the former
+// loop), bit for bit, on random curves, a flat one and one with a NaN, on
+// direction, orientation and non-periodic axes.
+func TestDescriberMatchesDescribe(t *testing.T) {
+	rng := rand.New(rand.NewPCG(51, 52))
+	for _, ax := range []struct {
+		centers []float64
+		period  float64
+	}{{grid(60, 6, 3), 360}, {grid(8, 22.5, 0), 180}, {grid(12, 30, 15), 360}, {grid(10, 1, 0.5), 0}} {
+		ds := NewDescriber(ax.centers, ax.period)
+		for k := 0; k < 300; k++ {
+			r := make([]float64, len(ax.centers))
+			for i := range r {
+				r[i] = rng.NormFloat64() + 0.5
+			}
+			switch k {
+			case 1:
+				for i := range r {
+					r[i] = 2
+				}
+			case 2:
+				r[3] = math.NaN()
+			}
+			got, want := ds.Describe(r), describeReference(r, ax.centers, ax.period)
+			for i, g := range []float64{got.Preferred, got.Peak, got.OneMinusCV, got.DirVector, got.OSI, got.DSI} {
+				w := []float64{want.Preferred, want.Peak, want.OneMinusCV, want.DirVector, want.OSI, want.DSI}[i]
+				if math.Float64bits(g) != math.Float64bits(w) {
+					t.Fatalf("period %v curve %d: %+v, want %+v", ax.period, k, got, want)
+				}
+			}
+		}
+	}
+}
+
+// describeReference is Describe as it was before the Describer (the
+// trigonometry computed per call and condition).
+func describeReference(r, centers []float64, period float64) Descriptors {
+	if len(r) != len(centers) || len(r) == 0 {
+		panic("tuning: Describe: r and centers must have the same, non-zero length")
+	}
+	nan := math.NaN()
+	kmax := 0
+	for k, v := range r {
+		if v > r[kmax] || math.IsNaN(r[kmax]) {
+			kmax = k
+		}
+	}
+	d := Descriptors{Peak: centers[kmax], Preferred: centers[kmax],
+		OneMinusCV: nan, DirVector: nan, OSI: nan, DSI: nan}
+	lo, hi, big := math.Inf(1), math.Inf(-1), 0.0
+	for _, v := range r {
+		lo, hi, big = math.Min(lo, v), math.Max(hi, v), math.Max(big, math.Abs(v))
+	}
+	flat := hi-lo <= FlatTol*big // false when r holds a NaN
+	if flat {
+		d.Peak, d.Preferred = nan, nan
+	}
+	if !(period > 0) {
+		return d
+	}
+	var sum, abs, c1, s1, c2, s2 float64
+	for k, v := range r {
+		phi := 2 * math.Pi * centers[k] / period
+		sum += v
+		abs += math.Abs(v)
+		c1 += v * math.Cos(phi)
+		s1 += v * math.Sin(phi)
+		c2 += v * math.Cos(2*phi)
+		s2 += v * math.Sin(2*phi)
+	}
+	d.Preferred = math.Mod(math.Atan2(s1, c1)*period/(2*math.Pi)+period, period)
+	if flat || !(math.Hypot(c1, s1) > FlatTol*abs) {
+		d.Preferred = nan
+	}
+	if sum > 0 {
+		if period == 360 {
+			d.OneMinusCV = math.Hypot(c2, s2) / sum
+			d.DirVector = math.Hypot(c1, s1) / sum
+		} else {
+			d.OneMinusCV = math.Hypot(c1, s1) / sum
+		}
+	} else {
+		d.Preferred = nan
+	}
+	rp := r[kmax]
+	peak := centers[kmax]
+	idx := func(x float64) float64 { return r[nearestCircular(centers, x, period)] }
+	ratio := func(a, b float64) float64 {
+		if a+b == 0 {
+			return nan
+		}
+		return (a - b) / (a + b)
+	}
+	if period == 360 {
+		orth := (idx(peak+90) + idx(peak-90)) / 2
+		d.OSI = ratio(rp, orth)
+		d.DSI = ratio(rp, idx(peak+180))
+	} else {
+		d.OSI = ratio(rp, idx(peak+period/2))
+	}
+	return d
 }

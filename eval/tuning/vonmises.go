@@ -10,8 +10,9 @@ import (
 // NewGaussianBump): the objective is evaluated at every starting point and
 // gonum's BFGS runs from the one with the lowest value. Screening costs one
 // evaluation per point, where each run of the optimiser costs a few dozen
-// evaluations and starts goroutines of its own, so many points can be
-// screened for the price of one run.
+// evaluations, so many points can be screened for the price of one run.
+// BFGS runs in the calling goroutine, step for step as optimize.Minimize
+// runs it (see minimizer), without Minimize's goroutines.
 //
 // The two linear parameters (baseline b and amplitudes A) are eliminated in
 // closed form for each value of the two nonlinear ones (variable projection,

@@ -105,20 +105,33 @@ func TestArrayTask(t *testing.T) {
 	if len(p.Units) != 9 || p.Units[0].ID != "a/fold1" || p.Units[8].ID != "condmean/fold3" {
 		t.Fatalf("units %+v", p.Units)
 	}
-	// Every unit goes to exactly one of 4 tasks, every 4th from the I-th.
+	// Every unit goes to exactly one of 4 tasks: fold by fold, runs of 3,
+	// 2, 2 and 2 consecutive units.
+	want := [][]string{
+		{"a/fold1", "b/fold1", "condmean/fold1"},
+		{"a/fold2", "b/fold2"},
+		{"condmean/fold2", "a/fold3"},
+		{"b/fold3", "condmean/fold3"},
+	}
 	seen := map[string]int{}
 	for i := 1; i <= 4; i++ {
-		for k, u := range p.ArrayTask(i, 4) {
+		var got []string
+		for _, u := range p.ArrayTask(i, 4) {
 			seen[u.ID]++
-			if want := p.Units[i-1+4*k].ID; u.ID != want {
-				t.Errorf("task %d unit %d: %s, want %s", i, k, u.ID, want)
-			}
+			got = append(got, u.ID)
+		}
+		if !slices.Equal(got, want[i-1]) {
+			t.Errorf("task %d: %v, want %v", i, got, want[i-1])
 		}
 	}
 	for _, u := range p.Units {
 		if seen[u.ID] != 1 {
 			t.Errorf("unit %s in %d tasks, want 1", u.ID, seen[u.ID])
 		}
+	}
+	// More tasks than units: the last ones are empty.
+	if got := p.ArrayTask(10, 10); len(got) != 0 {
+		t.Errorf("task 10 of 10 on 9 units: %v, want none", got)
 	}
 	for _, c := range []struct{ i, n int }{{0, 3}, {4, 3}, {1, 0}, {-1, -1}} {
 		if err := CheckArrayTask(c.i, c.n); err == nil {

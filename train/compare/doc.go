@@ -8,9 +8,17 @@
 //
 // Conventions: models are listed encoders first, baselines last; folds are
 // numbered from 0 in code and from 1 in ids and files; array tasks are
-// numbered from 1 (task I of N runs every N-th unit, starting at the I-th).
+// numbered from 1 (task I of N runs the I-th of N runs of consecutive
+// units, ordered by recording, fold and model; see Plan.ArrayTask).
 // Results do not depend on the number of workers or array tasks: each unit
 // is seeded by the config, not by the order it runs in.
+//
+// Work is shared where the numbers allow it, bit for bit: a recording is
+// loaded, checked and hashed once for Check, RunUnits and Gather (the most
+// recent ones are kept); the units of a fold share its statistics
+// (train.Fold) and run fold by fold; Gather uses the results a run just
+// wrote when KeepResults is set. Plan.Timings records the wall time of each
+// phase.
 //
 // Every unit's result records its fingerprint (the settings it depends on,
 // see unitSettings, and the recording's file identities with content

@@ -1,12 +1,17 @@
 package compare
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"path/filepath"
+	"runtime"
 	"slices"
 	"strconv"
 	"strings"
+	"sync"
+	"sync/atomic"
+	"time"
 
 	"github.com/strialab/stria/data/condstats"
 	"github.com/strialab/stria/data/format"
@@ -49,25 +54,47 @@ func (p *Plan) Gather() ([]*comparefolder.Comparison, error) {
 			return nil, err
 		}
 		files := prep.Rec.Files()
-		var results []*comparefolder.FoldResult
+		start := time.Now()
+		var units []Unit
 		for _, u := range p.Units {
-			if u.Rec != ri {
+			if u.Rec == ri {
+				units = append(units, u)
+			}
+		}
+		// Read 16 at a time (reading files no longer in the page cache
+		// waits on the disk, not the cores), then checked in plan order.
+		results := make([]*comparefolder.FoldResult, len(units))
+		readErrs := make([]error, len(units))
+		var wg sync.WaitGroup
+		sem := make(chan struct{}, 16)
+		for i, u := range units {
+			results[i] = p.ran[u.ID] // run and written by this plan: its fingerprint is the plan's
+			if results[i] != nil {
 				continue
 			}
-			r, err := p.checkDone(u, files)
-			if err != nil {
-				return nil, err
+			wg.Add(1)
+			sem <- struct{}{}
+			go func() {
+				defer func() { <-sem; wg.Done() }()
+				results[i], readErrs[i] = p.checkDone(u, files)
+			}()
+		}
+		wg.Wait()
+		for i, u := range units {
+			if readErrs[i] != nil {
+				return nil, readErrs[i]
 			}
+			r := results[i]
 			if len(r.Scores) != prep.Neurons() {
 				return nil, fmt.Errorf("unit %s has %d neurons, the recording has %d: was the data changed?", u.ID, len(r.Scores), prep.Neurons())
 			}
 			if want := prep.NBins * prep.Neurons(); len(r.Curves) != want {
 				return nil, fmt.Errorf("unit %s has %d curve values, want %d (bins x neurons): was the data changed?", u.ID, len(r.Curves), want)
 			}
-			results = append(results, r)
 		}
+		start = p.Timings.Since("gather: read fold results", start)
 		var folder *comparefolder.ComparisonFolder
-		if gerr := format.Guard(func() { folder, err = newFolder(prep, rec.Specs, results, folds) }); gerr != nil {
+		if gerr := format.Guard(func() { folder, err = newFolder(prep, rec.Specs, results, folds, p.Timings) }); gerr != nil {
 			return nil, p.recErr(rec, gerr)
 		}
 		if err != nil {
@@ -78,31 +105,45 @@ func (p *Plan) Gather() ([]*comparefolder.Comparison, error) {
 		}
 		folder.Result.Recording = rec.Name
 		folders[ri] = folder
+		p.Timings.Since("gather: the recording's tables, in all", start)
 	}
+	start := time.Now()
 	if err := p.Begin(); err != nil {
 		return nil, err
 	}
-	var cmps []*comparefolder.Comparison
+	// The recordings' folders are written a few at a time (each file
+	// atomically, and flushed to disk: with many recordings the writes
+	// would otherwise wait on one another).
+	cmps := make([]*comparefolder.Comparison, len(p.Recordings))
+	errs := make([]error, len(p.Recordings))
+	sem := make(chan struct{}, 4)
+	var wg sync.WaitGroup
 	for ri, rec := range p.Recordings {
 		folder := folders[ri]
+		cmps[ri] = folder.Result
 		dir := out
 		if rec.Name != "" {
 			dir = filepath.Join(out, rec.Name)
 		}
-		if err := comparefolder.WriteComparison(dir, folder); err != nil {
-			return nil, err
-		}
-		if rec.Name != "" {
-			if err := runfolder.Finish(dir, runfolder.FormatComparison); err != nil {
-				return nil, err
+		wg.Add(1)
+		sem <- struct{}{}
+		go func() {
+			defer func() { <-sem; wg.Done() }()
+			if errs[ri] = comparefolder.WriteComparison(dir, folder); errs[ri] == nil && rec.Name != "" {
+				errs[ri] = runfolder.Finish(dir, runfolder.FormatComparison)
 			}
-		}
-		cmps = append(cmps, folder.Result)
+		}()
 	}
+	wg.Wait()
+	if err := errors.Join(errs...); err != nil {
+		return nil, err
+	}
+	start = p.Timings.Since("gather: write comparison folders", start)
 	if len(p.Recordings) > 1 {
 		if err := comparefolder.WriteAcross(out, comparefolder.NewAcross(cmps, Pool(cmps))); err != nil {
 			return nil, err
 		}
+		p.Timings.Since("gather: pool and write the tables across recordings", start)
 	}
 	if err := runfolder.Finish(out, runfolder.FormatComparison); err != nil {
 		return nil, err
@@ -112,7 +153,8 @@ func (p *Plan) Gather() ([]*comparefolder.Comparison, error) {
 
 // newFolder computes everything the comparison folder of one recording
 // holds from the units' results (in plan order) on the given folds.
-func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefolder.FoldResult, folds [][3][]int) (*comparefolder.ComparisonFolder, error) {
+func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefolder.FoldResult, folds [][3][]int, tm *Timings) (*comparefolder.ComparisonFolder, error) {
+	start := time.Now()
 	names := make([]string, len(specs))
 	var encoders []string
 	for i, s := range specs {
@@ -139,12 +181,14 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefol
 	for j := range ex {
 		rel[j] = math.NaN()
 	}
+	start = tm.Since("gather: split-half reliability", start)
 	c, verdicts := AcrossFolds(names, p.Cfg.Split.Folds, n, perFold, excluded,
 		Scoring{Alpha: p.Cfg.Scores.CeilingAlpha, SplitHalfAll: rel, MinReliability: p.Cfg.Scores.MinReliability})
 	settings, err := p.Cfg.Marshal()
 	if err != nil {
 		return nil, err
 	}
+	start = tm.Since("gather: fold averages, summaries, pair tests", start)
 	f := &comparefolder.ComparisonFolder{Settings: settings, Result: c, Excluded: reasons, Curves: map[string][]float64{}}
 	for _, r := range results {
 		f.FoldScores = append(f.FoldScores, comparefolder.NewFoldScores(r.Model, r.Fold, r.Scores, ex, verdicts[r.Fold]))
@@ -180,6 +224,7 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefol
 		}
 	}
 	f.Curves[comparefolder.CurveDataMean], f.Curves[comparefolder.CurveDataSEM] = means, sem
+	start = tm.Since("gather: fold scores, curves, data means", start)
 	// Tuning descriptors of the data's and every model's curves, at the
 	// conditions' stimulus values; NaN throughout for an excluded neuron.
 	values := p.Values
@@ -187,23 +232,31 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefol
 	if p.Axis.Periodic {
 		period = p.Axis.Max - p.Axis.Min
 	}
-	r := make([]float64, nb)
-	for _, src := range append([]string{"data"}, names...) {
-		curve := means
-		if src != "data" {
-			curve = f.Curves[src]
-		}
-		for j := 0; j < n; j++ {
-			if excluded[j] {
-				f.Descriptors = append(f.Descriptors, comparefolder.Descriptor{Source: src, Neuron: j, Descriptors: NaNDescriptors()})
-				continue
+	// Each neuron on its own, in parallel, into its fixed row (source by
+	// source, neurons in order): the rows do not depend on the cores.
+	sources := append([]string{"data"}, names...)
+	f.Descriptors = make([]comparefolder.Descriptor, len(sources)*n)
+	describer := tuning.NewDescriber(values, period)
+	eachNeuronRange(n, func(lo, hi int) {
+		r := make([]float64, nb)
+		for si, src := range sources {
+			curve := means
+			if src != "data" {
+				curve = f.Curves[src]
 			}
-			for b := 0; b < nb; b++ {
-				r[b] = curve[b*n+j]
+			for j := lo; j < hi; j++ {
+				d := comparefolder.Descriptor{Source: src, Neuron: j, Descriptors: NaNDescriptors()}
+				if !excluded[j] {
+					for b := 0; b < nb; b++ {
+						r[b] = curve[b*n+j]
+					}
+					d.Descriptors = describer.Describe(r)
+				}
+				f.Descriptors[si*n+j] = d
 			}
-			f.Descriptors = append(f.Descriptors, comparefolder.Descriptor{Source: src, Neuron: j, Descriptors: tuning.Describe(r, values, period)})
 		}
-	}
+	})
+	tm.Since("gather: tuning descriptors", start)
 	info := comparefolder.ComparisonInfo{Models: names, Encoders: encoders, Folds: c.Folds, Neurons: n, Excluded: map[string]string{},
 		Ceilings: runfolder.CeilingCounts(ceilingVerdicts(c.Ceiling), func(j int) bool { return excluded[j] }), FoldCeilings: c.FoldCeilings,
 		Reliable: Reliable(c), MinReliability: c.MinReliability,
@@ -282,4 +335,27 @@ func compareWarnings(w []string) []string {
 		}
 	}
 	return out
+}
+
+// eachNeuronRange calls fn on consecutive ranges of the n neurons, the
+// ranges in parallel on all cores (fn must only write what belongs to its
+// neurons).
+func eachNeuronRange(n int, fn func(lo, hi int)) {
+	const chunk = 512
+	var wg sync.WaitGroup
+	var next atomic.Int64
+	for range min(runtime.GOMAXPROCS(0), (n+chunk-1)/chunk) {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for {
+				lo := int(next.Add(chunk) - chunk)
+				if lo >= n {
+					return
+				}
+				fn(lo, min(lo+chunk, n))
+			}
+		}()
+	}
+	wg.Wait()
 }

@@ -10,6 +10,7 @@ import (
 	"strconv"
 	"strings"
 	"sync"
+	"time"
 
 	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/train"
@@ -43,11 +44,44 @@ type Plan struct {
 	Recordings []RecordingPlan
 	Units      []Unit
 
+	// Timings, when not nil, records the wall time of each phase
+	// (stria compare --timings).
+	Timings *Timings
+
 	// settings[r][s] is what the units of spec s on recording r depend
 	// on (see unitSettings), fixed when the plan is made: preparing a
 	// recording may resolve its axis in its config.
 	settings [][][]byte
+
+	// prepared keeps recordings already loaded, checked and hashed, for
+	// the next phase (Check, RunUnits, Gather) to reuse; see prepare.
+	prepared []*preparedRecording
+
+	// KeepResults makes RunUnits keep the results it writes for the
+	// recording it runs last, for Gather to use instead of reading them
+	// back (set it when the same plan gathers next; an array task does
+	// not).
+	KeepResults bool
+
+	// ran holds the results kept by KeepResults, as written
+	// (WriteFoldResult), by unit id.
+	ranMu sync.Mutex
+	ran   map[string]*comparefolder.FoldResult
 }
+
+// preparedRecording is a recording prepared by Plan.prepare, with its folds.
+type preparedRecording struct {
+	rec   int
+	prep  *train.Prepared
+	folds [][3][]int
+	bytes int64 // of the response matrix
+}
+
+// keepPreparedBytes bounds the response matrices of the recordings a plan
+// keeps prepared between its phases. The most recently prepared one is
+// always kept: a comparison of one recording, however large, loads, checks
+// and hashes it once, not once per phase.
+const keepPreparedBytes = 2 << 30
 
 // NewPlan expands the config's recordings, model specs and folds into
 // units, in a fixed order.
@@ -164,20 +198,32 @@ func (p *Plan) Dir() string { return p.Cfg.Compare.Output }
 // Done reports whether a unit's result is already on disk.
 func (p *Plan) Done(u Unit) bool { return comparefolder.HasFoldResult(p.Dir(), u.ID) }
 
-// ArrayTask returns the units of array task i of n (1-based): every n-th
-// unit, starting at the i-th. It panics unless 1 <= i <= n; check the
+// ArrayTask returns the units of array task i of n (1-based): the plan's
+// units ordered by recording, then fold, then model, cut into n runs of
+// consecutive units as equal in number as can be (the first ones one unit
+// longer), the i-th of them. A task so touches as few recordings as the
+// split allows (with many recordings, each is loaded, checked and hashed
+// by one or two tasks, not by every task), and the models of a fold share
+// its statistics (train.Fold). It panics unless 1 <= i <= n; check the
 // numbers with CheckArrayTask first.
 func (p *Plan) ArrayTask(i, n int) []Unit {
 	if err := CheckArrayTask(i, n); err != nil {
 		panic("compare: " + err.Error())
 	}
-	var out []Unit
-	for k, u := range p.Units {
-		if k%n == i-1 {
-			out = append(out, u)
+	order := slices.Clone(p.Units)
+	slices.SortStableFunc(order, func(a, b Unit) int {
+		if a.Rec != b.Rec {
+			return a.Rec - b.Rec
 		}
+		return a.Fold - b.Fold
+	})
+	size, extra := len(order)/n, len(order)%n
+	lo := (i-1)*size + min(i-1, extra)
+	hi := lo + size
+	if i <= extra {
+		hi++
 	}
-	return out
+	return order[lo:hi]
 }
 
 // Progress receives a line per finished unit.
@@ -196,13 +242,45 @@ func byRecording(units []Unit) (order []int, by map[int][]Unit) {
 }
 
 // prepare loads, checks (with the files' content hashes) and splits a
-// recording into its folds.
+// recording into its folds, or returns it as an earlier phase of the plan
+// prepared it: the most recent recordings are kept, up to keepPreparedBytes
+// of responses (the most recent one always). Reuse is safe: every result
+// is written only after the recording's files are found unchanged since
+// they were loaded (data.Recording.Unchanged), as they were when their
+// hashes were taken.
 func (p *Plan) prepare(ri int) (*train.Prepared, [][3][]int, error) {
+	for i, k := range p.prepared {
+		if k.rec == ri {
+			// Most recently used last.
+			p.prepared = append(append(p.prepared[:i:i], p.prepared[i+1:]...), k)
+			return k.prep, k.folds, nil
+		}
+	}
+	prep, folds, err := p.prepareAnew(ri)
+	if err != nil {
+		return nil, nil, err
+	}
+	p.prepared = append(p.prepared, &preparedRecording{rec: ri, prep: prep, folds: folds, bytes: int64(len(prep.Rec.Y.Data)) * 4})
+	var total int64
+	for _, k := range p.prepared {
+		total += k.bytes
+	}
+	for len(p.prepared) > 1 && total > keepPreparedBytes {
+		total -= p.prepared[0].bytes
+		p.prepared = p.prepared[1:]
+	}
+	return prep, folds, nil
+}
+
+// prepareAnew is prepare without reuse.
+func (p *Plan) prepareAnew(ri int) (*train.Prepared, [][3][]int, error) {
 	rec := p.Recordings[ri]
+	start := time.Now()
 	prep, err := train.Prepare(rec.Cfg)
 	if err != nil {
 		return nil, nil, p.recErr(rec, err)
 	}
+	start = p.Timings.Since("prepare: load, bin, check, hash", start)
 	var folds [][3][]int
 	if err := format.Guard(func() { folds, err = train.Folds(prep) }); err != nil {
 		return nil, nil, p.recErr(rec, err)
@@ -210,6 +288,7 @@ func (p *Plan) prepare(ri int) (*train.Prepared, [][3][]int, error) {
 	if err != nil {
 		return nil, nil, p.recErr(rec, err)
 	}
+	p.Timings.Since("prepare: folds", start)
 	return prep, folds, nil
 }
 
@@ -253,10 +332,12 @@ func (p *Plan) CheckData(units []Unit) error {
 // RunUnits runs the given units that are not done yet and writes their
 // results with their fingerprints; a finished unit is reused only when
 // its fingerprint matches (otherwise a *StaleError). Units of one
-// recording share its loaded data; up to workers units run at once (0: all
-// cores). Results do not depend on the order or the number of workers.
-// Before each result is written the recording's files are checked to be
-// unchanged since they were loaded.
+// recording share its loaded data, and the units of one fold its
+// per-condition statistics and test sums (train.Fold): they run fold by
+// fold, and a fold's shared data are dropped when its last unit is done.
+// Up to workers units run at once (0: all cores). Results do not depend on
+// the order or the number of workers. Before each result is written the
+// recording's files are checked to be unchanged since they were loaded.
 func (p *Plan) RunUnits(ctx context.Context, units []Unit, workers int, progress Progress) error {
 	if workers <= 0 {
 		workers = runtime.GOMAXPROCS(0)
@@ -264,6 +345,7 @@ func (p *Plan) RunUnits(ctx context.Context, units []Unit, workers int, progress
 	order, byRec := byRecording(units)
 	for _, ri := range order {
 		rec := p.Recordings[ri]
+		p.ran = map[string]*comparefolder.FoldResult{} // only the last recording's are kept
 		var todo []Unit
 		for _, u := range byRec[ri] {
 			if !p.Done(u) {
@@ -285,6 +367,14 @@ func (p *Plan) RunUnits(ctx context.Context, units []Unit, workers int, progress
 				}
 			}
 		}
+		// Fold by fold (the plan lists them model by model), so that few
+		// folds' shared data are alive at once.
+		slices.SortStableFunc(todo, func(a, b Unit) int { return a.Fold - b.Fold })
+		shared := map[int]*train.Fold{}
+		left := map[int]int{}
+		for _, u := range todo {
+			left[u.Fold]++
+		}
 		var mu sync.Mutex
 		var firstErr error
 		next := 0
@@ -299,9 +389,17 @@ func (p *Plan) RunUnits(ctx context.Context, units []Unit, workers int, progress
 					}
 					u := todo[next]
 					next++
+					fold := shared[u.Fold]
+					if fold == nil {
+						fold = train.NewFold(prep, folds[u.Fold])
+						shared[u.Fold] = fold
+					}
 					mu.Unlock()
-					err := p.runOne(ctx, prep, rec, u, folds[u.Fold], files)
+					err := p.runOne(ctx, prep, rec, u, fold, files)
 					mu.Lock()
+					if left[u.Fold]--; left[u.Fold] == 0 {
+						delete(shared, u.Fold)
+					}
 					if err != nil && firstErr == nil {
 						firstErr = err
 					}
@@ -332,21 +430,38 @@ func (p *Plan) recErr(rec RecordingPlan, err error) error {
 	return fmt.Errorf("recording %s: %w", rec.Name, err)
 }
 
-func (p *Plan) runOne(ctx context.Context, prep *train.Prepared, rec RecordingPlan, u Unit, sets [3][]int, files []format.FileID) error {
+func (p *Plan) runOne(ctx context.Context, prep *train.Prepared, rec RecordingPlan, u Unit, fold *train.Fold, files []format.FileID) error {
 	if err := comparefolder.RemoveFoldResultTemps(p.Dir(), u.ID); err != nil {
 		return err
 	}
-	r, err := train.RunUnit(ctx, prep, rec.Specs[u.Spec], u.Fold, sets)
+	start := time.Now()
+	spec := rec.Specs[u.Spec]
+	r, err := train.RunFoldUnit(ctx, spec, u.Fold, fold)
 	if err != nil {
 		return p.recErr(rec, err)
 	}
+	kind := spec.Baseline
+	if kind == "" {
+		kind = "encoder"
+	}
+	start = p.Timings.Since("unit: fit and score "+kind, start)
+	defer p.Timings.Since("unit: write fold result", start)
 	// The data must not have changed under the unit (a mapped file
 	// rewritten in place would mix two versions of it).
 	if err := prep.Rec.Unchanged(); err != nil {
 		return p.recErr(rec, err)
 	}
-	return comparefolder.WriteFoldResult(p.Dir(), &comparefolder.FoldResult{ID: u.ID, Model: r.Model, Fold: r.Fold, Scores: r.Scores, Curves: r.Curves, Epochs: r.Epochs,
-		Fingerprint: p.fingerprint(u, files)})
+	fr := &comparefolder.FoldResult{ID: u.ID, Model: r.Model, Fold: r.Fold, Scores: r.Scores, Curves: r.Curves, Epochs: r.Epochs,
+		Fingerprint: p.fingerprint(u, files)}
+	if err := comparefolder.WriteFoldResult(p.Dir(), fr); err != nil {
+		return err
+	}
+	if p.KeepResults {
+		p.ranMu.Lock()
+		p.ran[u.ID] = fr
+		p.ranMu.Unlock()
+	}
+	return nil
 }
 
 // Missing lists the ids of the units without a result.

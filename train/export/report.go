@@ -306,9 +306,16 @@ func csvTable(path, caption string, keep func(row []string) bool) (report.Table,
 	return t, nil
 }
 
-// manyReport exports every recording of a comparison over recordings and
-// builds one report: the tables across recordings, then each recording's
-// summary and figures.
+// ManyReportRecordings is the largest number of recordings whose figures
+// the report of a comparison over recordings shows, each recording in a
+// section of its own. With more, the report holds the tables across
+// recordings only (each recording's own report has its figures): at 50
+// recordings the sections made a 25 MB page and took minutes to export.
+const ManyReportRecordings = 12
+
+// manyReport builds one report of a comparison over recordings: the tables
+// across recordings, then, for at most ManyReportRecordings recordings,
+// each recording's summary and figures (exporting each).
 func manyReport(dir string) (*report.Report, error) {
 	subs, err := comparefolder.RecordingFolders(dir)
 	if err != nil {
@@ -344,12 +351,20 @@ func manyReport(dir string) (*report.Report, error) {
 	if err != nil {
 		return nil, err
 	}
+	byRecSec := report.Section{ID: "recordings", Heading: "Recording by recording", Tables: []report.Table{byRec}}
+	if len(subs) > ManyReportRecordings {
+		byRecSec.Paragraphs = []string{fmt.Sprintf("With %d recordings (more than %d), this report holds the tables only; each recording's figures are in its own report: stria report %s.",
+			len(subs), ManyReportRecordings, filepath.Join(dir, "RECORDING"))}
+	}
 	r.Sections = append(r.Sections,
 		report.Section{ID: "pooled", Heading: "Across recordings",
 			Paragraphs: []string{"Pooled neurons answer \"for a neuron in these data\" (large recordings weigh more); the median of recording medians answers \"for a recording\" (each counts once).",
 				"p-values: " + comparefolder.WilcoxonNote},
 			Tables: []report.Table{pooled, pairs}},
-		report.Section{ID: "recordings", Heading: "Recording by recording", Tables: []report.Table{byRec}})
+		byRecSec)
+	if len(subs) > ManyReportRecordings {
+		subs = nil
+	}
 	for _, sub := range subs {
 		ex, err := Folder(sub, Options{})
 		if err != nil {

@@ -1,6 +1,7 @@
 package comparefolder
 
 import (
+	"bufio"
 	"encoding/csv"
 	"encoding/gob"
 	"errors"
@@ -13,6 +14,7 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+	"sync"
 
 	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/eval"
@@ -206,41 +208,51 @@ func NewPairInfo(pairs []PairTest) []PairInfo {
 }
 
 // WriteComparison writes the comparison folder of one recording (not
-// complete.json: call Finish after it).
+// complete.json: call Finish after it). The files are written at once, each
+// atomically (their bytes do not depend on the order).
 func WriteComparison(dir string, c *ComparisonFolder) error {
 	if err := runfolder.MakeFolder(filepath.Join(dir, DirCurves)); err != nil {
 		return err
 	}
 	n := c.Info.Neurons
 	header := append(append([]string{"model", "fold", "neuron"}, runfolder.ScoreColumns...), runfolder.ColCeiling, "excluded")
-	err := runfolder.WriteCSV(filepath.Join(dir, FileFoldScores), header, func(cw *csv.Writer) error {
-		row := make([]string, len(header))
-		for _, fs := range c.FoldScores {
-			for j := 0; j < n; j++ {
-				row[0], row[1], row[2] = fs.Model, strconv.Itoa(fs.Fold+1), strconv.Itoa(j)
-				for k := range runfolder.ScoreColumns {
-					row[3+k] = runfolder.FormatScore(fs.Cols[k][j])
+	writes := []func() error{
+		func() error {
+			return runfolder.WriteCSV(filepath.Join(dir, FileFoldScores), header, func(cw *csv.Writer) error {
+				row := make([]string, len(header))
+				for _, fs := range c.FoldScores {
+					for j := 0; j < n; j++ {
+						row[0], row[1], row[2] = fs.Model, strconv.Itoa(fs.Fold+1), strconv.Itoa(j)
+						for k := range runfolder.ScoreColumns {
+							row[3+k] = runfolder.FormatScore(fs.Cols[k][j])
+						}
+						row[len(row)-2] = fs.Ceiling[j]
+						row[len(row)-1] = c.Excluded[j]
+						if err := cw.Write(row); err != nil {
+							return err
+						}
+					}
 				}
-				row[len(row)-2] = fs.Ceiling[j]
-				row[len(row)-1] = c.Excluded[j]
-				if err := cw.Write(row); err != nil {
-					return err
+				return nil
+			})
+		},
+		func() error { return writeFoldAverages(filepath.Join(dir, FileFoldAverages), c.Result) },
+		func() error {
+			return WriteSpreadTable(filepath.Join(dir, FileModelSummary), summaryRows(c.Result), false)
+		},
+		func() error { return WritePairsTable(filepath.Join(dir, FileModelPairs), c.Result.Pairs) },
+		func() error {
+			return runfolder.WriteCSV(filepath.Join(dir, FileDescriptors), descriptorHeader, func(cw *csv.Writer) error {
+				for _, d := range c.Descriptors {
+					if err := cw.Write([]string{d.Source, strconv.Itoa(d.Neuron), runfolder.FormatScore(d.Preferred), runfolder.FormatScore(d.Peak), runfolder.FormatScore(d.OneMinusCV), runfolder.FormatScore(d.DirVector), runfolder.FormatScore(d.OSI), runfolder.FormatScore(d.DSI)}); err != nil {
+						return err
+					}
 				}
-			}
-		}
-		return nil
-	})
-	if err != nil {
-		return err
-	}
-	if err := writeFoldAverages(filepath.Join(dir, FileFoldAverages), c.Result); err != nil {
-		return err
-	}
-	if err := WriteSpreadTable(filepath.Join(dir, FileModelSummary), summaryRows(c.Result), false); err != nil {
-		return err
-	}
-	if err := WritePairsTable(filepath.Join(dir, FileModelPairs), c.Result.Pairs); err != nil {
-		return err
+				return nil
+			})
+		},
+		func() error { return runfolder.WriteBytes(filepath.Join(dir, runfolder.FileSettings), c.Settings) },
+		func() error { return runfolder.WriteJSON(filepath.Join(dir, FileComparison), c.Info) },
 	}
 	nb := c.Info.Axis.Bins
 	for _, name := range curveNames(c.Info.Models) {
@@ -248,25 +260,21 @@ func WriteComparison(dir string, c *ComparisonFolder) error {
 		if !ok {
 			return fmt.Errorf("%s: no curves of %s", dir, name)
 		}
-		if err := format.WriteNPY64(filepath.Join(dir, DirCurves, FileName(name)+".npy"), []int{nb, n}, v); err != nil {
-			return err
-		}
+		writes = append(writes, func() error {
+			return format.WriteNPY64(filepath.Join(dir, DirCurves, FileName(name)+".npy"), []int{nb, n}, v)
+		})
 	}
-	err = runfolder.WriteCSV(filepath.Join(dir, FileDescriptors), descriptorHeader, func(cw *csv.Writer) error {
-		for _, d := range c.Descriptors {
-			if err := cw.Write([]string{d.Source, strconv.Itoa(d.Neuron), runfolder.FormatScore(d.Preferred), runfolder.FormatScore(d.Peak), runfolder.FormatScore(d.OneMinusCV), runfolder.FormatScore(d.DirVector), runfolder.FormatScore(d.OSI), runfolder.FormatScore(d.DSI)}); err != nil {
-				return err
-			}
-		}
-		return nil
-	})
-	if err != nil {
-		return err
+	errs := make([]error, len(writes))
+	var wg sync.WaitGroup
+	for i, w := range writes {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			errs[i] = w()
+		}()
 	}
-	if err := runfolder.WriteBytes(filepath.Join(dir, runfolder.FileSettings), c.Settings); err != nil {
-		return err
-	}
-	return runfolder.WriteJSON(filepath.Join(dir, FileComparison), c.Info)
+	wg.Wait()
+	return errors.Join(errs...)
 }
 
 var descriptorHeader = []string{"source", "neuron", "preferred", "peak", "one_minus_cv", "direction_vector", "osi", "dsi"}
@@ -784,13 +792,16 @@ func HasFoldResult(dir, id string) bool {
 	return err == nil
 }
 
-// WriteFoldResult writes a unit's result atomically.
+// WriteFoldResult writes a unit's result atomically. Scores of -0 are set
+// to 0 in r first (see foldResultFile), so that r then equals what
+// ReadFoldResult reads back.
 func WriteFoldResult(dir string, r *FoldResult) error {
+	zeroNegativeZeros(r.Scores)
 	path := FoldResultPath(dir, r.ID)
 	if err := runfolder.MakeFolder(filepath.Dir(path)); err != nil {
 		return err
 	}
-	return runfolder.WriteFile(path, func(w io.Writer) error { return gob.NewEncoder(w).Encode(r) })
+	return runfolder.WriteFile(path, func(w io.Writer) error { return gob.NewEncoder(w).Encode(packFoldResult(r)) })
 }
 
 // RemoveFoldResultTemps removes the temporary files a killed write of
@@ -818,9 +829,13 @@ func ReadFoldResult(dir, id string) (*FoldResult, error) {
 		return nil, err
 	}
 	defer f.Close()
-	var r FoldResult
-	if err := gob.NewDecoder(f).Decode(&r); err != nil {
+	var ff foldResultFile
+	if err := gob.NewDecoder(bufio.NewReaderSize(f, 1<<20)).Decode(&ff); err != nil {
 		return nil, fmt.Errorf("%s: %w (delete it and run its array task again)", path, err)
 	}
-	return &r, nil
+	r, err := ff.unpack()
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w (delete it and run its array task again)", path, err)
+	}
+	return r, nil
 }

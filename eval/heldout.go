@@ -1,0 +1,104 @@
+package eval
+
+import (
+	"runtime"
+	"runtime/debug"
+	"sync"
+	"sync/atomic"
+)
+
+// heldOutBlock is the number of neurons one worker of HeldOutSumsOf sums at
+// a time.
+const heldOutBlock = 512
+
+// HeldOutSumsOf returns the sums ScoreConditions forms from the held-out
+// trials (rows of y, n neurons per row, conditions cond in [0, nbins)), so
+// that ScoreSums(dst, HeldOutSumsOf(y, n, trials, cond, nbins), pred) gives
+// the scores of ScoreConditions(dst, y, n, trials, cond, pred, nbins) bit
+// for bit, for any pred: Ref is the response of trials[0], each sum runs
+// over the trials in the order given, and trials are dealt to the split
+// halves as ScoreConditions deals them. Several models scored on the same
+// trials then read the responses once (stria compare scores every model of
+// a fold from one HeldOutSums).
+//
+// Neurons are summed in blocks on all cores, every element in trial order,
+// so the result does not depend on the number of cores. It panics with an
+// "eval: " message on a trial or condition out of range; a memory fault
+// while reading a mapped y (a truncated file, with
+// debug.SetPanicOnFault) is raised again on the caller's goroutine, where
+// format.Guard turns it into an error naming the file.
+func HeldOutSumsOf(y []float32, n int, trials, cond []int, nbins int) *HeldOutSums {
+	if n <= 0 || len(y)%n != 0 {
+		panic("eval: HeldOutSumsOf: len(y) is not a multiple of n")
+	}
+	if nbins <= 0 {
+		panic("eval: HeldOutSumsOf: nbins must be positive")
+	}
+	sh := newShared("HeldOutSumsOf", y, n, trials, cond, nil, nbins)
+	h := &HeldOutSums{B: nbins, N: n, Count: sh.counts, CountA: sh.cntA, Ref: make([]float64, n), RefCond: -1,
+		Sum: make([]float64, nbins*n), SumA: make([]float64, nbins*n), SumSq: make([]float64, nbins*n)}
+	if len(trials) == 0 {
+		return h
+	}
+	h.RefCond = sh.ci[0]
+	r0 := trials[0]
+	nblocks := (n + heldOutBlock - 1) / heldOutBlock
+	workers := min(runtime.GOMAXPROCS(0), nblocks)
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	var saved struct {
+		sync.Mutex
+		v any
+	}
+	for range workers {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			defer func() {
+				if r := recover(); r != nil {
+					saved.Lock()
+					if saved.v == nil {
+						saved.v = r
+					}
+					saved.Unlock()
+				}
+			}()
+			debug.SetPanicOnFault(true)
+			for {
+				blk := int(next.Add(1) - 1)
+				if blk >= nblocks {
+					return
+				}
+				n0 := blk * heldOutBlock
+				n1 := min(n0+heldOutBlock, n)
+				ref := h.Ref[n0:n1]
+				for j, v := range y[r0*n+n0 : r0*n+n1] {
+					ref[j] = float64(v)
+				}
+				// The arithmetic of scorer.blockConditions, element by element.
+				for i, r := range trials {
+					c := sh.ci[i]
+					yr := y[r*n+n0 : r*n+n1]
+					sy := h.Sum[c*n+n0 : c*n+n1]
+					sq := h.SumSq[c*n+n0 : c*n+n1]
+					for j, v := range yr {
+						d := float64(v) - ref[j]
+						sy[j] += d
+						sq[j] += d * d
+					}
+					if !sh.half[i] {
+						sa := h.SumA[c*n+n0 : c*n+n1]
+						for j, v := range yr {
+							sa[j] += float64(v) - ref[j]
+						}
+					}
+				}
+			}
+		}()
+	}
+	wg.Wait()
+	if saved.v != nil {
+		panic(saved.v)
+	}
+	return h
+}
