@@ -127,8 +127,11 @@ func (a Axis) width() float64 { return (a.Max - a.Min) / float64(a.NumBins()) }
 //     a value of 175 wraps to -5, in the bin of 0).
 //   - bounded: the edges move onto the grid level +- w/2 and the range grows
 //     to the nearest such edges outside [Min, Max], so that every value
-//     allowed before is still allowed: 0, 10, ..., 100 on 0..100 in bins of
-//     10 gives -5..105 with 11 bins. The new axis is given by bin_width even
+//     allowed before is still allowed, except beyond half a bin past the
+//     outermost levels, where a bin could hold no trial: 0, 10, ..., 100 on
+//     0..100 in bins of 10 gives -5..105 with 11 bins; 0, 10, ..., 190 on
+//     0..200 (positions on a 2 m track) gives -5..195 with 20 bins, not a
+//     21st, empty bin [195, 205). The new axis is given by bin_width even
 //     if a was given by bins, since the bin count changes.
 //
 // When the levels cannot be centred (uneven spacing, spacing not a multiple
@@ -168,10 +171,14 @@ func (a Axis) CenterOn(levels []float64) (Axis, string, error) {
 	if a.Periodic {
 		b.Min, b.Max = a.Min+off, a.Max+off
 	} else {
-		// Edges e = v0 - w/2 + j w; the largest <= Min and the smallest >= Max.
+		// Edges e = v0 - w/2 + j w; the largest <= Min and the smallest >= Max,
+		// but no bin beyond the outermost levels (it could hold no trial).
 		e0 := v0 - w/2
+		vn := levels[len(levels)-1]
 		lo := e0 + math.Floor((a.Min-e0)/w+levelTol)*w
 		hi := e0 + math.Ceil((a.Max-e0)/w-levelTol)*w
+		lo = math.Max(lo, e0)
+		hi = math.Min(hi, vn+w/2)
 		n := math.Round((hi - lo) / w)
 		b.Min, b.Max = lo, lo+n*w
 		b.Bins, b.BinWidth = 0, w

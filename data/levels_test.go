@@ -44,7 +44,11 @@ func TestCenterOnStimulus(t *testing.T) {
 		{"values given as 180 and -15", ori, append(repeatLevels(steps(12, 15, 0), 3, 4), 180, -15), -7.5, 172.5, 12, true},
 		{"directions by bins", Axis{Unit: "deg", Min: 0, Max: 360, Periodic: true, Bins: 8}, repeatLevels(steps(8, 45, 0), 4, 5), -22.5, 337.5, 8, true},
 		{"track positions", Axis{Name: "position", Unit: "cm", Min: 0, Max: 100, BinWidth: 10}, repeatLevels(steps(11, 10, 0), 4, 6), -5, 105, 11, true},
-		{"track, fewer sites", Axis{Name: "position", Unit: "cm", Min: 0, Max: 100, Bins: 10}, repeatLevels(steps(4, 20, 20), 6, 7), -5, 105, 11, true},
+		// No bin past half a bin beyond the outermost sites: it could hold
+		// no trial, and the fit refuses empty bins (the bins between the
+		// sites stay, as the spacing is twice the bin width).
+		{"track, fewer sites", Axis{Name: "position", Unit: "cm", Min: 0, Max: 100, Bins: 10}, repeatLevels(steps(4, 20, 20), 6, 7), 15, 85, 7, true},
+		{"track sites short of its end", Axis{Name: "position", Unit: "cm", Min: 0, Max: 200, BinWidth: 10}, repeatLevels(steps(20, 10, 0), 4, 6), -5, 195, 20, true},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {

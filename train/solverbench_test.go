@@ -24,7 +24,11 @@ func BenchmarkPoissonFastVsAdam(b *testing.B) {
 		n := 1000
 		b.Run(fmt.Sprintf("neurons=%d/readout_l2=%g", n, l2), func(b *testing.B) {
 			p, truth := popPrepared(b, synth.DiscreteConfig{Neurons: n, Trials: 3000, Bins: 60, Poisson: true, GainSD: 0.2, UntunedFrac: 0.15, RareBins: 6, Seed: 41},
-				func(c *settings.Config) { c.Model.ReadoutL2 = settings.Penalty{Value: l2}; c.Train.Patience = 100 })
+				func(c *settings.Config) {
+					c.Model.ReadoutL2 = settings.Penalty{Value: l2}
+					c.Train.Patience = 100
+					c.Train.Solver = settings.SolverAdam // auto would run the fast path
+				})
 			cm, or := testR2(p, condMeanPred(p)), testR2(p, truth)
 			for range b.N {
 				t0 := time.Now()
@@ -197,6 +201,74 @@ func BenchmarkPoissonEpoch(b *testing.B) {
 			adam := time.Since(t0).Seconds() / reps
 			b.ReportMetric(adam, "adam_s/epoch")
 			b.ReportMetric(fast/adam, "fast/adam_epoch")
+		})
+	}
+}
+
+// fitPoissonAdamFilters is the Poisson fast path with its filters trained
+// by Adam at the config's train settings (epochs of one Adam step, inexact
+// warm-started readout steps per epoch; the fast path before the
+// quasi-Newton filter training), then the same final readout as
+// fitPoissonProjected: for BenchmarkPoissonFilterOptimisers.
+func fitPoissonAdamFilters(tb testing.TB, p *Prepared) (*Fitted, []float64) {
+	tb.Helper()
+	cfg := p.Cfg
+	net := nn.NewNet(cfg.Shape(p.NBins, p.Neurons()))
+	net.InitConvs(rand.New(rand.NewPCG(cfg.Seed, 0x1417)))
+	s, err := projection.NewPoisson(p.problem(), net)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	res, err := runEpochs(context.Background(), s, cfg.Train, Hooks{}, nil)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	curves, _, _, err := s.AutoReadout(false)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return &Fitted{Net: net, Log: res.log, BestEpoch: res.bestEpoch}, curves
+}
+
+// BenchmarkPoissonFilterOptimisers fits the spike-count population of
+// BenchmarkPoissonSolvers with the Poisson fast path twice: filters by
+// L-BFGS (fitPoissonProjected, the default) and by Adam (train settings:
+// learning rate 1e-2, patience 100 epochs). It reports for each the CPU
+// time, the epochs (iterations), the best one, the validation loss there
+// (trained penalty), and after the automatic penalty choice the median
+// test R^2 and the gap share (as BenchmarkPoissonSolvers); and the ratio
+// of the CPU times.
+func BenchmarkPoissonFilterOptimisers(b *testing.B) {
+	for _, n := range []int{500, 2000} {
+		b.Run(fmt.Sprintf("neurons=%d", n), func(b *testing.B) {
+			scen := poissonBumps(n)
+			p, oracle := poissonBumpsPrepared(b, scen, settings.SolverProjected)
+			cm, or := testR2(p, condMeanPred(p)), testR2(p, oracle)
+			for range b.N {
+				c0 := cpuSeconds()
+				fq, err := Fit(context.Background(), p, Hooks{}, nil)
+				if err != nil {
+					b.Fatal(err)
+				}
+				cq := cpuSeconds() - c0
+				c0 = cpuSeconds()
+				fa, curves := fitPoissonAdamFilters(b, p)
+				ca := cpuSeconds() - c0
+				rq, ra := testR2(p, fq.Curves), testR2(p, curves)
+				b.ReportMetric(cq, "cpu_s_lbfgs")
+				b.ReportMetric(ca, "cpu_s_adamfilters")
+				b.ReportMetric(cq/ca, "cpu_lbfgs/adamfilters")
+				b.ReportMetric(float64(len(fq.Log)), "iters_lbfgs")
+				b.ReportMetric(float64(len(fa.Log)), "epochs_adamfilters")
+				b.ReportMetric(float64(fq.BestEpoch), "best_lbfgs")
+				b.ReportMetric(float64(fa.BestEpoch), "best_adamfilters")
+				b.ReportMetric(fq.Log[fq.BestEpoch-1].ValLoss, "val_lbfgs")
+				b.ReportMetric(fa.Log[fa.BestEpoch-1].ValLoss, "val_adamfilters")
+				b.ReportMetric(nanMedian(rq), "r2_lbfgs")
+				b.ReportMetric(nanMedian(ra), "r2_adamfilters")
+				b.ReportMetric(gapShare(rq, cm, or), "gap_lbfgs")
+				b.ReportMetric(gapShare(ra, cm, or), "gap_adamfilters")
+			}
 		})
 	}
 }

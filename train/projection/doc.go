@@ -10,10 +10,13 @@
 //     neuron (eval/methods.md §12).
 //   - Poisson with a softplus or exp output (the Poisson fast path): each
 //     neuron's readout by Newton's method in the span of the condition rows
-//     (eval/methods.md §13); while the filters train, one inexact Newton
-//     step per neuron and epoch from the previous readout (conjugate
-//     gradients, O(N B^2) per epoch), solved exactly at the end; the
-//     penalty can be chosen on the validation trials at the final filters.
+//     (eval/methods.md §13), the penalty chosen on the validation trials
+//     at the final filters. Two ways to train the filters: Poisson (Adam;
+//     one inexact Newton step per neuron and epoch from the previous
+//     readout, conjugate gradients, O(N B^2) per epoch) and PoissonQN
+//     (L-BFGS with a line search, each readout solved tightly at every
+//     trial point; train's default: about 18 iterations where Adam takes
+//     about 900 epochs). Readouts are solved exactly at the end.
 //
 // A solver reads a Problem (per-condition statistics of the training and
 // validation trials, the z-scoring, the penalty) and a net whose conv
