@@ -1,6 +1,7 @@
 // Package data loads, checks and organises the recordings stria fits: a
 // trials x neurons response matrix, one stimulus value per trial, and
-// optional condition and block ids.
+// optional condition and block ids and per-trial state covariates (their
+// values are checked by the fit, eval/state).
 //
 // Conventions, stated once:
 //

@@ -26,6 +26,9 @@ func statInputs(src Source) ([]inputFile, error) {
 			paths = append(paths, p[0])
 		}
 	}
+	if src.Covariates != "" {
+		paths = append(paths, src.Covariates)
+	}
 	var out []inputFile
 	seen := map[string]bool{}
 	for _, p := range paths {
@@ -43,7 +46,7 @@ func statInputs(src Source) ([]inputFile, error) {
 }
 
 // Files returns the identities of the files the recording was loaded from,
-// responses first, then the stimulus, condition and block files that are
+// responses first, then the stimulus, condition, block and covariate files that are
 // not the same path, as they were when Load opened them. The hashes are
 // filled by HashFiles or by CheckWith with CheckOptions.Hash; before that
 // they are empty. A recording not made by Load has no files.

@@ -103,6 +103,7 @@ func FuzzLoadCheck(f *testing.F) {
 		for _, src := range []Source{
 			{Responses: p, StimulusColumn: "stim"},
 			{Responses: p, StimulusColumn: "stim", ConditionColumn: "cond", BlockColumn: "block", NeuronColumns: []string{"n0", "n1"}},
+			{Responses: p, StimulusColumn: "stim", CovariateColumns: []string{"block", "cond"}},
 		} {
 			err := loadAndCheck(src, ax, CheckOptions{Counts: true, Hash: true})
 			if err != nil && !strings.Contains(err.Error(), "fuzz.csv") {

@@ -24,6 +24,11 @@ type Source struct {
 	ConditionColumn string
 	Block           string // optional per-trial block/repeat ids; empty file with a column: the stimulus file
 	BlockColumn     string
+
+	// Covariates is the optional file of per-trial state covariates (see
+	// covariates.go); empty with CovariateColumns given: the stimulus file.
+	Covariates       string
+	CovariateColumns []string // column (CSV/TSV) or array (.npz) names; for a .npy, the names of its columns
 }
 
 // Recording is one loaded data set.
@@ -34,6 +39,10 @@ type Recording struct {
 	Block   []int     // optional block ids (nil if absent)
 	Neurons []string  // neuron names (CSV header) or nil
 	Source  Source
+	// CovariateNames and Covariates are the optional per-trial state
+	// covariates (nil if absent): Covariates[k][t] is covariate k on trial t.
+	CovariateNames []string
+	Covariates     [][]float64
 
 	inputs []inputFile // the files read, as Load found them (see Files)
 }
@@ -225,6 +234,11 @@ func Load(src Source) (*Recording, error) {
 			if src.BlockColumn != "" && inResponses(src.Block) {
 				skip[src.BlockColumn] = true
 			}
+			if inResponses(src.Covariates) {
+				for _, c := range src.CovariateColumns {
+					skip[c] = true
+				}
+			}
 			for c, h := range t.Header {
 				if h == "" {
 					return nil, fmt.Errorf("data: %s: column %d (1-based) has no name (a pandas index written without index=False?); "+
@@ -253,9 +267,9 @@ func Load(src Source) (*Recording, error) {
 	return rec, nil
 }
 
-// trialData reads the stimulus and the optional condition and block ids of
-// rec.Source into rec, checking that each has one value per trial of the
-// rows x cols responses.
+// trialData reads the stimulus, the optional condition and block ids and
+// the optional state covariates of rec.Source into rec, checking that each
+// has one value per trial of the rows x cols responses.
 func (l *loader) trialData(rec *Recording, stimFile string, rows, cols int) error {
 	src := rec.Source
 	switch {
@@ -292,7 +306,10 @@ func (l *loader) trialData(rec *Recording, stimFile string, rows, cols int) erro
 	if rec.Cond, err = opt(src.Condition, src.ConditionColumn, "condition"); err != nil {
 		return err
 	}
-	rec.Block, err = opt(src.Block, src.BlockColumn, "block")
+	if rec.Block, err = opt(src.Block, src.BlockColumn, "block"); err != nil {
+		return err
+	}
+	rec.CovariateNames, rec.Covariates, err = l.covariates(src, stimFile, rows, cols)
 	return err
 }
 
@@ -330,6 +347,11 @@ func checkNeuronColumns(src Source, stimFile string, inResponses func(string) bo
 		} {
 			if o.col != "" && strings.TrimSpace(o.col) == n && inResponses(o.file) {
 				return fmt.Errorf("data: neuron_columns entry %d (0-based) %q of %s is also the %s column; a column cannot be both", i, n, src.Responses, o.what)
+			}
+		}
+		for _, c := range src.CovariateColumns {
+			if strings.TrimSpace(c) == n && inResponses(src.Covariates) && fileKind(src.Responses) == "table" {
+				return fmt.Errorf("data: neuron_columns entry %d (0-based) %q of %s is also a covariate column; a column cannot be both", i, n, src.Responses)
 			}
 		}
 	}

@@ -20,6 +20,10 @@ type ModelSpec struct {
 	Baseline string
 	// Cfg is the encoder's full config (nil for a baseline).
 	Cfg *settings.Config
+	// State, when not empty, makes the model a state variant of the
+	// encoder or baseline above (VariantState or VariantPopGain; see
+	// state_compare.go).
+	State string
 }
 
 // FoldResult is one model's scores on one fold.
@@ -70,10 +74,11 @@ func RunFoldUnit(ctx context.Context, spec ModelSpec, fold int, f *Fold) (*FoldR
 	p, sets := f.p, f.Sets
 	res := &FoldResult{Model: spec.Name, Fold: fold}
 	var pred []float64
+	var pf *Prepared
 	if spec.Baseline == "" {
 		q := *p
 		q.Cfg = spec.Cfg
-		pf := q.withSplitStats(sets[0], sets[1], sets[2], f.trainStats(), f.valStats())
+		pf = q.withSplitStats(sets[0], sets[1], sets[2], f.trainStats(), f.valStats())
 		fitted, err := Fit(ctx, pf, Hooks{}, nil)
 		if err != nil {
 			return nil, fmt.Errorf("%s, fold %d: %w", spec.Name, fold+1, err)
@@ -88,11 +93,18 @@ func RunFoldUnit(ctx context.Context, spec ModelSpec, fold int, f *Fold) (*FoldR
 			pred = PredictTrials(fitted.Net, pf, sets[2])
 		}
 	} else {
-		curves, err := fitBaseline(f.baselineSplit(), spec.Baseline)
+		pf = f.baselineSplit()
+		curves, err := fitBaseline(pf, spec.Baseline)
 		if err != nil {
 			return nil, fmt.Errorf("%s, fold %d: %w", spec.Name, fold+1, err)
 		}
 		res.Curves = curves
+	}
+	if spec.State != "" {
+		var err error
+		if pred, err = stateUnit(ctx, pf, spec, res); err != nil {
+			return nil, fmt.Errorf("%s, fold %d: %w", spec.Name, fold+1, err)
+		}
 	}
 	res.Scores = make([]eval.Scores, p.Neurons())
 	if pred != nil {

@@ -3,7 +3,8 @@
 // checks, the split, z-scoring), the epoch loop that every solver plugs
 // into, the two solvers, and the glue that scores a fit on its test
 // trials; Acuity runs stria acuity's analysis (eval/acuity) on compare's
-// folds. It reads recordings through package data and writes no files;
+// folds; FitState fits the per-trial state terms (eval/state) around a
+// fitted encoder, and RunUnit their variants in a comparison. It reads recordings through package data and writes no files;
 // the projected solvers live in train/projection (they read condition
 // statistics, not a prepared recording, and plug into this package's
 // epoch loop), the on-disk format of run, comparison and acuity folders

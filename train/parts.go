@@ -45,6 +45,8 @@ func Streamable(cfg *settings.Config) string {
 		return "mini-batches (train.batch_size > 0) need the responses of every trial"
 	case cfg.SolverToRun() != settings.SolverProjected:
 		return "the " + cfg.SolverToRun().String() + " solver needs the responses of every trial"
+	case cfg.StateActive():
+		return "the state terms (data.covariates, state.population_gain) need the responses of every trial"
 	}
 	return ""
 }

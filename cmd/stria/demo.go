@@ -63,6 +63,8 @@ data:
   responses: responses.npy   # trials x neurons, float32
   stimulus: heading.npy      # one heading per trial, degrees
   block: blocks.npy          # block id per trial (10 blocks in time order)
+  covariates: running.npy    # running speed per trial, cm/s (it follows the shared gain)
+  covariate_columns: [running_speed]
 axis:
   name: heading
   unit: deg
@@ -108,6 +110,11 @@ acuity:
   shrinkage: 1
   decode_repeats: 3
   output: acuity
+state:
+  # a gain and an offset per neuron on its tuning, from running speed, and a
+  # shared gain read from the other half of the neurons
+  tuning: fixed              # the default; refit trains the encoder again on the targets
+  population_gain: true
 output: run
 `
 
@@ -133,6 +140,9 @@ func writeDemo(o demoOptions) (string, *synth.Truth, error) {
 		blocks[i] = float64(b)
 	}
 	if err := format.WriteNPY64(path("blocks.npy"), []int{len(blocks)}, blocks); err != nil {
+		return "", nil, err
+	}
+	if err := format.WriteNPY64(path("running.npy"), []int{len(truth.Gain)}, demoRunning(truth.Gain, o.seed)); err != nil {
 		return "", nil, err
 	}
 	if err := format.WriteNPY64(path("truth_means.npy"), []int{len(truth.Mean) / o.neurons, o.neurons}, truth.Mean); err != nil {

@@ -295,8 +295,10 @@ func TestExportAndReport(t *testing.T) {
 		t.Errorf("report printed %q, want its path %s", out, rp)
 	}
 	// Default selection (best 3, worst 1): filters, 4 tuning, 3 histograms
-	// (fev, cc_norm, spe), preferred, and the loss curve.
-	checkSelfContained(t, rp, 1+4+3+1+1)
+	// (fev, cc_norm, spe), preferred, and the loss curve; the demo's
+	// running speed adds the gain and offset histograms and 4 tuning
+	// figures at low and high state.
+	checkSelfContained(t, rp, 1+4+3+1+1+2+4)
 	html, _ := os.ReadFile(rp)
 	for _, want := range []string{"Resolved config", "signal power", train.Cautions[0][:40], "train_loss", "test_r2"} {
 		if !bytes.Contains(html, []byte(want)) {

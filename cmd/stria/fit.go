@@ -154,6 +154,9 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	if err != nil {
 		return nil, err
 	}
+	if err := train.CheckState(p); err != nil {
+		return nil, err
+	}
 	// A recording read in one pass has no content hashes (they would cost
 	// a second read of the file): its checkpoints record the files' size
 	// and modification time, which decide alone when a hash is missing.
@@ -261,6 +264,10 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	if err != nil {
 		return nil, err
 	}
+	if err := fitState(ctx, dir, p, fitted, sum, o.stderr); err != nil {
+		return nil, err
+	}
+	phase("state terms")
 	if err := runfolder.RemoveResumeState(dir); err != nil {
 		return nil, err
 	}
@@ -405,6 +412,7 @@ func printSummary(w io.Writer, dir string, s *runfolder.Summary) {
 	for _, c := range s.Cautions {
 		fmt.Fprintln(w, "note:", c)
 	}
+	printState(w, s.State)
 }
 
 // ceilingCounts lists the verdict counts of summary.json in code order:

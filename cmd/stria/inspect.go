@@ -122,6 +122,7 @@ func inspect(w io.Writer, cfg *settings.Config, rec *data.Recording) error {
 		}
 	}
 	fmt.Fprintf(w, "  %d of %d neurons at or above scores.min_reliability = %g: the neurons of the fev, cc_norm and spe summaries\n", kept, rec.Y.Cols, cfg.Scores.MinReliability)
+	problems = append(problems, printCovariates(w, cfg, rec, cond, nb)...)
 	if rep != nil {
 		for _, m := range rep.Warnings {
 			fmt.Fprintln(w, "warning:", m)

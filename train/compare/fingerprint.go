@@ -62,12 +62,24 @@ func unitSettings(rec *settings.Config, spec train.ModelSpec) ([]byte, error) {
 	c.Scores.MinReliability = 0
 	c.Train.CheckpointEvery = 0
 	c.Data.Responses, c.Data.Stimulus, c.Data.Condition, c.Data.Block = "", "", "", ""
+	c.Data.Covariates = ""
+	if spec.State == "" {
+		// The state section and the covariates' names change only the
+		// state variants (their files are part of the recording's
+		// identity, as every data file).
+		c.State = settings.StateConfig{}
+		c.Data.CovariateColumns = nil
+	} else {
+		// A state variant depends on the state section, and on its
+		// kind, which its name carries.
+		c.Compare.Baselines = append(c.Compare.Baselines, spec.Name)
+	}
 	return c.NumericSettings()
 }
 
 // fingerprint is the fingerprint of unit u given its recording's files.
 func (p *Plan) fingerprint(u Unit, files []format.FileID) runfolder.Fingerprint {
-	return runfolder.Fingerprint{Settings: p.settings[u.Rec][u.Spec], Files: files}
+	return runfolder.Fingerprint{Settings: p.settings[u.Rec][u.Spec], Files: p.unitFiles(u, files)}
 }
 
 // checkDone reads the result of a finished unit and refuses it when its

@@ -261,7 +261,7 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefol
 		Ceilings: runfolder.CeilingCounts(ceilingVerdicts(c.Ceiling), func(j int) bool { return excluded[j] }), FoldCeilings: c.FoldCeilings,
 		Reliable: Reliable(c), MinReliability: c.MinReliability,
 		Summary: c.Summary, Winner: c.Winner, Pairs: comparefolder.NewPairInfo(c.Pairs), PValues: comparefolder.WilcoxonNote,
-		Cautions: FoldCautions(p, folds), Warnings: compareWarnings(p.Report.Warnings),
+		Cautions: append(FoldCautions(p, folds), stateCautions(specs)...), Warnings: compareWarnings(p.Report.Warnings),
 		Axis:   runfolder.AxisOf(p),
 		Epochs: map[string][]int{}, Recordings: []string{p.Rec.Source.Responses}}
 	for j, why := range ex {

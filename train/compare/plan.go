@@ -179,6 +179,7 @@ func expandRecordings(c *settings.Config) ([]RecordingPlan, error) {
 			cfg.Data.Stimulus = rel(rc.Stimulus)
 			cfg.Data.Condition = rel(rc.Condition)
 			cfg.Data.Block = rel(rc.Block)
+			cfg.Data.Covariates = rel(rc.Covariates)
 			if rc.Axis != nil {
 				cfg.Axis = *rc.Axis
 			}

@@ -146,5 +146,14 @@ func Specs(c *settings.Config) ([]train.ModelSpec, error) {
 			return nil, err
 		}
 	}
+	variants, err := stateSpecs(c, specs)
+	if err != nil {
+		return nil, err
+	}
+	for _, v := range variants {
+		if err := add(v); err != nil {
+			return nil, err
+		}
+	}
 	return specs, nil
 }

@@ -330,6 +330,10 @@ func exportRun(dir, out string, opt Options) (*Exported, error) {
 		}
 	}
 
+	if err := exportState(dir, out, ex, sum, values, chosen, ax); err != nil {
+		return nil, err
+	}
+
 	// Preferred stimuli from the noise-free encoder curves.
 	period := 0.0
 	if mf.Axis.Periodic {
@@ -431,7 +435,8 @@ func exportComparison(dir, out string) (*Exported, error) {
 	}
 	enc := setOf(ci.Encoders)
 	var encoders, baselines []string
-	for _, m := range ci.Models {
+	plain, variants := stateVariants(ci.Models)
+	for _, m := range plain {
 		if enc[m] {
 			encoders = append(encoders, m)
 		} else {
@@ -440,7 +445,7 @@ func exportComparison(dir, out string) (*Exported, error) {
 	}
 	if len(encoders) == 0 || len(baselines) == 0 {
 		// Without the split, compare every pair against the first model.
-		encoders, baselines = ci.Models[:1], ci.Models[1:]
+		encoders, baselines = plain[:1], plain[1:]
 	}
 	ex := &Exported{Folder: dir, Kind: runfolder.KindComparison, Dir: out}
 	if err := runfolder.MakeFolder(out); err != nil {
@@ -480,6 +485,16 @@ func exportComparison(dir, out string) (*Exported, error) {
 					return nil, err
 				}
 			}
+		}
+	}
+	for _, v := range variants {
+		base, m := v[0], v[1]
+		name := "scatter_test_r2_" + comparefolder.FileName(base) + "_vs_" + comparefolder.FileName(m)
+		im, err := figure.Scatter(shown(base, "test_r2"), shown(m, "test_r2"), base, m, "test_r2")
+		err = ex.add(name, im, err, fmt.Sprintf("Per-neuron test_r2 averaged over %d folds: %s (x) against %s (y), the same model with per-trial state terms. Points above the diagonal are neurons whose held-out R^2 the state terms raise. %s", ci.Folds, base, m, runfolder.StateCaution),
+			"foldavg_test_r2.csv")
+		if err != nil {
+			return nil, err
 		}
 	}
 	series := map[string][]float64{}

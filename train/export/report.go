@@ -176,6 +176,11 @@ func runReport(ex *Exported) (*report.Report, error) {
 		report.Section{ID: "tuning", Heading: "Tuning of selected neurons", Figures: figs(func(n string) bool { return strings.HasPrefix(n, "tuning_") }), Notes: ex.Notes},
 		report.Section{ID: "population", Heading: "Scores and preferred stimuli across neurons",
 			Figures: figs(func(n string) bool { return strings.HasPrefix(n, "hist_") || n == "preferred" })},
+	)
+	if sec := stateSection(ex, sum); sec != nil {
+		r.Sections = append(r.Sections, *sec)
+	}
+	r.Sections = append(r.Sections,
 		report.Section{ID: "config", Heading: "Resolved config", Paragraphs: []string{runfolder.FileSettings + " of the run: refitting it gives the same numbers."}, Code: string(cfgYAML)},
 	)
 	return r, nil

@@ -265,7 +265,7 @@ func Holds(dir string) (string, error) {
 // File and Dir constants: Empty refuses to delete anything else.
 var striaNames = map[string]bool{
 	FileSettings: true, FileManifest: true, FileFilters: true, FileNeuronScores: true, FileSummary: true,
-	FileHistory: true, FileSplit: true, FileResume: true, DirParameters: true, DirFigures: true, FileReport: true,
+	FileHistory: true, FileSplit: true, FileResume: true, DirParameters: true, DirFigures: true, FileReport: true, FileStateTerms: true,
 	FileComplete: true, FileLock: true, oldSettings: true, FileComparison: true, FilePerRecording: true, DirFoldResults: true,
 	DirArrayTasks: true,
 	// The comparison folder's names (the File and Dir constants of

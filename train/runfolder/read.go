@@ -24,6 +24,9 @@ type Run struct {
 	History      []train.EpochLog
 	NeuronScores *NeuronScores
 	Summary      Summary
+	// StateTerms is state_terms.csv as written (nil for a run without
+	// state terms; its arrays are among Parameters).
+	StateTerms []byte
 }
 
 // ReadRun reads every file of a finished run folder.
@@ -79,6 +82,9 @@ func ReadRun(dir string) (*Run, error) {
 		return nil, err
 	}
 	r.Summary = *sum
+	if r.StateTerms, err = readStateTerms(dir); err != nil {
+		return nil, err
+	}
 	return r, nil
 }
 
@@ -126,6 +132,11 @@ func WriteRun(dir string, r *Run) error {
 	}
 	if err := WriteNeuronScores(dir, r.NeuronScores); err != nil {
 		return err
+	}
+	if r.StateTerms != nil {
+		if err := WriteBytes(filepath.Join(dir, FileStateTerms), r.StateTerms); err != nil {
+			return err
+		}
 	}
 	return WriteJSON(filepath.Join(dir, FileSummary), r.Summary)
 }

@@ -225,6 +225,8 @@ type Summary struct {
 	// "trials" (every trial's responses held in memory). See
 	// train.Streamable.
 	Responses string `json:"responses,omitempty"`
+	// State is the state terms' block (state.go); nil without them.
+	State *StateSummary `json:"state,omitempty"`
 }
 
 // ResponsesPath is Summary.Responses of a prepared recording.

@@ -34,6 +34,9 @@ type Config struct {
 	Scores ScoresConfig `yaml:"scores"`
 	// Acuity is the section of stria acuity (config_acuity.go).
 	Acuity AcuityConfig `yaml:"acuity"`
+	// State is the per-trial gain and offset on the tuning
+	// (config_state.go).
+	State StateConfig `yaml:"state"`
 	// Output is the run folder written by stria fit.
 	Output string `yaml:"output"`
 
@@ -55,6 +58,11 @@ type DataConfig struct {
 	ConditionColumn string   `yaml:"condition_column"`
 	Block           string   `yaml:"block"`
 	BlockColumn     string   `yaml:"block_column"`
+	// Covariates is the optional file of per-trial state covariates
+	// (.npy T or T x K, .npz or CSV/TSV); empty with covariate_columns:
+	// the stimulus file. The state section says how they are used.
+	Covariates       string   `yaml:"covariates"`
+	CovariateColumns []string `yaml:"covariate_columns"`
 }
 
 // AxisConfig declares the stimulus axis and how values become model input.
@@ -180,6 +188,7 @@ func Defaults() Config {
 		Scores:  ScoresConfig{CeilingAlpha: eval.DefaultCeilingAlpha, MinReliability: eval.DefaultMinReliability},
 		Compare: CompareConfig{Starts: 8, SmoothLambda: 2, Output: "stria-out/compare"},
 		Acuity:  DefaultAcuity(),
+		State:   DefaultState(),
 		Output:  "stria-out/fit",
 	}
 }
@@ -206,6 +215,9 @@ func (c *Config) Source() data.Source {
 		ConditionColumn: d.ConditionColumn,
 		Block:           d.Block,
 		BlockColumn:     d.BlockColumn,
+
+		Covariates:       d.Covariates,
+		CovariateColumns: d.CovariateColumns,
 	}
 }
 
@@ -343,6 +355,7 @@ func (c *Config) Validate() error {
 		bad("compare.smooth_lambda %v: want a value >= 0", c.Compare.SmoothLambda)
 	}
 	c.validateAcuity(bad)
+	c.validateState(bad)
 	if c.Output == "" {
 		bad("output: no run folder given (set it in the config or with --out)")
 	}

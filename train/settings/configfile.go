@@ -54,7 +54,7 @@ func LoadConfig(path string) (*Config, error) {
 // folder works from anywhere.
 func (c *Config) resolvePaths() {
 	d := &c.Data
-	for _, p := range []*string{&d.Responses, &d.Stimulus, &d.Condition, &d.Block, &c.Output, &c.Compare.Output, &c.Acuity.Output, &c.Acuity.Encoder} {
+	for _, p := range []*string{&d.Responses, &d.Stimulus, &d.Condition, &d.Block, &d.Covariates, &c.Output, &c.Compare.Output, &c.Acuity.Output, &c.Acuity.Encoder} {
 		*p = c.Resolve(*p)
 	}
 	// A recording's other paths are relative to its responses file.
@@ -157,6 +157,7 @@ var wordKeys = map[string][]string{
 	"compare.encoders[].layers[].border": borderWords,
 	"train.optimizer":                    optimizerWords,
 	"train.solver":                       solverWords,
+	"state.tuning":                       stateTuningWords,
 	"compare.encoders[].solver":          solverWords,
 }
 
@@ -262,6 +263,8 @@ func sectionOf(typ string) string {
 		return "recordings[]"
 	case "AcuityConfig":
 		return "acuity"
+	case "StateConfig":
+		return "state"
 	}
 	return ""
 }
