@@ -140,7 +140,7 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	phase := func(name string) {
 		if o.timings {
 			now := time.Now()
-			fmt.Fprintf(o.stderr, "timing: %-34s %7.3f s\n", name, now.Sub(last).Seconds())
+			fmt.Fprintf(o.stderr, "timing: %-48s %7.3f s\n", name, now.Sub(last).Seconds())
 			last = now
 		}
 	}
@@ -264,10 +264,13 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	if err != nil {
 		return nil, err
 	}
-	if err := fitState(ctx, dir, p, fitted, sum, o.stderr); err != nil {
-		return nil, err
+	phase("write the model and the scores")
+	if p.Cfg.StateActive() {
+		if err := fitState(ctx, dir, p, fitted, sum, o.stderr); err != nil {
+			return nil, err
+		}
+		phase("state terms")
 	}
-	phase("state terms")
 	if err := runfolder.RemoveResumeState(dir); err != nil {
 		return nil, err
 	}
@@ -280,7 +283,7 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	if err := runfolder.Finish(dir, runfolder.FormatRun); err != nil {
 		return nil, err
 	}
-	phase("write the run folder (the rest)")
+	phase("finish the run folder")
 	if o.stdout != nil {
 		printSummary(o.stdout, dir, sum)
 	}
