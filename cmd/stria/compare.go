@@ -62,13 +62,13 @@ func compareCommand() *cli.Command {
 	}
 }
 
-// arrayTask reads --array-task and --array-task-count, or, when neither is
-// given, Slurm's job-array environment (and says so on stderr). 0, 0: run
-// every unit.
+// arrayTask reads --array-task and --array-task-count of compare or fit,
+// or, when neither is given, Slurm's job-array environment (and says so on
+// stderr). 0, 0: not an array task (run every unit, or every neuron).
 func arrayTask(c *cli.Context, getenv func(string) string) (i, n int, err error) {
 	given, count := c.IsSet("array-task"), c.IsSet("array-task-count")
 	if given != count {
-		return 0, 0, fmt.Errorf("compare: give both --array-task and --array-task-count (or neither)")
+		return 0, 0, fmt.Errorf("%s: give both --array-task and --array-task-count (or neither)", c.Command.Name)
 	}
 	if given {
 		i, n = c.Int("array-task"), c.Int("array-task-count")
@@ -78,8 +78,8 @@ func arrayTask(c *cli.Context, getenv func(string) string) (i, n int, err error)
 	if err != nil || !ok {
 		return 0, 0, err
 	}
-	fmt.Fprintf(c.App.ErrWriter, "compare: array task %d of %d, from %s=%s, %s=%s and %s=%s (give --array-task and --array-task-count to override)\n",
-		i, n, compare.EnvTaskID, getenv(compare.EnvTaskID), compare.EnvTaskMin, getenv(compare.EnvTaskMin), compare.EnvTaskCount, getenv(compare.EnvTaskCount))
+	fmt.Fprintf(c.App.ErrWriter, "%s: array task %d of %d, from %s=%s, %s=%s and %s=%s (give --array-task and --array-task-count to override)\n",
+		c.Command.Name, i, n, compare.EnvTaskID, getenv(compare.EnvTaskID), compare.EnvTaskMin, getenv(compare.EnvTaskMin), compare.EnvTaskCount, getenv(compare.EnvTaskCount))
 	return i, n, nil
 }
 

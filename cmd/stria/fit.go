@@ -57,7 +57,7 @@ func fitCommand() *cli.Command {
 				}
 				return printFitSlurmScript(c.App.Writer, c.String("config"), cfg.Output, n)
 			}
-			task, tasks, err := fitArrayTaskOf(c, os.Getenv)
+			task, tasks, err := arrayTask(c, os.Getenv)
 			if err != nil {
 				return err
 			}

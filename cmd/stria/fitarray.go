@@ -11,12 +11,9 @@ import (
 	"slices"
 	"strings"
 
-	"github.com/urfave/cli/v2"
-
 	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/data/condstats"
 	"github.com/strialab/stria/train"
-	"github.com/strialab/stria/train/compare"
 	"github.com/strialab/stria/train/runfolder"
 	"github.com/strialab/stria/train/settings"
 )
@@ -33,26 +30,6 @@ import (
 //     the readouts and writes the run folder exactly as stria fit on one
 //     machine does, then removes the tasks' statistics and writes
 //     complete.json last.
-
-// fitArrayTaskOf reads --array-task and --array-task-count, or Slurm's
-// job-array environment (saying so on stderr); 0, 0: not an array task.
-func fitArrayTaskOf(c *cli.Context, getenv func(string) string) (i, n int, err error) {
-	given, count := c.IsSet("array-task"), c.IsSet("array-task-count")
-	if given != count {
-		return 0, 0, fmt.Errorf("fit: give both --array-task and --array-task-count (or neither)")
-	}
-	if given {
-		i, n = c.Int("array-task"), c.Int("array-task-count")
-		return i, n, compare.CheckArrayTask(i, n)
-	}
-	i, n, ok, err := compare.ArrayTaskFromEnv(getenv)
-	if err != nil || !ok {
-		return 0, 0, err
-	}
-	fmt.Fprintf(c.App.ErrWriter, "fit: array task %d of %d, from %s=%s, %s=%s and %s=%s (give --array-task and --array-task-count to override)\n",
-		i, n, compare.EnvTaskID, getenv(compare.EnvTaskID), compare.EnvTaskMin, getenv(compare.EnvTaskMin), compare.EnvTaskCount, getenv(compare.EnvTaskCount))
-	return i, n, nil
-}
 
 // checkArrayFit refuses a config whose fit cannot be spread over array
 // tasks: a model that needs every trial, or responses that are not .npy.
