@@ -1,12 +1,5 @@
 package eval
 
-import (
-	"runtime"
-	"runtime/debug"
-	"sync"
-	"sync/atomic"
-)
-
 // heldOutBlock is the number of neurons one worker of HeldOutSumsOf sums at
 // a time.
 const heldOutBlock = 512
@@ -42,63 +35,29 @@ func HeldOutSumsOf(y []float32, n int, trials, cond []int, nbins int) *HeldOutSu
 	}
 	h.RefCond = sh.ci[0]
 	r0 := trials[0]
-	nblocks := (n + heldOutBlock - 1) / heldOutBlock
-	workers := min(runtime.GOMAXPROCS(0), nblocks)
-	var next atomic.Int64
-	var wg sync.WaitGroup
-	var saved struct {
-		sync.Mutex
-		v any
-	}
-	for range workers {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			defer func() {
-				if r := recover(); r != nil {
-					saved.Lock()
-					if saved.v == nil {
-						saved.v = r
-					}
-					saved.Unlock()
-				}
-			}()
-			debug.SetPanicOnFault(true)
-			for {
-				blk := int(next.Add(1) - 1)
-				if blk >= nblocks {
-					return
-				}
-				n0 := blk * heldOutBlock
-				n1 := min(n0+heldOutBlock, n)
-				ref := h.Ref[n0:n1]
-				for j, v := range y[r0*n+n0 : r0*n+n1] {
-					ref[j] = float64(v)
-				}
-				// The arithmetic of scorer.blockConditions, element by element.
-				for i, r := range trials {
-					c := sh.ci[i]
-					yr := y[r*n+n0 : r*n+n1]
-					sy := h.Sum[c*n+n0 : c*n+n1]
-					sq := h.SumSq[c*n+n0 : c*n+n1]
-					for j, v := range yr {
-						d := float64(v) - ref[j]
-						sy[j] += d
-						sq[j] += d * d
-					}
-					if !sh.half[i] {
-						sa := h.SumA[c*n+n0 : c*n+n1]
-						for j, v := range yr {
-							sa[j] += float64(v) - ref[j]
-						}
-					}
+	forBlocks(n, heldOutBlock, func() struct{} { return struct{}{} }, func(_ struct{}, n0, n1 int) {
+		ref := h.Ref[n0:n1]
+		for j, v := range y[r0*n+n0 : r0*n+n1] {
+			ref[j] = float64(v)
+		}
+		// The arithmetic of scorer.blockConditions, element by element.
+		for i, r := range trials {
+			c := sh.ci[i]
+			yr := y[r*n+n0 : r*n+n1]
+			sy := h.Sum[c*n+n0 : c*n+n1]
+			sq := h.SumSq[c*n+n0 : c*n+n1]
+			for j, v := range yr {
+				d := float64(v) - ref[j]
+				sy[j] += d
+				sq[j] += d * d
+			}
+			if !sh.half[i] {
+				sa := h.SumA[c*n+n0 : c*n+n1]
+				for j, v := range yr {
+					sa[j] += float64(v) - ref[j]
 				}
 			}
-		}()
-	}
-	wg.Wait()
-	if saved.v != nil {
-		panic(saved.v)
-	}
+		}
+	})
 	return h
 }

@@ -146,16 +146,26 @@ func newShared(fn string, y []float32, n int, trials, cond []int, pred []float64
 // eachBlock scores the neurons in blocks of scoreBlock, the blocks shared
 // out to one worker per core, each with its own scratch space. Each
 // neuron is scored by one goroutine in a fixed order, so the result does
-// not depend on scheduling.
+// not depend on scheduling. A fault in a worker reaches the caller as
+// forBlocks says.
+func eachBlock(dst []Scores, sh *shared, score func(sc *scorer, dst []Scores, n0, w int)) {
+	forBlocks(sh.n, scoreBlock, func() *scorer { return newScorer(sh.nbins) }, func(sc *scorer, n0, n1 int) {
+		score(sc, dst[n0:n1], n0, n1-n0)
+	})
+}
+
+// forBlocks runs do over the neuron blocks [n0, n1) of size block that
+// cover n neurons, on one worker per core (at most one per block), each
+// with its own scratch from newScratch. Which worker takes a block
+// depends on scheduling, so do must write only its block's values.
 //
 // The responses may be a mapped file: a worker that panics (a memory
 // fault when the file is truncated, which debug.SetPanicOnFault turns
 // into a panic in each worker) stops, and the first panic value is raised
 // again on the caller's goroutine after every worker has ended, where the
 // caller's format.Guard turns a fault into an error naming the file.
-func eachBlock(dst []Scores, sh *shared, score func(sc *scorer, dst []Scores, n0, w int)) {
-	n := sh.n
-	nblocks := (n + scoreBlock - 1) / scoreBlock
+func forBlocks[S any](n, block int, newScratch func() S, do func(s S, n0, n1 int)) {
+	nblocks := (n + block - 1) / block
 	workers := min(runtime.GOMAXPROCS(0), nblocks)
 	var next atomic.Int64
 	var wg sync.WaitGroup
@@ -163,7 +173,7 @@ func eachBlock(dst []Scores, sh *shared, score func(sc *scorer, dst []Scores, n0
 		sync.Mutex
 		v any
 	}
-	for w := 0; w < workers; w++ {
+	for range workers {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
@@ -177,15 +187,14 @@ func eachBlock(dst []Scores, sh *shared, score func(sc *scorer, dst []Scores, n0
 				}
 			}()
 			debug.SetPanicOnFault(true)
-			sc := newScorer(sh.nbins)
+			sc := newScratch()
 			for {
 				blk := int(next.Add(1) - 1)
 				if blk >= nblocks {
 					return
 				}
-				n0 := blk * scoreBlock
-				n1 := min(n0+scoreBlock, n)
-				score(sc, dst[n0:n1], n0, n1-n0)
+				n0 := blk * block
+				do(sc, n0, min(n0+block, n))
 			}
 		}()
 	}
