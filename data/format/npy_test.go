@@ -367,13 +367,15 @@ func readNPY64File(path string) ([]float64, error) {
 }
 
 // TestWriteNPY64Rows: a file written a block of rows at a time reads back
-// as WriteNPY64 of the whole array writes it, byte for byte.
+// as WriteNPY64 of the whole array writes it, byte for byte, and fill is
+// called for consecutive blocks in ascending order (it is computed while
+// the block before is written).
 func TestWriteNPY64Rows(t *testing.T) {
 	dir := t.TempDir()
 	for _, tc := range []struct {
 		name       string
 		rows, cols int
-	}{{"one block", 3, 5}, {"many blocks", 1500, 700}, {"empty", 0, 4}} {
+	}{{"one block", 3, 5}, {"many blocks", 3100, 700}, {"empty", 0, 4}} {
 		t.Run(tc.name, func(t *testing.T) {
 			all := make([]float64, tc.rows*tc.cols)
 			for i := range all {
@@ -383,11 +385,23 @@ func TestWriteNPY64Rows(t *testing.T) {
 			if err := WriteNPY64(a, []int{tc.rows, tc.cols}, all); err != nil {
 				t.Fatal(err)
 			}
+			next, calls := 0, 0
 			err := WriteNPY64Rows(b, tc.rows, tc.cols, func(dst []float64, r0, r1 int) {
+				if r0 != next || r1 <= r0 || len(dst) != (r1-r0)*tc.cols {
+					t.Errorf("fill(%d values, %d, %d) after rows up to %d", len(dst), r0, r1, next)
+				}
+				next = r1
+				calls++
 				copy(dst, all[r0*tc.cols:r1*tc.cols])
 			})
 			if err != nil {
 				t.Fatal(err)
+			}
+			if next != tc.rows {
+				t.Errorf("fill reached row %d, want %d", next, tc.rows)
+			}
+			if tc.name == "many blocks" && calls < 3 {
+				t.Errorf("fill was called %d times, want at least 3 blocks", calls)
 			}
 			ba, _ := os.ReadFile(a)
 			bb, _ := os.ReadFile(b)

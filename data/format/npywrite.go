@@ -104,42 +104,86 @@ func writeNPY(path, descr string, shape []int, raw []byte, n int, put func(b []b
 
 // WriteNPY64Rows is WriteNPY64 for a rows x cols array produced a block of
 // rows at a time: fill(dst, r0, r1) writes rows [r0, r1) into dst
-// ((r1-r0) x cols). Memory is one block of about 4 MiB, whatever the size
-// of the array (a readout of a million neurons). Writing is atomic as for
-// WriteNPY.
+// ((r1-r0) x cols). fill is called for consecutive blocks in ascending
+// order, one call at a time, on another goroutine than the writes, so
+// that the next block is computed while the last one is written. Memory
+// is two blocks of about 8 MiB, whatever the size of the array (a readout
+// of a million neurons). Writing is atomic as for WriteNPY; a memory
+// fault in fill (values mapped from a file that shrank) is an error, as
+// in the writes.
 func WriteNPY64Rows(path string, rows, cols int, fill func(dst []float64, r0, r1 int)) error {
 	if rows < 0 || cols < 0 {
 		panic(fmt.Sprintf("data: WriteNPY64Rows negative shape %d x %d", rows, cols))
 	}
-	R := max(1, (4<<20)/(8*max(cols, 1)))
-	buf := make([]float64, min(R, max(rows, 1))*cols)
+	R := max(1, rowsBlockBytes/(8*max(cols, 1)))
+	R = min(R, max(rows, 1))
+	bufs := [2][]float64{make([]float64, R*cols), make([]float64, R*cols)}
 	var bytes []byte
 	if !HostLittle {
-		bytes = make([]byte, 8*len(buf))
+		bytes = make([]byte, 8*R*cols)
 	}
 	return writeNPYBody(path, "<f8", []int{rows, cols}, nil, 0, nil, 8, func(w *bufio.Writer) error {
-		for r0 := 0; r0 < rows; r0 += R {
+		// The filler takes a free buffer, fills the next block and hands it
+		// over; the blocks arrive in order (one filler, FIFO channel).
+		free := make(chan int, 2)
+		free <- 0
+		free <- 1
+		full := make(chan int, 2)
+		stop := make(chan struct{})
+		var g GuardGroup
+		g.Go(func() {
+			defer close(full)
+			for r0 := 0; r0 < rows; r0 += R {
+				var i int
+				select {
+				case i = <-free:
+				case <-stop:
+					return
+				}
+				fill(bufs[i][:(min(r0+R, rows)-r0)*cols], r0, min(r0+R, rows))
+				full <- i
+			}
+		})
+		var err error
+		r0 := 0
+		for i := range full {
 			r1 := min(r0+R, rows)
-			v := buf[:(r1-r0)*cols]
-			fill(v, r0, r1)
-			var b []byte
-			if HostLittle {
-				if len(v) == 0 {
-					continue
-				}
-				b = unsafe.Slice((*byte)(unsafe.Pointer(&v[0])), 8*len(v))
-			} else {
-				b = bytes[:8*len(v)]
-				for i, x := range v {
-					binary.LittleEndian.PutUint64(b[8*i:], math.Float64bits(x))
+			if err == nil {
+				if err = writeFloat64s(w, bufs[i][:(r1-r0)*cols], bytes); err != nil {
+					close(stop)
 				}
 			}
-			if _, err := w.Write(b); err != nil {
-				return err
-			}
+			r0 = r1
+			free <- i
 		}
-		return nil
+		if gerr := g.Wait(); err == nil {
+			err = gerr
+		}
+		return err
 	})
+}
+
+// rowsBlockBytes is the size of one of WriteNPY64Rows' two blocks.
+const rowsBlockBytes = 8 << 20
+
+// writeFloat64s writes v little-endian to w; scratch holds 8 len(v)
+// bytes on a big-endian host (nil on a little-endian one, where v's own
+// bytes are written).
+func writeFloat64s(w *bufio.Writer, v []float64, scratch []byte) error {
+	if len(v) == 0 {
+		return nil
+	}
+	var b []byte
+	if HostLittle {
+		b = unsafe.Slice((*byte)(unsafe.Pointer(&v[0])), 8*len(v))
+	} else {
+		b = scratch[:8*len(v)]
+		for i, x := range v {
+			binary.LittleEndian.PutUint64(b[8*i:], math.Float64bits(x))
+		}
+	}
+	_, err := w.Write(b)
+	return err
 }
 
 // writeNPYBody writes header and data atomically: body writes the data

@@ -234,3 +234,51 @@ func BenchmarkPoissonPenalty(b *testing.B) {
 
 // first returns the curves of ridgePath.readout.
 func first(curves []float64, _ func([]float64, int, int)) []float64 { return curves }
+
+// randomReadout is a projector and ridge path of the full-size shape (B =
+// Bt = 60 bins, F = 480 features) over N neurons with random features,
+// eigenvectors and z, enough for ridgePath.readout; penalties alternate
+// between neurons.
+func randomReadout(N int) (*projector, *ridgePath, []int) {
+	const B, F = 60, 480
+	rng := rand.New(rand.NewPCG(5, 7))
+	fill := func(n int) []float64 {
+		v := make([]float64, n)
+		for i := range v {
+			v[i] = rng.NormFloat64()
+		}
+		return v
+	}
+	pj := &projector{B: B, Bt: B, F: F, N: N, a: fill(B * F), h: fill(B * F), hbar: fill(F), ymean: fill(N)}
+	rp := &ridgePath{mu: []float64{0.1, 1, 10}, s: fill(B), u: fill(B * B), z: fill(B * N)}
+	for j := range rp.s {
+		rp.s[j] *= rp.s[j]
+	}
+	pick := make([]int, N)
+	for n := range pick {
+		pick[n] = n % 3
+	}
+	return pj, rp, pick
+}
+
+// BenchmarkReadoutWeights: the readout weights of 20,000 neurons at the
+// full-size shape (B 60, F 480), N x F x B multiply-adds, the part of
+// writing parameters/readout_weight.npy that is computation. Reports wall
+// and CPU time per neuron (the CPU time is what a busy machine does not
+// distort).
+func BenchmarkReadoutWeights(b *testing.B) {
+	const N = 20000
+	pj, rp, pick := randomReadout(N)
+	_, weights := rp.readout(pj, make([]float64, N), pick)
+	dst := make([]float64, 2048*pj.F)
+	b.ResetTimer()
+	c0 := cpuSeconds()
+	for range b.N {
+		for n0 := 0; n0 < N; n0 += 2048 {
+			n1 := min(n0+2048, N)
+			weights(dst[:(n1-n0)*pj.F], n0, n1)
+		}
+	}
+	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N*N), "ns/neuron")
+	b.ReportMetric((cpuSeconds()-c0)*1e9/float64(b.N*N), "cpu-ns/neuron")
+}

@@ -5,6 +5,7 @@ import (
 	"math"
 	"runtime"
 	"sync"
+	"sync/atomic"
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
@@ -339,10 +340,9 @@ func (rp *ridgePath) perNeuronSURE(pj *projector, withinN []float64) []int {
 // z_n, c_n = ybar_n - hbar . w_n = ybar_n - (U^T A hbar) . zs_n with zs_n
 // = diag(1/(s+mu_n)) z_n) and returns the per-bin predictions (B x N,
 // trained units) and a function writing the weights of neurons [n0, n1)
-// into dst ((n1-n0) x F; not safe for concurrent use). Everything goes by
-// blocks of neurons, with
-// scratch of (B + F) x neuronBlock. The features must be those of the
-// last decompose.
+// into dst ((n1-n0) x F; on all cores; not safe for concurrent use).
+// Everything goes by blocks of neurons, with scratch of B x neuronBlock.
+// The features must be those of the last decompose.
 func (rp *ridgePath) readout(pj *projector, c []float64, pick []int) (curves []float64, weights func(dst []float64, n0, n1 int)) {
 	B, Bt, F, N := pj.B, pj.Bt, pj.F, pj.N
 	z := rp.zeta(pj)
@@ -354,6 +354,15 @@ func (rp *ridgePath) readout(pj *projector, c []float64, pick []int) (curves []f
 			row := dst[j*nb : (j+1)*nb]
 			for n, v := range z[j*N+n0 : j*N+n0+nb] {
 				row[n] = v / (sj + mu[pick[n0+n]])
+			}
+		}
+	}
+	// zsBlockT writes the same values transposed (nb x Bt).
+	zsBlockT := func(dst []float64, n0, nb int) {
+		for j := 0; j < Bt; j++ {
+			sj := s[j]
+			for n, v := range z[j*N+n0 : j*N+n0+nb] {
+				dst[n*Bt+j] = v / (sj + mu[pick[n0+n]])
 			}
 		}
 	}
@@ -400,30 +409,58 @@ func (rp *ridgePath) readout(pj *projector, c []float64, pick []int) (curves []f
 			}
 		}
 	}
-	// The weights function reuses one scratch of (Bt + F) x neuronBlock:
-	// it is not safe for concurrent use.
-	var zb, wt []float64
+	// W (nb x F, row-major, as dst) = zs^T (nb x Bt) AU^T (Bt x F): one
+	// product per block of neurons straight into dst, on gonum's
+	// goroutines. Every weight is sum_j zs_jn AU_fj over j in ascending
+	// order, unfused, starting from 0: the arithmetic of the former
+	// AU zs (F x nb) followed by a transposition, so the same bits
+	// (TestReadoutWeightsMatchFormer), and on any number of cores.
+	aut := make([]float64, Bt*F)
+	for f := 0; f < F; f++ {
+		for j, x := range au[f*Bt : (f+1)*Bt] {
+			aut[j*F+f] = x
+		}
+	}
+	// The weights go by blocks of weightsBlock neurons on up to GOMAXPROCS
+	// goroutines, each with its own scratch; a weight does not depend on
+	// the block it is computed in, so neither do the results on the cores.
+	var scratch [][]float64
 	weights = func(dst []float64, n0, n1 int) {
 		if n0 < 0 || n1 > N || n0 > n1 || len(dst) != (n1-n0)*F {
 			panic(fmt.Sprintf("train: readout weights [%d, %d) of %d neurons into %d values, want (n1-n0) x %d", n0, n1, N, len(dst), F))
 		}
-		if zb == nil {
-			zb = make([]float64, Bt*min(N, neuronBlock))
-			wt = make([]float64, F*min(N, neuronBlock))
+		nblk := (n1 - n0 + weightsBlock - 1) / weightsBlock
+		workers := min(runtime.GOMAXPROCS(0), nblk)
+		for len(scratch) < workers {
+			scratch = append(scratch, make([]float64, Bt*weightsBlock))
 		}
-		for m0 := n0; m0 < n1; m0 += neuronBlock {
-			nb := min(neuronBlock, n1-m0)
-			zsBlock(zb[:Bt*nb], m0, nb)
-			blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(au, F, Bt), gen(zb[:Bt*nb], Bt, nb), 0, gen(wt[:F*nb], F, nb))
-			for f := 0; f < F; f++ {
-				for n, x := range wt[f*nb : (f+1)*nb] {
-					dst[(m0-n0+n)*F+f] = x
+		var next atomic.Int64
+		var wg sync.WaitGroup
+		for w := range workers {
+			wg.Add(1)
+			go func(zt []float64) {
+				defer wg.Done()
+				for {
+					i := int(next.Add(1) - 1)
+					if i >= nblk {
+						return
+					}
+					m0 := n0 + i*weightsBlock
+					nb := min(weightsBlock, n1-m0)
+					zsBlockT(zt[:nb*Bt], m0, nb)
+					mulWeights(dst[(m0-n0)*F:(m0-n0+nb)*F], zt[:nb*Bt], aut, nb, Bt, F)
 				}
-			}
+			}(scratch[w])
 		}
+		wg.Wait()
 	}
 	return out, weights
 }
+
+// weightsBlock is the number of neurons of one task of the readout
+// weights (a multiple of mulWeights' 4-neuron tiles): Bt x weightsBlock
+// values of scratch per goroutine.
+const weightsBlock = 256
 
 // parallelBlocks calls do on the blocks [n0, n1) of neuronBlock neurons
 // that cover [0, N), on up to GOMAXPROCS goroutines, and waits.

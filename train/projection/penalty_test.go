@@ -5,6 +5,9 @@ import (
 	"slices"
 	"testing"
 
+	"gonum.org/v1/gonum/blas"
+	"gonum.org/v1/gonum/blas/blas64"
+
 	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/nn"
 )
@@ -137,6 +140,60 @@ func TestReadoutBlocksFixed(t *testing.T) {
 				if math.Abs(cmp.got[i]-v) > 1e-9*math.Max(1, math.Abs(v)) {
 					t.Fatalf("dead %v: %s[%d] = %v, Readout gives %v", dead, cmp.name, i, cmp.got[i], v)
 				}
+			}
+		}
+	}
+}
+
+// TestReadoutWeightsMatchFormer: the weights function gives, bit for bit,
+// the weights of the former arithmetic (AU zs as one F x nb product, then
+// transposed into dst), with several penalties across neurons and on
+// blocks that do not start at a block boundary. The run folder's
+// readout_weight.npy must not change with the speed of its computation.
+func TestReadoutWeightsMatchFormer(t *testing.T) {
+	c, net := synthCase(t, nn.Circular, 1)
+	pj, err := newProjector(&c.pr, net)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rp := newRidgePath(pj, []float64{1e-4, 1e-2, 0.3, 10})
+	if err := rp.decompose(pj, net); err != nil {
+		t.Fatal(err)
+	}
+	Bt, F, N := pj.Bt, pj.F, pj.N
+	pick := make([]int, N)
+	for n := range pick {
+		pick[n] = (3 * n) % len(rp.mu)
+	}
+	_, weights := rp.readout(pj, make([]float64, N), pick)
+	// The former arithmetic, as it was written in ridgePath.readout.
+	z := rp.zeta(pj)
+	au := make([]float64, F*Bt)
+	blas64.Gemm(blas.Trans, blas.NoTrans, 1, gen(pj.a, Bt, F), gen(rp.u, Bt, Bt), 0, gen(au, F, Bt))
+	want := make([]float64, N*F)
+	zb := make([]float64, Bt*N)
+	for j := 0; j < Bt; j++ {
+		for n := 0; n < N; n++ {
+			zb[j*N+n] = z[j*N+n] / (rp.s[j] + rp.mu[pick[n]])
+		}
+	}
+	wt := make([]float64, F*N)
+	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(au, F, Bt), gen(zb, Bt, N), 0, gen(wt, F, N))
+	for f := 0; f < F; f++ {
+		for n := 0; n < N; n++ {
+			want[n*F+f] = wt[f*N+n]
+		}
+	}
+	for _, r := range []struct {
+		name   string
+		n0, n1 int
+	}{{"all", 0, N}, {"inner", 3, N - 2}, {"one", N / 2, N/2 + 1}, {"none", 5, 5}} {
+		got := make([]float64, (r.n1-r.n0)*F)
+		weights(got, r.n0, r.n1)
+		for i, g := range got {
+			if w := want[r.n0*F+i]; math.Float64bits(g) != math.Float64bits(w) {
+				t.Errorf("%s: weight %d of neuron %d: got %v want %v (former arithmetic)", r.name, i%F, r.n0+i/F, g, w)
+				break
 			}
 		}
 	}

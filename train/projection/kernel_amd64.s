@@ -1,0 +1,78 @@
+#include "textflag.h"
+
+// func tile4x8(dst *float64, ldd int, z *float64, ldz int, a *float64, lda int, k int)
+//
+// dst[i][c] = sum_{j<k} z[i][j] * a[j][c] for rows i in [0, 4) and columns c
+// in [0, 8) (strides ldd, ldz and lda in elements): every sum starts at +0
+// and adds the rounded products in ascending j (VMULPD then VADDPD, never
+// fused), the arithmetic of gonum's Dgemm. Needs AVX2.
+TEXT ·tile4x8(SB), NOSPLIT, $0-56
+	MOVQ dst+0(FP), DI
+	MOVQ ldd+8(FP), R8
+	MOVQ z+16(FP), SI
+	MOVQ ldz+24(FP), R9
+	MOVQ a+32(FP), DX
+	MOVQ lda+40(FP), R10
+	MOVQ k+48(FP), CX
+	SHLQ $3, R8
+	SHLQ $3, R9
+	SHLQ $3, R10
+	LEAQ (SI)(R9*1), R11
+	LEAQ (R11)(R9*1), R12
+	LEAQ (R12)(R9*1), R13
+	VXORPD Y0, Y0, Y0
+	VXORPD Y1, Y1, Y1
+	VXORPD Y2, Y2, Y2
+	VXORPD Y3, Y3, Y3
+	VXORPD Y4, Y4, Y4
+	VXORPD Y5, Y5, Y5
+	VXORPD Y6, Y6, Y6
+	VXORPD Y7, Y7, Y7
+	TESTQ CX, CX
+	JE    store
+
+loop:
+	VMOVUPD      (DX), Y8
+	VMOVUPD      32(DX), Y9
+	VBROADCASTSD (SI), Y10
+	VMULPD       Y8, Y10, Y11
+	VADDPD       Y11, Y0, Y0
+	VMULPD       Y9, Y10, Y12
+	VADDPD       Y12, Y1, Y1
+	VBROADCASTSD (R11), Y13
+	VMULPD       Y8, Y13, Y14
+	VADDPD       Y14, Y2, Y2
+	VMULPD       Y9, Y13, Y15
+	VADDPD       Y15, Y3, Y3
+	VBROADCASTSD (R12), Y10
+	VMULPD       Y8, Y10, Y11
+	VADDPD       Y11, Y4, Y4
+	VMULPD       Y9, Y10, Y12
+	VADDPD       Y12, Y5, Y5
+	VBROADCASTSD (R13), Y13
+	VMULPD       Y8, Y13, Y14
+	VADDPD       Y14, Y6, Y6
+	VMULPD       Y9, Y13, Y15
+	VADDPD       Y15, Y7, Y7
+	ADDQ         $8, SI
+	ADDQ         $8, R11
+	ADDQ         $8, R12
+	ADDQ         $8, R13
+	ADDQ         R10, DX
+	DECQ         CX
+	JNZ          loop
+
+store:
+	VMOVUPD Y0, (DI)
+	VMOVUPD Y1, 32(DI)
+	ADDQ    R8, DI
+	VMOVUPD Y2, (DI)
+	VMOVUPD Y3, 32(DI)
+	ADDQ    R8, DI
+	VMOVUPD Y4, (DI)
+	VMOVUPD Y5, 32(DI)
+	ADDQ    R8, DI
+	VMOVUPD Y6, (DI)
+	VMOVUPD Y7, 32(DI)
+	VZEROUPPER
+	RET
