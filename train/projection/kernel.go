@@ -5,42 +5,54 @@ import (
 	"gonum.org/v1/gonum/blas/blas64"
 )
 
-// mulWeights writes dst = z a: dst (nb x F), z (nb x Bt), a (Bt x F), all
-// row-major, with the arithmetic of gonum's Dgemm, bit for bit: every
-// element is sum_j z[n][j] a[j][f] taken over j in ascending order from
-// +0, each product rounded before it is added (never fused). On amd64 with
-// AVX2 a kernel in registers (kernel_amd64.s, tiles of 4 neurons x 8
-// features, about 5 times Dgemm's speed) does the whole tiles and Go the
-// rest; elsewhere it is Dgemm itself. It runs on the calling goroutine.
-// It panics if a slice is too short.
-func mulWeights(dst, z, a []float64, nb, Bt, F int) {
-	if nb == 0 || F == 0 {
+// mulInto writes dst = x a for x (m x k, row stride ldx), a (k x n, row
+// stride lda) and dst (m x n, row stride ldd), with the arithmetic of
+// gonum's Dgemm, bit for bit: every element is sum_j x[i][j] a[j][c]
+// taken over j in ascending order from +0, each product rounded before it
+// is added (never fused). On amd64 with AVX2 a kernel in registers
+// (kernel_amd64.s, tiles of 4 rows x 8 columns; about 5 times Dgemm's
+// speed) does the whole tiles and Go the rest; elsewhere it is Dgemm
+// itself. It runs on the calling goroutine. It panics if a slice is too
+// short for its shape.
+func mulInto(dst []float64, ldd int, x []float64, ldx int, a []float64, lda int, m, k, n int) {
+	if m == 0 || n == 0 {
 		return
 	}
-	if Bt == 0 {
-		clear(dst[:nb*F])
-		return
-	}
-	_, _, _ = dst[nb*F-1], z[nb*Bt-1], a[Bt*F-1]
-	if !hasTile4x8 {
-		blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(z[:nb*Bt], nb, Bt), gen(a[:Bt*F], Bt, F), 0, gen(dst[:nb*F], nb, F))
-		return
-	}
-	rows, cols := mulTiles(dst, z, a, nb, Bt, F)
-	// The columns right of the tiles, then the rows below them.
-	for n := 0; n < nb; n++ {
-		f0 := cols
-		if n >= rows {
-			f0 = 0
+	_ = dst[(m-1)*ldd+n-1]
+	if k == 0 {
+		for i := 0; i < m; i++ {
+			clear(dst[i*ldd : i*ldd+n])
 		}
-		zn := z[n*Bt : n*Bt+Bt : n*Bt+Bt]
-		d := dst[n*F : n*F+F : n*F+F]
-		for f := f0; f < F; f++ {
-			var c float64
-			for j, x := range zn {
-				c += float64(x * a[j*F+f])
+		return
+	}
+	_, _ = x[(m-1)*ldx+k-1], a[(k-1)*lda+n-1]
+	if !hasTile4x8 {
+		blas64.Gemm(blas.NoTrans, blas.NoTrans, 1,
+			blas64.General{Rows: m, Cols: k, Stride: ldx, Data: x[:(m-1)*ldx+k]},
+			blas64.General{Rows: k, Cols: n, Stride: lda, Data: a[:(k-1)*lda+n]}, 0,
+			blas64.General{Rows: m, Cols: n, Stride: ldd, Data: dst[:(m-1)*ldd+n]})
+		return
+	}
+	rows, cols := m&^3, n&^7
+	for i := 0; i < rows; i += 4 {
+		for c := 0; c < cols; c += 8 {
+			tile4x8(&dst[i*ldd+c], ldd, &x[i*ldx], ldx, &a[c], lda, k)
+		}
+	}
+	// The columns right of the tiles, then the rows below them.
+	for i := 0; i < m; i++ {
+		c0 := cols
+		if i >= rows {
+			c0 = 0
+		}
+		xi := x[i*ldx : i*ldx+k : i*ldx+k]
+		d := dst[i*ldd : i*ldd+n : i*ldd+n]
+		for c := c0; c < n; c++ {
+			var s float64
+			for j, v := range xi {
+				s += float64(v * a[j*lda+c])
 			}
-			d[f] = c
+			d[c] = s
 		}
 	}
 }

@@ -1,16 +1,16 @@
 #include "textflag.h"
 
-// func tile4x8(dst *float64, ldd int, z *float64, ldz int, a *float64, lda int, k int)
+// func tile4x8(dst *float64, ldd int, x *float64, ldx int, a *float64, lda int, k int)
 //
-// dst[i][c] = sum_{j<k} z[i][j] * a[j][c] for rows i in [0, 4) and columns c
-// in [0, 8) (strides ldd, ldz and lda in elements): every sum starts at +0
+// dst[i][c] = sum_{j<k} x[i][j] * a[j][c] for rows i in [0, 4) and columns c
+// in [0, 8) (strides ldd, ldx and lda in elements): every sum starts at +0
 // and adds the rounded products in ascending j (VMULPD then VADDPD, never
 // fused), the arithmetic of gonum's Dgemm. Needs AVX2.
 TEXT ·tile4x8(SB), NOSPLIT, $0-56
 	MOVQ dst+0(FP), DI
 	MOVQ ldd+8(FP), R8
-	MOVQ z+16(FP), SI
-	MOVQ ldz+24(FP), R9
+	MOVQ x+16(FP), SI
+	MOVQ ldx+24(FP), R9
 	MOVQ a+32(FP), DX
 	MOVQ lda+40(FP), R10
 	MOVQ k+48(FP), CX
@@ -74,5 +74,43 @@ store:
 	ADDQ    R8, DI
 	VMOVUPD Y6, (DI)
 	VMOVUPD Y7, 32(DI)
+	VZEROUPPER
+	RET
+
+// func sq8(dst *float64, z *float64, ldz int, c *float64, k int)
+//
+// dst[i] = sum_{j<k} (c[j] * z[j][i])^2 for i in [0, 8) (row stride ldz in
+// elements): every sum starts at +0 and adds, in ascending j, the square
+// of the rounded product, itself rounded (VMULPD, VMULPD, VADDPD, never
+// fused): the arithmetic of q := c*v; s += q*q compiled for amd64. Needs
+// AVX2.
+TEXT ·sq8(SB), NOSPLIT, $0-40
+	MOVQ   dst+0(FP), DI
+	MOVQ   z+8(FP), SI
+	MOVQ   ldz+16(FP), R8
+	MOVQ   c+24(FP), DX
+	MOVQ   k+32(FP), CX
+	SHLQ   $3, R8
+	VXORPD Y0, Y0, Y0
+	VXORPD Y1, Y1, Y1
+	TESTQ  CX, CX
+	JE     sqstore
+
+sqloop:
+	VBROADCASTSD (DX), Y2
+	VMULPD       (SI), Y2, Y3
+	VMULPD       32(SI), Y2, Y4
+	VMULPD       Y3, Y3, Y3
+	VMULPD       Y4, Y4, Y4
+	VADDPD       Y3, Y0, Y0
+	VADDPD       Y4, Y1, Y1
+	ADDQ         $8, DX
+	ADDQ         R8, SI
+	DECQ         CX
+	JNZ          sqloop
+
+sqstore:
+	VMOVUPD Y0, (DI)
+	VMOVUPD Y1, 32(DI)
 	VZEROUPPER
 	RET

@@ -10,10 +10,11 @@ import (
 	"gonum.org/v1/gonum/blas/blas64"
 )
 
-// TestMulWeightsMatchesDgemm: mulWeights gives gonum's Dgemm bit for bit,
-// on shapes with and without whole 4 x 8 tiles, with zeros among the
-// operands (Dgemm skips a zero of z) and values of many magnitudes.
-func TestMulWeightsMatchesDgemm(t *testing.T) {
+// TestMulIntoMatchesDgemm: mulInto gives gonum's Dgemm bit for bit, on
+// shapes with and without whole 4 x 8 tiles, with row strides wider than
+// the rows, with zeros among the operands (Dgemm skips a zero of x) and
+// values of many magnitudes; it writes nothing outside dst's m x n.
+func TestMulIntoMatchesDgemm(t *testing.T) {
 	rng := rand.New(rand.NewPCG(3, 9))
 	val := func() float64 {
 		if rng.IntN(10) == 0 {
@@ -22,32 +23,114 @@ func TestMulWeightsMatchesDgemm(t *testing.T) {
 		return rng.NormFloat64() * math.Pow(10, float64(rng.IntN(13)-6))
 	}
 	t.Logf("amd64 kernel in use: %v", hasTile4x8)
-	for _, s := range []struct{ nb, Bt, F int }{
-		{1, 1, 1}, {4, 60, 8}, {7, 5, 13}, {9, 60, 480}, {5, 0, 20}, {12, 31, 17}, {3, 60, 480}, {64, 60, 96},
+	if hasTile4x8 {
+		// The fallback too (it is gonum itself, so this checks the test).
+		defer func(v bool) { setTile4x8(v) }(hasTile4x8)
+		t.Run("Dgemm", func(t *testing.T) { setTile4x8(false); testMulInto(t, val) })
+		setTile4x8(true)
+	}
+	testMulInto(t, val)
+}
+
+func testMulInto(t *testing.T, val func() float64) {
+	for _, s := range []struct{ m, k, n, pad int }{
+		{1, 1, 1, 0}, {4, 60, 8, 0}, {7, 5, 13, 0}, {9, 60, 480, 0}, {5, 0, 20, 0}, {12, 31, 17, 0},
+		{3, 60, 480, 0}, {64, 60, 96, 0}, {60, 60, 100, 7}, {8, 3, 24, 1},
 	} {
-		t.Run(fmt.Sprintf("%dx%dx%d", s.nb, s.Bt, s.F), func(t *testing.T) {
-			z := make([]float64, s.nb*s.Bt)
-			a := make([]float64, s.Bt*s.F)
-			for i := range z {
-				z[i] = val()
+		t.Run(fmt.Sprintf("%dx%dx%d+%d", s.m, s.k, s.n, s.pad), func(t *testing.T) {
+			ldx, lda, ldd := s.k+s.pad, s.n+2*s.pad, s.n+3*s.pad
+			x := make([]float64, s.m*ldx)
+			a := make([]float64, max(s.k, 1)*lda)
+			for i := range x {
+				x[i] = val()
 			}
 			for i := range a {
 				a[i] = val()
 			}
-			want := make([]float64, s.nb*s.F)
-			got := make([]float64, s.nb*s.F)
+			want := make([]float64, s.m*ldd)
+			got := make([]float64, s.m*ldd)
 			for i := range got {
-				got[i] = math.NaN() // every element must be written
+				got[i] = math.NaN() // the m x n must be written, the padding not
+				want[i] = math.NaN()
 			}
-			if s.Bt > 0 {
-				blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(z, s.nb, s.Bt), gen(a, s.Bt, s.F), 0, gen(want, s.nb, s.F))
+			if s.k > 0 {
+				blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, blas64.General{Rows: s.m, Cols: s.k, Stride: ldx, Data: x},
+					blas64.General{Rows: s.k, Cols: s.n, Stride: lda, Data: a}, 0, blas64.General{Rows: s.m, Cols: s.n, Stride: ldd, Data: want})
+			} else {
+				for i := 0; i < s.m; i++ {
+					clear(want[i*ldd : i*ldd+s.n])
+				}
 			}
-			mulWeights(got, z, a, s.nb, s.Bt, s.F)
+			mulInto(got, ldd, x, ldx, a, lda, s.m, s.k, s.n)
 			for i := range want {
 				if math.Float64bits(got[i]) != math.Float64bits(want[i]) {
-					t.Fatalf("element (%d, %d): got %v want %v (gonum Dgemm)", i/s.F, i%s.F, got[i], want[i])
+					t.Fatalf("element (%d, %d): got %v want %v (gonum Dgemm)", i/ldd, i%ldd, got[i], want[i])
 				}
 			}
 		})
+	}
+}
+
+// TestSq8MatchesLoop: sq8 gives the sums of squares of perNeuronSURE's
+// loop (q := c*v; s += q*q from 0 in ascending j) bit for bit.
+func TestSq8MatchesLoop(t *testing.T) {
+	if !hasTile4x8 {
+		t.Skip("no amd64 kernel here")
+	}
+	rng := rand.New(rand.NewPCG(4, 2))
+	for _, k := range []int{0, 1, 7, 60} {
+		const ldz = 21
+		z := make([]float64, max(k, 1)*ldz)
+		c := make([]float64, max(k, 1))
+		for i := range z {
+			z[i] = rng.NormFloat64() * math.Pow(10, float64(rng.IntN(9)-4))
+		}
+		for i := range c {
+			c[i] = rng.Float64()
+		}
+		var got [8]float64
+		sq8(&got[0], &z[3], ldz, &c[0], k)
+		for i := range got {
+			var want float64
+			for j := 0; j < k; j++ {
+				q := c[j] * z[j*ldz+3+i]
+				want += q * q
+			}
+			if math.Float64bits(got[i]) != math.Float64bits(want) {
+				t.Errorf("k %d, neuron %d: got %v want %v (the Go loop)", k, i, got[i], want)
+			}
+		}
+	}
+}
+
+// TestPerNeuronSUREKernel: the per-neuron penalty choice is the same with
+// and without the amd64 kernel, over several blocks of neurons and a
+// remainder that is not a whole tile.
+func TestPerNeuronSUREKernel(t *testing.T) {
+	if !hasTile4x8 {
+		t.Skip("no amd64 kernel here")
+	}
+	N := neuronBlock + 1013
+	pj, rp, _ := randomReadout(N)
+	rp.mu = []float64{0.01, 0.1, 1, 10, 100}
+	pj.W = 500
+	rng := rand.New(rand.NewPCG(8, 1))
+	within := make([]float64, N)
+	for n := range within {
+		within[n] = 1e4 * rng.Float64() * rng.Float64()
+	}
+	got := rp.perNeuronSURE(pj, within)
+	setTile4x8(false)
+	want := rp.perNeuronSURE(pj, within)
+	setTile4x8(true)
+	seen := map[int]bool{}
+	for n := range want {
+		seen[want[n]] = true
+		if got[n] != want[n] {
+			t.Fatalf("neuron %d: grid value %d with the kernel, %d without", n, got[n], want[n])
+		}
+	}
+	if len(seen) < 2 {
+		t.Errorf("every neuron picked the same grid value; the case tests nothing")
 	}
 }

@@ -222,7 +222,6 @@ func (rp *ridgePath) zeta(pj *projector) []float64 {
 		return rp.z
 	}
 	Bt, N := pj.Bt, pj.N
-	sy := make([]float64, Bt*min(N, neuronBlock))
 	if pj.consume {
 		// In yc's own storage: each block of yc is copied to sy before
 		// z's block overwrites it.
@@ -234,16 +233,25 @@ func (rp *ridgePath) zeta(pj *projector) []float64 {
 	if !pj.consume {
 		yc = pj.yc
 	}
-	for n0 := 0; n0 < N; n0 += neuronBlock {
-		nb := min(neuronBlock, N-n0)
+	// z[:, n0:n1] = U^T sy by mulInto (Dgemm's arithmetic) with U^T
+	// copied, on all cores; the blocks of neurons are disjoint, so a block
+	// of yc is read before z overwrites it also in place.
+	ut := make([]float64, Bt*Bt)
+	for i := 0; i < Bt; i++ {
+		for l := 0; l < Bt; l++ {
+			ut[i*Bt+l] = rp.u[l*Bt+i]
+		}
+	}
+	parallelScratch(N, Bt*min(N, neuronBlock), func(n0, n1 int, sy []float64) {
+		nb := n1 - n0
 		for r := 0; r < Bt; r++ {
 			s := pj.sq[r]
 			for n, v := range yc[r*N+n0 : r*N+n0+nb] {
 				sy[r*nb+n] = s * v
 			}
 		}
-		blas64.Gemm(blas.Trans, blas.NoTrans, 1, gen(rp.u, Bt, Bt), gen(sy[:Bt*nb], Bt, nb), 0, cols(rp.z, Bt, N, n0, nb))
-	}
+		mulInto(rp.z[n0:], N, ut, Bt, sy[:Bt*nb], nb, Bt, Bt, nb)
+	})
 	return rp.z
 }
 
@@ -315,6 +323,27 @@ func (rp *ridgePath) perNeuronSURE(pj *projector, withinN []float64) []int {
 		for n := range best {
 			best[n] = math.Inf(1)
 			sigma2[n] = withinN[n0+n] / math.Max(pj.W-float64(Bt), 1)
+		}
+		if hasTile4x8 && Bt > 0 {
+			// By tiles of 8 neurons (sq8: the same sums as the loop
+			// below, bit for bit), each tile's z read from the L1 cache
+			// for every grid value; the neurons left over go below.
+			var r [8]float64
+			for m := 0; m+8 <= nb; m += 8 {
+				for g := range rp.mu {
+					sq8(&r[0], &z[n0+m], N, &coef[g*Bt], Bt)
+					for i, v := range r {
+						n := m + i
+						if v := v + 2*sigma2[n]*dfs[g]; v < best[n] {
+							best[n], pick[n0+n] = v, g
+						}
+					}
+				}
+			}
+			done := nb &^ 7
+			res, best, sigma2 = res[done:], best[done:], sigma2[done:]
+			n0 += done
+			nb -= done
 		}
 		for g := range rp.mu {
 			clear(res)
@@ -389,9 +418,10 @@ func (rp *ridgePath) readout(pj *projector, c []float64, pick []int) (curves []f
 	} else {
 		out = make([]float64, B*N)
 	}
-	zs := make([]float64, Bt*min(N, neuronBlock))
-	for n0 := 0; n0 < N; n0 += neuronBlock {
-		nb := min(neuronBlock, N-n0)
+	// Blocks of neurons on all cores: every value is computed by one
+	// goroutine in a fixed order, whatever the number of cores.
+	parallelScratch(N, Bt*min(N, neuronBlock), func(n0, n1 int, zs []float64) {
+		nb := n1 - n0
 		zb := zs[:Bt*nb]
 		zsBlock(zb, n0, nb)
 		for n := 0; n < nb; n++ {
@@ -401,14 +431,15 @@ func (rp *ridgePath) readout(pj *projector, c []float64, pick []int) (curves []f
 			}
 			c[n0+n] = ymean[n0+n] - t
 		}
-		blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(g, B, Bt), gen(zb, Bt, nb), 0, cols(out, B, N, n0, nb))
+		// out[:, n0:n1] = g zb, as Dgemm computes it (mulInto).
+		mulInto(out[n0:], N, g, Bt, zb, nb, B, Bt, nb)
 		for b := 0; b < B; b++ {
 			row := out[b*N+n0 : b*N+n0+nb]
 			for n, m := range ymean[n0 : n0+nb] {
 				row[n] += m
 			}
 		}
-	}
+	})
 	// W (nb x F, row-major, as dst) = zs^T (nb x Bt) AU^T (Bt x F): one
 	// product per block of neurons straight into dst, on gonum's
 	// goroutines. Every weight is sum_j zs_jn AU_fj over j in ascending
@@ -448,7 +479,7 @@ func (rp *ridgePath) readout(pj *projector, c []float64, pick []int) (curves []f
 					m0 := n0 + i*weightsBlock
 					nb := min(weightsBlock, n1-m0)
 					zsBlockT(zt[:nb*Bt], m0, nb)
-					mulWeights(dst[(m0-n0)*F:(m0-n0+nb)*F], zt[:nb*Bt], aut, nb, Bt, F)
+					mulInto(dst[(m0-n0)*F:(m0-n0+nb)*F], F, zt[:nb*Bt], Bt, aut, F, nb, Bt, F)
 				}
 			}(scratch[w])
 		}
@@ -458,9 +489,32 @@ func (rp *ridgePath) readout(pj *projector, c []float64, pick []int) (curves []f
 }
 
 // weightsBlock is the number of neurons of one task of the readout
-// weights (a multiple of mulWeights' 4-neuron tiles): Bt x weightsBlock
+// weights (a multiple of mulInto's 4-row tiles): Bt x weightsBlock
 // values of scratch per goroutine.
 const weightsBlock = 256
+
+// parallelScratch is parallelBlocks with scratch of size values for each
+// goroutine (do may use it freely during one call).
+func parallelScratch(N, size int, do func(n0, n1 int, scratch []float64)) {
+	nblk := (N + neuronBlock - 1) / neuronBlock
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	for range min(runtime.GOMAXPROCS(0), nblk) {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			scratch := make([]float64, size)
+			for {
+				i := int(next.Add(1) - 1)
+				if i >= nblk {
+					return
+				}
+				do(i*neuronBlock, min((i+1)*neuronBlock, N), scratch)
+			}
+		}()
+	}
+	wg.Wait()
+}
 
 // parallelBlocks calls do on the blocks [n0, n1) of neuronBlock neurons
 // that cover [0, N), on up to GOMAXPROCS goroutines, and waits.

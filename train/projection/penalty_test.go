@@ -145,10 +145,11 @@ func TestReadoutBlocksFixed(t *testing.T) {
 	}
 }
 
-// TestReadoutWeightsMatchFormer: the weights function gives, bit for bit,
-// the weights of the former arithmetic (AU zs as one F x nb product, then
-// transposed into dst), with several penalties across neurons and on
-// blocks that do not start at a block boundary. The run folder's
+// TestReadoutWeightsMatchFormer: z, the curves and the weights function
+// give, bit for bit, the values of the former arithmetic (gonum's Dgemm;
+// for the weights AU zs as one F x nb product, then transposed into dst),
+// with several penalties across neurons and on blocks that do not start at
+// a block boundary. The run folder's
 // readout_weight.npy must not change with the speed of its computation.
 func TestReadoutWeightsMatchFormer(t *testing.T) {
 	c, net := synthCase(t, nn.Circular, 1)
@@ -165,9 +166,26 @@ func TestReadoutWeightsMatchFormer(t *testing.T) {
 	for n := range pick {
 		pick[n] = (3 * n) % len(rp.mu)
 	}
-	_, weights := rp.readout(pj, make([]float64, N), pick)
-	// The former arithmetic, as it was written in ridgePath.readout.
+	if pj.consume {
+		t.Fatal("the test case must keep yc (not a fit from PartStats)")
+	}
+	// z by the former arithmetic: U^T (D^1/2 Yc) by Dgemm.
+	sy := make([]float64, Bt*N)
+	for r := 0; r < Bt; r++ {
+		for n := 0; n < N; n++ {
+			sy[r*N+n] = pj.sq[r] * pj.yc[r*N+n]
+		}
+	}
+	zWant := make([]float64, Bt*N)
+	blas64.Gemm(blas.Trans, blas.NoTrans, 1, gen(rp.u, Bt, Bt), gen(sy, Bt, N), 0, gen(zWant, Bt, N))
 	z := rp.zeta(pj)
+	for i := range zWant {
+		if math.Float64bits(z[i]) != math.Float64bits(zWant[i]) {
+			t.Fatalf("z[%d]: got %v want %v (former arithmetic)", i, z[i], zWant[i])
+		}
+	}
+	curves, weights := rp.readout(pj, make([]float64, N), pick)
+	// The former arithmetic, as it was written in ridgePath.readout.
 	au := make([]float64, F*Bt)
 	blas64.Gemm(blas.Trans, blas.NoTrans, 1, gen(pj.a, Bt, F), gen(rp.u, Bt, Bt), 0, gen(au, F, Bt))
 	want := make([]float64, N*F)
@@ -179,6 +197,28 @@ func TestReadoutWeightsMatchFormer(t *testing.T) {
 	}
 	wt := make([]float64, F*N)
 	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(au, F, Bt), gen(zb, Bt, N), 0, gen(wt, F, N))
+	// The curves: ((H - 1 hbar^T) AU) zs + ybar.
+	B := pj.B
+	hc := make([]float64, B*F)
+	for b := 0; b < B; b++ {
+		for f, x := range pj.h[b*F : (b+1)*F] {
+			hc[b*F+f] = x - pj.hbar[f]
+		}
+	}
+	g := make([]float64, B*Bt)
+	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(hc, B, F), gen(au, F, Bt), 0, gen(g, B, Bt))
+	cWant := make([]float64, B*N)
+	blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(g, B, Bt), gen(zb, Bt, N), 0, gen(cWant, B, N))
+	for b := 0; b < B; b++ {
+		for n := 0; n < N; n++ {
+			cWant[b*N+n] += pj.ymean[n]
+		}
+	}
+	for i := range cWant {
+		if math.Float64bits(curves[i]) != math.Float64bits(cWant[i]) {
+			t.Fatalf("curve value (%d, %d): got %v want %v (former arithmetic)", i/N, i%N, curves[i], cWant[i])
+		}
+	}
 	for f := 0; f < F; f++ {
 		for n := 0; n < N; n++ {
 			want[n*F+f] = wt[f*N+n]
