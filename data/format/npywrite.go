@@ -108,7 +108,9 @@ func writeNPY(path, descr string, shape []int, raw []byte, n int, put func(b []b
 // order, one call at a time, on another goroutine than the writes, so
 // that the next block is computed while the last one is written. Memory
 // is two blocks of about 8 MiB, whatever the size of the array (a readout
-// of a million neurons). Writing is atomic as for WriteNPY; a memory
+// of a million neurons). Each block is handed to the disk as soon as it
+// is written (Linux: sync_file_range), so that the disk works while the
+// next blocks are computed. Writing is atomic as for WriteNPY; a memory
 // fault in fill (values mapped from a file that shrank) is an error, as
 // in the writes.
 func WriteNPY64Rows(path string, rows, cols int, fill func(dst []float64, r0, r1 int)) error {
@@ -122,7 +124,7 @@ func WriteNPY64Rows(path string, rows, cols int, fill func(dst []float64, r0, r1
 	if !HostLittle {
 		bytes = make([]byte, 8*R*cols)
 	}
-	return writeNPYBody(path, "<f8", []int{rows, cols}, nil, 0, nil, 8, func(w *bufio.Writer) error {
+	return writeNPYBody(path, "<f8", []int{rows, cols}, nil, 0, nil, 8, func(w *bufio.Writer, f *os.File) error {
 		// The filler takes a free buffer, fills the next block and hands it
 		// over; the blocks arrive in order (one filler, FIFO channel).
 		free := make(chan int, 2)
@@ -149,7 +151,16 @@ func WriteNPY64Rows(path string, rows, cols int, fill func(dst []float64, r0, r1
 		for i := range full {
 			r1 := min(r0+R, rows)
 			if err == nil {
-				if err = writeFloat64s(w, bufs[i][:(r1-r0)*cols], bytes); err != nil {
+				err = writeFloat64s(w, bufs[i][:(r1-r0)*cols], bytes)
+				if err == nil {
+					// The disk starts on this block now, not when the
+					// kernel's dirty-page threshold is reached (gigabytes
+					// later), so the final Sync waits for less.
+					if err = w.Flush(); err == nil {
+						startWriteback(f)
+					}
+				}
+				if err != nil {
 					close(stop)
 				}
 			}
@@ -188,7 +199,7 @@ func writeFloat64s(w *bufio.Writer, v []float64, scratch []byte) error {
 
 // writeNPYBody writes header and data atomically: body writes the data
 // when it is not nil, else raw or put as for writeNPY.
-func writeNPYBody(path, descr string, shape []int, raw []byte, n int, put func(b []byte, i int), size int, body func(w *bufio.Writer) error) (err error) {
+func writeNPYBody(path, descr string, shape []int, raw []byte, n int, put func(b []byte, i int), size int, body func(w *bufio.Writer, f *os.File) error) (err error) {
 	dir, base := filepath.Split(path)
 	if dir == "" {
 		dir = "."
@@ -213,7 +224,7 @@ func writeNPYBody(path, descr string, shape []int, raw []byte, n int, put func(b
 	if ferr := Guard(func() {
 		switch {
 		case body != nil:
-			err = body(w)
+			err = body(w, f)
 		case raw != nil:
 			_, err = w.Write(raw)
 		default:
