@@ -104,6 +104,7 @@ func main() {
 	flag.IntVar(&so.trials, "stream-trials", 4600, "trials of the -stream recording")
 	flag.BoolVar(&so.keep, "stream-keep", false, "keep the -stream recording and run folder (a recording already in -dir is always kept)")
 	flag.BoolVar(&so.inMemory, "stream-in-memory", false, "run the -stream fit with --in-memory (the trial-level path)")
+	flag.BoolVar(&so.cold, "stream-cold", true, "evict the -stream recording from the page cache before each cat and each fit (Linux; only this file's pages), so both read it from the disk")
 	flag.Parse()
 	if *stream {
 		if err := runStream(o, so); err != nil {

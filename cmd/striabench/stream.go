@@ -20,6 +20,7 @@ type streamOptions struct {
 	neurons, trials int
 	keep            bool
 	inMemory        bool
+	cold            bool
 }
 
 // defaultTemplate is a config with the defaults for everything but the
@@ -42,7 +43,9 @@ output: %s
 // written to disk by synth.WriteNPY (streamed: nothing of its size is held
 // in memory), against a plain sequential read of the same file (cat FILE >
 // /dev/null) in the same run: cat, fit, cat, -repeats times, each in a
-// child process whose peak RSS is its own. It states the disk space it
+// child process whose peak RSS is its own, with the recording evicted from
+// the page cache before each (-stream-cold, the default; a recording that
+// fits in memory is otherwise read from the cache). It states the disk space it
 // needs first and deletes the recording and run folder afterwards unless
 // -stream-keep.
 func runStream(o options, so streamOptions) error {
@@ -102,7 +105,24 @@ func runStream(o options, so streamOptions) error {
 	if err := os.WriteFile(cfgPath, []byte(fmt.Sprintf(defaultTemplate, o.seed, resp, stimPath, out)), 0o644); err != nil {
 		return err
 	}
-	cat := func() (childResult, error) { return runnerArgs("cat", resp) }
+	// evict drops the recording's pages from the page cache (-stream-cold):
+	// a recording that fits in memory would otherwise be read from the
+	// cache by whichever command comes second.
+	evict := func() error {
+		if !so.cold {
+			return nil
+		}
+		return evictFile(resp)
+	}
+	cat := func() (childResult, error) {
+		if err := evict(); err != nil {
+			return childResult{}, err
+		}
+		return runnerArgs("cat", resp)
+	}
+	if so.cold {
+		fmt.Println("the recording is evicted from the page cache before each command (-stream-cold)")
+	}
 	var cats, fits, ratios, rss []float64
 	for i := 0; i < max(1, o.repeats); i++ {
 		c1, err := cat()
@@ -113,6 +133,9 @@ func runStream(o options, so streamOptions) error {
 		args := []string{o.stria, "fit", "--quiet", "--config", cfgPath}
 		if so.inMemory {
 			args = append(args, "--in-memory")
+		}
+		if err := evict(); err != nil {
+			return err
 		}
 		f, err := runnerArgs(args...)
 		if err != nil {
