@@ -4,10 +4,14 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"testing"
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
+
+	"github.com/strialab/stria/data/synth"
+	"github.com/strialab/stria/nn"
 )
 
 // TestMulIntoMatchesDgemm: mulInto gives gonum's Dgemm bit for bit, on
@@ -132,5 +136,51 @@ func TestPerNeuronSUREKernel(t *testing.T) {
 	}
 	if len(seen) < 2 {
 		t.Errorf("every neuron picked the same grid value; the case tests nothing")
+	}
+}
+
+// TestValR2MatchesFormer: the median validation R^2 of the projector is,
+// bit for bit, that of the former arithmetic (G = T Yc by gonum's Dgemm,
+// block by block, then the residual sums), with one block of neurons and
+// with several on all cores.
+func TestValR2MatchesFormer(t *testing.T) {
+	for _, N := range []int{300, neuronBlock + 700} {
+		t.Run(fmt.Sprint(N), func(t *testing.T) {
+			c, _ := popCase(t, synth.DiscreteConfig{Neurons: N, Trials: 600, Bins: 20, GainSD: 0.2, NoiseSD: 0.7, UntunedFrac: 0.1, Seed: 5},
+				caseOptions{penalty: 1, convs: []nn.ConvSpec{{Out: 3, K: 5, Stride: 1, Border: nn.Circular}}})
+			net := c.net(2, 3)
+			pj, err := newProjector(&c.pr, net)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if pj.Bv == 0 {
+				t.Fatal("the case has no validation rows")
+			}
+			if err := pj.eval(net, false, false); err != nil {
+				t.Fatal(err)
+			}
+			got := pj.valR2()
+			// The former arithmetic (pj.t is set by valR2).
+			Bv, Bt := pj.Bv, pj.Bt
+			ss := slices.Clone(pj.withN)
+			g := make([]float64, Bv*N)
+			blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(pj.t, Bv, Bt), gen(pj.yc, Bt, N), 0, gen(g, Bv, N))
+			for r := 0; r < Bv; r++ {
+				w := pj.nv[r]
+				for n := 0; n < N; n++ {
+					e := pj.dv[r*N+n] - g[r*N+n]
+					ss[n] += w * e * e
+				}
+			}
+			var r2 []float64
+			for n, v := range ss {
+				if pj.valTot[n] > 0 {
+					r2 = append(r2, 1-v/pj.valTot[n])
+				}
+			}
+			if want := median(r2); math.Float64bits(got) != math.Float64bits(want) {
+				t.Errorf("median validation R^2 %v, want %v (former arithmetic)", got, want)
+			}
+		})
 	}
 }

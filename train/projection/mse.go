@@ -479,11 +479,15 @@ func (pj *projector) valR2() float64 {
 		}
 	}
 	copy(pj.ssRes, pj.withN)
-	// G by blocks of neurons: scratch of Bv x neuronBlock, not Bv x N.
-	for n0 := 0; n0 < N; n0 += neuronBlock {
-		nb := min(neuronBlock, N-n0)
-		gb := pj.g[:Bv*nb]
-		blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, gen(pj.t, Bv, Bt), cols(pj.yc, Bt, N, n0, nb), 0, gen(gb, Bv, nb))
+	// G by blocks of neurons (mulInto: Dgemm's arithmetic), scratch of Bv x
+	// neuronBlock, not Bv x N: one block in pj.g (no allocation in the
+	// epochs of a small recording), several on all cores with scratch per
+	// goroutine; each neuron's sum is formed by one goroutine in a fixed
+	// order.
+	block := func(n0, n1 int, gb []float64) {
+		nb := n1 - n0
+		gb = gb[:Bv*nb]
+		mulInto(gb, nb, pj.t, Bt, pj.yc[n0:], N, Bv, Bt, nb)
 		for r := 0; r < Bv; r++ {
 			w := pj.nv[r]
 			g, d := gb[r*nb:(r+1)*nb], pj.dv[r*N+n0:r*N+n0+nb]
@@ -493,6 +497,11 @@ func (pj *projector) valR2() float64 {
 				ss[n] += w * e * e
 			}
 		}
+	}
+	if N <= neuronBlock {
+		block(0, N, pj.g)
+	} else {
+		parallelScratch(N, Bv*neuronBlock, block)
 	}
 	k := 0
 	for n, ss := range pj.ssRes {
