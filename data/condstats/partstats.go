@@ -361,11 +361,16 @@ func NormalizerFromParts(parts ...*PartStats) *Normalizer {
 // defaultBlockBytes is the default size of a block buffer.
 var defaultBlockBytes = 2 << 20
 
+// streamReaders is the number of goroutines reading blocks in
+// AccumulateParts, each with two buffers.
+const streamReaders = 2
+
 // StreamOptions tune AccumulateParts; the zero value is the default.
 type StreamOptions struct {
-	// BlockBytes is the size of one block buffer (0: 2 MiB, which two
-	// buffers keep in the L3 cache between the read and the sums). Two
-	// are used, one being read while the other is summed. A block is
+	// BlockBytes is the size of one block buffer (0: 2 MiB, which the
+	// buffers keep in the L3 cache between the read and the sums). Four
+	// are used, two for each of the two readers; one is summed while the
+	// others are read. A block is
 	// whole rows when a row fits, else a span of one row of at least 256
 	// neurons.
 	BlockBytes int
@@ -377,15 +382,16 @@ type StreamOptions struct {
 // AccumulateParts passes once over the rows of s and returns the
 // statistics of each part of plan (one PartStats per Specs entry, in
 // order). Memory is the parts' statistics (B x N float64 for Sum, and as
-// much again for SumSq and for SumA where kept) plus two blocks of
+// much again for SumSq and for SumA where kept) plus four blocks of
 // StreamOptions.BlockBytes; nothing is of size trials x neurons. At
 // 1,000,000 neurons, 60 conditions and the three parts of a fit (the test
 // part with halves and squares) that is 2.4 GB.
 //
-// One goroutine reads the next block (pread) while the others sum the
-// current one, each owning a fixed range of neurons, so every element is
-// summed in ascending trial order whatever the number of workers: the
-// result is the same on any machine for the same file and plan.
+// Two goroutines read the next blocks (pread, alternate blocks) while the
+// others sum the current one, each owning a fixed range of neurons, so
+// every element is summed in ascending trial order whatever the number of
+// workers: the result is the same on any machine for the same file and
+// plan.
 //
 // Errors: a plan whose lengths do not match the file's rows, a condition
 // or part out of range (the trial is named), a read error, and a
@@ -423,51 +429,75 @@ func AccumulateParts(s *format.NPYStream, plan StreamPlan, opt StreamOptions) ([
 	if R == 1 {
 		W = min(N, max(blockBytes/4, 256))
 	}
+	// The blocks, in the order they are summed.
 	type block struct {
 		lo, hi, c0, c1, buf int
 		err                 error
 	}
-	bufs := [2][]float32{make([]float32, R*W), make([]float32, R*W)}
-	free := make(chan int, 2)
-	free <- 0
-	free <- 1
-	full := make(chan block, 1)
+	var blocks []block
+	for lo := 0; lo < T; lo += R {
+		hi := min(lo+R, T)
+		if !acc.anyPart(lo, hi) {
+			continue
+		}
+		for c0 := 0; c0 < N; c0 += W {
+			blocks = append(blocks, block{lo: lo, hi: hi, c0: c0, c1: min(c0+W, N)})
+		}
+	}
+	// streamReaders goroutines read them, reader r the blocks r, r +
+	// streamReaders, ..., each into its own two buffers, so that the
+	// kernel's share of a read from the disk (a core's worth at a
+	// gigabyte per second) is spread over the cores too; the blocks are
+	// summed in order, one at a time.
+	type reader struct {
+		bufs [2][]float32
+		free chan int
+		full chan block
+	}
+	readers := make([]*reader, min(streamReaders, max(len(blocks), 1)))
 	done := make(chan struct{})
-	go func() {
-		defer close(full)
-		for lo := 0; lo < T; lo += R {
-			hi := min(lo+R, T)
-			if !acc.anyPart(lo, hi) {
-				continue
-			}
-			for c0 := 0; c0 < N; c0 += W {
-				c1 := min(c0+W, N)
-				var i int
+	for r := range readers {
+		rd := &reader{bufs: [2][]float32{make([]float32, R*W), make([]float32, R*W)}, free: make(chan int, 2), full: make(chan block, 2)}
+		rd.free <- 0
+		rd.free <- 1
+		readers[r] = rd
+		go func() {
+			defer close(rd.full)
+			for k := r; k < len(blocks); k += len(readers) {
+				bk := blocks[k]
 				select {
-				case i = <-free:
+				case bk.buf = <-rd.free:
 				case <-done:
 					return
 				}
-				err := s.ReadSpan32(bufs[i][:(hi-lo)*(c1-c0)], lo, c0)
-				full <- block{lo, hi, c0, c1, i, err}
-				if err != nil {
+				bk.err = s.ReadSpan32(rd.bufs[bk.buf][:(bk.hi-bk.lo)*(bk.c1-bk.c0)], bk.lo, bk.c0)
+				rd.full <- bk
+				if bk.err != nil {
 					return
 				}
 			}
+		}()
+	}
+	for k := range blocks {
+		rd := readers[k%len(readers)]
+		bk, ok := <-rd.full
+		if !ok { // cannot happen: a reader stops early only after an error, summed first
+			err = fmt.Errorf("data: %s: the read of block %d stopped early", s.Name(), k)
+			break
 		}
-	}()
-	for bk := range full {
 		if bk.err != nil {
 			err = bk.err
 			break
 		}
-		if err = acc.addParallel(bufs[bk.buf], bk.lo, bk.hi, bk.c0, bk.c1, opt.Workers); err != nil {
+		if err = acc.addParallel(rd.bufs[bk.buf], bk.lo, bk.hi, bk.c0, bk.c1, opt.Workers); err != nil {
 			break
 		}
-		free <- bk.buf
+		rd.free <- bk.buf
 	}
 	close(done)
-	for range full { // let the reader finish
+	for _, rd := range readers { // let the readers finish
+		for range rd.full {
+		}
 	}
 	if err != nil {
 		return nil, err
