@@ -235,4 +235,28 @@ func BenchmarkScoreSums(b *testing.B) {
 			ScoreConditions(dst, y, n, trials, cond, pc, nb)
 		}
 	})
+	// 200,000 neurons: sums far larger than the caches, as at a million.
+	b.Run("sums-200k", func(b *testing.B) {
+		const N = 200000
+		h := &HeldOutSums{B: nb, N: N, Count: make([]int, nb), CountA: make([]int, nb), Ref: make([]float64, N),
+			Sum: make([]float64, nb*N), SumA: make([]float64, nb*N), SumSq: make([]float64, nb*N)}
+		for c := range h.Count {
+			h.Count[c], h.CountA[c] = 15, 8
+		}
+		for i := range h.Sum {
+			h.Sum[i] = rng.NormFloat64()
+			h.SumA[i] = h.Sum[i]/2 + 0.1*rng.NormFloat64()
+			h.SumSq[i] = h.Sum[i]*h.Sum[i]/15 + 15*rng.Float64()
+		}
+		pred := make([]float64, nb*N)
+		for i := range pred {
+			pred[i] = rng.NormFloat64()
+		}
+		d := make([]Scores, N)
+		b.ResetTimer()
+		for i := 0; i < b.N; i++ {
+			ScoreSums(d, h, pred)
+		}
+		b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N*N), "ns/neuron")
+	})
 }
