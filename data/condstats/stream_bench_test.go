@@ -21,7 +21,8 @@ var (
 
 // streamPlan splits T trials 64/16/20 into training, validation and test
 // parts at random over nbins conditions, the test part keeping halves and
-// per-condition squares, as stria fit would.
+// per-condition squares, with the split-half sums over all trials, as
+// stria fit does.
 func streamPlan(T, nbins int) StreamPlan {
 	rng := rand.New(rand.NewPCG(11, 12))
 	cond := make([]int, T)
@@ -38,7 +39,7 @@ func streamPlan(T, nbins int) StreamPlan {
 		}
 	}
 	return StreamPlan{NBins: nbins, Cond: cond, Part: part,
-		Specs: []PartSpec{{}, {}, {Halves: true, CondSquares: true}}}
+		Specs: []PartSpec{{}, {}, {Halves: true, CondSquares: true}}, AllHalves: true}
 }
 
 // BenchmarkStream passes over a float32 .npy: "read" only reads the row
