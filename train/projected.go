@@ -39,7 +39,6 @@ func (p *Prepared) problem() projection.Problem {
 // chosen from the data (eval/methods.md §12). A Checkpoint of this solver
 // holds only the conv parameters and no random state.
 func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpoint) (*Fitted, error) {
-	cfg := p.Cfg
 	// From Parts the solver gets a net of one neuron: it trains only the
 	// filters, and a readout of N x F values (3.8 GB at a million
 	// neurons) would be allocated, and zeroed, for nothing; the readout
@@ -48,21 +47,44 @@ func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpo
 	if p.Parts != nil {
 		shapeN = 1
 	}
-	net := nn.NewNet(cfg.Shape(p.NBins, shapeN))
-	net.InitConvs(rand.New(rand.NewPCG(cfg.Seed, 0x1417)))
-	s, err := projection.NewMSE(p.problem(), net)
-	if err != nil {
-		return nil, err
-	}
-	res, err := runEpochs(ctx, s, cfg.Train, hooks, resume)
+	f, s, err := trainFilters(ctx, p.Cfg, p.NBins, shapeN, p.problem(), hooks, resume)
 	if err != nil {
 		return nil, err
 	}
 	// The best epoch always carries its R^2, even when it was skipped.
-	if err := fillBestR2(res, s.ValR2); err != nil {
+	if err := fillBestR2(f, s.ValR2); err != nil {
 		return nil, err
 	}
-	f := &Fitted{Net: net, Solver: settings.SolverProjected, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}
+	if err := readoutProjected(p, s, f); err != nil {
+		return nil, err
+	}
+	return f, nil
+}
+
+// trainFilters trains the filters of the MSE projected solver on pr (a
+// net of shapeN neurons and the config's shape, the filters initialised
+// from the seed) and returns the fit without its readout, and the solver
+// at the best filters.
+func trainFilters(ctx context.Context, cfg *settings.Config, nbins, shapeN int, pr projection.Problem, hooks Hooks, resume *Checkpoint) (*Fitted, *projection.MSE, error) {
+	net := nn.NewNet(cfg.Shape(nbins, shapeN))
+	net.InitConvs(rand.New(rand.NewPCG(cfg.Seed, 0x1417)))
+	s, err := projection.NewMSE(pr, net)
+	if err != nil {
+		return nil, nil, err
+	}
+	res, err := runEpochs(ctx, s, cfg.Train, hooks, resume)
+	if err != nil {
+		return nil, nil, err
+	}
+	return &Fitted{Net: net, Solver: settings.SolverProjected, Log: res.log, BestEpoch: res.bestEpoch, Stop: res.stop}, s, nil
+}
+
+// readoutProjected solves the readout of the solver's filters into f:
+// at the config's penalty or, with model.readout_l2 auto, at one chosen
+// from the data (eval/methods.md §12).
+func readoutProjected(p *Prepared, s *projection.MSE, f *Fitted) error {
+	cfg := p.Cfg
+	var err error
 	switch {
 	case p.Parts != nil:
 		f.Curves, f.ReadoutL2, f.Bias, f.Weights, err = s.ReadoutBlocks(cfg.Model.ReadoutL2.Auto, cfg.Model.ReadoutL2PerNeuron)
@@ -74,10 +96,7 @@ func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpo
 	default:
 		f.Curves, err = s.Readout()
 	}
-	if err != nil {
-		return nil, err
-	}
-	return f, nil
+	return err
 }
 
 // fitPoissonProjected trains with the Poisson fast path (train/projection,
@@ -147,7 +166,7 @@ func fitPoissonProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *
 	if err != nil {
 		return nil, err
 	}
-	if err := fillBestR2(res, func() (float64, error) { return vr2, nil }); err != nil {
+	if err := fillBestR2(f, func() (float64, error) { return vr2, nil }); err != nil {
 		return nil, err
 	}
 	return f, nil
@@ -165,9 +184,9 @@ func bestR2Missing(res *loopResult) bool {
 
 // fillBestR2 gives the best epoch of the log the validation R^2 of the
 // current (best) parameters where the solver skipped it.
-func fillBestR2(res *loopResult, valR2 func() (float64, error)) error {
-	for i := range res.log {
-		if e := &res.log[i]; e.Epoch == res.bestEpoch && math.IsNaN(e.ValR2) {
+func fillBestR2(res *Fitted, valR2 func() (float64, error)) error {
+	for i := range res.Log {
+		if e := &res.Log[i]; e.Epoch == res.BestEpoch && math.IsNaN(e.ValR2) {
 			v, err := valR2()
 			if err != nil {
 				return err

@@ -19,9 +19,14 @@ import (
 // fitCase writes a small synthetic recording (.npy) and a fit config
 // reading it; edit changes the responses before they are written.
 func fitCase(t *testing.T, dir string, edit func(y []float32, neurons int)) string {
+	return fitCaseOf(t, dir, 37, 900, edit)
+}
+
+// fitCaseOf is fitCase with neurons x trials.
+func fitCaseOf(t *testing.T, dir string, neurons, trials int, edit func(y []float32, neurons int)) string {
 	t.Helper()
 	cfg := synth.DefaultConfig()
-	cfg.Neurons, cfg.Trials, cfg.Seed = 37, 900, 4
+	cfg.Neurons, cfg.Trials, cfg.Seed = neurons, trials, 4
 	rec, _, _ := synth.Population(cfg)
 	if edit != nil {
 		edit(rec.Y.Data, rec.Y.Cols)
