@@ -302,7 +302,7 @@ func printFitSlurmScript(w io.Writer, config, out string, n int) error {
 	if err != nil {
 		exe = "stria"
 	}
-	_, err = fmt.Fprintf(w, fitSlurmScript, n, shellQuote(exe), shellQuote(cfgAbs), shellQuote(out), n, n, n)
+	_, err = fmt.Fprintf(w, fitSlurmScript, n, shellQuote(exe), shellQuote(cfgAbs), shellQuote(out), n, n, n, n, n)
 	return err
 }
 
@@ -312,30 +312,44 @@ func shellQuote(s string) string {
 }
 
 const fitSlurmScript = `#!/bin/bash
-# stria fit spread over a Slurm job array of %d tasks, then gathered.
-# Run this script with bash (not sbatch): it submits two jobs:
+# stria fit spread over a Slurm job array of %d tasks, in four jobs.
+# Run this script with bash (not sbatch): it submits, each job after the
+# one before has succeeded (afterok):
 #   1. the job array: each task reads its range of neurons once and writes
-#      their statistics into the run folder (stria fit --array-task I ...);
-#   2. after every task has succeeded (afterok), one job that checks and
-#      joins them, fits and writes the run folder (stria gather FOLDER).
-# Extra arguments go to sbatch for the gather job (e.g. --wait).
+#      their statistics and their sums for the filters into the run folder
+#      (stria fit --array-task I ...);
+#   2. the reduce: one job adds the tasks' sums and trains the filters
+#      (stria gather --filters FOLDER; it reads no task's statistics);
+#   3. the job array again: each task solves and scores the readouts of its
+#      neurons at those filters (stria fit --array-task I ... --readouts);
+#   4. one job that joins them into the run folder (stria gather FOLDER).
+# Extra arguments go to sbatch for the last job (e.g. --wait).
 # A failed task can be rerun alone: sbatch --array=K with the same command,
-# then stria gather FOLDER. All tasks must see the same files and folder.
+# then the next stages. All tasks must see the same files and folder.
 # The logs go to the folder this script is run from.
-# Edit the resources to suit: each task holds about 3 KB per neuron of its
-# range; the gather job about 3 KB per neuron in all, and writes the run
-# folder (about 4 KB per neuron).
+# Edit the resources to suit: a task holds about 3 KB per neuron of its
+# range; the reduce a few MB; the last job writes the run folder (about
+# 4 KB per neuron) holding one task's readout weights at a time.
 set -euo pipefail
 STRIA=${STRIA:-%s}
 CONFIG=%s
 OUT=%s
 q() { printf "'%%s'" "${1//\'/\'\\\'\'}"; }
+task="$(q "$STRIA") fit --config $(q "$CONFIG") --out $(q "$OUT") --array-task \$SLURM_ARRAY_TASK_ID --array-task-count %d --quiet"
 stats=$(sbatch --parsable --job-name=stria-fit-stats --array=1-%d \
 	--cpus-per-task=2 --mem=8G --time=04:00:00 --output="stria-fit-task-%%a-of-%d.log" \
-	--wrap "$(q "$STRIA") fit --config $(q "$CONFIG") --out $(q "$OUT") --array-task \$SLURM_ARRAY_TASK_ID --array-task-count %d --quiet")
+	--wrap "$task")
 echo "submitted the statistics job array: $stats"
-gather=$(sbatch --parsable --job-name=stria-fit-gather --dependency=afterok:"${stats%%%%;*}" --kill-on-invalid-dep=yes \
-	--cpus-per-task=2 --mem=16G --time=04:00:00 --output=stria-fit-gather.log "$@" \
+filters=$(sbatch --parsable --job-name=stria-fit-filters --dependency=afterok:"${stats%%%%;*}" --kill-on-invalid-dep=yes \
+	--cpus-per-task=2 --mem=2G --time=04:00:00 --output=stria-fit-filters.log \
+	--wrap "$(q "$STRIA") gather --filters $(q "$OUT")")
+echo "submitted the reduce (filters): $filters"
+readouts=$(sbatch --parsable --job-name=stria-fit-readouts --array=1-%d --dependency=afterok:"${filters%%%%;*}" --kill-on-invalid-dep=yes \
+	--cpus-per-task=2 --mem=8G --time=04:00:00 --output="stria-fit-readouts-%%a-of-%d.log" \
+	--wrap "$task --readouts")
+echo "submitted the readout job array: $readouts"
+gather=$(sbatch --parsable --job-name=stria-fit-gather --dependency=afterok:"${readouts%%%%;*}" --kill-on-invalid-dep=yes \
+	--cpus-per-task=2 --mem=8G --time=04:00:00 --output=stria-fit-gather.log "$@" \
 	--wrap "$(q "$STRIA") gather $(q "$OUT")")
-echo "submitted the gather job: $gather (after the array succeeds)"
+echo "submitted the gather job: $gather (after the readouts succeed)"
 `
