@@ -653,7 +653,9 @@ func (pj *projector) curves() []float64 {
 //
 // The loss an epoch reports is the training data loss before its step;
 // Validate gives the validation loss and median R^2 after it (R^2 NaN on
-// epochs skipped by r2Every, never the first).
+// epochs skipped by r2Every, never the first; from PartStats or Sums on
+// every epoch: the caller asks ValR2 or ValR2s at the best filters, so
+// that ranges of neurons fitted apart log the same).
 type MSE struct {
 	pj  *projector
 	net *nn.Net
