@@ -158,6 +158,11 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	switch {
 	case o.gather != nil && o.gather.merge != nil:
 		rec, p, merged, mergedScores, err = prepareMerged(cfg, o.gather, phase)
+		defer func() {
+			if o.gather.closeRows != nil {
+				o.gather.closeRows()
+			}
+		}()
 	case o.gather != nil:
 		rec, p, err = prepareGathered(cfg, o.gather, phase)
 	default:

@@ -223,6 +223,8 @@ type arrayGather struct {
 	// readErr is the first error reading the tasks' readout weights
 	// while the run folder's are written.
 	readErr error
+	// closeRows closes the tasks' readout weight files (nil until open).
+	closeRows func()
 }
 
 // prepareGathered prepares the recording from the array tasks'

@@ -348,7 +348,7 @@ func prepareMerged(cfg *settings.Config, g *arrayGather, phase func(string)) (*d
 	if cfg.Model.ReadoutL2.Auto {
 		f.ReadoutL2 = l2
 	}
-	f.Weights = runfolder.ReadRows(files, starts, net.Features(), &g.readErr)
+	f.Weights, g.closeRows = runfolder.ReadRows(files, starts, net.Features(), &g.readErr)
 	if err := train.MergedLog(f, valR2); err != nil {
 		return nil, nil, nil, nil, err
 	}

@@ -390,39 +390,85 @@ func ReadArrayReadouts(dir string, i, n int) (*ArrayReadouts, *RangeResult, erro
 	return &a, r, nil
 }
 
-// ReadRows returns a function that writes rows [n0, n1) of the F-column
-// float64 .npy files of consecutive ranges of rows (files[k] holds rows
-// [starts[k], starts[k+1])) into dst, reading one file at a time (the
-// one that holds the rows asked for). The first error is kept in *errp;
-// rows then read as zero.
-func ReadRows(files []string, starts []int, F int, errp *error) func(dst []float64, n0, n1 int) {
-	cur := -1
-	var rows []float64
-	return func(dst []float64, n0, n1 int) {
+// ReadRows returns a function that writes rows [n0, n1) of the
+// rows x F little-endian float64 .npy files that WriteArrayReadouts wrote
+// for consecutive ranges of rows (files[k] holds rows [starts[k],
+// starts[k+1])) into dst, by positioned reads of the rows asked for (one
+// block of rows in memory, not a file). Each file's header must be the
+// one its shape gives, and its size match. The first error is kept in
+// *errp; rows then read as zero. close closes the files.
+func ReadRows(files []string, starts []int, F int, errp *error) (read func(dst []float64, n0, n1 int), close func()) {
+	open := make([]*os.File, len(files))
+	offset := make([]int64, len(files))
+	var buf []byte
+	fail := func(err error) {
+		if *errp == nil {
+			*errp = err
+		}
+	}
+	get := func(k int) *os.File {
+		if open[k] != nil {
+			return open[k]
+		}
+		rows := starts[k+1] - starts[k]
+		hdr := format.NPYHeaderBytes("<f8", []int{rows, F})
+		f, err := os.Open(files[k])
+		if err != nil {
+			fail(err)
+			return nil
+		}
+		got := make([]byte, len(hdr))
+		st, err := f.Stat()
+		if err == nil {
+			_, err = f.ReadAt(got, 0)
+		}
+		switch {
+		case err != nil:
+			fail(fmt.Errorf("%s: %w", files[k], err))
+		case string(got) != string(hdr) || st.Size() != int64(len(hdr))+int64(rows)*int64(F)*8:
+			fail(fmt.Errorf("%s: not the %d x %d float64 array the array task wrote; run its readout pass again", files[k], rows, F))
+		default:
+			open[k], offset[k] = f, int64(len(hdr))
+			return f
+		}
+		f.Close()
+		return nil
+	}
+	read = func(dst []float64, n0, n1 int) {
 		for n := n0; n < n1; {
 			k := 0
 			for k+1 < len(files) && starts[k+1] <= n {
 				k++
 			}
-			if k != cur {
-				cur, rows = k, nil
-				shape, v, err := format.ReadArray(files[k])
-				switch {
-				case err != nil && *errp == nil:
-					*errp = err
-				case err == nil && (len(shape) != 2 || shape[0] != starts[k+1]-starts[k] || shape[1] != F) && *errp == nil:
-					*errp = fmt.Errorf("%s: shape %v, want [%d %d]", files[k], shape, starts[k+1]-starts[k], F)
-				case err == nil:
-					rows = v
-				}
-			}
 			m := min(n1, starts[k+1])
-			if rows == nil {
-				clear(dst[(n-n0)*F : (m-n0)*F])
+			d := dst[(n-n0)*F : (m-n0)*F]
+			f := get(k)
+			if f == nil {
+				clear(d)
+				n = m
+				continue
+			}
+			if need := 8 * len(d); cap(buf) < need {
+				buf = make([]byte, need)
+			}
+			b := buf[:8*len(d)]
+			if _, err := f.ReadAt(b, offset[k]+int64(n-starts[k])*int64(F)*8); err != nil {
+				fail(fmt.Errorf("%s: %w", files[k], err))
+				clear(d)
 			} else {
-				copy(dst[(n-n0)*F:(m-n0)*F], rows[(n-starts[k])*F:(m-starts[k])*F])
+				for i := range d {
+					d[i] = math.Float64frombits(binary.LittleEndian.Uint64(b[8*i:]))
+				}
 			}
 			n = m
 		}
 	}
+	close = func() {
+		for _, f := range open {
+			if f != nil {
+				f.Close()
+			}
+		}
+	}
+	return read, close
 }
