@@ -46,7 +46,7 @@ func RangeSums(p *Prepared) ([]projection.BlockSums, error) {
 }
 
 // checkStaged refuses a config the stages do not fit: one Streamable
-// refuses (the caller has done so) or the Poisson loss.
+// refuses (callers have refused it with a message of their own).
 func checkStaged(cfg *settings.Config) error {
 	if why := Streamable(cfg); why != "" {
 		return fmt.Errorf("a fit in stages needs statistics per condition, but %s", why)
