@@ -348,6 +348,11 @@ func ReadArrayReadouts(dir string, i, n int) (*ArrayReadouts, *RangeResult, erro
 	case nn < 0:
 		return nil, nil, fmt.Errorf("%s: neurons [%d, %d): malformed", path, a.Neurons[0], a.Neurons[1])
 	}
+	for k, j := range a.Constant {
+		if j < a.Neurons[0] || j >= a.Neurons[1] || (k > 0 && j <= a.Constant[k-1]) {
+			return nil, nil, fmt.Errorf("%s: constant neurons %v are not increasing within the task's neurons [%d, %d): malformed", path, a.Constant, a.Neurons[0], a.Neurons[1])
+		}
+	}
 	r := &RangeResult{}
 	for _, name := range a.Arrays {
 		file := filepath.Join(td, name+".npy")
