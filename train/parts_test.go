@@ -82,7 +82,10 @@ func floatsOf(r partsResult) map[string][]float64 {
 	r.f.ReadoutWeights(w, 0, N)
 	m := map[string][]float64{
 		"filters": r.f.Net.ConvW(0), "filter_bias": r.f.Net.ConvB(0), "readout_bias": r.f.ReadoutBias(), "weights": w, "curves": r.f.Curves, "readout_l2": r.f.ReadoutL2,
-		"norm_mean": r.p.Norm.Mean, "norm_scale": r.p.Norm.Scale, "reliability": r.rel,
+		"reliability": r.rel,
+	}
+	if r.p.Norm != nil {
+		m["norm_mean"], m["norm_scale"] = r.p.Norm.Mean, r.p.Norm.Scale
 	}
 	var log, sc []float64
 	for _, e := range r.f.Log {

@@ -10,6 +10,7 @@ import (
 	"github.com/strialab/stria/data/condstats"
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/train/projection"
+	"github.com/strialab/stria/train/settings"
 )
 
 // TestStagesEqualOneFit: a fit in stages over ranges of neurons (block
@@ -18,14 +19,36 @@ import (
 // from one pass, bit for bit: filters, log (MergedLog), readout weights,
 // biases, penalties, curves, scores and reliability; with 3 ranges over
 // 3 blocks (the last one short) and with 2 (4096 and 4396 neurons), and
-// the block sums of a range are the full fit's blocks.
+// the block sums of a range are the full fit's blocks. Also with a fixed
+// penalty (z-scoring flipped) and with one automatic penalty for all.
 func TestStagesEqualOneFit(t *testing.T) {
 	if testing.Short() {
-		t.Skip("fits 8,492 neurons three times")
+		t.Skip("fits 8,492 neurons several times")
 	}
 	const N = 2*projection.SumBlock + 300
-	cfg, _ := partsCase(t, N, 600)
-	cfg.Train.MaxEpochs = 60
+	base, _ := partsCase(t, N, 600)
+	base.Train.MaxEpochs = 60
+	for _, v := range []struct {
+		name  string
+		tasks []int
+		edit  func(c *settings.Config)
+	}{
+		{"default", []int{2, 3}, func(*settings.Config) {}},
+		{"fixed penalty, z-scoring flipped", []int{3}, func(c *settings.Config) {
+			c.Model.ReadoutL2 = settings.Penalty{Value: 0.5}
+			c.Split.ZScore = !c.Split.ZScore
+		}},
+		{"one automatic penalty for all", []int{2}, func(c *settings.Config) { c.Model.ReadoutL2PerNeuron = false }},
+	} {
+		t.Run(v.name, func(t *testing.T) {
+			cfg := *base
+			v.edit(&cfg)
+			testStages(t, &cfg, N, v.tasks)
+		})
+	}
+}
+
+func testStages(t *testing.T, cfg *settings.Config, N int, taskCounts []int) {
 	rec, s, err := data.LoadStream(cfg.Source())
 	if err != nil {
 		t.Fatal(err)
@@ -60,7 +83,7 @@ func TestStagesEqualOneFit(t *testing.T) {
 		}
 		return p
 	}
-	for _, tasks := range []int{2, 3} {
+	for _, tasks := range taskCounts {
 		t.Run(itoa(tasks)+" ranges", func(t *testing.T) {
 			var blocks []projection.BlockSums
 			for i := 1; i <= tasks; i++ {
@@ -118,7 +141,9 @@ func TestStagesEqualOneFit(t *testing.T) {
 				f.ReadoutWeights(wr, 0, n1-n0)
 				w, bias, l2 = append(w, wr...), append(bias, f.ReadoutBias()...), append(l2, f.ReadoutL2...)
 				rel, valR2 = append(rel, Reliability(p)...), append(valR2, vr...)
-				mean, scale = append(mean, p.Norm.Mean...), append(scale, p.Norm.Scale...)
+				if p.Norm != nil {
+					mean, scale = append(mean, p.Norm.Mean...), append(scale, p.Norm.Scale...)
+				}
 				scores = append(scores, ScoreFitted(p, f)...)
 			}
 			for _, c := range cb {
@@ -129,7 +154,9 @@ func TestStagesEqualOneFit(t *testing.T) {
 			}
 			got := floatsOf(partsResult{p: full, f: &Fitted{Net: ff.Net, Log: ff.Log, Bias: bias, ReadoutL2: l2, Curves: curves,
 				Weights: func(dst []float64, n0, n1 int) { copy(dst, w[n0*ff.Net.Features():n1*ff.Net.Features()]) }}, scores: scores, rel: rel})
-			got["norm_mean"], got["norm_scale"] = mean, scale
+			if mean != nil {
+				got["norm_mean"], got["norm_scale"] = mean, scale
+			}
 			for name, v := range want {
 				if !slices.Equal(bitsOf(got[name]), bitsOf(v)) {
 					t.Errorf("%s: the fit in stages differs from the fit of all neurons", name)
