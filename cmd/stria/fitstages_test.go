@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"os"
+	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -207,4 +208,30 @@ func TestFitStagesRefused(t *testing.T) {
 	wantErr(run("gather", "--filters", out), "reduce mixing data", "task_2_of_2", "resp.npy")
 	// --readouts without a task.
 	wantErr(run("fit", "-c", cfg, "--out", filepath.Join(dir, "x"), "-q", "--readouts"), "--readouts alone", "--array-task")
+}
+
+// TestFitSlurmScriptStages: the script of fit --slurm-script submits the
+// four jobs, each after the one before has succeeded, with the commands
+// of the stages; bash can parse it.
+func TestFitSlurmScriptStages(t *testing.T) {
+	dir := t.TempDir()
+	cfg := fitCase(t, dir, nil)
+	out, err := runCLI(t, "fit", "-c", cfg, "--out", filepath.Join(dir, "out"), "--slurm-script", "7")
+	if err != nil {
+		t.Fatal(out, err)
+	}
+	for _, want := range []string{"--array=1-7", "--array-task-count 7", `gather --filters $(q "$OUT")`, `--wrap "$task --readouts"`,
+		`--dependency=afterok:"${stats%%;*}"`, `--dependency=afterok:"${filters%%;*}"`, `--dependency=afterok:"${readouts%%;*}"`, `gather $(q "$OUT")")`} {
+		if !strings.Contains(out, want) {
+			t.Errorf("the script lacks %q:\n%s", want, out)
+		}
+	}
+	if n := strings.Count(out, "sbatch --parsable"); n != 4 {
+		t.Errorf("the script submits %d jobs, want 4", n)
+	}
+	script := filepath.Join(dir, "fit.sh")
+	os.WriteFile(script, []byte(out), 0o644)
+	if b, err := exec.Command("bash", "-n", script).CombinedOutput(); err != nil {
+		t.Errorf("bash -n: %v\n%s", err, b)
+	}
 }
