@@ -86,7 +86,7 @@ func arrayTask(c *cli.Context, getenv func(string) string) (i, n int, err error)
 func gatherCommand() *cli.Command {
 	return &cli.Command{
 		Name:      "gather",
-		Usage:     "check that every array task of a comparison or a fit is done and write the results (a fit: join the statistics, fit, write the run folder)",
+		Usage:     "check that every array task of a comparison or a fit is done and write the results (a fit: join the statistics, fit and write the run folder; or in stages: --filters, then the tasks' --readouts, then gather)",
 		ArgsUsage: "FOLDER",
 		Flags: []cli.Flag{&cli.BoolFlag{Name: "timings", Usage: "print the wall time of each phase of a comparison's gather to stderr at the end"},
 			&cli.BoolFlag{Name: "filters", Usage: "a fit over array tasks in stages: add the tasks' sums and train the filters only (then stria fit ... --array-task I --readouts, then stria gather FOLDER)"}},

@@ -56,6 +56,12 @@ func fitCommand() *cli.Command {
 				if err := checkArrayFit(cfg); err != nil {
 					return err
 				}
+				if _, st, err := data.LoadStream(cfg.Source()); err == nil {
+					st.Close()
+					if note := taskCountNote(n, st.Cols()); note != "" {
+						fmt.Fprintln(c.App.ErrWriter, "note: "+note)
+					}
+				}
 				return printFitSlurmScript(c.App.Writer, c.String("config"), cfg.Output, n)
 			}
 			task, tasks, err := arrayTask(c, os.Getenv)

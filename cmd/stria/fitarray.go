@@ -118,10 +118,34 @@ func runFitArrayTask(cfg *settings.Config, i, n int, stdout io.Writer) error {
 		return err
 	}
 	if stdout != nil {
-		fmt.Fprintf(stdout, "array task %d of %d: neurons %d-%d of %d (0-based) read; statistics in %s\nwhen every task has run: stria gather %s (or, in stages: stria gather --filters %s, then this command with --readouts, then stria gather %s)\n",
-			i, n, n0, n1-1, s.Cols(), runfolder.ArrayTaskDir(dir, i, n), dir, dir, dir)
+		what := rangeText(n0, n1, n, s.Cols())
+		if n1 > n0 {
+			what += " read"
+		}
+		fmt.Fprintf(stdout, "array task %d of %d: %s; statistics in %s\nwhen every task has run: stria gather %s (or, in stages: stria gather --filters %s, then this command with --readouts, then stria gather %s)\n",
+			i, n, what, runfolder.ArrayTaskDir(dir, i, n), dir, dir, dir)
 	}
 	return nil
+}
+
+// rangeText describes the neurons [n0, n1) of one of n array tasks over N
+// neurons, saying why a task has none.
+func rangeText(n0, n1, n, N int) string {
+	if n1 > n0 {
+		return fmt.Sprintf("neurons %d-%d of %d (0-based)", n0, n1-1, N)
+	}
+	return "no neurons (" + taskCountNote(n, N) + ")"
+}
+
+// taskCountNote says, when n array tasks are more than the blocks of
+// projection.SumBlock neurons that N neurons make, that some tasks will
+// have nothing to do; "" otherwise.
+func taskCountNote(n, N int) string {
+	k := (N + projection.SumBlock - 1) / projection.SumBlock
+	if n <= k {
+		return ""
+	}
+	return fmt.Sprintf("the tasks share out blocks of %d neurons, and %d neurons make %d; with %d tasks, %d of them get no neurons and finish at once: %d tasks are enough", projection.SumBlock, N, k, n, n-k, k)
 }
 
 // rangeBlocks returns the blocks of projection.SumBlock neurons [first,

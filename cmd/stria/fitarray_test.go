@@ -191,3 +191,22 @@ func TestFitArrayTasksRefused(t *testing.T) {
 		t.Errorf("truncated file: error %v, want one naming resp.npy", err)
 	}
 }
+
+// TestTaskCountNote: more tasks than blocks of neurons are named, with the
+// number that is enough; otherwise nothing is said.
+func TestTaskCountNote(t *testing.T) {
+	for _, c := range []struct {
+		n, N int
+		want string
+	}{
+		{6, 24000, ""},
+		{1, 10, ""},
+		{8, 24000, "with 8 tasks, 2 of them get no neurons and finish at once: 6 tasks are enough"},
+		{2, 4096, "with 2 tasks, 1 of them get no neurons"},
+	} {
+		got := taskCountNote(c.n, c.N)
+		if (c.want == "") != (got == "") || !strings.Contains(got, c.want) {
+			t.Errorf("taskCountNote(%d, %d) = %q, want one containing %q", c.n, c.N, got, c.want)
+		}
+	}
+}

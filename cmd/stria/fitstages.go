@@ -240,8 +240,8 @@ func runFitReadouts(cfg *settings.Config, i, n int, stdout io.Writer) error {
 		return err
 	}
 	if stdout != nil {
-		fmt.Fprintf(stdout, "array task %d of %d: readouts and scores of neurons %d-%d of %d (0-based) in %s\nwhen every task has run: %s\n",
-			i, n, n0, n1-1, s.Cols(), runfolder.ArrayTaskDir(dir, i, n), stageHint(dir, 4))
+		fmt.Fprintf(stdout, "array task %d of %d: readouts and scores of %s in %s\nwhen every task has run: %s\n",
+			i, n, rangeText(n0, n1, n, s.Cols()), runfolder.ArrayTaskDir(dir, i, n), stageHint(dir, 4))
 	}
 	return nil
 }
