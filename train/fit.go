@@ -55,7 +55,10 @@ type Checkpoint struct {
 	BestEpoch int
 	Since     int // epochs since the best
 	RNG       []byte
-	Log       []EpochLog
+	// SolverState is the solver's own state (the quasi-Newton memory of
+	// the projected solvers; nil for Adam).
+	SolverState []float64
+	Log         []EpochLog
 	// Config is the resolved config the fit was started with; the caller
 	// sets it and checks it on resume.
 	Config []byte

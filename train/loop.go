@@ -47,6 +47,15 @@ type scratcher interface {
 	scratch() []float64
 }
 
+// stateful is a solver with a state of its own besides the parameters
+// (the quasi-Newton memory), which a checkpoint keeps
+// (Checkpoint.SolverState) so that a resumed fit continues as the
+// uninterrupted one would.
+type stateful interface {
+	State() []float64
+	SetState(v []float64) error
+}
+
 // newOptimizer returns the Adam optimiser the train settings describe for
 // n parameters.
 func newOptimizer(tc settings.TrainConfig, n int) *nn.Adam {
@@ -100,6 +109,18 @@ func runEpochs(ctx context.Context, s solver, tc settings.TrainConfig, hooks Hoo
 		}
 		copy(params, st.Params)
 		opt.M, opt.V, opt.T = slices.Clone(st.M), slices.Clone(st.V), st.T
+		if sf, ok := s.(stateful); ok && st.Epoch > 0 {
+			// A checkpoint without the state comes from a stria whose
+			// solver of this name trained differently (the projected
+			// solver's filters by Adam): continuing it would mix two
+			// methods in one fit.
+			if st.SolverState == nil {
+				return nil, fmt.Errorf("checkpoint has no %s solver state: it was written by an earlier stria, whose %s solver trained the filters by Adam; fit afresh (without --resume)", s.Name(), s.Name())
+			}
+			if err := sf.SetState(st.SolverState); err != nil {
+				return nil, fmt.Errorf("checkpoint: %w", err)
+			}
+		}
 		if pcg := s.Random(); pcg != nil {
 			if err := pcg.UnmarshalBinary(st.RNG); err != nil {
 				return nil, fmt.Errorf("checkpoint: random state: %w", err)
@@ -121,7 +142,10 @@ func runEpochs(ctx context.Context, s solver, tc settings.TrainConfig, hooks Hoo
 		c := st
 		c.Params = params
 		c.M, c.V, c.T = opt.M, opt.V, opt.T
-		c.RNG = nil
+		c.RNG, c.SolverState = nil, nil
+		if sf, ok := s.(stateful); ok {
+			c.SolverState = sf.State()
+		}
 		if pcg := s.Random(); pcg != nil {
 			c.RNG, _ = pcg.MarshalBinary()
 		}

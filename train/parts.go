@@ -11,6 +11,7 @@ import (
 	"github.com/strialab/stria/data/condstats"
 	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/eval"
+	"github.com/strialab/stria/train/projection"
 	"github.com/strialab/stria/train/settings"
 )
 
@@ -127,24 +128,40 @@ func (p *Prepared) SetParts(ps []*condstats.PartStats) error {
 	}
 	p.Parts = &Parts{Train: ps[0], Val: ps[1], Test: ps[2]}
 	p.Parts.Reliability = splitHalfAll(ps[3], ps[:3])
-	// The report again, now with the constant neurons, in the order of
-	// PrepareRecording's.
-	rep, err := data.CheckTrials(p.Rec, len(p.Cond), p.Cond, p.checkOptions(), condstats.ConstantNeurons(ps[:3]...))
-	if err != nil {
+	if err := p.setReport(condstats.ConstantNeurons(ps[:3]...)); err != nil {
 		return err
 	}
-	rep.Warnings = append(append(slices.Clone(p.notes), rep.Warnings...), p.coverage...)
-	p.Report = rep
 	if p.Cfg.Split.ZScore {
 		p.Norm = condstats.NormalizerFromParts(ps[0], ps[1])
 	}
 	return nil
 }
 
+// setReport makes the report again, now with the constant neurons, in
+// the order of PrepareRecording's.
+func (p *Prepared) setReport(constant []int) error {
+	rep, err := data.CheckTrials(p.Rec, len(p.Cond), p.Cond, p.checkOptions(), constant)
+	if err != nil {
+		return err
+	}
+	rep.Warnings = append(append(slices.Clone(p.notes), rep.Warnings...), p.coverage...)
+	p.Report = rep
+	return nil
+}
+
 // NeuronRange returns the neurons [n0, n1) of array task i of n (1-based)
-// over N neurons: n0 = floor((i-1) N / n), n1 = floor(i N / n).
+// over N neurons: the tasks share out the blocks of
+// projection.SumBlock neurons (the last one may be shorter), task i
+// taking blocks [floor((i-1) K / n), floor(i K / n)) of the K blocks, so
+// that every range starts at a block boundary and the sums over neurons
+// of the filters are those of one process bit for bit
+// (projection.AddBlocks). With more tasks than blocks some tasks get no
+// neurons.
 func NeuronRange(i, n, N int) (n0, n1 int) {
-	return int(int64(i-1) * int64(N) / int64(n)), int(int64(i) * int64(N) / int64(n))
+	const blk = projection.SumBlock
+	k := (int64(N) + blk - 1) / blk
+	b0, b1 := int64(i-1)*k/int64(n), int64(i)*k/int64(n)
+	return int(min(b0*blk, int64(N))), int(min(b1*blk, int64(N)))
 }
 
 // splitHalfAll returns each neuron's split-half reliability over all the

@@ -82,7 +82,10 @@ func floatsOf(r partsResult) map[string][]float64 {
 	r.f.ReadoutWeights(w, 0, N)
 	m := map[string][]float64{
 		"filters": r.f.Net.ConvW(0), "filter_bias": r.f.Net.ConvB(0), "readout_bias": r.f.ReadoutBias(), "weights": w, "curves": r.f.Curves, "readout_l2": r.f.ReadoutL2,
-		"norm_mean": r.p.Norm.Mean, "norm_scale": r.p.Norm.Scale, "reliability": r.rel,
+		"reliability": r.rel,
+	}
+	if r.p.Norm != nil {
+		m["norm_mean"], m["norm_scale"] = r.p.Norm.Mean, r.p.Norm.Scale
 	}
 	var log, sc []float64
 	for _, e := range r.f.Log {
@@ -101,9 +104,13 @@ func floatsOf(r partsResult) map[string][]float64 {
 // agrees with train's in-memory path (absolute per-condition sums,
 // condstats.New) to rounding: the statistics are summed relative to a
 // reference trial here and absolutely there, so the last bits of the sums
-// differ (about 1e-16 relative), and 150 Adam steps on the filters carry
-// that difference up (measured: 1.3e-10 relative, values below 1e-3
-// compared absolutely; the tolerance is 1e-8).
+// differ (about 1e-16 relative). Measured with the quasi-Newton filters:
+// filters 3e-15, readout weights 2e-13, curves and readout bias 1e-12,
+// scores 5e-12 relative (values below 1e-3 compared absolutely; the
+// ratio metrics divide by differences of nearly equal sums, such as the
+// signal power, which carry the sums' rounding up); the tolerance is
+// 2e-11. (With Adam on the filters, 150 steps carried the difference up
+// to 1.3e-10.)
 //
 // With a fixed model.readout_l2 the one-pass readout goes through the
 // eigendecomposition of A A^T and the in-memory one through a Cholesky
@@ -160,6 +167,11 @@ func testPartsStreamed(t *testing.T, penalty settings.Penalty) {
 		}
 		for i, v := range w {
 			g := fm[name][i]
+			if name == "log" && i%3 == 2 && math.IsNaN(g) {
+				// The statistics path logs the validation R^2 at the
+				// best epoch only (projection.MSE.Validate).
+				continue
+			}
 			if math.IsNaN(v) != math.IsNaN(g) {
 				t.Fatalf("%s[%d]: got %v want %v", name, i, g, v)
 			}
@@ -169,8 +181,8 @@ func testPartsStreamed(t *testing.T, penalty settings.Penalty) {
 		}
 	}
 	t.Logf("largest relative difference from train's in-memory path: %.3g", worst)
-	if worst > 1e-8 {
-		t.Errorf("statistics path differs from the in-memory path by %.3g relative, want <= 1e-8", worst)
+	if worst > 2e-11 {
+		t.Errorf("statistics path differs from the in-memory path by %.3g relative, want <= 2e-11", worst)
 	}
 }
 

@@ -174,19 +174,24 @@ func TestProjectedVsAdam(t *testing.T) {
 }
 
 // TestProjectedResume interrupts a projected fit and resumes it from its
-// checkpoint: the weights must equal those of an uninterrupted fit.
+// checkpoint: the weights must equal those of an uninterrupted fit (the
+// checkpoint carries the quasi-Newton memory).
 func TestProjectedResume(t *testing.T) {
 	edit := func(c *settings.Config) {
 		c.Train.Solver = settings.SolverProjected
 		c.Train.MaxEpochs = 40
 		c.Train.Patience = 1000
-		c.Train.CheckpointEvery = 7
+		c.Train.CheckpointEvery = 3
 		c.Axis.BinWidth = 12
 	}
 	p, _ := synthPrepared(t, 30, 400, edit)
 	whole, err := Fit(context.Background(), p, Hooks{}, nil)
 	if err != nil {
 		t.Fatal(err)
+	}
+	const cut = 7
+	if len(whole.Log) <= cut+2 {
+		t.Fatalf("the fit ran %d iterations: too few to interrupt it at %d", len(whole.Log), cut)
 	}
 	again, err := Fit(context.Background(), p, Hooks{}, nil)
 	if err != nil {
@@ -199,7 +204,7 @@ func TestProjectedResume(t *testing.T) {
 	var saved *Checkpoint
 	hooks := Hooks{
 		OnEpoch: func(e EpochLog) {
-			if e.Epoch == 17 {
+			if e.Epoch == cut {
 				cancel()
 			}
 		},
@@ -208,8 +213,8 @@ func TestProjectedResume(t *testing.T) {
 	if _, err = Fit(ctx, p, hooks, nil); !errors.Is(err, ErrInterrupted) {
 		t.Fatalf("interrupted fit returned %v", err)
 	}
-	if saved == nil || saved.Epoch != 17 {
-		t.Fatalf("checkpoint %v, want one at epoch 17", saved)
+	if saved == nil || saved.Epoch != cut {
+		t.Fatalf("checkpoint %v, want one at epoch %d", saved, cut)
 	}
 	dir := t.TempDir()
 	if err := SaveCheckpoint(dir, saved); err != nil {
@@ -228,6 +233,13 @@ func TestProjectedResume(t *testing.T) {
 	}
 	if len(resumed.Log) != len(whole.Log) {
 		t.Errorf("log has %d epochs, want %d", len(resumed.Log), len(whole.Log))
+	}
+	// A checkpoint of an earlier stria (filters by Adam: no solver
+	// state) is refused, not continued by another method.
+	old := *back
+	old.SolverState = nil
+	if _, err := Fit(context.Background(), p, Hooks{}, &old); err == nil || !strings.Contains(err.Error(), "earlier stria") {
+		t.Errorf("resume from a checkpoint without solver state: %v, want a refusal", err)
 	}
 }
 

@@ -86,9 +86,10 @@ func arrayTask(c *cli.Context, getenv func(string) string) (i, n int, err error)
 func gatherCommand() *cli.Command {
 	return &cli.Command{
 		Name:      "gather",
-		Usage:     "check that every array task of a comparison or a fit is done and write the results (a fit: join the statistics, fit, write the run folder)",
+		Usage:     "check that every array task of a comparison or a fit is done and write the results (a fit: join the statistics, fit and write the run folder; or in stages: --filters, then the tasks' --readouts, then gather)",
 		ArgsUsage: "FOLDER",
-		Flags:     []cli.Flag{&cli.BoolFlag{Name: "timings", Usage: "print the wall time of each phase of a comparison's gather to stderr at the end"}},
+		Flags: []cli.Flag{&cli.BoolFlag{Name: "timings", Usage: "print the wall time of each phase of a comparison's gather to stderr at the end"},
+			&cli.BoolFlag{Name: "filters", Usage: "a fit over array tasks in stages: add the tasks' sums and train the filters only (then stria fit ... --array-task I --readouts, then stria gather FOLDER)"}},
 		Action: func(c *cli.Context) error {
 			if err := oneFolderArg(c); err != nil {
 				return err
@@ -97,7 +98,13 @@ func gatherCommand() *cli.Command {
 			if isFitArrayFolder(dir) {
 				ctx, stop := signal.NotifyContext(c.Context, os.Interrupt, syscall.SIGTERM)
 				defer stop()
+				if c.Bool("filters") {
+					return reduceFit(ctx, dir, c.App.Writer)
+				}
 				return gatherFit(ctx, dir, fitOptions{quiet: true, stdout: c.App.Writer, stderr: c.App.ErrWriter})
+			}
+			if c.Bool("filters") {
+				return fmt.Errorf("gather: --filters trains the filters of a fit over array tasks, but %s holds no array tasks of a fit", dir)
 			}
 			if k, err := runfolder.Kind(dir); err == nil && k == runfolder.KindRun {
 				return fmt.Errorf("gather: %s is a run folder (written by stria fit); gather takes the folder of stria compare", dir)

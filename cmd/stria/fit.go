@@ -38,7 +38,8 @@ func fitCommand() *cli.Command {
 			&cli.BoolFlag{Name: "in-memory", Usage: "hold every trial's responses in memory even where one pass over them would do (for checks; see stria help large)"},
 			&cli.IntFlag{Name: "array-task", Usage: "pass over the neurons of array task `I` (1-based) of --array-task-count only and write their statistics; when every task has run: stria gather FOLDER"},
 			&cli.IntFlag{Name: "array-task-count", Usage: "the number `N` of array tasks the neurons are split into"},
-			&cli.IntFlag{Name: "slurm-script", Usage: "print a script that submits the fit as a Slurm job array of `N` tasks and the gather job after it, and exit"},
+			&cli.BoolFlag{Name: "readouts", Usage: "with --array-task: the readout pass of the task's neurons (after stria gather --filters FOLDER): their readouts and scores from the task's statistics and the trained filters"},
+			&cli.IntFlag{Name: "slurm-script", Usage: "print a script that submits the fit in four jobs (a Slurm job array of `N` tasks for the statistics, the reduce that trains the filters, the array again for the readouts, the gather job), and exit"},
 		),
 		Action: func(c *cli.Context) error {
 			if err := noArgs(c); err != nil {
@@ -55,6 +56,12 @@ func fitCommand() *cli.Command {
 				if err := checkArrayFit(cfg); err != nil {
 					return err
 				}
+				if _, st, err := data.LoadStream(cfg.Source()); err == nil {
+					st.Close()
+					if note := taskCountNote(n, st.Cols()); note != "" {
+						fmt.Fprintln(c.App.ErrWriter, "note: "+note)
+					}
+				}
 				return printFitSlurmScript(c.App.Writer, c.String("config"), cfg.Output, n)
 			}
 			task, tasks, err := arrayTask(c, os.Getenv)
@@ -69,7 +76,13 @@ func fitCommand() *cli.Command {
 				if !c.Bool("quiet") {
 					out = c.App.Writer
 				}
+				if c.Bool("readouts") {
+					return runFitReadouts(cfg, task, tasks, out)
+				}
 				return runFitArrayTask(cfg, task, tasks, out)
+			}
+			if c.Bool("readouts") {
+				return fmt.Errorf("fit: --readouts is the readout pass of an array task: give --array-task I --array-task-count N (or run inside a Slurm array task)")
 			}
 			ctx, stop := signal.NotifyContext(c.Context, os.Interrupt, syscall.SIGTERM)
 			defer stop()
@@ -146,9 +159,19 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	}
 	var rec *data.Recording
 	var p *train.Prepared
-	if o.gather != nil {
+	var merged *train.Fitted
+	var mergedScores []eval.Scores
+	switch {
+	case o.gather != nil && o.gather.merge != nil:
+		rec, p, merged, mergedScores, err = prepareMerged(cfg, o.gather, phase)
+		defer func() {
+			if o.gather.closeRows != nil {
+				o.gather.closeRows()
+			}
+		}()
+	case o.gather != nil:
 		rec, p, err = prepareGathered(cfg, o.gather, phase)
-	} else {
+	default:
 		rec, p, err = prepareFit(cfg, o, phase)
 	}
 	if err != nil {
@@ -222,7 +245,10 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 			bar.Set(e.Epoch)
 		}
 	}
-	fitted, err := train.Fit(ctx, p, hooks, resume)
+	fitted := merged
+	if merged == nil {
+		fitted, err = train.Fit(ctx, p, hooks, resume)
+	}
 	if bar != nil {
 		bar.Finish()
 	}
@@ -244,8 +270,11 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	// The weights are written while the test trials are scored.
 	written := make(chan error, 1)
 	go func() { written <- runfolder.WriteModel(dir, p, fitted) }()
-	var scores []eval.Scores
-	gerr := format.Guard(func() { scores = train.ScoreFitted(p, fitted) })
+	scores := mergedScores
+	var gerr error
+	if merged == nil {
+		gerr = format.Guard(func() { scores = train.ScoreFitted(p, fitted) })
+	}
 	phase("score the test trials")
 	if gerr != nil {
 		<-written
@@ -260,6 +289,9 @@ func runFit(ctx context.Context, cfg *settings.Config, o fitOptions) (*runfolder
 	sum, err := runfolder.WriteResults(dir, p, fitted, scores, time.Since(start))
 	if werr := <-written; werr != nil {
 		return nil, werr
+	}
+	if o.gather != nil && o.gather.readErr != nil {
+		return nil, o.gather.readErr
 	}
 	if err != nil {
 		return nil, err

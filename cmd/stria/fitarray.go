@@ -14,6 +14,7 @@ import (
 	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/data/condstats"
 	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/projection"
 	"github.com/strialab/stria/train/runfolder"
 	"github.com/strialab/stria/train/settings"
 )
@@ -91,7 +92,7 @@ func runFitArrayTask(cfg *settings.Config, i, n int, stdout io.Writer) error {
 		return err
 	}
 	defer s.Close()
-	_, plan, err := train.PlanParts(cfg, rec, s.Rows())
+	p, plan, err := train.PlanParts(cfg, rec, s.Rows())
 	if err != nil {
 		return err
 	}
@@ -104,15 +105,54 @@ func runFitArrayTask(cfg *settings.Config, i, n int, stdout io.Writer) error {
 		return err
 	}
 	a := runfolder.ArrayStats{Task: i, Tasks: n, Neurons: [2]int{n0, n1}, TotalNeurons: s.Cols(), Trials: s.Rows(),
-		Fingerprint: runfolder.Fingerprint{Settings: cfgYAML, Files: rec.Files()}}
-	if err := runfolder.WriteArrayStats(dir, a, parts); err != nil {
+		Fingerprint: runfolder.Fingerprint{Settings: cfgYAML, Files: rec.Files()}, Blocks: rangeBlocks(n0, n1)}
+	// The block sums come after the statistics are written: they take
+	// over the training and validation sums.
+	sums := func() ([]projection.BlockSums, error) {
+		if err := p.SetParts(parts); err != nil {
+			return nil, err
+		}
+		return train.RangeSums(p)
+	}
+	if err := runfolder.WriteArrayStats(dir, a, parts, sums); err != nil {
 		return err
 	}
 	if stdout != nil {
-		fmt.Fprintf(stdout, "array task %d of %d: neurons %d-%d of %d (0-based) read; statistics in %s\nwhen every task has run: stria gather %s\n",
-			i, n, n0, n1-1, s.Cols(), runfolder.ArrayTaskDir(dir, i, n), dir)
+		what := rangeText(n0, n1, n, s.Cols())
+		if n1 > n0 {
+			what += " read"
+		}
+		fmt.Fprintf(stdout, "array task %d of %d: %s; statistics in %s\nwhen every task has run: stria gather %s (or, in stages: stria gather --filters %s, then this command with --readouts, then stria gather %s)\n",
+			i, n, what, runfolder.ArrayTaskDir(dir, i, n), dir, dir, dir)
 	}
 	return nil
+}
+
+// rangeText describes the neurons [n0, n1) of one of n array tasks over N
+// neurons, saying why a task has none.
+func rangeText(n0, n1, n, N int) string {
+	if n1 > n0 {
+		return fmt.Sprintf("neurons %d-%d of %d (0-based)", n0, n1-1, N)
+	}
+	return "no neurons (" + taskCountNote(n, N) + ")"
+}
+
+// taskCountNote says, when n array tasks are more than the blocks of
+// projection.SumBlock neurons that N neurons make, that some tasks will
+// have nothing to do; "" otherwise.
+func taskCountNote(n, N int) string {
+	k := (N + projection.SumBlock - 1) / projection.SumBlock
+	if n <= k {
+		return ""
+	}
+	return fmt.Sprintf("the tasks share out blocks of %d neurons, and %d neurons make %d; with %d tasks, %d of them get no neurons and finish at once: %d tasks are enough", projection.SumBlock, N, k, n, n-k, k)
+}
+
+// rangeBlocks returns the blocks of projection.SumBlock neurons [first,
+// last+1) of the neurons [n0, n1) (n0 at a block boundary).
+func rangeBlocks(n0, n1 int) [2]int {
+	const b = projection.SumBlock
+	return [2]int{n0 / b, (n1 + b - 1) / b}
 }
 
 // isFitArrayFolder reports whether dir holds array tasks of a fit.
@@ -121,13 +161,12 @@ func isFitArrayFolder(dir string) bool {
 	return err == nil && len(m) > 0
 }
 
-// gatherFit is stria gather of a fit spread over array tasks: it checks
-// the tasks, then fits from their joined statistics and writes the run
-// folder (runFit with the statistics read from the tasks).
-func gatherFit(ctx context.Context, dir string, o fitOptions) error {
+// arrayTaskCount checks that every array task of a fit in dir has
+// written its statistics and returns their number.
+func arrayTaskCount(dir, cmd string) (int, error) {
 	m, err := runfolder.ArrayTasks(dir)
 	if err != nil {
-		return err
+		return 0, err
 	}
 	if len(m) > 1 {
 		var counts []string
@@ -135,7 +174,7 @@ func gatherFit(ctx context.Context, dir string, o fitOptions) error {
 			counts = append(counts, fmt.Sprint(n))
 		}
 		slices.Sort(counts)
-		return fmt.Errorf("gather: %s holds array tasks of %s tasks in all: the tasks of one fit share --array-task-count; remove the folders under %s of the runs you do not want", dir, strings.Join(counts, " and "), runfolder.DirArrayTasks)
+		return 0, fmt.Errorf("%s: %s holds array tasks of %s tasks in all: the tasks of one fit share --array-task-count; remove the folders under %s of the runs you do not want", cmd, dir, strings.Join(counts, " and "), runfolder.DirArrayTasks)
 	}
 	var n int
 	for k := range m {
@@ -148,24 +187,52 @@ func gatherFit(ctx context.Context, dir string, o fitOptions) error {
 		}
 	}
 	if len(missing) > 0 {
-		return fmt.Errorf("gather: array task(s) %s of %d have not finished (no %s in their folders under %s): run them again (with Slurm: sbatch --array=%s ...), then stria gather %s",
-			strings.Join(missing, ", "), n, runfolder.FileArrayStats, filepath.Join(dir, runfolder.DirArrayTasks), strings.Join(missing, ","), dir)
+		return 0, fmt.Errorf("%s: array task(s) %s of %d have not finished (no %s in their folders under %s): run them again (with Slurm: sbatch --array=%s ...), then %s",
+			cmd, strings.Join(missing, ", "), n, runfolder.FileArrayStats, filepath.Join(dir, runfolder.DirArrayTasks), strings.Join(missing, ","), cmd)
 	}
+	return n, nil
+}
+
+// arrayConfig returns the settings array task 1 of n ran with, for the
+// run folder dir.
+func arrayConfig(dir string, n int) (*settings.Config, *runfolder.ArrayStats, error) {
 	a1, _, err := runfolder.ReadArrayStats(dir, 1, n, -1)
 	if err != nil {
-		return err
+		return nil, nil, err
 	}
 	cfg, err := settings.ParseConfig(a1.Fingerprint.Settings, filepath.Join(runfolder.ArrayTaskDir(dir, 1, n), runfolder.FileArrayStats)+" (settings)")
 	if err != nil {
-		return err
+		return nil, nil, err
 	}
 	if err := cfg.Validate(); err != nil {
-		return err
+		return nil, nil, err
 	}
 	if cfg.Output, err = filepath.Abs(dir); err != nil {
+		return nil, nil, err
+	}
+	return cfg, a1, nil
+}
+
+// gatherFit is stria gather of a fit spread over array tasks. With only
+// the tasks' statistics it fits from their joined statistics and writes
+// the run folder (runFit with the statistics read from the tasks). After
+// the reduce (stria gather --filters) it needs every task's readouts and
+// joins them into the run folder.
+func gatherFit(ctx context.Context, dir string, o fitOptions) error {
+	n, err := arrayTaskCount(dir, "stria gather "+dir)
+	if err != nil {
+		return err
+	}
+	cfg, a1, err := arrayConfig(dir, n)
+	if err != nil {
 		return err
 	}
 	o.gather = &arrayGather{tasks: n, settings: a1.Fingerprint.Settings}
+	if _, err := os.Stat(filepath.Join(runfolder.ArrayFiltersDir(dir), runfolder.FileArrayFilters)); err == nil {
+		if o.gather.merge, err = readMerge(cfg, dir, n); err != nil {
+			return err
+		}
+	}
 	_, err = runFit(ctx, cfg, o)
 	return err
 }
@@ -174,6 +241,14 @@ func gatherFit(ctx context.Context, dir string, o fitOptions) error {
 type arrayGather struct {
 	tasks    int
 	settings []byte // the settings every task must have run with
+	// merge, when not nil, holds the reduce's filters: runFit joins the
+	// tasks' readouts instead of fitting.
+	merge *runfolder.Filters
+	// readErr is the first error reading the tasks' readout weights
+	// while the run folder's are written.
+	readErr error
+	// closeRows closes the tasks' readout weight files (nil until open).
+	closeRows func()
 }
 
 // prepareGathered prepares the recording from the array tasks'
@@ -253,7 +328,7 @@ func printFitSlurmScript(w io.Writer, config, out string, n int) error {
 	if err != nil {
 		exe = "stria"
 	}
-	_, err = fmt.Fprintf(w, fitSlurmScript, n, shellQuote(exe), shellQuote(cfgAbs), shellQuote(out), n, n, n)
+	_, err = fmt.Fprintf(w, fitSlurmScript, n, shellQuote(exe), shellQuote(cfgAbs), shellQuote(out), n, n, n, n, n)
 	return err
 }
 
@@ -263,30 +338,44 @@ func shellQuote(s string) string {
 }
 
 const fitSlurmScript = `#!/bin/bash
-# stria fit spread over a Slurm job array of %d tasks, then gathered.
-# Run this script with bash (not sbatch): it submits two jobs:
+# stria fit spread over a Slurm job array of %d tasks, in four jobs.
+# Run this script with bash (not sbatch): it submits, each job after the
+# one before has succeeded (afterok):
 #   1. the job array: each task reads its range of neurons once and writes
-#      their statistics into the run folder (stria fit --array-task I ...);
-#   2. after every task has succeeded (afterok), one job that checks and
-#      joins them, fits and writes the run folder (stria gather FOLDER).
-# Extra arguments go to sbatch for the gather job (e.g. --wait).
+#      their statistics and their sums for the filters into the run folder
+#      (stria fit --array-task I ...);
+#   2. the reduce: one job adds the tasks' sums and trains the filters
+#      (stria gather --filters FOLDER; it reads no task's statistics);
+#   3. the job array again: each task solves and scores the readouts of its
+#      neurons at those filters (stria fit --array-task I ... --readouts);
+#   4. one job that joins them into the run folder (stria gather FOLDER).
+# Extra arguments go to sbatch for the last job (e.g. --wait).
 # A failed task can be rerun alone: sbatch --array=K with the same command,
-# then stria gather FOLDER. All tasks must see the same files and folder.
+# then the next stages. All tasks must see the same files and folder.
 # The logs go to the folder this script is run from.
-# Edit the resources to suit: each task holds about 3 KB per neuron of its
-# range; the gather job about 3 KB per neuron in all, and writes the run
-# folder (about 4 KB per neuron).
+# Edit the resources to suit: a task holds about 3 KB per neuron of its
+# range; the reduce a few MB; the last job writes the run folder (about
+# 4 KB per neuron) holding one task's readout weights at a time.
 set -euo pipefail
 STRIA=${STRIA:-%s}
 CONFIG=%s
 OUT=%s
 q() { printf "'%%s'" "${1//\'/\'\\\'\'}"; }
+task="$(q "$STRIA") fit --config $(q "$CONFIG") --out $(q "$OUT") --array-task \$SLURM_ARRAY_TASK_ID --array-task-count %d --quiet"
 stats=$(sbatch --parsable --job-name=stria-fit-stats --array=1-%d \
 	--cpus-per-task=2 --mem=8G --time=04:00:00 --output="stria-fit-task-%%a-of-%d.log" \
-	--wrap "$(q "$STRIA") fit --config $(q "$CONFIG") --out $(q "$OUT") --array-task \$SLURM_ARRAY_TASK_ID --array-task-count %d --quiet")
+	--wrap "$task")
 echo "submitted the statistics job array: $stats"
-gather=$(sbatch --parsable --job-name=stria-fit-gather --dependency=afterok:"${stats%%%%;*}" --kill-on-invalid-dep=yes \
-	--cpus-per-task=2 --mem=16G --time=04:00:00 --output=stria-fit-gather.log "$@" \
+filters=$(sbatch --parsable --job-name=stria-fit-filters --dependency=afterok:"${stats%%%%;*}" --kill-on-invalid-dep=yes \
+	--cpus-per-task=2 --mem=2G --time=04:00:00 --output=stria-fit-filters.log \
+	--wrap "$(q "$STRIA") gather --filters $(q "$OUT")")
+echo "submitted the reduce (filters): $filters"
+readouts=$(sbatch --parsable --job-name=stria-fit-readouts --array=1-%d --dependency=afterok:"${filters%%%%;*}" --kill-on-invalid-dep=yes \
+	--cpus-per-task=2 --mem=8G --time=04:00:00 --output="stria-fit-readouts-%%a-of-%d.log" \
+	--wrap "$task --readouts")
+echo "submitted the readout job array: $readouts"
+gather=$(sbatch --parsable --job-name=stria-fit-gather --dependency=afterok:"${readouts%%%%;*}" --kill-on-invalid-dep=yes \
+	--cpus-per-task=2 --mem=8G --time=04:00:00 --output=stria-fit-gather.log "$@" \
 	--wrap "$(q "$STRIA") gather $(q "$OUT")")
-echo "submitted the gather job: $gather (after the array succeeds)"
+echo "submitted the gather job: $gather (after the readouts succeed)"
 `

@@ -19,9 +19,14 @@ import (
 // fitCase writes a small synthetic recording (.npy) and a fit config
 // reading it; edit changes the responses before they are written.
 func fitCase(t *testing.T, dir string, edit func(y []float32, neurons int)) string {
+	return fitCaseOf(t, dir, 37, 900, edit)
+}
+
+// fitCaseOf is fitCase with neurons x trials.
+func fitCaseOf(t *testing.T, dir string, neurons, trials int, edit func(y []float32, neurons int)) string {
 	t.Helper()
 	cfg := synth.DefaultConfig()
-	cfg.Neurons, cfg.Trials, cfg.Seed = 37, 900, 4
+	cfg.Neurons, cfg.Trials, cfg.Seed = neurons, trials, 4
 	rec, _, _ := synth.Population(cfg)
 	if edit != nil {
 		edit(rec.Y.Data, rec.Y.Cols)
@@ -184,5 +189,24 @@ func TestFitArrayTasksRefused(t *testing.T) {
 	}
 	if _, err := runCLI(t, "fit", "-c", badCfg, "-q", "--out", filepath.Join(bad, "trunc")); err == nil || !strings.Contains(err.Error(), "resp.npy") {
 		t.Errorf("truncated file: error %v, want one naming resp.npy", err)
+	}
+}
+
+// TestTaskCountNote: more tasks than blocks of neurons are named, with the
+// number that is enough; otherwise nothing is said.
+func TestTaskCountNote(t *testing.T) {
+	for _, c := range []struct {
+		n, N int
+		want string
+	}{
+		{6, 24000, ""},
+		{1, 10, ""},
+		{8, 24000, "with 8 tasks, 2 of them get no neurons and finish at once: 6 tasks are enough"},
+		{2, 4096, "with 2 tasks, 1 of them get no neurons"},
+	} {
+		got := taskCountNote(c.n, c.N)
+		if (c.want == "") != (got == "") || !strings.Contains(got, c.want) {
+			t.Errorf("taskCountNote(%d, %d) = %q, want one containing %q", c.n, c.N, got, c.want)
+		}
 	}
 }

@@ -35,6 +35,7 @@ func timeAcuity(o options, r rec) error {
 	if err != nil {
 		return err
 	}
+	bench.line(fmt.Sprintf("Acuity/neurons=%d/trials=%d", r.neurons, r.trials), cr.Wall, "cpu-s", cr.CPU, "peak-MB", cr.MaxRSS/1e6)
 	fmt.Printf("  wall %.1f s, CPU %.1f s (user + system, all threads), peak resident memory %.0f MB\n", cr.Wall, cr.CPU, cr.MaxRSS/1e6)
 	fmt.Printf("  parts (wall s): information %.1f", f.Info.Seconds["information"])
 	for _, d := range f.Info.Decoders {

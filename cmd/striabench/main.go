@@ -105,7 +105,17 @@ func main() {
 	flag.BoolVar(&so.keep, "stream-keep", false, "keep the -stream recording and run folder (a recording already in -dir is always kept)")
 	flag.BoolVar(&so.inMemory, "stream-in-memory", false, "run the -stream fit with --in-memory (the trial-level path)")
 	flag.BoolVar(&so.cold, "stream-cold", true, "evict the -stream recording from the page cache before each cat and each fit (Linux; only this file's pages), so both read it from the disk")
+	benchPath := flag.String("benchfmt", "", "also append every measurement to this file in the Go benchmark format, for benchstat (cmd/striabench/benchfmt.go)")
 	flag.Parse()
+	if *benchPath != "" {
+		b, closeBench, err := openBench(*benchPath)
+		if err != nil {
+			fmt.Fprintln(os.Stderr, "striabench:", err)
+			os.Exit(1)
+		}
+		bench = b
+		defer closeBench()
+	}
 	if *stream {
 		if err := runStream(o, so); err != nil {
 			fmt.Fprintln(os.Stderr, "striabench:", err)
@@ -431,6 +441,7 @@ func timeFit(o options, r rec, solver, tag string, repeats int) (fitResult, erro
 		}
 		walls = append(walls, cr.Wall)
 		rss = append(rss, cr.MaxRSS)
+		bench.line(fmt.Sprintf("Fit/solver=%s/neurons=%d/trials=%d", solver, r.neurons, r.trials), cr.Wall, "cpu-s", cr.CPU, "peak-MB", cr.MaxRSS/1e6)
 		wall, maxRSS := cr.Wall, cr.MaxRSS
 		if repeats > 1 {
 			fmt.Printf("  %s run %d: %.2f s wall, peak RSS %.0f MB\n", tag, i+1, wall, maxRSS/1e6)
@@ -508,6 +519,7 @@ func timeCompare(o options, r rec) error {
 		return err
 	}
 	matMB := float64(r.neurons) * float64(r.trials) * 4 / 1e6
+	bench.line(fmt.Sprintf("Compare/neurons=%d/trials=%d/folds=5", r.neurons, r.trials), cr.Wall, "cpu-s", cr.CPU, "peak-MB", cr.MaxRSS/1e6)
 	fmt.Printf("  wall %.1f s (target <= 60), peak resident memory %.0f MB = %.2f x the float32 matrix\n", cr.Wall, cr.MaxRSS/1e6, cr.MaxRSS/1e6/matMB)
 	cj, err := comparefolder.ReadComparisonInfo(out)
 	if err != nil {

@@ -26,6 +26,15 @@
 // readout into the net and return the per-bin predictions (B x N, in the
 // units of the Problem: z-scored when Problem.Norm is set).
 //
+// The MSE solver's sums over neurons (S, cvt and the within sums; mse.go)
+// are taken over blocks of SumBlock neurons and added in block order
+// (sums.go), so that ranges of neurons starting at block boundaries give
+// the same sums bit for bit: BlockSumsOf gives a range's, AddBlocks adds
+// them into Sums, and a Problem of Sums alone trains the filters of a fit
+// whose neurons' statistics are never in one place (stria's array tasks);
+// a Problem of a range's statistics and the Sums of all solves that
+// range's readouts as the fit of all neurons does.
+//
 // Letters: B bins (conditions), Bt and Bv those with training and with
 // validation trials, F features of the last conv layer, N neurons, W and
 // Wv the numbers of training and validation trials. Matrices are row-major

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"slices"
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
@@ -54,11 +55,17 @@ import (
 // projector holds the data of a projected fit reduced to B x B form, and
 // the scratch space of one evaluation. Shapes as in the comment above.
 type projector struct {
+	// N is the number of neurons whose data the projector holds (0 for
+	// a problem of Sums alone); Ntot that of the sums over neurons, the
+	// N of the losses' normalisation 1/(W N).
 	B, Bt, Bv, F, N int
-	rows, vrows     []int     // bins of the training and the validation rows
-	trainRow        []int     // B: the training row of each bin, -1 for none
-	sq, pw          []float64 // Bt: sqrt(N_b), N_b / W
-	nv              []float64 // Bv: validation trials of each row
+	Ntot            float64
+	count           []int       // B: training trials per condition
+	blocks          []BlockSums // projectorData's keepBlocks
+	rows, vrows     []int       // bins of the training and the validation rows
+	trainRow        []int       // B: the training row of each bin, -1 for none
+	sq, pw          []float64   // Bt: sqrt(N_b), N_b / W
+	nv              []float64   // Bv: validation trials of each row
 	W, Wv, mu       float64
 	within, withinV float64 // within-condition sums of squares (all neurons)
 	// withinN is each neuron's within-condition sum of squares on the
@@ -122,12 +129,43 @@ const (
 )
 
 func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
+	pj, err := projectorData(pr, net.Features(), false)
+	if err != nil {
+		return nil, err
+	}
+	B, F := pj.B, pj.F
+	pj.work = net.NewWork(B)
+	pj.eye = make([]float64, B*B)
+	for b := 0; b < B; b++ {
+		pj.eye[b*B+b] = 1
+	}
+	if usableOneHot(net) {
+		pj.oneHot = newOneHotConv(net)
+	}
+	Bt := pj.Bt
+	pj.hbar = make([]float64, F)
+	pj.a = make([]float64, Bt*F)
+	pj.ga = make([]float64, Bt*F)
+	pj.qt = make([]float64, Bt*F)
+	pj.k = make([]float64, Bt*Bt)
+	pj.l = make([]float64, Bt*Bt)
+	pj.x = make([]float64, Bt*Bt)
+	pj.m = make([]float64, Bt*Bt)
+	pj.dH = make([]float64, B*F)
+	pj.nconv = len(net.Params) - net.Neurons*F - net.Neurons
+	return pj, nil
+}
+
+// projectorData reduces a problem to the projector's data for F
+// features: the neurons' own (yc, dv, ...) and the sums over neurons
+// (S, cvt, yyv, within, withinV). keepBlocks keeps the BlockSums of a
+// problem of PartStats in pj.blocks.
+func projectorData(pr *Problem, F int, keepBlocks bool) (*projector, error) {
 	if !(pr.Penalty > 0) {
 		return nil, fmt.Errorf("train.solver projected needs model.readout_l2 > 0 (it is %v): without a penalty the closed-form readout interpolates the condition means", pr.Penalty)
 	}
 	B, N, count := pr.dims()
-	F := net.Features()
-	pj := &projector{B: B, N: N, F: F}
+	pj := &projector{B: B, N: N, F: F, count: count}
 	for b, c := range count {
 		if c > 0 {
 			pj.rows = append(pj.rows, b)
@@ -163,46 +201,75 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 	for n := range mu {
 		mu[n], inv[n] = pr.Norm.Affine(n)
 	}
-	if pr.TrainParts != nil {
+	switch {
+	case pr.TrainParts != nil:
 		pj.consume = true
 		pj.trainFromParts(pr.TrainParts, inv)
-	} else {
+	case pr.Train != nil:
 		pj.trainFromStats(pr.Train, inv)
+	default:
+		pj.ymean = []float64{}
+		pj.yc = []float64{}
 	}
-	pj.S = make([]float64, Bt*Bt)
-	sumOverNeurons(pj.S, pj.yc, pj.yc, Bt, Bt, N)
+	if pr.hasVal() {
+		switch {
+		case pr.TrainParts != nil:
+			pj.valFromParts(pr.ValParts, pr.TrainParts, inv)
+		case pr.Val != nil:
+			pj.valFromStats(pr.Val, inv)
+		default:
+			pj.valFromCounts(pr.Sums.ValCount)
+		}
+	}
+	pj.Ntot = float64(N)
+	switch {
+	case pr.Sums != nil:
+		if err := pj.setSums(pr.Sums, N, pr.TrainParts != nil); err != nil {
+			return nil, err
+		}
+	case pr.TrainParts != nil:
+		blocks := pj.blockSums()
+		pj.addBlocks(blocks)
+		if keepBlocks {
+			pj.blocks = blocks
+		}
+	default:
+		pj.S = make([]float64, Bt*Bt)
+		sumOverNeurons(pj.S, pj.yc, pj.yc, Bt, Bt, N)
+		if pj.Bv > 0 {
+			Bv := pj.Bv
+			pj.yyv = make([]float64, Bv)
+			for r := range pj.yyv {
+				var s float64
+				for _, v := range pj.dv[r*N : (r+1)*N] {
+					s += v * v
+				}
+				pj.yyv[r] = s
+			}
+			pj.cvt = make([]float64, Bv*Bt)
+			sumOverNeurons(pj.cvt, pj.dv, pj.yc, Bv, Bt, N)
+		}
+	}
 	for i := 0; i < Bt; i++ {
 		for j := 0; j < Bt; j++ {
 			pj.S[i*Bt+j] *= pj.sq[i] * pj.sq[j]
 		}
 	}
-
-	if pr.hasVal() {
-		if pr.TrainParts != nil {
-			pj.valFromParts(pr.ValParts, pr.TrainParts, inv)
-		} else {
-			pj.valFromStats(pr.Val, inv)
-		}
-		Bv := pj.Bv
-		pj.yyv = make([]float64, Bv)
-		for r := range pj.yyv {
-			d := pj.dv[r*N : (r+1)*N]
-			var s float64
-			for _, v := range d {
-				s += v * v
-			}
-			pj.yyv[r] = s
-		}
-		pj.cvt = make([]float64, Bv*Bt)
-		sumOverNeurons(pj.cvt, pj.dv, pj.yc, Bv, Bt, N)
+	if Bv := pj.Bv; Bv > 0 {
 		for r := 0; r < Bv; r++ {
 			for c := 0; c < Bt; c++ {
 				pj.cvt[r*Bt+c] *= pj.sq[c]
 			}
 		}
+		// From statistics per range of neurons (PartStats) the median R^2
+		// is left to the best filters (see Validate); in memory it is
+		// computed on every r2Every-th epoch.
 		pj.r2Every = 1
 		if cost := float64(Bv) * float64(Bt) * float64(N); cost > projectedR2Every {
 			pj.r2Every = int(math.Ceil(cost / projectedR2Budget))
+		}
+		if pr.TrainParts != nil || pr.Sums != nil {
+			pj.r2Every = 0
 		}
 		pj.g = make([]float64, Bv*min(N, neuronBlock))
 		pj.ssRes = make([]float64, N)
@@ -215,24 +282,6 @@ func newProjector(pr *Problem, net *nn.Net) (*projector, error) {
 	for n, m := range pj.ymean {
 		pj.ymean[n] = (m - mu[n]) * inv[n]
 	}
-	pj.work = net.NewWork(B)
-	pj.eye = make([]float64, B*B)
-	for b := 0; b < B; b++ {
-		pj.eye[b*B+b] = 1
-	}
-	if usableOneHot(net) {
-		pj.oneHot = newOneHotConv(net)
-	}
-	pj.hbar = make([]float64, F)
-	pj.a = make([]float64, Bt*F)
-	pj.ga = make([]float64, Bt*F)
-	pj.qt = make([]float64, Bt*F)
-	pj.k = make([]float64, Bt*Bt)
-	pj.l = make([]float64, Bt*Bt)
-	pj.x = make([]float64, Bt*Bt)
-	pj.m = make([]float64, Bt*Bt)
-	pj.dH = make([]float64, B*F)
-	pj.nconv = len(net.Params) - net.Neurons*F - net.Neurons
 	return pj, nil
 }
 
@@ -374,7 +423,7 @@ func (pj *projector) eval(net *nn.Net, grad, r2 bool) error {
 	if pj.spent {
 		panic("train: projected solver evaluated after ReadoutBlocks took over its statistics")
 	}
-	Bt, F, N := pj.Bt, pj.F, float64(pj.N)
+	Bt, F, N := pj.Bt, pj.F, pj.Ntot
 	h := pj.features(net)
 	l, ok := pj.factor()
 	if !ok {
@@ -503,14 +552,33 @@ func (pj *projector) valR2() float64 {
 	} else {
 		parallelScratch(N, Bv*neuronBlock, block)
 	}
-	k := 0
 	for n, ss := range pj.ssRes {
+		pj.r2[n] = math.NaN()
 		if pj.valTot[n] > 0 {
-			pj.r2[k] = 1 - ss/pj.valTot[n]
+			pj.r2[n] = 1 - ss/pj.valTot[n]
+		}
+	}
+	return medianR2(pj.ssRes, pj.r2)
+}
+
+// medianR2 returns the median of the values of r2 that are not NaN,
+// using scratch (len(r2) at least) for them.
+func medianR2(scratch, r2 []float64) float64 {
+	k := 0
+	for _, v := range r2 {
+		if !math.IsNaN(v) {
+			scratch[k] = v
 			k++
 		}
 	}
-	return median(pj.r2[:k])
+	return median(scratch[:k])
+}
+
+// MedianR2 is the median validation R^2 of a fit from every neuron's
+// (ValR2s of each range of neurons, joined): the median over the neurons
+// whose value is not NaN, as ValR2 computes it.
+func MedianR2(r2 []float64) float64 {
+	return medianR2(make([]float64, len(r2)), r2)
 }
 
 // readout writes the closed-form readout of the net's current filters into
@@ -594,7 +662,9 @@ func (pj *projector) curves() []float64 {
 //
 // The loss an epoch reports is the training data loss before its step;
 // Validate gives the validation loss and median R^2 after it (R^2 NaN on
-// epochs skipped by r2Every, never the first).
+// epochs skipped by r2Every, never the first; from PartStats or Sums on
+// every epoch: the caller asks ValR2 or ValR2s at the best filters, so
+// that ranges of neurons fitted apart log the same).
 type MSE struct {
 	pj  *projector
 	net *nn.Net
@@ -637,7 +707,7 @@ func (s *MSE) Epoch(opt *nn.Adam) float64 {
 // validation trials) and the median validation R^2.
 func (s *MSE) Validate(epoch int) (float64, float64, error) {
 	pj := s.pj
-	r2 := epoch == 1 || (pj.r2Every > 0 && epoch%pj.r2Every == 0)
+	r2 := pj.r2Every > 0 && (epoch == 1 || epoch%pj.r2Every == 0)
 	if err := pj.eval(s.net, true, r2); err != nil {
 		return 0, 0, err
 	}
@@ -657,6 +727,19 @@ func (s *MSE) ValR2() (float64, error) {
 		return 0, err
 	}
 	return s.pj.vr2, nil
+}
+
+// ValR2s returns every neuron's validation R^2 at the net's current
+// filters (NaN for a neuron without validation variance; nil without
+// validation trials): MedianR2 of them is ValR2.
+func (s *MSE) ValR2s() ([]float64, error) {
+	if s.pj.Bv == 0 {
+		return nil, nil
+	}
+	if err := s.pj.eval(s.net, false, true); err != nil {
+		return nil, err
+	}
+	return slices.Clone(s.pj.r2), nil
 }
 
 // Readout writes the closed-form readout at the problem's penalty into

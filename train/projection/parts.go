@@ -72,7 +72,8 @@ func (pj *projector) valFromStats(sv *condstats.Stats, inv []float64) {
 	}
 }
 
-// trainFromParts fills the training data from ps, keeping yc in ps.Sum:
+// trainFromParts fills the training data from ps (the within sums of
+// squares over neurons come from blockSums), keeping yc in ps.Sum:
 // yc_bn = (Sum_bn / N_b - g_n) inv_n with g_n = sum_b Sum_bn / W (the
 // reference cancels), ymean_n = r_n + g_n, and each neuron's
 // within-condition sum of squares TotSq_n - sum_b Sum_bn^2 / N_b
@@ -81,9 +82,7 @@ func (pj *projector) trainFromParts(ps *condstats.PartStats, inv []float64) {
 	Bt, N := pj.Bt, pj.N
 	pj.withinN = ps.WithinSS(nil)
 	for n, w := range pj.withinN {
-		w *= inv[n] * inv[n]
-		pj.withinN[n] = w
-		pj.within += w
+		pj.withinN[n] = w * inv[n] * inv[n]
 	}
 	pj.ymean = ps.GrandMean(nil)
 	ps.CentredMeans(ps.Sum)
@@ -119,7 +118,6 @@ func (pj *projector) valFromParts(ps, train *condstats.PartStats, inv []float64)
 	for n, w := range pj.withN {
 		i2 := inv[n] * inv[n]
 		pj.withN[n] = w * i2
-		pj.withinV += w * i2
 		pj.valTot[n] *= i2
 	}
 	ps.Means(ps.Sum)

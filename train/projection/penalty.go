@@ -177,7 +177,7 @@ func (rp *ridgePath) valLoss(dst []float64, pj *projector) {
 			}
 			sum += pj.nv[r] * (pj.yyv[r] - 2*cross + quad)
 		}
-		dst[g] = sum / (pj.Wv * float64(pj.N))
+		dst[g] = sum / (pj.Wv * pj.Ntot)
 	}
 }
 

@@ -9,27 +9,15 @@ import (
 )
 
 // PoissonQN is the Poisson fast path with the filters trained by a
-// limited-memory quasi-Newton method (L-BFGS) instead of Adam [practice:
-// Nocedal J, Wright SJ (2006) Numerical Optimization, 2nd ed., alg. 7.4
-// (two-loop recursion) and 3.1 (backtracking) [mem]]. Every evaluation of
-// the projected objective solves the readouts tightly from the previous
-// ones (inexact Newton steps until each neuron's Newton decrement is below
-// psStartTol), so that the objective and its envelope gradient are
-// accurate enough for a line search. One Epoch of the loop is one
-// iteration: a direction from the last qnMemory steps, then a backtracking
-// line search (Armijo) from the full step. Steps whose curvature s.y is
-// not positive are not stored; a direction that is not a descent
-// direction, or a line search that fails, restarts the memory with a
-// steepest-descent step; a failure from steepest descent ends training
-// (later epochs change nothing, so early stopping ends the loop).
+// limited-memory quasi-Newton method (lbfgs) instead of Adam. Every
+// evaluation of the projected objective solves the readouts tightly from
+// the previous ones (inexact Newton steps until each neuron's Newton
+// decrement is below psStartTol), so that the objective and its envelope
+// gradient are accurate enough for a line search. One Epoch of the loop is
+// one iteration (lbfgs.step).
 type PoissonQN struct {
 	*Poisson
-	sMem, yMem [][]float64 // qnMemory x nconv, ring buffer
-	rho        []float64
-	head, cnt  int
-	x0, g0, d  []float64
-	alpha      []float64
-	done       bool
+	qn lbfgs
 	// The readouts at the line search's start (beta N x Bt, c N, their
 	// basis Qt r0 x F): every trial starts its readout solves from them,
 	// not from a rejected trial's.
@@ -43,17 +31,8 @@ type PoissonQN struct {
 	// with it.
 	WeightDecay float64
 	obj         float64
+	evalAtFn    func(float64) float64
 }
-
-// qnMemory is the number of step pairs L-BFGS keeps; qnFirstStep the
-// largest change of one filter parameter in a steepest-descent step (the
-// size of one Adam step at the default learning rate); qnMaxHalve the
-// halvings one line search tries before it fails.
-const (
-	qnMemory    = 10
-	qnFirstStep = 1e-2
-	qnMaxHalve  = 30
-)
 
 // NewPoissonQN is NewPoisson for the quasi-Newton filter training.
 func NewPoissonQN(pr Problem, net *nn.Net) (*PoissonQN, error) {
@@ -61,14 +40,9 @@ func NewPoissonQN(pr Problem, net *nn.Net) (*PoissonQN, error) {
 	if err != nil {
 		return nil, err
 	}
-	n := s.pp.nconv
-	q := &PoissonQN{Poisson: s, rho: make([]float64, qnMemory), alpha: make([]float64, qnMemory),
-		x0: make([]float64, n), g0: make([]float64, n), d: make([]float64, n),
+	q := &PoissonQN{Poisson: s, qn: newLBFGS(s.pp.nconv),
 		beta0: make([]float64, len(s.pp.beta)), c0: make([]float64, len(s.pp.c)), qt0: make([]float64, len(s.pp.qt))}
-	for range qnMemory {
-		q.sMem = append(q.sMem, make([]float64, n))
-		q.yMem = append(q.yMem, make([]float64, n))
-	}
+	q.evalAtFn = q.evalAt
 	return q, nil
 }
 
@@ -80,28 +54,28 @@ func (q *PoissonQN) Begin() error {
 	if err := q.pp.eval(q.net, true, false); err != nil {
 		return err
 	}
-	q.obj = q.pp.obj + q.decay()
+	q.obj = q.pp.obj + weightDecay(q.WeightDecay, q.Trainable(), q.net.Grads)
 	return nil
 }
 
-// decay adds the weight decay's gradient to the filter gradient and
-// returns its term of the objective.
-func (q *PoissonQN) decay() float64 {
-	if q.WeightDecay == 0 {
+// weightDecay adds the weight decay wd's gradient over the filter
+// parameters x to grads (a prefix of it) and returns its term of the
+// objective, (wd / 2) ||x||^2.
+func weightDecay(wd float64, x, grads []float64) float64 {
+	if wd == 0 {
 		return 0
 	}
-	x := q.Trainable()
-	floats.AddScaled(q.net.Grads[:len(x)], q.WeightDecay, x)
-	return q.WeightDecay / 2 * floats.Dot(x, x)
+	floats.AddScaled(grads[:len(x)], wd, x)
+	return wd / 2 * floats.Dot(x, x)
 }
 
 // evalAt moves the filters to x0 + t d and evaluates the projected
-// objective there (readouts tightly solved, gradient in net.Grads); it
-// returns +Inf where the features are not finite.
+// objective there (readouts tightly solved from those at x0, gradient in
+// net.Grads); it returns +Inf where the features are not finite.
 func (q *PoissonQN) evalAt(t float64) float64 {
 	x := q.Trainable()
 	for i := range x {
-		x[i] = q.x0[i] + t*q.d[i]
+		x[i] = q.qn.x0[i] + t*q.qn.d[i]
 	}
 	pp := q.pp
 	copy(pp.beta, q.beta0)
@@ -113,7 +87,7 @@ func (q *PoissonQN) evalAt(t float64) float64 {
 	if err := q.pp.eval(q.net, true, false); err != nil || math.IsNaN(q.pp.obj) {
 		q.obj = math.Inf(1)
 	} else {
-		q.obj = q.pp.obj + q.decay()
+		q.obj = q.pp.obj + weightDecay(q.WeightDecay, x, q.net.Grads)
 	}
 	return q.obj
 }
@@ -123,90 +97,15 @@ func (q *PoissonQN) evalAt(t float64) float64 {
 func (q *PoissonQN) Epoch(_ *nn.Adam) float64 {
 	pp := q.pp
 	loss := pp.loss
-	if q.done {
+	if q.qn.done {
 		return loss
 	}
-	n := pp.nconv
-	x, g := q.Trainable(), q.net.Grads[:n]
-	copy(q.x0, x)
-	copy(q.g0, g)
-	f0 := q.obj
 	copy(q.beta0, pp.beta)
 	copy(q.c0, pp.c)
 	q.r0 = pp.r
 	copy(q.qt0[:q.r0*pp.F], pp.qt[:q.r0*pp.F])
-	for attempt := 0; attempt < 2; attempt++ {
-		gd := q.direction()
-		if !(gd < 0) {
-			q.cnt = 0
-			gd = q.direction()
-		}
-		if !(gd < 0) {
-			break
-		}
-		t := 1.0
-		for range qnMaxHalve {
-			f := q.evalAt(t)
-			if f <= f0+1e-4*t*gd {
-				// Store the pair if its curvature is positive.
-				s, y := q.sMem[q.head], q.yMem[q.head]
-				for i := range s {
-					s[i] = t * q.d[i]
-					y[i] = g[i] - q.g0[i]
-				}
-				if sy := floats.Dot(s, y); sy > 1e-12*math.Sqrt(floats.Dot(s, s)*floats.Dot(y, y)) && sy > 0 {
-					q.rho[q.head] = 1 / sy
-					q.head = (q.head + 1) % qnMemory
-					q.cnt = min(q.cnt+1, qnMemory)
-				}
-				return loss
-			}
-			t /= 2
-		}
-		// The line search failed: back to x0; retry once from steepest
-		// descent unless this was steepest descent already.
-		if q.cnt == 0 {
-			break
-		}
-		q.cnt = 0
-	}
-	q.done = true
-	q.evalAt(0)
+	q.qn.step(q.Trainable(), q.net.Grads[:pp.nconv], q.obj, q.evalAtFn)
 	return loss
-}
-
-// direction sets q.d = -H g0 by the two-loop recursion (with no pairs
-// stored: a steepest-descent step whose largest component is
-// qnFirstStep) and returns g0 . d.
-func (q *PoissonQN) direction() float64 {
-	d, g := q.d, q.g0
-	if q.cnt == 0 {
-		m := floats.Norm(g, math.Inf(1))
-		if !(m > 0) || math.IsInf(m, 0) {
-			return 0
-		}
-		for i, v := range g {
-			d[i] = -v * qnFirstStep / m
-		}
-		return floats.Dot(g, d)
-	}
-	for i, v := range g {
-		d[i] = -v
-	}
-	k := q.head
-	for range q.cnt {
-		k = (k + qnMemory - 1) % qnMemory
-		q.alpha[k] = q.rho[k] * floats.Dot(q.sMem[k], d)
-		floats.AddScaled(d, -q.alpha[k], q.yMem[k])
-	}
-	last := (q.head + qnMemory - 1) % qnMemory
-	floats.Scale(1/(q.rho[last]*floats.Dot(q.yMem[last], q.yMem[last])), d)
-	for range q.cnt {
-		b := q.rho[k] * floats.Dot(q.yMem[k], d)
-		floats.AddScaled(d, q.alpha[k]-b, q.sMem[k])
-		k = (k + 1) % qnMemory
-	}
-	return floats.Dot(g, d)
 }
 
 // Validate returns the validation loss of the last evaluation (the
@@ -221,3 +120,9 @@ func (q *PoissonQN) Validate(epoch int) (float64, float64, error) {
 	pp.valLoss(pp.h, r2)
 	return pp.val, pp.vr2, nil
 }
+
+// State returns the quasi-Newton memory, for a checkpoint.
+func (q *PoissonQN) State() []float64 { return q.qn.state() }
+
+// SetState restores the quasi-Newton memory of a checkpoint.
+func (q *PoissonQN) SetState(v []float64) error { return q.qn.setState(v) }

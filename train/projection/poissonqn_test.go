@@ -44,7 +44,7 @@ func TestPoissonQN(t *testing.T) {
 			nc := q.pp.nconv
 			g0 := maxAbs(net.Grads[:nc])
 			prev := q.obj
-			for it := 1; it <= 200 && !q.done; it++ {
+			for it := 1; it <= 200 && !q.qn.done; it++ {
 				q.Epoch(nil)
 				if q.obj > prev+1e-12*math.Abs(prev) {
 					t.Fatalf("iteration %d: objective %.12g above the previous %.12g", it, q.obj, prev)

@@ -22,6 +22,14 @@ type Problem struct {
 	// which it overwrites: at a million neurons that saves a B x N copy
 	// of each.
 	TrainParts, ValParts *condstats.PartStats
+	// Sums, when not nil, are the sums over all the neurons that the
+	// filters depend on (AddBlocks of the BlockSums of every range of
+	// neurons). Alone (Train and TrainParts nil) they are a problem with
+	// no neuron's data: the filters can be trained on it but no readout
+	// solved (a fit's reduce step). With TrainParts of a range of the
+	// neurons they take the place of that range's own sums: the readouts
+	// of the range are those of a fit of all the neurons.
+	Sums *Sums
 	// Norm z-scores the responses (nil: none); the solvers work in the
 	// z-scored units and return predictions in them.
 	Norm *condstats.Normalizer
@@ -40,6 +48,9 @@ type Problem struct {
 }
 
 func (pr *Problem) hasVal() bool {
+	if pr.TrainParts == nil && pr.Train == nil {
+		return pr.Sums != nil && countSum(pr.Sums.ValCount) > 0
+	}
 	if pr.TrainParts != nil {
 		return pr.ValParts != nil && pr.ValParts.Trials > 0
 	}
@@ -51,6 +62,9 @@ func (pr *Problem) hasVal() bool {
 func (pr *Problem) dims() (B, N int, count []int) {
 	if pr.TrainParts != nil {
 		return pr.TrainParts.B, pr.TrainParts.N, pr.TrainParts.Count
+	}
+	if pr.Train == nil && pr.Sums != nil {
+		return len(pr.Sums.TrainCount), 0, pr.Sums.TrainCount
 	}
 	return pr.Train.B, pr.Train.N, pr.Train.Count
 }

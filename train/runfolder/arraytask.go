@@ -11,6 +11,7 @@ import (
 
 	"github.com/strialab/stria/data/condstats"
 	"github.com/strialab/stria/data/format"
+	"github.com/strialab/stria/train/projection"
 )
 
 // A fit spread over array tasks (stria fit --array-task I
@@ -23,7 +24,7 @@ const (
 	DirArrayTasks  = "array_tasks"
 	FileArrayStats = "stats.json"
 	// FormatArrayStats is ArrayStats.Format.
-	FormatArrayStats = "stria-fit-array-task/1"
+	FormatArrayStats = "stria-fit-array-task/2"
 )
 
 // ArrayStats is FileArrayStats of one array task of a fit.
@@ -43,6 +44,10 @@ type ArrayStats struct {
 	// Parts describes each PartStats (training, validation, test, the
 	// dealing over all trials): counts and which arrays it has.
 	Parts []ArrayPart `json:"parts"`
+	// Blocks is the task's range of blocks of projection.SumBlock
+	// neurons [first, last+1): its block sums (the sums over neurons the
+	// filters depend on, one row per block) are in the sums_*.npy files.
+	Blocks [2]int `json:"blocks"`
 }
 
 // ArrayPart is the part of ArrayStats that describes one PartStats.
@@ -84,7 +89,10 @@ func partArrays(ps *condstats.PartStats) (names []string, vals [][]float64, rows
 // into its folder of dir: the arrays first, each atomically, then
 // FileArrayStats, so that the task's folder counts as done only when all
 // of it is there. An earlier FileArrayStats of the task is removed first.
-func WriteArrayStats(dir string, a ArrayStats, parts []*condstats.PartStats) error {
+//
+// The block sums come from sums, called once the statistics are written
+// (it may overwrite them in memory); they must be those of a.Blocks.
+func WriteArrayStats(dir string, a ArrayStats, parts []*condstats.PartStats, sums func() ([]projection.BlockSums, error)) error {
 	if len(parts) != len(arrayPartNames) {
 		panic(fmt.Sprintf("runfolder: WriteArrayStats of %d statistics, want %d", len(parts), len(arrayPartNames)))
 	}
@@ -92,8 +100,10 @@ func WriteArrayStats(dir string, a ArrayStats, parts []*condstats.PartStats) err
 	if err := mkdir(td); err != nil {
 		return err
 	}
-	if err := os.Remove(filepath.Join(td, FileArrayStats)); err != nil && !errNotExist(err) {
-		return err
+	for _, f := range []string{FileArrayStats, FileArrayReadouts} {
+		if err := os.Remove(filepath.Join(td, f)); err != nil && !errNotExist(err) {
+			return err
+		}
 	}
 	a.Format = FormatArrayStats
 	a.Parts = nil
@@ -106,6 +116,16 @@ func WriteArrayStats(dir string, a ArrayStats, parts []*condstats.PartStats) err
 				return err
 			}
 		}
+	}
+	blocks, err := sums()
+	if err != nil {
+		return err
+	}
+	if len(blocks) != a.Blocks[1]-a.Blocks[0] {
+		panic(fmt.Sprintf("runfolder: WriteArrayStats of %d block sums for blocks [%d, %d)", len(blocks), a.Blocks[0], a.Blocks[1]))
+	}
+	if err := writeBlockSums(td, blocks); err != nil {
+		return err
 	}
 	return WriteJSON(filepath.Join(td, FileArrayStats), a)
 }
@@ -130,7 +150,7 @@ func ReadArrayStats(dir string, i, n, part int) (*ArrayStats, *condstats.PartSta
 	nn := a.Neurons[1] - a.Neurons[0]
 	switch {
 	case a.Format != FormatArrayStats:
-		return nil, nil, fmt.Errorf("%s: format %q, want %s", path, a.Format, FormatArrayStats)
+		return nil, nil, fmt.Errorf("%s: format %q, want %s (written by another stria version: run that array task again)", path, a.Format, FormatArrayStats)
 	case a.Task != i || a.Tasks != n:
 		return nil, nil, fmt.Errorf("%s: written by array task %d of %d, but it is in the folder of task %d of %d", path, a.Task, a.Tasks, i, n)
 	case nn < 0 || len(a.Parts) != ArrayParts:
