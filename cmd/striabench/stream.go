@@ -146,6 +146,7 @@ func runStream(o options, so streamOptions) error {
 			return err
 		}
 		catMean := (c1.Wall + c2.Wall) / 2
+		bench.line(fmt.Sprintf("StreamFit/neurons=%d/trials=%d", so.neurons, so.trials), f.Wall, "cpu-s", f.CPU, "peak-MB", f.MaxRSS/1e6, "x-cat", f.Wall/catMean, "cat-s", catMean)
 		fmt.Printf("  run %d: cat %.1f s, stria fit %.1f s (%.0f s CPU), cat %.1f s; fit / mean cat %.2f; fit peak RSS %.2f GB\n",
 			i+1, c1.Wall, f.Wall, f.CPU, c2.Wall, f.Wall/catMean, f.MaxRSS/1e9)
 		cats = append(cats, c1.Wall, c2.Wall)
