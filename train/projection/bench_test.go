@@ -282,3 +282,27 @@ func BenchmarkReadoutWeights(b *testing.B) {
 	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N*N), "ns/neuron")
 	b.ReportMetric((cpuSeconds()-c0)*1e9/float64(b.N*N), "cpu-ns/neuron")
 }
+
+// BenchmarkBlockSums: the sums over neurons the filters read (S, Cvt,
+// Yyv and the within sums, by blocks of SumBlock neurons) at 60 training
+// and 60 validation bins, per neuron; at a million neurons this is part of
+// stria fit's "fit" phase.
+func BenchmarkBlockSums(b *testing.B) {
+	const B, N = 60, 40960
+	rng := rand.New(rand.NewPCG(5, 8))
+	fill := func(n int) []float64 {
+		v := make([]float64, n)
+		for i := range v {
+			v[i] = rng.NormFloat64()
+		}
+		return v
+	}
+	pj := &projector{B: B, Bt: B, Bv: B, N: N, yc: fill(B * N), dv: fill(B * N), withinN: fill(N), withN: fill(N)}
+	b.ResetTimer()
+	c0 := cpuSeconds()
+	for range b.N {
+		pj.blockSums()
+	}
+	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N*N), "ns/neuron")
+	b.ReportMetric((cpuSeconds()-c0)*1e9/float64(b.N*N), "cpu-ns/neuron")
+}

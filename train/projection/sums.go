@@ -3,9 +3,6 @@ package projection
 import (
 	"fmt"
 	"slices"
-
-	"gonum.org/v1/gonum/blas"
-	"gonum.org/v1/gonum/blas/blas64"
 )
 
 // The sums over neurons of the MSE projector (see the comment at the top
@@ -129,8 +126,17 @@ func (pj *projector) blockSums() []BlockSums {
 	parallelBlocks(N, func(n0, n1 int) {
 		b := &out[n0/SumBlock]
 		nb := n1 - n0
+		// The block's yc transposed (nb x Bt), so that both products
+		// are mulInto's x a: each sum over the block's neurons in
+		// ascending order, products rounded before they are added.
+		yt := make([]float64, nb*Bt)
+		for r := 0; r < Bt; r++ {
+			for j, v := range pj.yc[r*N+n0 : r*N+n1] {
+				yt[j*Bt+r] = v
+			}
+		}
 		b.S = make([]float64, Bt*Bt)
-		blas64.Gemm(blas.NoTrans, blas.Trans, 1, cols(pj.yc, Bt, N, n0, nb), cols(pj.yc, Bt, N, n0, nb), 0, gen(b.S, Bt, Bt))
+		mulInto(b.S, Bt, pj.yc[n0:], N, yt, Bt, Bt, nb, Bt)
 		for _, w := range pj.withinN[n0:n1] {
 			b.Within += w
 		}
@@ -138,7 +144,7 @@ func (pj *projector) blockSums() []BlockSums {
 			return
 		}
 		b.Cvt = make([]float64, Bv*Bt)
-		blas64.Gemm(blas.NoTrans, blas.Trans, 1, cols(pj.dv, Bv, N, n0, nb), cols(pj.yc, Bt, N, n0, nb), 0, gen(b.Cvt, Bv, Bt))
+		mulInto(b.Cvt, Bt, pj.dv[n0:], N, yt, Bt, Bv, nb, Bt)
 		b.Yyv = make([]float64, Bv)
 		for r := range b.Yyv {
 			var s float64
