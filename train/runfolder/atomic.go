@@ -2,6 +2,7 @@ package runfolder
 
 import (
 	"bufio"
+	"bytes"
 	"encoding/csv"
 	"encoding/json"
 	"errors"
@@ -10,7 +11,9 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strconv"
+	"sync"
 )
 
 // Modes of the files and folders runfolder writes.
@@ -113,6 +116,75 @@ func WriteCSV(path string, header []string, emit func(cw *csv.Writer) error) err
 		cw.Flush()
 		return cw.Error()
 	})
+}
+
+// csvBlock is the number of rows WriteCSVRows formats as one block.
+const csvBlock = 1 << 14
+
+// WriteCSVRows writes a header and n rows atomically through encoding/csv;
+// fill sets every field of row i (row has len(header) fields and is
+// reused from row to row, so fill must set each one). Blocks of csvBlock
+// rows are formatted on all cores, each block by its own csv.Writer into
+// a buffer (a record's text does not depend on the records before it),
+// and the buffers are written in row order: the file has the bytes of one
+// csv.Writer writing every row in turn, for any number of cores. fill is
+// called concurrently for rows of different blocks, so it must only read
+// what it shares. Memory: a buffer of csvBlock rows per core.
+func WriteCSVRows(path string, header []string, n int, fill func(row []string, i int)) error {
+	workers := runtime.GOMAXPROCS(0)
+	bufs := make([]bytes.Buffer, workers)
+	rows := make([][]string, workers)
+	for i := range rows {
+		rows[i] = make([]string, len(header))
+	}
+	errs := make([]error, workers)
+	return WriteFile(path, func(w io.Writer) error {
+		cw := csv.NewWriter(w)
+		if err := cw.Write(header); err != nil {
+			return err
+		}
+		cw.Flush()
+		if err := cw.Error(); err != nil {
+			return err
+		}
+		for r0 := 0; r0 < n; r0 += workers * csvBlock {
+			var wg sync.WaitGroup
+			for k := range bufs {
+				i0 := min(r0+k*csvBlock, n)
+				i1 := min(i0+csvBlock, n)
+				bufs[k].Reset()
+				wg.Add(1)
+				go func() {
+					defer wg.Done()
+					errs[k] = formatRows(&bufs[k], rows[k], i0, i1, fill)
+				}()
+			}
+			wg.Wait()
+			for k := range bufs {
+				if errs[k] != nil {
+					return errs[k]
+				}
+				if _, err := w.Write(bufs[k].Bytes()); err != nil {
+					return err
+				}
+			}
+		}
+		return nil
+	})
+}
+
+// formatRows writes rows [i0, i1) to b through a csv.Writer, each first
+// filled into row by fill.
+func formatRows(b *bytes.Buffer, row []string, i0, i1 int, fill func(row []string, i int)) error {
+	cw := csv.NewWriter(b)
+	for i := i0; i < i1; i++ {
+		fill(row, i)
+		if err := cw.Write(row); err != nil {
+			return err
+		}
+	}
+	cw.Flush()
+	return cw.Error()
 }
 
 // ReadTable reads a CSV file with a header row through encoding/csv;

@@ -1,10 +1,8 @@
 package runfolder
 
 import (
-	"bytes"
 	"encoding/csv"
 	"fmt"
-	"io"
 	"math"
 	"os"
 	"path/filepath"
@@ -424,71 +422,18 @@ func NewNeuronScores(names []string, scores []eval.Scores, excluded map[int]stri
 	return t
 }
 
-// WriteNeuronScores writes neuron_scores.csv into dir.
+// WriteNeuronScores writes neuron_scores.csv into dir (by blocks of rows
+// on all cores: WriteCSVRows).
 func WriteNeuronScores(dir string, t *NeuronScores) error {
-	path := filepath.Join(dir, FileNeuronScores)
 	header := append(append([]string{"neuron", "name"}, ScoreColumns...), ColCeiling, ColSplitHalfAll, "excluded")
-	// Blocks of rows are formatted on all cores, each by its own
-	// csv.Writer (a record's text does not depend on the records before
-	// it), and written in order: the bytes of one writer over all rows.
-	const block = 1 << 14
-	n := len(t.Names)
-	workers := runtime.GOMAXPROCS(0)
-	bufs := make([]bytes.Buffer, workers)
-	return WriteFile(path, func(w io.Writer) error {
-		cw := csv.NewWriter(w)
-		if err := cw.Write(header); err != nil {
-			return err
-		}
-		cw.Flush()
-		if err := cw.Error(); err != nil {
-			return err
-		}
-		for r0 := 0; r0 < n; r0 += workers * block {
-			errs := make([]error, workers)
-			var wg sync.WaitGroup
-			for i := range bufs {
-				j0 := min(r0+i*block, n)
-				j1 := min(j0+block, n)
-				bufs[i].Reset()
-				wg.Add(1)
-				go func() {
-					defer wg.Done()
-					errs[i] = formatScoreRows(&bufs[i], t, len(header), j0, j1)
-				}()
-			}
-			wg.Wait()
-			for i := range bufs {
-				if errs[i] != nil {
-					return errs[i]
-				}
-				if _, err := w.Write(bufs[i].Bytes()); err != nil {
-					return err
-				}
-			}
-		}
-		return nil
-	})
-}
-
-// formatScoreRows writes the rows of neurons [j0, j1) of neuron_scores.csv
-// (ncol fields) to b through a csv.Writer.
-func formatScoreRows(b *bytes.Buffer, t *NeuronScores, ncol, j0, j1 int) error {
-	cw := csv.NewWriter(b)
-	row := make([]string, ncol)
-	for j := j0; j < j1; j++ {
+	return WriteCSVRows(filepath.Join(dir, FileNeuronScores), header, len(t.Names), func(row []string, j int) {
 		row[0], row[1] = strconv.Itoa(j), t.Names[j]
 		for k := range ScoreColumns {
 			row[2+k] = FormatScore(t.Cols[k][j])
 		}
 		row[len(row)-3], row[len(row)-2] = t.Ceiling[j], FormatScore(t.SplitHalfAll[j])
 		row[len(row)-1] = t.Excluded[j]
-		if err := cw.Write(row); err != nil {
-			return err
-		}
-	}
-	cw.Flush()
-	return cw.Error()
+	})
 }
 
 // ReadNeuronScores reads neuron_scores.csv of dir; n is the number of

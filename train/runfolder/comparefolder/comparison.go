@@ -218,22 +218,16 @@ func WriteComparison(dir string, c *ComparisonFolder) error {
 	header := append(append([]string{"model", "fold", "neuron"}, runfolder.ScoreColumns...), runfolder.ColCeiling, "excluded")
 	writes := []func() error{
 		func() error {
-			return runfolder.WriteCSV(filepath.Join(dir, FileFoldScores), header, func(cw *csv.Writer) error {
-				row := make([]string, len(header))
-				for _, fs := range c.FoldScores {
-					for j := 0; j < n; j++ {
-						row[0], row[1], row[2] = fs.Model, strconv.Itoa(fs.Fold+1), strconv.Itoa(j)
-						for k := range runfolder.ScoreColumns {
-							row[3+k] = runfolder.FormatScore(fs.Cols[k][j])
-						}
-						row[len(row)-2] = fs.Ceiling[j]
-						row[len(row)-1] = c.Excluded[j]
-						if err := cw.Write(row); err != nil {
-							return err
-						}
-					}
+			// Rows by model and fold, neurons in order (by blocks on all
+			// cores: runfolder.WriteCSVRows).
+			return runfolder.WriteCSVRows(filepath.Join(dir, FileFoldScores), header, len(c.FoldScores)*n, func(row []string, i int) {
+				fs, j := &c.FoldScores[i/n], i%n
+				row[0], row[1], row[2] = fs.Model, strconv.Itoa(fs.Fold+1), strconv.Itoa(j)
+				for k := range runfolder.ScoreColumns {
+					row[3+k] = runfolder.FormatScore(fs.Cols[k][j])
 				}
-				return nil
+				row[len(row)-2] = fs.Ceiling[j]
+				row[len(row)-1] = c.Excluded[j]
 			})
 		},
 		func() error { return writeFoldAverages(filepath.Join(dir, FileFoldAverages), c.Result) },
@@ -242,13 +236,12 @@ func WriteComparison(dir string, c *ComparisonFolder) error {
 		},
 		func() error { return WritePairsTable(filepath.Join(dir, FileModelPairs), c.Result.Pairs) },
 		func() error {
-			return runfolder.WriteCSV(filepath.Join(dir, FileDescriptors), descriptorHeader, func(cw *csv.Writer) error {
-				for _, d := range c.Descriptors {
-					if err := cw.Write([]string{d.Source, strconv.Itoa(d.Neuron), runfolder.FormatScore(d.Preferred), runfolder.FormatScore(d.Peak), runfolder.FormatScore(d.OneMinusCV), runfolder.FormatScore(d.DirVector), runfolder.FormatScore(d.OSI), runfolder.FormatScore(d.DSI)}); err != nil {
-						return err
-					}
+			return runfolder.WriteCSVRows(filepath.Join(dir, FileDescriptors), descriptorHeader, len(c.Descriptors), func(row []string, i int) {
+				d := &c.Descriptors[i]
+				row[0], row[1] = d.Source, strconv.Itoa(d.Neuron)
+				for q, v := range [...]float64{d.Preferred, d.Peak, d.OneMinusCV, d.DirVector, d.OSI, d.DSI} {
+					row[2+q] = runfolder.FormatScore(v)
 				}
-				return nil
 			})
 		},
 		func() error { return runfolder.WriteBytes(filepath.Join(dir, runfolder.FileSettings), c.Settings) },
@@ -299,25 +292,24 @@ const (
 // over all trials (the same in every model's rows).
 func writeFoldAverages(path string, c *Comparison) error {
 	header := append(append([]string{"model", "neuron"}, runfolder.ScoreColumns...), runfolder.ColCeiling, ColCeilingFolds, runfolder.ColSplitHalfAll)
-	return runfolder.WriteCSV(path, header, func(cw *csv.Writer) error {
-		row := make([]string, len(header))
-		for _, m := range c.Models {
-			for j := 0; j < c.Neurons; j++ {
-				row[0], row[1] = m, strconv.Itoa(j)
-				for k, col := range runfolder.ScoreColumns {
-					row[2+k] = runfolder.FormatExact(c.PerNeuron[m][col][j])
-				}
-				rel := math.NaN()
-				if c.SplitHalfAll != nil {
-					rel = c.SplitHalfAll[j]
-				}
-				row[len(row)-3], row[len(row)-2], row[len(row)-1] = c.Ceiling[j], strconv.Itoa(c.UsableFolds[j]), runfolder.FormatExact(rel)
-				if err := cw.Write(row); err != nil {
-					return err
-				}
-			}
+	n := c.Neurons
+	cols := make([][][]float64, len(c.Models)) // [model][column][neuron]
+	for mi, m := range c.Models {
+		for _, col := range runfolder.ScoreColumns {
+			cols[mi] = append(cols[mi], c.PerNeuron[m][col])
 		}
-		return nil
+	}
+	return runfolder.WriteCSVRows(path, header, len(c.Models)*n, func(row []string, i int) {
+		mi, j := i/n, i%n
+		row[0], row[1] = c.Models[mi], strconv.Itoa(j)
+		for k, col := range cols[mi] {
+			row[2+k] = runfolder.FormatExact(col[j])
+		}
+		rel := math.NaN()
+		if c.SplitHalfAll != nil {
+			rel = c.SplitHalfAll[j]
+		}
+		row[len(row)-3], row[len(row)-2], row[len(row)-1] = c.Ceiling[j], strconv.Itoa(c.UsableFolds[j]), runfolder.FormatExact(rel)
 	})
 }
 
