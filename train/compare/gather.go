@@ -177,28 +177,20 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefol
 		}
 		perFold[r.Model] = append(perFold[r.Model], r.Scores)
 	}
-	rel := train.Reliability(p)
-	for j := range ex {
-		rel[j] = math.NaN()
-	}
-	start = tm.Since("gather: split-half reliability", start)
-	c, verdicts := AcrossFolds(names, p.Cfg.Split.Folds, n, perFold, excluded,
-		Scoring{Alpha: p.Cfg.Scores.CeilingAlpha, SplitHalfAll: rel, MinReliability: p.Cfg.Scores.MinReliability})
-	settings, err := p.Cfg.Marshal()
-	if err != nil {
-		return nil, err
-	}
-	start = tm.Since("gather: fold averages, summaries, pair tests", start)
-	f := &comparefolder.ComparisonFolder{Settings: settings, Result: c, Excluded: reasons, Curves: map[string][]float64{}}
-	for _, r := range results {
-		f.FoldScores = append(f.FoldScores, comparefolder.NewFoldScores(r.Model, r.Fold, r.Scores, ex, verdicts[r.Fold]))
-	}
-	// Fold-averaged curves per model.
-	for _, m := range names {
+	// The split-half reliability is one pass over the responses on one
+	// core: it runs beside the fold-averaged curves and the data's means.
+	var g format.GuardGroup
+	var rel []float64
+	g.Go(func() { rel = train.Reliability(p) })
+	f := &comparefolder.ComparisonFolder{Excluded: reasons, Curves: map[string][]float64{}}
+	// Fold-averaged curves per model, the models on all cores (each sums
+	// its folds in plan order).
+	curves := make([][]float64, len(names))
+	eachTask(len(names), func(mi int) {
 		a := make([]float64, nb*n)
 		k := 0
 		for _, r := range results {
-			if r.Model == m && r.Curves != nil {
+			if r.Model == names[mi] && r.Curves != nil {
 				for i, v := range r.Curves {
 					a[i] += v
 				}
@@ -208,7 +200,10 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefol
 		for i := range a {
 			a[i] /= float64(max(k, 1))
 		}
-		f.Curves[m] = a
+		curves[mi] = a
+	})
+	for mi, m := range names {
+		f.Curves[m] = curves[mi]
 	}
 	// The data: condition means and their standard errors over all trials.
 	all := make([]int, p.Rec.Y.Rows)
@@ -224,7 +219,27 @@ func newFolder(p *train.Prepared, specs []train.ModelSpec, results []*comparefol
 		}
 	}
 	f.Curves[comparefolder.CurveDataMean], f.Curves[comparefolder.CurveDataSEM] = means, sem
-	start = tm.Since("gather: fold scores, curves, data means", start)
+	if err := g.Wait(); err != nil {
+		panic(err) // a *format.FaultError: the caller's format.Guard returns it
+	}
+	for j := range ex {
+		rel[j] = math.NaN()
+	}
+	start = tm.Since("gather: reliability, curves, data means", start)
+	c, verdicts := AcrossFolds(names, p.Cfg.Split.Folds, n, perFold, excluded,
+		Scoring{Alpha: p.Cfg.Scores.CeilingAlpha, SplitHalfAll: rel, MinReliability: p.Cfg.Scores.MinReliability})
+	settings, err := p.Cfg.Marshal()
+	if err != nil {
+		return nil, err
+	}
+	f.Settings, f.Result = settings, c
+	start = tm.Since("gather: fold averages, summaries, pair tests", start)
+	f.FoldScores = make([]comparefolder.FoldScores, len(results))
+	eachTask(len(results), func(i int) {
+		r := results[i]
+		f.FoldScores[i] = comparefolder.NewFoldScores(r.Model, r.Fold, r.Scores, ex, verdicts[r.Fold])
+	})
+	start = tm.Since("gather: fold scores", start)
 	// Tuning descriptors of the data's and every model's curves, at the
 	// conditions' stimulus values; NaN throughout for an excluded neuron.
 	values := p.Values
@@ -342,18 +357,25 @@ func compareWarnings(w []string) []string {
 // neurons).
 func eachNeuronRange(n int, fn func(lo, hi int)) {
 	const chunk = 512
+	eachTask((n+chunk-1)/chunk, func(i int) { fn(i*chunk, min((i+1)*chunk, n)) })
+}
+
+// eachTask calls fn(i) for i in [0, n), in parallel on all cores, and
+// waits (fn must only write what belongs to task i, so that the results do
+// not depend on the number of cores).
+func eachTask(n int, fn func(i int)) {
 	var wg sync.WaitGroup
 	var next atomic.Int64
-	for range min(runtime.GOMAXPROCS(0), (n+chunk-1)/chunk) {
+	for range min(runtime.GOMAXPROCS(0), n) {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
 			for {
-				lo := int(next.Add(chunk) - chunk)
-				if lo >= n {
+				i := int(next.Add(1) - 1)
+				if i >= n {
 					return
 				}
-				fn(lo, min(lo+chunk, n))
+				fn(i)
 			}
 		}()
 	}

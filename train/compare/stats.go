@@ -50,10 +50,12 @@ func AcrossFolds(models []string, folds, neurons int, perFold map[string][][]eva
 	for _, v := range verdicts {
 		c.FoldCeilings = append(c.FoldCeilings, runfolder.CeilingCounts(v, isEx))
 	}
-	for _, m := range models {
-		c.PerNeuron[m] = map[string][]float64{}
+	// Each model's averages on its own, the models on all cores.
+	perNeuron := make([]map[string][]float64, len(models))
+	eachTask(len(models), func(mi int) {
+		perNeuron[mi] = map[string][]float64{}
 		cols := make([][][]float64, len(runfolder.ScoreColumns)) // [column][fold][neuron]
-		for _, scores := range perFold[m] {
+		for _, scores := range perFold[models[mi]] {
 			fold := make([][]float64, len(runfolder.ScoreColumns))
 			for k := range fold {
 				fold[k] = make([]float64, neurons)
@@ -70,8 +72,11 @@ func AcrossFolds(models []string, folds, neurons int, perFold map[string][][]eva
 		for k, name := range runfolder.ScoreColumns {
 			avg := make([]float64, neurons)
 			eval.FoldAverage(avg, cols[k], excluded)
-			c.PerNeuron[m][name] = avg
+			perNeuron[mi][name] = avg
 		}
+	})
+	for mi, m := range models {
+		c.PerNeuron[m] = perNeuron[mi]
 	}
 	compareModels(c)
 	return c, verdicts
@@ -179,19 +184,16 @@ func Reliable(c *comparefolder.Comparison) int {
 }
 
 // compareModels fills the summaries, winners and pairwise tests of c from
-// its fold averages, each metric over the neurons Kept gives it.
+// its fold averages, each metric over the neurons Kept gives it. The
+// metrics are computed on all cores, each into its own place, and
+// assembled in the order of CompareMetrics.
 func compareModels(c *comparefolder.Comparison) {
-	c.Summary = map[string]map[string]runfolder.Spread{}
-	c.Winner = map[string]string{}
-	c.Pairs = nil
-	for _, m := range c.Models {
-		c.Summary[m] = map[string]runfolder.Spread{}
-		for _, k := range comparefolder.CompareMetrics {
-			keep, by := Kept(c, k)
-			c.Summary[m][k] = runfolder.SpreadOver(c.PerNeuron[m][k], keep, by)
-		}
-	}
-	for _, k := range comparefolder.CompareMetrics {
+	metrics := comparefolder.CompareMetrics
+	spreads := make([][]runfolder.Spread, len(metrics)) // [metric][model]
+	winners := make([]string, len(metrics))
+	pairs := make([][]comparefolder.PairTest, len(metrics))
+	eachTask(len(metrics), func(q int) {
+		k := metrics[q]
 		keep, by := Kept(c, k)
 		kept := 0
 		for _, ok := range keep {
@@ -199,10 +201,12 @@ func compareModels(c *comparefolder.Comparison) {
 				kept++
 			}
 		}
+		spreads[q] = make([]runfolder.Spread, len(c.Models))
 		medians := make([]float64, len(c.Models))
 		cols := make([][]float64, len(c.Models))
 		for i, m := range c.Models {
-			medians[i] = float64(c.Summary[m][k].Median)
+			spreads[q][i] = runfolder.SpreadOver(c.PerNeuron[m][k], keep, by)
+			medians[i] = float64(spreads[q][i].Median)
 			cols[i] = make([]float64, 0, kept)
 			for j, v := range c.PerNeuron[m][k] {
 				if keep[j] {
@@ -211,12 +215,23 @@ func compareModels(c *comparefolder.Comparison) {
 			}
 		}
 		if b := eval.Best(medians); b >= 0 {
-			c.Winner[k] = c.Models[b]
-		} else {
-			c.Winner[k] = ""
+			winners[q] = c.Models[b]
 		}
 		for _, pt := range eval.Pairs(cols) {
-			c.Pairs = append(c.Pairs, comparefolder.PairTest{Metric: k, A: c.Models[pt.A], B: c.Models[pt.B], ShareA: pt.ShareA, Wilcoxon: pt.Wilcoxon, Kept: kept, KeptBy: by})
+			pairs[q] = append(pairs[q], comparefolder.PairTest{Metric: k, A: c.Models[pt.A], B: c.Models[pt.B], ShareA: pt.ShareA, Wilcoxon: pt.Wilcoxon, Kept: kept, KeptBy: by})
 		}
+	})
+	c.Summary = map[string]map[string]runfolder.Spread{}
+	c.Winner = map[string]string{}
+	c.Pairs = nil
+	for i, m := range c.Models {
+		c.Summary[m] = map[string]runfolder.Spread{}
+		for q, k := range metrics {
+			c.Summary[m][k] = spreads[q][i]
+		}
+	}
+	for q, k := range metrics {
+		c.Winner[k] = winners[q]
+		c.Pairs = append(c.Pairs, pairs[q]...)
 	}
 }
