@@ -79,7 +79,8 @@ func RunFoldUnit(ctx context.Context, spec ModelSpec, fold int, f *Fold) (*FoldR
 		q := *p
 		q.Cfg = spec.Cfg
 		pf = q.withSplitStats(sets[0], sets[1], sets[2], f.trainStats(), f.valStats())
-		fitted, err := Fit(ctx, pf, Hooks{}, nil)
+		// The fold reads only the curves unless the input is soft.
+		fitted, err := Fit(ctx, pf, Hooks{CurvesOnly: !p.Soft()}, nil)
 		if err != nil {
 			return nil, fmt.Errorf("%s, fold %d: %w", spec.Name, fold+1, err)
 		}

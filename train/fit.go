@@ -41,6 +41,12 @@ type Hooks struct {
 	// neurons. The file is removed before Fit returns, also on an error or
 	// an interruption; the results do not change.
 	TempDir string
+	// CurvesOnly says that the caller reads only Fitted.Curves (the
+	// per-bin predictions), as a comparison's fold does: the projected
+	// MSE solver with model.readout_l2 auto then computes no readout
+	// weights (N x F values) and returns a Net whose readout is that of
+	// one neuron, zero. The curves are the same bit for bit.
+	CurvesOnly bool
 }
 
 // Checkpoint is the whole training state, enough to continue a fit with

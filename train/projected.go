@@ -51,8 +51,9 @@ func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpo
 	// filters, and a readout of N x F values (3.8 GB at a million
 	// neurons) would be allocated, and zeroed, for nothing; the readout
 	// comes back as Fitted.Weights and Bias.
+	curvesOnly := hooks.CurvesOnly && p.Parts == nil && p.Cfg.Model.ReadoutL2.Auto
 	shapeN := p.Neurons()
-	if p.Parts != nil {
+	if p.Parts != nil || curvesOnly {
 		shapeN = 1
 	}
 	f, s, err := trainFilters(ctx, p.Cfg, p.NBins, shapeN, p.problem(), hooks, resume)
@@ -62,6 +63,12 @@ func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpo
 	// The best epoch always carries its R^2, even when it was skipped.
 	if err := fillBestR2(f, s.ValR2); err != nil {
 		return nil, err
+	}
+	if curvesOnly {
+		// AutoReadout's curves and penalties (the same call), without
+		// its weights.
+		f.Curves, f.ReadoutL2, _, _, err = s.ReadoutBlocks(true, p.Cfg.Model.ReadoutL2PerNeuron)
+		return f, err
 	}
 	if err := readoutProjected(p, s, f); err != nil {
 		return nil, err

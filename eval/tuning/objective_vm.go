@@ -62,6 +62,7 @@ func (f *curveFit) objectiveVonMises(grad, p []float64, n int) float64 {
 	} else {
 		ga, da0, da1 := f.g[:n], f.dg0[:n], f.dg1[:n]
 		gb, db0, db1 := f.g[n:2*n], f.dg0[n:2*n], f.dg1[n:2*n]
+		e2 := math.Exp(-2 * kap)
 		var G [3][3]float64
 		var h [3]float64
 		for i := range cx {
@@ -71,7 +72,7 @@ func (f *curveFit) objectiveVonMises(grad, p []float64, n int) float64 {
 			ga[i] = a
 			da0[i] = a * kap * (ci - 1)
 			da1[i] = a * kap * si
-			b := math.Exp(kap * (-ci - 1))
+			b := secondPeak(a, e2, kap, ci)
 			gb[i] = b
 			db0[i] = b * kap * (-ci - 1)
 			db1[i] = -b * kap * si
