@@ -16,7 +16,10 @@
 //     model name may hold commas, quotes, newlines or any UTF-8), with a
 //     header row and "\n" line ends. Numbers are written with strconv:
 //     scores with 8 significant digits, fold averages with the shortest
-//     form that reads back exactly; NaN is written "NaN".
+//     form that reads back exactly; NaN is written "NaN". Large tables
+//     (one row per neuron, or per model, fold and neuron) go through
+//     WriteCSVRows: blocks of rows formatted on all cores, written in
+//     order, the bytes of one csv.Writer on any number of cores.
 //   - JSON files are indented with two spaces; a Num that is NaN or
 //     infinite is written null and read back as NaN.
 //   - A finished fit or comparison writes complete.json LAST. Readers of a
