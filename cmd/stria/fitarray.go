@@ -145,7 +145,14 @@ func taskCountNote(n, N int) string {
 	if n <= k {
 		return ""
 	}
-	return fmt.Sprintf("the tasks share out blocks of %d neurons, and %d neurons make %d; with %d tasks, %d of them get no neurons and finish at once: %d tasks are enough", projection.SumBlock, N, k, n, n-k, k)
+	get, enough := "get no neurons and finish", fmt.Sprintf("%d tasks are", k)
+	if n-k == 1 {
+		get = "gets no neurons and finishes"
+	}
+	if k == 1 {
+		enough = "1 task is"
+	}
+	return fmt.Sprintf("the tasks share out blocks of %d neurons, and %d neurons make %d; with %d tasks, %d of them %s at once: %s enough", projection.SumBlock, N, k, n, n-k, get, enough)
 }
 
 // rangeBlocks returns the blocks of projection.SumBlock neurons [first,

@@ -202,7 +202,7 @@ func TestTaskCountNote(t *testing.T) {
 		{6, 24000, ""},
 		{1, 10, ""},
 		{8, 24000, "with 8 tasks, 2 of them get no neurons and finish at once: 6 tasks are enough"},
-		{2, 4096, "with 2 tasks, 1 of them get no neurons"},
+		{2, 4096, "with 2 tasks, 1 of them gets no neurons and finishes at once: 1 task is enough"},
 	} {
 		got := taskCountNote(c.n, c.N)
 		if (c.want == "") != (got == "") || !strings.Contains(got, c.want) {
