@@ -94,11 +94,19 @@ func testAccumulateParts(t *testing.T, T, N int) {
 		name string
 		opt  StreamOptions
 	}{
-		{"one worker, spans of 256 neurons", StreamOptions{Workers: 1, BlockBytes: 1}},
+		{"one worker, spans of 256 neurons", StreamOptions{Workers: 1, BlockBytes: 1, Read: ReadCached}},
 		{"two workers, 7 rows per block", StreamOptions{Workers: 2, BlockBytes: 7 * 4 * N}},
 		{"three workers, default blocks", StreamOptions{Workers: 3}},
+		{"past the page cache, two workers", StreamOptions{Workers: 2, Read: ReadDirect}},
 	} {
 		t.Run(o.name, func(t *testing.T) {
+			if o.opt.Read == ReadDirect {
+				d := s.Direct(true)
+				if d == nil {
+					t.Skip("the file system of the test's temporary folder refuses O_DIRECT (or not Linux)")
+				}
+				d.Close()
+			}
 			got, err := AccumulateParts(s, plan, o.opt)
 			if err != nil {
 				t.Fatal(err)
@@ -125,14 +133,14 @@ func testAccumulateParts(t *testing.T, T, N int) {
 			} else {
 				// Same summation order for every element: bitwise equal.
 				for i := range got {
-					for k, v := range got[i].Sum {
-						if v != ref[i].Sum[k] {
-							t.Fatalf("part %d Sum[%d] = %v with these options, %v with one worker", i, k, v, ref[i].Sum[k])
+					for k, arr := range [][2][]float64{{ref[i].Sum, got[i].Sum}, {ref[i].TotSq, got[i].TotSq}, {ref[i].SumSq, got[i].SumSq}, {ref[i].SumA, got[i].SumA}, {ref[i].Ref, got[i].Ref}} {
+						if len(arr[0]) != len(arr[1]) {
+							t.Fatalf("part %d array %d: %d values with one worker, %d with these options", i, k, len(arr[0]), len(arr[1]))
 						}
-					}
-					for k, v := range got[i].TotSq {
-						if v != ref[i].TotSq[k] {
-							t.Fatalf("part %d TotSq[%d] = %v with these options, %v with one worker", i, k, v, ref[i].TotSq[k])
+						for e := range arr[0] {
+							if math.Float64bits(arr[0][e]) != math.Float64bits(arr[1][e]) {
+								t.Fatalf("part %d array %d element %d = %v with these options, %v with one worker", i, k, e, arr[1][e], arr[0][e])
+							}
 						}
 					}
 				}
