@@ -38,5 +38,5 @@
 //     projected solver) is prepared by PrepareParts from one pass over the
 //     responses (Prepared.Parts, Rec.Y nil when streamed): everything that
 //     would read the trials reads the parts' sums instead, and the fitted
-//     readout comes back as Fitted.Weights and Bias (eval/methods.md §8).
+//     readout comes back as Fitted.Readout and Bias (eval/methods.md §8).
 package train

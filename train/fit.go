@@ -13,6 +13,7 @@ import (
 	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/nn"
+	"github.com/strialab/stria/train/projection"
 )
 
 // EpochLog is one line of the training log.
@@ -94,21 +95,20 @@ type Fitted struct {
 	// (nbins x N, in the units the net was trained in), which a solver
 	// could compute more cheaply than a forward pass.
 	Curves []float64
-	// Weights, when not nil, computes the readout weights, which are then
-	// not in Net (its ReadW is zero): Weights(dst, n0, n1) writes those of
-	// neurons [n0, n1) into dst ((n1-n0) x features). A fit from Parts
-	// leaves them there, so that a million neurons' weights (3.8 GB) are
-	// never held at once (not safe for concurrent use). Use
-	// ReadoutWeights. Net then has a single
-	// neuron (only its filters are used) and Bias holds the readout bias
-	// of every neuron.
-	Weights func(dst []float64, n0, n1 int)
+	// Readout, when not nil, holds the readout weights in factored form
+	// (projection.Readout: per-neuron coefficients times a basis all
+	// neurons share), and they are not in Net (its ReadW is zero). A fit
+	// from Parts leaves them there, so that a million neurons' weights
+	// (3.8 GB) are never held or written. Net then has a single neuron
+	// (only its filters are used) and Bias holds the readout bias of
+	// every neuron. Use ReadoutWeights and ReadoutBias.
+	Readout *projection.Readout
 	Bias    []float64
 }
 
 // ReadoutBias returns the readout bias of every neuron.
 func (f *Fitted) ReadoutBias() []float64 {
-	if f.Weights != nil {
+	if f.Readout != nil {
 		return f.Bias
 	}
 	return f.Net.ReadB()
@@ -117,8 +117,8 @@ func (f *Fitted) ReadoutBias() []float64 {
 // ReadoutWeights writes the readout weights of neurons [n0, n1) into dst
 // ((n1-n0) x features, the layout of the net's ReadW).
 func (f *Fitted) ReadoutWeights(dst []float64, n0, n1 int) {
-	if f.Weights != nil {
-		f.Weights(dst, n0, n1)
+	if f.Readout != nil {
+		f.Readout.Weights(dst, n0, n1)
 		return
 	}
 	F := f.Net.Features()

@@ -50,7 +50,7 @@ func fitProjected(ctx context.Context, p *Prepared, hooks Hooks, resume *Checkpo
 	// From Parts the solver gets a net of one neuron: it trains only the
 	// filters, and a readout of N x F values (3.8 GB at a million
 	// neurons) would be allocated, and zeroed, for nothing; the readout
-	// comes back as Fitted.Weights and Bias.
+	// comes back as Fitted.Readout and Bias.
 	curvesOnly := hooks.CurvesOnly && p.Parts == nil && p.Cfg.Model.ReadoutL2.Auto
 	shapeN := p.Neurons()
 	if p.Parts != nil || curvesOnly {
@@ -120,7 +120,7 @@ func readoutProjected(p *Prepared, s *projection.MSE, f *Fitted) error {
 	var err error
 	switch {
 	case p.Parts != nil:
-		f.Curves, f.ReadoutL2, f.Bias, f.Weights, err = s.ReadoutBlocks(cfg.Model.ReadoutL2.Auto, cfg.Model.ReadoutL2PerNeuron)
+		f.Curves, f.ReadoutL2, f.Bias, f.Readout, err = s.ReadoutBlocks(cfg.Model.ReadoutL2.Auto, cfg.Model.ReadoutL2PerNeuron)
 		// The solver kept its means in the training and validation sums:
 		// they are spent.
 		p.Parts.Train.Sum, p.Parts.Val.Sum = nil, nil

@@ -72,7 +72,7 @@ func FitFilters(ctx context.Context, cfg *settings.Config, sums *projection.Sums
 // from Parts (a range of neurons) at the filters conv (the conv
 // parameters of FitFilters' net, in the order of nn.Net's Params) and
 // the sums over all neurons, as Fit does after training: the Fitted holds
-// the readouts (Weights, Bias, ReadoutL2, Curves) and no log. valR2 is
+// the readouts (Readout, Bias, ReadoutL2, Curves) and no log. valR2 is
 // every neuron's validation R^2 at the filters (NaN where undefined; nil
 // without validation trials), for MergedLog.
 func FitRange(p *Prepared, sums *projection.Sums, conv []float64) (f *Fitted, valR2 []float64, err error) {

@@ -123,7 +123,7 @@ func testStages(t *testing.T, cfg *settings.Config, N int, taskCounts []int) {
 				t.Fatal(err)
 			}
 			conv := ff.Net.Params[:len(ff.Net.Params)-ff.Net.Features()-1]
-			var bias, l2, curves, w, rel, valR2 []float64
+			var bias, l2, curves, w, basis, rel, valR2 []float64
 			var scores []eval.Scores
 			var mean, scale []float64
 			cb := make([][]float64, plan.NBins)
@@ -137,9 +137,17 @@ func testStages(t *testing.T, cfg *settings.Config, N int, taskCounts []int) {
 				for b := range plan.NBins {
 					cb[b] = append(cb[b], f.Curves[b*(n1-n0):(b+1)*(n1-n0)]...)
 				}
-				wr := make([]float64, (n1-n0)*f.Net.Features())
-				f.ReadoutWeights(wr, 0, n1-n0)
-				w, bias, l2 = append(w, wr...), append(bias, f.ReadoutBias()...), append(l2, f.ReadoutL2...)
+				// The readout's coefficients, and its basis, which every
+				// range shares.
+				r := f.Readout
+				if basis == nil {
+					basis = r.Basis
+				} else if !slices.Equal(bitsOf(basis), bitsOf(r.Basis)) {
+					t.Errorf("task %d: the readout basis differs from task 1's", i)
+				}
+				cr := make([]float64, (n1-n0)*r.Rank)
+				r.Coef(cr, 0, n1-n0)
+				w, bias, l2 = append(w, cr...), append(bias, f.ReadoutBias()...), append(l2, f.ReadoutL2...)
 				rel, valR2 = append(rel, Reliability(p)...), append(valR2, vr...)
 				if p.Norm != nil {
 					mean, scale = append(mean, p.Norm.Mean...), append(scale, p.Norm.Scale...)
@@ -152,8 +160,10 @@ func testStages(t *testing.T, cfg *settings.Config, N int, taskCounts []int) {
 			if err := MergedLog(ff, valR2); err != nil {
 				t.Fatal(err)
 			}
+			rank := len(basis) / ff.Net.Features()
 			got := floatsOf(partsResult{p: full, f: &Fitted{Net: ff.Net, Log: ff.Log, Bias: bias, ReadoutL2: l2, Curves: curves,
-				Weights: func(dst []float64, n0, n1 int) { copy(dst, w[n0*ff.Net.Features():n1*ff.Net.Features()]) }}, scores: scores, rel: rel})
+				Readout: &projection.Readout{Rank: rank, Features: ff.Net.Features(), Basis: basis,
+					Coef: func(dst []float64, n0, n1 int) { copy(dst, w[n0*rank:n1*rank]) }}}, scores: scores, rel: rel})
 			if mean != nil {
 				got["norm_mean"], got["norm_scale"] = mean, scale
 			}

@@ -362,7 +362,7 @@ const fitSlurmScript = `#!/bin/bash
 # The logs go to the folder this script is run from.
 # Edit the resources to suit: a task holds about 3 KB per neuron of its
 # range; the reduce a few MB; the last job writes the run folder (about
-# 4 KB per neuron) holding one task's readout weights at a time.
+# 0.6 KB per neuron) holding about 0.2 KB per neuron.
 set -euo pipefail
 STRIA=${STRIA:-%s}
 CONFIG=%s

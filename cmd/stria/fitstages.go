@@ -1,6 +1,7 @@
 package main
 
 import (
+	"bytes"
 	"context"
 	"errors"
 	"fmt"
@@ -12,6 +13,7 @@ import (
 
 	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/data/condstats"
+	"github.com/strialab/stria/data/format"
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/train"
 	"github.com/strialab/stria/train/projection"
@@ -219,7 +221,7 @@ func runFitReadouts(cfg *settings.Config, i, n int, stdout io.Writer) error {
 		if err != nil {
 			return err
 		}
-		f = &train.Fitted{Net: net, Weights: func([]float64, int, int) {}}
+		f = &train.Fitted{Net: net}
 		e := []float64{}
 		r = &runfolder.RangeResult{Bias: e, Reliability: e, Scores: []eval.Scores{}}
 		if cfg.Model.ReadoutL2.Auto {
@@ -312,6 +314,8 @@ func prepareMerged(cfg *settings.Config, g *arrayGather, phase func(string)) (*d
 	var scores []eval.Scores
 	var constant []int
 	files, starts := make([]string, n), make([]int, n+1)
+	var basis []byte // the bytes of the first task's readout_basis.npy
+	var rank, basisTask int
 	for i := 1; i <= n; i++ {
 		a, r, err := runfolder.ReadArrayReadouts(dir, i, n)
 		if err != nil {
@@ -331,7 +335,25 @@ func prepareMerged(cfg *settings.Config, g *arrayGather, phase func(string)) (*d
 		mean, scale = append(mean, r.NormMean...), append(scale, r.NormScale...)
 		scores = append(scores, r.Scores...)
 		constant = append(constant, a.Constant...)
-		files[i-1], starts[i] = runfolder.ArrayReadoutWeights(dir, i, n), a.Neurons[1]
+		files[i-1], starts[i] = runfolder.ArrayReadoutCoef(dir, i, n), a.Neurons[1]
+		if a.Rank == 0 {
+			continue
+		}
+		// Every task solved its readout at the same filters and trial
+		// counts, so with the same basis, bit for bit: checked, not
+		// assumed (a task run by another build could differ).
+		b, err := os.ReadFile(runfolder.ArrayReadoutBasis(dir, i, n))
+		switch {
+		case err != nil:
+			return nil, nil, nil, nil, fmt.Errorf("%s: %w; run that task's readout pass again", cmd, err)
+		case basis == nil:
+			basis, rank, basisTask = b, a.Rank, i
+		case a.Rank != rank || !bytes.Equal(b, basis):
+			return nil, nil, nil, nil, fmt.Errorf("%s: the readout basis of array task %d differs from that of task %d (solved at the same filters, they must be equal); refusing to mix them: run the readout pass of both again with one stria", cmd, i, basisTask)
+		}
+	}
+	if basis == nil {
+		return nil, nil, nil, nil, fmt.Errorf("%s: no array task holds any neurons", cmd)
 	}
 	var norm *condstats.Normalizer
 	if cfg.Split.ZScore {
@@ -348,7 +370,13 @@ func prepareMerged(cfg *settings.Config, g *arrayGather, phase func(string)) (*d
 	if cfg.Model.ReadoutL2.Auto {
 		f.ReadoutL2 = l2
 	}
-	f.Weights, g.closeRows = runfolder.ReadRows(files, starts, net.Features(), &g.readErr)
+	bfile := runfolder.ArrayReadoutBasis(dir, basisTask, n)
+	br, bc, bv, err := format.ReadNPY64(bytes.NewReader(basis), int64(len(basis)), bfile)
+	if err != nil || br != rank || bc != net.Features() {
+		return nil, nil, nil, nil, fmt.Errorf("%s: %s is not the %d x %d basis of the readout (%v); run that task's readout pass again", cmd, bfile, rank, net.Features(), err)
+	}
+	f.Readout = &projection.Readout{Rank: rank, Features: net.Features(), Basis: bv}
+	f.Readout.Coef, g.closeRows = runfolder.ReadRows(files, starts, rank, &g.readErr)
 	if err := train.MergedLog(f, valR2); err != nil {
 		return nil, nil, nil, nil, err
 	}

@@ -54,9 +54,10 @@ func runStream(o options, so streamOptions) error {
 	}
 	N, T := so.neurons, so.trials
 	fileBytes := int64(N) * int64(T) * 4
-	// The run folder: parameters/readout_weight.npy (N x 480 float64 at the
-	// default shape) and about 40 more values per neuron.
-	runBytes := int64(N) * (480*8 + 40*8)
+	// The run folder: parameters/readout_coef.npy (N x 60 float64 at the
+	// default shape), neuron_scores.csv (about 120 bytes per neuron) and
+	// a few more values per neuron: 0.61 GB measured at a million.
+	runBytes := int64(N) * (60*8 + 120 + 10*8)
 	fmt.Printf("striabench -stream %s: %d neurons x %d trials, float32\n", time.Now().Format("2006-01-02 15:04"), N, T)
 	fmt.Printf("disk space needed in %s: %.1f GB (recording %.1f GB, run folder %.1f GB)\n", o.dir, float64(fileBytes+runBytes)/1e9, float64(fileBytes)/1e9, float64(runBytes)/1e9)
 	var st syscall.Statfs_t

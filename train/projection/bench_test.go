@@ -233,7 +233,7 @@ func BenchmarkPoissonPenalty(b *testing.B) {
 }
 
 // first returns the curves of ridgePath.readout.
-func first(curves []float64, _ func([]float64, int, int)) []float64 { return curves }
+func first(curves []float64, _ *Readout) []float64 { return curves }
 
 // randomReadout is a projector and ridge path of the full-size shape (B =
 // Bt = 60 bins, F = 480 features) over N neurons with random features,
@@ -276,7 +276,7 @@ func BenchmarkReadoutWeights(b *testing.B) {
 	for range b.N {
 		for n0 := 0; n0 < N; n0 += 2048 {
 			n1 := min(n0+2048, N)
-			weights(dst[:(n1-n0)*pj.F], n0, n1)
+			weights.Weights(dst[:(n1-n0)*pj.F], n0, n1)
 		}
 	}
 	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N*N), "ns/neuron")

@@ -761,7 +761,7 @@ func (s *MSE) AutoReadout(perNeuron bool) (curves, l2 []float64, err error) {
 	if err != nil {
 		return nil, nil, err
 	}
-	weights(s.net.ReadW(), 0, s.pj.N)
+	weights.Weights(s.net.ReadW(), 0, s.pj.N)
 	return curves, l2, nil
 }
 
@@ -770,17 +770,16 @@ func (s *MSE) AutoReadout(perNeuron bool) (curves, l2 []float64, err error) {
 // which may then have any number of neurons (one, for a fit from
 // PartStats): it returns the per-bin predictions, each neuron's penalty
 // in model.readout_l2 units (nil unless auto), the readout bias and the
-// weights as a function: weights(dst, n0, n1) writes those of neurons
-// [n0, n1) into dst ((n1-n0) x F, row-major, as in a net's ReadW),
-// computing them again on every call, so that the N x F weights of a
-// million neurons (3.8 GB) need never be held at once. weights keeps B x
-// N values of the solver alive. With a Problem of PartStats the readout
+// weights in factored form (Readout), whose coefficients are computed
+// again on every call of its Coef, so that neither the N x F weights of
+// a million neurons (3.8 GB) nor their coefficients need ever be held at
+// once. The Readout keeps B x N values of the solver alive. With a Problem of PartStats the readout
 // takes over their Sum arrays (the curves are returned in ValParts.Sum
 // when it has B x N values) and the solver cannot be evaluated after it
 // (it panics). The arithmetic is that of AutoReadout (by
 // the eigendecomposition of A A^T), not Readout's Cholesky solve: with a
 // fixed penalty the two agree to rounding.
-func (s *MSE) ReadoutBlocks(auto, perNeuron bool) (curves, l2, bias []float64, weights func(dst []float64, n0, n1 int), err error) {
+func (s *MSE) ReadoutBlocks(auto, perNeuron bool) (curves, l2, bias []float64, weights *Readout, err error) {
 	bias = make([]float64, s.pj.N)
 	if auto {
 		curves, l2, weights, err = s.pj.autoReadoutTo(&s.pr, s.net, perNeuron, bias)

@@ -368,11 +368,10 @@ func (rp *ridgePath) perNeuronSURE(pj *projector, withinN []float64) []int {
 // with penalty rp.mu[pick[n]] for neuron n (w_n = A^T U diag(1/(s+mu_n))
 // z_n, c_n = ybar_n - hbar . w_n = ybar_n - (U^T A hbar) . zs_n with zs_n
 // = diag(1/(s+mu_n)) z_n) and returns the per-bin predictions (B x N,
-// trained units) and a function writing the weights of neurons [n0, n1)
-// into dst ((n1-n0) x F; on all cores; not safe for concurrent use).
+// trained units) and the weights in factored form (Readout).
 // Everything goes by blocks of neurons, with scratch of B x neuronBlock.
 // The features must be those of the last decompose.
-func (rp *ridgePath) readout(pj *projector, c []float64, pick []int) (curves []float64, weights func(dst []float64, n0, n1 int)) {
+func (rp *ridgePath) readout(pj *projector, c []float64, pick []int) (curves []float64, weights *Readout) {
 	B, Bt, F, N := pj.B, pj.Bt, pj.F, pj.N
 	z := rp.zeta(pj)
 	mu, s := rp.mu, rp.s
@@ -440,58 +439,98 @@ func (rp *ridgePath) readout(pj *projector, c []float64, pick []int) (curves []f
 			}
 		}
 	})
-	// W (nb x F, row-major, as dst) = zs^T (nb x Bt) AU^T (Bt x F): one
-	// product per block of neurons straight into dst, on gonum's
-	// goroutines. Every weight is sum_j zs_jn AU_fj over j in ascending
-	// order, unfused, starting from 0: the arithmetic of the former
-	// AU zs (F x nb) followed by a transposition, so the same bits
-	// (TestReadoutWeightsMatchFormer), and on any number of cores.
+	// W (N x F, row-major) = zs^T (N x Bt) AU^T (Bt x F): the readout in
+	// factored form, zs^T its coefficients and AU^T its basis
+	// (Readout.Weights and Expand multiply them out).
 	aut := make([]float64, Bt*F)
 	for f := 0; f < F; f++ {
 		for j, x := range au[f*Bt : (f+1)*Bt] {
 			aut[j*F+f] = x
 		}
 	}
-	// The weights go by blocks of weightsBlock neurons on up to GOMAXPROCS
-	// goroutines, each with its own scratch; a weight does not depend on
-	// the block it is computed in, so neither do the results on the cores.
-	var scratch [][]float64
-	weights = func(dst []float64, n0, n1 int) {
-		if n0 < 0 || n1 > N || n0 > n1 || len(dst) != (n1-n0)*F {
-			panic(fmt.Sprintf("train: readout weights [%d, %d) of %d neurons into %d values, want (n1-n0) x %d", n0, n1, N, len(dst), F))
+	coef := func(dst []float64, n0, n1 int) {
+		if n0 < 0 || n1 > N || n0 > n1 || len(dst) != (n1-n0)*Bt {
+			panic(fmt.Sprintf("train: readout coefficients [%d, %d) of %d neurons into %d values, want (n1-n0) x %d", n0, n1, N, len(dst), Bt))
 		}
-		nblk := (n1 - n0 + weightsBlock - 1) / weightsBlock
-		workers := min(runtime.GOMAXPROCS(0), nblk)
-		for len(scratch) < workers {
-			scratch = append(scratch, make([]float64, Bt*weightsBlock))
-		}
-		var next atomic.Int64
-		var wg sync.WaitGroup
-		for w := range workers {
-			wg.Add(1)
-			go func(zt []float64) {
-				defer wg.Done()
-				for {
-					i := int(next.Add(1) - 1)
-					if i >= nblk {
-						return
-					}
-					m0 := n0 + i*weightsBlock
-					nb := min(weightsBlock, n1-m0)
-					zsBlockT(zt[:nb*Bt], m0, nb)
-					mulInto(dst[(m0-n0)*F:(m0-n0+nb)*F], F, zt[:nb*Bt], Bt, aut, F, nb, Bt, F)
-				}
-			}(scratch[w])
-		}
-		wg.Wait()
+		parallelRange(n1-n0, weightsBlock, func(m0, m1 int) {
+			zsBlockT(dst[m0*Bt:m1*Bt], n0+m0, m1-m0)
+		})
 	}
-	return out, weights
+	return out, &Readout{Rank: Bt, Features: F, Basis: aut, Coef: coef}
+}
+
+// Readout is the closed-form readout of a projected MSE fit in factored
+// form: the weights of neuron n are w_n = sum_j coef_nj basis_j, row n
+// of the N x Rank coefficients times the Rank x Features basis, which
+// all neurons share (Rank = Bt, the training conditions: every weight
+// vector lies in the span of the training conditions' features). The
+// coefficients are 8x fewer numbers than the weights at 60 conditions
+// and 480 features: a million neurons' weights (3.8 GB) need be neither
+// computed nor written.
+type Readout struct {
+	Rank, Features int
+	// Basis is Rank x Features, row-major.
+	Basis []float64
+	// Coef writes the coefficients of neurons [n0, n1) into dst
+	// ((n1-n0) x Rank, row-major). It may read a file: not safe for
+	// concurrent use.
+	Coef func(dst []float64, n0, n1 int)
+}
+
+// Weights writes the readout weights of neurons [n0, n1) into dst
+// ((n1-n0) x Features, row-major, the layout of a net's ReadW): the
+// coefficients of Coef multiplied out by Expand.
+func (r *Readout) Weights(dst []float64, n0, n1 int) {
+	if n0 > n1 || len(dst) != (n1-n0)*r.Features {
+		panic(fmt.Sprintf("train: readout weights [%d, %d) into %d values, want (n1-n0) x %d", n0, n1, len(dst), r.Features))
+	}
+	coef := make([]float64, (n1-n0)*r.Rank)
+	r.Coef(coef, n0, n1)
+	Expand(dst, coef, r.Basis, n1-n0, r.Rank, r.Features)
+}
+
+// Expand writes the readout weights coef basis (n x F, row-major) into
+// dst from the coefficients of n neurons (n x rank) and a basis (rank x
+// F), in blocks of weightsBlock neurons on all cores. Every weight is
+// sum_j coef_nj basis_jf over j in ascending order, unfused, starting from
+// 0: the arithmetic of the former AU zs (F x N) followed by a
+// transposition, so the same bits (TestReadoutWeightsMatchFormer), and
+// the same on any number of cores (a weight does not depend on the block
+// it is computed in).
+func Expand(dst, coef, basis []float64, n, rank, F int) {
+	if len(dst) != n*F || len(coef) != n*rank || len(basis) != rank*F {
+		panic(fmt.Sprintf("train: Expand: %d weights, %d coefficients and %d basis values for %d neurons of rank %d and %d features", len(dst), len(coef), len(basis), n, rank, F))
+	}
+	parallelRange(n, weightsBlock, func(m0, m1 int) {
+		mulInto(dst[m0*F:m1*F], F, coef[m0*rank:m1*rank], rank, basis, F, m1-m0, rank, F)
+	})
 }
 
 // weightsBlock is the number of neurons of one task of the readout
-// weights (a multiple of mulInto's 4-row tiles): Bt x weightsBlock
-// values of scratch per goroutine.
+// weights and coefficients (a multiple of mulInto's 4-row tiles).
 const weightsBlock = 256
+
+// parallelRange calls do on the blocks [m0, m1) of size neurons that
+// cover [0, n), on up to GOMAXPROCS goroutines, and waits.
+func parallelRange(n, size int, do func(m0, m1 int)) {
+	nblk := (n + size - 1) / size
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	for range min(runtime.GOMAXPROCS(0), nblk) {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for {
+				i := int(next.Add(1) - 1)
+				if i >= nblk {
+					return
+				}
+				do(i*size, min((i+1)*size, n))
+			}
+		}()
+	}
+	wg.Wait()
+}
 
 // parallelScratch is parallelBlocks with scratch of size values for each
 // goroutine (do may use it freely during one call).
@@ -577,7 +616,7 @@ func trainWithinN(pr *Problem, pj *projector) []float64 {
 // per-bin predictions (B x N, trained units) and the chosen
 // model.readout_l2 of every neuron (all equal unless perNeuron), and
 // leaves pj.mu at the global choice.
-func (pj *projector) autoReadoutTo(pr *Problem, net *nn.Net, perNeuron bool, bias []float64) (curves, l2 []float64, weights func(dst []float64, n0, n1 int), err error) {
+func (pj *projector) autoReadoutTo(pr *Problem, net *nn.Net, perNeuron bool, bias []float64) (curves, l2 []float64, weights *Readout, err error) {
 	rp := newRidgePath(pj, nil)
 	if err := rp.decompose(pj, net); err != nil {
 		return nil, nil, nil, err
@@ -609,9 +648,9 @@ func (pj *projector) autoReadoutTo(pr *Problem, net *nn.Net, perNeuron bool, bia
 
 // fixedReadout computes the closed-form readout at the problem's penalty
 // (pj.mu) by the eigendecomposition of A A^T, its bias into bias (N), and
-// returns the per-bin predictions and the weights function of
+// returns the per-bin predictions and the factored weights of
 // ridgePath.readout.
-func (pj *projector) fixedReadout(net *nn.Net, bias []float64) (curves []float64, weights func(dst []float64, n0, n1 int), err error) {
+func (pj *projector) fixedReadout(net *nn.Net, bias []float64) (curves []float64, weights *Readout, err error) {
 	rp := newRidgePath(pj, []float64{1})
 	rp.fixed = pj.mu
 	if err := rp.decompose(pj, net); err != nil {

@@ -75,10 +75,10 @@ func TestRidgePath(t *testing.T) {
 		}
 		got, weights := rp.readout(pj, net.ReadB(), pick)
 		clear(net.ReadW())
-		weights(net.ReadW(), 0, pj.N)
+		weights.Weights(net.ReadW(), 0, pj.N)
 		// Any range of neurons gives the same weights as the whole.
 		part := make([]float64, 7*pj.F)
-		weights(part, 3, 10)
+		weights.Weights(part, 3, 10)
 		if !slices.Equal(part, net.ReadW()[3*pj.F:10*pj.F]) {
 			t.Errorf("tau %g: the weights of neurons [3, 10) differ from those of all neurons", rp.tau[g])
 		}
@@ -123,7 +123,7 @@ func TestReadoutBlocksFixed(t *testing.T) {
 			t.Errorf("dead %v: per-neuron penalties %v for a fixed penalty, want nil", dead, l2[:2])
 		}
 		w := make([]float64, c.N*net.Features())
-		weights(w, 0, c.N)
+		weights.Weights(w, 0, c.N)
 		s2, err := NewMSE(c.pr, net)
 		if err != nil {
 			t.Fatal(err)
@@ -224,12 +224,41 @@ func TestReadoutWeightsMatchFormer(t *testing.T) {
 			want[n*F+f] = wt[f*N+n]
 		}
 	}
+	// The coefficients are zs transposed, bit for bit, and the basis AU
+	// transposed.
+	if weights.Rank != Bt || weights.Features != F {
+		t.Fatalf("readout of rank %d and %d features, want %d and %d", weights.Rank, weights.Features, Bt, F)
+	}
+	coef := make([]float64, N*Bt)
+	weights.Coef(coef, 0, N)
+	for n := 0; n < N; n++ {
+		for j := 0; j < Bt; j++ {
+			if math.Float64bits(coef[n*Bt+j]) != math.Float64bits(zb[j*N+n]) {
+				t.Fatalf("coefficient %d of neuron %d: got %v want %v", j, n, coef[n*Bt+j], zb[j*N+n])
+			}
+		}
+	}
+	for f := 0; f < F; f++ {
+		for j := 0; j < Bt; j++ {
+			if weights.Basis[j*F+f] != au[f*Bt+j] {
+				t.Fatalf("basis (%d, %d): got %v want %v", j, f, weights.Basis[j*F+f], au[f*Bt+j])
+			}
+		}
+	}
+	// Expand of all the coefficients at once (as a run folder is loaded).
+	all := make([]float64, N*F)
+	Expand(all, coef, weights.Basis, N, Bt, F)
 	for _, r := range []struct {
 		name   string
 		n0, n1 int
-	}{{"all", 0, N}, {"inner", 3, N - 2}, {"one", N / 2, N/2 + 1}, {"none", 5, 5}} {
+		expand bool
+	}{{"all", 0, N, false}, {"inner", 3, N - 2, false}, {"one", N / 2, N/2 + 1, false}, {"none", 5, 5, false}, {"expand", 0, N, true}} {
 		got := make([]float64, (r.n1-r.n0)*F)
-		weights(got, r.n0, r.n1)
+		if r.expand {
+			copy(got, all)
+		} else {
+			weights.Weights(got, r.n0, r.n1)
+		}
 		for i, g := range got {
 			if w := want[r.n0*F+i]; math.Float64bits(g) != math.Float64bits(w) {
 				t.Errorf("%s: weight %d of neuron %d: got %v want %v (former arithmetic)", r.name, i%F, r.n0+i/F, g, w)

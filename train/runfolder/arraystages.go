@@ -40,7 +40,7 @@ const (
 	// FormatArrayFilters and FormatArrayReadouts are the Format of
 	// ArrayFilters and ArrayReadouts.
 	FormatArrayFilters  = "stria-fit-array-filters/1"
-	FormatArrayReadouts = "stria-fit-array-readouts/1"
+	FormatArrayReadouts = "stria-fit-array-readouts/2"
 )
 
 // ArrayFiltersDir is the reduce's folder in the run folder dir.
@@ -256,6 +256,9 @@ type ArrayReadouts struct {
 	// Filters is the ID of the reduce's filters the readouts are of.
 	Filters  string `json:"filters"`
 	Features int    `json:"features"`
+	// Rank is the readout's rank (projection.Readout; 0 for a task
+	// without neurons, which writes no coefficients or basis).
+	Rank int `json:"rank"`
 	// Constant lists the task's constant neurons (0-based, among all).
 	Constant []int `json:"constant"`
 	// Arrays lists the per-neuron arrays written (readout_l2, norm_mean,
@@ -284,15 +287,22 @@ func rowScore(v []float64) eval.Scores {
 		SplitHalf: v[10], SignalF: v[11], SignalDF1: v[12], SignalDF2: v[13]}
 }
 
-// ArrayReadoutWeights is the file of task i of n's readout weights.
-func ArrayReadoutWeights(dir string, i, n int) string {
-	return filepath.Join(ArrayTaskDir(dir, i, n), "readout_weight.npy")
+// ArrayReadoutCoef and ArrayReadoutBasis are the files of task i of n's
+// readout in factored form (projection.Readout): its neurons'
+// coefficients and the basis.
+func ArrayReadoutCoef(dir string, i, n int) string {
+	return filepath.Join(ArrayTaskDir(dir, i, n), "readout_coef.npy")
+}
+
+func ArrayReadoutBasis(dir string, i, n int) string {
+	return filepath.Join(ArrayTaskDir(dir, i, n), "readout_basis.npy")
 }
 
 // WriteArrayReadouts writes the readout pass of task a.Task of a.Tasks
 // into its folder (an earlier FileArrayReadouts removed first, then the
-// arrays, each atomically, then FileArrayReadouts): f's readout weights
-// (f.ReadoutWeights, rows of the task's neurons) and r.
+// arrays, each atomically, then FileArrayReadouts): f's readout in
+// factored form (f.Readout: the coefficients of the task's neurons, and
+// the basis; nothing for a task without neurons) and r.
 func WriteArrayReadouts(dir string, a ArrayReadouts, f *train.Fitted, r *RangeResult) error {
 	td := ArrayTaskDir(dir, a.Task, a.Tasks)
 	if err := os.Remove(filepath.Join(td, FileArrayReadouts)); err != nil && !errNotExist(err) {
@@ -300,8 +310,19 @@ func WriteArrayReadouts(dir string, a ArrayReadouts, f *train.Fitted, r *RangeRe
 	}
 	n := a.Neurons[1] - a.Neurons[0]
 	F := f.Net.Features()
-	if err := format.WriteNPY64Rows(ArrayReadoutWeights(dir, a.Task, a.Tasks), n, F, f.ReadoutWeights); err != nil {
-		return err
+	a.Rank = 0
+	if n > 0 {
+		r := f.Readout
+		if r == nil || r.Features != F {
+			panic("runfolder: WriteArrayReadouts needs the readout in factored form")
+		}
+		if err := format.WriteNPY64(ArrayReadoutBasis(dir, a.Task, a.Tasks), []int{r.Rank, F}, r.Basis); err != nil {
+			return err
+		}
+		if err := format.WriteNPY64Rows(ArrayReadoutCoef(dir, a.Task, a.Tasks), n, r.Rank, r.Coef); err != nil {
+			return err
+		}
+		a.Rank = r.Rank
 	}
 	sc := make([]float64, n*scoreFields, max(n*scoreFields, 1))
 	for j, s := range r.Scores {
@@ -330,7 +351,8 @@ func WriteArrayReadouts(dir string, a ArrayReadouts, f *train.Fitted, r *RangeRe
 }
 
 // ReadArrayReadouts reads FileArrayReadouts of task i of n and its
-// per-neuron arrays (not the weights: ArrayReadoutWeights). The error
+// per-neuron arrays (not the readout: ArrayReadoutCoef and
+// ArrayReadoutBasis). The error
 // wraps os.ErrNotExist when the task's readout pass has not finished.
 func ReadArrayReadouts(dir string, i, n int) (*ArrayReadouts, *RangeResult, error) {
 	td := ArrayTaskDir(dir, i, n)
@@ -347,6 +369,8 @@ func ReadArrayReadouts(dir string, i, n int) (*ArrayReadouts, *RangeResult, erro
 		return nil, nil, fmt.Errorf("%s: written by array task %d of %d, but it is in the folder of task %d of %d", path, a.Task, a.Tasks, i, n)
 	case nn < 0:
 		return nil, nil, fmt.Errorf("%s: neurons [%d, %d): malformed", path, a.Neurons[0], a.Neurons[1])
+	case (nn > 0) != (a.Rank > 0) || a.Rank < 0:
+		return nil, nil, fmt.Errorf("%s: a readout of rank %d for %d neurons: malformed", path, a.Rank, nn)
 	}
 	for k, j := range a.Constant {
 		if j < a.Neurons[0] || j >= a.Neurons[1] || (k > 0 && j <= a.Constant[k-1]) {

@@ -16,6 +16,7 @@ import (
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/nn"
 	"github.com/strialab/stria/train"
+	"github.com/strialab/stria/train/projection"
 	"github.com/strialab/stria/train/settings"
 )
 
@@ -567,9 +568,7 @@ func WriteModel(dir string, p *train.Prepared, f *train.Fitted) error {
 		}
 		in = c.Out
 	}
-	rel := filepath.Join(DirParameters, "readout_weight.npy")
-	m.Arrays["readout_weight"] = Array{File: filepath.ToSlash(rel), Shape: []int{N, net.Features()}}
-	if err := format.WriteNPY64Rows(filepath.Join(dir, rel), N, net.Features(), f.ReadoutWeights); err != nil {
+	if err := saveReadout(dir, &m, N, f); err != nil {
 		return err
 	}
 	if err := saveArray(dir, &m, "readout_bias", []int{N}, f.ReadoutBias()); err != nil {
@@ -599,6 +598,28 @@ func WriteModel(dir string, p *train.Prepared, f *train.Fitted) error {
 		return err
 	}
 	return WriteHistory(dir, f.Log)
+}
+
+// saveReadout writes the readout weights of f's N neurons into
+// parameters/: readout_weight.npy (N x features), or, for a readout in
+// factored form (f.Readout), readout_coef.npy (N x rank) and
+// readout_basis.npy (rank x features), whose product is the weights
+// (LoadModel multiplies them out).
+func saveReadout(dir string, m *Manifest, N int, f *train.Fitted) error {
+	F := f.Net.Features()
+	name, cols, rows := "readout_weight", F, f.ReadoutWeights
+	if r := f.Readout; r != nil {
+		if r.Features != F || len(r.Basis) != r.Rank*F {
+			panic(fmt.Sprintf("runfolder: a readout of rank %d, %d features and %d basis values for a net of %d features", r.Rank, r.Features, len(r.Basis), F))
+		}
+		if err := saveArray(dir, m, "readout_basis", []int{r.Rank, F}, r.Basis); err != nil {
+			return err
+		}
+		name, cols, rows = "readout_coef", r.Rank, r.Coef
+	}
+	rel := filepath.Join(DirParameters, name+".npy")
+	m.Arrays[name] = Array{File: filepath.ToSlash(rel), Shape: []int{N, cols}}
+	return format.WriteNPY64Rows(filepath.Join(dir, rel), N, cols, rows)
 }
 
 // WriteResults writes neuron_scores.csv and summary.json from the scores of
@@ -761,7 +782,29 @@ func LoadModel(dir string) (*Model, error) {
 	for i := range net.Convs {
 		parts = append(parts, part{fmt.Sprintf("conv%d_weight", i), net.ConvW(i)}, part{fmt.Sprintf("conv%d_bias", i), net.ConvB(i)})
 	}
-	parts = append(parts, part{"readout_weight", net.ReadW()}, part{"readout_bias", net.ReadB()})
+	parts = append(parts, part{"readout_bias", net.ReadB()})
+	if _, ok := mf.Arrays["readout_coef"]; ok {
+		// The factored readout (saveReadout), multiplied out.
+		F := net.Features()
+		rank := 0
+		if b, ok := mf.Arrays["readout_basis"]; ok && len(b.Shape) == 2 && b.Shape[1] == F {
+			rank = b.Shape[0]
+		}
+		if rank < 1 {
+			return nil, fmt.Errorf("%s: readout_coef without a readout_basis of rank x %d", path, F)
+		}
+		basis, err := read("readout_basis", rank*F)
+		if err != nil {
+			return nil, err
+		}
+		coef, err := read("readout_coef", mf.Neurons*rank)
+		if err != nil {
+			return nil, err
+		}
+		projection.Expand(net.ReadW(), coef, basis, mf.Neurons, rank, F)
+	} else {
+		parts = append(parts, part{"readout_weight", net.ReadW()})
+	}
 	for _, pt := range parts {
 		v, err := read(pt.name, len(pt.dst))
 		if err != nil {

@@ -13,6 +13,7 @@ import (
 	"testing"
 	"time"
 
+	"github.com/strialab/stria/data"
 	"github.com/strialab/stria/data/synth"
 	"github.com/strialab/stria/eval"
 	"github.com/strialab/stria/train"
@@ -144,6 +145,12 @@ func TestNeuronScoresOddNames(t *testing.T) {
 // whose neurons have odd names; neuron 0 is constant (excluded).
 func smallFit(t *testing.T) (*train.Prepared, *train.Fitted, []eval.Scores) {
 	t.Helper()
+	return smallFitBy(t, train.PrepareRecording)
+}
+
+// smallFitBy is smallFit with the recording prepared by prepare.
+func smallFitBy(t *testing.T, prepare func(*settings.Config, *data.Recording) (*train.Prepared, error)) (*train.Prepared, *train.Fitted, []eval.Scores) {
+	t.Helper()
 	n := len(oddNames)
 	rec, _, _ := synth.Population(synth.Config{Neurons: n, Trials: 360, Bins: 12, TwoPeakFrac: 0.25, GainSD: 0.1, NoiseSD: 0.5, Seed: 3})
 	rec.Neurons = slices.Clone(oddNames)
@@ -159,7 +166,7 @@ func smallFit(t *testing.T) (*train.Prepared, *train.Fitted, []eval.Scores) {
 	if err := cfg.Validate(); err != nil {
 		t.Fatal(err)
 	}
-	p, err := train.PrepareRecording(&cfg, rec)
+	p, err := prepare(&cfg, rec)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -168,6 +175,75 @@ func smallFit(t *testing.T) (*train.Prepared, *train.Fitted, []eval.Scores) {
 		t.Fatal(err)
 	}
 	return p, f, train.ScoreFitted(p, f)
+}
+
+// TestFactoredReadout: a fit from statistics per condition writes its
+// readout as coefficients and a basis (no readout_weight.npy), and
+// LoadModel multiplies them out into the fit's weights bit for bit; the
+// folder reads back and writes again byte for byte; a basis missing from
+// model.json is refused.
+func TestFactoredReadout(t *testing.T) {
+	p, f, scores := smallFitBy(t, func(cfg *settings.Config, rec *data.Recording) (*train.Prepared, error) {
+		return train.PrepareParts(cfg, rec, nil)
+	})
+	if f.Readout == nil {
+		t.Fatal("a fit from statistics without a factored readout")
+	}
+	dir := filepath.Join(t.TempDir(), "run")
+	if err := Begin(dir); err != nil {
+		t.Fatal(err)
+	}
+	if err := WriteModel(dir, p, f); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := WriteResults(dir, p, f, scores, time.Second); err != nil {
+		t.Fatal(err)
+	}
+	if err := Finish(dir, FormatRun); err != nil {
+		t.Fatal(err)
+	}
+	for name, want := range map[string]bool{"readout_coef": true, "readout_basis": true, "readout_weight": false} {
+		_, err := os.Stat(filepath.Join(dir, DirParameters, name+".npy"))
+		if got := err == nil; got != want {
+			t.Errorf("parameters/%s.npy there: %v, want %v", name, got, want)
+		}
+	}
+	m, err := LoadModel(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	N := p.Neurons()
+	want := make([]float64, N*f.Net.Features())
+	f.ReadoutWeights(want, 0, N)
+	for i, w := range want {
+		if g := m.Net.ReadW()[i]; math.Float64bits(g) != math.Float64bits(w) {
+			t.Fatalf("readout weight %d of neuron %d: loaded %v, fitted %v", i%f.Net.Features(), i/f.Net.Features(), g, w)
+		}
+	}
+	r, err := ReadRun(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	copyDir := filepath.Join(t.TempDir(), "copy")
+	if err := WriteRun(copyDir, r); err != nil {
+		t.Fatal(err)
+	}
+	if err := Finish(copyDir, FormatRun); err != nil {
+		t.Fatal(err)
+	}
+	foldertest.SameFolders(t, dir, copyDir, FileComplete)
+
+	mf, err := ReadManifest(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	delete(mf.Arrays, "readout_basis")
+	if err := WriteJSON(filepath.Join(dir, FileManifest), mf); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := LoadModel(dir); err == nil || !strings.Contains(err.Error(), "readout_coef without a readout_basis") {
+		t.Errorf("LoadModel without the basis: %v", err)
+	}
 }
 
 func TestRunRoundTrip(t *testing.T) {
