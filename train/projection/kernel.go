@@ -56,3 +56,54 @@ func mulInto(dst []float64, ldd int, x []float64, ldx int, a []float64, lda int,
 		}
 	}
 }
+
+// mulSymInto writes dst = x x^T (m x m, row stride ldd) for x (m x k, row
+// stride ldx), given xt = x^T in the first m of n >= m columns of a k x n
+// matrix (row stride ldt >= n; the columns past m zero or anything), as
+// mulInto(dst, ldd, x, ldx, xt, ldt, m, k, m) writes it, bit for bit:
+// every element is the same sum in the same order, and element (i, c)
+// equals element (c, i) because each product x[i][j] x[c][j] is the same
+// number either way round. With the AVX2 kernel only the tiles that reach
+// the diagonal or lie right of it are computed (56 of 105 at m = 60), over
+// n columns (so that with n a multiple of 8 no column is left to the
+// scalar loop; dst then needs ldd >= n, and its columns past m are
+// overwritten with junk), and the rest is copied across the diagonal;
+// elsewhere it is mulInto.
+func mulSymInto(dst []float64, ldd int, x []float64, ldx int, xt []float64, ldt int, m, k, n int) {
+	if !hasTile4x8 || m == 0 || k == 0 {
+		mulInto(dst, ldd, x, ldx, xt, ldt, m, k, m)
+		return
+	}
+	if n < m || ldt < n || (n&^7 > m && ldd < n&^7) {
+		panic("projection: mulSymInto: bad padding")
+	}
+	_, _, _ = dst[(m-1)*ldd+m-1], x[(m-1)*ldx+k-1], xt[(k-1)*ldt+n-1]
+	rows, cols := m&^3, n&^7
+	for i := 0; i < rows; i += 4 {
+		for c := i &^ 7; c < cols; c += 8 {
+			tile4x8(&dst[i*ldd+c], ldd, &x[i*ldx], ldx, &xt[c], ldt, k)
+		}
+	}
+	// The columns right of the tiles, then the rows below them: only on
+	// and right of the diagonal.
+	for i := 0; i < m; i++ {
+		c0 := max(cols, i)
+		if i >= rows {
+			c0 = i
+		}
+		xi := x[i*ldx : i*ldx+k : i*ldx+k]
+		d := dst[i*ldd : i*ldd+m : i*ldd+m]
+		for c := c0; c < m; c++ {
+			var s float64
+			for j, v := range xi {
+				s += float64(v * xt[j*ldt+c])
+			}
+			d[c] = s
+		}
+	}
+	for i := 1; i < m; i++ {
+		for c := 0; c < i; c++ {
+			dst[i*ldd+c] = dst[c*ldd+i]
+		}
+	}
+}

@@ -184,3 +184,140 @@ func TestValR2MatchesFormer(t *testing.T) {
 		})
 	}
 }
+
+// TestMulSymIntoMatchesDgemm: mulSymInto gives x x^T as gonum's Dgemm
+// computes it, bit for bit (the upper triangle computed, the lower one
+// copied), for sizes with and without whole tiles and with row padding,
+// on the AVX2 kernel and on the fallback.
+func TestMulSymIntoMatchesDgemm(t *testing.T) {
+	rng := rand.New(rand.NewPCG(4, 10))
+	test := func(t *testing.T) {
+		for _, s := range []struct{ m, k, pad int }{{1, 1, 0}, {4, 9, 0}, {8, 60, 0}, {13, 7, 2}, {60, 300, 0}, {60, 97, 5}, {61, 40, 1}, {3, 0, 0}, {60, 50, 4}, {57, 20, 7}} {
+			// With pad >= the distance to a multiple of 8, the tiles run
+			// over the padding columns (n rounded up).
+			n := s.m
+			if r := (s.m + 7) &^ 7; r-s.m <= s.pad {
+				n = r
+			}
+			ldx, ldt, ldd := s.k+s.pad, s.m+2*s.pad, s.m+3*s.pad
+			x := make([]float64, s.m*ldx)
+			for i := range x {
+				x[i] = rng.NormFloat64() * math.Pow(10, float64(rng.IntN(9)-4))
+			}
+			xt := make([]float64, max(s.k, 1)*ldt)
+			for i := 0; i < s.m; i++ {
+				for j := 0; j < s.k; j++ {
+					xt[j*ldt+i] = x[i*ldx+j]
+				}
+			}
+			want := make([]float64, s.m*ldd)
+			got := make([]float64, s.m*ldd)
+			for i := range got {
+				got[i], want[i] = math.NaN(), math.NaN()
+			}
+			if s.k > 0 {
+				blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, blas64.General{Rows: s.m, Cols: s.k, Stride: ldx, Data: x},
+					blas64.General{Rows: s.k, Cols: s.m, Stride: ldt, Data: xt}, 0, blas64.General{Rows: s.m, Cols: s.m, Stride: ldd, Data: want})
+			} else {
+				for i := 0; i < s.m; i++ {
+					clear(want[i*ldd : i*ldd+s.m])
+				}
+			}
+			mulSymInto(got, ldd, x, ldx, xt, ldt, s.m, s.k, n)
+			for i := range want {
+				if i%ldd >= s.m {
+					continue // padding: junk where the tiles ran over it
+				}
+				if math.Float64bits(got[i]) != math.Float64bits(want[i]) {
+					t.Fatalf("%d x %d (+%d): element (%d, %d): got %v want %v (gonum Dgemm)", s.m, s.k, s.pad, i/ldd, i%ldd, got[i], want[i])
+				}
+			}
+		}
+	}
+	if hasTile4x8 {
+		defer func(v bool) { setTile4x8(v) }(hasTile4x8)
+		t.Run("Dgemm", func(t *testing.T) { setTile4x8(false); test(t) })
+		setTile4x8(true)
+	}
+	test(t)
+}
+
+// TestBlockSumsMatchDgemm: the sums of each block of neurons are gonum's
+// Dgemm of the block's columns (S = Yc Yc^T, Cvt = Dv Yc^T), bit for bit,
+// and the squared and within sums the plain loops in neuron order, for
+// bin counts with and without whole tiles and a last block short of
+// SumBlock neurons.
+func TestBlockSumsMatchDgemm(t *testing.T) {
+	if hasTile4x8 {
+		defer func(v bool) { setTile4x8(v) }(hasTile4x8)
+		t.Run("Dgemm", func(t *testing.T) { setTile4x8(false); testBlockSums(t) })
+		setTile4x8(true)
+	}
+	testBlockSums(t)
+}
+
+func testBlockSums(t *testing.T) {
+	rng := rand.New(rand.NewPCG(6, 2))
+	fill := func(n int) []float64 {
+		v := make([]float64, n)
+		for i := range v {
+			v[i] = rng.NormFloat64() * math.Pow(10, float64(rng.IntN(7)-3))
+		}
+		return v
+	}
+	for _, sz := range []struct{ Bt, Bv, N int }{{60, 60, SumBlock + 1000}, {13, 6, 2*SumBlock + 17}, {8, 0, 300}} {
+		pj := &projector{B: max(sz.Bt, sz.Bv), Bt: sz.Bt, Bv: sz.Bv, N: sz.N, yc: fill(sz.Bt * sz.N), withinN: fill(sz.N)}
+		if sz.Bv > 0 {
+			pj.dv, pj.withN = fill(sz.Bv*sz.N), fill(sz.N)
+		}
+		blocks := pj.blockSums()
+		if want := (sz.N + SumBlock - 1) / SumBlock; len(blocks) != want {
+			t.Fatalf("%d blocks, want %d", len(blocks), want)
+		}
+		for k, b := range blocks {
+			n0, n1 := k*SumBlock, min((k+1)*SumBlock, sz.N)
+			// The products as the former code wrote them: Dgemm of the
+			// block and its transpose, both not transposed (Dgemm's
+			// transposed path sums in another order).
+			nb := n1 - n0
+			yc := blas64.General{Rows: sz.Bt, Cols: nb, Stride: sz.N, Data: pj.yc[n0:]}
+			ytd := make([]float64, nb*sz.Bt)
+			for r := 0; r < sz.Bt; r++ {
+				for j := 0; j < nb; j++ {
+					ytd[j*sz.Bt+r] = pj.yc[r*sz.N+n0+j]
+				}
+			}
+			yt := blas64.General{Rows: nb, Cols: sz.Bt, Stride: sz.Bt, Data: ytd}
+			S := blas64.General{Rows: sz.Bt, Cols: sz.Bt, Stride: sz.Bt, Data: make([]float64, sz.Bt*sz.Bt)}
+			blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, yc, yt, 0, S)
+			same := func(name string, got, want []float64) {
+				t.Helper()
+				for i := range want {
+					if math.Float64bits(got[i]) != math.Float64bits(want[i]) {
+						t.Fatalf("%d x %d bins, %d neurons, block %d: %s[%d] = %v, want %v (Dgemm / the loop)", sz.Bt, sz.Bv, sz.N, k, name, i, got[i], want[i])
+					}
+				}
+			}
+			same("S", b.S, S.Data)
+			var w float64
+			for _, v := range pj.withinN[n0:n1] {
+				w += v
+			}
+			same("Within", []float64{b.Within}, []float64{w})
+			if sz.Bv == 0 {
+				continue
+			}
+			dv := blas64.General{Rows: sz.Bv, Cols: n1 - n0, Stride: sz.N, Data: pj.dv[n0:]}
+			C := blas64.General{Rows: sz.Bv, Cols: sz.Bt, Stride: sz.Bt, Data: make([]float64, sz.Bv*sz.Bt)}
+			blas64.Gemm(blas.NoTrans, blas.NoTrans, 1, dv, yt, 0, C)
+			same("Cvt", b.Cvt, C.Data)
+			yyv := make([]float64, sz.Bv)
+			for r := range yyv {
+				for _, v := range pj.dv[r*sz.N+n0 : r*sz.N+n1] {
+					yyv[r] += v * v
+				}
+			}
+			same("Yyv", b.Yyv, yyv)
+		}
+	}
+}

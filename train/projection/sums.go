@@ -129,14 +129,22 @@ func (pj *projector) blockSums() []BlockSums {
 		// The block's yc transposed (nb x Bt), so that both products
 		// are mulInto's x a: each sum over the block's neurons in
 		// ascending order, products rounded before they are added.
-		yt := make([]float64, nb*Bt)
+		// Its rows are padded with zeros to a multiple of 8 (B8) so that
+		// the products are whole tiles of the kernel (the same sums: the
+		// padding columns are computed and dropped).
+		B8 := (Bt + 7) &^ 7
+		yt := make([]float64, nb*B8)
 		for r := 0; r < Bt; r++ {
 			for j, v := range pj.yc[r*N+n0 : r*N+n1] {
-				yt[j*Bt+r] = v
+				yt[j*B8+r] = v
 			}
 		}
+		sp := make([]float64, max(Bt, Bv)*B8)
+		mulSymInto(sp, B8, pj.yc[n0:], N, yt, B8, Bt, nb, B8)
 		b.S = make([]float64, Bt*Bt)
-		mulInto(b.S, Bt, pj.yc[n0:], N, yt, Bt, Bt, nb, Bt)
+		for r := range Bt {
+			copy(b.S[r*Bt:(r+1)*Bt], sp[r*B8:])
+		}
 		for _, w := range pj.withinN[n0:n1] {
 			b.Within += w
 		}
@@ -144,7 +152,10 @@ func (pj *projector) blockSums() []BlockSums {
 			return
 		}
 		b.Cvt = make([]float64, Bv*Bt)
-		mulInto(b.Cvt, Bt, pj.dv[n0:], N, yt, Bt, Bv, nb, Bt)
+		mulInto(sp, B8, pj.dv[n0:], N, yt, B8, Bv, nb, B8)
+		for r := range Bv {
+			copy(b.Cvt[r*Bt:(r+1)*Bt], sp[r*B8:])
+		}
 		b.Yyv = make([]float64, Bv)
 		for r := range b.Yyv {
 			var s float64
