@@ -2,7 +2,6 @@ package eval
 
 import (
 	"math"
-	"sort"
 )
 
 func checkLen(a, b int, what string) {
@@ -408,10 +407,7 @@ func Summarize(x []float64) Summary {
 		s.Median, s.Q1, s.Q3 = math.NaN(), math.NaN(), math.NaN()
 		return s
 	}
-	sort.Float64s(v)
-	s.Q1 = quantileSorted(v, 0.25)
-	s.Median = quantileSorted(v, 0.5)
-	s.Q3 = quantileSorted(v, 0.75)
+	s.Q1, s.Median, s.Q3 = quartiles(v)
 	return s
 }
 
